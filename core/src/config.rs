@@ -1,0 +1,254 @@
+//! Configuration of the chain: detector settings, tips, probes, windows.
+//!
+//! Everything is plain data checked once by [`ChainConfig::validate`], so the hot loop never
+//! has to check it again.
+
+use crate::window::WindowPolicy;
+use crate::MAX_CHANNELS;
+use heapless::Vec;
+
+/// Which voltage the air phase reads.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub enum Polarity {
+    /// Air reads the higher voltage (the usual conductivity-probe wiring).
+    AirHigh,
+    /// Air reads the lower voltage.
+    AirLow,
+}
+
+impl Polarity {
+    /// +1 or -1: multiplying a sample by this maps it to a scale where air is high.
+    pub(crate) const fn sign(self) -> i32 {
+        match self {
+            Polarity::AirHigh => 1,
+            Polarity::AirLow => -1,
+        }
+    }
+}
+
+/// Where a tip's air and water levels come from.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub enum LevelSource {
+    /// Levels fixed by the operator, in ADC counts.
+    Fixed {
+        /// The air level, counts.
+        air: i16,
+        /// The water level, counts.
+        water: i16,
+    },
+    /// Levels learnt from the signal and re-learnt every learning period (see [`crate::levels`]).
+    Learnt,
+}
+
+/// Settings shared by every tip of a chain.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub struct DetectorConfig {
+    /// Threshold as a fraction of the water-to-air range (0.5 is common practice).
+    pub threshold: f32,
+    /// Full width of the hysteresis band as a fraction of the range (0.2 gives 40 %/60 %);
+    /// 0 disables hysteresis.
+    pub hysteresis: f32,
+    /// Learning period in frames (samples per channel) for learnt levels.
+    pub learn_period: u32,
+    /// Samples at or below this count are at the lower ADC rail.
+    pub rail_low: i16,
+    /// Samples at or above this count are at the upper ADC rail.
+    pub rail_high: i16,
+    /// Smallest accepted air-water swing, counts, when learning levels.
+    pub min_swing: u16,
+}
+
+impl Default for DetectorConfig {
+    fn default() -> Self {
+        DetectorConfig {
+            threshold: 0.5,
+            hysteresis: 0.2,
+            learn_period: 8192,
+            rail_low: i16::MIN,
+            rail_high: i16::MAX,
+            min_swing: 64,
+        }
+    }
+}
+
+/// One tip: its channel, polarity and levels.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub struct TipConfig {
+    /// Channel index in the interleaved frame.
+    pub channel: u8,
+    /// Which voltage reads air.
+    pub polarity: Polarity,
+    /// Fixed or learnt levels.
+    pub levels: LevelSource,
+}
+
+/// One probe: a leading tip and optionally a trailing tip behind it.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub struct ProbeConfig {
+    /// The leading (upstream) tip; its statistics are the probe's.
+    pub leading: TipConfig,
+    /// The trailing tip, if the probe has two.
+    pub trailing: Option<TipConfig>,
+}
+
+/// The whole chain: channel count, detector settings, probes, window policy.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ChainConfig<const P: usize> {
+    /// Number of interleaved channels in each frame (may exceed the tips in use).
+    pub channels: u8,
+    /// Detector settings.
+    pub detector: DetectorConfig,
+    /// The probes, at most `P`.
+    pub probes: Vec<ProbeConfig, P>,
+    /// How samples are cut into analysis windows.
+    pub window: WindowPolicy,
+    /// The phase every tip is taken to be in until its first interface (true = air). Steady
+    /// flows usually start in water; a dry bed before a surge starts in air.
+    pub initial_air: bool,
+}
+
+/// A configuration the chain cannot run.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[non_exhaustive]
+pub enum ConfigError {
+    /// No probe configured.
+    NoProbes,
+    /// Zero channels, or more than [`MAX_CHANNELS`].
+    BadChannelCount(u8),
+    /// A tip's channel is beyond the frame.
+    ChannelOutOfRange {
+        /// Probe index.
+        probe: u8,
+        /// The offending channel.
+        channel: u8,
+    },
+    /// Two tips read the same channel.
+    ChannelShared(u8),
+    /// Threshold not strictly between 0 and 1.
+    BadThreshold,
+    /// Hysteresis negative or so wide the band leaves 0..1.
+    BadHysteresis,
+    /// Learning period shorter than 64 frames.
+    BadLearnPeriod,
+    /// Rails not ordered.
+    BadRails,
+    /// Fixed levels equal, or on the wrong side of each other for the polarity.
+    BadLevels {
+        /// Probe index.
+        probe: u8,
+    },
+    /// A window policy of zero length.
+    BadWindow,
+}
+
+impl core::fmt::Display for ConfigError {
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        match self {
+            ConfigError::NoProbes => write!(f, "no probe configured"),
+            ConfigError::BadChannelCount(n) => {
+                write!(f, "{n} channels: need 1 to {MAX_CHANNELS}")
+            }
+            ConfigError::ChannelOutOfRange { probe, channel } => {
+                write!(f, "probe {probe} uses channel {channel}, beyond the frame")
+            }
+            ConfigError::ChannelShared(c) => write!(f, "channel {c} is used by two tips"),
+            ConfigError::BadThreshold => write!(f, "threshold must lie strictly between 0 and 1"),
+            ConfigError::BadHysteresis => {
+                write!(
+                    f,
+                    "hysteresis band must be >= 0 and stay inside 0..1 around the threshold"
+                )
+            }
+            ConfigError::BadLearnPeriod => write!(f, "learning period must be at least 64 frames"),
+            ConfigError::BadRails => write!(f, "rail_low must be below rail_high"),
+            ConfigError::BadLevels { probe } => write!(
+                f,
+                "probe {probe}: fixed air and water levels are equal or contradict the polarity"
+            ),
+            ConfigError::BadWindow => write!(f, "window length must be at least one frame"),
+        }
+    }
+}
+
+impl TipConfig {
+    fn validate(&self, probe: u8, channels: u8) -> Result<(), ConfigError> {
+        if self.channel >= channels {
+            return Err(ConfigError::ChannelOutOfRange {
+                probe,
+                channel: self.channel,
+            });
+        }
+        if let LevelSource::Fixed { air, water } = self.levels {
+            let s = self.polarity.sign();
+            if (air as i32) * s <= (water as i32) * s {
+                return Err(ConfigError::BadLevels { probe });
+            }
+        }
+        Ok(())
+    }
+}
+
+impl<const P: usize> ChainConfig<P> {
+    /// A configuration with default detector settings and no probes yet.
+    pub fn new(channels: u8, window: WindowPolicy) -> Self {
+        ChainConfig {
+            channels,
+            detector: DetectorConfig::default(),
+            probes: Vec::new(),
+            window,
+            initial_air: false,
+        }
+    }
+
+    /// Check every value the chain relies on.
+    pub fn validate(&self) -> Result<(), ConfigError> {
+        if self.channels == 0 || self.channels as usize > MAX_CHANNELS {
+            return Err(ConfigError::BadChannelCount(self.channels));
+        }
+        if self.probes.is_empty() {
+            return Err(ConfigError::NoProbes);
+        }
+        let d = &self.detector;
+        if !(d.threshold > 0.0 && d.threshold < 1.0) {
+            return Err(ConfigError::BadThreshold);
+        }
+        let half = d.hysteresis * 0.5;
+        if !(d.hysteresis >= 0.0 && d.threshold - half > 0.0 && d.threshold + half < 1.0) {
+            return Err(ConfigError::BadHysteresis);
+        }
+        if d.learn_period < 64 {
+            return Err(ConfigError::BadLearnPeriod);
+        }
+        if d.rail_low >= d.rail_high {
+            return Err(ConfigError::BadRails);
+        }
+        if !self.window.is_valid() {
+            return Err(ConfigError::BadWindow);
+        }
+        let mut used = [false; MAX_CHANNELS];
+        for (i, p) in self.probes.iter().enumerate() {
+            let i = i as u8;
+            for tip in core::iter::once(&p.leading).chain(p.trailing.iter()) {
+                tip.validate(i, self.channels)?;
+                let c = tip.channel as usize;
+                if used[c] {
+                    return Err(ConfigError::ChannelShared(tip.channel));
+                }
+                used[c] = true;
+            }
+        }
+        Ok(())
+    }
+}

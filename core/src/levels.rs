@@ -1,0 +1,257 @@
+//! Air and water levels: thresholds from levels, and levels learnt from the signal.
+//!
+//! Learning keeps a fixed 64-bin histogram of every 4th sample over one learning period.
+//! At the end of the period the histogram is split in two classes by Otsu's method (Otsu,
+//! 1979, "A threshold selection method from gray-level histograms"), each class's level is
+//! the mode refined by the mean of the samples in the mode bin and its neighbours, and the
+//! split is accepted only if it is clearly bimodal (Otsu's separability eta >= 0.75, each
+//! class holding >= 0.5 % of the samples, the swing at least `min_swing` counts). A period
+//! that fails keeps the previous levels, so a tip sitting in one phase keeps its last good
+//! levels. The bin range of each period comes from the previous period's min/max, so the
+//! learnt levels do not depend on the ADC's scale; the very first period spends its first
+//! half finding that range. All arithmetic is deterministic (integers, plain f32), so a
+//! device and a host replay learn the same levels from the same samples.
+
+use micromath::F32Ext;
+
+/// Number of histogram bins.
+pub const LEARN_BINS: usize = 64;
+/// Only every `LEARN_STRIDE`-th frame (by absolute frame index) feeds the histogram.
+pub const LEARN_STRIDE: u64 = 4;
+/// Smallest accepted Otsu separability (between-class over total variance). A single
+/// Gaussian mode gives 2/pi = 0.64; two well-separated modes give close to 1.
+pub const MIN_SEPARABILITY: f32 = 0.75;
+
+/// The two levels of a tip, in ADC counts.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub struct Levels {
+    /// Air level, counts.
+    pub air: f32,
+    /// Water level, counts.
+    pub water: f32,
+}
+
+/// Thresholds in the "air is high" scale (sample times the polarity sign).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Thresholds {
+    /// A water sample above this becomes air.
+    pub enter_air: i32,
+    /// An air sample at or below this becomes water.
+    pub enter_water: i32,
+}
+
+impl Thresholds {
+    /// Thresholds at `threshold` of the range, with a band `hysteresis` wide around it.
+    /// `sign` maps counts to the air-is-high scale.
+    pub fn from_levels(levels: Levels, sign: i32, threshold: f32, hysteresis: f32) -> Self {
+        let air = levels.air * sign as f32;
+        let water = levels.water * sign as f32;
+        let range = air - water;
+        let half = hysteresis * 0.5;
+        let hi = water + (threshold + half) * range;
+        let lo = water + (threshold - half) * range;
+        Thresholds {
+            enter_air: F32Ext::floor(hi) as i32,
+            enter_water: F32Ext::floor(lo) as i32,
+        }
+    }
+}
+
+/// What a finished learning period decided.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Learnt {
+    /// Two clear modes: these are the low and high levels, counts.
+    Modes {
+        /// Lower level, counts.
+        low: f32,
+        /// Higher level, counts.
+        high: f32,
+    },
+    /// Not bimodal enough this period.
+    Unclear,
+}
+
+/// A fixed-size histogram that learns the two levels of a tip.
+#[derive(Clone, Debug)]
+pub struct LevelLearner {
+    origin: i32,
+    shift: u32,
+    counts: [u32; LEARN_BINS],
+    /// Sum of (sample - bin lower edge) per bin, for sub-bin level estimates.
+    offsets: [u32; LEARN_BINS],
+    min: i16,
+    max: i16,
+    ranged: bool,
+}
+
+impl Default for LevelLearner {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl LevelLearner {
+    /// A learner that has not seen the signal yet.
+    pub const fn new() -> Self {
+        LevelLearner {
+            origin: 0,
+            shift: 0,
+            counts: [0; LEARN_BINS],
+            offsets: [0; LEARN_BINS],
+            min: i16::MAX,
+            max: i16::MIN,
+            ranged: false,
+        }
+    }
+
+    /// Feed every `LEARN_STRIDE`-th frame of `frames` (interleaved, `channels` wide) whose
+    /// absolute index is a multiple of the stride; `first` is the index of the first frame.
+    pub fn observe(&mut self, frames: &[i16], channels: usize, channel: usize, first: u64) {
+        let skip = ((LEARN_STRIDE - first % LEARN_STRIDE) % LEARN_STRIDE) as usize;
+        let start = skip * channels + channel;
+        if start >= frames.len() {
+            return;
+        }
+        let step = LEARN_STRIDE as usize * channels;
+        let (mut lo, mut hi) = (self.min, self.max);
+        if self.ranged {
+            let width = 1i32 << self.shift;
+            for &x in frames[start..].iter().step_by(step) {
+                lo = lo.min(x);
+                hi = hi.max(x);
+                let rel = x as i32 - self.origin;
+                let bin = (rel >> self.shift).clamp(0, LEARN_BINS as i32 - 1);
+                let off = (rel - (bin << self.shift)).clamp(0, width - 1);
+                let b = bin as usize;
+                self.counts[b] = self.counts[b].saturating_add(1);
+                self.offsets[b] = self.offsets[b].saturating_add(off as u32);
+            }
+        } else {
+            for &x in frames[start..].iter().step_by(step) {
+                lo = lo.min(x);
+                hi = hi.max(x);
+            }
+        }
+        self.min = lo;
+        self.max = hi;
+    }
+
+    /// Set the histogram range from the min/max seen so far (widened by a quarter of the
+    /// span each side) and start a fresh histogram and min/max.
+    pub fn range_from_seen(&mut self) {
+        let (lo, hi) = if self.min <= self.max {
+            (self.min as i32, self.max as i32)
+        } else {
+            (-32768, 32767)
+        };
+        let pad = ((hi - lo) / 4).max(1);
+        let lo = (lo - pad).max(-32768);
+        let hi = (hi + pad).min(32767);
+        let span = (hi - lo + 1) as u32;
+        let per_bin = span.div_ceil(LEARN_BINS as u32).max(1);
+        let shift = 32 - (per_bin - 1).leading_zeros();
+        self.origin = lo;
+        self.shift = if per_bin == 1 { 0 } else { shift };
+        self.counts = [0; LEARN_BINS];
+        self.offsets = [0; LEARN_BINS];
+        self.min = i16::MAX;
+        self.max = i16::MIN;
+        self.ranged = true;
+    }
+
+    /// End a learning period: decide the levels and start the next period.
+    pub fn finish_period(&mut self, min_swing: u16) -> Learnt {
+        let out = self.decide(min_swing);
+        self.range_from_seen();
+        out
+    }
+
+    fn bin_low(&self, b: usize) -> f32 {
+        (self.origin + ((b as i32) << self.shift)) as f32
+    }
+
+    /// Mean sample value of bins `lo..=hi`, or None if they are empty.
+    fn mean_of(&self, lo: usize, hi: usize) -> Option<f32> {
+        let mut n = 0u64;
+        let mut s = 0f64;
+        for b in lo..=hi {
+            n += self.counts[b] as u64;
+            s += self.counts[b] as f64 * self.bin_low(b) as f64 + self.offsets[b] as f64;
+        }
+        (n > 0).then(|| (s / n as f64) as f32)
+    }
+
+    fn decide(&self, min_swing: u16) -> Learnt {
+        if !self.ranged {
+            return Learnt::Unclear;
+        }
+        let width = (1u32 << self.shift) as f32;
+        let centre = |b: usize| self.bin_low(b) + 0.5 * width;
+        let total: u64 = self.counts.iter().map(|&c| c as u64).sum();
+        if total < 16 {
+            return Learnt::Unclear;
+        }
+        let nt = total as f32;
+        let mut mean_t = 0f32;
+        for b in 0..LEARN_BINS {
+            mean_t += self.counts[b] as f32 * centre(b);
+        }
+        mean_t /= nt;
+        let mut var_t = 0f32;
+        for b in 0..LEARN_BINS {
+            let d = centre(b) - mean_t;
+            var_t += self.counts[b] as f32 * d * d;
+        }
+        var_t /= nt;
+        if var_t <= 0.0 {
+            return Learnt::Unclear;
+        }
+        // Otsu: maximise the between-class variance over split points.
+        let (mut w0, mut m0) = (0f32, 0f32);
+        let (mut best, mut best_k) = (0f32, 0usize);
+        for k in 0..LEARN_BINS - 1 {
+            let c = self.counts[k] as f32 / nt;
+            w0 += c;
+            m0 += c * centre(k);
+            let w1 = 1.0 - w0;
+            if w0 <= 0.0 || w1 <= 0.0 {
+                continue;
+            }
+            let d = mean_t * w0 - m0;
+            let between = d * d / (w0 * w1);
+            if between > best {
+                best = between;
+                best_k = k;
+            }
+        }
+        let eta = best / var_t;
+        let low_n: u64 = self.counts[..=best_k].iter().map(|&c| c as u64).sum();
+        let high_n = total - low_n;
+        let min_class = (total / 200).max(2);
+        if eta < MIN_SEPARABILITY || low_n < min_class || high_n < min_class {
+            return Learnt::Unclear;
+        }
+        let mode = |lo: usize, hi: usize| -> usize {
+            let mut m = lo;
+            for b in lo..=hi {
+                if self.counts[b] > self.counts[m] {
+                    m = b;
+                }
+            }
+            m
+        };
+        let ml = mode(0, best_k);
+        let mh = mode(best_k + 1, LEARN_BINS - 1);
+        let low = self.mean_of(ml.saturating_sub(1), (ml + 1).min(best_k));
+        let high = self.mean_of((mh - 1).max(best_k + 1), (mh + 1).min(LEARN_BINS - 1));
+        match (low, high) {
+            (Some(low), Some(high)) if high - low >= min_swing as f32 => {
+                Learnt::Modes { low, high }
+            }
+            _ => Learnt::Unclear,
+        }
+    }
+}

@@ -1,0 +1,78 @@
+//! The records the chain produces.
+
+use crate::chord::ChordStats;
+use crate::flags::Flags;
+use crate::levels::Levels;
+
+/// Statistics of one tip over one window.
+///
+/// Counting rule for chords that straddle a window edge: a bubble (air chord) belongs to the
+/// window that holds its closing interface (air -> water), a droplet (water chord) to the
+/// window that holds its closing water -> air interface; the chord's full length goes into
+/// that window's chord statistics. So every chord is counted exactly once, and a window's
+/// record is complete when the window ends. A chord cut by the start of the record has an
+/// unknown length: it is counted in `bubbles`/`droplets` but not in the chord statistics. A
+/// chord still open when the record ends is not counted. Void fraction is exact: air frames
+/// over frames of the window, whatever the chords do.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub struct TipStats {
+    /// Frames in the window.
+    pub frames: u64,
+    /// Frames in air.
+    pub air_frames: u64,
+    /// Frames at an ADC rail.
+    pub rail_frames: u64,
+    /// Frames processed before the levels were known (phase held).
+    pub unlearnt_frames: u64,
+    /// Bubbles closed in the window (air -> water interfaces).
+    pub bubbles: u32,
+    /// Droplets closed in the window (water -> air interfaces).
+    pub droplets: u32,
+    /// Chords of the bubbles with a known start, samples.
+    pub bubble_chords: ChordStats,
+    /// Chords of the droplets (water between bubbles) with a known start, samples.
+    pub droplet_chords: ChordStats,
+    /// The levels in use when the window closed.
+    pub levels: Option<Levels>,
+    /// Quality flags of this tip.
+    pub flags: Flags,
+}
+
+impl TipStats {
+    /// Void fraction: the fraction of the window's frames in air.
+    pub fn void_fraction(&self) -> Option<f32> {
+        (self.frames > 0).then(|| (self.air_frames as f64 / self.frames as f64) as f32)
+    }
+
+    /// Bubble count rate, bubbles per second, at `sample_rate` frames per second.
+    pub fn bubble_count_rate(&self, sample_rate: f32) -> Option<f32> {
+        (self.frames > 0 && sample_rate > 0.0)
+            .then(|| (self.bubbles as f64 * sample_rate as f64 / self.frames as f64) as f32)
+    }
+
+    /// Number of interfaces in the window.
+    pub fn interfaces(&self) -> u32 {
+        self.bubbles.saturating_add(self.droplets)
+    }
+}
+
+/// One probe over one window.
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub struct ProbeWindow {
+    /// Index of the probe in the configuration.
+    pub probe: u8,
+    /// First frame of the window (absolute index since the run started).
+    pub start: u64,
+    /// One past the last frame of the window.
+    pub end: u64,
+    /// The leading tip: the probe's statistics.
+    pub lead: TipStats,
+    /// The trailing tip, if the probe has one.
+    pub trail: Option<TipStats>,
+    /// The probe's flags: the leading tip's, plus window- and trailing-tip flags.
+    pub flags: Flags,
+}

@@ -1,0 +1,107 @@
+//! Per-window statistics of one tip, fed by its edges and its per-run sample counts.
+//!
+//! See [`crate::record::TipStats`] for how chords that straddle a window edge are counted.
+
+use crate::chord::ChordStats;
+use crate::flags::Flags;
+use crate::levels::Levels;
+use crate::phase::{Edge, EdgeSink, RunCounts};
+use crate::record::TipStats;
+
+/// Accumulates one tip's statistics over the current window.
+#[derive(Clone, Debug)]
+pub struct TipAccumulator {
+    /// Frame of the last interface; None while the phase began before the record.
+    since: Option<u64>,
+    frames: u64,
+    air_frames: u64,
+    rail_frames: u64,
+    unlearnt_frames: u64,
+    bubbles: u32,
+    droplets: u32,
+    bubble_chords: ChordStats,
+    droplet_chords: ChordStats,
+}
+
+impl Default for TipAccumulator {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl TipAccumulator {
+    /// An empty accumulator at the start of a record.
+    pub const fn new() -> Self {
+        TipAccumulator {
+            since: None,
+            frames: 0,
+            air_frames: 0,
+            rail_frames: 0,
+            unlearnt_frames: 0,
+            bubbles: 0,
+            droplets: 0,
+            bubble_chords: ChordStats::new(),
+            droplet_chords: ChordStats::new(),
+        }
+    }
+
+    /// Add the sample counts of a run of `frames` frames.
+    pub fn add_run(&mut self, frames: u32, c: RunCounts) {
+        self.frames += frames as u64;
+        self.air_frames += c.air as u64;
+        self.rail_frames += c.rail as u64;
+        self.unlearnt_frames += c.unlearnt as u64;
+    }
+
+    /// Close the window: return its statistics and start the next window.
+    pub fn close(&mut self, levels: Option<Levels>) -> TipStats {
+        let mut flags = Flags::NONE;
+        let chords = self.bubble_chords.count + self.droplet_chords.count;
+        let short = self.bubble_chords.short + self.droplet_chords.short;
+        flags.set_if(Flags::STUCK, self.bubbles == 0 && self.droplets == 0);
+        flags.set_if(Flags::LEVELS_NOT_LEARNT, self.unlearnt_frames > 0);
+        flags.set_if(Flags::SATURATED, self.rail_frames > 0);
+        flags.set_if(
+            Flags::SHORT_CHORDS,
+            chords > 0 && short as u64 * 10 >= chords as u64,
+        );
+        let stats = TipStats {
+            frames: self.frames,
+            air_frames: self.air_frames,
+            rail_frames: self.rail_frames,
+            unlearnt_frames: self.unlearnt_frames,
+            bubbles: self.bubbles,
+            droplets: self.droplets,
+            bubble_chords: self.bubble_chords.clone(),
+            droplet_chords: self.droplet_chords.clone(),
+            levels,
+            flags,
+        };
+        *self = TipAccumulator {
+            since: self.since,
+            ..TipAccumulator::new()
+        };
+        stats
+    }
+}
+
+impl EdgeSink for TipAccumulator {
+    #[inline]
+    fn edge(&mut self, e: Edge) {
+        let chord = self
+            .since
+            .map(|s| e.frame.saturating_sub(s).min(u32::MAX as u64) as u32);
+        if e.to_air {
+            self.droplets = self.droplets.saturating_add(1);
+            if let Some(c) = chord {
+                self.droplet_chords.add(c);
+            }
+        } else {
+            self.bubbles = self.bubbles.saturating_add(1);
+            if let Some(c) = chord {
+                self.bubble_chords.add(c);
+            }
+        }
+        self.since = Some(e.frame);
+    }
+}

@@ -1,0 +1,1 @@
+//! Holds nothing: this package exists for the end-to-end tests in `tests/`.
