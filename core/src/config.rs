@@ -252,3 +252,5 @@ impl<const P: usize> ChainConfig<P> {
         Ok(())
     }
 }
+
+impl core::error::Error for ConfigError {}

@@ -1,0 +1,105 @@
+//! From a layout file and a capture's format to the core's chain configuration.
+//!
+//! The one place where physical units of the layout (seconds, file units) become the core's
+//! frames and i16 counts, so replay and the simulated device build identical chains.
+
+use crate::layout::{Layout, Phase};
+use frothline_core::{
+    ChainConfig, ConfigError, DetectorConfig, LevelSource, Polarity, ProbeConfig, TipConfig,
+    WindowPolicy,
+};
+
+/// Most probes a host chain holds (a WAV frame holds at most 64 channels for the core).
+pub const MAX_PROBES: usize = 32;
+
+/// The chain type the host runs.
+pub type HostChain = frothline_core::Chain<MAX_PROBES>;
+
+/// How the host maps file units to counts (the capture's conversion).
+pub trait ToCounts {
+    /// A level or rail in file units, as i16 counts.
+    fn to_counts(&self, file_units: f64) -> f64;
+}
+
+impl ToCounts for crate::capture::Capture {
+    fn to_counts(&self, v: f64) -> f64 {
+        crate::capture::Capture::to_counts(self, v)
+    }
+}
+
+/// Identity mapping, for captures already in i16 counts (the synthesiser, the device).
+pub struct Counts;
+
+impl ToCounts for Counts {
+    fn to_counts(&self, v: f64) -> f64 {
+        v
+    }
+}
+
+fn clamp_i16(v: f64) -> i16 {
+    v.round().clamp(i16::MIN as f64, i16::MAX as f64) as i16
+}
+
+/// Build the chain configuration of `layout` for a capture of `channels` channels at
+/// `sample_rate` frames per second.
+pub fn chain_config(
+    layout: &Layout,
+    channels: usize,
+    sample_rate: u32,
+    window: WindowPolicy,
+    units: &dyn ToCounts,
+) -> Result<ChainConfig<MAX_PROBES>, ConfigError> {
+    if channels == 0 || channels > frothline_core::MAX_CHANNELS {
+        return Err(ConfigError::BadChannelCount(channels.min(255) as u8));
+    }
+    let d = &layout.detector;
+    let fs = sample_rate as f64;
+    let detector = DetectorConfig {
+        threshold: d.threshold as f32,
+        hysteresis: d.hysteresis as f32,
+        learn_period: (d.learn_period_s * fs).round().clamp(64.0, u32::MAX as f64) as u32,
+        rail_low: d
+            .rail_low
+            .map_or(i16::MIN, |v| clamp_i16(units.to_counts(v))),
+        rail_high: d
+            .rail_high
+            .map_or(i16::MAX, |v| clamp_i16(units.to_counts(v))),
+        min_swing: d.min_swing.map_or(64, |v| {
+            (units.to_counts(v) - units.to_counts(0.0))
+                .abs()
+                .round()
+                .clamp(1.0, u16::MAX as f64) as u16
+        }),
+    };
+    let mut cfg = ChainConfig::new(channels as u8, window);
+    cfg.detector = detector;
+    cfg.initial_air = layout.flow.phase_before_front == Phase::Air
+        && layout.flow.kind == crate::layout::FlowKind::Transient;
+    for p in &layout.probes {
+        let polarity = if p.air_is_high {
+            Polarity::AirHigh
+        } else {
+            Polarity::AirLow
+        };
+        let levels = match &p.levels {
+            Some(l) => LevelSource::Fixed {
+                air: clamp_i16(units.to_counts(l.air)),
+                water: clamp_i16(units.to_counts(l.water)),
+            },
+            None => LevelSource::Learnt,
+        };
+        let tip = |ch: usize| TipConfig {
+            channel: ch.min(255) as u8,
+            polarity,
+            levels,
+        };
+        let probe = ProbeConfig {
+            leading: tip(p.leading),
+            trailing: p.trailing.map(tip),
+        };
+        // The caller checks the probe count against MAX_PROBES first.
+        let _ = cfg.probes.push(probe);
+    }
+    cfg.validate()?;
+    Ok(cfg)
+}

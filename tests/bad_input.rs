@@ -1,0 +1,180 @@
+//! Bad input to `frothline replay`: every case gives an error that names what is wrong, and
+//! no output file is left looking complete (brief: "bad input gets a clear error").
+
+use std::fs;
+use std::path::{Path, PathBuf};
+
+fn write_wav(path: &Path, channels: u16, frames: usize) {
+    let spec = hound::WavSpec {
+        channels,
+        sample_rate: 20_000,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(path, spec).unwrap();
+    for i in 0..frames * channels as usize {
+        w.write_sample(if (i / channels as usize) % 50 < 20 {
+            20_000i16
+        } else {
+            2_000
+        })
+        .unwrap();
+    }
+    w.finalize().unwrap();
+}
+
+const GOOD_LAYOUT: &str = r#"[flow]
+kind = "steady"
+
+[[probe]]
+name = "P1"
+elevation_mm = 20.0
+leading = 0
+trailing = 1
+tip_spacing_mm = 5.0
+"#;
+
+struct Case {
+    dir: tempfile::TempDir,
+}
+
+impl Case {
+    fn new(layout: &str, channels: u16) -> Case {
+        let dir = tempfile::tempdir().unwrap();
+        fs::write(dir.path().join("layout.toml"), layout).unwrap();
+        write_wav(&dir.path().join("capture.wav"), channels, 4000);
+        Case { dir }
+    }
+    fn p(&self, name: &str) -> PathBuf {
+        self.dir.path().join(name)
+    }
+    fn args(&self, extra: &[&str]) -> Vec<String> {
+        let mut a: Vec<String> = ["frothline", "replay"]
+            .iter()
+            .map(|s| s.to_string())
+            .collect();
+        for p in [
+            self.p("capture.wav"),
+            "--layout".into(),
+            self.p("layout.toml"),
+            "--out".into(),
+            self.p("out"),
+        ] {
+            a.push(p.display().to_string());
+        }
+        a.extend(extra.iter().map(|s| s.to_string()));
+        a
+    }
+    /// Run replay; return the error text (panics if it succeeded).
+    fn replay_error(&self) -> String {
+        let out = self.p("out");
+        let err =
+            frothline_host::cli::run(self.args(&["--quiet"])).expect_err("replay should fail");
+        assert!(err.exit_code() != 0);
+        assert!(
+            !out.join("windows.csv").exists(),
+            "a failed replay left windows.csv"
+        );
+        err.to_string()
+    }
+}
+
+#[test]
+fn good_case_runs() {
+    let c = Case::new(GOOD_LAYOUT, 2);
+    let out = c.p("out");
+    frothline_host::cli::run(c.args(&["--quiet"])).unwrap();
+    assert!(out.join("windows.csv").exists());
+    assert!(!out.join("windows.csv.partial").exists());
+}
+
+#[test]
+fn channel_beyond_the_file_is_named() {
+    let c = Case::new(GOOD_LAYOUT, 1);
+    let e = c.replay_error();
+    assert!(
+        e.contains("probe[0].trailing") && e.contains("line 8"),
+        "{e}"
+    );
+    assert!(e.contains('1'), "{e}");
+}
+
+#[test]
+fn unknown_key_is_named_with_its_line() {
+    let c = Case::new(
+        &GOOD_LAYOUT.replace(
+            "tip_spacing_mm = 5.0",
+            "tip_spacing_mm = 5.0\ntip_colour = \"red\"",
+        ),
+        2,
+    );
+    let e = c.replay_error();
+    assert!(e.contains("tip_colour") && e.contains("line 10"), "{e}");
+}
+
+#[test]
+fn missing_key_is_named() {
+    let c = Case::new(&GOOD_LAYOUT.replace("elevation_mm = 20.0\n", ""), 2);
+    let e = c.replay_error();
+    assert!(e.contains("elevation_mm"), "{e}");
+}
+
+#[test]
+fn trailing_tip_without_spacing_is_named() {
+    let c = Case::new(&GOOD_LAYOUT.replace("tip_spacing_mm = 5.0\n", ""), 2);
+    let e = c.replay_error();
+    assert!(
+        e.contains("tip_spacing_mm") && e.contains("probe[0]"),
+        "{e}"
+    );
+}
+
+#[test]
+fn two_probes_on_one_channel_are_named() {
+    let layout =
+        format!("{GOOD_LAYOUT}\n[[probe]]\nname = \"P2\"\nelevation_mm = 40.0\nleading = 1\n");
+    let c = Case::new(&layout, 2);
+    let e = c.replay_error();
+    assert!(
+        e.contains("probe[1].leading") && e.contains("line 14"),
+        "{e}"
+    );
+}
+
+#[test]
+fn toml_syntax_error_gives_a_line() {
+    let c = Case::new(&GOOD_LAYOUT.replace("leading = 0", "leading = = 0"), 2);
+    let e = c.replay_error();
+    assert!(e.contains("layout.toml") && e.contains("line 7"), "{e}");
+}
+
+#[test]
+fn truncated_wav_is_an_error_naming_the_file() {
+    let c = Case::new(GOOD_LAYOUT, 2);
+    let wav = c.p("capture.wav");
+    let bytes = fs::read(&wav).unwrap();
+    fs::write(&wav, &bytes[..bytes.len() / 2 + 1]).unwrap();
+    let e = c.replay_error();
+    assert!(e.contains("capture.wav"), "{e}");
+    assert!(e.to_lowercase().contains("truncated"), "{e}");
+}
+
+#[test]
+fn non_pcm_or_garbage_wav_is_an_error() {
+    let c = Case::new(GOOD_LAYOUT, 2);
+    fs::write(c.p("capture.wav"), b"RIFF\x10\x00\x00\x00WAVEjunkjunkjunk").unwrap();
+    let e = c.replay_error();
+    assert!(e.contains("capture.wav"), "{e}");
+    fs::write(c.p("capture.wav"), b"this is not audio").unwrap();
+    let e = c.replay_error();
+    assert!(e.contains("capture.wav"), "{e}");
+}
+
+#[test]
+fn bad_window_is_a_usage_error() {
+    let c = Case::new(GOOD_LAYOUT, 2);
+    let e = frothline_host::cli::run(c.args(&["--window", "5min"]))
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("5min"), "{e}");
+}
