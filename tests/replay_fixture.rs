@@ -64,3 +64,34 @@ fn steady_fixture_matches_its_truth() {
         assert!((c - w).abs() < 0.05, "probe {probe}: C {c} vs truth {w}");
     }
 }
+
+/// The probes split over worker threads give exactly the records of one chain, in the same
+/// order (the parallel replay must not change results).
+#[test]
+fn parallel_replay_equals_one_chain() {
+    use frothline_host::replay::{drive, drive_parallel, open_rig};
+    use frothline_host::window_spec::WindowSpec;
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/steady-b2");
+    for window in [WindowSpec::Whole, WindowSpec::Duration(0.07)] {
+        let (mut cap, _, mut chain) =
+            open_rig(&root.join("capture.wav"), &root.join("layout.toml"), window).unwrap();
+        let bar = indicatif::ProgressBar::hidden();
+        let mut one = Vec::new();
+        drive(&mut cap, &mut chain, &bar, |r| {
+            one.push(r);
+            Ok(())
+        })
+        .unwrap();
+        for workers in [2, 3] {
+            let (mut cap, _, chain) =
+                open_rig(&root.join("capture.wav"), &root.join("layout.toml"), window).unwrap();
+            let mut many = Vec::new();
+            drive_parallel(&mut cap, chain, workers, &bar, |r| {
+                many.push(r);
+                Ok(())
+            })
+            .unwrap();
+            assert_eq!(one, many, "{workers} workers, window {window:?}");
+        }
+    }
+}

@@ -112,16 +112,35 @@ pub fn drive(
             break;
         }
         frames += n as u64;
-        let mut rest = &buf[..];
-        while !rest.is_empty() {
-            let used = chain.push(rest);
-            rest = &rest[used..];
-            while let Some(r) = chain.poll() {
-                sink(r)?;
-            }
-        }
+        push_all(chain, &buf, &mut |r| sink(r))?;
         progress.inc(n as u64);
     }
+    finish_all(chain, &mut |r| sink(r))?;
+    Ok(frames)
+}
+
+/// Push a whole block, draining records as the chain's queue fills.
+fn push_all<E>(
+    chain: &mut HostChain,
+    block: &[i16],
+    sink: &mut dyn FnMut(ProbeWindow) -> Result<(), E>,
+) -> Result<(), E> {
+    let mut rest = block;
+    while !rest.is_empty() {
+        let used = chain.push(rest);
+        rest = &rest[used..];
+        while let Some(r) = chain.poll() {
+            sink(r)?;
+        }
+    }
+    Ok(())
+}
+
+/// Close the record and drain every remaining record.
+fn finish_all<E>(
+    chain: &mut HostChain,
+    sink: &mut dyn FnMut(ProbeWindow) -> Result<(), E>,
+) -> Result<(), E> {
     while chain.finish().is_err() {
         while let Some(r) = chain.poll() {
             sink(r)?;
@@ -130,7 +149,134 @@ pub fn drive(
     while let Some(r) = chain.poll() {
         sink(r)?;
     }
-    Ok(frames)
+    Ok(())
+}
+
+/// Like [`drive`], with the probes split over worker threads, one chain each, fed the same
+/// blocks. Probes are independent under the `Whole` and fixed-duration window policies, so
+/// the records are the ones one chain would give; they are handed to `sink` in the same
+/// order (by window start, then probe). Other policies run on one chain.
+pub fn drive_parallel(
+    cap: &mut Capture,
+    chain: Box<HostChain>,
+    workers: usize,
+    progress: &ProgressBar,
+    mut sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
+) -> Result<u64, HostError> {
+    use frothline_core::WindowPolicy;
+    use std::collections::BTreeMap;
+    use std::sync::{mpsc, Arc};
+    let cfg = chain.config().clone();
+    let independent = matches!(cfg.window, WindowPolicy::Whole | WindowPolicy::Frames(_));
+    let workers = workers.min(cfg.probes.len());
+    if workers <= 1 || !independent {
+        let mut chain = chain;
+        return drive(cap, &mut chain, progress, sink);
+    }
+    // Contiguous groups of probes, balanced by tip count.
+    let tips: Vec<usize> = cfg
+        .probes
+        .iter()
+        .map(|p| 1 + p.trailing.is_some() as usize)
+        .collect();
+    let total: usize = tips.iter().sum();
+    let mut groups: Vec<Vec<usize>> = vec![Vec::new(); workers];
+    let mut acc = 0;
+    for (i, t) in tips.iter().enumerate() {
+        let g = (acc * workers / total).min(workers - 1);
+        groups[g].push(i);
+        acc += t;
+    }
+    groups.retain(|g| !g.is_empty());
+    let mut chains = Vec::new();
+    for g in &groups {
+        let mut c = cfg.clone();
+        c.probes.clear();
+        for &i in g {
+            let _ = c.probes.push(cfg.probes[i]);
+        }
+        let c = HostChain::new(c)
+            .map_err(|e| HostError::Usage(format!("internal: split chain refused: {e}")))?;
+        chains.push((Box::new(c), g.clone()));
+    }
+    std::thread::scope(|scope| {
+        let (rec_tx, rec_rx) = mpsc::channel::<(usize, Vec<ProbeWindow>)>();
+        let mut block_txs = Vec::new();
+        for (w, (mut chain, global)) in chains.into_iter().enumerate() {
+            let (tx, rx) = mpsc::sync_channel::<Arc<Vec<i16>>>(2);
+            block_txs.push(tx);
+            let rec_tx = rec_tx.clone();
+            scope.spawn(move || {
+                let out = std::cell::RefCell::new(Vec::new());
+                let mut keep = |mut r: ProbeWindow| -> Result<(), ()> {
+                    r.probe = global[r.probe as usize] as u8;
+                    out.borrow_mut().push(r);
+                    Ok(())
+                };
+                for block in rx {
+                    let _ = push_all(&mut chain, &block, &mut keep);
+                    let _ = rec_tx.send((w, out.take()));
+                }
+                let _ = finish_all(&mut chain, &mut keep);
+                let _ = rec_tx.send((w, out.take()));
+            });
+        }
+        drop(rec_tx);
+        let n_workers = block_txs.len();
+        let mut pending: BTreeMap<(u64, u8), ProbeWindow> = BTreeMap::new();
+        let mut last_start = vec![0u64; n_workers];
+        let mut flush =
+            |pending: &mut BTreeMap<(u64, u8), ProbeWindow>, upto: u64| -> Result<(), HostError> {
+                while let Some(entry) = pending.first_entry() {
+                    if entry.key().0 >= upto {
+                        break;
+                    }
+                    sink(entry.remove())?;
+                }
+                Ok(())
+            };
+        let mut take =
+            |w: usize, recs: Vec<ProbeWindow>, pending: &mut BTreeMap<(u64, u8), ProbeWindow>| {
+                for r in recs {
+                    last_start[w] = last_start[w].max(r.start);
+                    pending.insert((r.start, r.probe), r);
+                }
+                *last_start.iter().min().unwrap_or(&0)
+            };
+        let mut frames = 0u64;
+        let mut buf = Vec::with_capacity(BLOCK_FRAMES * cap.channels());
+        let result: Result<(), HostError> = (|| {
+            loop {
+                let n = cap.read_frames(&mut buf, BLOCK_FRAMES)?;
+                if n == 0 {
+                    break;
+                }
+                frames += n as u64;
+                let block = Arc::new(std::mem::take(&mut buf));
+                for tx in &block_txs {
+                    let _ = tx.send(Arc::clone(&block));
+                }
+                buf = Arc::try_unwrap(block)
+                    .unwrap_or_else(|_| Vec::with_capacity(BLOCK_FRAMES * cap.channels()));
+                while let Ok((w, recs)) = rec_rx.try_recv() {
+                    let upto = take(w, recs, &mut pending);
+                    flush(&mut pending, upto)?;
+                }
+                progress.inc(n as u64);
+            }
+            Ok(())
+        })();
+        drop(block_txs);
+        for (w, recs) in rec_rx.iter() {
+            let upto = take(w, recs, &mut pending);
+            if result.is_ok() {
+                flush(&mut pending, upto)?;
+            }
+        }
+        result?;
+        flush(&mut pending, u64::MAX)?;
+        Ok(frames)
+    })
 }
 
 fn progress_bar(frames: u64, quiet: bool) -> ProgressBar {
@@ -149,7 +295,7 @@ fn progress_bar(frames: u64, quiet: bool) -> ProgressBar {
 
 /// Run a replay and write its files.
 pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
-    let (mut cap, layout, mut chain) = open_rig(&args.capture, &args.layout, args.window)?;
+    let (mut cap, layout, chain) = open_rig(&args.capture, &args.layout, args.window)?;
     std::fs::create_dir_all(&args.out).map_err(write_err(&args.out))?;
     let final_path = args.out.join("windows.csv");
     let partial = args.out.join("windows.csv.partial");
@@ -163,7 +309,10 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     let fs = cap.sample_rate();
     let bar = progress_bar(cap.frames(), args.quiet);
     let mut records = Vec::new();
-    let result = drive(&mut cap, &mut chain, &bar, |r| {
+    let workers = std::thread::available_parallelism()
+        .map_or(1, |n| n.get())
+        .min(4);
+    let result = drive_parallel(&mut cap, chain, workers, &bar, |r| {
         csv.write(&r, &meta[r.probe as usize], fs, None)
             .map_err(csv_err)?;
         records.push(r);
