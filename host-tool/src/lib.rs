@@ -7,6 +7,7 @@
 //! - [`cli`]: the `frothline` command line.
 #![warn(missing_docs)]
 
+pub mod archive;
 pub mod capture;
 pub mod cli;
 pub mod error;
