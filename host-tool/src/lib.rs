@@ -10,8 +10,11 @@
 pub mod archive;
 pub mod capture;
 pub mod cli;
+pub mod dashboard;
 pub mod error;
 pub mod layout;
+pub mod live;
+pub mod ports;
 pub mod replay;
 pub mod rig;
 pub mod synth;

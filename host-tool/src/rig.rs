@@ -40,6 +40,20 @@ fn clamp_i16(v: f64) -> i16 {
     v.round().clamp(i16::MIN as f64, i16::MAX as f64) as i16
 }
 
+/// Slowest interfacial velocity searched by default, m/s (the layout's `max_lag_ms` overrides).
+pub const SLOWEST_VELOCITY_M_S: f64 = 0.2;
+
+/// The longest correlation lag in seconds: the layout's `max_lag_ms`, or the time the
+/// slowest velocity of interest takes over the tip spacing. The core caps it at its
+/// compile-time maximum lag.
+pub fn default_max_lag_s(max_lag_ms: Option<f64>, tip_spacing_mm: Option<f64>) -> f64 {
+    match (max_lag_ms, tip_spacing_mm) {
+        (Some(ms), _) => ms * 1e-3,
+        (None, Some(mm)) => mm * 1e-3 / SLOWEST_VELOCITY_M_S,
+        (None, None) => 0.0,
+    }
+}
+
 /// Build the chain configuration of `layout` for a capture of `channels` channels at
 /// `sample_rate` frames per second.
 pub fn chain_config(
@@ -70,6 +84,7 @@ pub fn chain_config(
                 .round()
                 .clamp(1.0, u16::MAX as f64) as u16
         }),
+        ..DetectorConfig::default()
     };
     let mut cfg = ChainConfig::new(channels as u8, window);
     cfg.detector = detector;
@@ -93,9 +108,11 @@ pub fn chain_config(
             polarity,
             levels,
         };
+        let max_lag = default_max_lag_s(p.max_lag_ms, p.tip_spacing_mm) * fs;
         let probe = ProbeConfig {
             leading: tip(p.leading),
             trailing: p.trailing.map(tip),
+            max_lag: max_lag.round().clamp(2.0, u16::MAX as f64) as u16,
         };
         // The caller checks the probe count against MAX_PROBES first.
         let _ = cfg.probes.push(probe);
