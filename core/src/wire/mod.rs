@@ -1,0 +1,113 @@
+//! Wire frames: the compact framed results a device streams over a serial link, and the
+//! commands a host sends back.
+//!
+//! ```text
+//! frame   = COBS( payload ++ crc32_le(payload) ) ++ 0x00
+//! payload = postcard( Header ) ++ postcard( body of Header.kind )
+//! ```
+//!
+//! One protocol concern per file, the way a small-device network stack lays out its wire
+//! formats:
+//! - [`frame`]: the header, the frame kinds and every body type, defined once here and shared
+//!   by firmware and host;
+//! - [`quant`]: the fixed-point units of the quantised fields, and records -> bodies;
+//! - [`codec`]: [`encode`] and [`decode`] of one frame into and out of caller buffers;
+//! - [`decoder`]: the streaming [`Decoder`] a serial read loop feeds, with resynchronisation
+//!   and loss counting;
+//! - [`streamer`]: the device-side [`Streamer`] that fits frames into the link's byte budget.
+//!
+//! The byte layout is specified in `docs/wire-protocol.md` (enough to write a decoder in
+//! another language); the golden vectors in `core/tests/wire.rs` pin it.
+//!
+//! Everything here is `no_std`, allocation-free and panic-free on any input: frames are
+//! bounded by [`MAX_FRAME_BYTES`], computed at compile time from the types.
+
+pub mod codec;
+pub mod decoder;
+pub mod frame;
+pub mod quant;
+pub mod streamer;
+
+pub use codec::{crc32, decode, decode_unstuffed, encode, WireError};
+pub use decoder::{Decoder, DecoderStats, DeviceSeqStats, FeedResult, SeqCheck};
+pub use frame::{
+    Ack, Body, ChordTimes, Correlation, DeviceDescription, Frame, FrontArrival, Header, Health,
+    Kind, Nack, NackReason, ProbeLayout, ProfileFit, Relearn, StartRun, TrailingTip, WindowResult,
+    WindowSetting, Windows,
+};
+pub use streamer::{Offer, Streamer, StreamerConfig, StreamerStats};
+
+use postcard::experimental::max_size::MaxSize;
+
+/// The protocol version every frame carries in its first byte. Bump it whenever a body
+/// layout changes; the header layout itself never changes.
+pub const PROTOCOL_VERSION: u8 = 1;
+
+/// Most probes a device description can list.
+pub const MAX_PROBES: usize = 16;
+
+/// Most per-probe window results one frame carries (the streamer packs the results of one
+/// analysis window, or of a backlog, into one frame to share its overhead).
+pub const MAX_WINDOWS_PER_FRAME: usize = 8;
+
+/// Capacity in bytes (UTF-8) of the firmware version string and of a run label.
+pub const LABEL_BYTES: usize = 16;
+
+/// Bytes of the CRC appended to the payload.
+pub const CRC_BYTES: usize = 4;
+
+const fn max(a: usize, b: usize) -> usize {
+    if a > b {
+        a
+    } else {
+        b
+    }
+}
+
+/// The longest body of any kind, bytes (postcard's `MaxSize`, computed from the types).
+pub const MAX_BODY_BYTES: usize = {
+    let mut m = DeviceDescription::POSTCARD_MAX_SIZE;
+    m = max(m, Windows::POSTCARD_MAX_SIZE);
+    m = max(m, FrontArrival::POSTCARD_MAX_SIZE);
+    m = max(m, ProfileFit::POSTCARD_MAX_SIZE);
+    m = max(m, Health::POSTCARD_MAX_SIZE);
+    m = max(m, StartRun::POSTCARD_MAX_SIZE);
+    m = max(m, WindowSetting::POSTCARD_MAX_SIZE);
+    m = max(m, Relearn::POSTCARD_MAX_SIZE);
+    m = max(m, Ack::POSTCARD_MAX_SIZE);
+    m = max(m, Nack::POSTCARD_MAX_SIZE);
+    m
+};
+
+/// The longest payload (header and body, before the CRC), bytes.
+pub const MAX_PAYLOAD_BYTES: usize = Header::POSTCARD_MAX_SIZE + MAX_BODY_BYTES;
+
+/// COBS adds one byte per started run of 254 bytes (and one more when the input ends exactly
+/// on a run boundary): `n + n / 254 + 1` bounds it for every `n`.
+pub const fn cobs_max_encoded(n: usize) -> usize {
+    n + n / 254 + 1
+}
+
+/// The longest frame on the wire, delimiter included, bytes. Size decoder and transmit
+/// buffers with it.
+pub const MAX_FRAME_BYTES: usize = cobs_max_encoded(MAX_PAYLOAD_BYTES + CRC_BYTES) + 1;
+
+/// The shortest valid frame: a header of 4 bytes (every field at its smallest), no body, the
+/// CRC, the COBS overhead byte and the delimiter.
+pub const MIN_FRAME_BYTES: usize = 4 + CRC_BYTES + 2;
+
+// The bound stays small enough for a device's decode and transmit buffers.
+const _: () = assert!(MAX_FRAME_BYTES > MAX_PAYLOAD_BYTES + CRC_BYTES + 1);
+const _: () = assert!(MAX_FRAME_BYTES <= 1024);
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn bounds_are_sane() {
+        assert_eq!(Header::POSTCARD_MAX_SIZE, 8);
+        assert_eq!(cobs_max_encoded(0), 1);
+        assert_eq!(cobs_max_encoded(254), 256);
+    }
+}

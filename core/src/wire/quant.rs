@@ -1,0 +1,228 @@
+//! Fixed-point units of the wire, and the conversion of chain records into bodies.
+//!
+//! Every quantiser rounds to the nearest step and saturates at the ends of its integer type;
+//! NaN maps to 0 (the `as` casts of Rust saturate and send NaN to 0, so nothing here can
+//! panic or wrap). Units:
+//!
+//! | quantity                          | unit      | type |
+//! |-----------------------------------|-----------|------|
+//! | fraction (C, peak, Tu, rmse)      | 1e-4      | u16  |
+//! | rate                              | 0.01 Hz   | u32  |
+//! | sample rate                       | 0.001 Hz  | u32  |
+//! | time (chords)                     | 1 µs      | u32  |
+//! | velocity                          | 1 mm/s    | i16  |
+//! | length (elevation, x, Y90, depth) | 0.1 mm    | i32/u32 |
+//! | tip spacing                       | 0.01 mm   | u16  |
+//! | profile exponent                  | 1e-3      | u16  |
+
+use crate::record::ProbeWindow;
+use crate::wire::frame::{ChordTimes, WindowResult};
+
+/// Steps per unit of a fraction.
+pub const FRACTION_SCALE: f32 = 10_000.0;
+/// Steps per hertz of a rate.
+pub const RATE_SCALE: f32 = 100.0;
+/// Steps per hertz of a sample rate.
+pub const SAMPLE_RATE_SCALE: f32 = 1_000.0;
+/// Steps per second of a time.
+pub const TIME_SCALE: f32 = 1_000_000.0;
+/// Steps per m/s of a velocity.
+pub const VELOCITY_SCALE: f32 = 1_000.0;
+/// Steps per millimetre of a length.
+pub const LENGTH_SCALE: f32 = 10.0;
+/// Steps per millimetre of a tip spacing.
+pub const SPACING_SCALE: f32 = 100.0;
+/// Steps per unit of a profile exponent.
+pub const EXPONENT_SCALE: f32 = 1_000.0;
+
+#[inline]
+fn unsigned(x: f32, scale: f32) -> f32 {
+    // NaN fails the comparison and becomes 0; +0.5 then truncation rounds to nearest.
+    if x > 0.0 {
+        x * scale + 0.5
+    } else {
+        0.0
+    }
+}
+
+#[inline]
+fn signed(x: f32, scale: f32) -> f32 {
+    // Round half away from zero; the cast truncates toward zero and saturates.
+    let y = x * scale;
+    if y >= 0.0 {
+        y + 0.5
+    } else {
+        y - 0.5
+    }
+}
+
+/// A fraction (0..=1, e.g. void fraction, correlation peak, Tu) -> 1e-4 steps.
+pub fn fraction(x: f32) -> u16 {
+    unsigned(x, FRACTION_SCALE) as u16
+}
+
+/// 1e-4 steps -> fraction.
+pub fn from_fraction(q: u16) -> f32 {
+    q as f32 / FRACTION_SCALE
+}
+
+/// A rate in Hz -> 0.01 Hz steps.
+pub fn rate(hz: f32) -> u32 {
+    unsigned(hz, RATE_SCALE) as u32
+}
+
+/// 0.01 Hz steps -> Hz.
+pub fn from_rate(q: u32) -> f32 {
+    q as f32 / RATE_SCALE
+}
+
+/// A sample rate in Hz -> millihertz.
+pub fn sample_rate(hz: f32) -> u32 {
+    unsigned(hz, SAMPLE_RATE_SCALE) as u32
+}
+
+/// Millihertz -> Hz.
+pub fn from_sample_rate(q: u32) -> f32 {
+    (q as f64 / SAMPLE_RATE_SCALE as f64) as f32
+}
+
+/// A duration of `samples` at `sample_rate_hz` -> microseconds (0 for a bad rate).
+pub fn micros_from_samples(samples: f32, sample_rate_hz: f32) -> u32 {
+    if sample_rate_hz > 0.0 {
+        unsigned(samples / sample_rate_hz, TIME_SCALE) as u32
+    } else {
+        0
+    }
+}
+
+/// Microseconds -> seconds.
+pub fn from_micros(q: u32) -> f32 {
+    q as f32 / TIME_SCALE
+}
+
+/// A velocity in m/s -> mm/s (signed, saturating at ±32.767 m/s).
+pub fn velocity(m_s: f32) -> i16 {
+    signed(m_s, VELOCITY_SCALE) as i16
+}
+
+/// mm/s -> m/s.
+pub fn from_velocity(q: i16) -> f32 {
+    q as f32 / VELOCITY_SCALE
+}
+
+/// A length in mm -> 0.1 mm steps (signed).
+pub fn length(mm: f32) -> i32 {
+    signed(mm, LENGTH_SCALE) as i32
+}
+
+/// A length in mm that cannot be negative -> 0.1 mm steps.
+pub fn length_unsigned(mm: f32) -> u32 {
+    unsigned(mm, LENGTH_SCALE) as u32
+}
+
+/// 0.1 mm steps -> mm.
+pub fn from_length(q: i32) -> f32 {
+    q as f32 / LENGTH_SCALE
+}
+
+/// A tip spacing in mm -> 0.01 mm steps.
+pub fn spacing(mm: f32) -> u16 {
+    unsigned(mm, SPACING_SCALE) as u16
+}
+
+/// 0.01 mm steps -> mm.
+pub fn from_spacing(q: u16) -> f32 {
+    q as f32 / SPACING_SCALE
+}
+
+/// A profile exponent -> 1e-3 steps.
+pub fn exponent(n: f32) -> u16 {
+    unsigned(n, EXPONENT_SCALE) as u16
+}
+
+/// 1e-3 steps -> exponent.
+pub fn from_exponent(q: u16) -> f32 {
+    q as f32 / EXPONENT_SCALE
+}
+
+impl WindowResult {
+    /// The wire form of a chain record, at `sample_rate_hz` frames per second.
+    ///
+    /// The correlation fields stay empty here (the velocity needs the tip spacing, which the
+    /// record does not carry): the caller fills them in. A window longer than `u32::MAX`
+    /// frames saturates.
+    pub fn from_probe_window<const L: usize>(
+        rec: &ProbeWindow<L>,
+        sample_rate_hz: f32,
+    ) -> WindowResult {
+        let lead = &rec.lead;
+        let c = &lead.bubble_chords;
+        let us = |samples: Option<f32>| micros_from_samples(samples.unwrap_or(0.0), sample_rate_hz);
+        let chords = (c.count > 0).then(|| ChordTimes {
+            mean: us(c.mean()),
+            median: us(c.median()),
+            p10: us(c.quantile(0.1)),
+            p90: us(c.quantile(0.9)),
+        });
+        WindowResult {
+            probe: rec.probe,
+            start: rec.start,
+            frames: u32::try_from(rec.end.saturating_sub(rec.start)).unwrap_or(u32::MAX),
+            void_fraction: fraction(lead.void_fraction().unwrap_or(0.0)),
+            bubble_rate: rate(lead.bubble_count_rate(sample_rate_hz).unwrap_or(0.0)),
+            bubbles: lead.bubbles,
+            chords,
+            correlation: None,
+            flags: rec.flags.0,
+        }
+    }
+
+    /// Void fraction (0..=1).
+    pub fn void_fraction_value(&self) -> f32 {
+        from_fraction(self.void_fraction)
+    }
+
+    /// Bubble count rate, Hz.
+    pub fn bubble_rate_hz(&self) -> f32 {
+        from_rate(self.bubble_rate)
+    }
+
+    /// Interfacial velocity, m/s.
+    pub fn velocity_m_s(&self) -> Option<f32> {
+        self.correlation.map(|c| from_velocity(c.velocity))
+    }
+
+    /// Turbulence intensity.
+    pub fn turbulence_intensity(&self) -> Option<f32> {
+        self.correlation
+            .and_then(|c| c.turbulence)
+            .map(from_fraction)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn quantisers_round_and_saturate() {
+        assert_eq!(fraction(0.5), 5000);
+        assert_eq!(fraction(0.12345), 1235);
+        assert_eq!(fraction(-1.0), 0);
+        assert_eq!(fraction(f32::NAN), 0);
+        assert_eq!(fraction(1e9), u16::MAX);
+        assert_eq!(rate(123.456), 12346);
+        assert_eq!(rate(f32::INFINITY), u32::MAX);
+        assert_eq!(velocity(2.5), 2500);
+        assert_eq!(velocity(-2.5004), -2500);
+        assert_eq!(velocity(1e6), i16::MAX);
+        assert_eq!(velocity(-1e6), i16::MIN);
+        assert_eq!(velocity(f32::NAN), 0);
+        assert_eq!(micros_from_samples(20.0, 20_000.0), 1000);
+        assert_eq!(micros_from_samples(20.0, 0.0), 0);
+        assert_eq!(length(-12.34), -123);
+        assert_eq!(spacing(6.0), 600);
+        assert_eq!(sample_rate(20_000.0), 20_000_000);
+        assert!((from_sample_rate(20_000_000) - 20_000.0).abs() < 1e-3);
+    }
+}

@@ -1,0 +1,429 @@
+//! The device-side streamer: frames in, link-sized byte chunks out.
+//!
+//! ```text
+//! offer(body) -> urgent FIFO (fronts, profiles, replies, commands) ---+
+//!                description slot (latest wins)                     +-> encode (seq++) -> tx
+//!                health slot (latest wins; counters are cumulative)  |        |
+//!                window queue (Q results; full -> drop the oldest)  -+        v
+//! poll(now, room) -> at most min(credit, room) bytes of the frame in tx
+//! ```
+//!
+//! The link's byte budget is a token bucket: credit grows at the link rate with the time the
+//! caller passes in (any clock: microseconds, or the sample clock itself) up to a burst,
+//! and every byte handed out spends one byte of credit. Each call does bounded work: at
+//! most one frame is encoded.
+//!
+//! Policy when the link cannot keep up: urgent frames go first, then the description, then
+//! health, then window results. Window results wait in a queue of `Q`; when it is full the
+//! **oldest** result is dropped. A new description or health frame replaces a queued one
+//! (nothing is lost: health counters are cumulative). An urgent frame offered to a full
+//! urgent queue is dropped. Every drop is counted, and the total goes out in the
+//! `frames_dropped` field of the next health frame (filled in when it is encoded), so drops
+//! are never silent. Sequence numbers are given when a frame is encoded, so a frame dropped
+//! here leaves no sequence gap: gaps at the host mean link loss, `frames_dropped` means
+//! streamer drops, and the two never count the same frame.
+//!
+//! Window results waiting together are packed into one frame (up to
+//! [`MAX_WINDOWS_PER_FRAME`]), which shares the header, CRC and COBS overhead: the results
+//! of one analysis window of all probes usually travel in one frame.
+
+use crate::wire::codec::encode;
+use crate::wire::frame::{
+    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, StartRun,
+    WindowResult, WindowSetting, Windows,
+};
+use crate::wire::{MAX_FRAME_BYTES, MAX_WINDOWS_PER_FRAME};
+use heapless::Deque;
+
+/// How the streamer sees its link.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct StreamerConfig {
+    /// Device id written into every header.
+    pub device: u16,
+    /// Link capacity, bytes per second (0: no rate limit, only `room` limits).
+    pub link_bytes_per_s: u32,
+    /// Units per second of the `now` passed to [`Streamer::poll`] (1_000_000 for
+    /// microseconds, the sample rate for the sample clock).
+    pub ticks_per_s: u32,
+    /// Most bytes that may go out at once after an idle spell (the bucket depth; at least 1).
+    pub burst_bytes: u32,
+}
+
+impl StreamerConfig {
+    /// A UART at `baud` with 8N1 framing (10 bits per byte), a burst of 64 bytes.
+    pub const fn uart_8n1(device: u16, baud: u32, ticks_per_s: u32) -> Self {
+        StreamerConfig {
+            device,
+            link_bytes_per_s: baud / 10,
+            ticks_per_s,
+            burst_bytes: 64,
+        }
+    }
+}
+
+/// What [`Streamer::offer`] did with a body.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Offer {
+    /// Queued.
+    Queued,
+    /// Queued; this many older window results were dropped to make room (counted).
+    DroppedOldest(u16),
+    /// Replaced a queued description or health frame (nothing lost).
+    Replaced,
+    /// Dropped: the urgent queue was full (counted).
+    Dropped,
+}
+
+/// Counters of a streamer.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct StreamerStats {
+    /// Frames encoded and started on the link.
+    pub frames_sent: u64,
+    /// Bytes handed out.
+    pub bytes_sent: u64,
+    /// Window results sent.
+    pub windows_sent: u64,
+    /// Window results dropped (oldest first) for want of link capacity.
+    pub windows_dropped: u32,
+    /// Urgent frames dropped because their queue was full.
+    pub urgent_dropped: u32,
+    /// Frames that failed to encode (cannot happen with the crate's types; counted anyway).
+    pub encode_errors: u32,
+    /// Description or health frames replaced by a newer one before they went out.
+    pub replaced: u64,
+}
+
+impl StreamerStats {
+    /// Every frame or window result dropped: what health frames report.
+    pub fn dropped(&self) -> u32 {
+        self.windows_dropped
+            .saturating_add(self.urgent_dropped)
+            .saturating_add(self.encode_errors)
+    }
+}
+
+/// The bodies that go through the urgent FIFO (all small).
+#[derive(Clone, Debug)]
+enum Urgent {
+    Front(FrontArrival),
+    Profile(ProfileFit),
+    StartRun(StartRun),
+    StopRun,
+    SetWindow(WindowSetting),
+    Relearn(Relearn),
+    DescribeRequest,
+    Ack(Ack),
+    Nack(Nack),
+}
+
+impl Urgent {
+    fn into_body(self) -> Body {
+        match self {
+            Urgent::Front(b) => Body::Front(b),
+            Urgent::Profile(b) => Body::Profile(b),
+            Urgent::StartRun(b) => Body::StartRun(b),
+            Urgent::StopRun => Body::StopRun,
+            Urgent::SetWindow(b) => Body::SetWindow(b),
+            Urgent::Relearn(b) => Body::Relearn(b),
+            Urgent::DescribeRequest => Body::DescribeRequest,
+            Urgent::Ack(b) => Body::Ack(b),
+            Urgent::Nack(b) => Body::Nack(b),
+        }
+    }
+}
+
+/// A streamer with a queue of `Q` window results and `P` urgent frames.
+#[derive(Clone, Debug)]
+pub struct Streamer<const Q: usize, const P: usize = 8> {
+    cfg: StreamerConfig,
+    seq: u16,
+    windows: Deque<WindowResult, Q>,
+    urgent: Deque<Urgent, P>,
+    describe: Option<DeviceDescription>,
+    health: Option<Health>,
+    tx: [u8; MAX_FRAME_BYTES],
+    tx_len: usize,
+    tx_pos: usize,
+    credit: u64,
+    last: Option<u64>,
+    stats: StreamerStats,
+}
+
+impl<const Q: usize, const P: usize> Streamer<Q, P> {
+    /// A streamer whose first frame has sequence number 0.
+    pub fn new(cfg: StreamerConfig) -> Self {
+        const { assert!(Q > 0, "the window queue needs room for one result") };
+        const { assert!(P > 0, "the urgent queue needs room for one frame") };
+        Streamer {
+            cfg,
+            seq: 0,
+            windows: Deque::new(),
+            urgent: Deque::new(),
+            describe: None,
+            health: None,
+            tx: [0; MAX_FRAME_BYTES],
+            tx_len: 0,
+            tx_pos: 0,
+            credit: 0,
+            last: None,
+            stats: StreamerStats::default(),
+        }
+    }
+
+    /// Queue a body to send (see the module docs for the policy).
+    pub fn offer(&mut self, body: Body) -> Offer {
+        let urgent = match body {
+            Body::Windows(ws) => {
+                let mut dropped = 0u16;
+                for w in ws {
+                    dropped = dropped.saturating_add(self.offer_window(w) as u16);
+                }
+                return if dropped > 0 {
+                    Offer::DroppedOldest(dropped)
+                } else {
+                    Offer::Queued
+                };
+            }
+            Body::Describe(d) => return Self::replace(&mut self.describe, d, &mut self.stats),
+            Body::Health(h) => return Self::replace(&mut self.health, h, &mut self.stats),
+            Body::Front(b) => Urgent::Front(b),
+            Body::Profile(b) => Urgent::Profile(b),
+            Body::StartRun(b) => Urgent::StartRun(b),
+            Body::StopRun => Urgent::StopRun,
+            Body::SetWindow(b) => Urgent::SetWindow(b),
+            Body::Relearn(b) => Urgent::Relearn(b),
+            Body::DescribeRequest => Urgent::DescribeRequest,
+            Body::Ack(b) => Urgent::Ack(b),
+            Body::Nack(b) => Urgent::Nack(b),
+        };
+        match self.urgent.push_back(urgent) {
+            Ok(()) => Offer::Queued,
+            Err(_) => {
+                self.stats.urgent_dropped = self.stats.urgent_dropped.saturating_add(1);
+                Offer::Dropped
+            }
+        }
+    }
+
+    /// Queue one window result; returns true if the oldest queued one was dropped for it.
+    pub fn offer_window(&mut self, w: WindowResult) -> bool {
+        let dropped = self.windows.is_full();
+        if dropped {
+            self.windows.pop_front();
+            self.stats.windows_dropped = self.stats.windows_dropped.saturating_add(1);
+        }
+        // Cannot fail: room was made.
+        let _ = self.windows.push_back(w);
+        dropped
+    }
+
+    fn replace<T>(slot: &mut Option<T>, v: T, stats: &mut StreamerStats) -> Offer {
+        if slot.replace(v).is_some() {
+            stats.replaced += 1;
+            Offer::Replaced
+        } else {
+            Offer::Queued
+        }
+    }
+
+    /// The next bytes for the link at time `now`, at most `room` of them (e.g. the free
+    /// space of the UART FIFO or DMA buffer). The bytes count as sent: write all of them.
+    /// `None` when there is nothing to send, no credit, or no room.
+    pub fn poll(&mut self, now: u64, room: usize) -> Option<&[u8]> {
+        self.refill(now);
+        let tps = self.cfg.ticks_per_s.max(1) as u64;
+        let allowed = if self.cfg.link_bytes_per_s == 0 {
+            room
+        } else {
+            usize::try_from(self.credit / tps)
+                .unwrap_or(usize::MAX)
+                .min(room)
+        };
+        if allowed == 0 {
+            return None;
+        }
+        if self.tx_pos >= self.tx_len && !self.load() {
+            return None;
+        }
+        let n = allowed.min(self.tx_len - self.tx_pos);
+        if self.cfg.link_bytes_per_s != 0 {
+            self.credit = self.credit.saturating_sub(n as u64 * tps);
+        }
+        let start = self.tx_pos;
+        self.tx_pos += n;
+        self.stats.bytes_sent = self.stats.bytes_sent.saturating_add(n as u64);
+        self.tx.get(start..start + n)
+    }
+
+    /// The counters.
+    pub fn stats(&self) -> &StreamerStats {
+        &self.stats
+    }
+
+    /// Window results waiting.
+    pub fn queued_windows(&self) -> usize {
+        self.windows.len()
+    }
+
+    /// True when nothing waits and no frame is half sent.
+    pub fn is_idle(&self) -> bool {
+        self.tx_pos >= self.tx_len
+            && self.windows.is_empty()
+            && self.urgent.is_empty()
+            && self.describe.is_none()
+            && self.health.is_none()
+    }
+
+    /// The sequence number the next frame will carry.
+    pub fn next_seq(&self) -> u16 {
+        self.seq
+    }
+
+    fn refill(&mut self, now: u64) {
+        let tps = self.cfg.ticks_per_s.max(1) as u64;
+        let cap = (self.cfg.burst_bytes.max(1) as u64).saturating_mul(tps);
+        let gained = match self.last {
+            None => cap,
+            Some(last) => now
+                .saturating_sub(last)
+                .saturating_mul(self.cfg.link_bytes_per_s as u64),
+        };
+        self.last = Some(self.last.map_or(now, |l| l.max(now)));
+        self.credit = self.credit.saturating_add(gained).min(cap);
+    }
+
+    /// Encode the next frame into the transmit buffer; false if nothing waits.
+    fn load(&mut self) -> bool {
+        let body = if let Some(u) = self.urgent.pop_front() {
+            u.into_body()
+        } else if let Some(d) = self.describe.take() {
+            Body::Describe(d)
+        } else if let Some(mut h) = self.health.take() {
+            h.frames_dropped = self.stats.dropped();
+            Body::Health(h)
+        } else if !self.windows.is_empty() {
+            let mut ws = Windows::new();
+            while ws.len() < MAX_WINDOWS_PER_FRAME {
+                match self.windows.pop_front() {
+                    Some(w) => {
+                        let _ = ws.push(w);
+                    }
+                    None => break,
+                }
+            }
+            self.stats.windows_sent = self.stats.windows_sent.saturating_add(ws.len() as u64);
+            Body::Windows(ws)
+        } else {
+            return false;
+        };
+        let frame = Frame {
+            device: self.cfg.device,
+            seq: self.seq,
+            body,
+        };
+        match encode(&frame, &mut self.tx) {
+            Ok(bytes) => {
+                self.tx_len = bytes.len();
+                self.tx_pos = 0;
+                self.seq = self.seq.wrapping_add(1);
+                self.stats.frames_sent = self.stats.frames_sent.saturating_add(1);
+                true
+            }
+            Err(_) => {
+                self.stats.encode_errors = self.stats.encode_errors.saturating_add(1);
+                self.tx_len = 0;
+                self.tx_pos = 0;
+                false
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::wire::decoder::{Decoder, FeedResult};
+
+    fn window(probe: u8, start: u64) -> WindowResult {
+        WindowResult {
+            probe,
+            start,
+            frames: 1000,
+            void_fraction: 2500,
+            bubble_rate: 10_000,
+            bubbles: 5,
+            chords: None,
+            correlation: None,
+            flags: 0,
+        }
+    }
+
+    #[test]
+    fn idle_streamer_sends_nothing() {
+        let mut s = Streamer::<4>::new(StreamerConfig::uart_8n1(1, 115_200, 1_000_000));
+        assert!(s.poll(0, 64).is_none());
+        assert!(s.is_idle());
+    }
+
+    #[test]
+    fn respects_the_byte_budget_and_room() {
+        // 1000 bytes/s, time in ms: 1 byte per tick, burst 8.
+        let cfg = StreamerConfig {
+            device: 1,
+            link_bytes_per_s: 1000,
+            ticks_per_s: 1000,
+            burst_bytes: 8,
+        };
+        let mut s = Streamer::<4>::new(cfg);
+        s.offer(Body::window(window(0, 0)));
+        assert_eq!(s.poll(0, 64).map(<[u8]>::len), Some(8));
+        assert!(s.poll(0, 64).is_none());
+        assert_eq!(s.poll(3, 64).map(<[u8]>::len), Some(3));
+        assert_eq!(s.poll(100, 2).map(<[u8]>::len), Some(2));
+    }
+
+    #[test]
+    fn drops_oldest_windows_and_reports_them_in_health() {
+        let cfg = StreamerConfig {
+            device: 3,
+            link_bytes_per_s: 0,
+            ticks_per_s: 1,
+            burst_bytes: 1,
+        };
+        let mut s = Streamer::<2>::new(cfg);
+        for i in 0..5 {
+            s.offer(Body::window(window(0, i * 1000)));
+        }
+        assert_eq!(s.stats().windows_dropped, 3);
+        s.offer(Body::Health(Health::default()));
+        let mut dec: Decoder = Decoder::new();
+        let mut got = heapless::Vec::<Frame, 4>::new();
+        while let Some(bytes) = s.poll(0, 1000) {
+            let mut rest = bytes;
+            while !rest.is_empty() {
+                let r = dec.feed(rest);
+                rest = r.remaining();
+                if let FeedResult::Frame { frame, .. } = r {
+                    got.push(frame).unwrap();
+                }
+            }
+        }
+        // Health first (it carries the drop count), then the two newest windows in one frame.
+        assert_eq!(got.len(), 2);
+        match &got[0].body {
+            Body::Health(h) => assert_eq!(h.frames_dropped, 3),
+            other => panic!("{other:?}"),
+        }
+        match &got[1].body {
+            Body::Windows(ws) => {
+                assert_eq!(ws.len(), 2);
+                assert_eq!((ws[0].start, ws[1].start), (3000, 4000));
+            }
+            other => panic!("{other:?}"),
+        }
+        assert_eq!((got[0].seq, got[1].seq), (0, 1));
+    }
+}
