@@ -1,0 +1,497 @@
+//! Checks of the profile fit against closed forms of analytic profiles.
+//!
+//! Sources of the checks:
+//! - closed-form integrals (elementary calculus): `∫_0^1 0.9 y'^n dy' = 0.9/(1 + n)`;
+//!   `∫_0^1 0.9 y' dy' = 0.45`; `∫_0^1 0.9 exp((y' − 1)/D') dy' = 0.9 D' (1 − exp(−1/D'))`;
+//! - the error of the composite trapezoidal rule: on an interval of width `h` the error is
+//!   `−h³ f''(ξ)/12` for some `ξ` inside (the standard remainder of the trapezoidal rule), so
+//!   the total error is at most `Σ h_i³ max|f''|_i / 12`; for the profiles here `|f''|` is
+//!   monotone on each interval, so its maximum is at an end. The first interval of a power
+//!   law with `n < 2` (unbounded `f''` at the bed) is bounded by its exact error instead.
+//! - linear interpolation is exact on a linear function.
+
+use frothline_core::profile::{
+    exponential_mean, fit_profile, fit_profile_sized, BedTreatment, ProfileConfig, ProfileFlags,
+    ProfileModel, ProfilePoint, MAX_PROFILE_POINTS,
+};
+use rand::{rngs::StdRng, SeedableRng};
+use rand_distr::{Distribution, Normal};
+
+const Y90: f64 = 80.0; // mm
+
+fn pts(ys: &[f64], f: impl Fn(f64) -> f64) -> Vec<ProfilePoint> {
+    ys.iter()
+        .map(|&y| ProfilePoint {
+            y_mm: y as f32,
+            c: f(y).clamp(0.0, 1.0) as f32,
+        })
+        .collect()
+}
+
+/// Elevations `h, 2h, ..., Y90` (so `Y90` is sampled exactly), then two points above.
+fn uniform(n: usize) -> Vec<f64> {
+    let h = Y90 / n as f64;
+    let mut ys: Vec<f64> = (1..=n).map(|i| i as f64 * h).collect();
+    ys.push(Y90 * 1.05);
+    ys.push(Y90 * 1.10);
+    ys
+}
+
+/// Bound of the trapezoidal error over the nodes `0, ys...` up to `Y90`, given `f` and
+/// `|f''|` (monotone on each interval). The first interval uses its exact error, computed
+/// from the antiderivative `big_f` (the bed point is `f(0)`).
+fn trapezoid_bound(
+    ys: &[f64],
+    f: &dyn Fn(f64) -> f64,
+    big_f: &dyn Fn(f64) -> f64,
+    d2: &dyn Fn(f64) -> f64,
+) -> f64 {
+    let inside: Vec<f64> = ys.iter().copied().filter(|&y| y <= Y90).collect();
+    let y1 = inside[0];
+    let mut bound = (big_f(y1) - big_f(0.0) - 0.5 * y1 * (f(0.0) + f(y1))).abs();
+    for w in inside.windows(2) {
+        let h = w[1] - w[0];
+        bound += h.powi(3) / 12.0 * d2(w[0]).abs().max(d2(w[1]).abs());
+    }
+    bound
+}
+
+/// Rounding allowance of the f32 sums (~1 ulp per term, generous).
+fn rounding(n: usize) -> f64 {
+    2.0 * n as f64 * f32::EPSILON as f64
+}
+
+#[test]
+fn power_law_integrals_match_closed_form_within_trapezoid_error() {
+    // Closed form: Cmean = 0.9 / (1 + n) (DESIGN.md §1; elementary integral).
+    for &n in &[0.5f64, 1.0, 2.0] {
+        let ys = uniform(200);
+        let f = move |y: f64| 0.9 * (y / Y90).powf(n);
+        let big_f = move |y: f64| 0.9 * Y90 / (1.0 + n) * (y / Y90).powf(n + 1.0);
+        let d2 = move |y: f64| 0.9 * n * (n - 1.0) * y.powf(n - 2.0) / Y90.powf(n);
+        let fit = fit_profile_sized::<240>(&pts(&ys, f), &ProfileConfig::default());
+        assert_eq!(fit.y90_mm, Some(Y90 as f32), "n = {n}");
+        let tol = trapezoid_bound(&ys, &f, &big_f, &d2) / Y90 + rounding(200);
+        let exact = 0.9 / (1.0 + n);
+        let got = fit.mean_void_fraction.unwrap() as f64;
+        assert!(
+            (got - exact).abs() <= tol,
+            "n = {n}: {got} vs {exact} (tol {tol:e})"
+        );
+        // d = (1 - Cmean) Y90 (DESIGN.md §1).
+        let d = fit.equivalent_depth_mm.unwrap() as f64;
+        assert!(
+            (d - (1.0 - exact) * Y90).abs() <= tol * Y90 + 1e-4,
+            "n = {n}: d {d}"
+        );
+    }
+}
+
+#[test]
+fn integrals_at_the_default_capacity_stay_within_the_trapezoid_bound() {
+    // 14 probes up to Y90 (+2 above) fill the default 16 points: the bound grows as h^1.5
+    // (n = 0.5) or h^2, and still holds.
+    for &n in &[0.5f64, 2.0] {
+        let ys = uniform(14);
+        let f = move |y: f64| 0.9 * (y / Y90).powf(n);
+        let big_f = move |y: f64| 0.9 * Y90 / (1.0 + n) * (y / Y90).powf(n + 1.0);
+        let d2 = move |y: f64| 0.9 * n * (n - 1.0) * y.powf(n - 2.0) / Y90.powf(n);
+        let fit = fit_profile(&pts(&ys, f), &ProfileConfig::default());
+        assert_eq!(fit.points_used, 16);
+        let tol = trapezoid_bound(&ys, &f, &big_f, &d2) / Y90 + rounding(16);
+        let got = fit.mean_void_fraction.unwrap() as f64;
+        let exact = 0.9 / (1.0 + n);
+        assert!(
+            (got - exact).abs() <= tol,
+            "n = {n}: {got} vs {exact} (tol {tol:e})"
+        );
+    }
+}
+
+#[test]
+fn linear_profile_integrates_exactly_and_interpolates_y90_exactly() {
+    // C = 0.9 y/Y90: the trapezoidal rule and linear interpolation are exact on a line;
+    // Cmean = 0.45. Points off the Y90 grid so Y90 must be interpolated.
+    let ys = [7.0, 19.0, 33.0, 52.0, 71.0, 86.0, 99.0];
+    let slope = 0.9 / Y90;
+    let fit = fit_profile(&pts(&ys, |y| slope * y), &ProfileConfig::default());
+    let y90 = fit.y90_mm.unwrap() as f64;
+    assert!((y90 - Y90).abs() <= 1e-4 * Y90, "Y90 {y90}");
+    let cmean = fit.mean_void_fraction.unwrap() as f64;
+    assert!((cmean - 0.45).abs() <= 1e-5, "Cmean {cmean}");
+    // A line is the power law with n = 1.
+    let n = fit.power_law.unwrap().exponent as f64;
+    assert!((n - 1.0).abs() < 0.01, "n {n}");
+    assert!(fit.flags.is_empty(), "{:?}", fit.flags);
+}
+
+#[test]
+fn exponential_profile_integral_matches_closed_form() {
+    // Closed form 0.9 D' (1 - exp(-1/D')); f'' = f / (D' Y90)², increasing in y.
+    for &dp in &[0.2f64, 0.5, 1.0] {
+        let ys = uniform(200);
+        let f = move |y: f64| 0.9 * ((y / Y90 - 1.0) / dp).exp();
+        let big_f = move |y: f64| 0.9 * dp * Y90 * ((y / Y90 - 1.0) / dp).exp();
+        let d2 = move |y: f64| f(y) / (dp * Y90).powi(2);
+        // The exponential does not vanish at the bed: hold the lowest value.
+        let cfg = ProfileConfig {
+            bed: BedTreatment::Hold,
+            ..ProfileConfig::default()
+        };
+        let fit = fit_profile_sized::<240>(&pts(&ys, f), &cfg);
+        let exact = 0.9 * dp * (1.0 - (-1.0 / dp).exp());
+        // Bed band [0, h]: held at f(h) instead of the curve: error <= h (f(h) - f(0)).
+        let h = ys[0];
+        let tol = (trapezoid_bound(&ys, &f, &big_f, &d2)
+            - (big_f(h) - big_f(0.0) - 0.5 * h * (f(0.0) + f(h))).abs()
+            + h * (f(h) - f(0.0)))
+            / Y90
+            + rounding(200);
+        let got = fit.mean_void_fraction.unwrap() as f64;
+        assert!(
+            (got - exact).abs() <= tol,
+            "D' = {dp}: {got} vs {exact} (tol {tol:e})"
+        );
+        // The library's closed form (micromath exp, ~1e-3 relative).
+        let lib = exponential_mean(dp as f32) as f64;
+        assert!(
+            (lib - exact).abs() <= 2e-3 * exact,
+            "closed form {lib} vs {exact}"
+        );
+        // And the exponential model is recovered, and preferred.
+        let e = fit.exponential.unwrap();
+        assert!(
+            ((e.diffusivity as f64) - dp).abs() <= 0.01 * dp,
+            "D' {}",
+            e.diffusivity
+        );
+        assert_eq!(fit.better_model, Some(ProfileModel::Exponential));
+    }
+}
+
+#[test]
+fn power_law_fit_recovers_the_exponent_without_noise() {
+    // 6 to 10 elevations, the top one at Y90, noise-free samples of 0.9 (y/Y90)^n.
+    for &n in &[0.3f64, 0.5, 1.0, 1.5, 2.0, 3.0] {
+        for count in 6..=10 {
+            let ys = uniform(count);
+            let fit = fit_profile(
+                &pts(&ys, |y| 0.9 * (y / Y90).powf(n)),
+                &ProfileConfig::default(),
+            );
+            let p = fit.power_law.unwrap();
+            let got = p.exponent as f64;
+            assert!(
+                (got - n).abs() <= 0.01 * n,
+                "n = {n}, {count} points: {got}"
+            );
+            assert!(
+                !fit.flags.contains(ProfileFlags::POWER_LAW_NOT_CONVERGED),
+                "n = {n}: {:?}",
+                fit.flags
+            );
+            assert_eq!(fit.better_model, Some(ProfileModel::PowerLaw));
+            // Implied quantities (DESIGN.md §1).
+            assert!((p.mean_void_fraction - 0.9 / (1.0 + p.exponent)).abs() < 1e-6);
+            assert!((p.mean_diffusivity - 1.0 / (2.0 * p.exponent)).abs() < 1e-6);
+            assert!(p.rmse < 3e-3, "rmse {}", p.rmse);
+        }
+    }
+}
+
+#[test]
+fn power_law_fit_recovers_the_exponent_with_noise() {
+    // Gaussian noise of 0.01 on C at 8 elevations (the order of the sampling error of a
+    // void fraction from a few thousand independent bubbles, sqrt(C (1 - C) / N)), Y90
+    // interpolated from the noisy points: every one of 50 seeds within 10 %, the mean
+    // error within 5 %.
+    let noise = Normal::new(0.0, 0.01).unwrap();
+    for &n in &[0.5f64, 1.0, 2.0] {
+        let mut rel = Vec::new();
+        for seed in 0..50u64 {
+            let mut rng = StdRng::seed_from_u64(seed);
+            let ys = uniform(8);
+            let p: Vec<ProfilePoint> = ys
+                .iter()
+                .map(|&y| {
+                    let c = (0.9 * (y / Y90).powf(n)).min(0.97) + noise.sample(&mut rng);
+                    ProfilePoint {
+                        y_mm: y as f32,
+                        c: c.clamp(0.0, 1.0) as f32,
+                    }
+                })
+                .collect();
+            let fit = fit_profile(&p, &ProfileConfig::default());
+            let got = fit.power_law.unwrap().exponent as f64;
+            rel.push((got - n).abs() / n);
+        }
+        let mean = rel.iter().sum::<f64>() / rel.len() as f64;
+        let worst = rel.iter().copied().fold(0.0, f64::max);
+        assert!(mean <= 0.05, "n = {n}: mean relative error {mean}");
+        assert!(worst <= 0.10, "n = {n}: worst relative error {worst}");
+    }
+}
+
+#[test]
+fn y90_outside_the_array_is_flagged() {
+    let cfg = ProfileConfig::default();
+    let ys = [10.0, 20.0, 30.0];
+    let low = fit_profile(&pts(&ys, |y| y / 100.0), &cfg);
+    assert!(low.flags.contains(ProfileFlags::Y90_ABOVE_ARRAY));
+    assert_eq!(low.y90_mm, None);
+    assert_eq!(low.mean_void_fraction, None);
+    let high = fit_profile(&pts(&ys, |_| 0.95), &cfg);
+    assert!(high.flags.contains(ProfileFlags::Y90_BELOW_ARRAY));
+    assert_eq!(high.y90_mm, None);
+}
+
+#[test]
+fn order_duplicates_and_non_monotonic_profiles() {
+    let cfg = ProfileConfig::default();
+    // Unsorted input gives the same result as sorted.
+    let ys = [10.0, 20.0, 30.0, 40.0, 50.0];
+    let sorted = pts(&ys, |y| 0.9 * y / 40.0);
+    let mut shuffled = sorted.clone();
+    shuffled.swap(0, 4);
+    shuffled.swap(1, 3);
+    assert_eq!(fit_profile(&sorted, &cfg), fit_profile(&shuffled, &cfg));
+    // Two tips at one elevation are merged (mean C).
+    let mut dup = sorted.clone();
+    dup[1].c = 0.40;
+    dup.push(ProfilePoint {
+        y_mm: 20.0,
+        c: 0.50,
+    });
+    let merged = fit_profile(&dup, &cfg);
+    let plain = fit_profile(&sorted, &cfg);
+    assert_eq!(merged.points_used, 5);
+    assert_eq!(merged.y90_mm, plain.y90_mm);
+    let (a, b) = (
+        merged.mean_void_fraction.unwrap(),
+        plain.mean_void_fraction.unwrap(),
+    );
+    assert!((a - b).abs() < 1e-6, "{a} vs {b}");
+    // A splash: C dips below 0.9 above Y90.
+    let mut splash = sorted.clone();
+    splash.push(ProfilePoint { y_mm: 60.0, c: 0.7 });
+    let s = fit_profile(&splash, &cfg);
+    assert!(s.flags.contains(ProfileFlags::SEVERAL_CROSSINGS));
+    assert_eq!(s.y90_mm, Some(40.0));
+}
+
+#[test]
+fn bed_treatments_differ_by_half_the_bed_band() {
+    // Constant C below 0.9 then a jump: held bed adds C1 y1 / 2 to the integral.
+    let p = [
+        ProfilePoint { y_mm: 10.0, c: 0.4 },
+        ProfilePoint { y_mm: 20.0, c: 0.4 },
+        ProfilePoint { y_mm: 30.0, c: 1.0 },
+    ];
+    let lin = fit_profile(&p, &ProfileConfig::default());
+    let hold = fit_profile(
+        &p,
+        &ProfileConfig {
+            bed: BedTreatment::Hold,
+            ..ProfileConfig::default()
+        },
+    );
+    let y90 = lin.y90_mm.unwrap();
+    let diff = (hold.mean_void_fraction.unwrap() - lin.mean_void_fraction.unwrap()) * y90;
+    assert!((diff - 0.4 * 10.0 / 2.0).abs() < 1e-4, "{diff}");
+}
+
+#[test]
+fn degenerate_inputs_give_defined_output() {
+    let cfg = ProfileConfig::default();
+    let empty = fit_profile(&[], &cfg);
+    assert!(empty.flags.contains(ProfileFlags::TOO_FEW_POINTS));
+    assert_eq!(empty.points_used, 0);
+    assert_eq!(empty.y90_mm, None);
+
+    let one = fit_profile(&[ProfilePoint { y_mm: 5.0, c: 0.5 }], &cfg);
+    assert!(one.flags.contains(ProfileFlags::TOO_FEW_POINTS));
+
+    let nan = [
+        ProfilePoint {
+            y_mm: f32::NAN,
+            c: 0.5,
+        },
+        ProfilePoint {
+            y_mm: 10.0,
+            c: f32::NAN,
+        },
+        ProfilePoint {
+            y_mm: f32::INFINITY,
+            c: 0.5,
+        },
+        ProfilePoint { y_mm: -3.0, c: 0.5 },
+        ProfilePoint { y_mm: 3.0, c: 1.5 },
+    ];
+    let f = fit_profile(&nan, &cfg);
+    assert!(f.flags.contains(ProfileFlags::POINTS_DROPPED));
+    assert!(f.flags.contains(ProfileFlags::TOO_FEW_POINTS));
+    assert_eq!(f.points_used, 0);
+
+    let ys = [5.0, 15.0, 25.0, 35.0];
+    let zero = fit_profile(&pts(&ys, |_| 0.0), &cfg);
+    assert!(zero.flags.contains(ProfileFlags::Y90_ABOVE_ARRAY));
+    let ones = fit_profile(&pts(&ys, |_| 1.0), &cfg);
+    assert!(ones.flags.contains(ProfileFlags::Y90_BELOW_ARRAY));
+
+    // Zeros under a jump to air: n runs to its bound, flagged, finite.
+    let step = fit_profile(&pts(&ys, |y| if y > 30.0 { 1.0 } else { 0.0 }), &cfg);
+    let n = step.power_law.unwrap().exponent;
+    assert!(n.is_finite());
+    assert!(step.flags.contains(ProfileFlags::POWER_LAW_NOT_CONVERGED));
+
+    // A probe at the bed (y = 0) is used in the integral, not in the fit.
+    let bed = fit_profile(
+        &[
+            ProfilePoint { y_mm: 0.0, c: 0.0 },
+            ProfilePoint { y_mm: 10.0, c: 0.9 },
+        ],
+        &cfg,
+    );
+    assert_eq!(bed.y90_mm, Some(10.0));
+    assert_eq!(bed.mean_void_fraction, Some(0.45));
+    assert_eq!(bed.power_law, None);
+
+    // More points than the capacity: the rest dropped and flagged.
+    let many: Vec<ProfilePoint> = (0..40)
+        .map(|i| ProfilePoint {
+            y_mm: i as f32,
+            c: (i as f32 / 20.0).min(1.0),
+        })
+        .collect();
+    let m = fit_profile(&many, &cfg);
+    assert_eq!(m.points_used as usize, MAX_PROFILE_POINTS);
+    assert!(m.flags.contains(ProfileFlags::POINTS_DROPPED));
+}
+
+// The decay of the depth-averaged void fraction behind the front (`decay` module). They sit
+// here beside the profile checks because the decay series is the profile's Cmean over time.
+
+mod decay {
+    use frothline_core::decay::{DecayFlags, DecayTracker, STANDARD_GRAVITY};
+
+    /// An exact exponential C(t) = cf + (c0 - cf) exp(-t/tau) at `n` times over `span` s.
+    fn series<const N: usize>(
+        c0: f64,
+        cf: f64,
+        tau: f64,
+        t_start: f64,
+        span: f64,
+        n: usize,
+    ) -> DecayTracker<N> {
+        let mut d = DecayTracker::<N>::new();
+        for i in 0..n {
+            let t = t_start + span * i as f64 / (n - 1) as f64;
+            d.push(t as f32, (cf + (c0 - cf) * (-t / tau).exp()) as f32)
+                .unwrap();
+        }
+        d
+    }
+
+    #[test]
+    fn exact_exponentials_are_recovered_within_two_percent() {
+        // Closed-form series; the fit must give back C_0, C_final and tau.
+        for &(c0, cf, tau) in &[
+            (0.45, 0.15, 0.3),
+            (0.6, 0.1, 1.5),
+            (0.3, 0.25, 0.05),
+            (0.2, 0.5, 0.8), // a rising series is the same model
+        ] {
+            for &(t0, span, n) in &[
+                (0.0, 2.0, 40usize),
+                (0.05, 3.0 * tau, 12),
+                (0.0, 6.0 * tau, 64),
+            ] {
+                let d = series::<64>(c0, cf, tau, t0, span, n);
+                let fit = d.fit(0.08);
+                let m = fit.model.expect("a fit");
+                let rel = |a: f32, b: f64| ((a as f64) - b).abs() / b.abs();
+                assert!(
+                    rel(m.tau_s, tau) <= 0.02,
+                    "tau {} vs {tau} ({t0}, {span}, {n})",
+                    m.tau_s
+                );
+                assert!(rel(m.initial, c0) <= 0.02, "C0 {} vs {c0}", m.initial);
+                assert!(
+                    rel(m.final_level, cf) <= 0.02,
+                    "Cf {} vs {cf}",
+                    m.final_level
+                );
+                assert!(m.rmse < 1e-4, "rmse {}", m.rmse);
+                // tau in units of sqrt(d_ref / g).
+                let star = m.tau_s as f64 / (0.08 / STANDARD_GRAVITY as f64).sqrt();
+                assert!(rel(m.tau_star.unwrap(), star) <= 1e-5);
+                assert!(
+                    !fit.flags.contains(DecayFlags::TAU_AT_LIMIT),
+                    "{:?}",
+                    fit.flags
+                );
+                assert_eq!(fit.points as usize, n);
+            }
+        }
+    }
+
+    #[test]
+    fn degenerate_series_give_defined_output() {
+        let empty = DecayTracker::<8>::new();
+        let f = empty.fit(0.1);
+        assert!(f.flags.contains(DecayFlags::TOO_FEW_POINTS));
+        assert_eq!(f.model, None);
+
+        let mut two = DecayTracker::<8>::new();
+        two.push(0.0, 0.4).unwrap();
+        two.push(1.0, 0.2).unwrap();
+        assert!(two.fit(0.1).flags.contains(DecayFlags::TOO_FEW_POINTS));
+
+        // All at one time.
+        let mut same = DecayTracker::<8>::new();
+        for c in [0.1, 0.2, 0.3] {
+            same.push(1.0, c).unwrap();
+        }
+        assert!(same.fit(0.1).flags.contains(DecayFlags::TOO_FEW_POINTS));
+
+        // Constant: no decay, levels = the constant.
+        let mut flat = DecayTracker::<8>::new();
+        for i in 0..6 {
+            flat.push(i as f32 * 0.1, 0.3).unwrap();
+        }
+        let f = flat.fit(0.1);
+        assert!(f.flags.contains(DecayFlags::NO_DECAY), "{:?}", f.flags);
+        let m = f.model.unwrap();
+        assert!((m.final_level - 0.3).abs() < 1e-4 && (m.initial - 0.3).abs() < 1e-4);
+
+        // NaN refused; a full series hands points back; no reference depth.
+        let mut d = DecayTracker::<3>::new();
+        assert!(d.push(f32::NAN, 0.1).is_err());
+        assert!(d.push(0.0, f32::INFINITY).is_err());
+        for i in 0..3 {
+            d.push(i as f32, 0.5 - 0.1 * i as f32).unwrap();
+        }
+        assert_eq!(d.push(9.0, 0.1), Err((9.0, 0.1)));
+        assert_eq!(d.rejected(), 3);
+        let f = d.fit(f32::NAN);
+        assert!(f.flags.contains(DecayFlags::POINTS_REJECTED));
+        assert!(f.flags.contains(DecayFlags::NO_REFERENCE_DEPTH));
+        assert_eq!(f.model.unwrap().tau_star, None);
+
+        // A straight line: tau runs to the slow end of the grid, flagged.
+        let mut line = DecayTracker::<8>::new();
+        for i in 0..8 {
+            line.push(i as f32, 0.5 - 0.01 * i as f32).unwrap();
+        }
+        assert!(line.fit(0.1).flags.contains(DecayFlags::TAU_AT_LIMIT));
+
+        // Hostile times (negative, huge): no panic.
+        let mut h = DecayTracker::<8>::new();
+        for (t, c) in [(-1e30, 0.1), (1e30, 0.2), (0.0, 0.3), (-5.0, 0.9)] {
+            h.push(t, c).unwrap();
+        }
+        let _ = h.fit(0.1);
+        d.clear();
+        assert!(d.is_empty());
+    }
+}
