@@ -2,10 +2,27 @@
 //!
 //! ```text
 //! push(samples) -> [partial frame] -> runs of whole frames (cut at window ends)
-//!   per probe: leading tip  PhaseDetector -> TipAccumulator
-//!              trailing tip PhaseDetector -> TipAccumulator
+//!   per probe: leading tip  PhaseDetector -> TipAccumulator + Correlator (leading side)
+//!              trailing tip PhaseDetector -> TipAccumulator + Correlator (trailing side)
 //!   at a window end: one ProbeWindow per probe -> queue -> poll()
 //! ```
+//!
+//! `Chain<P, L>` holds up to `P` probes; `L` (default [`DEFAULT_LAGS`] = 256) is the number
+//! of correlation lag slots of its dual-tip probes, so the largest lag a probe can use is
+//! `L - 1` frames: a probe's `max_lag` above that is capped (the record's
+//! [`CorrelationResult::max_lag`](crate::CorrelationResult::max_lag) says what was used).
+//! Memory grows with `L`: `32 L` bytes plus 2 KiB of state per dual-tip probe, and `28 L`
+//! bytes per queued record (7 KiB for `L` = 256).
+//!
+//! Frames of 2, 4, 8, 16, 32 or 64 channels are processed frame-major: every tip of a frame
+//! at once, in a fixed-width loop over the channels that the compiler vectorises (see
+//! `phase::run_lanes`); other channel counts tip by tip. The two give the same records
+//! (tested): each tip's statistics see its edges in time order either way, and the
+//! correlators merge the two tips' edges into time order.
+//!
+//! With [`WindowPolicy::Bubbles`] the end of a window is found before the run is processed:
+//! a copy of the reference tip's detector looks ahead over the run for the frame at which
+//! the window's last bubble closes, and the run is cut after it.
 //!
 //! Records do not depend on how the caller splits the samples into blocks: every decision
 //! (learning events, window ends) is taken at absolute frame indices, and a frame split
@@ -14,15 +31,48 @@
 //! (back-pressure, never a silent drop).
 
 use crate::config::{ChainConfig, ConfigError, DetectorConfig, TipConfig};
+use crate::correlation::{Correlator, DEFAULT_LAGS, MAX_RUN_FRAMES};
 use crate::flags::Flags;
-use crate::phase::PhaseDetector;
+use crate::phase::{run_lanes, Edge, EdgeSink, Lanes, PhaseDetector, RunCounts};
 use crate::record::{ProbeWindow, TipStats};
 use crate::tip_stats::TipAccumulator;
+use crate::window::WindowPolicy;
 use crate::MAX_CHANNELS;
 use heapless::{Deque, Vec};
 
-/// Longest run of frames handed to the tips at once: keeps a run of a wide frame in L1.
-const RUN_FRAMES: usize = 1024;
+/// Longest run of frames handed to the tips at once: keeps a run of a wide frame in L1 (and
+/// bounds the correlators' buffer of leading-tip edges).
+const RUN_FRAMES: usize = MAX_RUN_FRAMES;
+
+/// Feeds a tip's statistics and one more sink with the same edges.
+struct Feed<'a, S>(&'a mut TipAccumulator, S);
+
+impl<S: EdgeSink> EdgeSink for Feed<'_, S> {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        self.0.edge(edge);
+        self.1.edge(edge);
+    }
+}
+
+/// Finds the frame at which the `need`-th bubble (air -> water interface) closes.
+struct BubbleCounter {
+    need: u32,
+    seen: u32,
+    at: Option<u64>,
+}
+
+impl EdgeSink for BubbleCounter {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        if !edge.to_air && self.at.is_none() {
+            self.seen += 1;
+            if self.seen >= self.need {
+                self.at = Some(edge.frame);
+            }
+        }
+    }
+}
 
 /// The queue is full: drain it with [`Chain::poll`] and call again.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -44,11 +94,10 @@ impl Tip {
     }
 
     #[inline]
-    fn run(&mut self, frames: &[i16], channels: usize, first: u64) {
+    fn run<S: EdgeSink>(&mut self, frames: &[i16], channels: usize, first: u64, extra: S) {
         let n = (frames.len() / channels) as u32;
-        let counts = self
-            .detector
-            .process(frames, channels, first, &mut self.stats);
+        let mut sink = Feed(&mut self.stats, extra);
+        let counts = self.detector.process(frames, channels, first, &mut sink);
         self.stats.add_run(n, counts);
     }
 
@@ -58,28 +107,41 @@ impl Tip {
 }
 
 #[derive(Clone, Debug)]
-struct ProbeState {
+struct ProbeState<const L: usize> {
     lead: Tip,
     trail: Option<Tip>,
+    /// The correlator of a probe with a trailing tip.
+    corr: Option<Correlator<L>>,
 }
 
-/// The signal chain of up to `P` probes.
+/// The signal chain of up to `P` probes, with `L` correlation lag slots (largest lag
+/// `L - 1` frames; see the module documentation).
 #[derive(Clone, Debug)]
-pub struct Chain<const P: usize> {
+pub struct Chain<const P: usize, const L: usize = DEFAULT_LAGS> {
     config: ChainConfig<P>,
-    probes: Vec<ProbeState, P>,
-    queue: Deque<ProbeWindow, P>,
+    probes: Vec<ProbeState<L>, P>,
+    queue: Deque<ProbeWindow<L>, P>,
     frame: u64,
     window_start: u64,
+    /// Bubbles closed by the reference tip in the open window ([`WindowPolicy::Bubbles`]).
+    window_bubbles: u32,
     partial: [i16; MAX_CHANNELS],
     partial_len: usize,
     finished: bool,
 }
 
-impl<const P: usize> Chain<P> {
+impl<const P: usize, const L: usize> Chain<P, L> {
+    /// The largest correlation lag a probe of this chain can use, frames.
+    pub const MAX_LAG: u16 = if L - 1 > u16::MAX as usize {
+        u16::MAX
+    } else {
+        (L - 1) as u16
+    };
+
     /// Build a chain; the configuration is checked first.
     pub fn new(config: ChainConfig<P>) -> Result<Self, ConfigError> {
         const { assert!(P > 0, "a chain needs room for at least one probe") };
+        const { assert!(L >= 3 && L <= 1 << 16, "L must lie in 3..=65536") };
         config.validate()?;
         let mut probes = Vec::new();
         for p in &config.probes {
@@ -88,8 +150,11 @@ impl<const P: usize> Chain<P> {
                 .trailing
                 .as_ref()
                 .map(|t| Tip::new(t, &config.detector, config.initial_air));
+            let corr = trail
+                .as_ref()
+                .map(|_| Correlator::new(p.max_lag, 0, config.initial_air, config.initial_air));
             // Cannot fail: config.probes has the same capacity.
-            let _ = probes.push(ProbeState { lead, trail });
+            let _ = probes.push(ProbeState { lead, trail, corr });
         }
         Ok(Chain {
             config,
@@ -97,10 +162,21 @@ impl<const P: usize> Chain<P> {
             queue: Deque::new(),
             frame: 0,
             window_start: 0,
+            window_bubbles: 0,
             partial: [0; MAX_CHANNELS],
             partial_len: 0,
             finished: false,
         })
+    }
+
+    /// The correlation lag range in use for probe `probe`, frames (`None` for a probe
+    /// without a trailing tip, or beyond the configuration).
+    pub fn max_lag(&self, probe: usize) -> Option<u16> {
+        self.probes
+            .get(probe)?
+            .corr
+            .as_ref()
+            .map(Correlator::max_lag)
     }
 
     /// The configuration in use.
@@ -160,7 +236,7 @@ impl<const P: usize> Chain<P> {
     }
 
     /// Take the oldest finished record, if any.
-    pub fn poll(&mut self) -> Option<ProbeWindow> {
+    pub fn poll(&mut self) -> Option<ProbeWindow<L>> {
         self.queue.pop_front()
     }
 
@@ -174,11 +250,7 @@ impl<const P: usize> Chain<P> {
             if !self.has_room() {
                 return Err(QueueFull);
             }
-            let partial = self
-                .config
-                .window
-                .end_of_window_from(self.window_start)
-                .is_some();
+            let partial = self.config.window.closes_by_itself();
             self.close_window(partial);
         }
         self.finished = true;
@@ -199,20 +271,43 @@ impl<const P: usize> Chain<P> {
                 .config
                 .window
                 .end_of_window_from(self.window_start)
-                .map_or(u64::MAX, |e| e - self.frame);
-            let len = ((total - done) as u64).min(to_end).min(RUN_FRAMES as u64) as usize;
-            let closes = len as u64 == to_end;
+                .map_or(u64::MAX, |e| e.saturating_sub(self.frame));
+            let mut len = ((total - done) as u64).min(to_end).min(RUN_FRAMES as u64) as usize;
+            // Learning events (at the same frames for every learning tip) end runs too.
+            if let Some(stop) = self.next_learn_stop() {
+                len = len.min(stop.saturating_sub(self.frame).max(1) as usize);
+            }
+            let mut closes = len as u64 == to_end;
+            let mut bubbles = 0;
+            if let WindowPolicy::Bubbles { count, probe, .. } = self.config.window {
+                // Look ahead with a copy of the reference tip's detector.
+                let need = count.saturating_sub(self.window_bubbles).max(1);
+                let run = data.get(done * n..(done + len) * n).unwrap_or(&[]);
+                if let Some(p) = self.probes.get(probe as usize) {
+                    let mut peek = p.lead.detector.clone();
+                    let mut counter = BubbleCounter {
+                        need,
+                        seen: 0,
+                        at: None,
+                    };
+                    peek.process(run, n, self.frame, &mut counter);
+                    bubbles = counter.seen;
+                    if let Some(e) = counter.at {
+                        let upto = e.saturating_add(1).saturating_sub(self.frame);
+                        len = (upto as usize).clamp(1, len);
+                        closes = true;
+                    }
+                }
+            }
             if closes && !self.has_room() {
                 break;
             }
-            let run = &data[done * n..(done + len) * n];
-            for p in self.probes.iter_mut() {
-                p.lead.run(run, n, self.frame);
-                if let Some(t) = p.trail.as_mut() {
-                    t.run(run, n, self.frame);
-                }
-            }
+            let Some(run) = data.get(done * n..(done + len) * n) else {
+                break;
+            };
+            self.run_probes(run, n, self.frame);
             self.frame += len as u64;
+            self.window_bubbles = self.window_bubbles.saturating_add(bubbles);
             done += len;
             if closes {
                 self.close_window(false);
@@ -221,7 +316,111 @@ impl<const P: usize> Chain<P> {
         done
     }
 
+    /// The next learning event of any tip (all learning tips share the period).
+    fn next_learn_stop(&self) -> Option<u64> {
+        self.probes
+            .iter()
+            .flat_map(|p| core::iter::once(&p.lead).chain(p.trail.as_ref()))
+            .filter_map(|t| t.detector.next_stop(self.frame))
+            .min()
+    }
+
+    /// Run every tip over one run of whole frames (no learning event inside): frame-major
+    /// over all channels at once for the usual channel counts, tip by tip otherwise. Both
+    /// give the same records.
+    fn run_probes(&mut self, run: &[i16], channels: usize, first: u64) {
+        match channels {
+            2 => self.run_frame_major::<2>(run, first),
+            4 => self.run_frame_major::<4>(run, first),
+            8 => self.run_frame_major::<8>(run, first),
+            16 => self.run_frame_major::<16>(run, first),
+            32 => self.run_frame_major::<32>(run, first),
+            64 => self.run_frame_major::<64>(run, first),
+            _ => self.run_tip_by_tip(run, channels, first),
+        }
+    }
+
+    fn run_tip_by_tip(&mut self, run: &[i16], n: usize, first: u64) {
+        for p in self.probes.iter_mut() {
+            let ProbeState { lead, trail, corr } = p;
+            match (trail.as_mut(), corr.as_mut()) {
+                (Some(t), Some(c)) => {
+                    c.begin_run(first);
+                    lead.run(run, n, first, c.lead());
+                    t.run(run, n, first, c.trail());
+                    c.end_run();
+                }
+                (Some(t), None) => {
+                    lead.run(run, n, first, ());
+                    t.run(run, n, first, ());
+                }
+                (None, _) => lead.run(run, n, first, ()),
+            }
+        }
+    }
+
+    fn run_frame_major<const W: usize>(&mut self, run: &[i16], first: u64) {
+        let frames = (run.len() / W) as u32;
+        let mut lanes = Lanes::<W>::new();
+        // The tip reading each channel: (probe, trailing?).
+        let mut owner: [Option<(usize, bool)>; W] = [None; W];
+        for (i, p) in self.probes.iter_mut().enumerate() {
+            for (trailing, tip) in [(false, Some(&mut p.lead)), (true, p.trail.as_mut())] {
+                if let Some(tip) = tip {
+                    tip.detector.observe(run, W, first);
+                    let (ch, lane) = tip.detector.lane();
+                    lanes.load(ch, lane, tip.detector.is_air());
+                    if let Some(o) = owner.get_mut(ch) {
+                        *o = Some((i, trailing));
+                    }
+                }
+            }
+            if let Some(c) = p.corr.as_mut() {
+                c.begin_run(first);
+            }
+        }
+        let probes = &mut self.probes;
+        let rails = (
+            self.config.detector.rail_low,
+            self.config.detector.rail_high,
+        );
+        run_lanes(run, &mut lanes, rails, first, |j, e| {
+            let Some(&Some((i, trailing))) = owner.get(j) else {
+                return;
+            };
+            let Some(ProbeState { lead, trail, corr }) = probes.get_mut(i) else {
+                return;
+            };
+            match (trailing, trail.as_mut(), corr.as_mut()) {
+                (false, _, Some(c)) => Feed(&mut lead.stats, c.lead()).edge(e),
+                (false, _, None) => lead.stats.edge(e),
+                (true, Some(t), Some(c)) => Feed(&mut t.stats, c.trail()).edge(e),
+                (true, Some(t), None) => t.stats.edge(e),
+                (true, None, _) => {}
+            }
+        });
+        for p in probes.iter_mut() {
+            for tip in core::iter::once(&mut p.lead).chain(p.trail.as_mut()) {
+                let (ch, lane) = tip.detector.lane();
+                let get = |a: &[u32; W]| a.get(ch).copied().unwrap_or(0);
+                tip.detector
+                    .set_air(lanes.air.get(ch).is_some_and(|&a| a != 0));
+                let counts = RunCounts {
+                    air: get(&lanes.air_n),
+                    rail: get(&lanes.rail),
+                    unlearnt: if lane.held { frames } else { 0 },
+                };
+                tip.stats.add_run(frames, counts);
+                tip.detector.end_run_at(first + frames as u64);
+            }
+            if let Some(c) = p.corr.as_mut() {
+                c.end_run();
+            }
+        }
+    }
+
     fn close_window(&mut self, partial: bool) {
+        let det = &self.config.detector;
         for (i, p) in self.probes.iter_mut().enumerate() {
             let lead = p.lead.close();
             let trail = p.trail.as_mut().map(Tip::close);
@@ -230,6 +429,19 @@ impl<const P: usize> Chain<P> {
             if let Some(t) = &trail {
                 flags.set_if(Flags::TRAILING_STUCK, t.flags.contains(Flags::STUCK));
             }
+            let (correlation, correlation_sums) = match (p.corr.as_mut(), &trail) {
+                (Some(c), Some(t)) => {
+                    let sums = c.close(self.frame, &mut flags);
+                    let (result, f) = sums.analyse(det.min_peak_coefficient);
+                    flags |= f;
+                    flags.set_if(
+                        Flags::FEW_BUBBLES,
+                        lead.bubbles.min(t.bubbles) < det.min_bubbles,
+                    );
+                    (Some(result), Some(sums))
+                }
+                _ => (None, None),
+            };
             let rec = ProbeWindow {
                 probe: i as u8,
                 start: self.window_start,
@@ -237,10 +449,13 @@ impl<const P: usize> Chain<P> {
                 lead,
                 trail,
                 flags,
+                correlation,
+                correlation_sums,
             };
             // Room was checked before the window was processed.
             let _ = self.queue.push_back(rec);
         }
         self.window_start = self.frame;
+        self.window_bubbles = 0;
     }
 }

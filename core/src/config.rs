@@ -62,6 +62,13 @@ pub struct DetectorConfig {
     pub rail_high: i16,
     /// Smallest accepted air-water swing, counts, when learning levels.
     pub min_swing: u16,
+    /// Dual-tip correlation: a window whose cross-correlation peak coefficient is below this
+    /// is flagged [`Flags::NO_CORRELATION_PEAK`](crate::Flags::NO_CORRELATION_PEAK)
+    /// (0.3 by default; must lie in 0..=1).
+    pub min_peak_coefficient: f32,
+    /// Dual-tip correlation: a window in which either tip closed fewer bubbles than this is
+    /// flagged [`Flags::FEW_BUBBLES`](crate::Flags::FEW_BUBBLES) (10 by default).
+    pub min_bubbles: u32,
 }
 
 impl Default for DetectorConfig {
@@ -73,6 +80,8 @@ impl Default for DetectorConfig {
             rail_low: i16::MIN,
             rail_high: i16::MAX,
             min_swing: 64,
+            min_peak_coefficient: 0.3,
+            min_bubbles: 10,
         }
     }
 }
@@ -99,6 +108,32 @@ pub struct ProbeConfig {
     pub leading: TipConfig,
     /// The trailing tip, if the probe has two.
     pub trailing: Option<TipConfig>,
+    /// Largest correlation lag, frames, for a probe with a trailing tip: the leading and
+    /// trailing signals are correlated over lags `0..=max_lag` (trailing delayed). Must be
+    /// at least 2 when there is a trailing tip (ignored otherwise). The chain caps it at
+    /// its compile-time maximum `L - 1` (see [`crate::Chain`]). The host sets it from the
+    /// layout (`max_lag_ms`, or tip spacing / 0.2 m/s by default).
+    pub max_lag: u16,
+}
+
+impl ProbeConfig {
+    /// A single-tip probe.
+    pub const fn single(leading: TipConfig) -> Self {
+        ProbeConfig {
+            leading,
+            trailing: None,
+            max_lag: 0,
+        }
+    }
+
+    /// A dual-tip probe correlated over lags `0..=max_lag` frames.
+    pub const fn dual(leading: TipConfig, trailing: TipConfig, max_lag: u16) -> Self {
+        ProbeConfig {
+            leading,
+            trailing: Some(trailing),
+            max_lag,
+        }
+    }
 }
 
 /// The whole chain: channel count, detector settings, probes, window policy.
@@ -149,8 +184,16 @@ pub enum ConfigError {
         /// Probe index.
         probe: u8,
     },
-    /// A window policy of zero length.
+    /// A window policy of zero length, or a bubble-count window whose reference probe
+    /// does not exist.
     BadWindow,
+    /// A probe with a trailing tip has `max_lag` below 2.
+    BadMaxLag {
+        /// Probe index.
+        probe: u8,
+    },
+    /// `min_peak_coefficient` outside 0..=1 (or not a number).
+    BadCorrelationLimits,
 }
 
 impl core::fmt::Display for ConfigError {
@@ -177,7 +220,16 @@ impl core::fmt::Display for ConfigError {
                 f,
                 "probe {probe}: fixed air and water levels are equal or contradict the polarity"
             ),
-            ConfigError::BadWindow => write!(f, "window length must be at least one frame"),
+            ConfigError::BadWindow => write!(
+                f,
+                "window length must be at least one frame (or one bubble, on an existing probe)"
+            ),
+            ConfigError::BadMaxLag { probe } => {
+                write!(f, "probe {probe}: max_lag must be at least 2 frames")
+            }
+            ConfigError::BadCorrelationLimits => {
+                write!(f, "min_peak_coefficient must lie in 0..=1")
+            }
         }
     }
 }
@@ -234,12 +286,23 @@ impl<const P: usize> ChainConfig<P> {
         if d.rail_low >= d.rail_high {
             return Err(ConfigError::BadRails);
         }
+        if !(d.min_peak_coefficient >= 0.0 && d.min_peak_coefficient <= 1.0) {
+            return Err(ConfigError::BadCorrelationLimits);
+        }
         if !self.window.is_valid() {
             return Err(ConfigError::BadWindow);
+        }
+        if let WindowPolicy::Bubbles { probe, .. } = self.window {
+            if probe as usize >= self.probes.len() {
+                return Err(ConfigError::BadWindow);
+            }
         }
         let mut used = [false; MAX_CHANNELS];
         for (i, p) in self.probes.iter().enumerate() {
             let i = i as u8;
+            if p.trailing.is_some() && p.max_lag < 2 {
+                return Err(ConfigError::BadMaxLag { probe: i });
+            }
             for tip in core::iter::once(&p.leading).chain(p.trailing.iter()) {
                 tip.validate(i, self.channels)?;
                 let c = tip.channel as usize;

@@ -25,15 +25,42 @@ impl Flags {
     pub const PARTIAL_WINDOW: Flags = Flags(1 << 4);
     /// The trailing tip (if any) saw no interface in the window.
     pub const TRAILING_STUCK: Flags = Flags(1 << 5);
+    /// Dual-tip correlation: no lag has a cross-correlation coefficient at or above
+    /// [`DetectorConfig::min_peak_coefficient`](crate::DetectorConfig::min_peak_coefficient)
+    /// (or none could be computed: a tip sat in one phase). The peak lag, hence the
+    /// velocity, is not to be trusted.
+    pub const NO_CORRELATION_PEAK: Flags = Flags(1 << 6);
+    /// Dual-tip correlation: the highest coefficient lies at lag 0 or at the largest lag:
+    /// the true peak may lie outside the lag range (raise `max_lag`), and the lag is not
+    /// interpolated.
+    pub const PEAK_AT_LAG_BOUNDARY: Flags = Flags(1 << 7);
+    /// Dual-tip correlation: a tip closed fewer than
+    /// [`DetectorConfig::min_bubbles`](crate::DetectorConfig::min_bubbles) bubbles in the
+    /// window; the correlation is statistically weak.
+    pub const FEW_BUBBLES: Flags = Flags(1 << 8);
+    /// Dual-tip correlation: the turbulence intensity is undefined, because the
+    /// cross-correlation half-width tau05 is below the auto-correlation half-time T05, or
+    /// one of tau05, T05 or a positive peak lag is missing.
+    pub const TU_UNDEFINED: Flags = Flags(1 << 9);
+    /// Dual-tip correlation: some interfaces could not be paired, so the correlation sums
+    /// are incomplete. The chain sizes its buffers so that this cannot happen; it is raised
+    /// only when a [`Correlator`](crate::Correlator) is driven directly with runs longer
+    /// than [`MAX_RUN_FRAMES`](crate::correlation::MAX_RUN_FRAMES).
+    pub const CORRELATION_OVERFLOW: Flags = Flags(1 << 10);
 
     /// Names of the flags, in bit order, as written into CSV files.
-    pub const NAMES: [(Flags, &'static str); 6] = [
+    pub const NAMES: [(Flags, &'static str); 11] = [
         (Flags::STUCK, "stuck"),
         (Flags::LEVELS_NOT_LEARNT, "levels_not_learnt"),
         (Flags::SATURATED, "saturated"),
         (Flags::SHORT_CHORDS, "short_chords"),
         (Flags::PARTIAL_WINDOW, "partial_window"),
         (Flags::TRAILING_STUCK, "trailing_stuck"),
+        (Flags::NO_CORRELATION_PEAK, "no_correlation_peak"),
+        (Flags::PEAK_AT_LAG_BOUNDARY, "peak_at_lag_boundary"),
+        (Flags::FEW_BUBBLES, "few_bubbles"),
+        (Flags::TU_UNDEFINED, "tu_undefined"),
+        (Flags::CORRELATION_OVERFLOW, "correlation_overflow"),
     ];
 
     /// True if every bit of `other` is set in `self`.

@@ -1,16 +1,18 @@
 //! frothline-core: the signal chain of dual-tip phase-detection probes, for small devices.
 //!
 //! The core turns interleaved ADC samples (one channel per probe tip) into per-window
-//! records of void fraction, bubble count rate and chord times. It never allocates, never
-//! blocks and never panics: the caller pushes blocks of samples of any length with
-//! [`Chain::push`] and drains finished records with [`Chain::poll`], the way a poll loop of
-//! a small-device network stack works. All memory is sized by const generics.
+//! records of void fraction, bubble count rate, chord times and, for dual-tip probes, the
+//! cross-correlation of the two tips (interfacial velocity, turbulence intensity). It never
+//! allocates, never blocks and never panics: the caller pushes blocks of samples of any
+//! length with [`Chain::push`] and drains finished records with [`Chain::poll`], the way a
+//! poll loop of a small-device network stack works. All memory is sized by const generics.
 //!
 //! Stages, one module each:
 //! - [`phase`]: threshold with hysteresis, fixed or learnt air/water levels -> interface edges;
 //! - [`levels`]: learning the two levels from a histogram of the signal (Otsu split + modes);
 //! - [`tip_stats`]: per-window statistics of one tip (void fraction, counts, chords);
 //! - [`chord`]: the log-spaced chord-time histogram and its percentiles;
+//! - [`correlation`]: dual-tip cross-correlation (interfacial velocity, turbulence);
 //! - [`window`]: analysis-window policies;
 //! - [`chain`]: the streaming pipeline that ties them together;
 //! - [`record`] and [`flags`]: what comes out.
@@ -21,17 +23,23 @@
 pub mod chain;
 pub mod chord;
 pub mod config;
+pub mod correlation;
+pub mod decay;
 pub mod flags;
+pub mod front;
 pub mod levels;
 pub mod phase;
+pub mod profile;
 pub mod record;
 pub mod tip_stats;
 pub mod window;
+pub mod wire;
 
 pub use chain::{Chain, QueueFull};
 pub use config::{
     ChainConfig, ConfigError, DetectorConfig, LevelSource, Polarity, ProbeConfig, TipConfig,
 };
+pub use correlation::{CorrelationResult, CorrelationSums, Correlator};
 pub use flags::Flags;
 pub use phase::{Edge, EdgeSink, PhaseDetector};
 pub use record::{ProbeWindow, TipStats};

@@ -3,7 +3,9 @@
 //! The hot loop is branch-light: with thresholds `enter_air > enter_water` (both in the
 //! air-is-high scale) the new phase is `(y > enter_water) & (air | (y > enter_air))`, which
 //! is the hysteresis rule without a data-dependent branch. Only an interface (rare next to
-//! the sample rate) takes a branch, to report the edge.
+//! the sample rate) takes a branch, to report the edge. The loop is monomorphised on the
+//! polarity (the thresholds are mapped back to counts, so no multiplication per sample) and
+//! walks the tip's channel with a strided iterator (no bounds check per sample).
 
 use crate::config::{DetectorConfig, LevelSource, TipConfig};
 use crate::levels::{Learnt, LevelLearner, Levels, Thresholds};
@@ -33,6 +35,158 @@ impl<A: EdgeSink, B: EdgeSink> EdgeSink for (A, B) {
         self.0.edge(edge);
         self.1.edge(edge);
     }
+}
+
+/// Parameters of one detector as a lane of [`run_lanes`].
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct Lane {
+    /// 0 for air-high, -1 for air-low: `(x ^ flip) - flip` maps a sample to the
+    /// air-is-high scale.
+    pub(crate) flip: i32,
+    /// `enter_water` (or `i32::MIN` when held).
+    pub(crate) lo: i32,
+    /// `enter_air` (or `i32::MAX` when held).
+    pub(crate) hi: i32,
+    /// No levels yet: the phase is held and the frames count as unlearnt.
+    pub(crate) held: bool,
+}
+
+/// The state of `W` lanes (one per channel of a `W`-channel frame) for [`run_lanes`].
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct Lanes<const W: usize> {
+    pub(crate) flip: [i32; W],
+    pub(crate) lo: [i32; W],
+    pub(crate) hi: [i32; W],
+    /// Phase, 0 or 1.
+    pub(crate) air: [i32; W],
+    /// Air frames of the run.
+    pub(crate) air_n: [u32; W],
+    /// Rail frames of the run.
+    pub(crate) rail: [u32; W],
+}
+
+impl<const W: usize> Lanes<W> {
+    /// Every lane held in water (lanes of channels no tip reads stay so).
+    pub(crate) const fn new() -> Self {
+        Lanes {
+            flip: [0; W],
+            lo: [i32::MIN; W],
+            hi: [i32::MAX; W],
+            air: [0; W],
+            air_n: [0; W],
+            rail: [0; W],
+        }
+    }
+
+    /// Set lane `j` from a detector's parameters and phase.
+    pub(crate) fn load(&mut self, j: usize, lane: Lane, air: bool) {
+        if let (Some(f), Some(l), Some(h), Some(a)) = (
+            self.flip.get_mut(j),
+            self.lo.get_mut(j),
+            self.hi.get_mut(j),
+            self.air.get_mut(j),
+        ) {
+            (*f, *l, *h, *a) = (lane.flip, lane.lo, lane.hi, air as i32);
+        }
+    }
+}
+
+/// Frame-major phase detection: every channel of `W`-channel frames (`W <= 64`) at once, the
+/// same rule
+/// as [`PhaseDetector::run`] per lane (`(y > lo) & (air | (y > hi))` with
+/// `y = (x ^ flip) - flip`), in a fixed-width loop over the lanes that the compiler
+/// vectorises (contiguous loads, no dependency between lanes). Edges are reported in time
+/// order, lanes in channel order within a frame, through `emit(lane, edge)`.
+#[inline]
+pub(crate) fn run_lanes<const W: usize>(
+    frames: &[i16],
+    lanes: &mut Lanes<W>,
+    (rl, rh): (i16, i16),
+    first: u64,
+    mut emit: impl FnMut(usize, Edge),
+) {
+    let Lanes {
+        flip,
+        lo,
+        hi,
+        air,
+        air_n,
+        rail,
+    } = lanes;
+    for (i, f) in frames.chunks_exact(W).enumerate() {
+        let Ok(f) = <&[i16; W]>::try_from(f) else {
+            break;
+        };
+        let mut change = [0i32; W];
+        let mut any = 0i32;
+        for j in 0..W {
+            let x = f[j];
+            let y = (x as i32 ^ flip[j]) - flip[j];
+            let now = ((y > lo[j]) as i32) & (air[j] | (y > hi[j]) as i32);
+            change[j] = now ^ air[j];
+            any |= change[j];
+            air_n[j] = air_n[j].wrapping_add(now as u32);
+            rail[j] = rail[j].wrapping_add(((x <= rl) | (x >= rh)) as u32);
+            air[j] = now;
+        }
+        if any != 0 {
+            // Visit the changed lanes only (W <= 64).
+            let mut mask = 0u64;
+            for (j, &c) in change.iter().enumerate().take(64) {
+                mask |= ((c != 0) as u64) << j;
+            }
+            while mask != 0 {
+                let j = mask.trailing_zeros() as usize;
+                mask &= mask - 1;
+                emit(
+                    j,
+                    Edge {
+                        frame: first + i as u64,
+                        to_air: air.get(j).is_some_and(|&a| a != 0),
+                    },
+                );
+            }
+        }
+    }
+}
+
+/// The per-sample loop of [`PhaseDetector::run`], monomorphised on the polarity so the
+/// comparisons need no multiplication: with `POS` the thresholds are in counts, otherwise
+/// negated counts and the comparisons reversed. Returns the phase after the run, the air
+/// frames and the rail frames.
+#[inline(always)]
+fn run_loop<'a, const POS: bool, I: Iterator<Item = &'a i16>, S: EdgeSink>(
+    samples: I,
+    (lo, hi): (i64, i64),
+    (rl, rh): (i16, i16),
+    mut air: bool,
+    first: u64,
+    sink: &mut S,
+) -> (bool, u32, u32) {
+    let (lo, hi) = (
+        lo.clamp(i32::MIN as i64, i32::MAX as i64) as i32,
+        hi.clamp(i32::MIN as i64, i32::MAX as i64) as i32,
+    );
+    let (mut air_n, mut rail) = (0u32, 0u32);
+    for (i, &x) in samples.enumerate() {
+        rail += ((x <= rl) | (x >= rh)) as u32;
+        let x = x as i32;
+        let (above_lo, above_hi) = if POS {
+            (x > lo, x > hi)
+        } else {
+            (x < lo, x < hi)
+        };
+        let now = above_lo & (air | above_hi);
+        air_n += now as u32;
+        if now != air {
+            sink.edge(Edge {
+                frame: first + i as u64,
+                to_air: now,
+            });
+        }
+        air = now;
+    }
+    (air, air_n, rail)
 }
 
 /// Sample counts of one processed run of frames.
@@ -144,6 +298,53 @@ impl PhaseDetector {
         counts
     }
 
+    /// Frame-major processing (see [`run_lanes`]): the next frame at which this detector
+    /// must stop for a learning event, if it learns.
+    pub(crate) fn next_stop(&self, at: u64) -> Option<u64> {
+        self.learner.as_ref().map(|_| self.next_learn_event(at))
+    }
+
+    /// Frame-major processing: feed the learner with a run of frames (before the run).
+    pub(crate) fn observe(&mut self, frames: &[i16], channels: usize, first: u64) {
+        if let Some(l) = self.learner.as_mut() {
+            l.observe(frames, channels, self.channel, first);
+        }
+    }
+
+    /// Frame-major processing: after a run that ended at frame `at`, fire the learning
+    /// event due there (as [`process`](Self::process) does).
+    pub(crate) fn end_run_at(&mut self, at: u64) {
+        if self.learner.is_some() && at > 0 && at == self.next_learn_event(at - 1) {
+            self.learn_event(at);
+        }
+    }
+
+    /// Frame-major processing: this detector's channel and lane parameters
+    /// `(flip, lo, hi, held)` (`held`: no levels yet, the phase is held).
+    pub(crate) fn lane(&self) -> (usize, Lane) {
+        let flip = if self.sign < 0 { -1 } else { 0 };
+        let lane = match self.thresholds {
+            Some(t) => Lane {
+                flip,
+                lo: t.enter_water,
+                hi: t.enter_air,
+                held: false,
+            },
+            None => Lane {
+                flip,
+                lo: i32::MIN,
+                hi: i32::MAX,
+                held: true,
+            },
+        };
+        (self.channel, lane)
+    }
+
+    /// Frame-major processing: the phase after a run.
+    pub(crate) fn set_air(&mut self, air: bool) {
+        self.air = air;
+    }
+
     /// The first learning event after frame `at`: the end of the first half-period (range
     /// found), then every period end.
     fn next_learn_event(&self, at: u64) -> u64 {
@@ -210,23 +411,15 @@ impl PhaseDetector {
                 unlearnt: n,
             };
         };
-        let (lo, hi, sign) = (t.enter_water, t.enter_air, self.sign);
-        let mut air = self.air;
-        let mut air_n = 0u32;
-        for (i, f) in frames.chunks_exact(channels).enumerate() {
-            let x = f[ch];
-            rail += ((x <= rl) | (x >= rh)) as u32;
-            let y = x as i32 * sign;
-            let now = (y > lo) & (air | (y > hi));
-            air_n += now as u32;
-            if now != air {
-                sink.edge(Edge {
-                    frame: first + i as u64,
-                    to_air: now,
-                });
-            }
-            air = now;
-        }
+        let (lo, hi) = (t.enter_water as i64, t.enter_air as i64);
+        let samples = frames.iter().skip(ch).step_by(channels);
+        let (air, air_n, rail_n) = if self.sign > 0 {
+            run_loop::<true, _, _>(samples, (lo, hi), (rl, rh), self.air, first, sink)
+        } else {
+            // In the air-is-high scale y = -x: y > t  <=>  x < -t.
+            run_loop::<false, _, _>(samples, (-lo, -hi), (rl, rh), self.air, first, sink)
+        };
+        rail += rail_n;
         self.air = air;
         RunCounts {
             air: air_n,

@@ -1,6 +1,7 @@
 //! The records the chain produces.
 
 use crate::chord::ChordStats;
+use crate::correlation::{CorrelationResult, CorrelationSums, DEFAULT_LAGS};
 use crate::flags::Flags;
 use crate::levels::Levels;
 
@@ -58,11 +59,12 @@ impl TipStats {
     }
 }
 
-/// One probe over one window.
+/// One probe over one window. `L` is the chain's number of correlation lag slots (see
+/// [`crate::Chain`]).
 #[derive(Clone, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
-pub struct ProbeWindow {
+pub struct ProbeWindow<const L: usize = DEFAULT_LAGS> {
     /// Index of the probe in the configuration.
     pub probe: u8,
     /// First frame of the window (absolute index since the run started).
@@ -73,6 +75,14 @@ pub struct ProbeWindow {
     pub lead: TipStats,
     /// The trailing tip, if the probe has one.
     pub trail: Option<TipStats>,
-    /// The probe's flags: the leading tip's, plus window- and trailing-tip flags.
+    /// The probe's flags: the leading tip's, plus window-, trailing-tip and correlation
+    /// flags.
     pub flags: Flags,
+    /// The dual-tip correlation results (probes with a trailing tip only). Present for
+    /// every window of such a probe; values that could not be computed are `None`, with
+    /// the reason in `flags`.
+    pub correlation: Option<CorrelationResult>,
+    /// The exact correlation sums behind `correlation`, lag by lag (for ensemble averaging
+    /// over runs: see [`CorrelationSums::merge`]).
+    pub correlation_sums: Option<CorrelationSums<L>>,
 }

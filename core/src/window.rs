@@ -1,4 +1,19 @@
 //! Analysis-window policies: how the sample stream is cut into windows.
+//!
+//! Every window of a chain is shared by all its probes (one record per probe per window,
+//! with the same start and end frames), and every window end is a property of the samples,
+//! never of how they were pushed:
+//! - [`WindowPolicy::Whole`] and [`WindowPolicy::Frames`] end at frame indices known in
+//!   advance;
+//! - [`WindowPolicy::Bubbles`] is adaptive: the window ends right after the frame at which
+//!   the leading tip of a reference probe closes its `count`-th bubble of the window (the
+//!   frame of that air -> water interface is the window's last frame, so the reference tip's
+//!   record holds exactly `count` bubbles). A window therefore spans about the same number
+//!   of bubbles in dense and in sparse flow, which keeps the statistical weight of the
+//!   correlation results steady along a transient (a surge front, a decaying bore). The
+//!   other probes of the chain are cut at the same frames (one chain-wide window; windows of
+//!   different ends per probe would break the shared-window records). `max_frames` caps a
+//!   window whose reference tip stops seeing bubbles.
 
 /// How the chain cuts the stream into analysis windows.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -10,20 +25,49 @@ pub enum WindowPolicy {
     Whole,
     /// Consecutive windows of this many frames, aligned on frame 0.
     Frames(u32),
+    /// Adaptive windows that each hold `count` bubbles of the reference probe's leading tip
+    /// (bubbles counted at their closing air -> water interface, as in
+    /// [`crate::TipStats::bubbles`]); see the module documentation.
+    Bubbles {
+        /// Bubbles per window (at least 1).
+        count: u32,
+        /// Index of the reference probe in the configuration.
+        probe: u8,
+        /// Longest window, frames (`None`: no cap). A capped window holds fewer bubbles.
+        max_frames: Option<u32>,
+    },
 }
 
 impl WindowPolicy {
     /// False for a zero-length policy.
     pub const fn is_valid(&self) -> bool {
-        !matches!(self, WindowPolicy::Frames(0))
+        match *self {
+            WindowPolicy::Whole => true,
+            WindowPolicy::Frames(n) => n > 0,
+            WindowPolicy::Bubbles {
+                count, max_frames, ..
+            } => count > 0 && !matches!(max_frames, Some(0)),
+        }
     }
 
-    /// The end (exclusive frame index) of a window that starts at `start`, if the policy
-    /// closes windows by itself.
+    /// The end (exclusive frame index) of a window that starts at `start`, if known in
+    /// advance: the fixed length, or the cap of a bubble-count window (which may close
+    /// earlier).
     pub const fn end_of_window_from(&self, start: u64) -> Option<u64> {
         match *self {
             WindowPolicy::Whole => None,
-            WindowPolicy::Frames(n) => Some(start + n as u64),
+            WindowPolicy::Frames(n) => Some(start.saturating_add(n as u64)),
+            WindowPolicy::Bubbles {
+                max_frames: Some(n),
+                ..
+            } => Some(start.saturating_add(n as u64)),
+            WindowPolicy::Bubbles { .. } => None,
         }
+    }
+
+    /// True if the policy closes windows by itself (everything but [`WindowPolicy::Whole`]):
+    /// a window still open when the record ends is then flagged partial.
+    pub const fn closes_by_itself(&self) -> bool {
+        !matches!(self, WindowPolicy::Whole)
     }
 }

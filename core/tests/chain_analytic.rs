@@ -25,6 +25,7 @@ fn one_tip_config(levels: LevelSource, polarity: Polarity, window: WindowPolicy)
         .push(ProbeConfig {
             leading: tip(0, polarity, levels),
             trailing: None,
+            max_lag: 0,
         })
         .unwrap();
     c
@@ -428,18 +429,81 @@ fn chords_of_one_sample_raise_the_short_chord_flag() {
     assert!(r[0].flags.contains(Flags::SHORT_CHORDS));
 }
 
+/// Frame-major processing (all channels at once, used for 2, 4, 8, ... channels) and tip by
+/// tip processing (other channel counts) are two implementations of one rule: the same tips
+/// must give the same records, for both polarities, fixed and learnt levels (design rule:
+/// results never depend on how the chain is driven).
+#[test]
+fn frame_major_and_tip_by_tip_processing_agree() {
+    let n = 60_000;
+    let base = plateaux(13, n, AIR, WATER);
+    let other = plateaux(14, n, AIR, WATER);
+    let inverted: Vec<i16> = other.iter().map(|&x| -x).collect();
+    let inverted2: Vec<i16> = base.iter().map(|&x| -x).collect();
+    let build = |channels: u8| {
+        let mut c: ChainConfig<4> = ChainConfig::new(channels, WindowPolicy::Frames(7_000));
+        c.detector.learn_period = 4096;
+        let fixed_low = LevelSource::Fixed {
+            air: -AIR,
+            water: -WATER,
+        };
+        let fixed_high = LevelSource::Fixed {
+            air: AIR,
+            water: WATER,
+        };
+        c.probes
+            .push(ProbeConfig::dual(
+                tip(0, Polarity::AirHigh, fixed_high),
+                tip(1, Polarity::AirLow, fixed_low),
+                60,
+            ))
+            .unwrap();
+        c.probes
+            .push(ProbeConfig::single(tip(
+                2,
+                Polarity::AirLow,
+                LevelSource::Learnt,
+            )))
+            .unwrap();
+        c
+    };
+    let frames = |width: usize| -> Vec<i16> {
+        (0..n)
+            .flat_map(|i| {
+                let mut f = vec![0i16; width];
+                f[0] = base[i];
+                f[1] = inverted[i];
+                f[2] = inverted2[i];
+                f
+            })
+            .collect()
+    };
+    let major = run_all(build(4), &frames(4));
+    let by_tip = run_all(build(3), &frames(3));
+    assert_eq!(major.len(), 18);
+    assert!(major
+        .iter()
+        .any(|r| r.lead.bubbles > 0 && r.correlation.is_some()));
+    assert_eq!(major, by_tip);
+}
+
 mod block_splits {
     use super::*;
     use proptest::prelude::*;
 
     fn two_probe_config(window: WindowPolicy) -> ChainConfig<4> {
-        let mut c = ChainConfig::new(5, window);
+        two_probe_config_wide(window, 5)
+    }
+
+    fn two_probe_config_wide(window: WindowPolicy, channels: u8) -> ChainConfig<4> {
+        let mut c = ChainConfig::new(channels, window);
         c.detector.learn_period = 2048;
         let t = |ch, lv| tip(ch, Polarity::AirHigh, lv);
         c.probes
             .push(ProbeConfig {
                 leading: t(0, LevelSource::Learnt),
                 trailing: Some(t(1, LevelSource::Learnt)),
+                max_lag: 40,
             })
             .unwrap();
         let fixed = LevelSource::Fixed {
@@ -450,14 +514,23 @@ mod block_splits {
             .push(ProbeConfig {
                 leading: t(3, fixed),
                 trailing: None,
+                max_lag: 0,
             })
             .unwrap();
         c
     }
 
     fn interleaved(seed: u64, frames: usize) -> Vec<i16> {
-        let chans: Vec<Vec<i16>> = (0..5)
+        interleaved_wide(seed, frames, 5)
+    }
+
+    fn interleaved_wide(seed: u64, frames: usize, width: u64) -> Vec<i16> {
+        let mut chans: Vec<Vec<i16>> = (0..width)
             .map(|c| plateaux(seed + c, frames, AIR, WATER))
+            .collect();
+        // The trailing tip of probe 0 sees the leading tip's signal 7 frames later.
+        chans[1] = (0..frames)
+            .map(|i| if i < 7 { WATER } else { chans[0][i - 7] })
             .collect();
         (0..frames)
             .flat_map(|i| chans.iter().map(move |ch| ch[i]))
@@ -466,18 +539,33 @@ mod block_splits {
 
     proptest! {
         #![proptest_config(ProptestConfig::with_cases(24))]
-        /// Records must not depend on how the samples were split into blocks (design rule
-        /// of the streaming API; the reference is the same samples pushed in one block).
+        /// Records, the correlation results and sums included, must not depend on how the
+        /// samples were split into blocks (design rule of the streaming API; the reference
+        /// is the same samples pushed in one block), nor must the adaptive window ends.
         #[test]
         fn random_block_splits_give_identical_records(
             seed in 0u64..1000,
             sizes in proptest::collection::vec(1usize..5000, 1..20),
-            window in prop_oneof![Just(WindowPolicy::Whole), (50u32..3000).prop_map(WindowPolicy::Frames)],
+            window in prop_oneof![
+                Just(WindowPolicy::Whole),
+                (50u32..3000).prop_map(WindowPolicy::Frames),
+                (1u32..40, proptest::option::of(100u32..4000)).prop_map(|(count, max_frames)| {
+                    WindowPolicy::Bubbles { count, probe: 0, max_frames }
+                }),
+            ],
         ) {
             let samples = interleaved(seed, 12_000);
             let one = run_all(two_probe_config(window), &samples);
             let split = run_split(two_probe_config(window), &samples, &sizes);
-            prop_assert_eq!(one, split);
+            let found = |r: &ProbeWindow| r.correlation.is_some_and(|c| c.peak_lag_frames.is_some());
+            prop_assert!(one.iter().any(found));
+            prop_assert!(one.iter().all(|r| r.correlation.is_some() == (r.probe == 0)));
+            prop_assert_eq!(&one, &split);
+            // The same tips in an 8-channel frame run frame-major (all channels at once)
+            // instead of tip by tip: the records must not change either.
+            let wide = interleaved_wide(seed, 12_000, 8);
+            let wide_split = run_split(two_probe_config_wide(window, 8), &wide, &sizes);
+            prop_assert_eq!(&one, &wide_split);
         }
     }
 }

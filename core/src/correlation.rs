@@ -1,0 +1,1061 @@
+//! Dual-tip correlation: interfacial velocity and turbulence intensity from the leading and
+//! trailing tips' binary phase signals.
+//!
+//! # Definition (exact, integer)
+//!
+//! Take one analysis window of `N` frames, frames `t = 0..N` relative to its start, with
+//! `a(t)` the leading tip's phase and `b(t)` the trailing tip's (1 = air, 0 = water), both
+//! restricted to the window (an air interval open at a window edge is clipped to the
+//! window). For each lag `tau = 0..=M` (`M` the probe's `max_lag`; the trailing tip is
+//! delayed) over the `n(tau) = N - tau` frames where both factors lie in the window:
+//!
+//! ```text
+//! S_ab(tau) = sum_{t=0}^{N-1-tau} a(t) b(t+tau)       cross sum
+//! S_aa(tau) = sum_{t=0}^{N-1-tau} a(t) a(t+tau)       auto sum (leading tip)
+//! S_a(tau)  = sum_{t=0}^{N-1-tau} a(t)                the first factor's range
+//! S_b(tau)  = sum_{t=tau}^{N-1}   b(t)                the second factor's range
+//! S_a'(tau) = sum_{t=tau}^{N-1}   a(t)                (auto: the lagged factor's range)
+//! ```
+//!
+//! These are exact integers, reported in [`CorrelationSums`] (which the host can add over
+//! runs for ensemble statistics, see [`CorrelationSums::merge`]). The coefficient at a lag
+//! is Pearson's correlation of the two overlapping sequences, computed from the integers
+//! (binary signals: the sums of squares are the sums):
+//!
+//! ```text
+//! R_ab(tau) = (n S_ab - S_a S_b) / sqrt( (n S_a - S_a^2) (n S_b - S_b^2) ),  n = N - tau
+//! ```
+//!
+//! and likewise `R_aa` with `S_a'` in place of `S_b`. The numerator and the two variance
+//! terms are computed exactly in integers, then once rounded to `f32`; the square roots are
+//! Newton-refined (micromath's estimates alone are 5 % approximations). A lag whose overlap
+//! is shorter than 2 frames, or where one factor is constant, has no coefficient.
+//!
+//! # Algorithm: interface pairs, O(1) per pair
+//!
+//! Write each signal as a sum of air intervals, i.e. of its interfaces: an edge at frame
+//! `t` with sign `e = +1` (air starts at `t`) or `-1` (air ends, `t` is the first water
+//! frame). Then, for `tau >= 0`,
+//!
+//! ```text
+//! S_ab(tau) = sum over edge pairs (i of a, j of b) of  -e_i e_j ramp(tau - (t_j - t_i)),
+//! ramp(x) = max(x, 0),
+//! ```
+//!
+//! because the overlap of an air interval of `a` with a shifted air interval of `b` is a
+//! trapezoid in `tau`, which is the sum of the four ramps at its corners. Accumulate the
+//! second difference `D` of `S_ab` over `tau = 0..=M`: a pair with `p = t_j - t_i` adds
+//! `c = -e_i e_j` at `D[p + 1]` when `0 <= p < M` (and nothing when `p >= M`); a pair with
+//! `p < 0` adds the straight line `c (tau - p)`, i.e. `-c p` at `D[0]` and `c (1 + p)` at
+//! `D[1]`. At the window close a double prefix sum of `D` gives `S_ab(tau)` for every lag in
+//! O(M). Pairs with `p >= 0` need only the edges of `a` within the last `M` frames (at most
+//! `M`, one per frame, kept in a ring of `L > M` entries); pairs with `p < 0` are summed in
+//! O(1) per edge from two running sums of the other tip, `sum e` and `sum e t`. The auto
+//! sum is the same with `b = a`, the edge-ranges `S_a`, `S_b`, `S_a'` come from the edges
+//! in the first and last `M` frames. Everything is integer arithmetic, so the sums equal
+//! the direct sums over samples exactly, on a device as on a host.
+//!
+//! The pairs must be seen in time order (an edge of `a` at `t` before one of `b` at `t`;
+//! the other order at equal frames gives the same sums, since `p = 0` adds `c` at `D[1]`
+//! by either rule), but the chain may run the leading tip over a run of frames before the
+//! trailing tip over the same frames; so the leading tip's edges of the current run wait in
+//! a buffer (at most one per frame of a run, [`MAX_RUN_FRAMES`]) and are merged in as the
+//! trailing tip's edges arrive, and the rest at the end of the run. No buffer can overflow
+//! when driven by the chain; driven directly with longer runs, the correlator raises
+//! [`Flags::CORRELATION_OVERFLOW`] and stays defined.
+//!
+//! Cost: O(1) per edge of `a`, O(edges of `a` in the last `M` frames) per edge of `b`,
+//! O(M) per window. In bubbly flow (F = 300 Hz at 40 kHz, M = 255) that is about four pair
+//! updates per edge, a few per hundred samples. The other route, bit-packed phase words
+//! and a popcount per lag, costs M/32 word operations per sample for each of the two sums
+//! whatever the flow, and the Cortex-M4 has no popcount instruction; the interface pairs
+//! are two to three orders of magnitude cheaper there. Their worst case (an interface at
+//! every frame) is O(M) per frame, which a real probe signal does not approach.
+//!
+//! # Derived quantities (all lags in frames; the host divides by the sample rate)
+//!
+//! - Peak: the lag `k` of the highest defined `R_ab` (the first one on ties) and the
+//!   coefficient there. The lag is refined below the sample with a three-point tent fit,
+//!   `delta = (R(k+1) - R(k-1)) / (2 (R(k) - min(R(k-1), R(k+1))))`: the correlation of
+//!   boxcar chords is a sum of trapezoids, each kinked at its transit time, so a sharply
+//!   defined delay gives a kinked (tent) peak, on which the tent fit is exact and the usual
+//!   parabolic fit is biased by up to 0.085 frame. (When the transit times spread over
+//!   many frames the peak rounds off and the tent fit is biased by up to 0.085 frame
+//!   instead, far below the statistical scatter of such a peak.) Not refined, and flagged
+//!   [`Flags::PEAK_AT_LAG_BOUNDARY`], at lag 0 or the last lag.
+//! - Secondary-peak ratio (the quality figure of cross-correlation velocimetry, Keane and
+//!   Adrian 1992): the highest local maximum of `R_ab` outside the primary peak (the lags
+//!   between its two half-maximum crossings), over the primary peak; 0 when there is no
+//!   other local maximum, negative maxima count as 0. End lags count as local maxima when
+//!   not below their one neighbour.
+//! - `T05`: the lag at which `R_aa` first falls to 0.5 (linear interpolation).
+//! - `tau05`: the half-width at half maximum of the cross-correlation peak: with `x_L` and
+//!   `x_R` the lags, left and right of `k`, at which `R_ab` first falls to `R_ab(k) / 2`
+//!   (linear interpolation), `tau05 = (x_R - x_L) / 2`; when `R_ab` stays above half down
+//!   to lag 0, the one-sided `x_R - T`.
+//! - Turbulence intensity (published method for dual-tip probes):
+//!   `Tu = 0.851 sqrt(tau05^2 - T05^2) / T` with `T` the interpolated peak lag. It assumes
+//!   Gaussian velocity fluctuations (0.851 follows from that shape), a frozen bubbly
+//!   structure between the tips and `tau05 >= T05`; otherwise it is undefined
+//!   ([`Flags::TU_UNDEFINED`]).
+//! - Integral time scales: `R_aa` integrated from lag 0, and `R_ab` from the peak lag `k`,
+//!   to the first zero crossing after (trapezoid rule, the last piece cut at the linearly
+//!   interpolated crossing); `None` when `R` does not cross zero within the lags.
+
+use crate::flags::Flags;
+use crate::phase::{Edge, EdgeSink};
+use heapless::Vec;
+use micromath::F32Ext;
+
+/// The chain's default number of lag slots `L`: lags `0..=255`.
+pub const DEFAULT_LAGS: usize = 256;
+
+/// Longest run of frames between [`Correlator::begin_run`] and [`Correlator::end_run`]
+/// (the chain's runs are never longer).
+pub const MAX_RUN_FRAMES: usize = 1024;
+
+/// Bit of a pending entry that marks a rising (water -> air) edge.
+const RISING_BIT: u16 = 1 << 15;
+
+/// The exact correlation sums of one window (see the [module documentation](self)), with
+/// `lags()` entries per array: lags `0..lags()`.
+///
+/// Sums of several windows (for example of repeated runs at the same time since a front)
+/// can be added with [`merge`](Self::merge); the coefficients of the merged sums are the
+/// pooled Pearson coefficients of all the overlapping frames.
+#[derive(Clone, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub struct CorrelationSums<const L: usize> {
+    /// Frames in the window(s), `N` (summed over merged windows).
+    pub frames: u64,
+    /// Number of windows summed (1 for one window): the overlap at lag `tau` is
+    /// `frames - windows * tau`.
+    pub windows: u32,
+    /// Air frames of the leading tip, `sum a(t)` over the window(s).
+    pub lead_air: u64,
+    /// Air frames of the trailing tip, `sum b(t)`.
+    pub trail_air: u64,
+    /// `S_ab(tau)`, the cross sums.
+    pub cross: Vec<u64, L>,
+    /// `S_aa(tau)`, the leading tip's auto sums.
+    pub auto: Vec<u64, L>,
+    /// Air frames of the leading tip among the first `tau` frames of the window(s).
+    pub lead_head: Vec<u32, L>,
+    /// Air frames of the leading tip among the last `tau` frames of the window(s).
+    pub lead_tail: Vec<u32, L>,
+    /// Air frames of the trailing tip among the first `tau` frames of the window(s).
+    pub trail_head: Vec<u32, L>,
+}
+
+impl<const L: usize> CorrelationSums<L> {
+    /// Sums of an empty window over `lags` lags (at most `L`).
+    pub fn empty(lags: usize) -> Self {
+        fn zeros<T: Copy + Default, const L: usize>(lags: usize) -> Vec<T, L> {
+            let mut v = Vec::new();
+            for _ in 0..lags.min(L) {
+                let _ = v.push(T::default());
+            }
+            v
+        }
+        CorrelationSums {
+            frames: 0,
+            windows: 0,
+            lead_air: 0,
+            trail_air: 0,
+            cross: zeros(lags),
+            auto: zeros(lags),
+            lead_head: zeros(lags),
+            lead_tail: zeros(lags),
+            trail_head: zeros(lags),
+        }
+    }
+
+    /// Number of lags, `max_lag + 1`.
+    pub fn lags(&self) -> usize {
+        self.cross.len()
+    }
+
+    /// Overlap `n(tau)`: the number of frame pairs summed at lag `tau`.
+    pub fn overlap(&self, tau: usize) -> u64 {
+        self.frames
+            .saturating_sub((self.windows as u64).saturating_mul(tau as u64))
+    }
+
+    /// `S_a(tau)`: the leading tip's air frames that have a partner at lag `tau`.
+    pub fn lead_sum(&self, tau: usize) -> Option<u64> {
+        Some(
+            self.lead_air
+                .saturating_sub(*self.lead_tail.get(tau)? as u64),
+        )
+    }
+
+    /// `S_b(tau)`: the trailing tip's air frames that have a partner at lag `tau`.
+    pub fn trail_sum(&self, tau: usize) -> Option<u64> {
+        Some(
+            self.trail_air
+                .saturating_sub(*self.trail_head.get(tau)? as u64),
+        )
+    }
+
+    /// `S_a'(tau)`: the leading tip's air frames that are the lagged factor at lag `tau`.
+    pub fn lead_lagged_sum(&self, tau: usize) -> Option<u64> {
+        Some(
+            self.lead_air
+                .saturating_sub(*self.lead_head.get(tau)? as u64),
+        )
+    }
+
+    /// The cross-correlation coefficient `R_ab(tau)`, if defined.
+    pub fn cross_coefficient(&self, tau: usize) -> Option<f32> {
+        pearson(
+            self.overlap(tau),
+            self.lead_sum(tau)?,
+            self.trail_sum(tau)?,
+            *self.cross.get(tau)?,
+        )
+    }
+
+    /// The leading tip's auto-correlation coefficient `R_aa(tau)`, if defined.
+    pub fn auto_coefficient(&self, tau: usize) -> Option<f32> {
+        pearson(
+            self.overlap(tau),
+            self.lead_sum(tau)?,
+            self.lead_lagged_sum(tau)?,
+            *self.auto.get(tau)?,
+        )
+    }
+
+    /// Add the sums of another window (lags beyond the shorter of the two are dropped).
+    pub fn merge(&mut self, other: &CorrelationSums<L>) {
+        self.frames = self.frames.saturating_add(other.frames);
+        self.windows = self.windows.saturating_add(other.windows);
+        self.lead_air = self.lead_air.saturating_add(other.lead_air);
+        self.trail_air = self.trail_air.saturating_add(other.trail_air);
+        let n = self.lags().min(other.lags());
+        for (mine, theirs) in [
+            (&mut self.cross, &other.cross),
+            (&mut self.auto, &other.auto),
+        ] {
+            mine.truncate(n);
+            for (a, b) in mine.iter_mut().zip(theirs.iter()) {
+                *a = a.saturating_add(*b);
+            }
+        }
+        for (mine, theirs) in [
+            (&mut self.lead_head, &other.lead_head),
+            (&mut self.lead_tail, &other.lead_tail),
+            (&mut self.trail_head, &other.trail_head),
+        ] {
+            mine.truncate(n);
+            for (a, b) in mine.iter_mut().zip(theirs.iter()) {
+                *a = a.saturating_add(*b);
+            }
+        }
+    }
+
+    /// The derived quantities of these sums (see the [module documentation](self)), and the
+    /// correlation flags they raise ([`Flags::NO_CORRELATION_PEAK`],
+    /// [`Flags::PEAK_AT_LAG_BOUNDARY`], [`Flags::TU_UNDEFINED`]); `min_peak` is the
+    /// smallest acceptable peak coefficient.
+    pub fn analyse(&self, min_peak: f32) -> (CorrelationResult, Flags) {
+        let lags = self.lags();
+        let mut rab = [f32::NAN; L];
+        let mut raa = [f32::NAN; L];
+        self.fill(&mut rab, false, false);
+        // The results need R_aa only up to its first zero crossing.
+        self.fill(&mut raa, true, true);
+        let rab = rab.get(..lags).unwrap_or(&[]);
+        let raa = raa.get(..lags).unwrap_or(&[]);
+        analyse_functions(rab, raa, min_peak)
+    }
+
+    /// Both coefficient functions at every lag (NaN where undefined) into `cross` and
+    /// `auto` (as many lags as fit): the same values as
+    /// [`cross_coefficient`](Self::cross_coefficient) and
+    /// [`auto_coefficient`](Self::auto_coefficient), bit for bit, computed in chunks so the
+    /// float stage vectorises.
+    pub fn coefficients(&self, cross: &mut [f32], auto: &mut [f32]) {
+        self.fill(cross, false, false);
+        self.fill(auto, true, false);
+    }
+
+    /// One coefficient function (`auto`: R_aa, else R_ab) into `out`, chunk by chunk;
+    /// with `stop_at_zero`, stop after the chunk in which it first falls to 0 or below (the
+    /// rest of `out` is left as it is).
+    fn fill(&self, out: &mut [f32], auto: bool, stop_at_zero: bool) {
+        const CHUNK: usize = 32;
+        let lags = self.lags().min(out.len());
+        let (prod, second, second_total) = if auto {
+            (&self.auto, &self.lead_head, self.lead_air)
+        } else {
+            (&self.cross, &self.trail_head, self.trail_air)
+        };
+        let mut first = 0;
+        while first < lags {
+            let len = (lags - first).min(CHUNK);
+            // Exact integer stage, lag by lag.
+            let mut parts = [[0f32; CHUNK]; 3];
+            for i in 0..len {
+                let tau = first + i;
+                let get32 = |c: &Vec<u32, L>| c.get(tau).copied().unwrap_or(0) as u64;
+                let n = self.overlap(tau);
+                let sa = self.lead_air.saturating_sub(get32(&self.lead_tail));
+                let sb = second_total.saturating_sub(get32(second));
+                let sab = prod.get(tau).copied().unwrap_or(0);
+                let (num, va, vb) =
+                    pearson_parts(n, sa, sb, sab).unwrap_or((f32::NAN, f32::NAN, f32::NAN));
+                let [pn, pa, pb] = &mut parts;
+                if let (Some(x), Some(y), Some(z)) = (pn.get_mut(i), pa.get_mut(i), pb.get_mut(i)) {
+                    (*x, *y, *z) = (num, va, vb);
+                }
+            }
+            // Float stage over the chunk.
+            let [pn, pa, pb] = &parts;
+            let chunk = out.get_mut(first..first + len).unwrap_or(&mut []);
+            for (o, ((&n, &va), &vb)) in chunk.iter_mut().zip(pn.iter().zip(pa).zip(pb)) {
+                *o = pearson_finish(n, va, vb);
+            }
+            if stop_at_zero && chunk.iter().any(|&r| r <= 0.0) {
+                return;
+            }
+            first += len;
+        }
+    }
+}
+
+/// The derived results of one probe's correlation over one window (lags in frames).
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+pub struct CorrelationResult {
+    /// Largest lag computed, frames (the probe's `max_lag`, capped at the chain's `L - 1`).
+    pub max_lag: u16,
+    /// Lag of the cross-correlation peak, frames, refined below the sample (the transit
+    /// time `T` is this over the sample rate; the velocity is tip spacing over `T`).
+    pub peak_lag_frames: Option<f32>,
+    /// Cross-correlation coefficient at the peak lag (the sampled maximum).
+    pub peak_coefficient: Option<f32>,
+    /// Second-highest local maximum over the highest (Keane and Adrian 1992); lower is
+    /// better, 0 when there is no other peak.
+    pub secondary_peak_ratio: Option<f32>,
+    /// `T05`: lag at which the leading tip's auto-correlation falls to 0.5, frames.
+    pub t05_frames: Option<f32>,
+    /// `tau05`: half-width at half maximum of the cross-correlation peak, frames.
+    pub tau05_frames: Option<f32>,
+    /// `Tu = 0.851 sqrt(tau05^2 - T05^2) / T` (assumes Gaussian velocity fluctuations).
+    pub turbulence_intensity: Option<f32>,
+    /// Auto-correlation integral time scale (to the first zero crossing), frames.
+    pub auto_integral_frames: Option<f32>,
+    /// Cross-correlation integral time scale (from the peak to the next zero crossing),
+    /// frames.
+    pub cross_integral_frames: Option<f32>,
+}
+
+impl CorrelationResult {
+    /// No result: every value `None`.
+    pub const fn none(max_lag: u16) -> Self {
+        CorrelationResult {
+            max_lag,
+            peak_lag_frames: None,
+            peak_coefficient: None,
+            secondary_peak_ratio: None,
+            t05_frames: None,
+            tau05_frames: None,
+            turbulence_intensity: None,
+            auto_integral_frames: None,
+            cross_integral_frames: None,
+        }
+    }
+}
+
+/// Pearson's coefficient of two binary sequences of `n` pairs with sums `sa`, `sb` and
+/// product sum `sab`: the numerator `n sab - sa sb` and the variance terms `sa (n - sa)`,
+/// `sb (n - sb)` exactly in integers (64-bit when they fit, else 128-bit: the same
+/// integers either way), each rounded once to f32, then `r = num / sqrt(va vb)` through a
+/// refined reciprocal square root.
+pub fn pearson(n: u64, sa: u64, sb: u64, sab: u64) -> Option<f32> {
+    let (num, va, vb) = pearson_parts(n, sa, sb, sab)?;
+    let r = pearson_finish(num, va, vb);
+    (!r.is_nan()).then_some(r)
+}
+
+/// The exact integer stage of [`pearson`], rounded to f32: numerator and the two
+/// variance terms (`None` if the sums are inconsistent or overflow).
+#[inline]
+fn pearson_parts(n: u64, sa: u64, sb: u64, sab: u64) -> Option<(f32, f32, f32)> {
+    if n < 2 || sa > n || sb > n || sab > sa.min(sb) {
+        return None;
+    }
+    if n <= 1 << 31 {
+        let (n, sa, sb, sab) = (n as i64, sa as i64, sb as i64, sab as i64);
+        Some((
+            (n * sab - sa * sb) as f32,
+            (sa * (n - sa)) as f32,
+            (sb * (n - sb)) as f32,
+        ))
+    } else {
+        let (n, sa, sb, sab) = (n as i128, sa as i128, sb as i128, sab as i128);
+        let num = n.checked_mul(sab)?.checked_sub(sa.checked_mul(sb)?)?;
+        let (va, vb) = (sa.checked_mul(n - sa)?, sb.checked_mul(n - sb)?);
+        Some((num as f32, va as f32, vb as f32))
+    }
+}
+
+/// The float stage of [`pearson`] (NaN when a variance is zero): `num / sqrt(va vb)`, with
+/// one reciprocal square root of the product when it is finite (always so for windows up to
+/// 2^31 frames), else one per factor. Equal variances (always so at lag 0 of the
+/// auto-correlation) take a plain division, so `R_aa(0)` is exactly 1.
+#[inline(always)]
+fn pearson_finish(num: f32, va: f32, vb: f32) -> f32 {
+    let prod = va * vb;
+    let r = if va == vb {
+        num / va
+    } else if prod.is_finite() {
+        num * rsqrt(prod)
+    } else {
+        num * rsqrt(va) * rsqrt(vb)
+    };
+    if va > 0.0 && vb > 0.0 {
+        r.clamp(-1.0, 1.0)
+    } else {
+        f32::NAN
+    }
+}
+
+/// Reciprocal square root to full f32 precision: micromath's estimate (within 3.5 %)
+/// refined by three Newton steps (multiplications only). Plain IEEE operations, so a
+/// device and a host agree bit for bit.
+#[inline]
+fn rsqrt(x: f32) -> f32 {
+    let mut y = F32Ext::invsqrt(x);
+    for _ in 0..3 {
+        y *= 1.5 - 0.5 * x * y * y;
+    }
+    y
+}
+
+/// Square root to full f32 precision (0 for non-positive input), as `x / sqrt(x)`.
+fn sqrt(x: f32) -> f32 {
+    if x.is_nan() || x <= 0.0 {
+        return 0.0;
+    }
+    x * rsqrt(x)
+}
+
+fn at(r: &[f32], i: usize) -> f32 {
+    r.get(i).copied().unwrap_or(f32::NAN)
+}
+
+/// Where `r` first falls to `level` walking from `from` by `step` (+1 or -1), linearly
+/// interpolated; `None` if it does not within the defined lags.
+fn crossing(r: &[f32], from: usize, level: f32, right: bool) -> Option<f32> {
+    let mut prev = at(r, from);
+    let mut i = from;
+    loop {
+        let next = if right {
+            i.checked_add(1).filter(|&j| j < r.len())?
+        } else {
+            i.checked_sub(1)?
+        };
+        let v = at(r, next);
+        if v.is_nan() || prev.is_nan() {
+            return None;
+        }
+        if v <= level {
+            let frac = if prev > v {
+                ((prev - level) / (prev - v)).clamp(0.0, 1.0)
+            } else {
+                0.0
+            };
+            let base = i as f32;
+            return Some(if right { base + frac } else { base - frac });
+        }
+        prev = v;
+        i = next;
+    }
+}
+
+/// Integral of `r` from lag `from` to its first zero crossing after it.
+fn integral_to_zero(r: &[f32], from: usize) -> Option<f32> {
+    let mut sum = 0.0f32;
+    let mut prev = at(r, from);
+    if prev.is_nan() || prev <= 0.0 {
+        return None;
+    }
+    let mut i = from + 1;
+    while i < r.len() {
+        let v = at(r, i);
+        if v.is_nan() {
+            return None;
+        }
+        if v <= 0.0 {
+            let frac = prev / (prev - v);
+            return Some(sum + 0.5 * prev * frac);
+        }
+        sum += 0.5 * (prev + v);
+        prev = v;
+        i += 1;
+    }
+    None
+}
+
+/// The derived quantities from the coefficient functions (NaN = undefined lag).
+fn analyse_functions(rab: &[f32], raa: &[f32], min_peak: f32) -> (CorrelationResult, Flags) {
+    let lags = rab.len();
+    let max_lag = lags.saturating_sub(1).min(u16::MAX as usize) as u16;
+    let mut out = CorrelationResult::none(max_lag);
+    let mut flags = Flags::NONE;
+
+    // T05 and the auto integral scale need only the auto-correlation.
+    out.t05_frames = crossing(raa, 0, 0.5, true);
+    out.auto_integral_frames = integral_to_zero(raa, 0);
+
+    let mut peak: Option<(usize, f32)> = None;
+    for (i, &v) in rab.iter().enumerate() {
+        if !v.is_nan() && peak.is_none_or(|(_, p)| v > p) {
+            peak = Some((i, v));
+        }
+    }
+    let Some((k, r0)) = peak else {
+        flags |= Flags::NO_CORRELATION_PEAK | Flags::TU_UNDEFINED;
+        return (out, flags);
+    };
+    out.peak_coefficient = Some(r0);
+    flags.set_if(Flags::NO_CORRELATION_PEAK, r0 < min_peak);
+
+    let (rm, rp) = (
+        k.checked_sub(1).map_or(f32::NAN, |j| at(rab, j)),
+        at(rab, k + 1),
+    );
+    let lag = if rm.is_nan() || rp.is_nan() {
+        flags |= Flags::PEAK_AT_LAG_BOUNDARY;
+        k as f32
+    } else {
+        let low = rm.min(rp);
+        let delta = if r0 > low {
+            ((rp - rm) / (2.0 * (r0 - low))).clamp(-0.5, 0.5)
+        } else {
+            0.0
+        };
+        k as f32 + delta
+    };
+    out.peak_lag_frames = Some(lag);
+
+    let (x_left, x_right) = if r0 > 0.0 {
+        (
+            crossing(rab, k, 0.5 * r0, false),
+            crossing(rab, k, 0.5 * r0, true),
+        )
+    } else {
+        (None, None)
+    };
+    out.tau05_frames = match (x_left, x_right) {
+        (Some(l), Some(r)) => Some(0.5 * (r - l)),
+        (None, Some(r)) => Some(r - lag),
+        _ => None,
+    };
+
+    if r0 > 0.0 {
+        let lo = x_left.unwrap_or(-1.0);
+        let hi = x_right.unwrap_or(lags as f32);
+        let mut second = 0.0f32;
+        for (i, &v) in rab.iter().enumerate() {
+            let x = i as f32;
+            if v.is_nan() || (x > lo && x < hi) {
+                continue;
+            }
+            let left = i.checked_sub(1).map_or(f32::NAN, |j| at(rab, j));
+            let right = at(rab, i + 1);
+            let is_max = (left.is_nan() || v >= left) && (right.is_nan() || v >= right);
+            if is_max && v > second {
+                second = v;
+            }
+        }
+        out.secondary_peak_ratio = Some((second / r0).min(1.0));
+    }
+
+    out.cross_integral_frames = integral_to_zero(rab, k);
+
+    out.turbulence_intensity = match (out.tau05_frames, out.t05_frames) {
+        (Some(w), Some(t05)) if lag > 0.0 && w >= t05 => {
+            Some(0.851 * sqrt(w * w - t05 * t05) / lag)
+        }
+        _ => None,
+    };
+    flags.set_if(Flags::TU_UNDEFINED, out.turbulence_intensity.is_none());
+    (out, flags)
+}
+
+/// Add the ramp `c * ramp(tau - p)` to the second-difference array `d` over lags
+/// `0..=max_lag` (see the module documentation).
+#[inline]
+fn add_ramp(d: &mut [i64], max_lag: usize, p: i64, c: i64) {
+    if p >= 0 {
+        if p < max_lag as i64 {
+            if let Some(x) = d.get_mut(p as usize + 1) {
+                *x = x.wrapping_add(c);
+            }
+        }
+    } else {
+        if let Some(x) = d.first_mut() {
+            *x = x.wrapping_sub(c.wrapping_mul(p));
+        }
+        if let Some(x) = d.get_mut(1) {
+            *x = x.wrapping_add(c.wrapping_mul(p.wrapping_add(1)));
+        }
+    }
+}
+
+/// The double prefix sum of `d`, written into `out` (clamped to the output type: exact
+/// sums are never negative and fit).
+fn double_prefix<T: TryFrom<i64> + Default, const L: usize>(
+    d: impl Iterator<Item = i64>,
+    out: &mut Vec<T, L>,
+) {
+    out.clear();
+    let (mut slope, mut value) = (0i64, 0i64);
+    for x in d {
+        slope = slope.wrapping_add(x);
+        value = value.wrapping_add(slope);
+        if out
+            .push(T::try_from(value.max(0)).unwrap_or_default())
+            .is_err()
+        {
+            break;
+        }
+    }
+}
+
+/// The last `L` edges of the leading tip, oldest first: `(t << 1) | rising`, `t` from the
+/// window start.
+#[derive(Clone, Debug)]
+struct Ring<const L: usize> {
+    edges: [u64; L],
+    next: usize,
+    len: usize,
+}
+
+impl<const L: usize> Ring<L> {
+    fn clear(&mut self) {
+        self.next = 0;
+        self.len = 0;
+    }
+
+    fn push(&mut self, t: i64, rising: bool) {
+        if let Some(slot) = self.edges.get_mut(self.next) {
+            *slot = ((t.max(0) as u64) << 1) | rising as u64;
+        }
+        self.next = if self.next + 1 >= L { 0 } else { self.next + 1 };
+        self.len = (self.len + 1).min(L);
+    }
+
+    /// Visit the edges `(t, e)`, newest first, until `f` returns false.
+    #[inline]
+    fn for_each_recent(&self, mut f: impl FnMut(i64, i64) -> bool) {
+        let mut idx = self.next;
+        for _ in 0..self.len {
+            idx = if idx == 0 { L - 1 } else { idx - 1 };
+            let Some(&v) = self.edges.get(idx) else { break };
+            let e = if v & 1 == 1 { 1 } else { -1 };
+            if !f((v >> 1) as i64, e) {
+                break;
+            }
+        }
+    }
+}
+
+/// Streaming correlation of one dual-tip probe, fed with the tips' interfaces.
+///
+/// Drive it as the chain does: for each run of at most [`MAX_RUN_FRAMES`] frames,
+/// [`begin_run`](Self::begin_run), the leading tip's edges through
+/// [`lead`](Self::lead), the trailing tip's edges of the same frames through
+/// [`trail`](Self::trail), then [`end_run`](Self::end_run); [`close`](Self::close) at a
+/// window end. `L` is the number of lag slots (the largest lag is `L - 1`).
+#[derive(Clone, Debug)]
+pub struct Correlator<const L: usize> {
+    max_lag: usize,
+    start: u64,
+    run_start: u64,
+    /// Second differences of the cross and auto sums over the lags.
+    cross: [i64; L],
+    auto: [i64; L],
+    /// Second differences of the air counts among the first frames of the window.
+    lead_head: [i32; L],
+    trail_head: [i32; L],
+    ring: Ring<L>,
+    /// Leading-tip edges of the current run not yet merged: offset from the run start,
+    /// with [`RISING_BIT`].
+    pending: [u16; MAX_RUN_FRAMES],
+    pending_len: usize,
+    pending_pos: usize,
+    lead_air: bool,
+    trail_air: bool,
+    /// Running `sum e` and `sum e t` over the merged edges of each tip.
+    lead_e: i64,
+    lead_q: i64,
+    trail_e: i64,
+    trail_q: i64,
+    overflow: bool,
+}
+
+impl<const L: usize> Correlator<L> {
+    /// A correlator over lags `0..=max_lag` (capped at `L - 1`), starting at frame `start`
+    /// with the given phases of the two tips.
+    pub fn new(max_lag: u16, start: u64, lead_air: bool, trail_air: bool) -> Self {
+        const { assert!(L >= 2 && L <= 1 << 16, "L must lie in 2..=65536") };
+        let mut c = Correlator {
+            max_lag: (max_lag as usize).min(L - 1),
+            start,
+            run_start: start,
+            cross: [0; L],
+            auto: [0; L],
+            lead_head: [0; L],
+            trail_head: [0; L],
+            ring: Ring {
+                edges: [0; L],
+                next: 0,
+                len: 0,
+            },
+            pending: [0; MAX_RUN_FRAMES],
+            pending_len: 0,
+            pending_pos: 0,
+            lead_air: false,
+            trail_air: false,
+            lead_e: 0,
+            lead_q: 0,
+            trail_e: 0,
+            trail_q: 0,
+            overflow: false,
+        };
+        c.open(start, lead_air, trail_air);
+        c
+    }
+
+    /// The largest lag, frames.
+    pub fn max_lag(&self) -> u16 {
+        self.max_lag as u16
+    }
+
+    /// Start a run of frames at absolute frame `first`.
+    pub fn begin_run(&mut self, first: u64) {
+        self.drain_pending(u64::MAX);
+        self.run_start = first;
+    }
+
+    /// The sink for the leading tip's edges of the current run.
+    pub fn lead(&mut self) -> LeadEdges<'_, L> {
+        LeadEdges(self)
+    }
+
+    /// The sink for the trailing tip's edges of the current run.
+    pub fn trail(&mut self) -> TrailEdges<'_, L> {
+        TrailEdges(self)
+    }
+
+    /// End the run: merge the leading tip's remaining edges.
+    pub fn end_run(&mut self) {
+        self.drain_pending(u64::MAX);
+    }
+
+    /// Close the window at absolute frame `end` (exclusive): return its sums and start the
+    /// next window there. Raises [`Flags::CORRELATION_OVERFLOW`] in `flags` if edges were
+    /// lost.
+    pub fn close(&mut self, end: u64, flags: &mut Flags) -> CorrelationSums<L> {
+        self.drain_pending(u64::MAX);
+        let t_end = self.rel(end);
+        let (lead_air, trail_air) = (self.lead_air, self.trail_air);
+        // Clip intervals open at the window end.
+        if lead_air {
+            self.lead_edge(t_end, false);
+        }
+        if trail_air {
+            self.trail_edge(t_end, false);
+        }
+        let lags = self.max_lag + 1;
+        let mut sums = CorrelationSums::empty(0);
+        sums.frames = end.saturating_sub(self.start);
+        sums.windows = 1;
+        // sum e t over a tip's edges is minus its air time.
+        sums.lead_air = self.lead_q.wrapping_neg().max(0) as u64;
+        sums.trail_air = self.trail_q.wrapping_neg().max(0) as u64;
+        double_prefix(self.cross.iter().take(lags).copied(), &mut sums.cross);
+        double_prefix(self.auto.iter().take(lags).copied(), &mut sums.auto);
+        double_prefix(
+            self.lead_head.iter().take(lags).map(|&x| x as i64),
+            &mut sums.lead_head,
+        );
+        double_prefix(
+            self.trail_head.iter().take(lags).map(|&x| x as i64),
+            &mut sums.trail_head,
+        );
+        // Tail counts: an edge at t adds -e ramp(tau - (N - t)); the ring holds every edge
+        // of the last max_lag frames.
+        let mut tail = [0i64; L];
+        let m = self.max_lag;
+        self.ring.for_each_recent(|t, e| {
+            let p = t_end.wrapping_sub(t);
+            if p < 0 || p >= m as i64 {
+                return p < 0;
+            }
+            add_ramp(&mut tail, m, p, -e);
+            true
+        });
+        double_prefix(tail.iter().take(lags).copied(), &mut sums.lead_tail);
+        if self.overflow {
+            *flags |= Flags::CORRELATION_OVERFLOW;
+        }
+        self.reset(end);
+        self.open(end, lead_air, trail_air);
+        sums
+    }
+
+    fn reset(&mut self, start: u64) {
+        self.start = start;
+        self.run_start = start;
+        self.cross = [0; L];
+        self.auto = [0; L];
+        self.lead_head = [0; L];
+        self.trail_head = [0; L];
+        self.ring.clear();
+        self.pending_len = 0;
+        self.pending_pos = 0;
+        self.lead_air = false;
+        self.trail_air = false;
+        self.lead_e = 0;
+        self.lead_q = 0;
+        self.trail_e = 0;
+        self.trail_q = 0;
+        self.overflow = false;
+    }
+
+    /// Open a window at `start`: clip intervals already open there.
+    fn open(&mut self, start: u64, lead_air: bool, trail_air: bool) {
+        self.start = start;
+        self.run_start = start;
+        if lead_air {
+            self.lead_edge(0, true);
+        }
+        if trail_air {
+            self.trail_edge(0, true);
+        }
+    }
+
+    fn rel(&self, frame: u64) -> i64 {
+        frame.saturating_sub(self.start).min(i64::MAX as u64 >> 1) as i64
+    }
+
+    fn lead_pending(&mut self, edge: Edge) {
+        let off = edge.frame.wrapping_sub(self.run_start);
+        let slot = self.pending.get_mut(self.pending_len);
+        match slot {
+            Some(s) if edge.frame >= self.run_start && off < RISING_BIT as u64 => {
+                *s = off as u16 | if edge.to_air { RISING_BIT } else { 0 };
+                self.pending_len += 1;
+            }
+            _ => {
+                // Cannot happen through the chain: merge out of order, flagged.
+                self.overflow = true;
+                self.drain_pending(u64::MAX);
+                let t = self.rel(edge.frame);
+                self.lead_edge(t, edge.to_air);
+            }
+        }
+    }
+
+    /// Merge the pending leading-tip edges at or before absolute frame `upto`.
+    fn drain_pending(&mut self, upto: u64) {
+        while self.pending_pos < self.pending_len {
+            let Some(&v) = self.pending.get(self.pending_pos) else {
+                break;
+            };
+            let frame = self.run_start.saturating_add((v & !RISING_BIT) as u64);
+            if frame > upto {
+                return;
+            }
+            self.pending_pos += 1;
+            let t = self.rel(frame);
+            self.lead_edge(t, v & RISING_BIT != 0);
+        }
+        self.pending_len = 0;
+        self.pending_pos = 0;
+    }
+
+    /// A merged edge of the leading tip at window time `t`.
+    fn lead_edge(&mut self, t: i64, rising: bool) {
+        let e: i64 = if rising { 1 } else { -1 };
+        let m = self.max_lag;
+        // Auto, this edge second: earlier edges of the last max_lag frames, and itself.
+        let auto = &mut self.auto;
+        add_ramp(auto, m, 0, -1);
+        self.ring.for_each_recent(|ti, ei| {
+            let p = t.wrapping_sub(ti);
+            if p >= m as i64 {
+                return false;
+            }
+            add_ramp(auto, m, p, -ei * e);
+            true
+        });
+        // Auto, this edge first, every earlier edge second (p < 0): a straight line.
+        add_line(auto, t, e, self.lead_e, self.lead_q);
+        // Cross, this edge first, every earlier trailing edge second.
+        add_line(&mut self.cross, t, e, self.trail_e, self.trail_q);
+        add_head(&mut self.lead_head, m, t, e);
+        self.lead_e = self.lead_e.wrapping_add(e);
+        self.lead_q = self.lead_q.wrapping_add(e.wrapping_mul(t));
+        self.lead_air = rising;
+        self.ring.push(t, rising);
+    }
+
+    /// An edge of the trailing tip at window time `t` (every leading edge up to `t` merged).
+    fn trail_edge(&mut self, t: i64, rising: bool) {
+        let e: i64 = if rising { 1 } else { -1 };
+        let m = self.max_lag;
+        let cross = &mut self.cross;
+        self.ring.for_each_recent(|ti, ei| {
+            let p = t.wrapping_sub(ti);
+            if p >= m as i64 {
+                return false;
+            }
+            add_ramp(cross, m, p, -ei * e);
+            true
+        });
+        add_head(&mut self.trail_head, m, t, e);
+        self.trail_e = self.trail_e.wrapping_add(e);
+        self.trail_q = self.trail_q.wrapping_add(e.wrapping_mul(t));
+        self.trail_air = rising;
+    }
+}
+
+/// The pairs of an edge `(t, e)` (first factor) with all earlier edges of the other factor
+/// (running sums `se = sum e_j`, `sq = sum e_j t_j`): `p = t_j - t < 0`, so each adds the
+/// line `c (tau - p)`, `c = -e e_j`.
+#[inline]
+fn add_line(d: &mut [i64], t: i64, e: i64, se: i64, sq: i64) {
+    // D[0] += sum -c p = e (sq - t se);  D[1] += sum c (1 + p) = -e (se (1 - t) + sq).
+    if let Some(x) = d.first_mut() {
+        *x = x.wrapping_add(e.wrapping_mul(sq.wrapping_sub(t.wrapping_mul(se))));
+    }
+    if let Some(x) = d.get_mut(1) {
+        let s = se.wrapping_mul(1i64.wrapping_sub(t)).wrapping_add(sq);
+        *x = x.wrapping_sub(e.wrapping_mul(s));
+    }
+}
+
+/// An edge `(t, e)` adds `e ramp(tau - t)` to the air count of the first `tau` frames.
+#[inline]
+fn add_head(d: &mut [i32], max_lag: usize, t: i64, e: i64) {
+    if (0..max_lag as i64).contains(&t) {
+        if let Some(x) = d.get_mut(t as usize + 1) {
+            *x = x.wrapping_add(e as i32);
+        }
+    }
+}
+
+/// The leading tip's edge sink of a [`Correlator`].
+pub struct LeadEdges<'a, const L: usize>(&'a mut Correlator<L>);
+
+impl<const L: usize> EdgeSink for LeadEdges<'_, L> {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        self.0.lead_pending(edge);
+    }
+}
+
+/// The trailing tip's edge sink of a [`Correlator`].
+pub struct TrailEdges<'a, const L: usize>(&'a mut Correlator<L>);
+
+impl<const L: usize> EdgeSink for TrailEdges<'_, L> {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        let c = &mut *self.0;
+        c.drain_pending(edge.frame);
+        let t = c.rel(edge.frame);
+        c.trail_edge(t, edge.to_air);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Direct sums over samples (definition in the module documentation).
+    fn direct(a: &[bool], b: &[bool], lags: usize) -> (std::vec::Vec<u64>, std::vec::Vec<u64>) {
+        let n = a.len();
+        let mut cross = std::vec![0u64; lags];
+        let mut auto = std::vec![0u64; lags];
+        for tau in 0..lags {
+            for t in 0..n.saturating_sub(tau) {
+                cross[tau] += (a[t] & b[t + tau]) as u64;
+                auto[tau] += (a[t] & a[t + tau]) as u64;
+            }
+        }
+        (cross, auto)
+    }
+
+    fn edges(x: &[bool], first: u64, start_air: bool) -> std::vec::Vec<Edge> {
+        let mut out = std::vec::Vec::new();
+        let mut prev = start_air;
+        for (i, &v) in x.iter().enumerate() {
+            if v != prev {
+                out.push(Edge {
+                    frame: first + i as u64,
+                    to_air: v,
+                });
+            }
+            prev = v;
+        }
+        out
+    }
+
+    extern crate std;
+
+    #[test]
+    fn sums_equal_direct_sums_on_a_small_case() {
+        // A hand-made case with intervals open at both window edges.
+        let a: std::vec::Vec<bool> = "1110011000111100000111011"
+            .bytes()
+            .map(|c| c == b'1')
+            .collect();
+        let b: std::vec::Vec<bool> = "1011100110001111000001110"
+            .bytes()
+            .map(|c| c == b'1')
+            .collect();
+        let mut c = Correlator::<8>::new(7, 100, true, true);
+        c.begin_run(100);
+        for e in edges(&a, 100, true) {
+            c.lead().edge(e);
+        }
+        for e in edges(&b, 100, true) {
+            c.trail().edge(e);
+        }
+        c.end_run();
+        let mut flags = Flags::NONE;
+        let s = c.close(100 + a.len() as u64, &mut flags);
+        let (cross, auto) = direct(&a, &b, 8);
+        assert_eq!(s.cross.as_slice(), cross.as_slice());
+        assert_eq!(s.auto.as_slice(), auto.as_slice());
+        assert_eq!(s.lead_air, a.iter().filter(|&&x| x).count() as u64);
+        assert_eq!(s.trail_air, b.iter().filter(|&&x| x).count() as u64);
+        for tau in 0..8 {
+            let n = a.len() - tau;
+            let sa: u64 = a[..n].iter().map(|&x| x as u64).sum();
+            let sb: u64 = b[tau..].iter().map(|&x| x as u64).sum();
+            let sa2: u64 = a[tau..].iter().map(|&x| x as u64).sum();
+            assert_eq!(s.lead_sum(tau), Some(sa), "tau {tau}");
+            assert_eq!(s.trail_sum(tau), Some(sb), "tau {tau}");
+            assert_eq!(s.lead_lagged_sum(tau), Some(sa2), "tau {tau}");
+        }
+        assert!(flags.is_empty());
+    }
+
+    #[test]
+    fn sqrt_is_accurate() {
+        for x in [1e-6f32, 0.5, 2.0, 3.0, 1e6, 1.234e20, 7.7e30] {
+            let r = sqrt(x);
+            assert!(((r * r - x) / x).abs() < 3e-7, "{x}: {r}");
+        }
+        assert_eq!(sqrt(0.0), 0.0);
+        assert_eq!(sqrt(-1.0), 0.0);
+    }
+}
