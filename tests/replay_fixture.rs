@@ -69,12 +69,26 @@ fn steady_fixture_matches_its_truth() {
 /// order (the parallel replay must not change results).
 #[test]
 fn parallel_replay_equals_one_chain() {
+    // Host chains are built on the stack before they are boxed: give them room.
+    std::thread::Builder::new()
+        .stack_size(256 << 20)
+        .spawn(parallel_replay_body)
+        .unwrap()
+        .join()
+        .unwrap();
+}
+
+fn parallel_replay_body() {
     use frothline_host::replay::{drive, drive_parallel, open_rig};
     use frothline_host::window_spec::WindowSpec;
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/steady-b2");
     for window in [WindowSpec::Whole, WindowSpec::Duration(0.07)] {
-        let (mut cap, _, mut chain) =
-            open_rig(&root.join("capture.wav"), &root.join("layout.toml"), window).unwrap();
+        let (mut cap, _, mut chain) = open_rig(
+            &root.join("capture.wav"),
+            &root.join("layout.toml"),
+            window.clone(),
+        )
+        .unwrap();
         let bar = indicatif::ProgressBar::hidden();
         let mut one = Vec::new();
         drive(&mut cap, &mut chain, &bar, |r| {
@@ -83,8 +97,12 @@ fn parallel_replay_equals_one_chain() {
         })
         .unwrap();
         for workers in [2, 3] {
-            let (mut cap, _, chain) =
-                open_rig(&root.join("capture.wav"), &root.join("layout.toml"), window).unwrap();
+            let (mut cap, _, chain) = open_rig(
+                &root.join("capture.wav"),
+                &root.join("layout.toml"),
+                window.clone(),
+            )
+            .unwrap();
             let mut many = Vec::new();
             drive_parallel(&mut cap, chain, workers, &bar, |r| {
                 many.push(r);

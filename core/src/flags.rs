@@ -47,9 +47,18 @@ impl Flags {
     /// only when a [`Correlator`](crate::Correlator) is driven directly with runs longer
     /// than [`MAX_RUN_FRAMES`](crate::correlation::MAX_RUN_FRAMES).
     pub const CORRELATION_OVERFLOW: Flags = Flags(1 << 10);
+    /// Transient flows ([`WindowPolicy::AfterFront`](crate::WindowPolicy::AfterFront)): the
+    /// record covers the time before the station's front arrival (from the start of the
+    /// record to the arrival, or to the end of a record the front never reached). The tips
+    /// sat in the phase before the front; its statistics describe the dry (or wet) tips.
+    pub const PRE_FRONT: Flags = Flags(1 << 11);
+    /// Transient flows: the first window after the front starts later than the arrival,
+    /// because the arrival was confirmed more than the chain's delay line after it happened
+    /// (see [`crate::station`]); `since_front` of the window says by how much.
+    pub const LATE_FRONT_START: Flags = Flags(1 << 12);
 
     /// Names of the flags, in bit order, as written into CSV files.
-    pub const NAMES: [(Flags, &'static str); 11] = [
+    pub const NAMES: [(Flags, &'static str); 13] = [
         (Flags::STUCK, "stuck"),
         (Flags::LEVELS_NOT_LEARNT, "levels_not_learnt"),
         (Flags::SATURATED, "saturated"),
@@ -61,6 +70,8 @@ impl Flags {
         (Flags::FEW_BUBBLES, "few_bubbles"),
         (Flags::TU_UNDEFINED, "tu_undefined"),
         (Flags::CORRELATION_OVERFLOW, "correlation_overflow"),
+        (Flags::PRE_FRONT, "pre_front"),
+        (Flags::LATE_FRONT_START, "late_front_start"),
     ];
 
     /// True if every bit of `other` is set in `self`.

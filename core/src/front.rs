@@ -110,6 +110,12 @@ pub struct TipFront {
     /// Changes out of the old phase before the arrival that were not sustained (stray
     /// droplets or bubbles); counted once the front is confirmed.
     pub false_starts: u32,
+    /// The number of frames the detector must have seen to confirm the front (a property of
+    /// the samples, not of how they were split into runs): `leave + hold_frames` for the
+    /// hold rule (the frame at which the excursion had held long enough), one past the
+    /// confirming interface for the burst rule. `confirmed_at - arrival` is the
+    /// confirmation delay that [`crate::station`] bounds with its delay line.
+    pub confirmed_at: Option<u64>,
 }
 
 /// The front detector of one tip: feed it the tip's edges ([`EdgeSink`]) and, after each
@@ -193,15 +199,17 @@ impl FrontDetector {
         match self.leave {
             Some(l) if frame.saturating_sub(l) >= self.cfg.hold_frames as u64 => {
                 // The current change is the last one begun.
-                self.confirm(self.onset.unwrap_or(l), FrontRule::Hold, 1);
+                let at = l.saturating_add(self.cfg.hold_frames as u64);
+                self.confirm(self.onset.unwrap_or(l), FrontRule::Hold, 1, at);
                 true
             }
             _ => false,
         }
     }
 
-    fn confirm(&mut self, arrival: u64, rule: FrontRule, changes_from_arrival: u32) {
+    fn confirm(&mut self, arrival: u64, rule: FrontRule, changes_from_arrival: u32, at: u64) {
         self.summary.arrival = Some(arrival);
+        self.summary.confirmed_at = Some(at.max(arrival));
         self.summary.rule = Some(rule);
         self.summary.false_starts = self.onsets.saturating_sub(changes_from_arrival);
     }
@@ -243,7 +251,7 @@ impl FrontDetector {
                 last = Some(o);
             }
         }
-        self.confirm(arrival, FrontRule::Burst, changes);
+        self.confirm(arrival, FrontRule::Burst, changes, frame.saturating_add(1));
     }
 }
 

@@ -14,6 +14,13 @@
 //!   other probes of the chain are cut at the same frames (one chain-wide window; windows of
 //!   different ends per probe would break the shared-window records). `max_frames` caps a
 //!   window whose reference tip stops seeing bubbles.
+//! - [`WindowPolicy::AfterFront`] counts windows from the arrival of a surge front at the
+//!   chain's station (transient flows; needs a [`crate::station::StationConfig`]): one
+//!   pre-front record from the start of the record to the arrival (flagged
+//!   [`Flags::PRE_FRONT`](crate::Flags::PRE_FRONT)), then consecutive windows of `frames`
+//!   frames, the first one starting exactly at the arrival frame. The arrival is confirmed
+//!   some frames after it happened; the chain's delay line (see [`crate::station`]) lets
+//!   the statistics start at the arrival all the same.
 
 /// How the chain cuts the stream into analysis windows.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -36,6 +43,13 @@ pub enum WindowPolicy {
         /// Longest window, frames (`None`: no cap). A capped window holds fewer bubbles.
         max_frames: Option<u32>,
     },
+    /// Windows of `frames` frames counted from the station's front arrival, after one
+    /// pre-front record (see the module documentation). The chain must have a station
+    /// configuration ([`crate::ChainConfig::station`]).
+    AfterFront {
+        /// Window length, frames (at least 1).
+        frames: u32,
+    },
 }
 
 impl WindowPolicy {
@@ -47,16 +61,20 @@ impl WindowPolicy {
             WindowPolicy::Bubbles {
                 count, max_frames, ..
             } => count > 0 && !matches!(max_frames, Some(0)),
+            WindowPolicy::AfterFront { frames } => frames > 0,
         }
     }
 
     /// The end (exclusive frame index) of a window that starts at `start`, if known in
     /// advance: the fixed length, or the cap of a bubble-count window (which may close
-    /// earlier).
+    /// earlier). For [`WindowPolicy::AfterFront`] this is the end of a window after the
+    /// front (the chain ends the pre-front record at the arrival itself).
     pub const fn end_of_window_from(&self, start: u64) -> Option<u64> {
         match *self {
             WindowPolicy::Whole => None,
-            WindowPolicy::Frames(n) => Some(start.saturating_add(n as u64)),
+            WindowPolicy::Frames(n) | WindowPolicy::AfterFront { frames: n } => {
+                Some(start.saturating_add(n as u64))
+            }
             WindowPolicy::Bubbles {
                 max_frames: Some(n),
                 ..

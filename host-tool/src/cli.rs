@@ -24,6 +24,18 @@ pub enum Command {
     Replay(crate::replay::ReplayArgs),
     /// Write a synthetic capture (WAV + layout + truth) from a scenario.
     Synth(crate::synth::SynthArgs),
+    /// List the serial ports of this machine.
+    Ports,
+    /// Receive live results from devices on serial ports: dashboard, archive, CSV.
+    Watch(crate::watch::WatchArgs),
+    /// The live link without hardware: a simulated device on a pseudo-terminal, watched.
+    Demo(crate::demo::DemoArgs),
+    /// Run a simulated probe device on a pseudo-terminal or a serial port.
+    Simulate(crate::demo::SimulateArgs),
+    /// Decode a session archive into CSV files and report link gaps and errors.
+    Unpack(crate::unpack::UnpackArgs),
+    /// Figures (SVG, PNG) and a one-page HTML summary of a replay or archive folder.
+    Report(crate::report::ReportArgs),
 }
 
 /// Parse `args` (including the program name) and run the command.
@@ -41,12 +53,48 @@ where
         }
         Err(e) => return Err(HostError::Usage(e.render().to_string())),
     };
-    match cli.command {
+    // Host chains (16 probes, 1024 correlation lags) are about a megabyte and are built on
+    // the stack before they are boxed: run the command on a thread with room for that,
+    // whatever thread called us (tests run on small-stack threads).
+    std::thread::Builder::new()
+        .name("frothline".into())
+        .stack_size(COMMAND_STACK)
+        .spawn(move || dispatch(cli.command))
+        .map_err(|e| HostError::Usage(format!("cannot start the command thread: {e}")))?
+        .join()
+        .unwrap_or_else(|_| {
+            Err(HostError::Usage(
+                "the command failed unexpectedly (internal error)".into(),
+            ))
+        })
+}
+
+/// Stack of the command thread (virtual: only what is touched is committed).
+pub const COMMAND_STACK: usize = 256 << 20;
+
+fn dispatch(command: Command) -> Result<(), HostError> {
+    match command {
         Command::Replay(a) => crate::replay::run(&a).map(|_| ()),
         Command::Synth(a) => {
             let s = crate::synth::run(&a)?;
             println!("{s}");
             Ok(())
         }
+        Command::Ports => {
+            let ports = crate::ports::list()
+                .map_err(|e| HostError::Usage(format!("cannot list serial ports: {e}")))?;
+            if ports.is_empty() {
+                println!("no serial ports found");
+            }
+            for p in ports {
+                println!("{p}");
+            }
+            Ok(())
+        }
+        Command::Watch(a) => crate::watch::run(&a).map(|_| ()),
+        Command::Demo(a) => crate::demo::run(&a).map(|_| ()),
+        Command::Simulate(a) => crate::demo::simulate(&a).map(|_| ()),
+        Command::Unpack(a) => crate::unpack::run(&a).map(|_| ()),
+        Command::Report(a) => crate::report::run(&a).map(|_| ()).map_err(HostError::from),
     }
 }

@@ -1,14 +1,21 @@
-//! The live terminal dashboard (ratatui): probe rows, a vertical void-fraction profile, a
-//! scrolling history and link health, drawn from a [`LiveState`].
+//! The live terminal dashboard (ratatui), drawn from a [`LiveState`]:
+//!
+//! ```text
+//! links and devices   status (UP / DOWN / OPENING / QUIET), frames/s, bytes/s and share of
+//!                     the link, age of the last frame, lost frames, CRC failures; per device
+//!                     firmware, sample rate, window, run, device-reported health
+//! probes (top first)  y, C, F, V, Tu, median chord, correlation peak, bubbles, flags
+//! C profile           a bar per probe at its elevation (the rows keep the elevation order)
+//! events | windows    command replies, link events, gaps; one line per analysis window
+//! keys, safety line
+//! ```
 
-use crate::live::{LiveState, ProbeRow};
+use crate::live::{LinkHealth, LiveState, ProbeRow};
+use frothline_core::Flags;
 use ratatui::layout::{Constraint, Direction, Layout, Rect};
 use ratatui::style::{Color, Modifier, Style};
-use ratatui::symbols::Marker;
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{
-    Axis, Block, Borders, Cell, Chart, Dataset, GraphType, Paragraph, Row, Table,
-};
+use ratatui::widgets::{Block, Borders, Cell, Paragraph, Row, Table};
 use ratatui::Frame;
 use std::time::Instant;
 
@@ -18,95 +25,233 @@ pub const SAFETY_LINE: &str =
 
 const ACCENT: Color = Color::Cyan;
 const WARN: Color = Color::Yellow;
+const BAD: Color = Color::Red;
+const GOOD: Color = Color::Green;
+const DIM: Color = Color::DarkGray;
 
-fn cell(v: Option<f64>, prec: usize) -> String {
+fn num(v: Option<f64>, width: usize, prec: usize) -> String {
     match v {
-        Some(v) if v.is_finite() => format!("{v:.prec$}"),
-        _ => "-".into(),
+        Some(v) if v.is_finite() => format!("{v:>width$.prec$}"),
+        _ => format!("{:>width$}", "-"),
+    }
+}
+
+fn title(s: &str) -> Span<'_> {
+    Span::styled(s, Style::default().fg(ACCENT).add_modifier(Modifier::BOLD))
+}
+
+/// Short words for the flags, for the probe table (the CSV files carry the full names).
+pub fn short_flag(name: &str) -> &str {
+    match name {
+        "stuck" => "stuck",
+        "levels_not_learnt" => "learning",
+        "saturated" => "saturated",
+        "short_chords" => "short-chords",
+        "partial_window" => "partial",
+        "trailing_stuck" => "trail-stuck",
+        "no_correlation_peak" => "no-peak",
+        "peak_at_lag_boundary" => "lag-edge",
+        "few_bubbles" => "few-bubbles",
+        "tu_undefined" => "no-Tu",
+        "correlation_overflow" => "overflow",
+        other => other,
+    }
+}
+
+fn flag_words(f: Flags) -> String {
+    let v: Vec<&str> = f.names().map(short_flag).collect();
+    if v.is_empty() {
+        "ok".into()
+    } else {
+        v.join(" ")
+    }
+}
+
+fn bytes_text(b: f64) -> String {
+    if b >= 1e6 {
+        format!("{:.2} MB", b / 1e6)
+    } else if b >= 1e3 {
+        format!("{:.2} kB", b / 1e3)
+    } else {
+        format!("{b:.0} B")
     }
 }
 
 /// Draw the whole dashboard.
 pub fn draw(f: &mut Frame, state: &LiveState, now: Instant) {
     let area = f.area();
+    let head = (2 + 2 * state.links.len() + 2 * state.devices.len()).clamp(4, 14) as u16;
     let rows = Layout::default()
         .direction(Direction::Vertical)
         .constraints([
-            Constraint::Length(3),
-            Constraint::Min(8),
-            Constraint::Length(8),
+            Constraint::Length(head),
+            Constraint::Min(7),
+            Constraint::Length(9),
+            Constraint::Length(1),
             Constraint::Length(1),
         ])
         .split(area);
-    draw_link(f, rows[0], state, now);
+    draw_links(f, rows[0], state, now);
+    let profile_w = (area.width / 3).clamp(28, 44);
     let mid = Layout::default()
         .direction(Direction::Horizontal)
-        .constraints([Constraint::Percentage(64), Constraint::Percentage(36)])
+        .constraints([Constraint::Min(40), Constraint::Length(profile_w)])
         .split(rows[1]);
     draw_probes(f, mid[0], state);
     draw_profile(f, mid[1], state);
-    draw_history(f, rows[2], state);
+    let bottom = Layout::default()
+        .direction(Direction::Horizontal)
+        .constraints([Constraint::Percentage(58), Constraint::Percentage(42)])
+        .split(rows[2]);
+    draw_history(f, bottom[0], state);
+    draw_recent(f, bottom[1], state);
+    let keys = if state.keys_help.is_empty() {
+        String::new()
+    } else {
+        format!(" keys: {}", state.keys_help)
+    };
+    f.render_widget(
+        Paragraph::new(Line::from(Span::styled(keys, Style::default().fg(ACCENT)))),
+        rows[3],
+    );
     f.render_widget(
         Paragraph::new(Line::from(Span::styled(
-            SAFETY_LINE,
-            Style::default().fg(Color::DarkGray),
+            format!(" {SAFETY_LINE}"),
+            Style::default().fg(DIM),
         ))),
-        rows[3],
+        rows[4],
     );
 }
 
-fn draw_link(f: &mut Frame, area: Rect, state: &LiveState, now: Instant) {
-    let mut spans = Vec::new();
+fn link_status(l: &LinkHealth, now: Instant) -> Span<'static> {
+    let bold = Modifier::BOLD;
+    if !l.ever_opened {
+        Span::styled("OPENING", Style::default().fg(WARN).add_modifier(bold))
+    } else if !l.connected {
+        Span::styled("DOWN   ", Style::default().fg(BAD).add_modifier(bold))
+    } else if l
+        .age_s(now)
+        .is_none_or(|a| a > crate::live::QUIET_AFTER.as_secs_f64())
+    {
+        Span::styled("QUIET  ", Style::default().fg(WARN).add_modifier(bold))
+    } else {
+        Span::styled("UP     ", Style::default().fg(GOOD).add_modifier(bold))
+    }
+}
+
+fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant) {
+    let mut lines = Vec::new();
+    let name_w = state
+        .links
+        .iter()
+        .map(|l| l.port.chars().count())
+        .max()
+        .unwrap_or(4);
     for l in &state.links {
-        let age = l
-            .age_s(now)
-            .map_or("never".to_string(), |a| format!("{a:.1} s ago"));
-        let status = if l.connected {
-            Span::styled("up", Style::default().fg(Color::Green))
-        } else {
-            Span::styled(
-                "DOWN",
-                Style::default().fg(Color::Red).add_modifier(Modifier::BOLD),
-            )
+        let age = match l.age_s(now) {
+            Some(a) => format!("last frame {a:>5.1} s ago"),
+            None => "no frame yet".to_string(),
         };
-        spans.push(Span::styled(
-            format!("{} ", l.port),
-            Style::default().add_modifier(Modifier::BOLD),
-        ));
-        spans.push(status);
-        let lost_style = if l.lost + l.crc_failures > 0 {
+        let mut first = vec![
+            Span::styled(
+                format!("{:<name_w$}  ", l.port),
+                Style::default().add_modifier(Modifier::BOLD),
+            ),
+            link_status(l, now),
+        ];
+        if l.ever_opened && !l.connected {
+            first.push(Span::styled(
+                format!(" port lost, reopening every second  {age}"),
+                Style::default().fg(BAD),
+            ));
+        } else {
+            let load = l.load(now).map_or(String::new(), |x| {
+                format!(" ({:>4.1} % of {} Bd)", x * 100.0, l.baud)
+            });
+            first.push(Span::raw(format!(
+                " {:>6.1} frames/s  {:>9}/s{load}  {age}",
+                l.frames_per_s(now),
+                bytes_text(l.bytes_per_s(now)),
+            )));
+        }
+        lines.push(Line::from(first));
+        let trouble = l.lost + l.crc_failures + l.malformed > 0;
+        let style = if trouble {
             Style::default().fg(WARN)
         } else {
-            Style::default()
+            Style::default().fg(DIM)
         };
-        spans.push(Span::raw(format!(
-            "  {:.1} frames/s  last {age}  ",
-            l.frames_per_s(now)
-        )));
-        spans.push(Span::styled(
+        lines.push(Line::from(Span::styled(
             format!(
-                "lost {}  crc fail {}  malformed {}  reconnects {}   ",
-                l.lost, l.crc_failures, l.malformed, l.reconnects
+                "{:<name_w$}  frames {}  lost {}  CRC failures {}  malformed {}  discarded {}  link drops {}",
+                "",
+                l.frames,
+                l.lost,
+                l.crc_failures,
+                l.malformed,
+                bytes_text(l.bytes_discarded as f64),
+                l.reconnects
             ),
-            lost_style,
-        ));
+            style,
+        )));
     }
     for (id, d) in &state.devices {
-        let run = d.run_label.as_deref().unwrap_or("idle");
-        spans.push(Span::raw(format!(
-            "| device {id} fw {} {} Hz run {run} dropped {} ",
-            d.firmware, d.sample_rate_hz, d.health.samples_dropped
+        let port = state.links.get(d.port).map_or("?", |l| l.port.as_str());
+        let run = match (d.running, &d.run_label) {
+            (Some(true), Some(l)) => format!("run \"{l}\" running"),
+            (Some(true), None) => "run running".into(),
+            (Some(false), _) => "run stopped".into(),
+            (None, _) => "run state not known".into(),
+        };
+        lines.push(Line::from(vec![
+            Span::styled(
+                format!("device {id}"),
+                Style::default().fg(ACCENT).add_modifier(Modifier::BOLD),
+            ),
+            Span::raw(format!(
+                " on {port}: firmware {}, {} Hz, window {}, {run}",
+                if d.firmware.is_empty() {
+                    "?"
+                } else {
+                    &d.firmware
+                },
+                d.sample_rate_hz,
+                if d.window.is_empty() { "?" } else { &d.window },
+            )),
+        ]));
+        let h = &d.health;
+        let uptime = if d.sample_rate_hz > 0 {
+            format!("{:.1} s", h.uptime_frames as f64 / d.sample_rate_hz as f64)
+        } else {
+            "?".into()
+        };
+        let bad = h.samples_dropped + h.frames_dropped > 0 || h.tips_stuck > 0;
+        let text = match d.health_at {
+            None => "  health: no report yet".to_string(),
+            Some(_) => format!(
+                "  health: dropped {} samples, {} frames  saturated {}  stuck tips {}  buffer peak {} samples  uptime {uptime}",
+                h.samples_dropped, h.frames_dropped, h.saturated, h.tips_stuck, h.buffer_high_water
+            ),
+        };
+        lines.push(Line::from(Span::styled(
+            text,
+            if bad {
+                Style::default().fg(WARN)
+            } else {
+                Style::default().fg(DIM)
+            },
         )));
     }
-    let p = Paragraph::new(Line::from(spans)).block(
+    let p = Paragraph::new(lines).block(
         Block::default()
             .borders(Borders::ALL)
-            .title(Span::styled(" link ", Style::default().fg(ACCENT))),
+            .title(title(" links and devices ")),
     );
     f.render_widget(p, area);
 }
 
-fn probe_rows(state: &LiveState) -> Vec<(u32, &ProbeRow)> {
+/// Probe rows of every device, highest first.
+pub fn probe_rows(state: &LiveState) -> Vec<(u32, &ProbeRow)> {
     let mut v: Vec<(u32, &ProbeRow)> = state
         .devices
         .iter()
@@ -116,96 +261,184 @@ fn probe_rows(state: &LiveState) -> Vec<(u32, &ProbeRow)> {
     v
 }
 
+/// Columns of the probe table: header, width, and right alignment.
+const PROBE_COLUMNS: [(&str, u16, bool); 10] = [
+    ("probe", 10, false),
+    ("y [mm]", 6, true),
+    ("C [-]", 6, true),
+    ("F [Hz]", 7, true),
+    ("V [m/s]", 7, true),
+    ("Tu [-]", 6, true),
+    ("chord [ms]", 10, true),
+    ("R peak", 6, true),
+    ("bubbles", 7, true),
+    ("flags", 8, false),
+];
+
+fn fit(s: String, w: u16, right: bool) -> String {
+    let w = w as usize;
+    let s: String = s.chars().take(w).collect();
+    if right {
+        format!("{s:>w$}")
+    } else {
+        format!("{s:<w$}")
+    }
+}
+
 fn draw_probes(f: &mut Frame, area: Rect, state: &LiveState) {
-    let header = Row::new([
-        "probe", "y mm", "C", "F Hz", "V m/s", "Tu", "chord ms", "R peak", "flags",
-    ])
+    let header = Row::new(
+        PROBE_COLUMNS
+            .iter()
+            .map(|(h, w, r)| Cell::from(fit(h.to_string(), *w, *r))),
+    )
     .style(Style::default().fg(ACCENT).add_modifier(Modifier::BOLD));
+    let multi = state.devices.len() > 1;
     let rows: Vec<Row> = probe_rows(state)
         .into_iter()
-        .map(|(_, p)| {
-            let flags: Vec<&str> = p.flags.names().collect();
+        .map(|(id, p)| {
             let style = if p.flags.is_empty() {
-                Style::default()
+                Style::default().fg(GOOD)
             } else {
                 Style::default().fg(WARN)
             };
-            Row::new(vec![
-                Cell::from(p.name.clone()),
-                Cell::from(format!("{:.1}", p.elevation_mm)),
-                Cell::from(cell(p.void_fraction, 3)),
-                Cell::from(cell(p.bubble_rate_hz, 1)),
-                Cell::from(cell(p.velocity_m_s, 2)),
-                Cell::from(cell(p.turbulence_intensity, 2)),
-                Cell::from(cell(p.chord_median_s.map(|s| s * 1e3), 2)),
-                Cell::from(cell(p.correlation_peak, 2)),
-                Cell::from(Span::styled(
-                    if flags.is_empty() {
-                        "-".to_string()
-                    } else {
-                        flags.join(" ")
-                    },
-                    style,
-                )),
-            ])
+            let name = if multi && !p.name.starts_with('d') {
+                format!("{id}:{}", p.name)
+            } else {
+                p.name.clone()
+            };
+            let v = [
+                name,
+                num(Some(p.elevation_mm), 6, 1),
+                num(p.void_fraction, 6, 3),
+                num(p.bubble_rate_hz, 7, 1),
+                num(p.velocity_m_s, 7, 2),
+                num(p.turbulence_intensity, 6, 2),
+                num(p.chord_median_s.map(|s| s * 1e3), 10, 3),
+                num(p.correlation_peak, 6, 2),
+                if p.windows > 0 {
+                    format!("{:>7}", p.bubbles)
+                } else {
+                    format!("{:>7}", "-")
+                },
+            ];
+            let mut cells: Vec<Cell> = v
+                .into_iter()
+                .zip(PROBE_COLUMNS.iter())
+                .map(|(s, (_, w, r))| Cell::from(fit(s, *w, *r)))
+                .collect();
+            cells.push(Cell::from(Span::styled(
+                if p.windows > 0 {
+                    flag_words(p.flags)
+                } else {
+                    "waiting".into()
+                },
+                style,
+            )));
+            Row::new(cells)
         })
         .collect();
-    let widths = [
-        Constraint::Length(8),
-        Constraint::Length(6),
-        Constraint::Length(6),
-        Constraint::Length(7),
-        Constraint::Length(6),
-        Constraint::Length(5),
-        Constraint::Length(8),
-        Constraint::Length(6),
-        Constraint::Min(10),
-    ];
-    let t = Table::new(rows, widths).header(header).block(
-        Block::default().borders(Borders::ALL).title(Span::styled(
-            " probes (top first) ",
-            Style::default().fg(ACCENT),
-        )),
-    );
+    let widths: Vec<Constraint> = PROBE_COLUMNS
+        .iter()
+        .enumerate()
+        .map(|(i, (_, w, _))| {
+            if i + 1 == PROBE_COLUMNS.len() {
+                Constraint::Min(*w)
+            } else {
+                Constraint::Length(*w)
+            }
+        })
+        .collect();
+    let t = Table::new(rows, widths)
+        .header(header)
+        .column_spacing(1)
+        .block(Block::default().borders(Borders::ALL).title(title(
+            " probes: latest window, highest first (chord = median bubble chord) ",
+        )));
     f.render_widget(t, area);
 }
 
-fn draw_profile(f: &mut Frame, area: Rect, state: &LiveState) {
-    let points: Vec<(f64, f64)> = probe_rows(state)
+/// Eighths of a block for bar ends.
+const EIGHTHS: [&str; 8] = ["", "▏", "▎", "▍", "▌", "▋", "▊", "▉"];
+
+fn bar(c: f64, width: usize) -> String {
+    let c = c.clamp(0.0, 1.0);
+    let eighths = (c * width as f64 * 8.0).round() as usize;
+    let mut s = "█".repeat(eighths / 8);
+    s.push_str(EIGHTHS[eighths % 8]);
+    s
+}
+
+/// The profile panel's lines for an inner area of `width` x `height`: one bar of C per
+/// probe at the row of its elevation (highest at the top), the elevation as the row label,
+/// and a C axis from 0 to 1 at the bottom.
+pub fn profile_lines(state: &LiveState, width: usize, height: usize) -> Vec<Line<'static>> {
+    let probes: Vec<(f64, Option<f64>)> = probe_rows(state)
         .into_iter()
-        .filter_map(|(_, p)| p.void_fraction.map(|c| (c, p.elevation_mm)))
+        .filter(|(_, p)| p.elevation_mm.is_finite())
+        .map(|(_, p)| (p.elevation_mm, p.void_fraction))
         .collect();
-    let ymax = points.iter().map(|p| p.1).fold(10.0f64, f64::max) * 1.1;
-    let data = vec![
-        Dataset::default()
-            .marker(Marker::Braille)
-            .graph_type(GraphType::Line)
-            .style(Style::default().fg(Color::DarkGray))
-            .data(&points),
-        Dataset::default()
-            .marker(Marker::Block)
-            .graph_type(GraphType::Scatter)
-            .style(Style::default().fg(ACCENT))
-            .data(&points),
-    ];
-    let chart = Chart::new(data)
-        .legend_position(None)
-        .block(Block::default().borders(Borders::ALL).title(Span::styled(
-            " void fraction profile ",
-            Style::default().fg(ACCENT),
-        )))
-        .x_axis(
-            Axis::default()
-                .title("C")
-                .bounds([0.0, 1.0])
-                .labels(["0", "0.5", "1"]),
-        )
-        .y_axis(Axis::default().title("y mm").bounds([0.0, ymax]).labels([
-            "0".to_string(),
-            format!("{:.0}", ymax / 2.0),
-            format!("{ymax:.0}"),
-        ]));
-    f.render_widget(chart, area);
+    let label_w = 7;
+    let value_w = 6;
+    let bar_w = width.saturating_sub(label_w + value_w + 1).max(4);
+    let plot_rows = height.saturating_sub(2).max(1);
+    let mut grid: Vec<Option<(f64, Option<f64>)>> = vec![None; plot_rows];
+    let ymax = probes.iter().map(|p| p.0).fold(0.0f64, f64::max);
+    let ymin = probes.iter().map(|p| p.0).fold(f64::INFINITY, f64::min);
+    for &(y, c) in &probes {
+        let span = (ymax - ymin.min(0.0)).max(1e-9);
+        let want = (((ymax - y) / span) * (plot_rows - 1) as f64).round() as usize;
+        let want = want.min(plot_rows - 1);
+        // Next free row downwards, else upwards (two probes at one elevation).
+        let row = (want..plot_rows)
+            .chain((0..want).rev())
+            .find(|&r| grid[r].is_none());
+        if let Some(r) = row {
+            grid[r] = Some((y, c));
+        }
+    }
+    let mut lines = Vec::new();
+    for cell in grid {
+        match cell {
+            Some((y, c)) => lines.push(Line::from(vec![
+                Span::raw(format!("{y:>5.1} ┤")),
+                Span::styled(
+                    format!("{:<bar_w$}", c.map_or(String::new(), |c| bar(c, bar_w))),
+                    Style::default().fg(ACCENT),
+                ),
+                Span::raw(format!(" {}", num(c, value_w - 1, 2))),
+            ])),
+            None => lines.push(Line::raw(format!("{:>5} │", ""))),
+        }
+    }
+    let mut axis = "─".repeat(bar_w);
+    let mid = bar_w / 2;
+    axis.replace_range(
+        axis.char_indices().nth(mid).map_or(0, |(i, _)| i)
+            ..axis
+                .char_indices()
+                .nth(mid + 1)
+                .map_or(axis.len(), |(i, _)| i),
+        "┬",
+    );
+    lines.push(Line::raw(format!("{:>5} └{axis}┤", "mm")));
+    let mut labels = format!("{:>6}0", "");
+    labels.push_str(&" ".repeat(mid.saturating_sub(1)));
+    labels.push_str("0.5");
+    labels.push_str(&" ".repeat(bar_w.saturating_sub(mid + 2)));
+    labels.push_str("1 C");
+    lines.push(Line::raw(labels));
+    lines
+}
+
+fn draw_profile(f: &mut Frame, area: Rect, state: &LiveState) {
+    let inner_w = area.width.saturating_sub(2) as usize;
+    let inner_h = area.height.saturating_sub(2) as usize;
+    let p = Paragraph::new(profile_lines(state, inner_w, inner_h)).block(
+        Block::default()
+            .borders(Borders::ALL)
+            .title(title(" void fraction C vs elevation ")),
+    );
+    f.render_widget(p, area);
 }
 
 fn draw_history(f: &mut Frame, area: Rect, state: &LiveState) {
@@ -216,72 +449,281 @@ fn draw_history(f: &mut Frame, area: Rect, state: &LiveState) {
         .rev()
         .take(n)
         .rev()
-        .map(|l| Line::raw(l.clone()))
+        .map(|l| {
+            let style = if l.contains("DOWN") || l.contains("NACK") || l.contains("lost") {
+                Style::default().fg(WARN)
+            } else {
+                Style::default()
+            };
+            Line::from(Span::styled(l.clone(), style))
+        })
         .collect();
-    let p = Paragraph::new(lines).block(Block::default().borders(Borders::ALL).title(
-        Span::styled(" recent windows ", Style::default().fg(ACCENT)),
-    ));
+    let p = Paragraph::new(lines).block(
+        Block::default()
+            .borders(Borders::ALL)
+            .title(title(" events (host time since start) ")),
+    );
     f.render_widget(p, area);
+}
+
+fn draw_recent(f: &mut Frame, area: Rect, state: &LiveState) {
+    let n = area.height.saturating_sub(3) as usize;
+    let multi = state.devices.len() > 1;
+    // Column heads: the probe names of the device of the newest window.
+    let names: Vec<String> = state
+        .recent
+        .back()
+        .and_then(|r| state.devices.get(&r.device))
+        .map(|d| d.probes.iter().map(|p| p.name.clone()).collect())
+        .unwrap_or_default();
+    let mut head = format!("{:>9}", "end [s]");
+    if multi {
+        head.push_str(&format!(" {:>5}", "dev"));
+    }
+    for name in &names {
+        let short: String = name
+            .chars()
+            .rev()
+            .take(6)
+            .collect::<Vec<_>>()
+            .into_iter()
+            .rev()
+            .collect();
+        head.push_str(&format!(" {short:>6}"));
+    }
+    let mut lines = vec![Line::from(Span::styled(
+        head,
+        Style::default().fg(ACCENT).add_modifier(Modifier::BOLD),
+    ))];
+    for r in state.recent.iter().rev().take(n).rev() {
+        let mut s = format!("{:>9.2}", r.end_s);
+        if multi {
+            s.push_str(&format!(" {:>5}", r.device));
+        }
+        for c in &r.void_fraction {
+            s.push_str(&format!(" {}", num(*c, 6, 3)));
+        }
+        let style = if r.flags.is_empty() {
+            Style::default()
+        } else {
+            Style::default().fg(DIM)
+        };
+        lines.push(Line::from(Span::styled(s, style)));
+    }
+    let p = Paragraph::new(lines).block(
+        Block::default()
+            .borders(Borders::ALL)
+            .title(title(" recent windows: C per probe ")),
+    );
+    f.render_widget(p, area);
+}
+
+/// The dashboard of `state` as text lines, `width` x `height` (for tests and snapshots).
+pub fn render_text(state: &LiveState, now: Instant, width: u16, height: u16) -> Vec<String> {
+    use ratatui::backend::TestBackend;
+    use ratatui::Terminal;
+    let mut term = match Terminal::new(TestBackend::new(width, height)) {
+        Ok(t) => t,
+        Err(e) => match e {},
+    };
+    if term.draw(|f| draw(f, state, now)).is_err() {
+        return Vec::new();
+    }
+    let buf = term.backend().buffer();
+    (0..buf.area.height)
+        .map(|y| {
+            (0..buf.area.width)
+                .map(|x| buf[(x, y)].symbol().to_string())
+                .collect::<String>()
+        })
+        .collect()
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::live::LiveWindow;
-    use ratatui::backend::TestBackend;
-    use ratatui::Terminal;
+    use crate::session::Event;
+    use frothline_core::wire::{
+        Ack, ChordTimes, Correlation, DeviceDescription, Health, Kind, ProbeLayout, TrailingTip,
+        WindowResult, WindowSetting,
+    };
+    use std::time::Duration;
+
+    fn state(now: Instant) -> LiveState {
+        let ports = vec!["/dev/ttyUSB0".to_string()];
+        let mut s = LiveState::new(&ports);
+        s.started = Some(now - Duration::from_secs(12));
+        s.keys_help = "q quit  s start run  e end run  r relearn  d describe".into();
+        s.links[0].baud = 115_200;
+        let names = ["B2-1", "B2-2", "B2-3", "B2-4"];
+        let name = |_: u16, i: usize| names[i].to_string();
+        s.apply(&Event::LinkUp { port: 0 }, now, &name);
+        let mut desc = DeviceDescription {
+            firmware: Default::default(),
+            sample_rate_millihz: 20_000_000,
+            channels: 8,
+            window: WindowSetting::Frames(2000),
+            probes: Default::default(),
+        };
+        let _ = desc.firmware.push_str("sim-0.1.0");
+        for (i, y) in [80, 250, 450, 650].into_iter().enumerate() {
+            let _ = desc.probes.push(ProbeLayout {
+                station: 0,
+                leading: 2 * i as u8,
+                trailing: Some(TrailingTip {
+                    channel: 2 * i as u8 + 1,
+                    spacing: 600,
+                }),
+                elevation: y,
+                x: 0,
+            });
+        }
+        s.apply(
+            &Event::Describe {
+                port: 0,
+                device: 7,
+                desc,
+            },
+            now,
+            &name,
+        );
+        s.pending_labels.insert((0, 1), "flume-3".into());
+        s.apply(
+            &Event::Sent {
+                port: 0,
+                seq: 1,
+                kind: Kind::StartRun,
+            },
+            now,
+            &name,
+        );
+        s.apply(
+            &Event::Reply {
+                port: 0,
+                device: 7,
+                seq: 1,
+                command: Some(Kind::StartRun),
+                nack: None,
+            },
+            now,
+            &name,
+        );
+        let cs = [0.05, 0.2, 0.5, 0.8];
+        for k in 0..6u64 {
+            for (i, c) in cs.iter().enumerate() {
+                let w = WindowResult {
+                    probe: i as u8,
+                    start: k * 2000,
+                    frames: 2000,
+                    void_fraction: (c * 10_000.0) as u16,
+                    bubble_rate: 8_000 + 1000 * i as u32,
+                    bubbles: 8 + i as u32,
+                    chords: Some(ChordTimes {
+                        mean: 900,
+                        median: 700,
+                        p10: 200,
+                        p90: 2000,
+                    }),
+                    correlation: Some(Correlation {
+                        velocity: 2400 + 100 * i as i16,
+                        peak: 7100,
+                        turbulence: Some(1800),
+                    }),
+                    flags: if i == 0 && k == 5 { 1 << 8 } else { 0 },
+                };
+                s.apply(
+                    &Event::Window {
+                        port: 0,
+                        device: 7,
+                        result: w,
+                    },
+                    now,
+                    &name,
+                );
+                s.link_batch(0, now, 120, 1, None);
+            }
+        }
+        s.apply(
+            &Event::Health {
+                port: 0,
+                device: 7,
+                health: Health {
+                    uptime_frames: 240_000,
+                    buffer_high_water: 512,
+                    ..Default::default()
+                },
+            },
+            now,
+            &name,
+        );
+        s.links[0].lost = 3;
+        s.apply(
+            &Event::SeqGap {
+                port: 0,
+                device: 7,
+                seq: 40,
+                missing: 3,
+            },
+            now,
+            &name,
+        );
+        let _ = Ack { seq: 0 };
+        s
+    }
 
     #[test]
     fn dashboard_shows_probe_rows_and_link_health() {
-        let mut s = LiveState::new(&["/dev/ttyUSB0".to_string()]);
-        s.links[0].connected = true;
-        s.links[0].lost = 3;
         let now = Instant::now();
-        s.links[0].frame(now);
-        for (i, (name, y)) in [("B2-1", 8.0), ("B2-3", 45.0)].iter().enumerate() {
-            let d = s.device(7);
-            d.firmware = "0.1.0".into();
-            d.probes.push(ProbeRow {
-                name: name.to_string(),
-                elevation_mm: *y,
-                ..Default::default()
-            });
-            s.window(&LiveWindow {
-                device: 7,
-                probe: i,
-                start_s: 0.0,
-                end_s: 0.05,
-                void_fraction: Some(0.1 + 0.3 * i as f64),
-                bubble_rate_hz: Some(80.0),
-                velocity_m_s: Some(2.4),
-                turbulence_intensity: Some(0.2),
-                chord_median_s: Some(0.0012),
-                correlation_peak: Some(0.7),
-                bubbles: 4,
-                flags: frothline_core::Flags::NONE,
-            });
-        }
-        let mut term = Terminal::new(TestBackend::new(140, 30)).unwrap();
-        term.draw(|f| draw(f, &s, now)).unwrap();
-        let buf = term.backend().buffer();
-        let text: String = buf.content().iter().map(|c| c.symbol()).collect();
-        for y in 0..buf.area.height {
-            let line: String = (0..buf.area.width)
-                .map(|x| buf[(x, y)].symbol().to_string())
-                .collect();
-            println!("{line}");
-        }
+        let s = state(now);
+        let lines = render_text(&s, now, 132, 34);
+        println!("{}", lines.join("\n"));
+        let text = lines.join("\n");
         for want in [
             "B2-1",
-            "B2-3",
-            "0.400",
+            "B2-4",
+            "0.800",
             "lost 3",
             "/dev/ttyUSB0",
-            "void fraction profile",
-            "recent windows",
+            "UP",
+            "% of 115200 Bd",
+            "frames/s",
+            "last frame",
+            "run \"flume-3\" running",
+            "ACK start-run #1",
+            "3 frame(s) lost",
+            "C vs elevation",
+            "chord [ms]",
+            "few-bubbles",
             "local codes",
+            "q quit",
         ] {
             assert!(text.contains(want), "dashboard lacks {want:?}");
         }
+        // The probe table lists the highest probe first, columns aligned.
+        let row = |name: &str| lines.iter().position(|l| l.contains(name)).unwrap();
+        assert!(row("B2-4") < row("B2-1"));
+        let col = |name: &str, v: &str| {
+            let l = &lines[row(name)];
+            l.find(v).unwrap()
+        };
+        assert_eq!(col("B2-4", "0.800") + 1, col("B2-1", "0.050") + 1);
+    }
+
+    #[test]
+    fn a_lost_port_shows_down() {
+        let now = Instant::now();
+        let mut s = state(now);
+        s.apply(
+            &Event::LinkDown {
+                port: 0,
+                reason: "device unplugged".into(),
+            },
+            now,
+            &|_, i| format!("p{i}"),
+        );
+        let text = render_text(&s, now + Duration::from_secs(5), 132, 34).join("\n");
+        println!("{text}");
+        assert!(text.contains("DOWN"));
+        assert!(text.contains("port lost, reopening every second"));
     }
 }

@@ -15,6 +15,9 @@ pub enum HostError {
     /// The synthesiser could not run.
     #[error(transparent)]
     Synth(#[from] crate::synth::SynthError),
+    /// A report could not be made.
+    #[error(transparent)]
+    Report(#[from] crate::report::ReportError),
     /// The layout and capture together make a chain the core cannot run.
     #[error("{}: {source}", file.display())]
     Config {
@@ -41,6 +44,7 @@ impl HostError {
     pub fn exit_code(&self) -> u8 {
         match self {
             HostError::Write { .. } => 1,
+            HostError::Report(e) => e.exit_code(),
             _ => 2,
         }
     }

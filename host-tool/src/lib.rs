@@ -4,19 +4,30 @@
 //! - [`rig`]: layout + capture format -> the core's chain configuration;
 //! - [`replay`]: captures through the core -> [`windows_csv`];
 //! - [`synth`]: synthetic captures with known truth;
+//! - [`session`], [`watch`], [`commands`], [`live`], [`dashboard`], [`archive`],
+//!   [`unpack`]: the live link (framed results from devices over serial ports);
+//! - [`device_sim`], [`demo`]: a simulated device, and the live link without hardware;
 //! - [`cli`]: the `frothline` command line.
 #![warn(missing_docs)]
 
 pub mod archive;
 pub mod capture;
 pub mod cli;
+pub mod commands;
 pub mod dashboard;
+pub mod demo;
+pub mod device_sim;
 pub mod error;
+pub mod hydraulics;
 pub mod layout;
 pub mod live;
 pub mod ports;
 pub mod replay;
+pub mod report;
 pub mod rig;
+pub mod session;
 pub mod synth;
+pub mod unpack;
+pub mod watch;
 pub mod window_spec;
 pub mod windows_csv;

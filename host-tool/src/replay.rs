@@ -6,10 +6,10 @@
 use crate::capture::Capture;
 use crate::error::{write_err, HostError};
 use crate::layout::Layout;
+use crate::rig::HostRecord as ProbeWindow;
 use crate::rig::{chain_config, HostChain, MAX_PROBES};
 use crate::window_spec::WindowSpec;
 use crate::windows_csv::{ProbeMeta, WindowsCsv};
-use frothline_core::ProbeWindow;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::fs::File;
 use std::io::BufWriter;
@@ -30,8 +30,11 @@ pub struct ReplayArgs {
     /// Folder for the output files (created if missing): windows.csv.
     #[arg(long, short)]
     pub out: PathBuf,
-    /// Analysis window: `whole` (one window over the capture) or a duration with a unit,
-    /// such as `50ms`, `0.5s`, `2s` (consecutive windows from the start of the capture).
+    /// Analysis window: `whole` (one window over the capture); a duration with a unit such
+    /// as `50ms`, `0.5s`, `2s` (consecutive windows from the start of the capture); or
+    /// `bubbles:N[@PROBE][,max=DURATION]`, adaptive windows that each hold N bubbles of the
+    /// reference probe's leading tip (default: the first probe), e.g. `bubbles:200@B2-3,max=1s`
+    /// — for unsteady flows, where a fixed duration holds too few bubbles at times.
     #[arg(long, short, default_value = "whole")]
     pub window: WindowSpec,
     /// No progress bar and no summary table.
@@ -83,7 +86,11 @@ pub fn open_rig(
             layout_doc.probes.len()
         )));
     }
-    let policy = window.policy(cap.sample_rate()).map_err(HostError::Usage)?;
+    let policy = window
+        .policy(cap.sample_rate(), |name| {
+            layout_doc.probes.iter().position(|p| p.name == name)
+        })
+        .map_err(HostError::Usage)?;
     let cfg = chain_config(&layout_doc, cap.channels(), cap.sample_rate(), policy, &cap).map_err(
         |source| HostError::Config {
             file: layout.to_path_buf(),
@@ -295,7 +302,7 @@ fn progress_bar(frames: u64, quiet: bool) -> ProgressBar {
 
 /// Run a replay and write its files.
 pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
-    let (mut cap, layout, chain) = open_rig(&args.capture, &args.layout, args.window)?;
+    let (mut cap, layout, chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
     std::fs::create_dir_all(&args.out).map_err(write_err(&args.out))?;
     let final_path = args.out.join("windows.csv");
     let partial = args.out.join("windows.csv.partial");
@@ -306,6 +313,7 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     };
     let mut csv = WindowsCsv::new(BufWriter::new(file)).map_err(csv_err)?;
     let meta = probe_meta(&layout);
+    let spacing: Vec<Option<f64>> = layout.probes.iter().map(|p| p.tip_spacing_mm).collect();
     let fs = cap.sample_rate();
     let bar = progress_bar(cap.frames(), args.quiet);
     let mut records = Vec::new();
@@ -313,8 +321,17 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
         .map_or(1, |n| n.get())
         .min(4);
     let result = drive_parallel(&mut cap, chain, workers, &bar, |r| {
-        csv.write(&r, &meta[r.probe as usize], fs, None)
-            .map_err(csv_err)?;
+        csv.write(
+            &r,
+            &meta[r.probe as usize],
+            fs,
+            None,
+            spacing[r.probe as usize],
+        )
+        .map_err(csv_err)?;
+        // The summary keeps the results, not the raw correlation sums (28 KiB a record).
+        let mut r = r;
+        r.correlation_sums = None;
         records.push(r);
         Ok(())
     });

@@ -9,11 +9,19 @@ use frothline_core::{
     WindowPolicy,
 };
 
-/// Most probes a host chain holds (a WAV frame holds at most 64 channels for the core).
-pub const MAX_PROBES: usize = 32;
+/// Most probes a host chain holds (a station array of 16 dual-tip probes is 32 channels).
+pub const MAX_PROBES: usize = 16;
+
+/// Correlation lag slots of a host chain: lags up to 1023 frames, so 6 mm tips at 40 kHz
+/// resolve velocities down to 0.23 m/s. A device with less memory uses fewer slots; set
+/// `max_lag_ms` in the layout to make both compute the same lags.
+pub const HOST_LAGS: usize = 1024;
 
 /// The chain type the host runs.
-pub type HostChain = frothline_core::Chain<MAX_PROBES>;
+pub type HostChain = frothline_core::Chain<MAX_PROBES, HOST_LAGS>;
+
+/// The records of a [`HostChain`].
+pub type HostRecord = frothline_core::ProbeWindow<HOST_LAGS>;
 
 /// How the host maps file units to counts (the capture's conversion).
 pub trait ToCounts {

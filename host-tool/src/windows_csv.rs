@@ -3,7 +3,7 @@
 //! The first twelve columns are the contract that scripts read; the extra columns after them
 //! may grow. Empty cells mean "could not be computed". Flags are their names joined by `|`.
 
-use frothline_core::ProbeWindow;
+use crate::rig::HostRecord as ProbeWindow;
 use std::io::Write;
 
 /// The header row.
@@ -31,6 +31,13 @@ pub const COLUMNS: &[&str] = &[
     "trailing_bubble_count_rate_hz",
     "air_level_counts",
     "water_level_counts",
+    "transit_time_s",
+    "secondary_peak_ratio",
+    "t05_s",
+    "tau05_s",
+    "auto_integral_time_s",
+    "cross_integral_time_s",
+    "turbulence_intensity_skew_corrected",
 ];
 
 /// What a row needs to know about its probe besides the record.
@@ -48,12 +55,14 @@ fn opt<T: std::fmt::Display>(v: Option<T>) -> String {
     v.map(|v| v.to_string()).unwrap_or_default()
 }
 
-/// One row of `windows.csv` as strings, in [`COLUMNS`] order.
+/// One row of `windows.csv` as strings, in [`COLUMNS`] order. `tip_spacing_mm` is the
+/// probe's leading -> trailing distance (none for a single-tip probe).
 pub fn row(
     rec: &ProbeWindow,
     meta: &ProbeMeta,
     sample_rate: u32,
     since_front_s: Option<f64>,
+    tip_spacing_mm: Option<f64>,
 ) -> Vec<String> {
     let fs = sample_rate as f64;
     // Derived values are f32 in the core: print them as f32 so no false digits appear.
@@ -61,6 +70,9 @@ pub fn row(
     let lead = &rec.lead;
     let chords = &lead.bubble_chords;
     let flags: Vec<&str> = rec.flags.names().collect();
+    let corr = rec.correlation.as_ref();
+    let fs32 = sample_rate as f32;
+    let velocity = corr.and_then(|c| c.velocity_m_s(tip_spacing_mm? as f32, fs32));
     vec![
         meta.name.clone(),
         (rec.start as f64 / fs).to_string(),
@@ -69,9 +81,9 @@ pub fn row(
         opt(lead.void_fraction()),
         opt(lead.bubble_count_rate(sample_rate as f32)),
         opt(chords.mean().map(secs)),
-        String::new(),
-        String::new(),
-        String::new(),
+        opt(velocity),
+        opt(corr.and_then(|c| c.peak_coefficient)),
+        opt(corr.and_then(|c| c.turbulence_intensity)),
         lead.bubbles.to_string(),
         flags.join("|"),
         meta.elevation_mm.to_string(),
@@ -87,6 +99,15 @@ pub fn row(
             .and_then(|t| t.bubble_count_rate(sample_rate as f32))),
         opt(lead.levels.map(|l| l.air)),
         opt(lead.levels.map(|l| l.water)),
+        opt(corr.and_then(|c| c.transit_time_s(fs32))),
+        opt(corr.and_then(|c| c.secondary_peak_ratio)),
+        opt(corr.and_then(|c| c.t05_frames).map(secs)),
+        opt(corr.and_then(|c| c.tau05_frames).map(secs)),
+        opt(corr.and_then(|c| c.auto_integral_frames).map(secs)),
+        opt(corr.and_then(|c| c.cross_integral_frames).map(secs)),
+        opt(corr
+            .and_then(|c| c.turbulence_intensity)
+            .and_then(frothline_core::correlation::tu_for_gaussian_velocity)),
     ]
 }
 
@@ -110,13 +131,78 @@ impl<W: Write> WindowsCsv<W> {
         meta: &ProbeMeta,
         sample_rate: u32,
         since_front_s: Option<f64>,
+        tip_spacing_mm: Option<f64>,
     ) -> csv::Result<()> {
         self.out
-            .write_record(row(rec, meta, sample_rate, since_front_s))
+            .write_record(row(rec, meta, sample_rate, since_front_s, tip_spacing_mm))
     }
 
     /// Flush and hand back the sink.
     pub fn finish(self) -> std::io::Result<W> {
         self.out.into_inner().map_err(|e| e.into_error())
+    }
+}
+
+/// One row of `windows.csv` from a window result decoded off the wire, in [`COLUMNS`] order.
+///
+/// The row matches [`row`] of the record the device quantised, to the wire's resolution:
+/// times from the sample clock and `sample_rate_hz` (cells empty while the rate is unknown),
+/// fractions to 1e-4, rates to 0.01 Hz, chords to 1 µs, velocity to 1 mm/s. Columns the wire
+/// does not carry (droplet chords, trailing-tip C and F, levels) are empty, and so are
+/// the elevation and position of a probe the device did not describe (NaN in `meta`).
+pub fn wire_row(
+    w: &frothline_core::wire::WindowResult,
+    meta: &ProbeMeta,
+    sample_rate_hz: Option<f64>,
+    since_front_s: Option<f64>,
+) -> Vec<String> {
+    use frothline_core::wire::quant::{from_fraction, from_micros};
+    let fs = sample_rate_hz.filter(|f| *f > 0.0);
+    let secs = |frames: u64| fs.map(|fs| frames as f64 / fs);
+    let chord = |us: fn(&frothline_core::wire::ChordTimes) -> u32| {
+        w.chords.as_ref().map(|c| from_micros(us(c)))
+    };
+    let corr = w.correlation.as_ref();
+    let flags: Vec<&str> = frothline_core::Flags(w.flags).names().collect();
+    let finite = |v: f64| v.is_finite().then_some(v);
+    let mut fields = vec![
+        meta.name.clone(),
+        opt(secs(w.start)),
+        opt(secs(w.start.saturating_add(w.frames as u64))),
+        opt(since_front_s),
+        w.void_fraction_value().to_string(),
+        w.bubble_rate_hz().to_string(),
+        opt(chord(|c| c.mean)),
+        opt(w.velocity_m_s()),
+        opt(corr.map(|c| from_fraction(c.peak))),
+        opt(w.turbulence_intensity()),
+        w.bubbles.to_string(),
+        flags.join("|"),
+        opt(finite(meta.elevation_mm)),
+        opt(finite(meta.x_mm)),
+        opt(chord(|c| c.median)),
+        opt(chord(|c| c.p10)),
+        opt(chord(|c| c.p90)),
+        String::new(),
+        String::new(),
+        String::new(),
+        String::new(),
+        String::new(),
+    ];
+    // Columns the wire does not carry stay empty.
+    fields.resize(COLUMNS.len(), String::new());
+    fields
+}
+
+impl<W: Write> WindowsCsv<W> {
+    /// Write one row already in [`COLUMNS`] order (from [`row`] or [`wire_row`]).
+    pub fn write_fields(&mut self, fields: &[String]) -> csv::Result<()> {
+        self.out.write_record(fields)
+    }
+
+    /// Flush buffered rows to the sink (a live session flushes after every batch, so a
+    /// killed process leaves whole rows behind).
+    pub fn flush(&mut self) -> std::io::Result<()> {
+        self.out.flush()
     }
 }

@@ -16,7 +16,7 @@
 //! | profile exponent                  | 1e-3      | u16  |
 
 use crate::record::ProbeWindow;
-use crate::wire::frame::{ChordTimes, WindowResult};
+use crate::wire::frame::{ChordTimes, Correlation, WindowResult};
 
 /// Steps per unit of a fraction.
 pub const FRACTION_SCALE: f32 = 10_000.0;
@@ -175,6 +175,27 @@ impl WindowResult {
             correlation: None,
             flags: rec.flags.0,
         }
+    }
+
+    /// [`from_probe_window`](Self::from_probe_window) with the correlation filled in for a
+    /// dual-tip probe whose tips are `spacing_mm` apart: velocity from
+    /// [`CorrelationResult::velocity_m_s`](crate::CorrelationResult::velocity_m_s), peak
+    /// coefficient and Tu. No peak (or no spacing) leaves the correlation empty.
+    pub fn from_probe_window_with_spacing<const L: usize>(
+        rec: &ProbeWindow<L>,
+        sample_rate_hz: f32,
+        spacing_mm: Option<f32>,
+    ) -> WindowResult {
+        let mut w = Self::from_probe_window(rec, sample_rate_hz);
+        w.correlation = rec.correlation.as_ref().and_then(|c| {
+            let v = c.velocity_m_s(spacing_mm?, sample_rate_hz)?;
+            Some(Correlation {
+                velocity: velocity(v),
+                peak: fraction(c.peak_coefficient?),
+                turbulence: c.turbulence_intensity.map(fraction),
+            })
+        });
+        w
     }
 
     /// Void fraction (0..=1).

@@ -78,6 +78,16 @@ fn window(name: &str) -> Option<&'static str> {
         "correlation_overflow" => {
             "Some interfaces could not be paired: the correlation sums are incomplete."
         }
+        "pre_front" => {
+            "The record covers the time before the front reached the station (transient \
+             flows): the tips sat in the phase before the front, so these are not flow \
+             statistics."
+        }
+        "late_front_start" => {
+            "The first window after the front starts later than the arrival: the arrival was \
+             confirmed only after the chain's delay line had passed it (a flickering front); \
+             since_front_s says by how much."
+        }
         _ => return None,
     })
 }

@@ -1,0 +1,196 @@
+//! Host -> device commands: StartRun, StopRun, SetWindow, Relearn and DescribeRequest as
+//! wire frames.
+//!
+//! The host writes its commands with its own device id ([`HOST_DEVICE_ID`]) and its own
+//! sequence numbers, one counter per link; the device answers each command with an `Ack`
+//! or a `Nack` that quotes the command's sequence number, so [`CommandLog`] can tell which
+//! command a reply is about.
+
+use frothline_core::wire::{self, Body, Frame, Kind, Relearn, StartRun, WindowSetting};
+use std::collections::VecDeque;
+
+/// The device id the host writes into its command frames (no device uses it).
+pub const HOST_DEVICE_ID: u16 = 0xFFFF;
+
+/// A command for a device.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Command {
+    /// Start a run with this label (at most [`wire::LABEL_BYTES`] bytes of UTF-8): the
+    /// device resets its sample clock.
+    StartRun(String),
+    /// Stop the run.
+    StopRun,
+    /// Set the window policy.
+    SetWindow(WindowSetting),
+    /// Re-learn the air/water levels of the probes in the mask (bit p = probe p).
+    Relearn(u32),
+    /// Ask for the device description.
+    DescribeRequest,
+}
+
+impl Command {
+    /// The frame kind of the command.
+    pub fn kind(&self) -> Kind {
+        match self {
+            Command::StartRun(_) => Kind::StartRun,
+            Command::StopRun => Kind::StopRun,
+            Command::SetWindow(_) => Kind::SetWindow,
+            Command::Relearn(_) => Kind::Relearn,
+            Command::DescribeRequest => Kind::DescribeRequest,
+        }
+    }
+
+    /// The body of the command frame; fails for a label that does not fit.
+    pub fn body(&self) -> Result<Body, String> {
+        Ok(match self {
+            Command::StartRun(label) => Body::StartRun(start_run(label)?),
+            Command::StopRun => Body::StopRun,
+            Command::SetWindow(s) => Body::SetWindow(*s),
+            Command::Relearn(mask) => Body::Relearn(Relearn { probes: *mask }),
+            Command::DescribeRequest => Body::DescribeRequest,
+        })
+    }
+}
+
+/// A short name of a command kind, for history lines.
+pub fn kind_name(kind: Kind) -> &'static str {
+    match kind {
+        Kind::Describe => "describe",
+        Kind::Windows => "windows",
+        Kind::Front => "front",
+        Kind::Profile => "profile",
+        Kind::Health => "health",
+        Kind::StartRun => "start-run",
+        Kind::StopRun => "stop-run",
+        Kind::SetWindow => "set-window",
+        Kind::Relearn => "relearn",
+        Kind::DescribeRequest => "describe-request",
+        Kind::Ack => "ack",
+        Kind::Nack => "nack",
+        _ => "unknown",
+    }
+}
+
+/// A [`StartRun`] body with `label`, or why the label does not fit.
+pub fn start_run(label: &str) -> Result<StartRun, String> {
+    let mut s = StartRun::default();
+    if s.label.push_str(label).is_err() {
+        return Err(format!(
+            "run label `{label}` is {} bytes; the wire carries at most {}",
+            label.len(),
+            wire::LABEL_BYTES
+        ));
+    }
+    Ok(s)
+}
+
+/// Check a run label for the command line.
+pub fn parse_label(label: &str) -> Result<String, String> {
+    start_run(label).map(|_| label.to_string())
+}
+
+/// Sequence numbers and kinds of the commands sent on one link, to name the replies.
+#[derive(Clone, Debug)]
+pub struct CommandLog {
+    device: u16,
+    seq: u16,
+    sent: VecDeque<(u16, Kind)>,
+}
+
+impl Default for CommandLog {
+    fn default() -> Self {
+        Self::new(HOST_DEVICE_ID)
+    }
+}
+
+/// Commands remembered per link for naming replies.
+const REMEMBERED: usize = 64;
+
+impl CommandLog {
+    /// A log for a host writing as `device`, first sequence number 0.
+    pub fn new(device: u16) -> Self {
+        CommandLog {
+            device,
+            seq: 0,
+            sent: VecDeque::new(),
+        }
+    }
+
+    /// Encode `cmd` as the next frame of this link: its sequence number and its bytes
+    /// (0x00 delimiter included).
+    pub fn encode(&mut self, cmd: &Command) -> Result<(u16, Vec<u8>), String> {
+        let frame = Frame {
+            device: self.device,
+            seq: self.seq,
+            body: cmd.body()?,
+        };
+        let mut buf = [0u8; wire::MAX_FRAME_BYTES];
+        let bytes = wire::encode(&frame, &mut buf)
+            .map_err(|e| format!("cannot encode {}: {e}", kind_name(cmd.kind())))?
+            .to_vec();
+        let seq = self.seq;
+        self.note_sent(seq, cmd.kind());
+        self.seq = self.seq.wrapping_add(1);
+        Ok((seq, bytes))
+    }
+
+    /// Remember a command frame seen going out (e.g. read back from an archive).
+    pub fn note_sent(&mut self, seq: u16, kind: Kind) {
+        self.sent.retain(|(s, _)| *s != seq);
+        self.sent.push_back((seq, kind));
+        while self.sent.len() > REMEMBERED {
+            self.sent.pop_front();
+        }
+    }
+
+    /// The kind of the command sent with `seq`, if remembered.
+    pub fn kind_of(&self, seq: u16) -> Option<Kind> {
+        self.sent
+            .iter()
+            .rev()
+            .find(|(s, _)| *s == seq)
+            .map(|(_, k)| *k)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use frothline_core::wire::{Decoder, FeedResult};
+
+    #[test]
+    fn commands_encode_to_frames_the_decoder_reads_back() {
+        let mut log = CommandLog::default();
+        let cmds = [
+            Command::DescribeRequest,
+            Command::StartRun("flume-7".into()),
+            Command::SetWindow(WindowSetting::Frames(4000)),
+            Command::Relearn(0b101),
+            Command::StopRun,
+        ];
+        let mut dec: Decoder = Decoder::new();
+        for (i, c) in cmds.iter().enumerate() {
+            let (seq, bytes) = log.encode(c).unwrap();
+            assert_eq!(seq, i as u16);
+            match dec.feed(&bytes) {
+                FeedResult::Frame {
+                    frame, remaining, ..
+                } => {
+                    assert!(remaining.is_empty());
+                    assert_eq!(frame.device, HOST_DEVICE_ID);
+                    assert_eq!(frame.body, c.body().unwrap());
+                }
+                other => panic!("{other:?}"),
+            }
+            assert_eq!(log.kind_of(seq), Some(c.kind()));
+        }
+        assert_eq!(dec.stats().lost, 0);
+    }
+
+    #[test]
+    fn long_labels_are_refused() {
+        assert!(parse_label("0123456789abcdef").is_ok());
+        assert!(parse_label("0123456789abcdefg").is_err());
+        assert!(Command::StartRun("x".repeat(40)).body().is_err());
+    }
+}

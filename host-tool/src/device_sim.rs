@@ -1,0 +1,873 @@
+//! A simulated probe device: the core's chain on a capture in real time, streaming frames
+//! over a serial link the way firmware does.
+//!
+//! ```text
+//! wall clock x speed -> sample clock -> push the capture's frames due -> Chain -> records
+//!   -> WindowResult::from_probe_window -> Streamer (link byte budget: baud / 10 B/s) -> port
+//! port -> command frames -> StartRun / StopRun / SetWindow / Relearn / DescribeRequest
+//!      -> Ack or Nack (unknown kind, bad argument, wrong version, malformed payload)
+//! Describe at start and on request; Health every second (cumulative counters)
+//! ```
+//!
+//! The chain is built from the same configuration `frothline replay` derives from the layout
+//! ([`crate::rig::chain_config`]), so a run over the whole capture gives exactly replay's
+//! records (compare after the wire's quantisation).
+//!
+//! A run plays the capture once from its first frame: [`SimOptions::autostart`] starts one
+//! at power-on, `StartRun` starts a new one (sample clock back to 0, capture from the start),
+//! `StopRun` ends it (the open window is closed, flagged partial). At the end of the capture
+//! the run ends the same way, and with [`SimOptions::repeat`] a new run starts at once.
+//! `SetWindow` and `Relearn` rebuild the chain at the current position: the open window is
+//! closed (partial), and the new chain continues the run's sample clock; it learns its
+//! levels again unless the layout fixes them (the core has no per-probe re-learn yet, so
+//! `Relearn` re-learns every probe whatever the mask).
+//!
+//! When processing falls behind the wall clock (a slow machine, a high speed factor) the
+//! device does not drop samples: it catches up, and the backlog shows in the health frame's
+//! buffer high-water mark.
+
+use crate::error::HostError;
+use crate::layout::Layout;
+use crate::rig::HostRecord as ProbeWindow;
+use crate::rig::{chain_config, Counts, HostChain, MAX_PROBES};
+use crate::window_spec::WindowSpec;
+use frothline_core::wire::{
+    self, quant, Ack, Body, DeviceDescription, Health, Nack, NackReason, ProbeLayout, Streamer,
+    StreamerConfig, TrailingTip, WindowResult, WindowSetting, WireError,
+};
+use frothline_core::{ChainConfig, Flags};
+use std::io::{Read, Write};
+use std::path::Path;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+/// Window results the streamer queues (the oldest is dropped when the link cannot keep up).
+pub const WINDOW_QUEUE: usize = 256;
+
+/// A capture in memory with the chain configuration replay would use for it.
+#[derive(Clone, Debug)]
+pub struct SimCapture {
+    /// Interleaved i16 samples.
+    pub samples: Arc<Vec<i16>>,
+    /// Channels per frame.
+    pub channels: usize,
+    /// Frames per second.
+    pub sample_rate: u32,
+    /// The rig layout.
+    pub layout: Layout,
+    /// The layout's text (TOML).
+    pub layout_text: String,
+    /// The chain configuration (window policy included).
+    pub config: ChainConfig<MAX_PROBES>,
+}
+
+impl SimCapture {
+    /// Frames in the capture.
+    pub fn frames(&self) -> usize {
+        self.samples.len() / self.channels.max(1)
+    }
+
+    /// A WAV capture and its layout, configured as `frothline replay` configures them:
+    /// the same checks, the same [`chain_config`] (no chain is built here: a host chain is
+    /// large, and the device thread builds its own).
+    pub fn from_files(
+        capture: &Path,
+        layout: &Path,
+        window: WindowSpec,
+    ) -> Result<Self, HostError> {
+        let layout_text = std::fs::read_to_string(layout).unwrap_or_default();
+        let layout_doc = Layout::load(layout)?;
+        let mut cap = crate::capture::Capture::open(capture)?;
+        layout_doc.check_channels(cap.channels(), layout)?;
+        if layout_doc.probes.len() > MAX_PROBES {
+            return Err(HostError::Usage(format!(
+                "{}: {} probes, the host handles at most {MAX_PROBES}",
+                layout.display(),
+                layout_doc.probes.len()
+            )));
+        }
+        let policy = window
+            .policy(cap.sample_rate(), |name| probe_index(&layout_doc, name))
+            .map_err(HostError::Usage)?;
+        let config = chain_config(&layout_doc, cap.channels(), cap.sample_rate(), policy, &cap)
+            .map_err(|source| HostError::Config {
+                file: layout.to_path_buf(),
+                source,
+            })?;
+        let mut samples = Vec::with_capacity(cap.frames() as usize * cap.channels());
+        let mut block = Vec::new();
+        loop {
+            let n = cap.read_frames(&mut block, 1 << 15)?;
+            if n == 0 {
+                break;
+            }
+            samples.extend_from_slice(&block);
+        }
+        Ok(SimCapture {
+            samples: Arc::new(samples),
+            channels: cap.channels(),
+            sample_rate: cap.sample_rate(),
+            layout: layout_doc,
+            layout_text,
+            config,
+        })
+    }
+
+    /// A synthetic capture of `scenario` (rendered in memory), with the layout `frothline
+    /// synth` would write for it.
+    pub fn from_scenario(
+        scenario: &crate::synth::Scenario,
+        window: WindowSpec,
+    ) -> Result<Self, HostError> {
+        let generator = crate::synth::Generator::new(scenario.clone(), scenario.seed)?;
+        let text = crate::synth::output::layout_toml(scenario, generator.resolved());
+        let layout = Layout::parse(&text, Path::new("<built-in scenario>"))?;
+        let cap = generator.render_interleaved();
+        let channels = cap.channels as usize;
+        let fs = cap.sample_rate_hz;
+        let policy = window
+            .policy(fs, |name| probe_index(&layout, name))
+            .map_err(HostError::Usage)?;
+        let config = chain_config(&layout, channels, fs, policy, &Counts).map_err(|source| {
+            HostError::Config {
+                file: "<built-in scenario>".into(),
+                source,
+            }
+        })?;
+        Ok(SimCapture {
+            samples: Arc::new(cap.samples),
+            channels,
+            sample_rate: fs,
+            layout,
+            layout_text: text,
+            config,
+        })
+    }
+}
+
+/// The index of the probe called `name` in `layout`.
+pub fn probe_index(layout: &Layout, name: &str) -> Option<usize> {
+    layout.probes.iter().position(|p| p.name == name)
+}
+
+/// How the simulated device behaves.
+#[derive(Clone, Debug)]
+pub struct SimOptions {
+    /// Device id in every header.
+    pub device: u16,
+    /// Link rate, baud (8N1: baud / 10 bytes per second); 0 for no rate limit.
+    pub baud: u32,
+    /// Sample clock speed relative to the wall clock (1 = real time).
+    pub speed: f64,
+    /// Start a run at power-on.
+    pub autostart: bool,
+    /// Start a new run when the capture ends.
+    pub repeat: bool,
+    /// Firmware version string (at most 16 bytes are sent).
+    pub firmware: String,
+    /// Period of health frames.
+    pub health_every: Duration,
+}
+
+impl Default for SimOptions {
+    fn default() -> Self {
+        SimOptions {
+            device: 1,
+            baud: 115_200,
+            speed: 1.0,
+            autostart: true,
+            repeat: false,
+            firmware: format!("sim-{}", env!("CARGO_PKG_VERSION")),
+            health_every: Duration::from_secs(1),
+        }
+    }
+}
+
+/// Counters of a simulated device.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct SimStats {
+    /// Frames put on the link.
+    pub frames_sent: u64,
+    /// Bytes put on the link.
+    pub bytes_sent: u64,
+    /// Window results sent.
+    pub windows_sent: u64,
+    /// Window results the streamer dropped (link too slow).
+    pub windows_dropped: u32,
+    /// Records the chain produced.
+    pub records: u64,
+    /// Command frames answered with Ack.
+    pub acks: u64,
+    /// Command frames answered with Nack.
+    pub nacks: u64,
+    /// Received frames that could not be answered (CRC failure, broken framing).
+    pub unreadable: u64,
+    /// Runs started.
+    pub runs: u64,
+    /// Bytes the port did not take (write timeout or error).
+    pub bytes_not_written: u64,
+}
+
+/// The simulated device (see the module docs). Drive it with [`SimDevice::run`] on a port,
+/// or step by step with [`input`](SimDevice::input), [`advance`](SimDevice::advance) and
+/// [`output`](SimDevice::output).
+pub struct SimDevice {
+    cap: SimCapture,
+    opts: SimOptions,
+    config: ChainConfig<MAX_PROBES>,
+    chain: Option<Box<HostChain>>,
+    streamer: Box<Streamer<WINDOW_QUEUE, 16>>,
+    /// Bytes of an incoming frame.
+    rx: Vec<u8>,
+    rx_overflow: bool,
+    power_on: Instant,
+    /// Running: the wall time the run's sample clock started at, and its frame position.
+    run_t0: Instant,
+    pos: usize,
+    /// Sample-clock offset of the current chain within the run.
+    offset: u64,
+    running: bool,
+    last_health: Option<Instant>,
+    health: Health,
+    stuck_bits: u64,
+    stats: SimStats,
+}
+
+impl SimDevice {
+    /// A device for `cap`; the chain's window policy is the capture's configuration.
+    pub fn new(cap: SimCapture, opts: SimOptions, now: Instant) -> Result<Self, HostError> {
+        let config = cap.config.clone();
+        HostChain::new(config.clone()).map_err(|source| HostError::Config {
+            file: "<simulated device>".into(),
+            source,
+        })?;
+        let streamer = Box::new(Streamer::new(StreamerConfig::uart_8n1(
+            opts.device,
+            opts.baud,
+            1_000_000,
+        )));
+        let mut d = SimDevice {
+            cap,
+            opts,
+            config,
+            chain: None,
+            streamer,
+            rx: Vec::new(),
+            rx_overflow: false,
+            power_on: now,
+            run_t0: now,
+            pos: 0,
+            offset: 0,
+            running: false,
+            last_health: None,
+            health: Health::default(),
+            stuck_bits: 0,
+            stats: SimStats::default(),
+        };
+        let desc = d.description();
+        d.streamer.offer(Body::Describe(desc));
+        if d.opts.autostart {
+            d.start_run(now);
+        }
+        Ok(d)
+    }
+
+    /// The counters.
+    pub fn stats(&self) -> SimStats {
+        let s = self.streamer.stats();
+        SimStats {
+            frames_sent: s.frames_sent,
+            bytes_sent: s.bytes_sent,
+            windows_sent: s.windows_sent,
+            windows_dropped: s.windows_dropped,
+            ..self.stats.clone()
+        }
+    }
+
+    /// True while a run is going.
+    pub fn running(&self) -> bool {
+        self.running
+    }
+
+    /// True when nothing waits to be sent.
+    pub fn idle(&self) -> bool {
+        self.streamer.is_idle()
+    }
+
+    /// The description the device sends.
+    pub fn description(&self) -> DeviceDescription {
+        let mut d = DeviceDescription {
+            firmware: Default::default(),
+            sample_rate_millihz: quant::sample_rate(self.cap.sample_rate as f32),
+            channels: self.cap.channels.min(255) as u8,
+            window: WindowSetting::from_policy(&self.config.window).unwrap_or(WindowSetting::Whole),
+            probes: Default::default(),
+        };
+        for ch in self.opts.firmware.chars() {
+            if d.firmware.push(ch).is_err() {
+                break;
+            }
+        }
+        let stations = self.cap.layout.stations();
+        for (i, p) in self.cap.layout.probes.iter().enumerate() {
+            let station = stations
+                .iter()
+                .position(|(_, members)| members.contains(&i))
+                .unwrap_or(0);
+            let layout = ProbeLayout {
+                station: station.min(255) as u8,
+                leading: p.leading.min(255) as u8,
+                trailing: p.trailing.map(|t| TrailingTip {
+                    channel: t.min(255) as u8,
+                    spacing: quant::spacing(p.tip_spacing_mm.unwrap_or(0.0) as f32),
+                }),
+                elevation: quant::length(p.elevation_mm as f32),
+                x: quant::length(p.x_mm as f32),
+            };
+            if d.probes.push(layout).is_err() {
+                break;
+            }
+        }
+        d
+    }
+
+    fn new_chain(&self, config: ChainConfig<MAX_PROBES>) -> Result<Box<HostChain>, NackReason> {
+        HostChain::new(config)
+            .map(Box::new)
+            .map_err(|_| NackReason::BadArgument)
+    }
+
+    fn start_run(&mut self, now: Instant) {
+        if self.running {
+            self.end_run();
+        }
+        match self.new_chain(self.config.clone()) {
+            Ok(c) => self.chain = Some(c),
+            Err(_) => return,
+        }
+        self.pos = 0;
+        self.offset = 0;
+        self.run_t0 = now;
+        self.running = true;
+        self.stats.runs += 1;
+    }
+
+    /// Close the current chain: its open window comes out (flagged partial).
+    fn close_chain(&mut self) {
+        let Some(mut chain) = self.chain.take() else {
+            return;
+        };
+        while chain.finish().is_err() {
+            self.drain(&mut chain);
+        }
+        self.drain(&mut chain);
+    }
+
+    fn end_run(&mut self) {
+        self.close_chain();
+        self.running = false;
+    }
+
+    /// Rebuild the chain at the current position with `config` (SetWindow, Relearn).
+    fn rebuild(&mut self, config: ChainConfig<MAX_PROBES>) -> Result<(), NackReason> {
+        let chain = self.new_chain(config.clone())?;
+        self.config = config;
+        if self.running {
+            self.close_chain();
+            self.offset = self.pos as u64;
+            self.chain = Some(chain);
+        }
+        Ok(())
+    }
+
+    fn drain(&mut self, chain: &mut HostChain) {
+        let fs = self.cap.sample_rate;
+        while let Some(mut r) = chain.poll() {
+            r.start += self.offset;
+            r.end += self.offset;
+            self.note_record(&r);
+            self.stats.records += 1;
+            let spacing = self
+                .cap
+                .layout
+                .probes
+                .get(r.probe as usize)
+                .and_then(|p| p.tip_spacing_mm);
+            self.streamer.offer_window(wire_result(&r, fs, spacing));
+        }
+    }
+
+    fn note_record(&mut self, r: &ProbeWindow) {
+        let Some(p) = self.config.probes.get(r.probe as usize) else {
+            return;
+        };
+        let rails = r.lead.rail_frames + r.trail.as_ref().map_or(0, |t| t.rail_frames);
+        self.health.saturated_samples = self.health.saturated_samples.saturating_add(rails);
+        let bit = |ch: u8| 1u64.checked_shl(ch as u32).unwrap_or(0);
+        let lead = bit(p.leading.channel);
+        if r.flags.contains(Flags::STUCK) {
+            self.stuck_bits |= lead;
+        } else {
+            self.stuck_bits &= !lead;
+        }
+        if let Some(t) = &p.trailing {
+            let b = bit(t.channel);
+            if r.flags.contains(Flags::TRAILING_STUCK) {
+                self.stuck_bits |= b;
+            } else {
+                self.stuck_bits &= !b;
+            }
+        }
+    }
+
+    /// Command bytes from the host.
+    pub fn input(&mut self, bytes: &[u8], now: Instant) {
+        for &b in bytes {
+            if b != 0 {
+                if self.rx.len() < wire::MAX_FRAME_BYTES {
+                    self.rx.push(b);
+                } else {
+                    self.rx_overflow = true;
+                }
+                continue;
+            }
+            let mut frame = std::mem::take(&mut self.rx);
+            let overflow = std::mem::replace(&mut self.rx_overflow, false);
+            if frame.is_empty() {
+                continue;
+            }
+            if overflow {
+                self.stats.unreadable += 1;
+                continue;
+            }
+            self.command(&mut frame, now);
+            frame.clear();
+            self.rx = frame;
+        }
+    }
+
+    fn reply(&mut self, seq: u16, result: Result<(), NackReason>) {
+        match result {
+            Ok(()) => {
+                self.stats.acks += 1;
+                self.streamer.offer(Body::Ack(Ack { seq }));
+            }
+            Err(reason) => {
+                self.stats.nacks += 1;
+                self.streamer.offer(Body::Nack(Nack { seq, reason }));
+            }
+        }
+    }
+
+    fn command(&mut self, bytes: &mut [u8], now: Instant) {
+        let frame = match wire::decode(bytes) {
+            Ok(f) => f,
+            Err(WireError::UnsupportedVersion(h)) => {
+                return self.reply(h.seq, Err(NackReason::UnsupportedVersion))
+            }
+            Err(WireError::UnknownKind(h)) => {
+                return self.reply(h.seq, Err(NackReason::UnknownCommand))
+            }
+            Err(WireError::Malformed) => {
+                // The CRC matched, so the header at the front of the unstuffed bytes is
+                // what the host sent: refuse the command by its sequence number.
+                return match header_seq(bytes) {
+                    Some(seq) => self.reply(seq, Err(NackReason::BadArgument)),
+                    None => self.stats.unreadable += 1,
+                };
+            }
+            Err(_) => {
+                self.stats.unreadable += 1;
+                return;
+            }
+        };
+        let seq = frame.seq;
+        let result = match frame.body {
+            Body::StartRun(_) => {
+                self.start_run(now);
+                Ok(())
+            }
+            Body::StopRun => {
+                if self.running {
+                    self.end_run();
+                    Ok(())
+                } else {
+                    Err(NackReason::NotRunning)
+                }
+            }
+            Body::SetWindow(s) => match s.to_policy() {
+                Some(policy) if policy.is_valid() => {
+                    let mut cfg = self.config.clone();
+                    cfg.window = policy;
+                    let r = self.rebuild(cfg);
+                    if r.is_ok() {
+                        let d = self.description();
+                        self.streamer.offer(Body::Describe(d));
+                    }
+                    r
+                }
+                _ => Err(NackReason::BadArgument),
+            },
+            Body::Relearn(r) => {
+                let n = self.config.probes.len();
+                let all = if n >= 32 { u32::MAX } else { (1u32 << n) - 1 };
+                if r.probes & all == 0 {
+                    Err(NackReason::BadArgument)
+                } else {
+                    self.rebuild(self.config.clone())
+                }
+            }
+            Body::DescribeRequest => {
+                let d = self.description();
+                self.streamer.offer(Body::Describe(d));
+                Ok(())
+            }
+            // A result or reply kind sent to the device is no command it knows.
+            _ => Err(NackReason::UnknownCommand),
+        };
+        self.reply(seq, result);
+    }
+
+    /// Run the sample clock up to `now`: push the frames due, queue the records, end the run
+    /// at the end of the capture, queue health every period.
+    pub fn advance(&mut self, now: Instant) {
+        if self.running {
+            let fs = self.cap.sample_rate as f64;
+            let due = (now.duration_since(self.run_t0).as_secs_f64() * fs * self.opts.speed)
+                .floor()
+                .min(self.cap.frames() as f64) as usize;
+            let backlog = due.saturating_sub(self.pos);
+            let samples = backlog.saturating_mul(self.cap.channels);
+            self.health.buffer_high_water = self
+                .health
+                .buffer_high_water
+                .max(u32::try_from(samples).unwrap_or(u32::MAX));
+            // Bounded work per step: at most about a tenth of a second of samples.
+            let step = ((fs * self.opts.speed.max(1.0)) as usize / 10).max(1024);
+            let upto = due.min(self.pos + step);
+            if upto > self.pos {
+                let ch = self.cap.channels;
+                let samples = Arc::clone(&self.cap.samples);
+                let block = &samples[self.pos * ch..upto * ch];
+                if let Some(mut chain) = self.chain.take() {
+                    let mut rest = block;
+                    while !rest.is_empty() {
+                        let used = chain.push(rest);
+                        rest = &rest[used..];
+                        self.drain(&mut chain);
+                    }
+                    self.chain = Some(chain);
+                }
+                self.pos = upto;
+            }
+            if self.pos >= self.cap.frames() {
+                self.end_run();
+                if self.opts.repeat {
+                    self.start_run(now);
+                }
+            }
+        }
+        if self
+            .last_health
+            .is_none_or(|t| now.duration_since(t) >= self.opts.health_every)
+        {
+            self.last_health = Some(now);
+            let fs = self.cap.sample_rate as f64 * self.opts.speed;
+            let mut h = self.health;
+            h.tips_stuck = self.stuck_bits;
+            h.uptime_frames = (now.duration_since(self.power_on).as_secs_f64() * fs) as u64;
+            self.streamer.offer(Body::Health(h));
+        }
+    }
+
+    /// Bytes for the link at `now`, within the link's byte budget.
+    pub fn output(&mut self, now: Instant, out: &mut Vec<u8>) {
+        let t = now.duration_since(self.power_on).as_micros() as u64;
+        while let Some(b) = self.streamer.poll(t, 4096) {
+            out.extend_from_slice(b);
+        }
+    }
+
+    /// Run on `port` until `stop` is set. The port's reads should time out quickly (a few
+    /// milliseconds): they pace the loop. Errors of the port never end the loop.
+    pub fn run<P: Read + Write>(mut self, port: &mut P, stop: &AtomicBool) -> SimStats {
+        let mut buf = vec![0u8; 1024];
+        let mut out = Vec::new();
+        while !stop.load(Ordering::Relaxed) {
+            match port.read(&mut buf) {
+                Ok(n) if n > 0 => self.input(&buf[..n], Instant::now()),
+                Ok(_) => {}
+                Err(e) => match e.kind() {
+                    std::io::ErrorKind::TimedOut
+                    | std::io::ErrorKind::WouldBlock
+                    | std::io::ErrorKind::Interrupted => {}
+                    // No host on the other end (a pty without its peer): wait a little.
+                    _ => std::thread::sleep(Duration::from_millis(5)),
+                },
+            }
+            let now = Instant::now();
+            self.advance(now);
+            out.clear();
+            self.output(now, &mut out);
+            if !out.is_empty() {
+                if let Err(left) = write_all_within(port, &out, Duration::from_millis(500)) {
+                    self.stats.bytes_not_written += left as u64;
+                }
+            }
+        }
+        self.stats()
+    }
+}
+
+/// The wire form of a record as the device sends it: the core's
+/// [`WindowResult::from_probe_window_with_spacing`] (velocity from the tip spacing and the
+/// peak lag, peak coefficient and Tu), with the layout's spacing.
+pub fn wire_result(
+    rec: &ProbeWindow,
+    sample_rate: u32,
+    tip_spacing_mm: Option<f64>,
+) -> WindowResult {
+    WindowResult::from_probe_window_with_spacing(
+        rec,
+        sample_rate as f32,
+        tip_spacing_mm.map(|mm| mm as f32),
+    )
+}
+
+/// Stack size of a device thread: the chain is built on the stack before it is boxed, and
+/// a host chain of 32 probes is large in a debug build.
+pub const THREAD_STACK: usize = 64 << 20;
+
+/// Start a simulated device on its own thread, talking on `port` until `stop` is set.
+pub fn spawn<P: Read + Write + Send + 'static>(
+    cap: SimCapture,
+    opts: SimOptions,
+    mut port: P,
+    stop: Arc<AtomicBool>,
+) -> std::io::Result<std::thread::JoinHandle<Result<SimStats, HostError>>> {
+    std::thread::Builder::new()
+        .name(format!("sim-device-{}", opts.device))
+        .stack_size(THREAD_STACK)
+        .spawn(move || {
+            let device = SimDevice::new(cap, opts, Instant::now())?;
+            Ok(device.run(&mut port, &stop))
+        })
+}
+
+/// Write all of `bytes`, retrying on timeouts for at most `within`; on failure the number of
+/// bytes not written.
+fn write_all_within<P: Write>(port: &mut P, bytes: &[u8], within: Duration) -> Result<(), usize> {
+    let end = Instant::now() + within;
+    let mut rest = bytes;
+    while !rest.is_empty() {
+        match port.write(rest) {
+            Ok(0) => return Err(rest.len()),
+            Ok(n) => rest = &rest[n..],
+            Err(e)
+                if matches!(
+                    e.kind(),
+                    std::io::ErrorKind::TimedOut
+                        | std::io::ErrorKind::WouldBlock
+                        | std::io::ErrorKind::Interrupted
+                ) && Instant::now() < end => {}
+            Err(_) => return Err(rest.len()),
+        }
+    }
+    Ok(())
+}
+
+/// The sequence number of the header at the front of an unstuffed payload.
+fn header_seq(b: &[u8]) -> Option<u16> {
+    fn varint(b: &[u8], pos: &mut usize) -> Option<u64> {
+        let mut v = 0u64;
+        for shift in (0..64).step_by(7) {
+            let byte = *b.get(*pos)?;
+            *pos += 1;
+            v |= ((byte & 0x7F) as u64) << shift;
+            if byte & 0x80 == 0 {
+                return Some(v);
+            }
+        }
+        None
+    }
+    let mut pos = 1; // version
+    varint(b, &mut pos)?; // device
+    pos += 1; // kind
+    u16::try_from(varint(b, &mut pos)?).ok()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::commands::{Command, CommandLog};
+    use frothline_core::wire::{Decoder, FeedResult, Frame, Kind, MAX_FRAME_BYTES};
+
+    fn big_stack<F: FnOnce() + Send + 'static>(f: F) {
+        let h = std::thread::Builder::new()
+            .stack_size(THREAD_STACK)
+            .spawn(f)
+            .unwrap();
+        if let Err(e) = h.join() {
+            std::panic::resume_unwind(e);
+        }
+    }
+
+    fn capture() -> SimCapture {
+        let mut s = crate::synth::Scenario::builtin_default();
+        s.duration_s = 0.5;
+        s.sample_rate_hz = 20_000;
+        s.replicate(2);
+        SimCapture::from_scenario(&s, "100ms".parse().unwrap()).unwrap()
+    }
+
+    /// Step the device by `secs` of wall time (in 10 ms steps from `t`), collecting frames.
+    fn step(d: &mut SimDevice, t: &mut Instant, secs: f64, dec: &mut Decoder) -> Vec<Frame> {
+        let mut frames = Vec::new();
+        let mut out = Vec::new();
+        for _ in 0..(secs / 0.01).round() as usize {
+            *t += Duration::from_millis(10);
+            d.advance(*t);
+            out.clear();
+            d.output(*t, &mut out);
+            let mut rest = &out[..];
+            while !rest.is_empty() {
+                let r = dec.feed(rest);
+                rest = r.remaining();
+                if let FeedResult::Frame { frame, .. } = r {
+                    frames.push(frame);
+                }
+            }
+        }
+        frames
+    }
+
+    fn replies(frames: &[Frame]) -> Vec<(u16, Option<NackReason>)> {
+        frames
+            .iter()
+            .filter_map(|f| match &f.body {
+                Body::Ack(a) => Some((a.seq, None)),
+                Body::Nack(n) => Some((n.seq, Some(n.reason))),
+                _ => None,
+            })
+            .collect()
+    }
+
+    #[test]
+    fn commands_are_answered_and_bad_ones_refused() {
+        big_stack(|| {
+            let t0 = Instant::now();
+            let mut t = t0;
+            let opts = SimOptions {
+                autostart: false,
+                baud: 0,
+                ..SimOptions::default()
+            };
+            let mut d = SimDevice::new(capture(), opts, t0).unwrap();
+            let mut dec: Decoder = Decoder::new();
+            let first = step(&mut d, &mut t, 0.05, &mut dec);
+            assert!(
+                matches!(first[0].body, Body::Describe(_)),
+                "describe at power on"
+            );
+            assert!(first.iter().any(|f| matches!(f.body, Body::Health(_))));
+            let mut log = CommandLog::default();
+            let mut send = |d: &mut SimDevice, c: Command| {
+                let (seq, b) = log.encode(&c).unwrap();
+                d.input(&b, t0);
+                seq
+            };
+            // Not running yet: StopRun is refused.
+            let s_stop = send(&mut d, Command::StopRun);
+            // A zero-length window, and a re-learn of no probe, are bad arguments.
+            let s_zero = send(&mut d, Command::SetWindow(WindowSetting::Frames(0)));
+            let s_mask = send(&mut d, Command::Relearn(1 << 20));
+            let s_desc = send(&mut d, Command::DescribeRequest);
+            let s_start = send(&mut d, Command::StartRun("t".into()));
+            let got = step(&mut d, &mut t, 0.05, &mut dec);
+            assert_eq!(
+                replies(&got),
+                vec![
+                    (s_stop, Some(NackReason::NotRunning)),
+                    (s_zero, Some(NackReason::BadArgument)),
+                    (s_mask, Some(NackReason::BadArgument)),
+                    (s_desc, None),
+                    (s_start, None),
+                ]
+            );
+            assert!(got.iter().any(|f| matches!(f.body, Body::Describe(_))));
+            assert!(d.running());
+
+            // A frame of a device kind, a frame of an unknown kind, a payload that does not
+            // parse, and line noise.
+            let mut buf = [0u8; MAX_FRAME_BYTES];
+            let ack = Frame {
+                device: 0xFFFF,
+                seq: 900,
+                body: Body::Ack(frothline_core::wire::Ack { seq: 1 }),
+            };
+            d.input(wire::encode(&ack, &mut buf).unwrap(), t);
+            let mut payload = vec![1u8, 0x7F, 0x7E, 0x85, 0x07]; // kind 0x7E, seq 901
+            let crc = wire::crc32(&payload);
+            payload.extend_from_slice(&crc.to_le_bytes());
+            d.input(&cobs(&payload), t);
+            let mut bad = vec![1u8, 0x7F, Kind::SetWindow.code(), 0x86, 0x07, 9]; // seq 902, variant 9
+            let crc = wire::crc32(&bad);
+            bad.extend_from_slice(&crc.to_le_bytes());
+            d.input(&cobs(&bad), t);
+            d.input(&[0x55, 0x13, 0x00, 0xFF, 0xFF, 0x00], t);
+            let got = step(&mut d, &mut t, 0.05, &mut dec);
+            assert_eq!(
+                replies(&got),
+                vec![
+                    (900, Some(NackReason::UnknownCommand)),
+                    (901, Some(NackReason::UnknownCommand)),
+                    (902, Some(NackReason::BadArgument)),
+                ]
+            );
+            assert_eq!(d.stats().unreadable, 2);
+
+            // SetWindow rebuilds the chain: windows of 50 ms from here on, continuing the
+            // run's sample clock.
+            let s_win = send(&mut d, Command::SetWindow(WindowSetting::Frames(1000)));
+            let got = step(&mut d, &mut t, 0.6, &mut dec);
+            assert_eq!(replies(&got)[0], (s_win, None));
+            let windows: Vec<WindowResult> = got
+                .iter()
+                .flat_map(|f| match &f.body {
+                    Body::Windows(w) => w.to_vec(),
+                    _ => vec![],
+                })
+                .collect();
+            assert!(windows.iter().any(|w| w.frames == 1000));
+            let mut starts: Vec<u64> = windows.iter().map(|w| w.start).collect();
+            starts.dedup();
+            assert!(starts.windows(2).all(|p| p[0] < p[1]), "{starts:?}");
+            // The capture ended: the run is over, StopRun is refused again.
+            assert!(!d.running());
+            let s = send(&mut d, Command::StopRun);
+            let got = step(&mut d, &mut t, 0.05, &mut dec);
+            assert_eq!(replies(&got), vec![(s, Some(NackReason::NotRunning))]);
+            assert_eq!(dec.stats().lost, 0);
+        });
+    }
+
+    fn cobs(data: &[u8]) -> Vec<u8> {
+        let mut out = vec![0u8];
+        let mut code_at = 0;
+        for &b in data {
+            if b == 0 || out.len() - code_at == 0xFF {
+                out[code_at] = (out.len() - code_at) as u8;
+                code_at = out.len();
+                out.push(0);
+                if b == 0 {
+                    continue;
+                }
+            }
+            out.push(b);
+        }
+        out[code_at] = (out.len() - code_at) as u8;
+        out.push(0);
+        out
+    }
+}
