@@ -3,7 +3,7 @@
 
 use frothline_core::WindowPolicy;
 use frothline_host::layout::Layout;
-use frothline_host::rig::HostRecord as ProbeWindow;
+use frothline_host::rig::FullRecord as ProbeWindow;
 use frothline_host::rig::{chain_config, Counts, HostChain};
 use frothline_host::synth::{output::layout_toml, Generator, Scenario};
 use std::path::Path;

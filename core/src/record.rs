@@ -71,6 +71,10 @@ pub struct ProbeWindow<const L: usize = DEFAULT_LAGS> {
     pub start: u64,
     /// One past the last frame of the window.
     pub end: u64,
+    /// Station chains (transient flows): `start` minus the station's front arrival, frames
+    /// (negative before the front). `None` in steady chains, and for windows that closed
+    /// before the statistics reached the front (the arrival was not fixed yet).
+    pub since_front: Option<i64>,
     /// The leading tip: the probe's statistics.
     pub lead: TipStats,
     /// The trailing tip, if the probe has one.
@@ -85,4 +89,35 @@ pub struct ProbeWindow<const L: usize = DEFAULT_LAGS> {
     /// The exact correlation sums behind `correlation`, lag by lag (for ensemble averaging
     /// over runs: see [`CorrelationSums::merge`]).
     pub correlation_sums: Option<CorrelationSums<L>>,
+}
+
+impl<const L: usize> ProbeWindow<L> {
+    /// The same record without its raw correlation sums, as a record type of `M` lag slots
+    /// (pick a small `M`): what a consumer keeps when it only needs the results. Moving a
+    /// record moves its sums too (`28 L` bytes), so a host that stores or sends many records
+    /// converts them first.
+    pub fn without_sums<const M: usize>(&self) -> ProbeWindow<M> {
+        let ProbeWindow {
+            probe,
+            start,
+            end,
+            since_front,
+            lead,
+            trail,
+            flags,
+            correlation,
+            correlation_sums: _,
+        } = self;
+        ProbeWindow {
+            probe: *probe,
+            start: *start,
+            end: *end,
+            since_front: *since_front,
+            lead: lead.clone(),
+            trail: trail.clone(),
+            flags: *flags,
+            correlation: *correlation,
+            correlation_sums: None,
+        }
+    }
 }

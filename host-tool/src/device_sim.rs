@@ -28,7 +28,7 @@
 
 use crate::error::HostError;
 use crate::layout::Layout;
-use crate::rig::HostRecord as ProbeWindow;
+use crate::rig::FullRecord as ProbeWindow;
 use crate::rig::{chain_config, Counts, HostChain, MAX_PROBES};
 use crate::window_spec::WindowSpec;
 use frothline_core::wire::{
@@ -623,8 +623,8 @@ impl SimDevice {
 /// The wire form of a record as the device sends it: the core's
 /// [`WindowResult::from_probe_window_with_spacing`] (velocity from the tip spacing and the
 /// peak lag, peak coefficient and Tu), with the layout's spacing.
-pub fn wire_result(
-    rec: &ProbeWindow,
+pub fn wire_result<const L: usize>(
+    rec: &frothline_core::ProbeWindow<L>,
     sample_rate: u32,
     tip_spacing_mm: Option<f64>,
 ) -> WindowResult {
@@ -849,6 +849,58 @@ mod tests {
             let got = step(&mut d, &mut t, 0.05, &mut dec);
             assert_eq!(replies(&got), vec![(s, Some(NackReason::NotRunning))]);
             assert_eq!(dec.stats().lost, 0);
+        });
+    }
+
+    /// Line noise, cut and mutated command frames, in random chunks: the device never
+    /// panics, and replies only to frames whose CRC holds.
+    #[test]
+    fn random_input_never_crashes_the_device() {
+        big_stack(|| {
+            use rand::{Rng, SeedableRng};
+            let mut rng = rand::rngs::StdRng::seed_from_u64(7);
+            let t0 = Instant::now();
+            let opts = SimOptions {
+                baud: 0,
+                ..SimOptions::default()
+            };
+            let mut d = SimDevice::new(capture(), opts, t0).unwrap();
+            let mut log = CommandLog::default();
+            let cmds = [
+                Command::StartRun("x".into()),
+                Command::StopRun,
+                Command::SetWindow(WindowSetting::Frames(500)),
+                Command::SetWindow(WindowSetting::Bubbles {
+                    count: 3,
+                    probe: 9,
+                    max_frames: None,
+                }),
+                Command::Relearn(u32::MAX),
+                Command::DescribeRequest,
+            ];
+            let mut t = t0;
+            let mut dec: Decoder = Decoder::new();
+            let mut sent = 0u64;
+            for i in 0..3000 {
+                let mut bytes = if rng.random_bool(0.5) {
+                    let (_, b) = log.encode(&cmds[i % cmds.len()]).unwrap();
+                    sent += 1;
+                    b
+                } else {
+                    (0..rng.random_range(0..40)).map(|_| rng.random()).collect()
+                };
+                if rng.random_bool(0.3) && !bytes.is_empty() {
+                    let k = rng.random_range(0..bytes.len());
+                    bytes[k] ^= 1 << rng.random_range(0..8);
+                }
+                d.input(&bytes, t);
+                if i % 50 == 0 {
+                    step(&mut d, &mut t, 0.02, &mut dec);
+                }
+            }
+            let s = d.stats();
+            assert!(s.acks + s.nacks <= sent + 1500, "{s:?}");
+            assert!(s.acks > 0 && s.unreadable > 0, "{s:?}");
         });
     }
 

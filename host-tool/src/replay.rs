@@ -137,7 +137,7 @@ fn push_all<E>(
         let used = chain.push(rest);
         rest = &rest[used..];
         while let Some(r) = chain.poll() {
-            sink(r)?;
+            sink(r.without_sums())?;
         }
     }
     Ok(())
@@ -150,11 +150,11 @@ fn finish_all<E>(
 ) -> Result<(), E> {
     while chain.finish().is_err() {
         while let Some(r) = chain.poll() {
-            sink(r)?;
+            sink(r.without_sums())?;
         }
     }
     while let Some(r) = chain.poll() {
-        sink(r)?;
+        sink(r.without_sums())?;
     }
     Ok(())
 }
@@ -329,9 +329,6 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
             spacing[r.probe as usize],
         )
         .map_err(csv_err)?;
-        // The summary keeps the results, not the raw correlation sums (28 KiB a record).
-        let mut r = r;
-        r.correlation_sums = None;
         records.push(r);
         Ok(())
     });

@@ -20,8 +20,12 @@ pub const HOST_LAGS: usize = 1024;
 /// The chain type the host runs.
 pub type HostChain = frothline_core::Chain<MAX_PROBES, HOST_LAGS>;
 
-/// The records of a [`HostChain`].
-pub type HostRecord = frothline_core::ProbeWindow<HOST_LAGS>;
+/// The records of a [`HostChain`] (with their raw correlation sums, 28 KiB each).
+pub type FullRecord = frothline_core::ProbeWindow<HOST_LAGS>;
+
+/// A record as the host keeps and passes it around: results only, without the raw
+/// correlation sums ([`FullRecord::without_sums`]), so storing thousands stays cheap.
+pub type HostRecord = frothline_core::ProbeWindow<4>;
 
 /// How the host maps file units to counts (the capture's conversion).
 pub trait ToCounts {
