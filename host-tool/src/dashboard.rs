@@ -285,12 +285,34 @@ fn fit(s: String, w: u16, right: bool) -> String {
     }
 }
 
-fn draw_probes(f: &mut Frame, area: Rect, state: &LiveState) {
-    let header = Row::new(
-        PROBE_COLUMNS
+/// Which probe columns fit in `width` cells: the less important ones go first (bubbles,
+/// correlation peak, chord, Tu, ...), so a narrow terminal loses columns instead of cutting
+/// numbers. Column indices into [`PROBE_COLUMNS`], in order.
+pub fn probe_columns_that_fit(width: u16) -> Vec<usize> {
+    // Lower keeps longer; the flags column (last) takes the rest of the width.
+    const KEEP: [u8; 10] = [0, 0, 0, 1, 2, 4, 5, 6, 7, 3];
+    let mut cols: Vec<usize> = (0..PROBE_COLUMNS.len()).collect();
+    let need =
+        |cols: &[usize]| -> u16 { cols.iter().map(|&i| PROBE_COLUMNS[i].1 + 1).sum::<u16>() };
+    while need(&cols) > width + 1 && cols.len() > 3 {
+        let drop = cols
             .iter()
-            .map(|(h, w, r)| Cell::from(fit(h.to_string(), *w, *r))),
-    )
+            .enumerate()
+            .max_by_key(|(_, &i)| (KEEP[i], i))
+            .map(|(k, _)| k)
+            .unwrap_or(0);
+        cols.remove(drop);
+    }
+    cols
+}
+
+fn draw_probes(f: &mut Frame, area: Rect, state: &LiveState) {
+    let cols = probe_columns_that_fit(area.width.saturating_sub(2));
+    let last = PROBE_COLUMNS.len() - 1;
+    let header = Row::new(cols.iter().map(|&i| {
+        let (h, w, r) = PROBE_COLUMNS[i];
+        Cell::from(fit(h.to_string(), w, r))
+    }))
     .style(Style::default().fg(ACCENT).add_modifier(Modifier::BOLD));
     let multi = state.devices.len() > 1;
     let rows: Vec<Row> = probe_rows(state)
@@ -321,39 +343,50 @@ fn draw_probes(f: &mut Frame, area: Rect, state: &LiveState) {
                     format!("{:>7}", "-")
                 },
             ];
-            let mut cells: Vec<Cell> = v
-                .into_iter()
-                .zip(PROBE_COLUMNS.iter())
-                .map(|(s, (_, w, r))| Cell::from(fit(s, *w, *r)))
+            let cells: Vec<Cell> = cols
+                .iter()
+                .map(|&i| {
+                    if i == last {
+                        Cell::from(Span::styled(
+                            if p.windows > 0 {
+                                flag_words(p.flags)
+                            } else {
+                                "waiting".into()
+                            },
+                            style,
+                        ))
+                    } else {
+                        let (_, w, r) = PROBE_COLUMNS[i];
+                        Cell::from(fit(v[i].clone(), w, r))
+                    }
+                })
                 .collect();
-            cells.push(Cell::from(Span::styled(
-                if p.windows > 0 {
-                    flag_words(p.flags)
-                } else {
-                    "waiting".into()
-                },
-                style,
-            )));
             Row::new(cells)
         })
         .collect();
-    let widths: Vec<Constraint> = PROBE_COLUMNS
+    let widths: Vec<Constraint> = cols
         .iter()
-        .enumerate()
-        .map(|(i, (_, w, _))| {
-            if i + 1 == PROBE_COLUMNS.len() {
-                Constraint::Min(*w)
+        .map(|&i| {
+            let w = PROBE_COLUMNS[i].1;
+            if i == last {
+                Constraint::Min(w)
             } else {
-                Constraint::Length(*w)
+                Constraint::Length(w)
             }
         })
         .collect();
     let t = Table::new(rows, widths)
         .header(header)
         .column_spacing(1)
-        .block(Block::default().borders(Borders::ALL).title(title(
-            " probes: latest window, highest first (chord = median bubble chord) ",
-        )));
+        .block(
+            Block::default()
+                .borders(Borders::ALL)
+                .title(title(if area.width >= 74 {
+                    " probes: latest window, highest first (chord = median bubble chord) "
+                } else {
+                    " probes: latest window, highest first "
+                })),
+        );
     f.render_widget(t, area);
 }
 
@@ -675,6 +708,12 @@ mod tests {
     fn dashboard_shows_probe_rows_and_link_health() {
         let now = Instant::now();
         let s = state(now);
+        // A narrow terminal stays readable (columns cut at the right, never shifted).
+        let narrow = render_text(&s, now, 100, 30);
+        println!("{}", narrow.join("\n"));
+        assert!(narrow
+            .iter()
+            .any(|l| l.contains("B2-4") && l.contains("  65.0  0.800   110.0    2.70")));
         let lines = render_text(&s, now, 132, 34);
         println!("{}", lines.join("\n"));
         let text = lines.join("\n");

@@ -357,6 +357,16 @@ struct Watch<'a> {
 }
 
 impl Watch<'_> {
+    /// A history line (and a `#` line in plain mode).
+    fn note(&mut self, line: String) {
+        if let Some(out) = self.out.as_mut() {
+            if writeln!(out, "# {line}").is_err() {
+                self.quit = true;
+            }
+        }
+        self.live.note(line);
+    }
+
     fn emit(&mut self, events: Vec<Event>) {
         let now = Instant::now();
         for e in &events {
@@ -417,7 +427,7 @@ impl Watch<'_> {
                             };
                             match setting {
                                 Ok(s) => self.send(port, Command::SetWindow(s)),
-                                Err(e) => self.live.note(format!(
+                                Err(e) => self.note(format!(
                                     "{}: cannot set the window: {e}",
                                     self.opts.ports[port]
                                 )),
@@ -432,19 +442,18 @@ impl Watch<'_> {
     fn send(&mut self, port: usize, cmd: Command) {
         let name = self.opts.ports[port].clone();
         let Some(w) = self.writers.get_mut(port).and_then(|w| w.as_mut()) else {
-            self.live
-                .note(format!("{name}: link down, command not sent"));
+            self.note(format!("{name}: link down, command not sent"));
             return;
         };
         let (seq, bytes) = match self.session.encode_command(port, &cmd) {
             Ok(x) => x,
             Err(e) => {
-                self.live.note(format!("{name}: {e}"));
+                self.note(format!("{name}: {e}"));
                 return;
             }
         };
         if let Err(e) = w.write_all(&bytes) {
-            self.live.note(format!("{name}: cannot send command: {e}"));
+            self.note(format!("{name}: cannot send command: {e}"));
             return;
         }
         if let Command::StartRun(label) = &cmd {
@@ -452,7 +461,7 @@ impl Watch<'_> {
         }
         match self.session.sent(port, crate::archive::now_us(), &bytes) {
             Ok(ev) => self.emit(ev),
-            Err(e) => self.live.note(format!("archive: {e}")),
+            Err(e) => self.note(format!("archive: {e}")),
         }
     }
 
@@ -472,12 +481,9 @@ impl Watch<'_> {
             }
             LinkMsg::OpenFailed { port, reason } => {
                 let name = self.opts.ports[port].clone();
-                self.live.note(format!(
+                self.note(format!(
                     "{name}: cannot open ({reason}); trying every second"
                 ));
-                if let Some(out) = self.out.as_mut() {
-                    let _ = writeln!(out, "# {name}: cannot open ({reason}); trying every second");
-                }
             }
             LinkMsg::Bytes { port, t_us, bytes } => {
                 let before = self.session.decoder_stats(port).map_or(0, |s| s.frames);
@@ -533,6 +539,14 @@ pub fn run_with(
     if let Some(p) = session.archive_path() {
         live.note(format!("archiving every byte to {}", p.display()));
     }
+    let mut term = if ui == Ui::Dashboard {
+        Some(
+            ratatui::try_init()
+                .map_err(|e| HostError::Usage(format!("cannot use the terminal: {e}")))?,
+        )
+    } else {
+        None
+    };
     let (tx, rx): (Sender<LinkMsg>, Receiver<LinkMsg>) = mpsc::channel();
     let reader_stop = Arc::new(AtomicBool::new(false));
     let readers: Vec<JoinHandle<()>> = opts
@@ -549,6 +563,9 @@ pub fn run_with(
     let out = (ui == Ui::Plain).then(std::io::stdout);
     if let Some(mut o) = out.as_ref().map(|o| o.lock()) {
         let _ = writeln!(o, "# {SAFETY_LINE}");
+        if let Some(p) = session.archive_path() {
+            let _ = writeln!(o, "# archiving every byte to {}", p.display());
+        }
     }
     let mut w = Watch {
         opts,
@@ -560,14 +577,6 @@ pub fn run_with(
         out,
         quit: false,
         observer,
-    };
-    let mut term = if ui == Ui::Dashboard {
-        Some(
-            ratatui::try_init()
-                .map_err(|e| HostError::Usage(format!("cannot use the terminal: {e}")))?,
-        )
-    } else {
-        None
     };
     let result = main_loop(&mut w, &rx, &stop, t0, term.as_mut());
     if term.is_some() {
