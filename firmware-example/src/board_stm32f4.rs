@@ -1,0 +1,372 @@
+//! A real board: NUCLEO-F411RE (STM32F411RE, Cortex-M4F at 100 MHz, 128 KiB SRAM), through
+//! `stm32f4xx-hal`. Builds here (`--no-default-features --features board-stm32f4`); wiring
+//! and flashing are in docs/firmware.md.
+//!
+//! ```text
+//! TIM2 update (TRGO) at the sample rate
+//!   -> ADC1 scans 16 inputs (one frame), DMA2 stream 0 writes them into buffer A or B
+//!      (double-buffer mode, DMA_FRAMES frames per buffer)
+//!   -> DMA transfer-complete interrupt: swap in the spare buffer, convert the finished one
+//!      into the acquisition (12-bit codes << 3 -> i16 counts 0..32760), which hands full
+//!      blocks to the main loop through the same spsc queues as the emulated board
+//!   -> main loop: chain -> wire frames -> USART1 transmit by DMA2 stream 7
+//! ```
+//!
+//! Inputs (ADC1 rank = channel = tip): PA0..PA7 -> 0..7, PB0, PB1 -> 8, 9, PC0..PC5 ->
+//! 10..15. PA2/PA3 also carry the ST-LINK virtual COM port (solder bridges SB13/SB14):
+//! open them to use those two inputs; results go out of USART1 (PA9 TX, PA10 RX) at
+//! 921 600 baud to a 3.3 V USB-serial adapter.
+//!
+//! Timing comes from the DWT cycle counter (the emulated board's TIMER0 stands in for it).
+
+use crate::acquire::{Acquisition, Block, Clock, Filled, HEALTH};
+use crate::config::{BLOCKS, BLOCK_SAMPLES, MAX_CHANNELS};
+use crate::link::Link;
+use crate::pipeline::Pipeline;
+use crate::source::SampleSource;
+use crate::{capture, sys};
+use core::cell::RefCell;
+use core::convert::Infallible;
+use core::sync::atomic::Ordering;
+use cortex_m::peripheral::DWT;
+use cortex_m_rt::entry;
+use critical_section::Mutex;
+use heapless::spsc::Queue;
+use static_cell::ConstStaticCell;
+use stm32f4xx_hal::adc::config::{
+    AdcConfig, Continuous, Dma as AdcDma, ExternalTrigger, SampleTime, Scan, Sequence, TriggerMode,
+};
+use stm32f4xx_hal::adc::Adc;
+use stm32f4xx_hal::dma::config::DmaConfig;
+use stm32f4xx_hal::dma::{
+    MemoryToPeripheral, PeripheralToMemory, Stream0, Stream7, StreamsTuple, Transfer,
+};
+use stm32f4xx_hal::pac::{self, interrupt, ADC1, DMA2, USART1};
+use stm32f4xx_hal::prelude::*;
+use stm32f4xx_hal::rcc::Config as RccConfig;
+use stm32f4xx_hal::serial::{self, Serial, Tx};
+use stm32f4xx_hal::timer::Timer;
+
+/// Core clock, Hz.
+const SYSCLK_HZ: u32 = 100_000_000;
+/// Frames per DMA buffer (one transfer-complete interrupt per this many frames).
+const DMA_FRAMES: usize = 32;
+/// Samples per DMA buffer.
+const DMA_SAMPLES: usize = DMA_FRAMES * MAX_CHANNELS;
+/// Bytes per UART transmit chunk (two chunks: one sending, one filling).
+const TX_CHUNK: usize = 512;
+
+type DmaBuf = [u16; DMA_SAMPLES];
+type AdcTransfer = Transfer<Stream0<DMA2>, 0, Adc<ADC1>, PeripheralToMemory, &'static mut DmaBuf>;
+type UartTransfer = Transfer<Stream7<DMA2>, 4, Tx<USART1>, MemoryToPeripheral, sys::TxChunk>;
+
+/// The cycle counter as the pipeline's clock.
+#[derive(Clone, Copy, Debug)]
+struct CycleClock;
+
+impl Clock for CycleClock {
+    const HZ: u32 = SYSCLK_HZ;
+
+    fn now(&self) -> u32 {
+        DWT::cycle_count()
+    }
+}
+
+/// The frames of a finished DMA buffer, as a sample source for the acquisition.
+struct DmaBlockSource {
+    buf: Option<&'static mut DmaBuf>,
+    pos: usize,
+    channels: usize,
+}
+
+impl SampleSource for DmaBlockSource {
+    type Error = Infallible;
+
+    fn channels(&self) -> usize {
+        self.channels
+    }
+
+    fn fill(&mut self, block: &mut [i16]) -> Result<usize, Infallible> {
+        let Some(buf) = self.buf.as_deref() else {
+            return Ok(0);
+        };
+        let ch = self.channels;
+        let frames = (block.len() / ch).min(DMA_FRAMES - self.pos / ch);
+        let src = &buf[self.pos..self.pos + frames * ch];
+        for (d, &s) in block.iter_mut().zip(src) {
+            // 12-bit right-aligned code -> 0..32760 counts (0 to 3.3 V).
+            *d = ((s & 0x0fff) << 3) as i16;
+        }
+        self.pos += frames * ch;
+        Ok(frames)
+    }
+}
+
+/// What the DMA interrupt owns.
+struct AdcIsr {
+    transfer: AdcTransfer,
+    spare: Option<&'static mut DmaBuf>,
+    acq: Acquisition<DmaBlockSource, CycleClock>,
+}
+
+static ADC_ISR: Mutex<RefCell<Option<AdcIsr>>> = Mutex::new(RefCell::new(None));
+
+#[interrupt]
+fn DMA2_STREAM0() {
+    static mut STATE: Option<AdcIsr> = None;
+    if STATE.is_none() {
+        *STATE = critical_section::with(|cs| ADC_ISR.borrow_ref_mut(cs).take());
+    }
+    let Some(st) = STATE.as_mut() else {
+        return;
+    };
+    let Some(spare) = st.spare.take() else {
+        return;
+    };
+    match st.transfer.next_transfer(spare) {
+        Ok((done, _)) => {
+            let src = st.acq.source_mut();
+            src.buf = Some(done);
+            src.pos = 0;
+            st.acq.tick();
+            st.spare = st.acq.source_mut().buf.take();
+        }
+        Err(e) => {
+            use stm32f4xx_hal::dma::DMAError;
+            let (DMAError::NotReady(b) | DMAError::SmallBuffer(b) | DMAError::Overrun(b)) = e;
+            st.spare = Some(b);
+            HEALTH.source_errors.fetch_add(1, Ordering::Relaxed);
+        }
+    }
+}
+
+/// USART1 transmit through DMA as an `embedded_io::Write`: bytes collect in one chunk
+/// while the other is on the wire.
+struct DmaUart {
+    transfer: UartTransfer,
+    filling: Option<sys::TxChunk>,
+    busy: bool,
+}
+
+impl DmaUart {
+    fn idle(&mut self) -> bool {
+        use stm32f4xx_hal::dma::traits::StreamISR;
+        !self.busy || self.transfer.is_transfer_complete()
+    }
+
+    /// Start sending the filling chunk when the DMA is free; true if it was started (or
+    /// there was nothing to send).
+    fn kick(&mut self) -> bool {
+        let Some(chunk) = self.filling.take() else {
+            return false;
+        };
+        if chunk.is_empty() {
+            self.filling = Some(chunk);
+            return true;
+        }
+        if !self.idle() {
+            self.filling = Some(chunk);
+            return false;
+        }
+        match self.transfer.next_transfer(chunk) {
+            Ok((mut old, _)) => {
+                old.clear();
+                self.filling = Some(old);
+                self.busy = true;
+                true
+            }
+            Err(e) => {
+                use stm32f4xx_hal::dma::DMAError;
+                let (DMAError::NotReady(c) | DMAError::SmallBuffer(c) | DMAError::Overrun(c)) = e;
+                self.filling = Some(c);
+                false
+            }
+        }
+    }
+}
+
+impl embedded_io::ErrorType for DmaUart {
+    type Error = Infallible;
+}
+
+impl embedded_io::Write for DmaUart {
+    fn write(&mut self, buf: &[u8]) -> Result<usize, Infallible> {
+        if buf.is_empty() {
+            return Ok(0);
+        }
+        loop {
+            if let Some(chunk) = self.filling.as_mut() {
+                let n = chunk.extend(buf);
+                if n > 0 {
+                    if chunk.is_full() {
+                        self.kick();
+                    }
+                    return Ok(n);
+                }
+            }
+            // The filling chunk is full: wait for the wire.
+            while !self.kick() {}
+        }
+    }
+
+    fn flush(&mut self) -> Result<(), Infallible> {
+        while !self.kick() {}
+        while !self.idle() {}
+        Ok(())
+    }
+}
+
+static DMA_BUFFERS: ConstStaticCell<[DmaBuf; 3]> = ConstStaticCell::new([[0; DMA_SAMPLES]; 3]);
+static TX_BUFFERS: ConstStaticCell<[[u8; TX_CHUNK]; 2]> = ConstStaticCell::new([[0; TX_CHUNK]; 2]);
+static BLOCK_BUFFERS: ConstStaticCell<[Block; BLOCKS]> =
+    ConstStaticCell::new([[0; BLOCK_SAMPLES]; BLOCKS]);
+static FULL: ConstStaticCell<Queue<Filled, { BLOCKS + 1 }>> = ConstStaticCell::new(Queue::new());
+static FREE: ConstStaticCell<Queue<&'static mut Block, { BLOCKS + 1 }>> =
+    ConstStaticCell::new(Queue::new());
+
+#[entry]
+fn main() -> ! {
+    sys::paint_stack();
+    let (Some(dp), Some(mut cp)) = (pac::Peripherals::take(), cortex_m::Peripherals::take()) else {
+        halt()
+    };
+    cp.DCB.enable_trace();
+    cp.DWT.enable_cycle_counter();
+    let mut rcc = dp.RCC.freeze(
+        RccConfig::hse(8.MHz())
+            .bypass_hse_oscillator()
+            .sysclk(SYSCLK_HZ.Hz())
+            .pclk1(50.MHz()),
+    );
+    let chain = match crate::make_chain() {
+        Ok(c) => c,
+        Err(_) => halt(),
+    };
+
+    let gpioa = dp.GPIOA.split(&mut rcc);
+    let gpiob = dp.GPIOB.split(&mut rcc);
+    let gpioc = dp.GPIOC.split(&mut rcc);
+    let dma2 = StreamsTuple::new(dp.DMA2, &mut rcc);
+
+    // Results link: USART1 TX on PA9, by DMA.
+    let Ok(tx) = Serial::tx(
+        dp.USART1,
+        gpioa.pa9.into_alternate(),
+        serial::Config::default()
+            .baudrate(crate::config::BAUD.bps())
+            .dma(serial::config::DmaConfig::Tx),
+        &mut rcc,
+    ) else {
+        halt()
+    };
+    let [tx_a, tx_b] = TX_BUFFERS.take();
+    let uart_transfer = Transfer::init_memory_to_peripheral(
+        dma2.7,
+        tx,
+        sys::TxChunk::new(tx_a),
+        None,
+        DmaConfig::default().memory_increment(true),
+    );
+    let uart = DmaUart {
+        transfer: uart_transfer,
+        filling: Some(sys::TxChunk::new(tx_b)),
+        busy: false,
+    };
+
+    // ADC1: 16 inputs in one scan per TIM2 update, DMA in double-buffer mode.
+    let adc_config = AdcConfig::default()
+        .scan(Scan::Enabled)
+        .continuous(Continuous::Single)
+        .external_trigger(TriggerMode::RisingEdge, ExternalTrigger::Tim_2_trgo)
+        .dma(AdcDma::Continuous);
+    let mut adc = Adc::new(dp.ADC1, true, adc_config, &mut rcc);
+    let st = SampleTime::Cycles_28;
+    adc.configure_channel(&gpioa.pa0.into_analog(), Sequence::One, st);
+    adc.configure_channel(&gpioa.pa1.into_analog(), Sequence::Two, st);
+    adc.configure_channel(&gpioa.pa2.into_analog(), Sequence::Three, st);
+    adc.configure_channel(&gpioa.pa3.into_analog(), Sequence::Four, st);
+    adc.configure_channel(&gpioa.pa4.into_analog(), Sequence::Five, st);
+    adc.configure_channel(&gpioa.pa5.into_analog(), Sequence::Six, st);
+    adc.configure_channel(&gpioa.pa6.into_analog(), Sequence::Seven, st);
+    adc.configure_channel(&gpioa.pa7.into_analog(), Sequence::Eight, st);
+    adc.configure_channel(&gpiob.pb0.into_analog(), Sequence::Nine, st);
+    adc.configure_channel(&gpiob.pb1.into_analog(), Sequence::Ten, st);
+    adc.configure_channel(&gpioc.pc0.into_analog(), Sequence::Eleven, st);
+    adc.configure_channel(&gpioc.pc1.into_analog(), Sequence::Twelve, st);
+    adc.configure_channel(&gpioc.pc2.into_analog(), Sequence::Thirteen, st);
+    adc.configure_channel(&gpioc.pc3.into_analog(), Sequence::Fourteen, st);
+    adc.configure_channel(&gpioc.pc4.into_analog(), Sequence::Fifteen, st);
+    adc.configure_channel(&gpioc.pc5.into_analog(), Sequence::Sixteen, st);
+    adc.enable();
+
+    let [dma_a, dma_b, dma_c] = DMA_BUFFERS.take();
+    let mut adc_transfer = Transfer::init_peripheral_to_memory(
+        dma2.0,
+        adc,
+        dma_a,
+        Some(dma_b),
+        DmaConfig::default()
+            .memory_increment(true)
+            .double_buffer(true)
+            .transfer_complete_interrupt(true),
+    );
+
+    // The double buffers between the DMA interrupt and the main loop.
+    let (full_tx, full_rx) = FULL.take().split();
+    let (mut free_tx, free_rx) = FREE.take().split();
+    for b in BLOCK_BUFFERS.take().iter_mut() {
+        let _ = free_tx.enqueue(b);
+    }
+    let source = DmaBlockSource {
+        buf: None,
+        pos: 0,
+        channels: capture::CHANNELS as usize,
+    };
+    let acq = Acquisition::new(source, CycleClock, DMA_FRAMES, full_tx, free_rx);
+    adc_transfer.start(|_| {});
+    critical_section::with(|cs| {
+        ADC_ISR.borrow_ref_mut(cs).replace(AdcIsr {
+            transfer: adc_transfer,
+            spare: Some(dma_c),
+            acq,
+        })
+    });
+    sys::unmask(pac::Interrupt::DMA2_STREAM0);
+
+    // The sample clock: TIM2 update events at the sample rate drive the ADC (TRGO).
+    let mut tim = Timer::new(dp.TIM2, &mut rcc);
+    tim.set_master_mode(pac::tim2::cr2::MMS::Update);
+    let mut counter = tim.counter_hz();
+    if counter.start(capture::SAMPLE_RATE_HZ.Hz()).is_err() {
+        halt()
+    }
+
+    let link = Link::new(uart, capture::SAMPLE_RATE_HZ);
+    let mut pipe = Pipeline::new(chain, full_rx, free_tx, link, CycleClock);
+    pipe.start();
+    loop {
+        if pipe.step() {
+            continue;
+        }
+        let t0 = CycleClock.now();
+        cortex_m::interrupt::free(|_| {
+            if !pipe.ready() {
+                cortex_m::asm::wfi();
+            }
+        });
+        pipe.idled(CycleClock.now().wrapping_sub(t0));
+    }
+}
+
+/// Stop here (a debugger shows where); the watchdog, if enabled, resets the board.
+fn halt() -> ! {
+    loop {
+        cortex_m::asm::bkpt();
+    }
+}
+
+#[panic_handler]
+fn panic(_: &core::panic::PanicInfo) -> ! {
+    cortex_m::interrupt::disable();
+    halt()
+}

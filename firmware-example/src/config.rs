@@ -1,0 +1,30 @@
+//! Compile-time sizes of the firmware: everything that decides its RAM.
+//!
+//! Sized for the target: 8 dual-tip probes (16 channels) at 20 kHz per tip.
+
+/// Probes the chain holds.
+pub const PROBES: usize = 8;
+/// Correlation lag slots of the chain (lags 0..=63: 3.15 ms at 20 kHz, velocities down to
+/// 1.9 m/s at 6 mm tip spacing). The capture's layout must ask for `max_lag` below this
+/// (`scripts/firmware-capture.sh` checks it), or the device would cap lags the host does not.
+pub const LAGS: usize = 64;
+/// Most channels per frame (two 8-channel ADC packages).
+pub const MAX_CHANNELS: usize = 16;
+/// Frames per acquisition block: 128 frames = 6.4 ms at 20 kHz, 4 KiB at 16 channels.
+pub const BLOCK_FRAMES: usize = 128;
+/// Samples per block.
+pub const BLOCK_SAMPLES: usize = BLOCK_FRAMES * MAX_CHANNELS;
+/// Acquisition blocks: two (double buffering: one filling, one being processed).
+pub const BLOCKS: usize = 2;
+/// Window results the wire streamer can hold while the link is busy (two windows' worth).
+pub const STREAM_WINDOWS: usize = 2 * PROBES;
+/// The device id written into every wire frame.
+pub const DEVICE_ID: u16 = 0x0F1E;
+/// The link's baud rate (8N1): the streamer's byte budget. 921 600 baud = 92 kB/s, about
+/// four times what 8 probes at 10 ms windows need.
+pub const BAUD: u32 = 921_600;
+
+/// The chain the firmware runs.
+pub type FwChain = frothline_core::Chain<PROBES, LAGS>;
+/// The chain's records.
+pub type FwRecord = frothline_core::ProbeWindow<LAGS>;

@@ -1,0 +1,114 @@
+//! The results link: chain records -> wire frames -> a UART.
+//!
+//! Everything on the wire comes from `frothline_core::wire` (frame types, the postcard,
+//! COBS and CRC encoding, sequence numbers, and the [`Streamer`] that fits frames into the link's
+//! byte budget and drops the oldest window results, counted, when the link cannot keep up).
+//! This module only builds the bodies: the device description from the capture's layout, a
+//! window result per record, health counters from the acquisition; and pumps the
+//! streamer's bytes into any `embedded_io::Write`.
+
+use crate::capture;
+use crate::config::{FwRecord, BAUD, DEVICE_ID, STREAM_WINDOWS};
+use embedded_io::Write;
+use frothline_core::wire::{
+    quant, Body, DeviceDescription, Health, Streamer, StreamerConfig, WindowResult, WindowSetting,
+};
+
+/// Firmware version, as the device description carries it.
+pub const FIRMWARE: &str = concat!("fw-example ", env!("CARGO_PKG_VERSION"));
+
+/// Bytes the link may take at once: the transmit buffer a UART's DMA drains on a real
+/// board. The main loop pumps the streamer once per block (6.4 ms = 590 bytes at the baud
+/// rate), so the bucket must hold at least that much credit.
+pub const TX_BURST_BYTES: u32 = 1024;
+
+/// A streamer in front of a byte sink.
+pub struct Link<W> {
+    tx: W,
+    streamer: Streamer<STREAM_WINDOWS>,
+    sample_rate_hz: f32,
+    write_errors: u32,
+}
+
+impl<W: Write> Link<W> {
+    /// A link over `tx`, its byte budget that of a UART at [`BAUD`], time in frames of
+    /// the sample clock.
+    pub fn new(tx: W, sample_rate_hz: u32) -> Self {
+        Link {
+            tx,
+            streamer: Streamer::new(StreamerConfig {
+                burst_bytes: TX_BURST_BYTES,
+                ..StreamerConfig::uart_8n1(DEVICE_ID, BAUD, sample_rate_hz)
+            }),
+            sample_rate_hz: sample_rate_hz as f32,
+            write_errors: 0,
+        }
+    }
+
+    /// Queue the device description (sent first).
+    pub fn describe(&mut self) {
+        let mut d = DeviceDescription {
+            firmware: heapless::String::new(),
+            sample_rate_millihz: quant::sample_rate(capture::SAMPLE_RATE_HZ as f32),
+            channels: capture::CHANNELS,
+            window: WindowSetting::from_policy(&capture::WINDOW).unwrap_or(WindowSetting::Whole),
+            probes: heapless::Vec::new(),
+        };
+        let _ = d.firmware.push_str(FIRMWARE);
+        for p in capture::PROBE_LAYOUT {
+            let _ = d.probes.push(p);
+        }
+        self.streamer.offer(Body::Describe(d));
+    }
+
+    /// Queue the window result of one record.
+    pub fn record(&mut self, rec: &FwRecord) {
+        let w = wire_result(rec, self.sample_rate_hz);
+        self.streamer.offer_window(w);
+    }
+
+    /// Queue a health frame (replaces one not yet sent: its counters are cumulative).
+    pub fn health(&mut self, h: Health) {
+        self.streamer.offer(Body::Health(h));
+    }
+
+    /// Send what the link's budget allows at sample-clock time `now` (frames).
+    pub fn pump(&mut self, now: u64) {
+        while let Some(bytes) = self.streamer.poll(now, 64) {
+            if self.tx.write_all(bytes).is_err() {
+                self.write_errors = self.write_errors.saturating_add(1);
+            }
+        }
+    }
+
+    /// Send everything queued (at the end of a run), letting the clock run on.
+    pub fn drain(&mut self, mut now: u64) {
+        let step = (self.sample_rate_hz as u64 / 100).max(1);
+        let mut rounds = 0u32;
+        while !self.streamer.is_idle() && rounds < 100_000 {
+            self.pump(now);
+            now += step;
+            rounds += 1;
+        }
+        let _ = self.tx.flush();
+    }
+
+    /// The streamer's counters.
+    pub fn stats(&self) -> &frothline_core::wire::StreamerStats {
+        self.streamer.stats()
+    }
+
+    /// Writes that failed.
+    pub fn write_errors(&self) -> u32 {
+        self.write_errors
+    }
+}
+
+/// The wire form of a record, the correlation's velocity from the probe's tip spacing.
+pub fn wire_result(rec: &FwRecord, sample_rate_hz: f32) -> WindowResult {
+    let spacing_mm = capture::TIP_SPACING_MM
+        .get(rec.probe as usize)
+        .copied()
+        .flatten();
+    WindowResult::from_probe_window_with_spacing(rec, sample_rate_hz, spacing_mm)
+}

@@ -1,0 +1,73 @@
+//! frothline firmware example: the core's signal chain on a Cortex-M4F.
+//!
+//! ```text
+//! SampleSource (SPI ADC on embedded-hal 1.0 | capture in flash)
+//!   -> timer interrupt fills block A            acquire.rs
+//!   -> spsc queue (lock-free) -> main loop       pipeline.rs
+//!   -> frothline_core::Chain<8, 64>              (the same chain a host replay runs)
+//!   -> records -> frothline_core::wire frames    link.rs
+//!   -> UART                                      cmsdk_uart.rs | board_stm32f4.rs
+//! ```
+//!
+//! Boards (one cargo feature each, exactly one):
+//! - `emulated-mps2` (default): QEMU's mps2-an386 (Cortex-M4F). Replays the capture
+//!   compiled into the image, or reads it through the SPI ADC driver from a simulated
+//!   device; checks its records against the digest of a host replay and exits QEMU
+//!   through semihosting with the verdict (see `mps2.rs` and docs/firmware.md).
+//! - `board-stm32f4`: a NUCLEO-F411RE: timer-triggered ADC with DMA into the double
+//!   buffers, results out of USART2 by DMA (see `board_stm32f4.rs`).
+//!
+//! `unsafe` lives in `sys.rs` alone (register access, stack painting, one semihosting call).
+#![no_std]
+#![no_main]
+#![deny(unsafe_code)]
+#![warn(missing_docs)]
+
+#[cfg(all(feature = "emulated-mps2", feature = "board-stm32f4"))]
+compile_error!(
+    "choose one board: `emulated-mps2` (the default) or `board-stm32f4` (with --no-default-features)"
+);
+#[cfg(not(any(feature = "emulated-mps2", feature = "board-stm32f4")))]
+compile_error!("choose a board: feature `emulated-mps2` (the default) or `board-stm32f4`");
+
+pub mod acquire;
+pub mod adc;
+pub mod capture;
+pub mod config;
+#[cfg(feature = "self-check")]
+pub mod digest;
+pub mod link;
+pub mod pipeline;
+pub mod replay;
+pub mod source;
+#[allow(unsafe_code)]
+pub mod sys;
+
+#[cfg(feature = "emulated-mps2")]
+pub mod cmsdk_timer;
+#[cfg(feature = "emulated-mps2")]
+pub mod cmsdk_uart;
+#[cfg(feature = "emulated-mps2")]
+mod mps2;
+#[cfg(feature = "emulated-mps2")]
+pub mod sim_adc;
+
+#[cfg(feature = "board-stm32f4")]
+mod board_stm32f4;
+
+use config::FwChain;
+use static_cell::StaticCell;
+
+/// Build the chain of the capture's configuration, in static memory.
+///
+/// The chain is tens of KiB: it is built straight into its static cell (`init_with`), not
+/// on the stack and then moved.
+#[inline(never)]
+pub fn make_chain() -> Result<&'static mut FwChain, frothline_core::ConfigError> {
+    static CHAIN: StaticCell<FwChain> = StaticCell::new();
+    let cfg = capture::chain_config()?;
+    // Validated above: `new` checks the same configuration again and cannot fail here.
+    let chain = CHAIN.uninit();
+    let chain = chain.write(FwChain::new(cfg)?);
+    Ok(chain)
+}

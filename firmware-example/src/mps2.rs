@@ -1,0 +1,449 @@
+//! The emulated board: QEMU's mps2-an386 (Cortex-M4F, 25 MHz, CMSDK UART0 and TIMER0).
+//!
+//! Modes, chosen by the semihosting command line (`qemu ... -append MODE`):
+//! - `run` (default): replay the embedded capture at the sample rate (SysTick, one frame
+//!   per tick), one block filled by the interrupt while the main loop processes the
+//!   other; results out of UART0 as wire frames. Passes when the records equal those of
+//!   a host replay (count and digest, see `capture/config.rs`) and nothing was dropped.
+//! - `adc`: the same, read through the SPI ADC driver ([`crate::adc::Adc`]) from a
+//!   simulated device serving the capture; passes on the same condition.
+//! - `overrun`: `run` with a main loop that stalls after every block for longer than a
+//!   block lasts; passes when the acquisition counted dropped samples and the last health
+//!   frame reports them.
+//! - `measure`: no pacing and no interrupt: the acquisition is called from the main loop
+//!   with whole blocks, so the chain's share can be timed alone (see
+//!   scripts/firmware-measure.sh). Passes on the same condition as `run`.
+//!
+//! Every mode ends with `key=value` summary lines on the semihosting console and exits
+//! QEMU with status 0 (pass) or 1 (fail).
+
+use crate::acquire::{Acquisition, Block, Clock, Filled, HEALTH};
+use crate::adc::{Adc, AdcConfig};
+use crate::cmsdk_timer::{CmsdkTimer, TimerReader, PCLK_HZ};
+use crate::cmsdk_uart::CmsdkUart;
+use crate::config::{FwChain, BLOCKS, BLOCK_FRAMES, BLOCK_SAMPLES};
+use crate::link::Link;
+use crate::pipeline::Pipeline;
+use crate::replay::ReplaySource;
+use crate::sim_adc::{self, SimAdc, SimDrdy};
+use crate::source::SampleSource;
+use crate::{capture, sys};
+use core::cell::RefCell;
+use core::sync::atomic::Ordering;
+use cortex_m::peripheral::syst::SystClkSource;
+use cortex_m_rt::{entry, exception};
+use cortex_m_semihosting::debug;
+use critical_section::Mutex;
+use heapless::spsc::Queue;
+use static_cell::ConstStaticCell;
+
+#[cfg(feature = "defmt-semihosting")]
+use defmt_semihosting as _;
+
+/// Print a summary line on the semihosting console (defmt-encoded with the
+/// `defmt-semihosting` feature).
+macro_rules! report {
+    ($($t:tt)*) => {{
+        #[cfg(not(feature = "defmt-semihosting"))]
+        cortex_m_semihosting::hprintln!($($t)*);
+        #[cfg(feature = "defmt-semihosting")]
+        defmt::println!($($t)*);
+    }};
+}
+
+/// What the run does.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+enum Mode {
+    Run,
+    Adc,
+    Overrun,
+    Measure,
+}
+
+impl Mode {
+    /// The last word of the command line; a lone word that is no mode is the program name
+    /// QEMU passes when no argument was given (`cargo run`): mode `run`.
+    fn parse(s: &str) -> Option<Mode> {
+        let words = s.split_whitespace().count();
+        match s.split_whitespace().last() {
+            None => Some(Mode::Run),
+            Some("run") => Some(Mode::Run),
+            Some("adc") => Some(Mode::Adc),
+            Some("overrun") => Some(Mode::Overrun),
+            Some("measure") => Some(Mode::Measure),
+            Some(_) if words == 1 => Some(Mode::Run),
+            Some(_) => None,
+        }
+    }
+
+    fn name(self) -> &'static str {
+        match self {
+            Mode::Run => "run",
+            Mode::Adc => "adc",
+            Mode::Overrun => "overrun",
+            Mode::Measure => "measure",
+        }
+    }
+}
+
+/// The two sources the emulated board can read.
+enum Source {
+    Replay(ReplaySource),
+    Adc(Adc<SimAdc, SimDrdy>),
+}
+
+/// An error of either source (the replay cannot fail).
+#[derive(Debug)]
+struct SourceError;
+
+impl SampleSource for Source {
+    type Error = SourceError;
+
+    fn channels(&self) -> usize {
+        match self {
+            Source::Replay(r) => r.channels(),
+            Source::Adc(a) => a.channels(),
+        }
+    }
+
+    fn fill(&mut self, block: &mut [i16]) -> Result<usize, SourceError> {
+        match self {
+            Source::Replay(r) => r.fill(block).map_err(|_| SourceError),
+            Source::Adc(a) => {
+                // The conversion-start pulse a hardware timer gives on a real board.
+                sim_adc::start_conversion();
+                a.fill(block).map_err(|_| SourceError)
+            }
+        }
+    }
+
+    fn exhausted(&self) -> bool {
+        match self {
+            Source::Replay(r) => r.exhausted(),
+            Source::Adc(_) => sim_adc::finished(),
+        }
+    }
+}
+
+type PacedAcquisition = Acquisition<Source, TimerReader>;
+
+/// The acquisition, from `main` to the SysTick handler (taken once, in a critical section).
+static HANDOFF: Mutex<RefCell<Option<PacedAcquisition>>> = Mutex::new(RefCell::new(None));
+
+#[exception]
+fn SysTick() {
+    static mut ACQ: Option<PacedAcquisition> = None;
+    if ACQ.is_none() {
+        *ACQ = critical_section::with(|cs| HANDOFF.borrow_ref_mut(cs).take());
+    }
+    if let Some(a) = ACQ.as_mut() {
+        a.tick();
+    }
+}
+
+static BLOCK_BUFFERS: ConstStaticCell<[Block; BLOCKS]> =
+    ConstStaticCell::new([[0; BLOCK_SAMPLES]; BLOCKS]);
+static FULL: ConstStaticCell<Queue<Filled, { BLOCKS + 1 }>> = ConstStaticCell::new(Queue::new());
+static FREE: ConstStaticCell<Queue<&'static mut Block, { BLOCKS + 1 }>> =
+    ConstStaticCell::new(Queue::new());
+
+#[entry]
+fn main() -> ! {
+    sys::paint_stack();
+    let mut buf = [0u8; 64];
+    let arg = sys::semihosting_cmdline(&mut buf).unwrap_or("");
+    let pass = match Mode::parse(arg) {
+        Some(mode) => run(mode),
+        None => {
+            report!(
+                "fw.error unknown mode `{}`: run | adc | overrun | measure",
+                arg
+            );
+            false
+        }
+    };
+    loop {
+        debug::exit(if pass {
+            debug::EXIT_SUCCESS
+        } else {
+            debug::EXIT_FAILURE
+        });
+    }
+}
+
+#[inline(never)]
+fn run(mode: Mode) -> bool {
+    let (Some(timer), Some(uart)) = (
+        sys::take(sys::Device::Timer0),
+        sys::take(sys::Device::Uart0),
+    ) else {
+        return false;
+    };
+    let clock = CmsdkTimer::free_running(timer);
+    let uart = CmsdkUart::new(uart, PCLK_HZ, crate::config::BAUD);
+    let chain: &'static mut FwChain = match crate::make_chain() {
+        Ok(c) => c,
+        Err(e) => {
+            report!("fw.error chain configuration: {}", e);
+            return false;
+        }
+    };
+    // The chain was built on the stack and moved into its static (the core has no
+    // in-place constructor): note that depth, then repaint to see the steady state.
+    let stack_init = sys::stack_high_water();
+    sys::paint_stack();
+    let (full_tx, full_rx) = FULL.take().split();
+    let (mut free_tx, free_rx) = FREE.take().split();
+    for b in BLOCK_BUFFERS.take().iter_mut() {
+        let _ = free_tx.enqueue(b);
+    }
+    let channels = capture::CHANNELS as usize;
+    let source = match mode {
+        Mode::Adc => {
+            let dev = SimAdc::new(capture::SAMPLES, channels);
+            match Adc::new(dev, SimDrdy, AdcConfig::new(capture::CHANNELS)) {
+                Ok(adc) => Source::Adc(adc),
+                Err(_) => return false,
+            }
+        }
+        _ => Source::Replay(ReplaySource::new(capture::SAMPLES, channels)),
+    };
+    let per_tick = if mode == Mode::Measure {
+        BLOCK_FRAMES
+    } else {
+        1
+    };
+    let mut acq = Acquisition::new(source, clock.reader(), per_tick, full_tx, free_rx);
+    let link = Link::new(uart, capture::SAMPLE_RATE_HZ);
+    let mut pipe = Pipeline::new(chain, full_rx, free_tx, link, clock);
+    pipe.start();
+    let block_ticks =
+        (PCLK_HZ as u64 * BLOCK_FRAMES as u64 / capture::SAMPLE_RATE_HZ as u64) as u32;
+    if mode == Mode::Overrun {
+        pipe.stall_ticks = block_ticks * 3 / 2;
+    }
+
+    let t_start = pipe.clock().now();
+    if mode == Mode::Measure {
+        while !pipe.done() {
+            acq.tick();
+            while pipe.step() {}
+        }
+    } else {
+        critical_section::with(|cs| HANDOFF.borrow_ref_mut(cs).replace(acq));
+        let Some(cp) = cortex_m::Peripherals::take() else {
+            return false;
+        };
+        let mut syst = cp.SYST;
+        syst.set_clock_source(SystClkSource::Core);
+        syst.set_reload(PCLK_HZ / capture::SAMPLE_RATE_HZ - 1);
+        syst.clear_current();
+        syst.enable_interrupt();
+        syst.enable_counter();
+        while !pipe.done() {
+            if pipe.step() {
+                continue;
+            }
+            let t0 = pipe.clock().now();
+            // Sleep unless a block arrived since the check: WFI wakes on the pending
+            // interrupt even with interrupts masked, which closes the race.
+            cortex_m::interrupt::free(|_| {
+                if !pipe.ready() && !pipe.done() {
+                    cortex_m::asm::wfi();
+                }
+            });
+            let t1 = pipe.clock().now();
+            pipe.idled(t1.wrapping_sub(t0));
+        }
+        syst.disable_interrupt();
+        syst.disable_counter();
+    }
+    pipe.finish();
+    let total = pipe.clock().now().wrapping_sub(t_start) as u64;
+    let stack_run = sys::stack_high_water();
+    let pass = summary(mode, &pipe, total);
+    report!(
+        "fw.memory static_ram_bytes={} stack_init_bytes={} stack_run_bytes={} chain_bytes={} record_bytes={} block_bytes={}",
+        sys::static_ram_bytes(),
+        stack_init,
+        stack_run,
+        core::mem::size_of::<FwChain>(),
+        core::mem::size_of::<crate::config::FwRecord>(),
+        core::mem::size_of::<Block>()
+    );
+    if mode == Mode::Measure {
+        let (chain, clock) = pipe.into_parts();
+        const LOOPS: u32 = 1_000_000;
+        let t0 = clock.now();
+        sys::instruction_loop(LOOPS);
+        let dt = clock.now().wrapping_sub(t0);
+        report!("fw.calibration instructions={} ticks={}", 2 * LOOPS, dt);
+        for v in [
+            Variant::Whole,
+            Variant::WholeFixed,
+            Variant::WholeFixedLeading,
+        ] {
+            measure_streaming(chain, &clock, v);
+        }
+    }
+    report!("fw.verdict {}", if pass { "pass" } else { "FAIL" });
+    pass
+}
+
+/// Variants of the capture's configuration for [`measure_streaming`].
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Variant {
+    /// One window over the whole record, levels as configured (learnt).
+    Whole,
+    /// ... and fixed levels (no learning).
+    WholeFixed,
+    /// ... and no trailing tips (no correlation; 8 tips instead of 16).
+    WholeFixedLeading,
+}
+
+/// The chain's streaming cost alone: the capture again through a chain with one window
+/// over the whole record (no window closes until the end), blocks decoded before timing.
+#[inline(never)]
+fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, variant: Variant) {
+    let Ok(mut cfg) = capture::chain_config() else {
+        return;
+    };
+    cfg.window = frothline_core::WindowPolicy::Whole;
+    let fixed = frothline_core::LevelSource::Fixed {
+        air: 26000,
+        water: 3000,
+    };
+    let mut tips = 0;
+    for p in cfg.probes.iter_mut() {
+        if variant != Variant::Whole {
+            p.leading.levels = fixed;
+            if let Some(t) = p.trailing.as_mut() {
+                t.levels = fixed;
+                if t.polarity == frothline_core::Polarity::AirLow {
+                    t.levels = frothline_core::LevelSource::Fixed {
+                        air: 3000,
+                        water: 26000,
+                    };
+                }
+            }
+            if p.leading.polarity == frothline_core::Polarity::AirLow {
+                p.leading.levels = frothline_core::LevelSource::Fixed {
+                    air: 3000,
+                    water: 26000,
+                };
+            }
+        }
+        if variant == Variant::WholeFixedLeading {
+            p.trailing = None;
+        }
+        tips += 1 + p.trailing.is_some() as usize;
+    }
+    let Ok(fresh) = FwChain::new(cfg) else {
+        return;
+    };
+    *chain = fresh;
+    let mut block = [0i16; BLOCK_SAMPLES];
+    let mut src = ReplaySource::new(capture::SAMPLES, capture::CHANNELS as usize);
+    let ch = capture::CHANNELS as usize;
+    let mut push = 0u64;
+    let mut frames = 0usize;
+    loop {
+        let n = src.fill(&mut block[..BLOCK_FRAMES * ch]).unwrap_or(0);
+        if n == 0 {
+            break;
+        }
+        let t0 = clock.now();
+        let used = chain.push(&block[..n * ch]);
+        push += clock.now().wrapping_sub(t0) as u64;
+        frames += used / ch;
+    }
+    let t0 = clock.now();
+    while chain.finish().is_err() {
+        while chain.poll().is_some() {}
+    }
+    let close = clock.now().wrapping_sub(t0) as u64;
+    while chain.poll().is_some() {}
+    report!(
+        "fw.streaming variant={} frames={} channels={} tips={} push_ticks={} finish_ticks={}",
+        match variant {
+            Variant::Whole => "whole",
+            Variant::WholeFixed => "whole-fixed",
+            Variant::WholeFixedLeading => "whole-fixed-leading",
+        },
+        frames,
+        ch,
+        tips,
+        push,
+        close
+    );
+}
+
+#[inline(never)]
+fn summary<W: embedded_io::Write, C: Clock>(mode: Mode, pipe: &Pipeline<W, C>, total: u64) -> bool {
+    let d = pipe.digest();
+    let matches = d.records() == capture::EXPECTED_RECORDS && d.value() == capture::EXPECTED_DIGEST;
+    let dropped = HEALTH.dropped_frames.load(Ordering::Relaxed);
+    let t = pipe.timing;
+    let st = *pipe.link().stats();
+    let h = pipe.health();
+    report!(
+        "fw.result mode={} records={} expected_records={} digest={:#018x} expected_digest={:#018x} match={}",
+        mode.name(),
+        d.records(),
+        capture::EXPECTED_RECORDS,
+        d.value(),
+        capture::EXPECTED_DIGEST,
+        matches
+    );
+    report!(
+        "fw.acquisition frames_in={} frames_pushed={} dropped_frames={} dropped_samples={} blocks={} queue_high_water={} source_errors={} adc_missed={}",
+        HEALTH.frames_in.load(Ordering::Relaxed),
+        pipe.frames_pushed(),
+        dropped,
+        h.samples_dropped,
+        HEALTH.blocks.load(Ordering::Relaxed),
+        HEALTH.queue_high_water.load(Ordering::Relaxed),
+        HEALTH.source_errors.load(Ordering::Relaxed),
+        sim_adc::missed()
+    );
+    report!(
+        "fw.timing tick_hz={} channels={} push_ticks={} records_ticks={} isr_ticks={} idle_ticks={} stalled_ticks={} total_ticks={}",
+        PCLK_HZ,
+        capture::CHANNELS,
+        t.push,
+        t.records,
+        HEALTH.isr_ticks.load(Ordering::Relaxed),
+        t.idle,
+        t.stalled,
+        total
+    );
+    report!(
+        "fw.link frames_sent={} bytes_sent={} windows_sent={} windows_dropped={} write_errors={} health_samples_dropped={}",
+        st.frames_sent,
+        st.bytes_sent,
+        st.windows_sent,
+        st.windows_dropped,
+        pipe.link().write_errors(),
+        h.samples_dropped
+    );
+    let clean = pipe.link().write_errors() == 0 && st.windows_dropped == 0;
+    match mode {
+        Mode::Overrun => dropped > 0 && h.samples_dropped > 0 && clean,
+        _ => matches && dropped == 0 && clean,
+    }
+}
+
+#[panic_handler]
+fn panic(info: &core::panic::PanicInfo) -> ! {
+    cortex_m::interrupt::disable();
+    // The location only: formatting the message would link the formatting of every
+    // panic payload in the image (floats included), some 10 KiB of flash.
+    match info.location() {
+        Some(l) => cortex_m_semihosting::hprintln!("fw.panic at {}:{}", l.file(), l.line()),
+        None => cortex_m_semihosting::hprintln!("fw.panic"),
+    }
+    loop {
+        debug::exit(debug::EXIT_FAILURE);
+    }
+}

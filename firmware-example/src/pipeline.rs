@@ -1,0 +1,225 @@
+//! The main-loop side: full blocks -> the core's chain -> records -> the wire link.
+//!
+//! Board-independent: the boards hand it the queue ends, the chain, a link over their
+//! UART and a clock, and call [`Pipeline::step`] from their main loop.
+
+use crate::acquire::{Block, Clock, Filled, HEALTH};
+use crate::config::{FwChain, FwRecord, BLOCK_FRAMES};
+#[cfg(feature = "self-check")]
+use crate::digest::Digest;
+use crate::link::Link;
+use core::sync::atomic::Ordering;
+use embedded_io::Write;
+use frothline_core::wire::Health;
+use frothline_core::Flags;
+use heapless::spsc::{Consumer, Producer};
+
+/// A health frame goes out every this many blocks (and at the end).
+const HEALTH_EVERY_BLOCKS: u32 = 8;
+
+/// Where the main loop's time went, in clock ticks.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Timing {
+    /// Inside `Chain::push` (the signal chain proper).
+    pub push: u64,
+    /// Draining records: wire results, the digest, health, and pumping the link.
+    pub records: u64,
+    /// Asleep, waiting for a block.
+    pub idle: u64,
+    /// Deliberately wasted per block (overrun test).
+    pub stalled: u64,
+}
+
+/// The main loop's state.
+pub struct Pipeline<W, C> {
+    chain: &'static mut FwChain,
+    full: Consumer<'static, Filled>,
+    free: Producer<'static, &'static mut Block>,
+    link: Link<W>,
+    clock: C,
+    channels: usize,
+    /// Extra ticks to stall after every block (0 normally; the overrun test sets it).
+    pub stall_ticks: u32,
+    /// Time accounting.
+    pub timing: Timing,
+    #[cfg(feature = "self-check")]
+    digest: Digest,
+    frames_pushed: u64,
+    blocks: u32,
+    saturated: u64,
+    stuck: u64,
+}
+
+impl<W: Write, C: Clock> Pipeline<W, C> {
+    /// A pipeline over the given chain, queue ends, link and clock.
+    pub fn new(
+        chain: &'static mut FwChain,
+        full: Consumer<'static, Filled>,
+        free: Producer<'static, &'static mut Block>,
+        link: Link<W>,
+        clock: C,
+    ) -> Self {
+        let channels = chain.config().channels as usize;
+        Pipeline {
+            chain,
+            full,
+            free,
+            link,
+            clock,
+            channels,
+            stall_ticks: 0,
+            timing: Timing::default(),
+            #[cfg(feature = "self-check")]
+            digest: Digest::new(),
+            frames_pushed: 0,
+            blocks: 0,
+            saturated: 0,
+            stuck: 0,
+        }
+    }
+
+    /// The clock.
+    pub fn clock(&self) -> &C {
+        &self.clock
+    }
+
+    /// Send the device description.
+    pub fn start(&mut self) {
+        self.link.describe();
+        self.link.pump(0);
+    }
+
+    /// True when a full block waits.
+    pub fn ready(&self) -> bool {
+        self.full.ready()
+    }
+
+    /// True when the source is exhausted and every block was processed.
+    pub fn done(&self) -> bool {
+        HEALTH.done.load(Ordering::Acquire) && !self.full.ready()
+    }
+
+    /// Process one full block if one waits; false if none did.
+    pub fn step(&mut self) -> bool {
+        let Some(filled) = self.full.dequeue() else {
+            return false;
+        };
+        let n = (filled.frames as usize).min(BLOCK_FRAMES) * self.channels;
+        let mut rest = &filled.block[..n];
+        while !rest.is_empty() {
+            let t0 = self.clock.now();
+            let used = self.chain.push(rest);
+            let t1 = self.clock.now();
+            self.timing.push += t1.wrapping_sub(t0) as u64;
+            rest = &rest[used..];
+            self.drain_records();
+        }
+        self.frames_pushed += filled.frames as u64;
+        self.blocks += 1;
+        if self.stall_ticks > 0 {
+            let t0 = self.clock.now();
+            while self.clock.now().wrapping_sub(t0) < self.stall_ticks {}
+            self.timing.stalled += self.clock.now().wrapping_sub(t0) as u64;
+        }
+        // Give the block back; cannot fail: the queue holds every block.
+        let _ = self.free.enqueue(filled.block);
+        let t0 = self.clock.now();
+        if self.blocks % HEALTH_EVERY_BLOCKS == 0 {
+            let h = self.health();
+            self.link.health(h);
+        }
+        self.link.pump(self.sample_clock());
+        self.timing.records += self.clock.now().wrapping_sub(t0) as u64;
+        true
+    }
+
+    /// Account `ticks` of sleep.
+    pub fn idled(&mut self, ticks: u32) {
+        self.timing.idle += ticks as u64;
+    }
+
+    /// End the run: close the last window, send every record and a last health frame.
+    pub fn finish(&mut self) {
+        while self.step() {}
+        while self.chain.finish().is_err() {
+            self.drain_records();
+        }
+        self.drain_records();
+        let h = self.health();
+        self.link.health(h);
+        let now = self.sample_clock();
+        self.link.drain(now);
+    }
+
+    fn drain_records(&mut self) {
+        let t0 = self.clock.now();
+        while let Some(rec) = self.chain.poll() {
+            self.on_record(&rec);
+        }
+        self.timing.records += self.clock.now().wrapping_sub(t0) as u64;
+    }
+
+    fn on_record(&mut self, rec: &FwRecord) {
+        // The host replay keeps its records without the raw correlation sums (they do not
+        // go on the wire either): the digest covers the same.
+        #[cfg(feature = "self-check")]
+        self.digest.add(&rec.without_sums::<1>());
+        self.link.record(rec);
+        self.saturated += rec.lead.rail_frames + rec.trail.as_ref().map_or(0, |t| t.rail_frames);
+        if let Some(p) = self.chain.config().probes.get(rec.probe as usize) {
+            let mut set = |ch: u8, stuck: bool| {
+                let bit = 1u64 << (ch & 63);
+                if stuck {
+                    self.stuck |= bit;
+                } else {
+                    self.stuck &= !bit;
+                }
+            };
+            set(p.leading.channel, rec.flags.contains(Flags::STUCK));
+            if let Some(t) = p.trailing {
+                set(t.channel, rec.flags.contains(Flags::TRAILING_STUCK));
+            }
+        }
+    }
+
+    /// The sample clock: frames read from the source (pushed or dropped).
+    pub fn sample_clock(&self) -> u64 {
+        HEALTH.frames_in.load(Ordering::Relaxed) as u64
+    }
+
+    /// The health counters as a wire body.
+    pub fn health(&self) -> Health {
+        let ch = self.channels as u64;
+        Health {
+            samples_dropped: HEALTH.dropped_frames.load(Ordering::Relaxed) as u64 * ch,
+            saturated_samples: self.saturated,
+            tips_stuck: self.stuck,
+            buffer_high_water: HEALTH.queue_high_water.load(Ordering::Relaxed)
+                * (BLOCK_FRAMES * self.channels) as u32,
+            frames_dropped: 0,
+            uptime_frames: self.sample_clock(),
+        }
+    }
+
+    /// The digest of the records so far.
+    #[cfg(feature = "self-check")]
+    pub fn digest(&self) -> Digest {
+        self.digest
+    }
+
+    /// Frames pushed into the chain.
+    pub fn frames_pushed(&self) -> u64 {
+        self.frames_pushed
+    }
+
+    /// Take the chain and the clock back (after [`finish`](Self::finish)).
+    pub fn into_parts(self) -> (&'static mut FwChain, C) {
+        (self.chain, self.clock)
+    }
+
+    /// The link.
+    pub fn link(&self) -> &Link<W> {
+        &self.link
+    }
+}

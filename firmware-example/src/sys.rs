@@ -1,0 +1,305 @@
+//! The only module with `unsafe` code (the crate root denies it everywhere else).
+//!
+//! - [`RegBlock`]: volatile access to one memory-mapped peripheral's registers. A block is
+//!   handed out once per peripheral by [`take`], so no two drivers alias a register; each
+//!   access is one `read_volatile`/`write_volatile` in one unsafe block, bounds- and
+//!   alignment-checked against the block's size.
+//! - Stack painting: [`paint_stack`] fills the free stack with a pattern at boot,
+//!   [`stack_high_water`] finds how deep the stack went.
+//! - Emulated board only: the semihosting command line ([`semihosting_cmdline`]) and the
+//!   HardFault handler (cortex-m-rt requires it to be an `unsafe fn`).
+
+#[cfg(feature = "emulated-mps2")]
+use core::sync::atomic::{AtomicU32, Ordering};
+
+/// Registers of one peripheral: `len` bytes from `base`.
+#[cfg(feature = "emulated-mps2")]
+#[derive(Debug)]
+pub struct RegBlock {
+    base: usize,
+    len: usize,
+}
+
+#[cfg(feature = "emulated-mps2")]
+impl RegBlock {
+    /// Read the 32-bit register at byte offset `off` (0 for an offset outside the block).
+    #[inline]
+    pub fn read(&self, off: usize) -> u32 {
+        if off % 4 != 0 || off + 4 > self.len {
+            return 0;
+        }
+        let p = (self.base + off) as *const u32;
+        // SAFETY: `p` lies inside the register block of a peripheral that exists on this
+        // machine (see `Device`), is 4-byte aligned, and this block was handed out once.
+        unsafe { core::ptr::read_volatile(p) }
+    }
+
+    /// Write the 32-bit register at byte offset `off` (ignored outside the block).
+    #[inline]
+    pub fn write(&self, off: usize, value: u32) {
+        if off % 4 != 0 || off + 4 > self.len {
+            return;
+        }
+        let p = (self.base + off) as *mut u32;
+        // SAFETY: as in `read`; register writes have no effect on Rust-visible memory.
+        unsafe { core::ptr::write_volatile(p, value) }
+    }
+}
+
+/// A read-only view of one register of a [`RegBlock`] (a counter, a status), for a
+/// second reader such as an interrupt handler: reads have no side effects on these.
+#[cfg(feature = "emulated-mps2")]
+#[derive(Clone, Copy, Debug)]
+pub struct RoReg {
+    addr: usize,
+}
+
+#[cfg(feature = "emulated-mps2")]
+impl RoReg {
+    /// Read the register.
+    #[inline]
+    pub fn read(&self) -> u32 {
+        // SAFETY: made by `RegBlock::read_only` from a checked, aligned offset of a block
+        // that exists on this machine; a volatile read of a side-effect-free register.
+        unsafe { core::ptr::read_volatile(self.addr as *const u32) }
+    }
+}
+
+#[cfg(feature = "emulated-mps2")]
+impl RegBlock {
+    /// A read-only view of the register at `off` (offset 0 when `off` is out of range).
+    pub fn read_only(&self, off: usize) -> RoReg {
+        let off = if off % 4 != 0 || off + 4 > self.len {
+            0
+        } else {
+            off
+        };
+        RoReg {
+            addr: self.base + off,
+        }
+    }
+}
+
+/// Memory-mapped peripherals of the emulated board (mps2-an386) that the firmware drives
+/// itself (the real board's go through its HAL).
+#[cfg(feature = "emulated-mps2")]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Device {
+    /// CMSDK APB timer 0 (the free-running clock).
+    Timer0,
+    /// CMSDK APB timer 1 (spare).
+    Timer1,
+    /// CMSDK APB UART 0 (the results link; QEMU's first `-serial`).
+    Uart0,
+}
+
+#[cfg(feature = "emulated-mps2")]
+impl Device {
+    const fn base(self) -> usize {
+        match self {
+            Device::Timer0 => 0x4000_0000,
+            Device::Timer1 => 0x4000_1000,
+            Device::Uart0 => 0x4000_4000,
+        }
+    }
+
+    const fn bit(self) -> u32 {
+        match self {
+            Device::Timer0 => 1,
+            Device::Timer1 => 2,
+            Device::Uart0 => 4,
+        }
+    }
+}
+
+#[cfg(feature = "emulated-mps2")]
+static TAKEN: AtomicU32 = AtomicU32::new(0);
+
+/// The register block of `device`, once; `None` if it was taken before.
+#[cfg(feature = "emulated-mps2")]
+pub fn take(device: Device) -> Option<RegBlock> {
+    let old = TAKEN.fetch_or(device.bit(), Ordering::AcqRel);
+    (old & device.bit() == 0).then_some(RegBlock {
+        base: device.base(),
+        len: 0x1000,
+    })
+}
+
+const PAINT: u32 = 0x5AA5_C33C;
+/// The stack is painted (and scanned) this far below its top at most: enough to see any
+/// usage that fits the firmware's RAM budget, and quick to paint on a machine with MiBs.
+pub const STACK_WATCH_BYTES: usize = 256 * 1024;
+
+extern "C" {
+    static __sheap: u32;
+    static _stack_start: u32;
+}
+
+fn stack_bounds() -> (usize, usize) {
+    // Only the addresses of the linker symbols are taken, never their contents.
+    let (heap, top) = (
+        core::ptr::addr_of!(__sheap) as usize,
+        core::ptr::addr_of!(_stack_start) as usize,
+    );
+    (heap.max(top.saturating_sub(STACK_WATCH_BYTES)), top)
+}
+
+/// Paint the free stack below the current stack pointer. Call before any interrupt source
+/// is enabled (first thing in `main`, or before the acquisition starts).
+#[inline(never)]
+pub fn paint_stack() {
+    let (low, _) = stack_bounds();
+    let sp = cortex_m::register::msp::read() as usize;
+    let mut p = (low + 3) & !3;
+    // Leave this function's own frame (and a margin) alone.
+    while p + 256 < sp {
+        // SAFETY: [low, sp - 256) is free stack: below every live frame, above .bss and
+        // .uninit (`__sheap`), and no interrupt handler runs yet to use it.
+        unsafe { core::ptr::write_volatile(p as *mut u32, PAINT) };
+        p += 4;
+    }
+}
+
+/// Deepest stack use since [`paint_stack`], bytes (saturates at [`STACK_WATCH_BYTES`]).
+pub fn stack_high_water() -> usize {
+    let (low, top) = stack_bounds();
+    let mut p = (low + 3) & !3;
+    while p < top {
+        // SAFETY: an aligned read of RAM between the heap start and the stack top.
+        let v = unsafe { core::ptr::read_volatile(p as *const u32) };
+        if v != PAINT {
+            break;
+        }
+        p += 4;
+    }
+    top - p
+}
+
+/// Bytes of `.data`, `.bss` and `.uninit` (static RAM), from the linker symbols.
+pub fn static_ram_bytes() -> usize {
+    extern "C" {
+        static __sdata: u32;
+    }
+    // Addresses of linker symbols only.
+    let (start, end) = (
+        core::ptr::addr_of!(__sdata) as usize,
+        core::ptr::addr_of!(__sheap) as usize,
+    );
+    end - start
+}
+
+/// The command line QEMU passes through semihosting (`-append "..."`), if any.
+#[cfg(feature = "emulated-mps2")]
+pub fn semihosting_cmdline(buf: &mut [u8]) -> Option<&str> {
+    #[repr(C)]
+    struct Block {
+        ptr: *mut u8,
+        len: usize,
+    }
+    let mut block = Block {
+        ptr: buf.as_mut_ptr(),
+        len: buf.len(),
+    };
+    let arg = core::ptr::addr_of_mut!(block) as usize;
+    // SAFETY: SYS_GET_CMDLINE writes at most `len` bytes to `ptr` and the length back into
+    // the block, both of which live for the call. Only valid under a semihosting host
+    // (the emulated board always has one).
+    let r = unsafe { cortex_m_semihosting::syscall1(cortex_m_semihosting::nr::GET_CMDLINE, arg) };
+    // SAFETY: reading back the block the host wrote.
+    let len = unsafe { core::ptr::read_volatile(core::ptr::addr_of!(block.len)) };
+    if r != 0 || len > buf.len() {
+        return None;
+    }
+    let s = core::str::from_utf8(buf.get(..len)?).ok()?;
+    Some(s.trim_end_matches('\0').trim())
+}
+
+/// A hard fault on the emulated board: say where, and exit QEMU with failure.
+#[cfg(feature = "emulated-mps2")]
+#[cortex_m_rt::exception]
+unsafe fn HardFault(ef: &cortex_m_rt::ExceptionFrame) -> ! {
+    cortex_m_semihosting::hprintln!("hard fault at pc {:#010x}", ef.pc());
+    loop {
+        cortex_m_semihosting::debug::exit(cortex_m_semihosting::debug::EXIT_FAILURE);
+    }
+}
+
+/// Unmask an interrupt in the NVIC (the real board's DMA interrupt).
+#[cfg(feature = "board-stm32f4")]
+pub fn unmask(irq: stm32f4xx_hal::pac::Interrupt) {
+    // SAFETY: called once at start-up, after the state the handler takes over was put in
+    // its critical-section cell; unmasking cannot break a critical section in progress.
+    unsafe { cortex_m::peripheral::NVIC::unmask(irq) }
+}
+
+/// Bytes for a UART transmit DMA: a static buffer and how much of it to send. The DMA
+/// reads `deref()` (the filled part), whose address never moves.
+#[cfg(feature = "board-stm32f4")]
+pub struct TxChunk {
+    buf: &'static mut [u8],
+    len: usize,
+}
+
+#[cfg(feature = "board-stm32f4")]
+impl TxChunk {
+    /// An empty chunk over `buf`.
+    pub fn new(buf: &'static mut [u8]) -> Self {
+        TxChunk { buf, len: 0 }
+    }
+
+    /// Append as much of `bytes` as fits; returns how much did.
+    pub fn extend(&mut self, bytes: &[u8]) -> usize {
+        let n = bytes.len().min(self.buf.len() - self.len);
+        self.buf[self.len..self.len + n].copy_from_slice(&bytes[..n]);
+        self.len += n;
+        n
+    }
+
+    /// True when nothing is in it.
+    pub fn is_empty(&self) -> bool {
+        self.len == 0
+    }
+
+    /// True when it cannot take another byte.
+    pub fn is_full(&self) -> bool {
+        self.len == self.buf.len()
+    }
+
+    /// Empty it.
+    pub fn clear(&mut self) {
+        self.len = 0;
+    }
+}
+
+#[cfg(feature = "board-stm32f4")]
+impl core::ops::Deref for TxChunk {
+    type Target = [u8];
+    fn deref(&self) -> &[u8] {
+        &self.buf[..self.len]
+    }
+}
+
+// SAFETY: `deref` points into a `'static` buffer that the chunk owns exclusively; moving the
+// chunk does not move the bytes, so the address the DMA was given stays valid.
+#[cfg(feature = "board-stm32f4")]
+unsafe impl stable_deref_trait::StableDeref for TxChunk {}
+
+/// Execute exactly `2 * iterations` instructions (a `subs`/`bne` loop), to calibrate the
+/// clock against the instruction count (QEMU `-icount`).
+#[inline(never)]
+pub fn instruction_loop(iterations: u32) {
+    if iterations == 0 {
+        return;
+    }
+    // SAFETY: a register-only countdown loop; touches no memory and no stack.
+    unsafe {
+        core::arch::asm!(
+            "2:",
+            "subs {0}, {0}, #1",
+            "bne 2b",
+            inout(reg) iterations => _,
+            options(nomem, nostack),
+        );
+    }
+}

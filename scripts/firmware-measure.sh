@@ -1,0 +1,159 @@
+#!/usr/bin/env bash
+# Measure the firmware example against the issue's budget for 8 dual-tip probes
+# (16 channels at 20 kHz): <= 20 instructions per channel-sample, RAM <= 64 KiB,
+# flash <= 96 KiB.
+#
+# - Instructions: QEMU with `-icount shift=0` (one instruction = 1 ns of virtual time; the
+#   DWT cycle counter reads 0 under QEMU), the firmware times its own stages with the
+#   CMSDK TIMER0 (25 MHz: one tick = 40 instructions, checked by a calibration loop of
+#   known length) and prints the tick counts (mode `measure`: unpaced, the chain alone and
+#   three streaming variants; mode `run`: paced, for the interrupt's share and the idle time).
+# - RAM: .data + .bss + .uninit of the ELF, plus the stack high-water mark the firmware
+#   measures itself (stack painted at boot, scanned at the end; the chain's construction is
+#   reported apart because the core builds it on the stack).
+# - Flash: .vector_table + .text + .rodata + .data, of the emulated build (which embeds the
+#   capture: reported with and without it) and of the NUCLEO-F411RE build (no capture).
+# Section sizes come from llvm-size (or readelf -S from binutils).
+#
+# Usage: bash scripts/firmware-measure.sh [--strict]   (--strict: exit 1 when a target is missed)
+set -uo pipefail
+cd "$(dirname "$0")/.."
+strict=0
+[ "${1:-}" = "--strict" ] && strict=1
+out=target/firmware
+mkdir -p "$out"
+qemu=$(bash scripts/fetch-qemu.sh) || exit 2
+
+echo "building the emulated firmware (mps2-an386) and the board firmware (NUCLEO-F411RE)..." >&2
+(cd firmware-example && cargo build --release -q) || exit 2
+(cd firmware-example && CARGO_TARGET_DIR=target/board cargo build --release -q \
+    --no-default-features --features board-stm32f4) || exit 2
+emu=firmware-example/target/thumbv7em-none-eabihf/release/frothline-firmware-example
+board=firmware-example/target/board/thumbv7em-none-eabihf/release/frothline-firmware-example
+
+sections() { # ELF -> "name size" lines (decimal)
+    if command -v llvm-size >/dev/null 2>&1; then
+        llvm-size -A -d "$1" | awk 'NR > 2 && NF >= 2 { print $1, $2 }'
+    else
+        readelf -S -W "$1" | awk '/^ *\[ *[0-9]+\]/ { sub(/^ *\[ *[0-9]+\] */, ""); print $1, strtonum("0x" $5) }'
+    fi
+}
+sections "$emu" > "$out/sections-emulated.txt"
+sections "$board" > "$out/sections-board.txt"
+
+for m in measure run; do
+    timeout 120 "$qemu" -machine mps2-an386 -nographic -monitor none \
+        -semihosting-config "enable=on,target=native,arg=$m" -icount shift=0,sleep=off \
+        -serial "file:$out/uart-measure-$m.bin" -kernel "$emu" > "$out/measure-$m.txt"
+    rc=$?
+    if [ $rc -ne 0 ]; then
+        echo "firmware-measure: the $m run failed (exit $rc):" >&2
+        cat "$out/measure-$m.txt" >&2
+        exit 1
+    fi
+done
+
+python3 - "$out" "$strict" <<'PY'
+import re, sys
+out, strict = sys.argv[1], sys.argv[2] == "1"
+
+def kv(path):
+    d = {}
+    for line in open(path):
+        parts = line.split()
+        if not parts or not parts[0].startswith("fw."):
+            continue
+        tag = parts[0][3:]
+        if tag == "streaming":
+            fields = dict(p.split("=", 1) for p in parts[1:] if "=" in p)
+            d.setdefault("streaming", {})[fields["variant"]] = fields
+            continue
+        for p in parts[1:]:
+            if "=" in p:
+                k, v = p.split("=", 1)
+                d[f"{tag}.{k}"] = v
+    return d
+
+def secs(path):
+    return {n: int(s) for n, s in (l.split() for l in open(path)) if s.isdigit()}
+
+m, r = kv(f"{out}/measure-measure.txt"), kv(f"{out}/measure-run.txt")
+ipt = int(m["calibration.instructions"]) / int(m["calibration.ticks"])
+frames, ch = int(m["acquisition.frames_pushed"]), int(m["timing.channels"])
+samples = frames * ch
+per = lambda ticks, n=samples: int(ticks) * ipt / n
+cfg = open("firmware-example/capture/config.rs").read()
+cap_frames = int(re.search(r"FRAMES: usize = (\d+)", cfg).group(1))
+cap_ch = int(re.search(r"CHANNELS: u8 = (\d+)", cfg).group(1))
+window = int(re.search(r"WindowPolicy::Frames\((\d+)\)", cfg).group(1))
+capture_bytes = cap_frames * cap_ch * 2
+
+push = per(m["timing.push_ticks"])
+records = per(m["timing.records_ticks"])
+st = m["streaming"]
+whole = per(st["whole"]["push_ticks"])
+fixed = per(st["whole-fixed"]["push_ticks"])
+lead_only = per(st["whole-fixed-leading"]["push_ticks"])
+nrec = int(m["result.records"])
+per_window = (int(m["timing.push_ticks"]) - int(st["whole"]["push_ticks"])) * ipt / max(nrec, 1)
+rframes = int(r["acquisition.frames_pushed"]) * int(r["timing.channels"])
+isr = int(r["timing.isr_ticks"]) * ipt / rframes
+busy_ticks = int(r["timing.total_ticks"]) - int(r["timing.idle_ticks"])
+busy = busy_ticks * ipt / rframes
+pipeline = push + records + isr
+
+e, b = secs(f"{out}/sections-emulated.txt"), secs(f"{out}/sections-board.txt")
+flash = lambda s: sum(s.get(k, 0) for k in (".vector_table", ".text", ".rodata", ".data"))
+static = lambda s: sum(s.get(k, 0) for k in (".data", ".bss", ".uninit"))
+stack_run, stack_init = int(m["memory.stack_run_bytes"]), int(m["memory.stack_init_bytes"])
+KiB = 1024
+
+print("firmware example, 8 dual-tip probes (16 channels), 20 kHz, %d-frame (%.0f ms) windows" % (window, window / 20.0))
+print("\n# instructions per channel-sample (QEMU -icount shift=0; %.0f instructions per timer tick)" % ipt)
+rows = [
+    ("chain push, as configured (learnt levels, %d-frame windows)" % window, push),
+    ("  of which streaming: one whole window, learnt levels", whole),
+    ("  of which streaming: one whole window, fixed levels", fixed),
+    ("  per-window work (closing %d probe-windows: %.0f instructions each)" % (nrec, per_window), push - whole),
+    ("  learning (400-frame period)", whole - fixed),
+    ("  trailing tips' statistics + pair correlation (fixed levels, whole window)", fixed - lead_only),
+    ("  phase detection + leading-tip statistics (fixed levels, whole window)", lead_only),
+    ("records: wire results, digest, health, link", records),
+    ("acquisition interrupt (one frame per tick, paced run)", isr),
+    ("full pipeline (chain + records + interrupt)", pipeline),
+    ("main loop busy time in the paced run (all of it)", busy),
+]
+for name, v in rows:
+    print("  %-82s %8.1f" % (name, v))
+cpu = pipeline * samples / frames * 20000 / 1e6
+print("  -> at 20 kHz x 16 channels the pipeline needs %.0f million instructions per second" % (cpu))
+
+print("\n# RAM (bytes)")
+print("  emulated build: static %d (.data %d + .bss %d), stack while running %d -> %d (%.1f KiB)"
+      % (static(e), e.get(".data", 0), e.get(".bss", 0), stack_run, static(e) + stack_run, (static(e) + stack_run) / KiB))
+print("  of the static RAM: the chain Chain<8, 64> %s, one record %s, acquisition blocks 2 x %s"
+      % (m["memory.chain_bytes"], m["memory.record_bytes"], m["memory.block_bytes"]))
+print("  stack to build the chain (Chain::new returns it by value; peak at start-up): %d" % stack_init)
+print("  board build (NUCLEO-F411RE, 128 KiB SRAM): static %d (.bss %d)" % (static(b), b.get(".bss", 0)))
+
+print("\n# flash (bytes)")
+print("  emulated build: %d with the capture (%d bytes), %d without" % (flash(e), capture_bytes, flash(e) - capture_bytes))
+print("  board build (no capture, no self-check digest): %d" % flash(b))
+
+ram = static(e) + stack_run
+targets = [
+    ("<= 20 instructions per channel-sample (full pipeline)", pipeline <= 20, "%.1f" % pipeline),
+    ("RAM <= 64 KiB (static + running stack)", ram <= 64 * KiB, "%d" % ram),
+    ("flash <= 96 KiB without the capture", flash(e) - capture_bytes <= 96 * KiB, "%d" % (flash(e) - capture_bytes)),
+    ("flash <= 96 KiB with the capture", flash(e) <= 96 * KiB, "%d" % flash(e)),
+]
+print("\n# targets")
+missed = 0
+for name, ok, val in targets:
+    print("  %-58s %-6s %s" % (name, "met" if ok else "MISSED", val))
+    missed += not ok
+if missed:
+    print("\n  largest costs: per-window work %.0f, streaming %.0f (learning %.0f) instructions per"
+          " channel-sample; RAM: the chain's %s bytes" % (push - whole, whole, whole - fixed, m["memory.chain_bytes"]))
+sys.exit(1 if (strict and missed) else 0)
+PY

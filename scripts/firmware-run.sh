@@ -1,0 +1,55 @@
+#!/usr/bin/env bash
+# Build the firmware example and run it in QEMU's mps2-an386 (Cortex-M4F), UART0 (the wire
+# frames) routed to a file or to stdout, the semihosting console (fw.* summary lines) on
+# stdout; exits with the firmware's own verdict (semihosting exit: 0 pass, 1 fail), or 124
+# when the run hits the time limit.
+#
+# Usage: bash scripts/firmware-run.sh [MODE] [options]
+#   MODE            run (default) | adc | overrun | measure   (see firmware-example/src/mps2.rs)
+#   --uart PATH     UART0 to PATH (default target/firmware/uart-MODE.bin); `stdio` for stdout
+#   --icount SHIFT  QEMU -icount shift: one instruction = 2^SHIFT ns (default 0: 1000 MIPS;
+#                   4 = 62.5 MIPS, a Cortex-M4F at 60-100 MHz, where this pipeline overruns)
+#   --timeout SEC   wall-clock limit (default 60)
+#   --features F    extra cargo features (e.g. defmt-semihosting: decode stdout with defmt-print)
+#   --verify        after the run, decode the UART file and check every window result
+#                   against a host replay of the same capture (needs the host tool to build)
+set -uo pipefail
+cd "$(dirname "$0")/.."
+mode=run uart="" shift_=0 secs=60 features="" verify=0
+while [ $# -gt 0 ]; do
+    case "$1" in
+        run|adc|overrun|measure) mode=$1 ;;
+        --uart) uart=$2; shift ;;
+        --icount) shift_=$2; shift ;;
+        --timeout) secs=$2; shift ;;
+        --features) features=$2; shift ;;
+        --verify) verify=1 ;;
+        -h|--help) sed -n '2,17p' "$0"; exit 0 ;;
+        *) echo "firmware-run: unknown argument $1" >&2; exit 2 ;;
+    esac
+    shift
+done
+mkdir -p target/firmware
+[ -n "$uart" ] || uart=target/firmware/uart-$mode.bin
+if [ "$uart" = stdio ]; then serial=stdio; else serial=file:$uart; fi
+
+qemu=$(bash scripts/fetch-qemu.sh) || { echo "firmware-run: no QEMU" >&2; exit 2; }
+(cd firmware-example && cargo build --release -q ${features:+--features "$features"}) \
+    || { echo "firmware-run: build failed" >&2; exit 2; }
+elf=firmware-example/target/thumbv7em-none-eabihf/release/frothline-firmware-example
+
+timeout "$secs" "$qemu" -machine mps2-an386 -nographic -monitor none \
+    -semihosting-config "enable=on,target=native,arg=$mode" \
+    -icount "shift=$shift_,sleep=off" \
+    -serial "$serial" -kernel "$elf"
+rc=$?
+if [ $rc -eq 124 ]; then
+    echo "firmware-run: no exit within ${secs}s (killed)" >&2
+    exit 124
+fi
+if [ $rc -eq 0 ] && [ $verify -eq 1 ] && [ "$uart" != stdio ]; then
+    d=firmware-example/capture
+    cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml -- \
+        verify-uart "$d/capture.wav" "$d/layout.toml" 10ms "$uart" || rc=1
+fi
+exit $rc
