@@ -160,15 +160,6 @@ const WINDOW_COLUMNS: &[&str] = &[
     "bubble_chord_p90_s",
 ];
 
-/// Extra columns of windows.csv known to the writer but not used by the report.
-const WINDOW_COLUMNS_UNUSED: &[&str] = &[
-    "droplet_chord_mean_s",
-    "trailing_void_fraction",
-    "trailing_bubble_count_rate_hz",
-    "air_level_counts",
-    "water_level_counts",
-];
-
 /// Most flag names a run may carry; names past this share the last bit.
 const MAX_FLAGS: usize = 64;
 
@@ -385,7 +376,7 @@ fn read_windows(run: &mut Run, progress: &ProgressBar) -> Result<(), ReportError
         .headers
         .iter()
         .map(|h| h.as_str())
-        .filter(|h| !WINDOW_COLUMNS.contains(h) && !WINDOW_COLUMNS_UNUSED.contains(h))
+        .filter(|h| !WINDOW_COLUMNS.contains(h) && !crate::windows_csv::COLUMNS.contains(h))
         .collect();
     if !unknown.is_empty() {
         run.notes.push(format!(
