@@ -29,12 +29,20 @@
 //! across two pushes is completed before it is processed. When the caller does not drain
 //! the queue, `push` stops at the next window end and says how much it consumed
 //! (back-pressure, never a silent drop).
+//!
+//! A chain with a station configuration ([`ChainConfig::station`], transient flows) runs
+//! the front detectors on the samples as they come and the statistics above `H` frames
+//! later, through a delay ring of `D` samples held by the chain (`Chain<P, L, D>`; `D = 0`,
+//! the default, for steady flows): see [`crate::station`] for why and how the first window
+//! then starts exactly at the front's arrival. Such a chain also gives front records
+//! ([`Chain::poll_front`]) and profile records ([`Chain::poll_profile`]).
 
 use crate::config::{ChainConfig, ConfigError, DetectorConfig, TipConfig};
 use crate::correlation::{Correlator, DEFAULT_LAGS, MAX_RUN_FRAMES};
 use crate::flags::Flags;
 use crate::phase::{run_lanes, Edge, EdgeSink, Lanes, PhaseDetector, RunCounts};
 use crate::record::{ProbeWindow, TipStats};
+use crate::station::{FrontRecord, ProfileRecord, Station, MAX_DECAY_POINTS};
 use crate::tip_stats::TipAccumulator;
 use crate::window::WindowPolicy;
 use crate::MAX_CHANNELS;
@@ -114,10 +122,10 @@ struct ProbeState<const L: usize> {
     corr: Option<Correlator<L>>,
 }
 
-/// The signal chain of up to `P` probes, with `L` correlation lag slots (largest lag
-/// `L - 1` frames; see the module documentation).
+/// The statistics path: tips, correlators, windows (and the station, which it cuts and
+/// closes windows for).
 #[derive(Clone, Debug)]
-pub struct Chain<const P: usize, const L: usize = DEFAULT_LAGS> {
+struct Stats<const P: usize, const L: usize> {
     config: ChainConfig<P>,
     probes: Vec<ProbeState<L>, P>,
     queue: Deque<ProbeWindow<L>, P>,
@@ -125,12 +133,45 @@ pub struct Chain<const P: usize, const L: usize = DEFAULT_LAGS> {
     window_start: u64,
     /// Bubbles closed by the reference tip in the open window ([`WindowPolicy::Bubbles`]).
     window_bubbles: u32,
+    /// [`WindowPolicy::AfterFront`]: the pre-front record is still open.
+    pre_front_open: bool,
+    station: Option<Station<P>>,
+}
+
+/// The delay ring of a station chain: the frames the front path has seen and the statistics
+/// not yet, oldest first, in slots of one frame.
+#[derive(Clone, Debug)]
+struct Ring<const D: usize> {
+    buf: [i16; D],
+    /// Slots (frames) the buffer holds.
+    cap: usize,
+    /// Slot of the oldest frame.
+    head: usize,
+    /// Frames held.
+    len: usize,
+}
+
+/// The signal chain of up to `P` probes, with `L` correlation lag slots (largest lag
+/// `L - 1` frames; see the module documentation) and a delay ring of `D` samples for a
+/// station (transient flows; 0 for steady flows).
+#[derive(Clone, Debug)]
+pub struct Chain<const P: usize, const L: usize = DEFAULT_LAGS, const D: usize = 0> {
+    stats: Stats<P, L>,
+    ring: Ring<D>,
     partial: [i16; MAX_CHANNELS],
     partial_len: usize,
     finished: bool,
 }
 
 impl<const P: usize, const L: usize> Chain<P, L> {
+    /// Build a chain without a delay ring (steady flows); the configuration is checked
+    /// first. A station chain needs [`with_delay_ring`](Chain::with_delay_ring).
+    pub fn new(config: ChainConfig<P>) -> Result<Self, ConfigError> {
+        Self::with_delay_ring(config)
+    }
+}
+
+impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
     /// The largest correlation lag a probe of this chain can use, frames.
     pub const MAX_LAG: u16 = if L - 1 > u16::MAX as usize {
         u16::MAX
@@ -138,11 +179,22 @@ impl<const P: usize, const L: usize> Chain<P, L> {
         (L - 1) as u16
     };
 
-    /// Build a chain; the configuration is checked first.
-    pub fn new(config: ChainConfig<P>) -> Result<Self, ConfigError> {
+    /// Build a chain with a delay ring of `D` samples (`Chain<P, L, D>`); the configuration
+    /// is checked first. A station ([`ChainConfig::station`]) needs
+    /// `D >= (delay_frames + 1) × channels`; without one the ring is unused.
+    pub fn with_delay_ring(config: ChainConfig<P>) -> Result<Self, ConfigError> {
         const { assert!(P > 0, "a chain needs room for at least one probe") };
         const { assert!(L >= 3 && L <= 1 << 16, "L must lie in 3..=65536") };
         config.validate()?;
+        let channels = config.channels as usize;
+        if let Some(st) = &config.station {
+            let need = (st.delay_frames as u64 + 1).saturating_mul(channels as u64);
+            if need > D as u64 {
+                return Err(ConfigError::DelayRingTooSmall {
+                    need: need.min(u32::MAX as u64) as u32,
+                });
+            }
+        }
         let mut probes = Vec::new();
         for p in &config.probes {
             let lead = Tip::new(&p.leading, &config.detector, config.initial_air);
@@ -156,13 +208,27 @@ impl<const P: usize, const L: usize> Chain<P, L> {
             // Cannot fail: config.probes has the same capacity.
             let _ = probes.push(ProbeState { lead, trail, corr });
         }
+        let station = config
+            .station
+            .as_ref()
+            .map(|st| Station::new(st, &config.probes, &config.detector, config.initial_air));
         Ok(Chain {
-            config,
-            probes,
-            queue: Deque::new(),
-            frame: 0,
-            window_start: 0,
-            window_bubbles: 0,
+            stats: Stats {
+                pre_front_open: matches!(config.window, WindowPolicy::AfterFront { .. }),
+                config,
+                probes,
+                queue: Deque::new(),
+                frame: 0,
+                window_start: 0,
+                window_bubbles: 0,
+                station,
+            },
+            ring: Ring {
+                buf: [0; D],
+                cap: D / channels.max(1),
+                head: 0,
+                len: 0,
+            },
             partial: [0; MAX_CHANNELS],
             partial_len: 0,
             finished: false,
@@ -172,7 +238,8 @@ impl<const P: usize, const L: usize> Chain<P, L> {
     /// The correlation lag range in use for probe `probe`, frames (`None` for a probe
     /// without a trailing tip, or beyond the configuration).
     pub fn max_lag(&self, probe: usize) -> Option<u16> {
-        self.probes
+        self.stats
+            .probes
             .get(probe)?
             .corr
             .as_ref()
@@ -181,17 +248,46 @@ impl<const P: usize, const L: usize> Chain<P, L> {
 
     /// The configuration in use.
     pub fn config(&self) -> &ChainConfig<P> {
-        &self.config
+        &self.stats.config
     }
 
-    /// Frames processed so far (the sample clock since the run started).
+    /// Frames taken in so far (the sample clock since the run started). With a station,
+    /// the statistics run [`processed_frames`](Self::processed_frames) behind by the delay.
     pub fn frames(&self) -> u64 {
-        self.frame
+        match &self.stats.station {
+            Some(st) => st.front_frame(),
+            None => self.stats.frame,
+        }
+    }
+
+    /// Frames the statistics (windows, correlation) have processed.
+    pub fn processed_frames(&self) -> u64 {
+        self.stats.frame
     }
 
     /// Samples of an incomplete frame held for the next push.
     pub fn pending_samples(&self) -> usize {
         self.partial_len
+    }
+
+    /// The station's front arrival frame, once fixed (station chains only; see
+    /// [`crate::station`]): it is fixed when the statistics reach the front.
+    pub fn arrival(&self) -> Option<u64> {
+        self.stats
+            .station
+            .as_ref()
+            .and_then(|s| s.locked())
+            .map(|(a, _)| a)
+    }
+
+    /// What the front detector of probe `probe` knows so far (station chains only).
+    pub fn tip_front(&self, probe: usize) -> Option<crate::front::TipFront> {
+        self.stats.station.as_ref()?.tip(probe)
+    }
+
+    /// The decay series so far, `(seconds since the front, Cmean)` (station chains only).
+    pub fn decay_tracker(&self) -> Option<&crate::decay::DecayTracker<MAX_DECAY_POINTS>> {
+        self.stats.station.as_ref().map(Station::decay_tracker)
     }
 
     /// Push interleaved samples of any length. Returns how many samples were consumed: all
@@ -204,7 +300,7 @@ impl<const P: usize, const L: usize> Chain<P, L> {
         if self.finished {
             return 0;
         }
-        let n = self.config.channels as usize;
+        let n = self.stats.config.channels as usize;
         let mut used = 0;
         if self.partial_len > 0 {
             let need = n - self.partial_len;
@@ -237,40 +333,168 @@ impl<const P: usize, const L: usize> Chain<P, L> {
 
     /// Take the oldest finished record, if any.
     pub fn poll(&mut self) -> Option<ProbeWindow<L>> {
-        self.queue.pop_front()
+        self.stats.queue.pop_front()
     }
 
-    /// End the record: close the open window (flagged partial when the policy wanted a
-    /// longer one). An incomplete last frame is dropped. Call [`poll`](Chain::poll) after.
+    /// Take the oldest front record, if any (station chains). The queue holds every front
+    /// record of a run (one per probe and one for the station), so it never applies
+    /// back-pressure.
+    pub fn poll_front(&mut self) -> Option<FrontRecord> {
+        self.stats.station.as_mut()?.poll_front()
+    }
+
+    /// Take the oldest profile record, if any (station chains; one per window closed after
+    /// the front). Like [`poll`](Chain::poll), a full queue makes `push` stop.
+    pub fn poll_profile(&mut self) -> Option<ProfileRecord> {
+        self.stats.station.as_mut()?.poll_profile()
+    }
+
+    /// End the record: run the statistics over the frames still in the delay ring, close
+    /// the open window (flagged partial when the policy wanted a longer one) and queue the
+    /// station's last front records. An incomplete last frame is dropped. Call
+    /// [`poll`](Chain::poll) (and the other polls) after; on `Err`, drain and call again.
     pub fn finish(&mut self) -> Result<(), QueueFull> {
         if self.finished {
             return Ok(());
         }
-        if self.frame > self.window_start {
-            if !self.has_room() {
+        if self.stats.station.is_some() && !self.drain_ring(0) {
+            return Err(QueueFull);
+        }
+        let st = &mut self.stats;
+        let frame = st.frame;
+        if let Some(s) = st.station.as_mut() {
+            s.lock_if_due(frame);
+        }
+        st.settle_pre_front();
+        if st.frame > st.window_start {
+            if !st.has_room() {
                 return Err(QueueFull);
             }
-            let partial = self.config.window.closes_by_itself();
-            self.close_window(partial);
+            let partial = st.config.window.closes_by_itself() && !st.pre_front_open;
+            st.close_window(partial);
+        }
+        if let Some(s) = st.station.as_mut() {
+            s.finish();
         }
         self.finished = true;
         Ok(())
     }
 
+    /// Process whole frames; returns the number consumed (fewer only on back-pressure).
+    fn process_frames(&mut self, data: &[i16]) -> usize {
+        if self.stats.station.is_none() {
+            return self.stats.run_frames(data);
+        }
+        let n = self.stats.config.channels as usize;
+        let total = data.len() / n;
+        let keep = self
+            .stats
+            .config
+            .station
+            .as_ref()
+            .map_or(0, |s| s.delay_frames as usize);
+        let mut used = 0;
+        loop {
+            // 1. The statistics catch up to `delay` frames behind the front path.
+            if !self.drain_ring(keep) {
+                return used;
+            }
+            if used == total {
+                return used;
+            }
+            // 2. The front path takes the next frames into the ring.
+            let m = (total - used).min(self.ring.cap - self.ring.len);
+            if m == 0 {
+                // Unreachable: the ring holds at least delay + 1 frames.
+                return used;
+            }
+            let chunk = &data[used * n..(used + m) * n];
+            if let Some(st) = self.stats.station.as_mut() {
+                st.front_run(chunk, n);
+            }
+            self.ring_append(chunk, n);
+            used += m;
+        }
+    }
+
+    /// Run the statistics over the ring's oldest frames until at most `keep` are left.
+    /// False on back-pressure.
+    fn drain_ring(&mut self, keep: usize) -> bool {
+        let n = self.stats.config.channels as usize;
+        while self.ring.len > keep {
+            let want = (self.ring.len - keep).min(self.ring.cap - self.ring.head);
+            let from = self.ring.head * n;
+            let Some(piece) = self.ring.buf.get(from..from + want * n) else {
+                return false;
+            };
+            let done = self.stats.run_frames(piece);
+            self.ring.head = (self.ring.head + done) % self.ring.cap.max(1);
+            self.ring.len -= done;
+            if done < want {
+                return false;
+            }
+        }
+        true
+    }
+
+    /// Copy whole frames to the ring's tail (room was checked).
+    fn ring_append(&mut self, frames: &[i16], n: usize) {
+        let cap = self.ring.cap.max(1);
+        let mut rest = frames;
+        while !rest.is_empty() {
+            let tail = (self.ring.head + self.ring.len) % cap;
+            let take = (rest.len() / n).min(cap - tail);
+            let (now, later) = rest.split_at(take * n);
+            if let Some(dst) = self.ring.buf.get_mut(tail * n..(tail + take) * n) {
+                dst.copy_from_slice(now);
+            }
+            self.ring.len += take;
+            rest = later;
+            if take == 0 {
+                break;
+            }
+        }
+    }
+}
+
+impl<const P: usize, const L: usize> Stats<P, L> {
     fn has_room(&self) -> bool {
         self.queue.capacity() - self.queue.len() >= self.probes.len()
+            && self.station.as_ref().is_none_or(Station::has_profile_room)
+    }
+
+    /// The end (exclusive) of the open window, when known.
+    fn window_end(&self) -> Option<u64> {
+        if let WindowPolicy::AfterFront { .. } = self.config.window {
+            if self.pre_front_open {
+                return self.station.as_ref().and_then(Station::cut);
+            }
+        }
+        self.config.window.end_of_window_from(self.window_start)
+    }
+
+    /// Fix the station's arrival when the statistics reach it, and drop an empty pre-front
+    /// record (a front at frame 0).
+    fn settle_pre_front(&mut self) {
+        let frame = self.frame;
+        if let Some(s) = self.station.as_mut() {
+            s.lock_if_due(frame);
+        }
+        let locked = self.station.as_ref().and_then(Station::locked);
+        if self.pre_front_open && locked.is_some() && self.frame == self.window_start {
+            self.pre_front_open = false;
+        }
     }
 
     /// Process whole frames; returns the number processed (fewer only on back-pressure).
-    fn process_frames(&mut self, data: &[i16]) -> usize {
+    fn run_frames(&mut self, data: &[i16]) -> usize {
         let n = self.config.channels as usize;
         let total = data.len() / n;
         let mut done = 0;
         while done < total {
+            self.settle_pre_front();
             let to_end = self
-                .config
-                .window
-                .end_of_window_from(self.window_start)
+                .window_end()
                 .map_or(u64::MAX, |e| e.saturating_sub(self.frame));
             let mut len = ((total - done) as u64).min(to_end).min(RUN_FRAMES as u64) as usize;
             // Learning events (at the same frames for every learning tip) end runs too.
@@ -329,6 +553,12 @@ impl<const P: usize, const L: usize> Chain<P, L> {
     /// over all channels at once for the usual channel counts, tip by tip otherwise. Both
     /// give the same records.
     fn run_probes(&mut self, run: &[i16], channels: usize, first: u64) {
+        // The frame-major lanes pay off where 64-bit masks and wide vector units are cheap;
+        // a 32-bit core (Cortex-M4) splits every 64-bit mask operation and spills, so it
+        // runs the per-tip loop, which keeps one tip's state in registers.
+        if cfg!(target_pointer_width = "32") {
+            return self.run_tip_by_tip(run, channels, first);
+        }
         match channels {
             2 => self.run_frame_major::<2>(run, first),
             4 => self.run_frame_major::<4>(run, first),
@@ -420,12 +650,28 @@ impl<const P: usize, const L: usize> Chain<P, L> {
     }
 
     fn close_window(&mut self, partial: bool) {
+        let frame = self.frame;
+        if let Some(s) = self.station.as_mut() {
+            s.lock_if_due(frame);
+        }
+        let pre = self.pre_front_open;
+        let locked = self.station.as_ref().and_then(Station::locked);
+        let since_front = self
+            .station
+            .as_ref()
+            .and_then(|s| s.since_front(self.window_start));
+        let after_front = matches!(self.config.window, WindowPolicy::AfterFront { .. });
+        let late_start =
+            after_front && !pre && locked.is_some_and(|(a, w)| self.window_start == w && w > a);
+        let mut lead_c = [(None, Flags::NONE); crate::front::MAX_STATION_PROBES];
         let det = &self.config.detector;
         for (i, p) in self.probes.iter_mut().enumerate() {
             let lead = p.lead.close();
             let trail = p.trail.as_mut().map(Tip::close);
             let mut flags = lead.flags;
             flags.set_if(Flags::PARTIAL_WINDOW, partial);
+            flags.set_if(Flags::PRE_FRONT, pre);
+            flags.set_if(Flags::LATE_FRONT_START, late_start);
             if let Some(t) = &trail {
                 flags.set_if(Flags::TRAILING_STUCK, t.flags.contains(Flags::STUCK));
             }
@@ -442,10 +688,14 @@ impl<const P: usize, const L: usize> Chain<P, L> {
                 }
                 _ => (None, None),
             };
+            if let Some(slot) = lead_c.get_mut(i) {
+                *slot = (lead.void_fraction(), flags);
+            }
             let rec = ProbeWindow {
                 probe: i as u8,
                 start: self.window_start,
                 end: self.frame,
+                since_front,
                 lead,
                 trail,
                 flags,
@@ -455,6 +705,13 @@ impl<const P: usize, const L: usize> Chain<P, L> {
             // Room was checked before the window was processed.
             let _ = self.queue.push_back(rec);
         }
+        if let (Some(s), false, Some(since)) = (self.station.as_mut(), pre, since_front) {
+            if since >= 0 {
+                let k = self.probes.len().min(lead_c.len());
+                s.slice(self.window_start, self.frame, &lead_c[..k], partial);
+            }
+        }
+        self.pre_front_open = false;
         self.window_start = self.frame;
         self.window_bubbles = 0;
     }

@@ -3,6 +3,8 @@
 //! Everything is plain data checked once by [`ChainConfig::validate`], so the hot loop never
 //! has to check it again.
 
+use crate::front::MAX_STATION_PROBES;
+use crate::station::StationConfig;
 use crate::window::WindowPolicy;
 use crate::MAX_CHANNELS;
 use heapless::Vec;
@@ -151,6 +153,11 @@ pub struct ChainConfig<const P: usize> {
     /// The phase every tip is taken to be in until its first interface (true = air). Steady
     /// flows usually start in water; a dry bed before a surge starts in air.
     pub initial_air: bool,
+    /// Transient flows: the chain is one station (its probes share a streamwise position)
+    /// with front detection, front-relative windows, profile slices and decay tracking (see
+    /// [`crate::station`]). `None` for steady flows. Needs a chain with a delay ring
+    /// (`Chain<P, L, D>` with `D >= (delay_frames + 1) × channels`).
+    pub station: Option<StationConfig<P>>,
 }
 
 /// A configuration the chain cannot run.
@@ -184,8 +191,8 @@ pub enum ConfigError {
         /// Probe index.
         probe: u8,
     },
-    /// A window policy of zero length, or a bubble-count window whose reference probe
-    /// does not exist.
+    /// A window policy of zero length, a bubble-count window whose reference probe
+    /// does not exist, or front-relative windows without a station.
     BadWindow,
     /// A probe with a trailing tip has `max_lag` below 2.
     BadMaxLag {
@@ -194,6 +201,16 @@ pub enum ConfigError {
     },
     /// `min_peak_coefficient` outside 0..=1 (or not a number).
     BadCorrelationLimits,
+    /// Station settings the chain cannot run: elevations not one per probe (or not
+    /// finite), more than [`MAX_STATION_PROBES`] probes, a zero delay, or a sample rate
+    /// that is not finite and positive.
+    BadStation,
+    /// The chain's delay ring is too small for the station's delay: it needs this many
+    /// samples (`(delay_frames + 1) × channels`; the `D` of `Chain<P, L, D>`).
+    DelayRingTooSmall {
+        /// Samples needed.
+        need: u32,
+    },
 }
 
 impl core::fmt::Display for ConfigError {
@@ -222,7 +239,8 @@ impl core::fmt::Display for ConfigError {
             ),
             ConfigError::BadWindow => write!(
                 f,
-                "window length must be at least one frame (or one bubble, on an existing probe)"
+                "window length must be at least one frame (or one bubble, on an existing probe; \
+                 front-relative windows need a station)"
             ),
             ConfigError::BadMaxLag { probe } => {
                 write!(f, "probe {probe}: max_lag must be at least 2 frames")
@@ -230,6 +248,15 @@ impl core::fmt::Display for ConfigError {
             ConfigError::BadCorrelationLimits => {
                 write!(f, "min_peak_coefficient must lie in 0..=1")
             }
+            ConfigError::BadStation => write!(
+                f,
+                "station: give one finite elevation per probe, at most {MAX_STATION_PROBES} \
+                 probes, a delay of at least one frame and a positive sample rate"
+            ),
+            ConfigError::DelayRingTooSmall { need } => write!(
+                f,
+                "station: the chain's delay ring must hold {need} samples (delay + 1 frames)"
+            ),
         }
     }
 }
@@ -261,6 +288,7 @@ impl<const P: usize> ChainConfig<P> {
             probes: Vec::new(),
             window,
             initial_air: false,
+            station: None,
         }
     }
 
@@ -296,6 +324,20 @@ impl<const P: usize> ChainConfig<P> {
             if probe as usize >= self.probes.len() {
                 return Err(ConfigError::BadWindow);
             }
+        }
+        if let Some(st) = &self.station {
+            let fs = st.sample_rate_hz;
+            if st.elevations_mm.len() != self.probes.len()
+                || st.elevations_mm.iter().any(|y| !y.is_finite())
+                || self.probes.len() > MAX_STATION_PROBES
+                || st.delay_frames == 0
+                || !(fs.is_finite() && fs > 0.0)
+            {
+                return Err(ConfigError::BadStation);
+            }
+        } else if matches!(self.window, WindowPolicy::AfterFront { .. }) {
+            // Front-relative windows need a front.
+            return Err(ConfigError::BadWindow);
         }
         let mut used = [false; MAX_CHANNELS];
         for (i, p) in self.probes.iter().enumerate() {

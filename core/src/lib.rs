@@ -15,7 +15,10 @@
 //! - [`correlation`]: dual-tip cross-correlation (interfacial velocity, turbulence);
 //! - [`window`]: analysis-window policies;
 //! - [`chain`]: the streaming pipeline that ties them together;
-//! - [`record`] and [`flags`]: what comes out.
+//! - [`record`] and [`flags`]: what comes out;
+//! - transient flows: [`front`] (arrival of a surge front), [`station`] (a chain as one
+//!   station: front-relative windows, profile slices), [`profile`] (the void-fraction
+//!   profile fit), [`decay`] (the decay of the depth-averaged void fraction).
 #![no_std]
 #![deny(unsafe_code)]
 #![warn(missing_docs)]
@@ -28,9 +31,11 @@ pub mod decay;
 pub mod flags;
 pub mod front;
 pub mod levels;
+pub mod logbook;
 pub mod phase;
 pub mod profile;
 pub mod record;
+pub mod station;
 pub mod tip_stats;
 pub mod window;
 pub mod wire;
@@ -43,6 +48,7 @@ pub use correlation::{CorrelationResult, CorrelationSums, Correlator};
 pub use flags::Flags;
 pub use phase::{Edge, EdgeSink, PhaseDetector};
 pub use record::{ProbeWindow, TipStats};
+pub use station::{FrontRecord, ProbeArrival, ProfileRecord, StationArrival, StationConfig};
 pub use window::WindowPolicy;
 
 /// Largest number of interleaved channels a capture may have (the partial-frame buffer).

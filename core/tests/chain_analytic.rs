@@ -568,4 +568,137 @@ mod block_splits {
             prop_assert_eq!(&one, &wide_split);
         }
     }
+
+    /// A station of three probes (a dual-tip probe with learnt levels, two single-tip
+    /// probes with fixed levels) with tips dry before a front that reaches each probe at its
+    /// own frame, a stray droplet before it, bubbly plateaux after it.
+    fn station_signal(seed: u64, frames: usize, fronts: [usize; 3], stray: usize) -> Vec<i16> {
+        let mut chans: Vec<Vec<i16>> = (0..5u64)
+            .map(|c| plateaux(seed + c, frames, AIR, WATER))
+            .collect();
+        let owner = [0usize, 0, 9, 1, 2];
+        for (c, ch) in chans.iter_mut().enumerate() {
+            let Some(&t) = fronts.get(owner[c]) else {
+                continue;
+            };
+            for x in ch.iter_mut().take(t.min(frames)) {
+                *x = AIR;
+            }
+            // The front itself begins with water.
+            for x in ch.iter_mut().skip(t).take(60) {
+                *x = WATER;
+            }
+        }
+        for x in chans[3].iter_mut().skip(stray).take(12) {
+            *x = WATER;
+        }
+        // The trailing tip of probe 0 sees the leading tip's signal 7 frames later.
+        chans[1] = (0..frames)
+            .map(|i| if i < 7 { AIR } else { chans[0][i - 7] })
+            .collect();
+        (0..frames)
+            .flat_map(|i| chans.iter().map(move |ch| ch[i]))
+            .collect()
+    }
+
+    fn station_config(window: WindowPolicy, delay: Option<u32>) -> ChainConfig<4> {
+        let mut c = two_probe_config(window);
+        let fixed = LevelSource::Fixed {
+            air: AIR,
+            water: WATER,
+        };
+        c.probes
+            .push(ProbeConfig::single(tip(4, Polarity::AirHigh, fixed)))
+            .unwrap();
+        c.initial_air = true;
+        let mut st = frothline_core::StationConfig::new(FS, true);
+        if let Some(d) = delay {
+            st.delay_frames = d;
+        }
+        st.grace_frames = 1500;
+        for y in [10.0, 30.0, 20.0] {
+            st.elevations_mm.push(y).unwrap();
+        }
+        c.station = Some(st);
+        c
+    }
+
+    type Records = (
+        Vec<ProbeWindow>,
+        Vec<frothline_core::FrontRecord>,
+        Vec<frothline_core::ProfileRecord>,
+    );
+
+    /// A station chain pushed in blocks of `sizes` (cycled), every queue drained after each
+    /// push.
+    fn run_station(cfg: ChainConfig<4>, samples: &[i16], sizes: &[usize]) -> Records {
+        let mut chain = Chain::<4, 256, 16384>::with_delay_ring(cfg).expect("valid config");
+        let mut out: Records = Default::default();
+        let drain = |chain: &mut Chain<4, 256, 16384>, out: &mut Records| {
+            while let Some(r) = chain.poll() {
+                out.0.push(r);
+            }
+            while let Some(r) = chain.poll_front() {
+                out.1.push(r);
+            }
+            while let Some(r) = chain.poll_profile() {
+                out.2.push(r);
+            }
+        };
+        let mut at = 0;
+        let mut k = 0;
+        while at < samples.len() {
+            let end = (at + sizes[k % sizes.len()].max(1)).min(samples.len());
+            k += 1;
+            let mut block = &samples[at..end];
+            while !block.is_empty() {
+                let used = chain.push(block);
+                block = &block[used..];
+                drain(&mut chain, &mut out);
+            }
+            at = end;
+        }
+        while chain.finish().is_err() {
+            drain(&mut chain, &mut out);
+        }
+        drain(&mut chain, &mut out);
+        out
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(24))]
+        /// Station chains (transient flows): window records, front records and profile
+        /// records must not depend on how the samples were split into blocks (design rule;
+        /// reference: one block), with front-relative, fixed, bubble-count and whole-record
+        /// windows, the default delay and one so short that confirmations come late.
+        #[test]
+        fn station_records_do_not_depend_on_block_splits(
+            seed in 0u64..1000,
+            sizes in proptest::collection::vec(1usize..5000, 1..20),
+            fronts in proptest::array::uniform3(0usize..9000),
+            stray in 0usize..3000,
+            short_delay in any::<bool>(),
+            window in prop_oneof![
+                (50u32..3000).prop_map(|frames| WindowPolicy::AfterFront { frames }),
+                (50u32..3000).prop_map(|frames| WindowPolicy::AfterFront { frames }),
+                (50u32..3000).prop_map(WindowPolicy::Frames),
+                (1u32..40).prop_map(|count| WindowPolicy::Bubbles {
+                    count, probe: 1, max_frames: Some(4000)
+                }),
+                Just(WindowPolicy::Whole),
+            ],
+        ) {
+            let samples = station_signal(seed, 14_000, fronts, stray);
+            let delay = short_delay.then_some(40);
+            let one = run_station(station_config(window, delay), &samples, &[samples.len()]);
+            let split = run_station(station_config(window, delay), &samples, &sizes);
+            prop_assert!(one.1.iter().any(|f| matches!(f, frothline_core::FrontRecord::Station(_))));
+            if matches!(window, WindowPolicy::AfterFront { .. }) {
+                prop_assert!(!one.2.is_empty());
+            }
+            prop_assert_eq!(&one.0, &split.0);
+            prop_assert_eq!(&one.1, &split.1);
+            prop_assert_eq!(&one.2, &split.2);
+        }
+    }
 }

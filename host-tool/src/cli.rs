@@ -36,6 +36,8 @@ pub enum Command {
     Unpack(crate::unpack::UnpackArgs),
     /// Figures (SVG, PNG) and a one-page HTML summary of a replay or archive folder.
     Report(crate::report::ReportArgs),
+    /// Combine repeated transient runs of one rig, aligned on the front.
+    Ensemble(crate::ensemble::EnsembleArgs),
 }
 
 /// Parse `args` (including the program name) and run the command.
@@ -96,5 +98,6 @@ fn dispatch(command: Command) -> Result<(), HostError> {
         Command::Simulate(a) => crate::demo::simulate(&a).map(|_| ()),
         Command::Unpack(a) => crate::unpack::run(&a).map(|_| ()),
         Command::Report(a) => crate::report::run(&a).map(|_| ()).map_err(HostError::from),
+        Command::Ensemble(a) => crate::ensemble::run(&a).map(|_| ()),
     }
 }

@@ -2,7 +2,10 @@
 //!
 //! - [`layout`] and [`capture`]: the rig layout (TOML) and captures (WAV);
 //! - [`rig`]: layout + capture format -> the core's chain configuration;
-//! - [`replay`]: captures through the core -> [`windows_csv`];
+//! - [`replay`]: captures through the core -> [`windows_csv`]; [`transient`]: the replay
+//!   of transient layouts (surge fronts: one station chain per station, profile.csv,
+//!   fronts.csv, stations.csv, flow.json); [`ensemble`]: repeated runs of a rig aligned on
+//!   the front;
 //! - [`synth`]: synthetic captures with known truth;
 //! - [`session`], [`watch`], [`commands`], [`live`], [`dashboard`], [`archive`],
 //!   [`unpack`]: the live link (framed results from devices over serial ports);
@@ -17,6 +20,7 @@ pub mod commands;
 pub mod dashboard;
 pub mod demo;
 pub mod device_sim;
+pub mod ensemble;
 pub mod error;
 pub mod hydraulics;
 pub mod layout;
@@ -27,6 +31,7 @@ pub mod report;
 pub mod rig;
 pub mod session;
 pub mod synth;
+pub mod transient;
 pub mod unpack;
 pub mod watch;
 pub mod window_spec;

@@ -302,6 +302,11 @@ fn progress_bar(frames: u64, quiet: bool) -> ProgressBar {
 
 /// Run a replay and write its files.
 pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
+    // Transient layouts (surge fronts): one station chain per station, front-relative
+    // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::transient`).
+    if crate::transient::is_transient(&Layout::load(&args.layout)?) {
+        return crate::transient::run(args).map(|(_, report)| report);
+    }
     let (mut cap, layout, chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
     std::fs::create_dir_all(&args.out).map_err(write_err(&args.out))?;
     let final_path = args.out.join("windows.csv");

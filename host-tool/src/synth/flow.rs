@@ -45,6 +45,15 @@ impl LocalParams {
 pub trait FlowModel: Send + Sync {
     /// Parameters at time `t_s`.
     fn at(&self, t_s: f64) -> LocalParams;
+
+    /// The instant a front reaches the probe, if the model has one: the generator holds the
+    /// phase before it (air when `void_fraction >= 0.5` at the start, water otherwise) up
+    /// to exactly this time and starts the flow there with an interface into the other
+    /// phase (a dry tip is wetted at the front), instead of switching at the next
+    /// [`HOLD_STEP_S`] re-read. `None` (the default): no front.
+    fn front_s(&self) -> Option<f64> {
+        None
+    }
 }
 
 /// A steady flow: the same parameters at every instant.

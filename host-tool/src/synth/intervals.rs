@@ -125,8 +125,30 @@ pub fn generate_leading<R: Rng + ?Sized>(
     let mut out = Vec::new();
     let mut t = start_s;
     let p0 = flow.at(t);
-    let mut in_air = rng.random_bool(clamp01(p0.void_fraction));
+    let mut in_air;
     let mut air_start = t;
+    match flow.front_s().filter(|&tf| tf > start_s && tf.is_finite()) {
+        Some(tf) => {
+            // The phase before the front, held to exactly `tf`; the flow starts there in the
+            // other phase (unless the model still holds the old phase at `tf`).
+            in_air = p0.void_fraction >= 0.5;
+            t = tf.min(end_s);
+            let c = flow.at(t).void_fraction;
+            let still_held = if in_air { c >= 1.0 } else { c <= 0.0 };
+            if t < end_s && !still_held {
+                if in_air {
+                    out.push(Interval {
+                        start_s: air_start,
+                        end_s: t,
+                    });
+                } else {
+                    air_start = t;
+                }
+                in_air = !in_air;
+            }
+        }
+        None => in_air = rng.random_bool(clamp01(p0.void_fraction)),
+    }
     while t < end_s {
         let p = flow.at(t);
         let c = p.void_fraction;

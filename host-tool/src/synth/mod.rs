@@ -3,9 +3,12 @@
 //!
 //! A run writes, into one directory:
 //! - `capture.wav`: PCM i16, one channel per tip, interleaved, header rate = per-channel rate;
-//! - `layout.toml`: the rig description (DESIGN section 2), `kind = "steady"`;
+//! - `layout.toml`: the rig description (DESIGN section 2), `kind = "steady"` (or
+//!   `"transient"` for a scenario with a `[transient]` table, see [`transient`]);
 //! - `truth.csv`: one row per probe, targets and the values realised by the generated
-//!   continuous-time leading-tip intervals (columns in [`TRUTH_COLUMNS`]);
+//!   continuous-time leading-tip intervals (columns in [`TRUTH_COLUMNS`]); a transient
+//!   scenario writes `truth_fronts.csv`, `truth_profile.csv` and `truth_windows.csv`
+//!   instead;
 //! - `scenario.toml`: the effective scenario after command-line overrides (re-running it
 //!   reproduces the capture bit for bit);
 //! - `intervals.csv` (with `--intervals`): every tip's air intervals, `probe,tip,channel,
@@ -114,6 +117,7 @@ pub mod intervals;
 pub mod output;
 pub mod render;
 pub mod scenario;
+pub mod transient;
 
 #[cfg(test)]
 mod tests;
@@ -133,6 +137,7 @@ pub use scenario::{
     DetectorSpec, DriftKind, DriftSpec, ProbeDefaults, ProbeSpec, Resolved, ResolvedProbe,
     Scenario, SignalSpec,
 };
+pub use transient::{TransientFlow, TransientSpec, TransientTruth};
 
 /// Frames per block when streaming a capture to disk.
 pub const BLOCK_FRAMES: usize = 4096;
@@ -333,14 +338,21 @@ impl fmt::Debug for Generator {
 }
 
 impl Generator {
-    /// Validates `scenario`; every probe starts with its steady target parameters.
+    /// Validates `scenario`; every probe starts with its steady target parameters, or, in a
+    /// transient scenario, with its [`TransientFlow`].
     pub fn new(scenario: Scenario, seed: u64) -> Result<Self, SynthError> {
         let resolved = scenario.resolve()?;
-        let flows = resolved
-            .probes
-            .iter()
-            .map(|p| Box::new(p.params) as Box<dyn FlowModel>)
-            .collect();
+        let flows = match &scenario.transient {
+            Some(t) => transient::flows(t, &resolved)
+                .into_iter()
+                .map(|f| Box::new(f) as Box<dyn FlowModel>)
+                .collect(),
+            None => resolved
+                .probes
+                .iter()
+                .map(|p| Box::new(p.params) as Box<dyn FlowModel>)
+                .collect(),
+        };
         Ok(Self {
             scenario,
             resolved,
@@ -396,6 +408,12 @@ impl Generator {
                 }
             })
             .collect()
+    }
+
+    /// The truth tables of a transient scenario for the intervals `truth` (empty for a
+    /// steady one).
+    pub fn transient_truth(&self, truth: &[ProbeTruth]) -> TransientTruth {
+        transient::truth(&self.scenario, &self.resolved, truth)
     }
 
     /// One renderer per channel, in channel order.
@@ -498,9 +516,25 @@ impl Generator {
             "layout.toml",
             output::layout_toml(&self.scenario, &self.resolved).as_bytes(),
         )?;
-        let table = output::truth_csv(&self.scenario, &self.resolved, &truth)
-            .map_err(csv_err("truth.csv"))?;
-        let truth_path = write("truth.csv", &table)?;
+        let truth_path = if self.scenario.transient.is_some() {
+            let t = self.transient_truth(&truth);
+            write(
+                "truth_fronts.csv",
+                &transient::fronts_csv(&t).map_err(csv_err("truth_fronts.csv"))?,
+            )?;
+            write(
+                "truth_windows.csv",
+                &transient::windows_csv(&t).map_err(csv_err("truth_windows.csv"))?,
+            )?;
+            write(
+                "truth_profile.csv",
+                &transient::profile_csv(&t).map_err(csv_err("truth_profile.csv"))?,
+            )?
+        } else {
+            let table = output::truth_csv(&self.scenario, &self.resolved, &truth)
+                .map_err(csv_err("truth.csv"))?;
+            write("truth.csv", &table)?
+        };
         let mut effective = self.scenario.clone();
         effective.seed = self.seed;
         let header = "# Effective scenario of a `frothline synth` run (re-run it to reproduce).\n";

@@ -55,7 +55,9 @@ fn tv_f(x: f64) -> String {
     toml::Value::Float(x).to_string()
 }
 
-/// The layout file of a capture (the format of DESIGN section 2), steady flow.
+/// The layout file of a capture (the format of DESIGN section 2): a steady flow, or a
+/// transient one (dry tips before the front, the reservoir depth as reference depth, fixed
+/// levels) for a scenario with a `[transient]` table.
 pub fn layout_toml(scenario: &Scenario, resolved: &Resolved) -> String {
     let mut s = String::new();
     let _ = writeln!(
@@ -63,7 +65,16 @@ pub fn layout_toml(scenario: &Scenario, resolved: &Resolved) -> String {
         "# Layout of a synthetic capture written by `frothline synth`."
     );
     let _ = writeln!(s, "[flow]");
-    let _ = writeln!(s, "kind = \"steady\"");
+    match &scenario.transient {
+        Some(t) => {
+            let _ = writeln!(s, "kind = \"transient\"");
+            let _ = writeln!(s, "phase_before_front = \"air\"");
+            let _ = writeln!(s, "reference_depth_m = {}", tv_f(t.reservoir_depth_m));
+        }
+        None => {
+            let _ = writeln!(s, "kind = \"steady\"");
+        }
+    }
     let _ = writeln!(
         s,
         "water_temperature_c = {}",
@@ -87,7 +98,9 @@ pub fn layout_toml(scenario: &Scenario, resolved: &Resolved) -> String {
             let _ = writeln!(s, "tip_spacing_mm = {}", tv_f(mm));
         }
         let _ = writeln!(s, "air_is_high = {}", p.air_is_high);
-        if scenario.signal.fixed_levels {
+        // Tips that sit in air before a front cannot learn a water level: a transient
+        // layout always fixes them.
+        if scenario.signal.fixed_levels || scenario.transient.is_some() {
             let _ = writeln!(s, "air_level = {}", p.air_counts);
             let _ = writeln!(s, "water_level = {}", p.water_counts);
         }

@@ -7,6 +7,7 @@ use serde::{Deserialize, Serialize};
 
 use super::flow::LocalParams;
 use super::intervals::TipPairSpec;
+use super::transient::TransientSpec;
 use super::SynthError;
 
 /// Default per-channel sample rate, Hz.
@@ -53,6 +54,10 @@ pub struct Scenario {
     /// Defaults for per-probe keys that a `[[probe]]` leaves out.
     #[serde(default)]
     pub defaults: ProbeDefaults,
+    /// A transient flow (dam-break surge, see [`super::transient`]): its probes are generated
+    /// from the table (no `[[probe]]` then), each with a time-varying flow.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub transient: Option<TransientSpec>,
     /// The probes, in channel order when channels are automatic.
     #[serde(rename = "probe", default)]
     pub probes: Vec<ProbeSpec>,
@@ -373,7 +378,33 @@ impl Scenario {
             },
             detector: None,
             defaults: ProbeDefaults::default(),
+            transient: None,
             probes,
+        }
+    }
+
+    /// The built-in transient scenario: a dam-break surge (reservoir 0.1 m deep, Ritter's
+    /// celerity 1.98 m/s) over a dry bed reaching one station of ten probes 10 mm apart
+    /// (5 to 95 mm; the one at 35 mm dual-tip), 40 kHz, 1.2 s, fixed levels.
+    pub fn builtin_transient() -> Self {
+        let mut s = Self::builtin_default();
+        s.duration_s = 1.2;
+        s.signal.drift = DriftSpec::default();
+        s.signal.fixed_levels = true;
+        s.probes.clear();
+        s.transient = Some(TransientSpec {
+            dual_tip_elevations_mm: vec![35.0],
+            ..TransientSpec::default()
+        });
+        s
+    }
+
+    /// The probes of the scenario: the `[[probe]]` tables, or those a `[transient]` table
+    /// generates.
+    pub fn probe_list(&self) -> Vec<ProbeSpec> {
+        match &self.transient {
+            Some(t) if self.probes.is_empty() => t.probes(),
+            _ => self.probes.clone(),
         }
     }
 
@@ -439,13 +470,21 @@ impl Scenario {
             finite_in("detector.threshold", d.threshold, 0.0, 1.0)?;
             finite_in("detector.hysteresis", d.hysteresis, 0.0, 1.0)?;
         }
-        check(!self.probes.is_empty(), "probe", || {
+        if let Some(t) = &self.transient {
+            t.validate()?;
+            check(self.probes.is_empty(), "probe", || {
+                "a scenario with [transient] generates its probes: remove the [[probe]] tables"
+                    .into()
+            })?;
+        }
+        let all_probes = self.probe_list();
+        check(!all_probes.is_empty(), "probe", || {
             "at least one [[probe]] is needed".into()
         })?;
 
-        let explicit = self.probes.iter().filter(|p| p.leading.is_some()).count();
+        let explicit = all_probes.iter().filter(|p| p.leading.is_some()).count();
         check(
-            explicit == 0 || explicit == self.probes.len(),
+            explicit == 0 || explicit == all_probes.len(),
             "probe.leading",
             || "give channels for all probes or for none".into(),
         )?;
@@ -454,8 +493,8 @@ impl Scenario {
         let mut names = HashSet::new();
         let mut used = HashSet::new();
         let mut next_channel: u32 = 0;
-        let mut probes = Vec::with_capacity(self.probes.len());
-        for (i, p) in self.probes.iter().enumerate() {
+        let mut probes = Vec::with_capacity(all_probes.len());
+        for (i, p) in all_probes.iter().enumerate() {
             let k = |field: &str| format!("probe[{i}].{field} (probe \"{}\")", p.name);
             check(!p.name.is_empty(), &k("name"), || {
                 "must not be empty".into()

@@ -1,0 +1,619 @@
+//! A transient scenario: a dam-break surge reaching one or more stations of probes.
+//!
+//! # Model (invented generating values; the arrival times follow Ritter's solution)
+//!
+//! - **Arrival**: a reservoir of depth `d0` (`reservoir_depth_m`) released at `release_s`
+//!   behind a dam at `dam_x_mm` sends a front over the dry bed at Ritter's (1892) ideal
+//!   celerity `c = 2 sqrt(g d0)` ([`crate::hydraulics::ritter_front_celerity`]); it reaches
+//!   a station at `x` at `t_a = release_s + (x − dam_x) / c`. The front face is taken
+//!   vertical at the station (every probe of a station is reached at `t_a`): a steep
+//!   roller, and a profile that holds from the first instant.
+//! - **Before the front** the tips are dry: `C = 1`, no bubbles. At `t_a` a tip is wetted
+//!   (an air -> water interface exactly at `t_a`), then follows the flow.
+//! - **Behind the front**, with `tau = t − t_a`, the local void fraction at elevation `y`
+//!   follows the power law of DESIGN.md §1 continued up to air:
+//!   `C(y, tau) = min(1, 0.9 (y / Y90(tau))^n(tau))`, with
+//!   `Y90(tau) = Y90_f + (Y90_0 − Y90_f) exp(−tau / T_y)` and
+//!   `n(tau) = n_f + (n_0 − n_f) exp(−tau / T_n)`: a strongly aerated leading edge
+//!   (`n_0 < 1`, `Cmean = 0.9 / (1 + n) > 0.45`) de-aerating towards `n_f`, so that
+//!   `Cmean(tau)` decays roughly exponentially.
+//! - **Bubble count rate** `F = 4 F_max C (1 − C)` (a parabola in C, peaking at `F_max` at
+//!   `C = 0.5`; an invented closure of the usual shape), raised where needed so that neither
+//!   mean chord (`C/F` in air, `(1 − C)/F` in water) exceeds `longest_mean_chord_s`: the
+//!   generator reads the parameters at the start of each chord, and near `C = 0` or `1`
+//!   the parabola alone would give chords longer than the flow takes to change.
+//! - **Velocity** `V(tau) = V_f + (V_0 − V_f) exp(−tau / T_v)`, `V_0` the front celerity by
+//!   default; turbulence intensity constant.
+//! - **Dead probes** (by name) sit in air for the whole record.
+//!
+//! Probes are generated from `stations_x_mm` × `elevations_mm` (names `A1`, `A2`, … for the
+//! first station, `B1`, … for the second, bottom up), single-tip except at the elevations in
+//! `dual_tip_elevations_mm`; a scenario with `[transient]` must not list `[[probe]]`s.
+//!
+//! # Truth files
+//!
+//! - `truth_fronts.csv`: `station, x_mm, arrival_s, celerity_m_s`;
+//! - `truth_profile.csv`: per station per slice of `slice_s` from the true arrival:
+//!   `station, slice_start_s, slice_end_s, since_front_s, y90_mm, profile_exponent,
+//!   depth_averaged_void_fraction, velocity_m_s, arrival_s` (the generating values averaged
+//!   over the slice; `Cmean = 0.9 / (1 + n)` averaged likewise);
+//! - `truth_windows.csv`: per probe per slice: `probe, station, window_start_s,
+//!   window_end_s, since_front_s, void_fraction, bubble_count_rate_hz,
+//!   interfacial_velocity_m_s, turbulence_intensity, void_fraction_realised` (model values
+//!   averaged over the window, and the air fraction of the generated leading-tip
+//!   intervals).
+
+use serde::{Deserialize, Serialize};
+
+use super::flow::{FlowModel, LocalParams};
+use super::intervals::{Interval, ProbeTruth};
+use super::scenario::{ProbeSpec, Resolved, Scenario};
+use super::SynthError;
+
+/// Sub-steps per slice when averaging the generating values over it.
+const AVERAGE_STEPS: usize = 200;
+
+/// The `[transient]` table of a scenario.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct TransientSpec {
+    /// Reservoir depth `d0`, m: Ritter's celerity `2 sqrt(g d0)`; also the layout's
+    /// `reference_depth_m`.
+    pub reservoir_depth_m: f64,
+    /// Streamwise position of the dam, mm.
+    pub dam_x_mm: f64,
+    /// Release (gate opening) time, s from the start of the record.
+    pub release_s: f64,
+    /// Stations: streamwise positions, mm.
+    pub stations_x_mm: Vec<f64>,
+    /// Probe elevations of every station, mm, bottom up.
+    pub elevations_mm: Vec<f64>,
+    /// Elevations whose probes have two tips (the others one).
+    pub dual_tip_elevations_mm: Vec<f64>,
+    /// Probes (by generated name) stuck in air for the whole record.
+    pub dead_probes: Vec<String>,
+    /// `Y90` at the leading edge, mm.
+    pub y90_front_mm: f64,
+    /// `Y90` long behind the front, mm.
+    pub y90_final_mm: f64,
+    /// Time constant of `Y90`, s.
+    pub y90_time_s: f64,
+    /// Power-law exponent at the leading edge (below 1: `Cmean > 0.45`).
+    pub n_front: f64,
+    /// Exponent long behind the front.
+    pub n_final: f64,
+    /// Time constant of the exponent, s.
+    pub n_time_s: f64,
+    /// Peak bubble count rate (at `C = 0.5`), Hz.
+    pub bubble_rate_max_hz: f64,
+    /// Velocity at the front, m/s (default: the front celerity).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub velocity_front_m_s: Option<f64>,
+    /// Velocity long behind the front, m/s.
+    pub velocity_final_m_s: f64,
+    /// Time constant of the velocity, s.
+    pub velocity_time_s: f64,
+    /// Turbulence intensity.
+    pub turbulence_intensity: f64,
+    /// Length of the truth slices, s.
+    pub slice_s: f64,
+    /// Longest mean chord time (air or water), s: bounds the chords near `C = 0` and `1`.
+    pub longest_mean_chord_s: f64,
+}
+
+impl Default for TransientSpec {
+    fn default() -> Self {
+        TransientSpec {
+            reservoir_depth_m: 0.1,
+            dam_x_mm: -400.0,
+            release_s: 0.05,
+            stations_x_mm: vec![0.0],
+            elevations_mm: (0..10).map(|i| 5.0 + 10.0 * i as f64).collect(),
+            dual_tip_elevations_mm: Vec::new(),
+            dead_probes: Vec::new(),
+            y90_front_mm: 50.0,
+            y90_final_mm: 75.0,
+            y90_time_s: 0.3,
+            n_front: 0.6,
+            n_final: 2.0,
+            n_time_s: 0.25,
+            bubble_rate_max_hz: 600.0,
+            velocity_front_m_s: None,
+            velocity_final_m_s: 1.2,
+            velocity_time_s: 0.5,
+            turbulence_intensity: 0.15,
+            slice_s: 0.05,
+            longest_mean_chord_s: 0.02,
+        }
+    }
+}
+
+/// The generating values at time `tau` since the front.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Generating {
+    /// `Y90`, mm.
+    pub y90_mm: f64,
+    /// Power-law exponent.
+    pub n: f64,
+    /// Velocity, m/s.
+    pub velocity_m_s: f64,
+}
+
+impl Generating {
+    /// The depth-averaged void fraction of the power law, `0.9 / (1 + n)`.
+    pub fn mean_void_fraction(&self) -> f64 {
+        0.9 / (1.0 + self.n)
+    }
+
+    /// Local void fraction at `y_mm`.
+    pub fn void_fraction(&self, y_mm: f64) -> f64 {
+        if y_mm <= 0.0 {
+            return 0.0;
+        }
+        (0.9 * (y_mm / self.y90_mm).powf(self.n)).min(1.0)
+    }
+}
+
+impl TransientSpec {
+    /// The bubble count rate at void fraction `c` (0 at `c = 0` or `1`), Hz.
+    pub fn bubble_rate_hz(&self, c: f64) -> f64 {
+        if !(c > 0.0 && c < 1.0) {
+            return 0.0;
+        }
+        let t = self.longest_mean_chord_s;
+        (4.0 * self.bubble_rate_max_hz * c * (1.0 - c))
+            .max(c / t)
+            .max((1.0 - c) / t)
+    }
+
+    /// Ritter's front celerity, m/s.
+    pub fn celerity_m_s(&self) -> f64 {
+        crate::hydraulics::ritter_front_celerity(self.reservoir_depth_m).unwrap_or(f64::NAN)
+    }
+
+    /// Arrival time at station `x_mm`, s.
+    pub fn arrival_s(&self, x_mm: f64) -> f64 {
+        self.release_s + (x_mm - self.dam_x_mm) * 1e-3 / self.celerity_m_s()
+    }
+
+    /// The generating values `tau` seconds after the front.
+    pub fn at(&self, tau: f64) -> Generating {
+        let tau = tau.max(0.0);
+        let relax = |a: f64, b: f64, t: f64| b + (a - b) * (-tau / t).exp();
+        let v0 = self
+            .velocity_front_m_s
+            .unwrap_or_else(|| self.celerity_m_s());
+        Generating {
+            y90_mm: relax(self.y90_front_mm, self.y90_final_mm, self.y90_time_s),
+            n: relax(self.n_front, self.n_final, self.n_time_s),
+            velocity_m_s: relax(v0, self.velocity_final_m_s, self.velocity_time_s),
+        }
+    }
+
+    /// The generating values averaged over `tau` in `[a, b]` (midpoint rule).
+    pub fn average(&self, a: f64, b: f64) -> (Generating, f64) {
+        let mut sum = (0.0, 0.0, 0.0, 0.0);
+        for k in 0..AVERAGE_STEPS {
+            let t = a + (b - a) * (k as f64 + 0.5) / AVERAGE_STEPS as f64;
+            let g = self.at(t);
+            sum.0 += g.y90_mm;
+            sum.1 += g.n;
+            sum.2 += g.velocity_m_s;
+            sum.3 += g.mean_void_fraction();
+        }
+        let k = AVERAGE_STEPS as f64;
+        (
+            Generating {
+                y90_mm: sum.0 / k,
+                n: sum.1 / k,
+                velocity_m_s: sum.2 / k,
+            },
+            sum.3 / k,
+        )
+    }
+
+    /// Check the values (keys named as in the file).
+    pub fn validate(&self) -> Result<(), SynthError> {
+        let bad = |key: &str, reason: String| SynthError::Invalid {
+            key: format!("transient.{key}"),
+            reason,
+        };
+        let pos = |key: &str, x: f64| {
+            if x.is_finite() && x > 0.0 {
+                Ok(())
+            } else {
+                Err(bad(key, format!("must be positive and finite, got {x}")))
+            }
+        };
+        pos("reservoir_depth_m", self.reservoir_depth_m)?;
+        pos("y90_front_mm", self.y90_front_mm)?;
+        pos("y90_final_mm", self.y90_final_mm)?;
+        pos("y90_time_s", self.y90_time_s)?;
+        pos("n_front", self.n_front)?;
+        pos("n_final", self.n_final)?;
+        pos("n_time_s", self.n_time_s)?;
+        pos("bubble_rate_max_hz", self.bubble_rate_max_hz)?;
+        pos("velocity_final_m_s", self.velocity_final_m_s)?;
+        pos("velocity_time_s", self.velocity_time_s)?;
+        pos("slice_s", self.slice_s)?;
+        pos("longest_mean_chord_s", self.longest_mean_chord_s)?;
+        if let Some(v) = self.velocity_front_m_s {
+            pos("velocity_front_m_s", v)?;
+        }
+        for (key, x) in [
+            ("dam_x_mm", self.dam_x_mm),
+            ("release_s", self.release_s),
+            ("turbulence_intensity", self.turbulence_intensity),
+        ] {
+            if !x.is_finite() {
+                return Err(bad(key, format!("must be finite, got {x}")));
+            }
+        }
+        if self.stations_x_mm.is_empty() || self.stations_x_mm.len() > 26 {
+            return Err(bad("stations_x_mm", "give 1 to 26 stations".into()));
+        }
+        if self.elevations_mm.is_empty() || self.elevations_mm.len() > 32 {
+            return Err(bad("elevations_mm", "give 1 to 32 elevations".into()));
+        }
+        if self
+            .elevations_mm
+            .iter()
+            .any(|y| !(y.is_finite() && *y > 0.0))
+        {
+            return Err(bad("elevations_mm", "elevations must be positive".into()));
+        }
+        if self
+            .stations_x_mm
+            .iter()
+            .any(|&x| !(x.is_finite() && x > self.dam_x_mm))
+        {
+            return Err(bad(
+                "stations_x_mm",
+                "stations must lie downstream of the dam (x > dam_x_mm)".into(),
+            ));
+        }
+        Ok(())
+    }
+
+    /// The probes of the scenario: every station × every elevation.
+    pub fn probes(&self) -> Vec<ProbeSpec> {
+        let mut out = Vec::new();
+        for (s, &x) in self.stations_x_mm.iter().enumerate() {
+            let letter = (b'A' + s as u8) as char;
+            for (i, &y) in self.elevations_mm.iter().enumerate() {
+                // The steady targets of the probe format: the values long behind the front
+                // (the generator replaces them by the transient flow).
+                let late = self.at(10.0 * self.n_time_s.max(self.y90_time_s));
+                let c = late.void_fraction(y).clamp(0.0, 1.0);
+                let mut p = ProbeSpec::new(
+                    &format!("{letter}{}", i + 1),
+                    y,
+                    c,
+                    self.bubble_rate_hz(c),
+                    late.velocity_m_s,
+                );
+                p.x_mm = x;
+                p.turbulence_intensity = Some(self.turbulence_intensity);
+                let dual = self.dual_tip_elevations_mm.contains(&y);
+                p.tips = Some(if dual { 2 } else { 1 });
+                out.push(p);
+            }
+        }
+        out
+    }
+}
+
+/// The flow one probe sees (a [`FlowModel`]).
+#[derive(Debug, Clone)]
+pub struct TransientFlow {
+    /// The scenario's transient table.
+    pub spec: TransientSpec,
+    /// Arrival time at the probe, s (`None`: a dead probe, air throughout).
+    pub arrival_s: Option<f64>,
+    /// Elevation, mm.
+    pub elevation_mm: f64,
+}
+
+impl FlowModel for TransientFlow {
+    fn at(&self, t_s: f64) -> LocalParams {
+        let v0 = self.spec.at(0.0).velocity_m_s;
+        let dry = LocalParams {
+            void_fraction: 1.0,
+            bubble_rate_hz: 0.0,
+            velocity_m_s: v0,
+            turbulence_intensity: self.spec.turbulence_intensity,
+        };
+        let Some(ta) = self.arrival_s.filter(|&ta| t_s >= ta) else {
+            return dry;
+        };
+        let g = self.spec.at(t_s - ta);
+        let c = g.void_fraction(self.elevation_mm);
+        LocalParams {
+            void_fraction: c,
+            bubble_rate_hz: self.spec.bubble_rate_hz(c),
+            velocity_m_s: g.velocity_m_s,
+            turbulence_intensity: self.spec.turbulence_intensity,
+        }
+    }
+
+    fn front_s(&self) -> Option<f64> {
+        self.arrival_s
+    }
+}
+
+/// One station's true front.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FrontTruth {
+    /// Station name (`S1`, `S2`, …, as the replay names them).
+    pub station: String,
+    /// Streamwise position, mm.
+    pub x_mm: f64,
+    /// Arrival time, s.
+    pub arrival_s: f64,
+    /// Ritter's celerity, m/s.
+    pub celerity_m_s: f64,
+}
+
+/// The generating profile of one station over one slice.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SliceTruth {
+    /// Station name.
+    pub station: String,
+    /// Slice start, s.
+    pub start_s: f64,
+    /// Slice end, s.
+    pub end_s: f64,
+    /// Start minus the arrival, s.
+    pub since_front_s: f64,
+    /// Mean `Y90` over the slice, mm.
+    pub y90_mm: f64,
+    /// Mean exponent.
+    pub n: f64,
+    /// Mean `0.9 / (1 + n)`.
+    pub mean_void_fraction: f64,
+    /// Mean velocity, m/s.
+    pub velocity_m_s: f64,
+    /// The station's arrival, s.
+    pub arrival_s: f64,
+}
+
+/// The generating values of one probe over one slice.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WindowTruth {
+    /// Probe name.
+    pub probe: String,
+    /// Station name.
+    pub station: String,
+    /// Window start, s.
+    pub start_s: f64,
+    /// Window end, s.
+    pub end_s: f64,
+    /// Start minus the arrival, s.
+    pub since_front_s: f64,
+    /// Model void fraction averaged over the window.
+    pub void_fraction: f64,
+    /// Model bubble count rate averaged over the window, Hz.
+    pub bubble_count_rate_hz: f64,
+    /// Model velocity averaged over the window, m/s.
+    pub velocity_m_s: f64,
+    /// Turbulence intensity.
+    pub turbulence_intensity: f64,
+    /// Air fraction of the generated leading-tip intervals in the window.
+    pub void_fraction_realised: f64,
+}
+
+/// The truth of a transient capture.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct TransientTruth {
+    /// One per station.
+    pub fronts: Vec<FrontTruth>,
+    /// Per station per slice.
+    pub slices: Vec<SliceTruth>,
+    /// Per probe per slice.
+    pub windows: Vec<WindowTruth>,
+}
+
+/// The name of station `index` (0-based, in increasing `x_mm`): `S1`, `S2`, … as
+/// `frothline replay` names them (its probes are named by letter: `A1`, … at `S1`).
+pub fn station_name(index: usize) -> String {
+    format!("S{}", index + 1)
+}
+
+/// Air time of sorted, non-overlapping `intervals` within `[a, b]`, over `b − a`.
+pub fn air_fraction(intervals: &[Interval], a: f64, b: f64) -> f64 {
+    let mut air = 0.0;
+    for iv in intervals {
+        let (s, e) = (iv.start_s.max(a), iv.end_s.min(b));
+        if e > s {
+            air += e - s;
+        }
+    }
+    air / (b - a)
+}
+
+/// The flow models of a transient scenario, one per resolved probe.
+pub fn flows(spec: &TransientSpec, resolved: &Resolved) -> Vec<TransientFlow> {
+    resolved
+        .probes
+        .iter()
+        .map(|p| TransientFlow {
+            spec: spec.clone(),
+            arrival_s: (!spec.dead_probes.contains(&p.name)).then(|| spec.arrival_s(p.x_mm)),
+            elevation_mm: p.elevation_mm,
+        })
+        .collect()
+}
+
+/// The truth tables of a transient capture (`truth`: the generated intervals, in probe
+/// order).
+pub fn truth(scenario: &Scenario, resolved: &Resolved, truth: &[ProbeTruth]) -> TransientTruth {
+    let mut out = TransientTruth::default();
+    let Some(spec) = &scenario.transient else {
+        return out;
+    };
+    let end = scenario.duration_s;
+    let mut stations: Vec<f64> = Vec::new();
+    for p in &resolved.probes {
+        if !stations.contains(&p.x_mm) {
+            stations.push(p.x_mm);
+        }
+    }
+    for (s, &x) in stations.iter().enumerate() {
+        let name = station_name(s);
+        let ta = spec.arrival_s(x);
+        out.fronts.push(FrontTruth {
+            station: name.clone(),
+            x_mm: x,
+            arrival_s: ta,
+            celerity_m_s: spec.celerity_m_s(),
+        });
+        let mut k = 0usize;
+        loop {
+            let a = ta + k as f64 * spec.slice_s;
+            let b = a + spec.slice_s;
+            if b > end + 1e-12 || a < 0.0 && b <= 0.0 {
+                break;
+            }
+            let tau = (a - ta, b - ta);
+            let (g, cmean) = spec.average(tau.0, tau.1);
+            out.slices.push(SliceTruth {
+                station: name.clone(),
+                start_s: a,
+                end_s: b,
+                since_front_s: tau.0,
+                y90_mm: g.y90_mm,
+                n: g.n,
+                mean_void_fraction: cmean,
+                velocity_m_s: g.velocity_m_s,
+                arrival_s: ta,
+            });
+            for (p, t) in resolved.probes.iter().zip(truth) {
+                if p.x_mm != x {
+                    continue;
+                }
+                let flow = TransientFlow {
+                    spec: spec.clone(),
+                    arrival_s: (!spec.dead_probes.contains(&p.name)).then_some(ta),
+                    elevation_mm: p.elevation_mm,
+                };
+                let (mut c, mut f, mut v) = (0.0, 0.0, 0.0);
+                for j in 0..AVERAGE_STEPS {
+                    let q = flow.at(a + (b - a) * (j as f64 + 0.5) / AVERAGE_STEPS as f64);
+                    c += q.void_fraction;
+                    f += q.bubble_rate_hz;
+                    v += q.velocity_m_s;
+                }
+                let n = AVERAGE_STEPS as f64;
+                out.windows.push(WindowTruth {
+                    probe: p.name.clone(),
+                    station: name.clone(),
+                    start_s: a,
+                    end_s: b,
+                    since_front_s: tau.0,
+                    void_fraction: c / n,
+                    bubble_count_rate_hz: f / n,
+                    velocity_m_s: v / n,
+                    turbulence_intensity: spec.turbulence_intensity,
+                    void_fraction_realised: air_fraction(&t.leading(), a, b),
+                });
+            }
+            k += 1;
+        }
+    }
+    out
+}
+
+fn csv_bytes(header: &[&str], rows: Vec<Vec<String>>) -> Result<Vec<u8>, csv::Error> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(header)?;
+    for r in rows {
+        w.write_record(r)?;
+    }
+    w.into_inner().map_err(|e| e.into_error().into())
+}
+
+/// `truth_fronts.csv`.
+pub fn fronts_csv(t: &TransientTruth) -> Result<Vec<u8>, csv::Error> {
+    csv_bytes(
+        &["station", "x_mm", "arrival_s", "celerity_m_s"],
+        t.fronts
+            .iter()
+            .map(|f| {
+                vec![
+                    f.station.clone(),
+                    f.x_mm.to_string(),
+                    f.arrival_s.to_string(),
+                    f.celerity_m_s.to_string(),
+                ]
+            })
+            .collect(),
+    )
+}
+
+/// `truth_profile.csv`.
+pub fn profile_csv(t: &TransientTruth) -> Result<Vec<u8>, csv::Error> {
+    csv_bytes(
+        &[
+            "station",
+            "slice_start_s",
+            "slice_end_s",
+            "since_front_s",
+            "y90_mm",
+            "profile_exponent",
+            "depth_averaged_void_fraction",
+            "velocity_m_s",
+            "arrival_s",
+        ],
+        t.slices
+            .iter()
+            .map(|s| {
+                vec![
+                    s.station.clone(),
+                    s.start_s.to_string(),
+                    s.end_s.to_string(),
+                    s.since_front_s.to_string(),
+                    s.y90_mm.to_string(),
+                    s.n.to_string(),
+                    s.mean_void_fraction.to_string(),
+                    s.velocity_m_s.to_string(),
+                    s.arrival_s.to_string(),
+                ]
+            })
+            .collect(),
+    )
+}
+
+/// `truth_windows.csv`.
+pub fn windows_csv(t: &TransientTruth) -> Result<Vec<u8>, csv::Error> {
+    csv_bytes(
+        &[
+            "probe",
+            "station",
+            "window_start_s",
+            "window_end_s",
+            "since_front_s",
+            "void_fraction",
+            "bubble_count_rate_hz",
+            "interfacial_velocity_m_s",
+            "turbulence_intensity",
+            "void_fraction_realised",
+        ],
+        t.windows
+            .iter()
+            .map(|w| {
+                vec![
+                    w.probe.clone(),
+                    w.station.clone(),
+                    w.start_s.to_string(),
+                    w.end_s.to_string(),
+                    w.since_front_s.to_string(),
+                    w.void_fraction.to_string(),
+                    w.bubble_count_rate_hz.to_string(),
+                    w.velocity_m_s.to_string(),
+                    w.turbulence_intensity.to_string(),
+                    w.void_fraction_realised.to_string(),
+                ]
+            })
+            .collect(),
+    )
+}
