@@ -5,8 +5,12 @@
 //!                     the link, age of the last frame, lost frames, CRC failures; per device
 //!                     firmware, sample rate, window, run, device-reported health
 //! probes (top first)  y, C, F, V, Tu, median chord, correlation peak, bubbles, flags
-//! C profile           a bar per probe at its elevation (the rows keep the elevation order)
-//! events | windows    command replies, link events, gaps; one line per analysis window
+//! C profile           a bar per probe at its elevation (the rows keep the elevation order);
+//!                     in a transient flow, a chart of C against elevation of the latest
+//!                     windows with the station's latest fit C = 0.9 (y/Y90)^n
+//! events | windows    command replies, link events, gaps; one line per analysis window;
+//!                     once a front arrived, between them Cmean against the time since the
+//!                     front with the host's decay fit C(t) = Cf + (C0 - Cf) exp(-t/tau)
 //! keys, safety line
 //! ```
 
@@ -14,8 +18,11 @@ use crate::live::{LinkHealth, LiveState, ProbeRow};
 use frothline_core::Flags;
 use ratatui::layout::{Constraint, Direction, Layout, Rect};
 use ratatui::style::{Color, Modifier, Style};
+use ratatui::symbols::Marker;
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Block, Borders, Cell, Paragraph, Row, Table};
+use ratatui::widgets::{
+    Axis, Block, Borders, Cell, Chart, Dataset, GraphType, Paragraph, Row, Table,
+};
 use ratatui::Frame;
 use std::time::Instant;
 
@@ -81,12 +88,15 @@ fn bytes_text(b: f64) -> String {
 pub fn draw(f: &mut Frame, state: &LiveState, now: Instant) {
     let area = f.area();
     let head = (2 + 2 * state.links.len() + 2 * state.devices.len()).clamp(4, 14) as u16;
+    let front = state
+        .shown_station()
+        .is_some_and(|(_, s)| s.front_s.is_some());
     let rows = Layout::default()
         .direction(Direction::Vertical)
         .constraints([
             Constraint::Length(head),
             Constraint::Min(7),
-            Constraint::Length(9),
+            Constraint::Length(if front { 13 } else { 9 }),
             Constraint::Length(1),
             Constraint::Length(1),
         ])
@@ -98,13 +108,31 @@ pub fn draw(f: &mut Frame, state: &LiveState, now: Instant) {
         .constraints([Constraint::Min(40), Constraint::Length(profile_w)])
         .split(rows[1]);
     draw_probes(f, mid[0], state);
-    draw_profile(f, mid[1], state);
-    let bottom = Layout::default()
-        .direction(Direction::Horizontal)
-        .constraints([Constraint::Percentage(58), Constraint::Percentage(42)])
-        .split(rows[2]);
-    draw_history(f, bottom[0], state);
-    draw_recent(f, bottom[1], state);
+    if state.stations.is_empty() {
+        draw_profile(f, mid[1], state);
+    } else {
+        draw_profile_chart(f, mid[1], state);
+    }
+    if front {
+        let bottom = Layout::default()
+            .direction(Direction::Horizontal)
+            .constraints([
+                Constraint::Percentage(30),
+                Constraint::Percentage(36),
+                Constraint::Percentage(34),
+            ])
+            .split(rows[2]);
+        draw_history(f, bottom[0], state);
+        draw_decay(f, bottom[1], state);
+        draw_recent(f, bottom[2], state);
+    } else {
+        let bottom = Layout::default()
+            .direction(Direction::Horizontal)
+            .constraints([Constraint::Percentage(58), Constraint::Percentage(42)])
+            .split(rows[2]);
+        draw_history(f, bottom[0], state);
+        draw_recent(f, bottom[1], state);
+    }
     let keys = if state.keys_help.is_empty() {
         String::new()
     } else {
@@ -474,6 +502,174 @@ fn draw_profile(f: &mut Frame, area: Rect, state: &LiveState) {
     f.render_widget(p, area);
 }
 
+/// Chart points (x, y).
+pub type Points = Vec<(f64, f64)>;
+
+/// Points of a fitted curve drawn as a line.
+const CURVE_POINTS: usize = 48;
+
+/// The profile chart's data: the points (C, elevation mm) of the latest windows of the
+/// shown station's probes, and the fitted curve C = 0.9 (y/Y90)^n from 0 to Y90 with
+/// (Y90, n), when the station has a fit.
+pub fn profile_chart_data(state: &LiveState) -> (Points, Option<(Points, f64, f64)>) {
+    let shown = state.shown_station();
+    let (device, station) = shown.map_or((None, None), |(k, _)| (Some(k.0), Some(k.1)));
+    let points = probe_rows(state)
+        .into_iter()
+        .filter(|(d, p)| {
+            device.is_none_or(|dev| dev == *d) && station.is_none_or(|s| s == p.station)
+        })
+        .filter_map(|(_, p)| Some((p.void_fraction?, p.elevation_mm)))
+        .filter(|(c, y)| c.is_finite() && y.is_finite())
+        .collect();
+    let curve = shown.and_then(|(_, s)| {
+        let p = s.profile.as_ref()?;
+        let (y90, n) = (p.y90_mm?, p.exponent?);
+        (y90 > 0.0 && n.is_finite()).then(|| {
+            let line = (0..=CURVE_POINTS)
+                .map(|i| {
+                    let y = y90 * i as f64 / CURVE_POINTS as f64;
+                    (0.9 * (y / y90).powf(n), y)
+                })
+                .collect();
+            (line, y90, n)
+        })
+    });
+    (points, curve)
+}
+
+fn axis_labels(lo: f64, hi: f64, prec: usize) -> Vec<Span<'static>> {
+    let mid = (lo + hi) / 2.0;
+    [lo, mid, hi]
+        .iter()
+        .map(|v| Span::styled(format!("{v:.prec$}"), Style::default().fg(DIM)))
+        .collect()
+}
+
+fn draw_profile_chart(f: &mut Frame, area: Rect, state: &LiveState) {
+    let (points, curve) = profile_chart_data(state);
+    let ymax = points
+        .iter()
+        .map(|p| p.1)
+        .chain(curve.as_ref().map(|c| c.1))
+        .fold(1.0f64, f64::max)
+        * 1.05;
+    let head = match (&curve, state.shown_station()) {
+        (Some((_, y90, n)), Some((k, _))) => {
+            format!(" C vs y, S{}: Y90 {y90:.1} mm  n {n:.2} ", k.1 + 1)
+        }
+        (None, Some((k, _))) => format!(" C vs y, S{}: no fit yet ", k.1 + 1),
+        _ => " C vs elevation ".to_string(),
+    };
+    // The curve first, the points over it.
+    let mut sets = Vec::new();
+    if let Some((line, _, _)) = &curve {
+        sets.push(
+            Dataset::default()
+                .name("fit")
+                .marker(Marker::Braille)
+                .graph_type(GraphType::Line)
+                .style(Style::default().fg(ACCENT))
+                .data(line),
+        );
+    }
+    sets.push(
+        Dataset::default()
+            .name("C")
+            .marker(Marker::Dot)
+            .graph_type(GraphType::Scatter)
+            .style(Style::default().fg(WARN))
+            .data(&points),
+    );
+    let chart = Chart::new(sets)
+        .block(Block::default().borders(Borders::ALL).title(title(&head)))
+        .x_axis(
+            Axis::default()
+                .title(Span::styled("C", Style::default().fg(DIM)))
+                .bounds([0.0, 1.0])
+                .labels(axis_labels(0.0, 1.0, 1)),
+        )
+        .y_axis(
+            Axis::default()
+                .title(Span::styled("y mm", Style::default().fg(DIM)))
+                .bounds([0.0, ymax])
+                .labels(axis_labels(0.0, ymax, 0)),
+        )
+        .hidden_legend_constraints((Constraint::Ratio(0, 1), Constraint::Ratio(0, 1)));
+    f.render_widget(chart, area);
+}
+
+/// The decay chart's data for the shown station: the points (time since the front s,
+/// Cmean) and, when the host's fit has a model, its curve with (C0, Cf, tau s).
+pub fn decay_chart_data(state: &LiveState) -> (Points, Option<(Points, f64, f64, f64)>) {
+    let Some((_, s)) = state.shown_station() else {
+        return (Vec::new(), None);
+    };
+    let points: Vec<(f64, f64)> = s
+        .series
+        .points()
+        .map(|(t, c)| (t as f64, c as f64))
+        .collect();
+    let tmax = points.iter().map(|p| p.0).fold(0.0f64, f64::max);
+    let curve = s.decay.and_then(|d| d.model).map(|m| {
+        let (c0, cf, tau) = (m.initial as f64, m.final_level as f64, m.tau_s as f64);
+        let line = (0..=CURVE_POINTS)
+            .map(|i| {
+                let t = tmax * i as f64 / CURVE_POINTS as f64;
+                (t, cf + (c0 - cf) * (-t / tau.max(1e-9)).exp())
+            })
+            .collect();
+        (line, c0, cf, tau)
+    });
+    (points, curve)
+}
+
+fn draw_decay(f: &mut Frame, area: Rect, state: &LiveState) {
+    let (points, curve) = decay_chart_data(state);
+    let tmax = points.iter().map(|p| p.0).fold(0.05f64, f64::max);
+    let head = match &curve {
+        Some((_, c0, cf, tau)) => {
+            format!(" Cmean: C0 {c0:.2} Cf {cf:.2} tau {tau:.3} s ")
+        }
+        None => format!(" Cmean vs t-front: {} pts, no fit ", points.len()),
+    };
+    // The curve first, the points over it.
+    let mut sets = Vec::new();
+    if let Some((line, ..)) = &curve {
+        sets.push(
+            Dataset::default()
+                .name("fit")
+                .marker(Marker::Braille)
+                .graph_type(GraphType::Line)
+                .style(Style::default().fg(ACCENT))
+                .data(line),
+        );
+    }
+    sets.push(
+        Dataset::default()
+            .name("Cmean")
+            .marker(Marker::Dot)
+            .graph_type(GraphType::Scatter)
+            .style(Style::default().fg(WARN))
+            .data(&points),
+    );
+    let chart = Chart::new(sets)
+        .block(Block::default().borders(Borders::ALL).title(title(&head)))
+        .x_axis(
+            Axis::default()
+                .title(Span::styled("t s", Style::default().fg(DIM)))
+                .bounds([0.0, tmax])
+                .labels(axis_labels(0.0, tmax, 2)),
+        )
+        .y_axis(
+            Axis::default()
+                .bounds([0.0, 1.0])
+                .labels(axis_labels(0.0, 1.0, 1)),
+        )
+        .hidden_legend_constraints((Constraint::Ratio(0, 1), Constraint::Ratio(0, 1)));
+    f.render_widget(chart, area);
+}
+
 fn draw_history(f: &mut Frame, area: Rect, state: &LiveState) {
     let n = area.height.saturating_sub(2) as usize;
     let lines: Vec<Line> = state
@@ -764,5 +960,139 @@ mod tests {
         println!("{text}");
         assert!(text.contains("DOWN"));
         assert!(text.contains("port lost, reopening every second"));
+    }
+
+    /// A transient flow: one station of five probes, a front, profile fits behind it.
+    fn transient_state(now: Instant) -> LiveState {
+        use frothline_core::wire::quant::{exponent, fraction};
+        use frothline_core::wire::{FrontArrival, ProfileFit};
+        let ports = vec!["/dev/pts/3".to_string()];
+        let mut s = LiveState::new(&ports);
+        s.started = Some(now - Duration::from_secs(3));
+        s.links[0].baud = 115_200;
+        let name = |_: u16, i: usize| format!("A{}", i + 1);
+        s.apply(&Event::LinkUp { port: 0 }, now, &name);
+        let mut desc = DeviceDescription {
+            firmware: Default::default(),
+            sample_rate_millihz: 40_000_000,
+            channels: 6,
+            window: WindowSetting::Whole,
+            probes: Default::default(),
+        };
+        let elevations = [8.0f32, 24.0, 40.0, 56.0, 72.0];
+        for (i, y) in elevations.iter().enumerate() {
+            let _ = desc.probes.push(ProbeLayout {
+                station: 0,
+                leading: i as u8,
+                trailing: None,
+                elevation: frothline_core::wire::quant::length(*y),
+                x: 0,
+            });
+        }
+        s.apply(
+            &Event::Describe {
+                port: 0,
+                device: 1,
+                desc,
+            },
+            now,
+            &name,
+        );
+        let front = 20_000u64;
+        for p in 0..5u8 {
+            let f = FrontArrival {
+                probe: p,
+                station: 0,
+                frame: front + 40 * p as u64,
+            };
+            s.apply(
+                &Event::Front {
+                    port: 0,
+                    device: 1,
+                    front: f,
+                },
+                now,
+                &name,
+            );
+        }
+        let (y90, n) = (62.0f32, 0.7f32);
+        for k in 0..14u64 {
+            let start = front + 2000 * k;
+            for (i, y) in elevations.iter().enumerate() {
+                let c = (0.9 * (y / y90).powf(n)).min(1.0) + 0.02 * ((i + k as usize) % 3) as f32;
+                let w = WindowResult {
+                    probe: i as u8,
+                    start,
+                    frames: 2000,
+                    void_fraction: fraction(c.min(1.0)),
+                    bubble_rate: 0,
+                    bubbles: 40,
+                    chords: None,
+                    correlation: None,
+                    flags: 0,
+                };
+                s.apply(
+                    &Event::Window {
+                        port: 0,
+                        device: 1,
+                        result: w,
+                    },
+                    now,
+                    &name,
+                );
+            }
+            let t = (2000 * k) as f32 / 40_000.0;
+            let cmean = 0.22 + 0.35 * (-t / 0.12).exp();
+            let fit = ProfileFit {
+                station: 0,
+                slice_start: start,
+                slice_frames: 2000,
+                probes_used: 5,
+                y90: Some((y90 * 10.0) as u32),
+                mean_void_fraction: Some(fraction(cmean)),
+                equivalent_depth: Some(400),
+                exponent: Some(exponent(n)),
+                fit_rmse: Some(fraction(0.012)),
+                flags: 0,
+            };
+            s.apply(
+                &Event::Profile {
+                    port: 0,
+                    device: 1,
+                    fit,
+                },
+                now,
+                &name,
+            );
+        }
+        s
+    }
+
+    #[test]
+    fn transient_dashboard_shows_the_profile_fit_and_the_decay() {
+        let now = Instant::now();
+        let s = transient_state(now);
+        let st = &s.stations[&(1, 0)];
+        assert_eq!(st.front_frame, Some(20_000));
+        assert_eq!(st.series.len(), 14);
+        let m = st.decay.and_then(|d| d.model).expect("a decay model");
+        assert!((m.tau_s - 0.12).abs() < 0.02, "{m:?}");
+        assert!((m.initial - 0.57).abs() < 0.02 && (m.final_level - 0.22).abs() < 0.02);
+        let (points, curve) = profile_chart_data(&s);
+        assert_eq!(points.len(), 5);
+        let (line, y90, n) = curve.expect("a profile curve");
+        assert!((y90 - 62.0).abs() < 0.1 && (n - 0.7).abs() < 0.01);
+        assert_eq!(line.last().map(|p| p.1), Some(y90));
+        let lines = render_text(&s, now, 132, 42);
+        println!("{}", lines.join("\n"));
+        let text = lines.join("\n");
+        for want in ["Y90 62.0 mm", "n 0.70", "C0 0.57", "Cf 0.22", "tau 0.12"] {
+            assert!(text.contains(want), "missing {want:?}");
+        }
+        // Without a front the decay panel is not shown.
+        let mut steady = transient_state(now);
+        steady.stations.clear();
+        let text = render_text(&steady, now, 132, 42).join("\n");
+        assert!(!text.contains("Cmean"));
     }
 }

@@ -5,6 +5,11 @@
 //! runs the `watch` code on the other end, for `--duration` seconds: the same bytes, archive,
 //! CSV files and dashboard as with a real device on a USB serial port.
 //!
+//! `demo --transient` plays the built-in dam-break scenario instead (a surge front over a
+//! dry bed reaching one station of ten probes, 1.2 s, repeated): the device sends the front
+//! arrivals and the station's profile fits as they happen, and the dashboard shows the
+//! profile with its fit and the decay of Cmean behind the front.
+//!
 //! `simulate` runs the simulated device alone, on a new pseudo-terminal (its path is
 //! printed) or on a given serial port, until Ctrl-C: point `frothline watch` at it from
 //! another terminal, or start several for a multi-port session.
@@ -31,9 +36,14 @@ pub struct DemoArgs {
     /// Folder for the session archive and CSV files.
     #[arg(long, value_name = "DIR", default_value = "target/demo")]
     pub out: PathBuf,
-    /// Analysis window of the simulated device.
-    #[arg(long, default_value = "100ms")]
-    pub window: WindowSpec,
+    /// Analysis window of the simulated device (default: 100ms; with --transient, 50 ms
+    /// slices from the front).
+    #[arg(long)]
+    pub window: Option<WindowSpec>,
+    /// Play the built-in dam-break surge (fronts, profile fits, decay) instead of the
+    /// steady flow.
+    #[arg(long)]
+    pub transient: bool,
     /// Baud rate of the simulated link (the device keeps to its byte budget).
     #[arg(long, default_value_t = 115_200)]
     pub baud: u32,
@@ -130,6 +140,11 @@ pub fn demo_capture(duration_s: f64, window: WindowSpec) -> Result<SimCapture, H
     SimCapture::from_scenario(&scenario, window)
 }
 
+/// The transient demo's capture: the built-in dam-break scenario (runs repeat).
+pub fn transient_demo_capture(window: WindowSpec) -> Result<SimCapture, HostError> {
+    SimCapture::from_scenario(&crate::synth::Scenario::builtin_transient(), window)
+}
+
 /// `frothline demo`.
 #[cfg(unix)]
 pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
@@ -137,12 +152,25 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
     let ui = if args.plain { Ui::Plain } else { Ui::Dashboard };
     if args.plain {
         println!(
-            "# demo: a simulated 4-probe device on a pseudo-terminal, {} s, files in {}",
+            "# demo: a simulated {} device on a pseudo-terminal, {} s, files in {}",
+            if args.transient {
+                "10-probe dam-break surge"
+            } else {
+                "4-probe"
+            },
             args.duration,
             args.out.display()
         );
     }
-    let cap = demo_capture(args.duration, args.window.clone())?;
+    let cap = if args.transient {
+        transient_demo_capture(args.window.clone().unwrap_or(WindowSpec::Whole))?
+    } else {
+        let window = match &args.window {
+            Some(w) => w.clone(),
+            None => "100ms".parse().map_err(HostError::Usage)?,
+        };
+        demo_capture(args.duration, window)?
+    };
     let layout = cap.layout.clone();
     let layout_text = cap.layout_text.clone();
     let (mut master, slave) = serialport::TTYPort::pair()
@@ -318,4 +346,65 @@ fn simulate_on_pty(
     Err(HostError::Usage(
         "no pseudo-terminals here: give --port with a serial loopback".into(),
     ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::device_sim::SimDevice;
+    use crate::live::LiveState;
+    use crate::session::{Session, SessionOptions};
+
+    /// The transient demo without a terminal: the simulated device stepped in memory, its
+    /// bytes through the session into the live state, the dashboard rendered to text.
+    #[test]
+    fn transient_demo_shows_front_profile_fit_and_decay() {
+        let h = std::thread::Builder::new()
+            .stack_size(crate::device_sim::THREAD_STACK)
+            .spawn(|| {
+                let cap = transient_demo_capture(WindowSpec::Whole).unwrap();
+                let opts = SimOptions {
+                    baud: 0,
+                    repeat: false,
+                    ..SimOptions::default()
+                };
+                let layout = cap.layout.clone();
+                let t0 = Instant::now();
+                let mut dev = SimDevice::new(cap, opts, t0).unwrap();
+                let port = "/dev/pts/sim".to_string();
+                let mut session = Session::new(SessionOptions {
+                    ports: vec![port.clone()],
+                    layout: Some(layout),
+                    ..SessionOptions::default()
+                })
+                .unwrap();
+                let mut state = LiveState::new(&[port]);
+                state.started = Some(t0);
+                let mut events = session.opened(0, 0).unwrap();
+                let mut out = Vec::new();
+                for k in 1..=140u64 {
+                    let t = t0 + Duration::from_millis(10 * k);
+                    dev.advance(t);
+                    out.clear();
+                    dev.output(t, &mut out);
+                    events.extend(session.received(0, 10_000 * k, &out).unwrap());
+                    for e in events.drain(..) {
+                        let name = |d: u16, i: usize| session.probe_name(d, i);
+                        state.apply(&e, t, &name);
+                    }
+                }
+                let st = state.stations.values().next().expect("a station");
+                assert!(st.front_s.is_some(), "a front arrived");
+                assert!(st.profile.is_some() && st.series.len() >= 10);
+                let lines =
+                    crate::dashboard::render_text(&state, t0 + Duration::from_secs(2), 132, 44);
+                println!("{}", lines.join("\n"));
+                let text = lines.join("\n");
+                assert!(text.contains("Y90") && text.contains("tau"), "{text}");
+            })
+            .unwrap();
+        if let Err(e) = h.join() {
+            std::panic::resume_unwind(e);
+        }
+    }
 }

@@ -22,6 +22,14 @@
 //! levels again unless the layout fixes them (the core has no per-probe re-learn yet, so
 //! `Relearn` re-learns every probe whatever the mask).
 //!
+//! A transient layout (`flow.kind = "transient"`) runs one station chain per station, as
+//! `frothline replay` does ([`crate::transient::station_configs`], a delay ring each,
+//! front-relative windows from [`crate::transient::transient_policy`]); every block goes to
+//! every station chain, and after each push the device drains its windows, its profile
+//! records (kind 0x04, [`frothline_core::ProfileRecord::to_wire`]) and its probe arrivals
+//! (kind 0x03, [`frothline_core::station::ProbeArrival::to_wire`]; probe indices mapped to
+//! the layout's), the last two as urgent frames.
+//!
 //! When processing falls behind the wall clock (a slow machine, a high speed factor) the
 //! device does not drop samples: it catches up, and the backlog shows in the health frame's
 //! buffer high-water mark.
@@ -29,13 +37,14 @@
 use crate::error::HostError;
 use crate::layout::Layout;
 use crate::rig::FullRecord as ProbeWindow;
-use crate::rig::{chain_config, Counts, HostChain, MAX_PROBES};
+use crate::rig::{chain_config, Counts, HostChain, ToCounts, HOST_LAGS, MAX_PROBES};
+use crate::transient::{self, StationChain, StationInfo};
 use crate::window_spec::WindowSpec;
 use frothline_core::wire::{
     self, quant, Ack, Body, DeviceDescription, Health, Nack, NackReason, ProbeLayout, Streamer,
     StreamerConfig, TrailingTip, WindowResult, WindowSetting, WireError,
 };
-use frothline_core::{ChainConfig, Flags};
+use frothline_core::{ChainConfig, Flags, FrontRecord, WindowPolicy};
 use std::io::{Read, Write};
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -44,6 +53,12 @@ use std::time::{Duration, Instant};
 
 /// Window results the streamer queues (the oldest is dropped when the link cannot keep up).
 pub const WINDOW_QUEUE: usize = 256;
+
+/// Urgent frames (fronts, profiles, replies) the streamer queues.
+pub const URGENT_QUEUE: usize = 64;
+
+/// The station chains' configurations of a transient layout (one per station).
+pub type StationConfigs = Vec<(StationInfo, ChainConfig<MAX_PROBES>)>;
 
 /// A capture in memory with the chain configuration replay would use for it.
 #[derive(Clone, Debug)]
@@ -58,8 +73,43 @@ pub struct SimCapture {
     pub layout: Layout,
     /// The layout's text (TOML).
     pub layout_text: String,
-    /// The chain configuration (window policy included).
+    /// The chain configuration (window policy included). For a transient layout: the
+    /// whole layout's, with the front-relative policy (the device describes it and maps
+    /// health by it; the station chains run [`SimCapture::stations`]).
     pub config: ChainConfig<MAX_PROBES>,
+    /// A transient layout (`flow.kind = "transient"`): the configuration of each station
+    /// chain, as `frothline replay` derives them ([`transient::station_configs`]).
+    pub stations: Option<StationConfigs>,
+}
+
+/// The chain configurations of `layout` for `window`: the steady one, or for a transient
+/// layout the whole layout's (front-relative policy) and one per station.
+fn configs(
+    layout: &Layout,
+    channels: usize,
+    fs: u32,
+    window: &WindowSpec,
+    units: &dyn ToCounts,
+    file: &Path,
+) -> Result<(ChainConfig<MAX_PROBES>, Option<StationConfigs>), HostError> {
+    let config_err = |source| HostError::Config {
+        file: file.to_path_buf(),
+        source,
+    };
+    if !transient::is_transient(layout) {
+        let policy = window
+            .policy(fs, |name| probe_index(layout, name))
+            .map_err(HostError::Usage)?;
+        let config = chain_config(layout, channels, fs, policy, units).map_err(config_err)?;
+        return Ok((config, None));
+    }
+    let policy = transient::transient_policy(window, fs, layout).map_err(HostError::Usage)?;
+    let stations =
+        transient::station_configs(layout, channels, fs, policy, units).map_err(config_err)?;
+    let mut config =
+        chain_config(layout, channels, fs, WindowPolicy::Whole, units).map_err(config_err)?;
+    config.window = policy;
+    Ok((config, Some(stations)))
 }
 
 impl SimCapture {
@@ -87,14 +137,14 @@ impl SimCapture {
                 layout_doc.probes.len()
             )));
         }
-        let policy = window
-            .policy(cap.sample_rate(), |name| probe_index(&layout_doc, name))
-            .map_err(HostError::Usage)?;
-        let config = chain_config(&layout_doc, cap.channels(), cap.sample_rate(), policy, &cap)
-            .map_err(|source| HostError::Config {
-                file: layout.to_path_buf(),
-                source,
-            })?;
+        let (config, stations) = configs(
+            &layout_doc,
+            cap.channels(),
+            cap.sample_rate(),
+            &window,
+            &cap,
+            layout,
+        )?;
         let mut samples = Vec::with_capacity(cap.frames() as usize * cap.channels());
         let mut block = Vec::new();
         loop {
@@ -111,6 +161,7 @@ impl SimCapture {
             layout: layout_doc,
             layout_text,
             config,
+            stations,
         })
     }
 
@@ -126,15 +177,14 @@ impl SimCapture {
         let cap = generator.render_interleaved();
         let channels = cap.channels as usize;
         let fs = cap.sample_rate_hz;
-        let policy = window
-            .policy(fs, |name| probe_index(&layout, name))
-            .map_err(HostError::Usage)?;
-        let config = chain_config(&layout, channels, fs, policy, &Counts).map_err(|source| {
-            HostError::Config {
-                file: "<built-in scenario>".into(),
-                source,
-            }
-        })?;
+        let (config, stations) = configs(
+            &layout,
+            channels,
+            fs,
+            &window,
+            &Counts,
+            Path::new("<built-in scenario>"),
+        )?;
         Ok(SimCapture {
             samples: Arc::new(cap.samples),
             channels,
@@ -142,6 +192,7 @@ impl SimCapture {
             layout,
             layout_text: text,
             config,
+            stations,
         })
     }
 }
@@ -209,6 +260,12 @@ pub struct SimStats {
     pub bytes_not_written: u64,
 }
 
+/// The chains of a run: one for a steady layout, one per station for a transient one.
+enum Chains {
+    Steady(Box<HostChain>),
+    Transient(Vec<(StationInfo, Box<StationChain>)>),
+}
+
 /// The simulated device (see the module docs). Drive it with [`SimDevice::run`] on a port,
 /// or step by step with [`input`](SimDevice::input), [`advance`](SimDevice::advance) and
 /// [`output`](SimDevice::output).
@@ -216,8 +273,10 @@ pub struct SimDevice {
     cap: SimCapture,
     opts: SimOptions,
     config: ChainConfig<MAX_PROBES>,
-    chain: Option<Box<HostChain>>,
-    streamer: Box<Streamer<WINDOW_QUEUE, 16>>,
+    /// The station chains' configurations (transient layouts).
+    stations: Option<StationConfigs>,
+    chain: Option<Chains>,
+    streamer: Box<Streamer<WINDOW_QUEUE, URGENT_QUEUE>>,
     /// Bytes of an incoming frame.
     rx: Vec<u8>,
     rx_overflow: bool,
@@ -238,10 +297,13 @@ impl SimDevice {
     /// A device for `cap`; the chain's window policy is the capture's configuration.
     pub fn new(cap: SimCapture, opts: SimOptions, now: Instant) -> Result<Self, HostError> {
         let config = cap.config.clone();
-        HostChain::new(config.clone()).map_err(|source| HostError::Config {
-            file: "<simulated device>".into(),
-            source,
-        })?;
+        let stations = cap.stations.clone();
+        if stations.is_none() {
+            HostChain::new(config.clone()).map_err(|source| HostError::Config {
+                file: "<simulated device>".into(),
+                source,
+            })?;
+        }
         let streamer = Box::new(Streamer::new(StreamerConfig::uart_8n1(
             opts.device,
             opts.baud,
@@ -251,6 +313,7 @@ impl SimDevice {
             cap,
             opts,
             config,
+            stations,
             chain: None,
             streamer,
             rx: Vec::new(),
@@ -332,10 +395,44 @@ impl SimDevice {
         d
     }
 
-    fn new_chain(&self, config: ChainConfig<MAX_PROBES>) -> Result<Box<HostChain>, NackReason> {
-        HostChain::new(config)
-            .map(Box::new)
-            .map_err(|_| NackReason::BadArgument)
+    fn new_chain(&self, config: ChainConfig<MAX_PROBES>) -> Result<Chains, NackReason> {
+        let Some(stations) = &self.stations else {
+            return HostChain::new(config)
+                .map(|c| Chains::Steady(Box::new(c)))
+                .map_err(|_| NackReason::BadArgument);
+        };
+        let mut chains = Vec::with_capacity(stations.len());
+        for (info, cfg) in stations {
+            let mut cfg = cfg.clone();
+            cfg.window = config.window;
+            let chain = StationChain::with_delay_ring(cfg).map_err(|_| NackReason::BadArgument)?;
+            chains.push((info.clone(), Box::new(chain)));
+        }
+        Ok(Chains::Transient(chains))
+    }
+
+    /// Push `block` (interleaved frames) to the chains, draining them as they go.
+    fn push_block(&mut self, chains: &mut Chains, block: &[i16]) {
+        match chains {
+            Chains::Steady(chain) => {
+                let mut rest = block;
+                while !rest.is_empty() {
+                    let used = chain.push(rest);
+                    rest = &rest[used..];
+                    self.drain(chain, None);
+                }
+            }
+            Chains::Transient(stations) => {
+                for (idx, (info, chain)) in stations.iter_mut().enumerate() {
+                    let mut rest = block;
+                    while !rest.is_empty() {
+                        let used = chain.push(rest);
+                        rest = &rest[used..];
+                        self.drain(chain, Some((idx, &info.probes)));
+                    }
+                }
+            }
+        }
     }
 
     fn start_run(&mut self, now: Instant) {
@@ -355,18 +452,45 @@ impl SimDevice {
 
     /// Close the current chain: its open window comes out (flagged partial).
     fn close_chain(&mut self) {
-        let Some(mut chain) = self.chain.take() else {
-            return;
-        };
-        while chain.finish().is_err() {
-            self.drain(&mut chain);
+        match self.chain.take() {
+            None => {}
+            Some(Chains::Steady(mut chain)) => {
+                while chain.finish().is_err() {
+                    self.drain(&mut chain, None);
+                }
+                self.drain(&mut chain, None);
+            }
+            Some(Chains::Transient(mut stations)) => {
+                for (idx, (info, chain)) in stations.iter_mut().enumerate() {
+                    let st = Some((idx, &info.probes[..]));
+                    while chain.finish().is_err() {
+                        self.drain(chain, st);
+                    }
+                    self.drain(chain, st);
+                }
+            }
         }
-        self.drain(&mut chain);
     }
 
     fn end_run(&mut self) {
         self.close_chain();
         self.running = false;
+    }
+
+    /// For a transient layout, `policy` as `frothline replay` takes it
+    /// ([`transient::transient_policy`]: fixed windows count from the front); else itself.
+    fn front_relative(&self, policy: WindowPolicy) -> WindowPolicy {
+        if self.stations.is_none() {
+            return policy;
+        }
+        match policy {
+            WindowPolicy::Whole => WindowPolicy::AfterFront {
+                frames: ((transient::DEFAULT_SLICE_S * self.cap.sample_rate as f64).round() as u32)
+                    .max(1),
+            },
+            WindowPolicy::Frames(frames) => WindowPolicy::AfterFront { frames },
+            other => other,
+        }
     }
 
     /// Rebuild the chain at the current position with `config` (SetWindow, Relearn).
@@ -381,9 +505,21 @@ impl SimDevice {
         Ok(())
     }
 
-    fn drain(&mut self, chain: &mut HostChain) {
+    /// Queue what `chain` has: its window records, and for station `station` (index, and
+    /// the layout index of each of its probes) its profiles and probe arrivals (urgent
+    /// frames; probe indices mapped to the layout's as `frothline replay` maps them).
+    fn drain<const D: usize>(
+        &mut self,
+        chain: &mut frothline_core::Chain<MAX_PROBES, HOST_LAGS, D>,
+        station: Option<(usize, &[usize])>,
+    ) {
         let fs = self.cap.sample_rate;
+        let layout_probe = |p: u8| match station {
+            Some((_, probes)) => probes.get(p as usize).map_or(p, |&i| i as u8),
+            None => p,
+        };
         while let Some(mut r) = chain.poll() {
+            r.probe = layout_probe(r.probe);
             r.start += self.offset;
             r.end += self.offset;
             self.note_record(&r);
@@ -395,6 +531,22 @@ impl SimDevice {
                 .get(r.probe as usize)
                 .and_then(|p| p.tip_spacing_mm);
             self.streamer.offer_window(wire_result(&r, fs, spacing));
+        }
+        let Some((idx, _)) = station else {
+            return;
+        };
+        let idx = idx.min(255) as u8;
+        while let Some(mut p) = chain.poll_profile() {
+            p.start += self.offset;
+            p.end += self.offset;
+            self.streamer.offer(Body::Profile(p.to_wire(idx)));
+        }
+        while let Some(f) = chain.poll_front() {
+            if let FrontRecord::Probe(mut p) = f {
+                p.probe = layout_probe(p.probe);
+                p.arrival += self.offset;
+                self.streamer.offer(Body::Front(p.to_wire(idx)));
+            }
         }
     }
 
@@ -496,7 +648,7 @@ impl SimDevice {
                     Err(NackReason::NotRunning)
                 }
             }
-            Body::SetWindow(s) => match s.to_policy() {
+            Body::SetWindow(s) => match s.to_policy().map(|p| self.front_relative(p)) {
                 Some(policy) if policy.is_valid() => {
                     let mut cfg = self.config.clone();
                     cfg.window = policy;
@@ -550,14 +702,9 @@ impl SimDevice {
                 let ch = self.cap.channels;
                 let samples = Arc::clone(&self.cap.samples);
                 let block = &samples[self.pos * ch..upto * ch];
-                if let Some(mut chain) = self.chain.take() {
-                    let mut rest = block;
-                    while !rest.is_empty() {
-                        let used = chain.push(rest);
-                        rest = &rest[used..];
-                        self.drain(&mut chain);
-                    }
-                    self.chain = Some(chain);
+                if let Some(mut chains) = self.chain.take() {
+                    self.push_block(&mut chains, block);
+                    self.chain = Some(chains);
                 }
                 self.pos = upto;
             }

@@ -5,8 +5,9 @@
 //! drive the state without a terminal.
 
 use crate::session::{describe_event, setting_text, Event};
-use frothline_core::wire::quant::{from_fraction, from_length, from_micros};
-use frothline_core::wire::{Health, Kind, WindowResult};
+use frothline_core::decay::{DecayFit, DecayTracker};
+use frothline_core::wire::quant::{from_exponent, from_fraction, from_length, from_micros};
+use frothline_core::wire::{FrontArrival, Health, Kind, ProfileFit, WindowResult};
 use frothline_core::Flags;
 use std::collections::{BTreeMap, HashMap, VecDeque};
 use std::time::{Duration, Instant};
@@ -19,6 +20,97 @@ pub const RECENT_WINDOWS: usize = 100;
 
 /// A link is called quiet when no frame came for this long although it is up.
 pub const QUIET_AFTER: Duration = Duration::from_secs(3);
+
+/// Points of a station's decay series (Cmean against time since the front) kept and fitted.
+pub const DECAY_POINTS: usize = 256;
+
+/// A station's latest profile fit, as received (kind 0x04).
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct LiveProfile {
+    /// Slice start, seconds of device time.
+    pub start_s: f64,
+    /// Slice end, seconds of device time.
+    pub end_s: f64,
+    /// Slice start minus the station's front, s (when the front is known).
+    pub since_front_s: Option<f64>,
+    /// Elevation where C = 0.9, mm.
+    pub y90_mm: Option<f64>,
+    /// Depth-averaged void fraction over 0..Y90.
+    pub mean_void_fraction: Option<f64>,
+    /// Power-law exponent n of C = 0.9 (y/Y90)^n.
+    pub exponent: Option<f64>,
+    /// RMSE of the power-law fit.
+    pub rmse: Option<f64>,
+    /// Probes that contributed.
+    pub probes_used: u8,
+}
+
+/// What the live view knows of one station of a transient flow.
+#[derive(Clone, Debug, Default)]
+pub struct StationLive {
+    /// The front arrival at the station: the earliest probe arrival, frames of device time.
+    pub front_frame: Option<u64>,
+    /// The same, seconds of device time.
+    pub front_s: Option<f64>,
+    /// Probe arrivals received: (probe index, device time, s).
+    pub arrivals: Vec<(usize, f64)>,
+    /// The latest profile fit.
+    pub profile: Option<LiveProfile>,
+    /// Profile fits received.
+    pub profiles: u64,
+    /// Cmean against time since the front, s.
+    pub series: DecayTracker<DECAY_POINTS>,
+    /// The host's decay fit of [`StationLive::series`] (refitted at each profile).
+    pub decay: Option<DecayFit>,
+    /// Start frame of the latest profile's slice.
+    pub last_slice: Option<u64>,
+}
+
+impl StationLive {
+    /// Take a front arrival (`fs`: the device's sample rate, Hz).
+    pub fn front(&mut self, f: &FrontArrival, fs: f64) {
+        // A front before the latest slice: the device's clock went back (a new run).
+        if self.last_slice.is_some_and(|t| f.frame < t) {
+            *self = StationLive::default();
+        }
+        let s = f.frame as f64 / fs;
+        self.arrivals.push((f.probe as usize, s));
+        if self.front_frame.is_none_or(|t| f.frame < t) {
+            self.front_frame = Some(f.frame);
+            self.front_s = Some(s);
+        }
+    }
+
+    /// Take a profile fit: the latest fit, and a point of the decay series (then refit).
+    pub fn profile(&mut self, p: &ProfileFit, fs: f64) {
+        // A slice before the latest one: a new run; its series starts again.
+        if self.last_slice.is_some_and(|t| p.slice_start <= t) {
+            self.series.clear();
+            self.decay = None;
+        }
+        self.last_slice = Some(p.slice_start);
+        let since = self
+            .front_frame
+            .map(|f| (p.slice_start as f64 - f as f64) / fs);
+        let fit = LiveProfile {
+            start_s: p.slice_start as f64 / fs,
+            end_s: (p.slice_start + p.slice_frames as u64) as f64 / fs,
+            since_front_s: since,
+            y90_mm: p.y90.map(|v| v as f64 / 10.0),
+            mean_void_fraction: p.mean_void_fraction.map(|q| from_fraction(q) as f64),
+            exponent: p.exponent.map(|q| from_exponent(q) as f64),
+            rmse: p.fit_rmse.map(|q| from_fraction(q) as f64),
+            probes_used: p.probes_used,
+        };
+        if let (Some(t), Some(c)) = (since, fit.mean_void_fraction) {
+            if self.series.push(t as f32, c as f32).is_ok() {
+                self.decay = Some(self.series.fit(f32::NAN));
+            }
+        }
+        self.profile = Some(fit);
+        self.profiles += 1;
+    }
+}
 
 /// One probe's latest window, as the live view shows it.
 #[derive(Clone, Debug, Default, PartialEq)]
@@ -299,6 +391,8 @@ pub struct LiveState {
     pub pending_labels: HashMap<(usize, u16), String>,
     /// What the keys do, shown at the bottom (empty: no key help).
     pub keys_help: String,
+    /// Stations of transient flows, by (device, station index).
+    pub stations: BTreeMap<(u32, u8), StationLive>,
 }
 
 impl LiveState {
@@ -378,6 +472,33 @@ impl LiveState {
         }
     }
 
+    /// The sample rate of `device`, Hz (1 when unknown: times in frames).
+    fn sample_rate(&self, device: u16) -> f64 {
+        self.devices
+            .get(&(device as u32))
+            .map(|d| d.sample_rate_hz as f64)
+            .filter(|f| *f > 0.0)
+            .unwrap_or(1.0)
+    }
+
+    /// The station to show: the one with the latest profile fit, else the latest front.
+    pub fn shown_station(&self) -> Option<(&(u32, u8), &StationLive)> {
+        let key = |s: &StationLive| {
+            (
+                s.profile.as_ref().map_or(f64::NEG_INFINITY, |p| p.end_s),
+                s.front_s.unwrap_or(f64::NEG_INFINITY),
+            )
+        };
+        self.stations
+            .iter()
+            .filter(|(_, s)| s.front_s.is_some() || s.profile.is_some())
+            .max_by(|a, b| {
+                key(a.1)
+                    .partial_cmp(&key(b.1))
+                    .unwrap_or(std::cmp::Ordering::Equal)
+            })
+    }
+
     /// Take a session event at `now`. `names` gives the CSV name of a probe (device, index).
     pub fn apply(&mut self, e: &Event, now: Instant, names: &dyn Fn(u16, usize) -> String) {
         let ports: Vec<String> = self.links.iter().map(|l| l.port.clone()).collect();
@@ -429,6 +550,20 @@ impl LiveState {
                     l.last_frame = Some(now);
                 }
                 self.window(&LiveWindow::from_wire(*device, result, fs));
+            }
+            Event::Front { device, front, .. } => {
+                let fs = self.sample_rate(*device);
+                self.stations
+                    .entry((*device as u32, front.station))
+                    .or_default()
+                    .front(front, fs);
+            }
+            Event::Profile { device, fit, .. } => {
+                let fs = self.sample_rate(*device);
+                self.stations
+                    .entry((*device as u32, fit.station))
+                    .or_default()
+                    .profile(fit, fs);
             }
             Event::Health { device, health, .. } => {
                 let d = self.device(*device as u32);
