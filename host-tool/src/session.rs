@@ -30,24 +30,19 @@ use std::collections::BTreeMap;
 use std::fs::File;
 use std::io::BufWriter;
 use std::path::{Path, PathBuf};
+/// Columns of a live fronts.csv: the contract of DESIGN.md §3 (the replay's first columns;
+/// the wire carries no more).
+pub fn front_columns() -> Vec<&'static str> {
+    crate::transient::FRONT_COLUMNS[..3].to_vec()
+}
 
-/// Columns of fronts.csv (DESIGN.md §3).
-pub const FRONT_COLUMNS: &[&str] = &["probe", "station", "arrival_s"];
-
-/// Columns of profile.csv (DESIGN.md §3, then `flags`).
-pub const PROFILE_COLUMNS: &[&str] = &[
-    "station",
-    "slice_start_s",
-    "slice_end_s",
-    "since_front_s",
-    "y90_mm",
-    "depth_averaged_void_fraction",
-    "equivalent_depth_mm",
-    "profile_exponent",
-    "fit_rmse",
-    "probes_used",
-    "flags",
-];
+/// Columns of a live profile.csv: the contract of DESIGN.md §3 (the replay's first ten
+/// columns), then `flags`.
+pub fn profile_columns() -> Vec<&'static str> {
+    let mut c = crate::transient::PROFILE_COLUMNS[..10].to_vec();
+    c.push("flags");
+    c
+}
 
 /// Window results held per device while its sample rate is unknown.
 const MAX_HELD: usize = 4096;
@@ -765,7 +760,7 @@ impl Session {
         };
         let path = out.dir.join("fronts.csv");
         if out.fronts.is_none() {
-            out.fronts = Some(csv_file(&path, FRONT_COLUMNS)?);
+            out.fronts = Some(csv_file(&path, &front_columns())?);
             self.report.files.push(path.clone());
         }
         let arrival = fs.map(|fs| (f.frame as f64 / fs).to_string());
@@ -788,7 +783,7 @@ impl Session {
         };
         let path = out.dir.join("profile.csv");
         if out.profile.is_none() {
-            out.profile = Some(csv_file(&path, PROFILE_COLUMNS)?);
+            out.profile = Some(csv_file(&path, &profile_columns())?);
             self.report.files.push(path.clone());
         }
         let secs = |frames: u64| fs.map(|fs| frames as f64 / fs);

@@ -140,25 +140,7 @@ pub struct ChordBin {
 
 /// Columns of windows.csv the report reads (the contract of DESIGN.md §3 and the extra
 /// columns written by `windows_csv`). Any other column is ignored with a note.
-const WINDOW_COLUMNS: &[&str] = &[
-    "probe",
-    "window_start_s",
-    "window_end_s",
-    "since_front_s",
-    "void_fraction",
-    "bubble_count_rate_hz",
-    "bubble_chord_mean_s",
-    "interfacial_velocity_m_s",
-    "correlation_peak",
-    "turbulence_intensity",
-    "bubbles",
-    "flags",
-    "elevation_mm",
-    "x_mm",
-    "bubble_chord_median_s",
-    "bubble_chord_p10_s",
-    "bubble_chord_p90_s",
-];
+const WINDOW_COLUMNS: &[&str] = crate::windows_csv::COLUMNS.split_at(17).0;
 
 /// Most flag names a run may carry; names past this share the last bit.
 const MAX_FLAGS: usize = 64;
