@@ -6,8 +6,10 @@ use std::ffi::OsString;
 
 /// frothline: air-water flow measurements from dual-tip phase-detection probes.
 ///
-/// Replays recorded captures (WAV + layout) through the same signal chain the probe
-/// firmware runs, and synthesises test captures. Work near fast water and mains-powered
+/// Shows live results from probe devices on serial ports (dashboard, lossless archive,
+/// CSV), replays recorded captures (WAV + layout) through the same signal chain the probe
+/// firmware runs, draws reports, combines repeated runs and synthesises test captures.
+/// Start with `frothline demo` (no hardware needed). Work near fast water and mains-powered
 /// electronics near water is hazardous: follow local codes and licensed practice (see README).
 #[derive(Parser, Debug)]
 #[command(name = "frothline", version, about, long_about)]
