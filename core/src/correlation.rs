@@ -1089,7 +1089,7 @@ const TU_PUBLISHED_OF_GAUSSIAN: [f32; 25] = [
 const TU_TABLE_STEP: f32 = 0.025;
 
 /// The turbulence intensity of Gaussian velocity fluctuations that would give the published
-/// estimate `published` (inverts [`TU_PUBLISHED_OF_GAUSSIAN`] by linear interpolation).
+/// estimate `published` (inverts `TU_PUBLISHED_OF_GAUSSIAN` by linear interpolation).
 /// Use it where fluctuations are large (above about 0.2 the published formula reads more
 /// than 5 % low); `None` beyond the table (a published value above 0.405, true Tu > 0.6) or
 /// for a negative or non-finite input.

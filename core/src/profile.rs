@@ -45,7 +45,7 @@
 //! Work is bounded: at most 16 points × (1 + 9 × `max_iterations`) model evaluations.
 //!
 //! All maths is f32 with transcendental functions built on `micromath::F32Ext` (see
-//! [`fmath`]), so a device and a host compute the same bits.
+//! `fmath`), so a device and a host compute the same bits.
 
 use self::fmath::{exp, ln, sqrt};
 use micromath::F32Ext;

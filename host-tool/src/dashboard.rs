@@ -315,7 +315,7 @@ fn fit(s: String, w: u16, right: bool) -> String {
 
 /// Which probe columns fit in `width` cells: the less important ones go first (bubbles,
 /// correlation peak, chord, Tu, ...), so a narrow terminal loses columns instead of cutting
-/// numbers. Column indices into [`PROBE_COLUMNS`], in order.
+/// numbers. Column indices into `PROBE_COLUMNS`, in order.
 pub fn probe_columns_that_fit(width: u16) -> Vec<usize> {
     // Lower keeps longer; the flags column (last) takes the rest of the width.
     const KEEP: [u8; 10] = [0, 0, 0, 1, 2, 4, 5, 6, 7, 3];

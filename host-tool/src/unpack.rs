@@ -16,7 +16,7 @@ use std::path::{Path, PathBuf};
 /// Arguments of `frothline unpack`.
 #[derive(clap::Args, Debug, Clone)]
 pub struct UnpackArgs {
-    /// The session archive (session-<UTC time>.flc written by `frothline watch`).
+    /// The session archive (`session-<UTC time>.flc` written by `frothline watch`).
     pub archive: PathBuf,
     /// Folder for windows.csv (and fronts.csv, profile.csv when the session had them).
     #[arg(long, short)]

@@ -49,7 +49,7 @@ pub struct WatchArgs {
     #[arg(long, default_value_t = 115_200)]
     pub baud: u32,
     /// Folder for the session: the archive of every byte received
-    /// (session-<UTC time>.flc, read it again with `frothline unpack`) and the decoded
+    /// (`session-<UTC time>.flc`, read it again with `frothline unpack`) and the decoded
     /// windows.csv, fronts.csv, profile.csv (replaced by each session).
     #[arg(long, value_name = "DIR", default_value = "frothline-data")]
     pub archive: PathBuf,
