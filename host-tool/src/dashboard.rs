@@ -561,41 +561,25 @@ fn draw_profile_chart(f: &mut Frame, area: Rect, state: &LiveState) {
         (None, Some((k, _))) => format!(" C vs y, S{}: no fit yet ", k.1 + 1),
         _ => " C vs elevation ".to_string(),
     };
-    // The curve first, the points over it.
-    let mut sets = Vec::new();
-    if let Some((line, _, _)) = &curve {
-        sets.push(
-            Dataset::default()
-                .name("fit")
-                .marker(Marker::Braille)
-                .graph_type(GraphType::Line)
-                .style(Style::default().fg(ACCENT))
-                .data(line),
-        );
-    }
-    sets.push(
-        Dataset::default()
-            .name("C")
-            .marker(Marker::Dot)
-            .graph_type(GraphType::Scatter)
-            .style(Style::default().fg(WARN))
-            .data(&points),
-    );
-    let chart = Chart::new(sets)
-        .block(Block::default().borders(Borders::ALL).title(title(&head)))
-        .x_axis(
-            Axis::default()
-                .title(Span::styled("C", Style::default().fg(DIM)))
-                .bounds([0.0, 1.0])
-                .labels(axis_labels(0.0, 1.0, 1)),
-        )
-        .y_axis(
-            Axis::default()
-                .title(Span::styled("y mm", Style::default().fg(DIM)))
-                .bounds([0.0, ymax])
-                .labels(axis_labels(0.0, ymax, 0)),
-        )
-        .hidden_legend_constraints((Constraint::Ratio(0, 1), Constraint::Ratio(0, 1)));
+    let chart = Chart::new(fit_and_points(
+        curve.as_ref().map(|c| c.0.as_slice()),
+        "C",
+        &points,
+    ))
+    .block(Block::default().borders(Borders::ALL).title(title(&head)))
+    .x_axis(
+        Axis::default()
+            .title(Span::styled("C", Style::default().fg(DIM)))
+            .bounds([0.0, 1.0])
+            .labels(axis_labels(0.0, 1.0, 1)),
+    )
+    .y_axis(
+        Axis::default()
+            .title(Span::styled("y mm", Style::default().fg(DIM)))
+            .bounds([0.0, ymax])
+            .labels(axis_labels(0.0, ymax, 0)),
+    )
+    .hidden_legend_constraints((Constraint::Ratio(0, 1), Constraint::Ratio(0, 1)));
     f.render_widget(chart, area);
 }
 
@@ -633,40 +617,24 @@ fn draw_decay(f: &mut Frame, area: Rect, state: &LiveState) {
         }
         None => format!(" Cmean vs t-front: {} pts, no fit ", points.len()),
     };
-    // The curve first, the points over it.
-    let mut sets = Vec::new();
-    if let Some((line, ..)) = &curve {
-        sets.push(
-            Dataset::default()
-                .name("fit")
-                .marker(Marker::Braille)
-                .graph_type(GraphType::Line)
-                .style(Style::default().fg(ACCENT))
-                .data(line),
-        );
-    }
-    sets.push(
-        Dataset::default()
-            .name("Cmean")
-            .marker(Marker::Dot)
-            .graph_type(GraphType::Scatter)
-            .style(Style::default().fg(WARN))
-            .data(&points),
-    );
-    let chart = Chart::new(sets)
-        .block(Block::default().borders(Borders::ALL).title(title(&head)))
-        .x_axis(
-            Axis::default()
-                .title(Span::styled("t s", Style::default().fg(DIM)))
-                .bounds([0.0, tmax])
-                .labels(axis_labels(0.0, tmax, 2)),
-        )
-        .y_axis(
-            Axis::default()
-                .bounds([0.0, 1.0])
-                .labels(axis_labels(0.0, 1.0, 1)),
-        )
-        .hidden_legend_constraints((Constraint::Ratio(0, 1), Constraint::Ratio(0, 1)));
+    let chart = Chart::new(fit_and_points(
+        curve.as_ref().map(|c| c.0.as_slice()),
+        "Cmean",
+        &points,
+    ))
+    .block(Block::default().borders(Borders::ALL).title(title(&head)))
+    .x_axis(
+        Axis::default()
+            .title(Span::styled("t s", Style::default().fg(DIM)))
+            .bounds([0.0, tmax])
+            .labels(axis_labels(0.0, tmax, 2)),
+    )
+    .y_axis(
+        Axis::default()
+            .bounds([0.0, 1.0])
+            .labels(axis_labels(0.0, 1.0, 1)),
+    )
+    .hidden_legend_constraints((Constraint::Ratio(0, 1), Constraint::Ratio(0, 1)));
     f.render_widget(chart, area);
 }
 
@@ -1095,4 +1063,32 @@ mod tests {
         let text = render_text(&steady, now, 132, 42).join("\n");
         assert!(!text.contains("Cmean"));
     }
+}
+
+/// A fitted curve (drawn first) and the measured points over it.
+fn fit_and_points<'a>(
+    fit: Option<&'a [(f64, f64)]>,
+    points_name: &'static str,
+    points: &'a [(f64, f64)],
+) -> Vec<Dataset<'a>> {
+    let mut sets = Vec::new();
+    if let Some(line) = fit {
+        sets.push(
+            Dataset::default()
+                .name("fit")
+                .marker(Marker::Braille)
+                .graph_type(GraphType::Line)
+                .style(Style::default().fg(ACCENT))
+                .data(line),
+        );
+    }
+    sets.push(
+        Dataset::default()
+            .name(points_name)
+            .marker(Marker::Dot)
+            .graph_type(GraphType::Scatter)
+            .style(Style::default().fg(WARN))
+            .data(points),
+    );
+    sets
 }
