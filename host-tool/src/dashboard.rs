@@ -736,6 +736,34 @@ pub fn render_text(state: &LiveState, now: Instant, width: u16, height: u16) -> 
         .collect()
 }
 
+/// A fitted curve (drawn first) and the measured points over it.
+fn fit_and_points<'a>(
+    fit: Option<&'a [(f64, f64)]>,
+    points_name: &'static str,
+    points: &'a [(f64, f64)],
+) -> Vec<Dataset<'a>> {
+    let mut sets = Vec::new();
+    if let Some(line) = fit {
+        sets.push(
+            Dataset::default()
+                .name("fit")
+                .marker(Marker::Braille)
+                .graph_type(GraphType::Line)
+                .style(Style::default().fg(ACCENT))
+                .data(line),
+        );
+    }
+    sets.push(
+        Dataset::default()
+            .name(points_name)
+            .marker(Marker::Dot)
+            .graph_type(GraphType::Scatter)
+            .style(Style::default().fg(WARN))
+            .data(points),
+    );
+    sets
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1063,32 +1091,4 @@ mod tests {
         let text = render_text(&steady, now, 132, 42).join("\n");
         assert!(!text.contains("Cmean"));
     }
-}
-
-/// A fitted curve (drawn first) and the measured points over it.
-fn fit_and_points<'a>(
-    fit: Option<&'a [(f64, f64)]>,
-    points_name: &'static str,
-    points: &'a [(f64, f64)],
-) -> Vec<Dataset<'a>> {
-    let mut sets = Vec::new();
-    if let Some(line) = fit {
-        sets.push(
-            Dataset::default()
-                .name("fit")
-                .marker(Marker::Braille)
-                .graph_type(GraphType::Line)
-                .style(Style::default().fg(ACCENT))
-                .data(line),
-        );
-    }
-    sets.push(
-        Dataset::default()
-            .name(points_name)
-            .marker(Marker::Dot)
-            .graph_type(GraphType::Scatter)
-            .style(Style::default().fg(WARN))
-            .data(points),
-    );
-    sets
 }
