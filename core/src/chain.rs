@@ -11,8 +11,27 @@
 //! of correlation lag slots of its dual-tip probes, so the largest lag a probe can use is
 //! `L - 1` frames: a probe's `max_lag` above that is capped (the record's
 //! [`CorrelationResult::max_lag`](crate::CorrelationResult::max_lag) says what was used).
-//! Memory grows with `L`: `32 L` bytes plus 2 KiB of state per dual-tip probe, and `28 L`
-//! bytes per queued record (7 KiB for `L` = 256).
+//! Memory grows with `L`: `32 L` bytes of correlator state per probe, and `28 L` bytes of
+//! raw correlation sums per queued record (7 KiB for `L` = 256).
+//!
+//! # Memory, and chains for small devices
+//!
+//! [`Chain<P, L, D>`](Chain) is [`GenericChain<P, L, D, P, 1>`](GenericChain): it keeps the
+//! raw [`CorrelationSums`] of every queued record (a host's ensemble statistics need them)
+//! and has room for a station. A device that sends only the derived results uses
+//! [`LeanChain<P, L>`](LeanChain) = `GenericChain<P, L, 0, 0, 0>`: its records come out
+//! with `correlation_sums: None` (everything else bit for bit the same) and it holds no
+//! sums and no station state (a station needs a delay ring anyway). Per probe there is
+//! the state of its tips (detector, level learner, window statistics: about 1.3 KiB each)
+//! and of its correlator (`32 L` bytes); per queued record about 1.4 KiB plus, in a
+//! `Chain`, `28 L` bytes of sums; once per chain one [`RunBuffer`] (2 KiB) that the
+//! correlators borrow in turn, one run each.
+//!
+//! A chain is tens of KiB, so a device does not build it on the stack:
+//! [`GenericChain::empty`] is a `const fn` whose value is all zero bytes (a `static` of it
+//! lands in `.bss`), and [`GenericChain::configure`] builds the state in place, one probe at
+//! a time (the stack holds at most one probe's state, a few KiB). [`Chain::new`] and
+//! [`Chain::with_delay_ring`] are `empty` plus `configure` (by value, for hosts).
 //!
 //! Frames of 2, 4, 8, 16, 32 or 64 channels are processed frame-major: every tip of a frame
 //! at once, in a fixed-width loop over the channels that the compiler vectorises (see
@@ -37,8 +56,10 @@
 //! then starts exactly at the front's arrival. Such a chain also gives front records
 //! ([`Chain::poll_front`]) and profile records ([`Chain::poll_profile`]).
 
-use crate::config::{ChainConfig, ConfigError, DetectorConfig, TipConfig};
-use crate::correlation::{Correlator, DEFAULT_LAGS, MAX_RUN_FRAMES};
+use crate::config::{ChainConfig, ConfigError, DetectorConfig, ProbeConfig, TipConfig};
+use crate::correlation::{
+    CorrelationResult, CorrelationSums, Correlator, RunBuffer, DEFAULT_LAGS, MAX_RUN_FRAMES,
+};
 use crate::flags::Flags;
 use crate::phase::{run_lanes, Edge, EdgeSink, Lanes, PhaseDetector, RunCounts};
 use crate::record::{ProbeWindow, TipStats};
@@ -46,7 +67,7 @@ use crate::station::{FrontRecord, ProfileRecord, Station, MAX_DECAY_POINTS};
 use crate::tip_stats::TipAccumulator;
 use crate::window::WindowPolicy;
 use crate::MAX_CHANNELS;
-use heapless::{Deque, Vec};
+use heapless::Deque;
 
 /// Longest run of frames handed to the tips at once: keeps a run of a wide frame in L1 (and
 /// bounds the correlators' buffer of leading-tip edges).
@@ -82,7 +103,7 @@ impl EdgeSink for BubbleCounter {
     }
 }
 
-/// The queue is full: drain it with [`Chain::poll`] and call again.
+/// The queue is full: drain it with [`GenericChain::poll`] and call again.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct QueueFull;
@@ -94,11 +115,16 @@ struct Tip {
 }
 
 impl Tip {
-    fn new(cfg: &TipConfig, det: &DetectorConfig, initial_air: bool) -> Self {
-        Tip {
-            detector: PhaseDetector::new(cfg, det, initial_air),
-            stats: TipAccumulator::new(),
-        }
+    /// All zero bytes (an unused probe slot).
+    const ZERO: Self = Tip {
+        detector: PhaseDetector::ZERO,
+        stats: TipAccumulator::ZERO,
+    };
+
+    /// Start afresh, in place, for `cfg`.
+    fn configure(&mut self, cfg: &TipConfig, det: &DetectorConfig, initial_air: bool) {
+        self.detector = PhaseDetector::new(cfg, det, initial_air);
+        self.stats = TipAccumulator::new();
     }
 
     #[inline]
@@ -114,28 +140,258 @@ impl Tip {
     }
 }
 
+/// One probe's state. The trailing tip and the correlator are always there (an `Option`
+/// would take the same room) and in use for a dual-tip probe only, so a probe slot can be
+/// (re)built in place.
 #[derive(Clone, Debug)]
 struct ProbeState<const L: usize> {
     lead: Tip,
-    trail: Option<Tip>,
-    /// The correlator of a probe with a trailing tip.
-    corr: Option<Correlator<L>>,
+    trail: Tip,
+    corr: Correlator<L>,
+    /// The probe has a trailing tip (and so a correlator).
+    dual: bool,
+}
+
+impl<const L: usize> ProbeState<L> {
+    /// All zero bytes (an unused probe slot).
+    const ZERO: Self = ProbeState {
+        lead: Tip::ZERO,
+        trail: Tip::ZERO,
+        corr: Correlator::ZERO,
+        dual: false,
+    };
+
+    /// Start afresh, in place, for probe `p` (the state a new chain has).
+    fn configure(&mut self, p: &ProbeConfig, det: &DetectorConfig, initial_air: bool) {
+        self.lead.configure(&p.leading, det, initial_air);
+        self.dual = p.trailing.is_some();
+        if let Some(t) = &p.trailing {
+            self.trail.configure(t, det, initial_air);
+            self.corr.restart(p.max_lag, 0, initial_air, initial_air);
+        }
+    }
+
+    fn trail(&self) -> Option<&Tip> {
+        self.dual.then_some(&self.trail)
+    }
+
+    fn corr(&self) -> Option<&Correlator<L>> {
+        self.dual.then_some(&self.corr)
+    }
+
+    /// The leading tip, and the trailing tip and correlator of a dual-tip probe.
+    fn parts_mut(&mut self) -> (&mut Tip, Option<&mut Tip>, Option<&mut Correlator<L>>) {
+        let ProbeState {
+            lead,
+            trail,
+            corr,
+            dual,
+        } = self;
+        if *dual {
+            (lead, Some(trail), Some(corr))
+        } else {
+            (lead, None, None)
+        }
+    }
+}
+
+/// The probes of a chain: `P` slots, the first `len` in use. The slots stay in place (a
+/// configuration rebuilds them where they are), so no probe's state is ever moved.
+#[derive(Clone, Debug)]
+struct Probes<const P: usize, const L: usize> {
+    slots: [ProbeState<L>; P],
+    len: usize,
+}
+
+impl<const P: usize, const L: usize> Probes<P, L> {
+    const fn new() -> Self {
+        Probes {
+            slots: [ProbeState::ZERO; P],
+            len: 0,
+        }
+    }
+
+    fn configure(&mut self, probes: &[ProbeConfig], det: &DetectorConfig, initial_air: bool) {
+        self.len = 0;
+        for (slot, p) in self.slots.iter_mut().zip(probes) {
+            slot.configure(p, det, initial_air);
+            self.len += 1;
+        }
+    }
+
+    fn in_use(&self) -> &[ProbeState<L>] {
+        self.slots.get(..self.len).unwrap_or(&[])
+    }
+
+    fn iter(&self) -> core::slice::Iter<'_, ProbeState<L>> {
+        self.in_use().iter()
+    }
+
+    fn iter_mut(&mut self) -> core::slice::IterMut<'_, ProbeState<L>> {
+        self.slots.get_mut(..self.len).unwrap_or(&mut []).iter_mut()
+    }
+
+    fn get(&self, i: usize) -> Option<&ProbeState<L>> {
+        self.in_use().get(i)
+    }
+
+    fn get_mut(&mut self, i: usize) -> Option<&mut ProbeState<L>> {
+        self.slots.get_mut(..self.len)?.get_mut(i)
+    }
+
+    fn len(&self) -> usize {
+        self.len
+    }
+
+    fn is_empty(&self) -> bool {
+        self.len == 0
+    }
+}
+
+/// A closed window waiting in the queue: the record without its raw correlation sums
+/// (those wait in the [`SumsStore`], if the chain keeps them).
+#[derive(Clone, Debug)]
+struct Closed {
+    probe: u8,
+    start: u64,
+    end: u64,
+    since_front: Option<i64>,
+    lead: TipStats,
+    trail: Option<TipStats>,
+    flags: Flags,
+    correlation: Option<CorrelationResult>,
+}
+
+impl Closed {
+    /// The record, with `correlation_sums` attached.
+    fn into_record<const M: usize>(
+        self,
+        correlation_sums: Option<CorrelationSums<M>>,
+    ) -> ProbeWindow<M> {
+        let Closed {
+            probe,
+            start,
+            end,
+            since_front,
+            lead,
+            trail,
+            flags,
+            correlation,
+        } = self;
+        ProbeWindow {
+            probe,
+            start,
+            end,
+            since_front,
+            lead,
+            trail,
+            flags,
+            correlation,
+            correlation_sums,
+        }
+    }
+}
+
+/// The raw correlation sums of the queued records that have them, oldest first, in up to
+/// `S` slots (none at all for `S = 0`).
+#[derive(Clone, Debug)]
+struct SumsStore<const L: usize, const S: usize> {
+    slots: [Option<CorrelationSums<L>>; S],
+    head: usize,
+    len: usize,
+}
+
+impl<const L: usize, const S: usize> SumsStore<L, S> {
+    const NONE: Option<CorrelationSums<L>> = None;
+
+    const fn new() -> Self {
+        SumsStore {
+            slots: [Self::NONE; S],
+            head: 0,
+            len: 0,
+        }
+    }
+
+    fn clear(&mut self) {
+        for s in self.slots.iter_mut() {
+            *s = None;
+        }
+        self.head = 0;
+        self.len = 0;
+    }
+
+    /// Keep `sums` (dropped when there is no room: never so in a chain, which has a slot
+    /// for every record it can queue, or none at all).
+    fn push(&mut self, sums: CorrelationSums<L>) {
+        let at = (self.head + self.len).checked_rem(S).unwrap_or(0);
+        if self.len < S {
+            if let Some(slot) = self.slots.get_mut(at) {
+                *slot = Some(sums);
+                self.len += 1;
+            }
+        }
+    }
+
+    fn pop(&mut self) -> Option<CorrelationSums<L>> {
+        if self.len == 0 {
+            return None;
+        }
+        let out = self.slots.get_mut(self.head)?.take();
+        self.head = (self.head + 1).checked_rem(S).unwrap_or(0);
+        self.len -= 1;
+        out
+    }
+}
+
+/// Room for a station: `T` (0 or 1) slots of station state, and whether it is in use.
+#[derive(Clone, Debug)]
+struct StationSlot<const P: usize, const T: usize> {
+    slot: [Station<P>; T],
+    on: bool,
+}
+
+impl<const P: usize, const T: usize> StationSlot<P, T> {
+    const fn new() -> Self {
+        StationSlot {
+            slot: [Station::<P>::EMPTY; T],
+            on: false,
+        }
+    }
+
+    fn as_ref(&self) -> Option<&Station<P>> {
+        self.slot.first().filter(|_| self.on)
+    }
+
+    fn as_mut(&mut self) -> Option<&mut Station<P>> {
+        self.slot.first_mut().filter(|_| self.on)
+    }
+
+    fn is_some(&self) -> bool {
+        self.as_ref().is_some()
+    }
+
+    fn is_none(&self) -> bool {
+        self.as_ref().is_none()
+    }
 }
 
 /// The statistics path: tips, correlators, windows (and the station, which it cuts and
 /// closes windows for).
 #[derive(Clone, Debug)]
-struct Stats<const P: usize, const L: usize> {
+struct Stats<const P: usize, const L: usize, const S: usize, const T: usize> {
     config: ChainConfig<P>,
-    probes: Vec<ProbeState<L>, P>,
-    queue: Deque<ProbeWindow<L>, P>,
+    probes: Probes<P, L>,
+    queue: Deque<Closed, P>,
+    sums: SumsStore<L, S>,
+    /// The leading tips' edges of one run of one probe (tip-by-tip runs).
+    run: RunBuffer,
     frame: u64,
     window_start: u64,
     /// Bubbles closed by the reference tip in the open window ([`WindowPolicy::Bubbles`]).
     window_bubbles: u32,
     /// [`WindowPolicy::AfterFront`]: the pre-front record is still open.
     pre_front_open: bool,
-    station: Option<Station<P>>,
+    station: StationSlot<P, T>,
 }
 
 /// The delay ring of a station chain: the frames the front path has seen and the statistics
@@ -153,25 +409,49 @@ struct Ring<const D: usize> {
 
 /// The signal chain of up to `P` probes, with `L` correlation lag slots (largest lag
 /// `L - 1` frames; see the module documentation) and a delay ring of `D` samples for a
-/// station (transient flows; 0 for steady flows).
+/// station (transient flows; 0 for steady flows): every record keeps its raw correlation
+/// sums, and a station can be configured (given a delay ring).
+pub type Chain<const P: usize, const L: usize = DEFAULT_LAGS, const D: usize = 0> =
+    GenericChain<P, L, D, P, 1>;
+
+/// A chain for small devices (see the [module documentation](self)): `P` probes, `L` lag
+/// slots, no delay ring, no station, and records without their raw correlation sums
+/// (`correlation_sums: None`; every other field as a [`Chain`]'s, bit for bit).
+pub type LeanChain<const P: usize, const L: usize = DEFAULT_LAGS> = GenericChain<P, L, 0, 0, 0>;
+
+/// The signal chain, with all its sizes: up to `P` probes, `L` correlation lag slots, a
+/// delay ring of `D` samples, the raw correlation sums of `S` queued records (`P`: every
+/// record keeps them; 0: none does) and `T` station slots (1: a station can be configured,
+/// given a delay ring; 0: not). Use it through [`Chain`] (`S = P`, `T = 1`) or
+/// [`LeanChain`] (`S = 0`, `T = 0`, `D = 0`).
 #[derive(Clone, Debug)]
-pub struct Chain<const P: usize, const L: usize = DEFAULT_LAGS, const D: usize = 0> {
-    stats: Stats<P, L>,
+pub struct GenericChain<
+    const P: usize,
+    const L: usize,
+    const D: usize,
+    const S: usize,
+    const T: usize,
+> {
+    stats: Stats<P, L, S, T>,
     ring: Ring<D>,
     partial: [i16; MAX_CHANNELS],
     partial_len: usize,
     finished: bool,
 }
 
-impl<const P: usize, const L: usize> Chain<P, L> {
+impl<const P: usize, const L: usize, const S: usize, const T: usize> GenericChain<P, L, 0, S, T> {
     /// Build a chain without a delay ring (steady flows); the configuration is checked
-    /// first. A station chain needs [`with_delay_ring`](Chain::with_delay_ring).
+    /// first. A station chain needs [`with_delay_ring`](GenericChain::with_delay_ring).
+    /// The chain is built by value (tens of KiB): on a small device use
+    /// [`empty`](GenericChain::empty) and [`configure`](GenericChain::configure).
     pub fn new(config: ChainConfig<P>) -> Result<Self, ConfigError> {
         Self::with_delay_ring(config)
     }
 }
 
-impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
+impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: usize>
+    GenericChain<P, L, D, S, T>
+{
     /// The largest correlation lag a probe of this chain can use, frames.
     pub const MAX_LAG: u16 = if L - 1 > u16::MAX as usize {
         u16::MAX
@@ -179,12 +459,55 @@ impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
         (L - 1) as u16
     };
 
-    /// Build a chain with a delay ring of `D` samples (`Chain<P, L, D>`); the configuration
-    /// is checked first. A station ([`ChainConfig::station`]) needs
-    /// `D >= (delay_frames + 1) × channels`; without one the ring is unused.
-    pub fn with_delay_ring(config: ChainConfig<P>) -> Result<Self, ConfigError> {
+    /// A chain with no configuration: no probes, it takes no sample (`push` consumes
+    /// nothing, `poll` gives nothing) until [`configure`](Self::configure)d. Its value is
+    /// all zero bytes, so a `static` of it lands in `.bss` (no copy of it in flash, no
+    /// construction on the stack). Its [`config`](Self::config) is a placeholder (zero
+    /// channels, no probes, zero values elsewhere) that does not validate.
+    pub const fn empty() -> Self {
         const { assert!(P > 0, "a chain needs room for at least one probe") };
         const { assert!(L >= 3 && L <= 1 << 16, "L must lie in 3..=65536") };
+        const {
+            assert!(
+                S == 0 || S >= P,
+                "S keeps the sums of every queued record (S >= P) or of none (0)"
+            )
+        };
+        const { assert!(T <= 1, "a chain has at most one station") };
+        GenericChain {
+            stats: Stats {
+                config: ChainConfig::placeholder(),
+                probes: Probes::new(),
+                queue: Deque::new(),
+                sums: SumsStore::new(),
+                run: RunBuffer::new(),
+                frame: 0,
+                window_start: 0,
+                window_bubbles: 0,
+                pre_front_open: false,
+                station: StationSlot::new(),
+            },
+            ring: Ring {
+                buf: [0; D],
+                cap: 0,
+                head: 0,
+                len: 0,
+            },
+            partial: [0; MAX_CHANNELS],
+            partial_len: 0,
+            finished: false,
+        }
+    }
+
+    /// Check `config` and (re)build the chain's state for it in place, as a fresh chain:
+    /// whatever the chain held (probes, queued records, samples of a partial frame, a
+    /// finished record) is dropped. The probes' state is built one probe at a time, so the
+    /// stack holds at most one probe's state (a few KiB), never the chain. On `Err` the
+    /// chain is left as it was.
+    ///
+    /// A station ([`ChainConfig::station`]) needs `D >= (delay_frames + 1) × channels` and a
+    /// station slot (`T = 1`).
+    pub fn configure(&mut self, config: ChainConfig<P>) -> Result<(), ConfigError> {
         config.validate()?;
         let channels = config.channels as usize;
         if let Some(st) = &config.station {
@@ -194,45 +517,42 @@ impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
                     need: need.min(u32::MAX as u64) as u32,
                 });
             }
+            if T == 0 {
+                return Err(ConfigError::BadStation);
+            }
         }
-        let mut probes = Vec::new();
-        for p in &config.probes {
-            let lead = Tip::new(&p.leading, &config.detector, config.initial_air);
-            let trail = p
-                .trailing
-                .as_ref()
-                .map(|t| Tip::new(t, &config.detector, config.initial_air));
-            let corr = trail
-                .as_ref()
-                .map(|_| Correlator::new(p.max_lag, 0, config.initial_air, config.initial_air));
-            // Cannot fail: config.probes has the same capacity.
-            let _ = probes.push(ProbeState { lead, trail, corr });
+        let stats = &mut self.stats;
+        stats
+            .probes
+            .configure(&config.probes, &config.detector, config.initial_air);
+        stats.queue.clear();
+        stats.sums.clear();
+        stats.frame = 0;
+        stats.window_start = 0;
+        stats.window_bubbles = 0;
+        stats.pre_front_open = matches!(config.window, WindowPolicy::AfterFront { .. });
+        stats.station.on = false;
+        if let (Some(st), Some(slot)) = (&config.station, stats.station.slot.first_mut()) {
+            slot.configure(st, &config.probes, &config.detector, config.initial_air);
+            stats.station.on = true;
         }
-        let station = config
-            .station
-            .as_ref()
-            .map(|st| Station::new(st, &config.probes, &config.detector, config.initial_air));
-        Ok(Chain {
-            stats: Stats {
-                pre_front_open: matches!(config.window, WindowPolicy::AfterFront { .. }),
-                config,
-                probes,
-                queue: Deque::new(),
-                frame: 0,
-                window_start: 0,
-                window_bubbles: 0,
-                station,
-            },
-            ring: Ring {
-                buf: [0; D],
-                cap: D / channels.max(1),
-                head: 0,
-                len: 0,
-            },
-            partial: [0; MAX_CHANNELS],
-            partial_len: 0,
-            finished: false,
-        })
+        stats.config = config;
+        self.ring.cap = D / channels.max(1);
+        self.ring.head = 0;
+        self.ring.len = 0;
+        self.partial_len = 0;
+        self.finished = false;
+        Ok(())
+    }
+
+    /// Build a chain with a delay ring of `D` samples (`Chain<P, L, D>`); the configuration
+    /// is checked first. A station ([`ChainConfig::station`]) needs
+    /// `D >= (delay_frames + 1) × channels`; without one the ring is unused. The chain is
+    /// built by value: [`empty`](Self::empty) and [`configure`](Self::configure) in place.
+    pub fn with_delay_ring(config: ChainConfig<P>) -> Result<Self, ConfigError> {
+        let mut chain = Self::empty();
+        chain.configure(config)?;
+        Ok(chain)
     }
 
     /// The correlation lag range in use for probe `probe`, frames (`None` for a probe
@@ -241,8 +561,7 @@ impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
         self.stats
             .probes
             .get(probe)?
-            .corr
-            .as_ref()
+            .corr()
             .map(Correlator::max_lag)
     }
 
@@ -254,7 +573,7 @@ impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
     /// Frames taken in so far (the sample clock since the run started). With a station,
     /// the statistics run [`processed_frames`](Self::processed_frames) behind by the delay.
     pub fn frames(&self) -> u64 {
-        match &self.stats.station {
+        match self.stats.station.as_ref() {
             Some(st) => st.front_frame(),
             None => self.stats.frame,
         }
@@ -294,10 +613,11 @@ impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
     /// of them unless the record queue filled up, in which case drain it with [`poll`] and
     /// push the rest. Nothing is consumed after [`finish`].
     ///
-    /// [`poll`]: Chain::poll
-    /// [`finish`]: Chain::finish
+    /// [`poll`]: Self::poll
+    /// [`finish`]: Self::finish
     pub fn push(&mut self, samples: &[i16]) -> usize {
-        if self.finished {
+        if self.finished || self.stats.probes.is_empty() {
+            // Finished, or not configured.
             return 0;
         }
         let n = self.stats.config.channels as usize;
@@ -333,7 +653,24 @@ impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
 
     /// Take the oldest finished record, if any.
     pub fn poll(&mut self) -> Option<ProbeWindow<L>> {
-        self.stats.queue.pop_front()
+        let closed = self.stats.queue.pop_front()?;
+        // Every record with a correlation result has sums, kept in the same order (when the
+        // chain keeps them).
+        let sums = closed.correlation.and_then(|_| self.stats.sums.pop());
+        Some(closed.into_record(sums))
+    }
+
+    /// Take the oldest finished record without its raw correlation sums (given up if the
+    /// chain keeps them), as a record of one lag slot: what a device that only sends the
+    /// results takes. It moves about half the bytes of [`poll`](Self::poll)'s record
+    /// (`28 L` bytes less) through the caller's stack.
+    pub fn poll_lean(&mut self) -> Option<ProbeWindow<1>> {
+        let closed = self.stats.queue.pop_front()?;
+        if closed.correlation.is_some() {
+            // Keep the sums store in step with the queue.
+            let _ = self.stats.sums.pop();
+        }
+        Some(closed.into_record(None))
     }
 
     /// Take the oldest front record, if any (station chains). The queue holds every front
@@ -344,7 +681,7 @@ impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
     }
 
     /// Take the oldest profile record, if any (station chains; one per window closed after
-    /// the front). Like [`poll`](Chain::poll), a full queue makes `push` stop.
+    /// the front). Like [`poll`](Self::poll), a full queue makes `push` stop.
     pub fn poll_profile(&mut self) -> Option<ProfileRecord> {
         self.stats.station.as_mut()?.poll_profile()
     }
@@ -352,7 +689,7 @@ impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
     /// End the record: run the statistics over the frames still in the delay ring, close
     /// the open window (flagged partial when the policy wanted a longer one) and queue the
     /// station's last front records. An incomplete last frame is dropped. Call
-    /// [`poll`](Chain::poll) (and the other polls) after; on `Err`, drain and call again.
+    /// [`poll`](Self::poll) (and the other polls) after; on `Err`, drain and call again.
     pub fn finish(&mut self) -> Result<(), QueueFull> {
         if self.finished {
             return Ok(());
@@ -457,7 +794,7 @@ impl<const P: usize, const L: usize, const D: usize> Chain<P, L, D> {
     }
 }
 
-impl<const P: usize, const L: usize> Stats<P, L> {
+impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L, S, T> {
     fn has_room(&self) -> bool {
         self.queue.capacity() - self.queue.len() >= self.probes.len()
             && self.station.as_ref().is_none_or(Station::has_profile_room)
@@ -544,7 +881,7 @@ impl<const P: usize, const L: usize> Stats<P, L> {
     fn next_learn_stop(&self) -> Option<u64> {
         self.probes
             .iter()
-            .flat_map(|p| core::iter::once(&p.lead).chain(p.trail.as_ref()))
+            .flat_map(|p| core::iter::once(&p.lead).chain(p.trail()))
             .filter_map(|t| t.detector.next_stop(self.frame))
             .min()
     }
@@ -571,14 +908,16 @@ impl<const P: usize, const L: usize> Stats<P, L> {
     }
 
     fn run_tip_by_tip(&mut self, run: &[i16], n: usize, first: u64) {
+        // One probe at a time, so the probes' correlators share one buffer.
+        let buf = &mut self.run;
         for p in self.probes.iter_mut() {
-            let ProbeState { lead, trail, corr } = p;
-            match (trail.as_mut(), corr.as_mut()) {
+            let (lead, trail, corr) = p.parts_mut();
+            match (trail, corr) {
                 (Some(t), Some(c)) => {
-                    c.begin_run(first);
-                    lead.run(run, n, first, c.lead());
-                    t.run(run, n, first, c.trail());
-                    c.end_run();
+                    c.begin_run(first, buf);
+                    lead.run(run, n, first, c.lead(buf));
+                    t.run(run, n, first, c.trail(buf));
+                    c.end_run(buf);
                 }
                 (Some(t), None) => {
                     lead.run(run, n, first, ());
@@ -595,7 +934,8 @@ impl<const P: usize, const L: usize> Stats<P, L> {
         // The tip reading each channel: (probe, trailing?).
         let mut owner: [Option<(usize, bool)>; W] = [None; W];
         for (i, p) in self.probes.iter_mut().enumerate() {
-            for (trailing, tip) in [(false, Some(&mut p.lead)), (true, p.trail.as_mut())] {
+            let (lead, trail, _) = p.parts_mut();
+            for (trailing, tip) in [(false, Some(lead)), (true, trail)] {
                 if let Some(tip) = tip {
                     tip.detector.observe(run, W, first);
                     let (ch, lane) = tip.detector.lane();
@@ -604,9 +944,6 @@ impl<const P: usize, const L: usize> Stats<P, L> {
                         *o = Some((i, trailing));
                     }
                 }
-            }
-            if let Some(c) = p.corr.as_mut() {
-                c.begin_run(first);
             }
         }
         let probes = &mut self.probes;
@@ -618,19 +955,22 @@ impl<const P: usize, const L: usize> Stats<P, L> {
             let Some(&Some((i, trailing))) = owner.get(j) else {
                 return;
             };
-            let Some(ProbeState { lead, trail, corr }) = probes.get_mut(i) else {
+            let Some((lead, trail, corr)) = probes.get_mut(i).map(ProbeState::parts_mut) else {
                 return;
             };
-            match (trailing, trail.as_mut(), corr.as_mut()) {
-                (false, _, Some(c)) => Feed(&mut lead.stats, c.lead()).edge(e),
+            // Edges come in time order (lanes in channel order within a frame): the
+            // correlators take them as they come, no run buffer.
+            match (trailing, trail, corr) {
+                (false, _, Some(c)) => Feed(&mut lead.stats, c.lead_in_order()).edge(e),
                 (false, _, None) => lead.stats.edge(e),
-                (true, Some(t), Some(c)) => Feed(&mut t.stats, c.trail()).edge(e),
+                (true, Some(t), Some(c)) => Feed(&mut t.stats, c.trail_in_order()).edge(e),
                 (true, Some(t), None) => t.stats.edge(e),
                 (true, None, _) => {}
             }
         });
         for p in probes.iter_mut() {
-            for tip in core::iter::once(&mut p.lead).chain(p.trail.as_mut()) {
+            let (lead, trail, _) = p.parts_mut();
+            for tip in core::iter::once(lead).chain(trail) {
                 let (ch, lane) = tip.detector.lane();
                 let get = |a: &[u32; W]| a.get(ch).copied().unwrap_or(0);
                 tip.detector
@@ -642,9 +982,6 @@ impl<const P: usize, const L: usize> Stats<P, L> {
                 };
                 tip.stats.add_run(frames, counts);
                 tip.detector.end_run_at(first + frames as u64);
-            }
-            if let Some(c) = p.corr.as_mut() {
-                c.end_run();
             }
         }
     }
@@ -666,8 +1003,9 @@ impl<const P: usize, const L: usize> Stats<P, L> {
         let mut lead_c = [(None, Flags::NONE); crate::front::MAX_STATION_PROBES];
         let det = &self.config.detector;
         for (i, p) in self.probes.iter_mut().enumerate() {
-            let lead = p.lead.close();
-            let trail = p.trail.as_mut().map(Tip::close);
+            let (lead_tip, trail_tip, corr) = p.parts_mut();
+            let lead = lead_tip.close();
+            let trail = trail_tip.map(Tip::close);
             let mut flags = lead.flags;
             flags.set_if(Flags::PARTIAL_WINDOW, partial);
             flags.set_if(Flags::PRE_FRONT, pre);
@@ -675,7 +1013,7 @@ impl<const P: usize, const L: usize> Stats<P, L> {
             if let Some(t) = &trail {
                 flags.set_if(Flags::TRAILING_STUCK, t.flags.contains(Flags::STUCK));
             }
-            let (correlation, correlation_sums) = match (p.corr.as_mut(), &trail) {
+            let (correlation, sums) = match (corr, &trail) {
                 (Some(c), Some(t)) => {
                     let sums = c.close(self.frame, &mut flags);
                     let (result, f) = sums.analyse(det.min_peak_coefficient);
@@ -691,7 +1029,7 @@ impl<const P: usize, const L: usize> Stats<P, L> {
             if let Some(slot) = lead_c.get_mut(i) {
                 *slot = (lead.void_fraction(), flags);
             }
-            let rec = ProbeWindow {
+            let rec = Closed {
                 probe: i as u8,
                 start: self.window_start,
                 end: self.frame,
@@ -700,10 +1038,13 @@ impl<const P: usize, const L: usize> Stats<P, L> {
                 trail,
                 flags,
                 correlation,
-                correlation_sums,
             };
-            // Room was checked before the window was processed.
+            // Room was checked before the window was processed (the sums store has a
+            // slot for every record the queue can hold, or keeps none).
             let _ = self.queue.push_back(rec);
+            if let Some(sums) = sums {
+                self.sums.push(sums);
+            }
         }
         if let (Some(s), false, Some(since)) = (self.station.as_mut(), pre, since_front) {
             if since >= 0 {

@@ -74,6 +74,17 @@ impl Default for ChordStats {
 }
 
 impl ChordStats {
+    /// All zero bytes: the placeholder in an unused probe slot of a chain (not "no chord
+    /// yet": that is [`new`](Self::new), whose `min` is `u32::MAX`).
+    pub(crate) const ZERO: Self = ChordStats {
+        count: 0,
+        sum: 0,
+        min: 0,
+        max: 0,
+        short: 0,
+        bins: [0; CHORD_BINS],
+    };
+
     /// No chord yet.
     pub const fn new() -> Self {
         ChordStats {

@@ -292,6 +292,35 @@ impl<const P: usize> ChainConfig<P> {
         }
     }
 
+    /// The configuration an unconfigured chain reports ([`crate::GenericChain::empty`]):
+    /// zero channels, no probes, zero values elsewhere (it does not validate). Its value is
+    /// all zero bytes, so that a `static` chain lands in `.bss`: hence the zero window
+    /// policy `Bubbles { count: 0, .. }` and a zero station configuration, whose encodings
+    /// are all zero where `WindowPolicy::Whole` and `None` are not.
+    pub(crate) const fn placeholder() -> Self {
+        ChainConfig {
+            channels: 0,
+            detector: DetectorConfig {
+                threshold: 0.0,
+                hysteresis: 0.0,
+                learn_period: 0,
+                rail_low: 0,
+                rail_high: 0,
+                min_swing: 0,
+                min_peak_coefficient: 0.0,
+                min_bubbles: 0,
+            },
+            probes: Vec::new(),
+            window: WindowPolicy::Bubbles {
+                count: 0,
+                probe: 0,
+                max_frames: None,
+            },
+            initial_air: false,
+            station: Some(StationConfig::zero()),
+        }
+    }
+
     /// Check every value the chain relies on.
     pub fn validate(&self) -> Result<(), ConfigError> {
         if self.channels == 0 || self.channels as usize > MAX_CHANNELS {

@@ -60,9 +60,12 @@
 //! by either rule), but the chain may run the leading tip over a run of frames before the
 //! trailing tip over the same frames; so the leading tip's edges of the current run wait in
 //! a buffer (at most one per frame of a run, [`MAX_RUN_FRAMES`]) and are merged in as the
-//! trailing tip's edges arrive, and the rest at the end of the run. No buffer can overflow
-//! when driven by the chain; driven directly with longer runs, the correlator raises
-//! [`Flags::CORRELATION_OVERFLOW`] and stays defined.
+//! trailing tip's edges arrive, and the rest at the end of the run. The buffer is needed
+//! only during one run of one probe, so it is not part of the correlator: a [`RunBuffer`]
+//! is lent to it for the run, and a chain keeps one for all its probes. (A frame-major run,
+//! which sees both tips' edges in time order, feeds the correlator directly, without it.)
+//! No buffer can overflow when driven by the chain; driven directly with longer runs, the
+//! correlator raises [`Flags::CORRELATION_OVERFLOW`] and stays defined.
 //!
 //! Cost: O(1) per edge of `a`, O(edges of `a` in the last `M` frames) per edge of `b`,
 //! O(M) per window. In bubbly flow (F = 300 Hz at 40 kHz, M = 255) that is about four pair
@@ -678,18 +681,93 @@ impl<const L: usize> Ring<L> {
     }
 }
 
+/// The leading tip's edges of one run, waiting for the trailing tip's edges of the same
+/// frames (see the [module documentation](self)): at most one per frame of a run of at
+/// most [`MAX_RUN_FRAMES`] frames.
+///
+/// Only one correlator uses it at a time, from [`Correlator::begin_run`] to
+/// [`Correlator::end_run`] (which merges what is left), so one buffer serves every
+/// correlator of a chain: the chain lends it to each probe's correlator in turn, instead of
+/// keeping 2 KiB per probe.
+#[derive(Clone, Debug)]
+pub struct RunBuffer {
+    /// Offset from the run start, with [`RISING_BIT`].
+    edges: [u16; MAX_RUN_FRAMES],
+    len: usize,
+    pos: usize,
+    run_start: u64,
+}
+
+impl Default for RunBuffer {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl RunBuffer {
+    /// An empty buffer (all zero bytes: a `static` of it lands in `.bss`).
+    pub const fn new() -> Self {
+        RunBuffer {
+            edges: [0; MAX_RUN_FRAMES],
+            len: 0,
+            pos: 0,
+            run_start: 0,
+        }
+    }
+
+    /// Start a run at absolute frame `first` (anything held is forgotten).
+    fn begin(&mut self, first: u64) {
+        self.len = 0;
+        self.pos = 0;
+        self.run_start = first;
+    }
+
+    /// Hold an edge of the current run; false if it does not fit (beyond the buffer, before
+    /// the run, or too far into it).
+    #[inline]
+    fn hold(&mut self, edge: Edge) -> bool {
+        let off = edge.frame.wrapping_sub(self.run_start);
+        match self.edges.get_mut(self.len) {
+            Some(s) if edge.frame >= self.run_start && off < RISING_BIT as u64 => {
+                *s = off as u16 | if edge.to_air { RISING_BIT } else { 0 };
+                self.len += 1;
+                true
+            }
+            _ => false,
+        }
+    }
+
+    /// The oldest held edge at or before absolute frame `upto`, taken out of the buffer.
+    #[inline]
+    fn take_upto(&mut self, upto: u64) -> Option<(u64, bool)> {
+        let &v = self.edges.get(self.pos).filter(|_| self.pos < self.len)?;
+        let frame = self.run_start.saturating_add((v & !RISING_BIT) as u64);
+        if frame > upto {
+            return None;
+        }
+        self.pos += 1;
+        Some((frame, v & RISING_BIT != 0))
+    }
+}
+
 /// Streaming correlation of one dual-tip probe, fed with the tips' interfaces.
 ///
-/// Drive it as the chain does: for each run of at most [`MAX_RUN_FRAMES`] frames,
-/// [`begin_run`](Self::begin_run), the leading tip's edges through
-/// [`lead`](Self::lead), the trailing tip's edges of the same frames through
-/// [`trail`](Self::trail), then [`end_run`](Self::end_run); [`close`](Self::close) at a
-/// window end. `L` is the number of lag slots (the largest lag is `L - 1`).
+/// Drive it as the chain does, either
+/// - tip by tip: for each run of at most [`MAX_RUN_FRAMES`] frames,
+///   [`begin_run`](Self::begin_run), the leading tip's edges through
+///   [`lead`](Self::lead), the trailing tip's edges of the same frames through
+///   [`trail`](Self::trail), then [`end_run`](Self::end_run), all with the same
+///   [`RunBuffer`] (which may serve other correlators between runs); or
+/// - in time order: the edges of both tips as they happen, through
+///   [`lead_in_order`](Self::lead_in_order) and [`trail_in_order`](Self::trail_in_order)
+///   (edges of the two tips at the same frame in either order), no buffer;
+///
+/// and [`close`](Self::close) at a window end (after `end_run`). `L` is the number of lag
+/// slots (the largest lag is `L - 1`).
 #[derive(Clone, Debug)]
 pub struct Correlator<const L: usize> {
     max_lag: usize,
     start: u64,
-    run_start: u64,
     /// Second differences of the cross and auto sums over the lags.
     cross: [i64; L],
     auto: [i64; L],
@@ -697,11 +775,6 @@ pub struct Correlator<const L: usize> {
     lead_head: [i32; L],
     trail_head: [i32; L],
     ring: Ring<L>,
-    /// Leading-tip edges of the current run not yet merged: offset from the run start,
-    /// with [`RISING_BIT`].
-    pending: [u16; MAX_RUN_FRAMES],
-    pending_len: usize,
-    pending_pos: usize,
     lead_air: bool,
     trail_air: bool,
     /// Running `sum e` and `sum e t` over the merged edges of each tip.
@@ -713,6 +786,36 @@ pub struct Correlator<const L: usize> {
 }
 
 impl<const L: usize> Correlator<L> {
+    /// All zero bytes: the placeholder in an unused probe slot of a chain (lag 0, frame 0,
+    /// both tips in water).
+    pub(crate) const ZERO: Self = Correlator {
+        max_lag: 0,
+        start: 0,
+        cross: [0; L],
+        auto: [0; L],
+        lead_head: [0; L],
+        trail_head: [0; L],
+        ring: Ring {
+            edges: [0; L],
+            next: 0,
+            len: 0,
+        },
+        lead_air: false,
+        trail_air: false,
+        lead_e: 0,
+        lead_q: 0,
+        trail_e: 0,
+        trail_q: 0,
+        overflow: false,
+    };
+
+    /// Start afresh, in place: the state of [`new`](Self::new) with the same arguments.
+    pub fn restart(&mut self, max_lag: u16, start: u64, lead_air: bool, trail_air: bool) {
+        self.max_lag = (max_lag as usize).min(L - 1);
+        self.reset(start);
+        self.open(start, lead_air, trail_air);
+    }
+
     /// A correlator over lags `0..=max_lag` (capped at `L - 1`), starting at frame `start`
     /// with the given phases of the two tips.
     pub fn new(max_lag: u16, start: u64, lead_air: bool, trail_air: bool) -> Self {
@@ -720,7 +823,6 @@ impl<const L: usize> Correlator<L> {
         let mut c = Correlator {
             max_lag: (max_lag as usize).min(L - 1),
             start,
-            run_start: start,
             cross: [0; L],
             auto: [0; L],
             lead_head: [0; L],
@@ -730,9 +832,6 @@ impl<const L: usize> Correlator<L> {
                 next: 0,
                 len: 0,
             },
-            pending: [0; MAX_RUN_FRAMES],
-            pending_len: 0,
-            pending_pos: 0,
             lead_air: false,
             trail_air: false,
             lead_e: 0,
@@ -750,32 +849,41 @@ impl<const L: usize> Correlator<L> {
         self.max_lag as u16
     }
 
-    /// Start a run of frames at absolute frame `first`.
-    pub fn begin_run(&mut self, first: u64) {
-        self.drain_pending(u64::MAX);
-        self.run_start = first;
+    /// Start a run of frames at absolute frame `first`, with `buf` for the leading tip's
+    /// edges (what it held is forgotten: end every run with [`end_run`](Self::end_run)).
+    pub fn begin_run(&mut self, first: u64, buf: &mut RunBuffer) {
+        buf.begin(first);
     }
 
     /// The sink for the leading tip's edges of the current run.
-    pub fn lead(&mut self) -> LeadEdges<'_, L> {
-        LeadEdges(self)
+    pub fn lead<'a>(&'a mut self, buf: &'a mut RunBuffer) -> LeadEdges<'a, L> {
+        LeadEdges(self, buf)
     }
 
     /// The sink for the trailing tip's edges of the current run.
-    pub fn trail(&mut self) -> TrailEdges<'_, L> {
-        TrailEdges(self)
+    pub fn trail<'a>(&'a mut self, buf: &'a mut RunBuffer) -> TrailEdges<'a, L> {
+        TrailEdges(self, buf)
     }
 
     /// End the run: merge the leading tip's remaining edges.
-    pub fn end_run(&mut self) {
-        self.drain_pending(u64::MAX);
+    pub fn end_run(&mut self, buf: &mut RunBuffer) {
+        self.drain(buf, u64::MAX);
+    }
+
+    /// The sink for the leading tip's edges when both tips' edges come in time order.
+    pub fn lead_in_order(&mut self) -> LeadInOrder<'_, L> {
+        LeadInOrder(self)
+    }
+
+    /// The sink for the trailing tip's edges when both tips' edges come in time order.
+    pub fn trail_in_order(&mut self) -> TrailInOrder<'_, L> {
+        TrailInOrder(self)
     }
 
     /// Close the window at absolute frame `end` (exclusive): return its sums and start the
     /// next window there. Raises [`Flags::CORRELATION_OVERFLOW`] in `flags` if edges were
-    /// lost.
+    /// lost. Call it between runs (after [`end_run`](Self::end_run)).
     pub fn close(&mut self, end: u64, flags: &mut Flags) -> CorrelationSums<L> {
-        self.drain_pending(u64::MAX);
         let t_end = self.rel(end);
         let (lead_air, trail_air) = (self.lead_air, self.trail_air);
         // Clip intervals open at the window end.
@@ -825,14 +933,11 @@ impl<const L: usize> Correlator<L> {
 
     fn reset(&mut self, start: u64) {
         self.start = start;
-        self.run_start = start;
         self.cross = [0; L];
         self.auto = [0; L];
         self.lead_head = [0; L];
         self.trail_head = [0; L];
         self.ring.clear();
-        self.pending_len = 0;
-        self.pending_pos = 0;
         self.lead_air = false;
         self.trail_air = false;
         self.lead_e = 0;
@@ -845,7 +950,6 @@ impl<const L: usize> Correlator<L> {
     /// Open a window at `start`: clip intervals already open there.
     fn open(&mut self, start: u64, lead_air: bool, trail_air: bool) {
         self.start = start;
-        self.run_start = start;
         if lead_air {
             self.lead_edge(0, true);
         }
@@ -858,40 +962,28 @@ impl<const L: usize> Correlator<L> {
         frame.saturating_sub(self.start).min(i64::MAX as u64 >> 1) as i64
     }
 
-    fn lead_pending(&mut self, edge: Edge) {
-        let off = edge.frame.wrapping_sub(self.run_start);
-        let slot = self.pending.get_mut(self.pending_len);
-        match slot {
-            Some(s) if edge.frame >= self.run_start && off < RISING_BIT as u64 => {
-                *s = off as u16 | if edge.to_air { RISING_BIT } else { 0 };
-                self.pending_len += 1;
-            }
-            _ => {
-                // Cannot happen through the chain: merge out of order, flagged.
-                self.overflow = true;
-                self.drain_pending(u64::MAX);
-                let t = self.rel(edge.frame);
-                self.lead_edge(t, edge.to_air);
-            }
+    fn lead_pending(&mut self, buf: &mut RunBuffer, edge: Edge) {
+        if !buf.hold(edge) {
+            // Cannot happen through the chain: merge out of order, flagged.
+            self.overflow = true;
+            self.drain(buf, u64::MAX);
+            let t = self.rel(edge.frame);
+            self.lead_edge(t, edge.to_air);
         }
     }
 
-    /// Merge the pending leading-tip edges at or before absolute frame `upto`.
-    fn drain_pending(&mut self, upto: u64) {
-        while self.pending_pos < self.pending_len {
-            let Some(&v) = self.pending.get(self.pending_pos) else {
-                break;
-            };
-            let frame = self.run_start.saturating_add((v & !RISING_BIT) as u64);
-            if frame > upto {
-                return;
-            }
-            self.pending_pos += 1;
+    /// Merge the held leading-tip edges at or before absolute frame `upto`.
+    #[inline]
+    fn drain(&mut self, buf: &mut RunBuffer, upto: u64) {
+        while let Some((frame, rising)) = buf.take_upto(upto) {
             let t = self.rel(frame);
-            self.lead_edge(t, v & RISING_BIT != 0);
+            self.lead_edge(t, rising);
         }
-        self.pending_len = 0;
-        self.pending_pos = 0;
+        if buf.pos >= buf.len {
+            // Everything merged: the whole buffer is free again.
+            buf.len = 0;
+            buf.pos = 0;
+        }
     }
 
     /// A merged edge of the leading tip at window time `t`.
@@ -965,26 +1057,48 @@ fn add_head(d: &mut [i32], max_lag: usize, t: i64, e: i64) {
     }
 }
 
-/// The leading tip's edge sink of a [`Correlator`].
-pub struct LeadEdges<'a, const L: usize>(&'a mut Correlator<L>);
+/// The leading tip's edge sink of a [`Correlator`] (tip-by-tip runs).
+pub struct LeadEdges<'a, const L: usize>(&'a mut Correlator<L>, &'a mut RunBuffer);
 
 impl<const L: usize> EdgeSink for LeadEdges<'_, L> {
     #[inline]
     fn edge(&mut self, edge: Edge) {
-        self.0.lead_pending(edge);
+        self.0.lead_pending(self.1, edge);
     }
 }
 
-/// The trailing tip's edge sink of a [`Correlator`].
-pub struct TrailEdges<'a, const L: usize>(&'a mut Correlator<L>);
+/// The trailing tip's edge sink of a [`Correlator`] (tip-by-tip runs).
+pub struct TrailEdges<'a, const L: usize>(&'a mut Correlator<L>, &'a mut RunBuffer);
 
 impl<const L: usize> EdgeSink for TrailEdges<'_, L> {
     #[inline]
     fn edge(&mut self, edge: Edge) {
         let c = &mut *self.0;
-        c.drain_pending(edge.frame);
+        c.drain(self.1, edge.frame);
         let t = c.rel(edge.frame);
         c.trail_edge(t, edge.to_air);
+    }
+}
+
+/// The leading tip's edge sink of a [`Correlator`] fed in time order.
+pub struct LeadInOrder<'a, const L: usize>(&'a mut Correlator<L>);
+
+impl<const L: usize> EdgeSink for LeadInOrder<'_, L> {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        let t = self.0.rel(edge.frame);
+        self.0.lead_edge(t, edge.to_air);
+    }
+}
+
+/// The trailing tip's edge sink of a [`Correlator`] fed in time order.
+pub struct TrailInOrder<'a, const L: usize>(&'a mut Correlator<L>);
+
+impl<const L: usize> EdgeSink for TrailInOrder<'_, L> {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        let t = self.0.rel(edge.frame);
+        self.0.trail_edge(t, edge.to_air);
     }
 }
 
@@ -1035,14 +1149,15 @@ mod tests {
             .map(|c| c == b'1')
             .collect();
         let mut c = Correlator::<8>::new(7, 100, true, true);
-        c.begin_run(100);
+        let mut buf = RunBuffer::new();
+        c.begin_run(100, &mut buf);
         for e in edges(&a, 100, true) {
-            c.lead().edge(e);
+            c.lead(&mut buf).edge(e);
         }
         for e in edges(&b, 100, true) {
-            c.trail().edge(e);
+            c.trail(&mut buf).edge(e);
         }
-        c.end_run();
+        c.end_run(&mut buf);
         let mut flags = Flags::NONE;
         let s = c.close(100 + a.len() as u64, &mut flags);
         let (cross, auto) = direct(&a, &b, 8);

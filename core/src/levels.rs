@@ -94,6 +94,18 @@ impl Default for LevelLearner {
 }
 
 impl LevelLearner {
+    /// All zero bytes: the placeholder in an unused probe slot of a chain (not a learner
+    /// that has seen nothing: that is [`new`](Self::new)).
+    pub(crate) const ZERO: Self = LevelLearner {
+        origin: 0,
+        shift: 0,
+        counts: [0; LEARN_BINS],
+        offsets: [0; LEARN_BINS],
+        min: 0,
+        max: 0,
+        ranged: false,
+    };
+
     /// A learner that has not seen the signal yet.
     pub const fn new() -> Self {
         LevelLearner {

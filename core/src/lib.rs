@@ -40,11 +40,11 @@ pub mod tip_stats;
 pub mod window;
 pub mod wire;
 
-pub use chain::{Chain, QueueFull};
+pub use chain::{Chain, GenericChain, LeanChain, QueueFull};
 pub use config::{
     ChainConfig, ConfigError, DetectorConfig, LevelSource, Polarity, ProbeConfig, TipConfig,
 };
-pub use correlation::{CorrelationResult, CorrelationSums, Correlator};
+pub use correlation::{CorrelationResult, CorrelationSums, Correlator, RunBuffer};
 pub use flags::Flags;
 pub use phase::{Edge, EdgeSink, PhaseDetector};
 pub use record::{ProbeWindow, TipStats};

@@ -2,13 +2,16 @@
 //!
 //! The hot loop is branch-light: with thresholds `enter_air > enter_water` (both in the
 //! air-is-high scale) the new phase is `(y > enter_water) & (air | (y > enter_air))`, which
-//! is the hysteresis rule without a data-dependent branch. Only an interface (rare next to
-//! the sample rate) takes a branch, to report the edge. The loop is monomorphised on the
+//! is the hysteresis rule. Between two interfaces the phase is known, so the rule is one
+//! comparison with the threshold that would end it (`enter_water` in air, `enter_air` in
+//! water), and the air frames are counted per interval of air; only an interface (rare next
+//! to the sample rate) takes a branch, to report the edge. The loop is monomorphised on the
 //! polarity (the thresholds are mapped back to counts, so no multiplication per sample) and
-//! walks the tip's channel with a strided iterator (no bounds check per sample).
+//! walks the tip's channel by index (one bounds check per sample, no iterator state).
 
 use crate::config::{DetectorConfig, LevelSource, TipConfig};
 use crate::levels::{Learnt, LevelLearner, Levels, Thresholds};
+use core::num::NonZeroUsize;
 
 /// An interface seen by a tip.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -150,13 +153,67 @@ pub(crate) fn run_lanes<const W: usize>(
     }
 }
 
-/// The per-sample loop of [`PhaseDetector::run`], monomorphised on the polarity so the
-/// comparisons need no multiplication: with `POS` the thresholds are in counts, otherwise
-/// negated counts and the comparisons reversed. Returns the phase after the run, the air
-/// frames and the rail frames.
+/// `x` crosses threshold `t` upwards (`POS`: counts, air high) or downwards (negated
+/// counts, air low).
 #[inline(always)]
-fn run_loop<'a, const POS: bool, I: Iterator<Item = &'a i16>, S: EdgeSink>(
-    samples: I,
+fn above<const POS: bool>(x: i32, t: i32) -> bool {
+    if POS {
+        x > t
+    } else {
+        x < t
+    }
+}
+
+/// Scan the tip's samples from `*idx` (every `stride`-th of `samples`) for the first that
+/// leaves the current phase: in water (`IN_AIR` false) the first `above(x, t)`, in air the
+/// first `!above(x, t)`. Counts the rail samples scanned on the way (the one found
+/// included); leaves `*idx` at the sample found, or past the end (false). Not inlined: the
+/// loop then has the registers of a Cortex-M4 to itself (no spills), at the price of one
+/// call per interval between interfaces. `step <= samples.len()`, so `i + step` cannot
+/// overflow.
+#[inline(never)]
+fn scan<const POS: bool, const IN_AIR: bool>(
+    samples: &[i16],
+    idx: &mut usize,
+    stride: usize,
+    t: i32,
+    (base, width): (i32, u32),
+    rail: &mut u32,
+) -> bool {
+    let mut i = *idx;
+    let mut r = 0u32;
+    let mut found = false;
+    while let Some(&x) = samples.get(i) {
+        let x = x as i32;
+        r += (x.wrapping_sub(base) as u32 >= width) as u32;
+        if above::<POS>(x, t) != IN_AIR {
+            found = true;
+            break;
+        }
+        i += stride;
+    }
+    *idx = i;
+    *rail += r;
+    found
+}
+
+/// The per-sample loop of [`PhaseDetector::run`] over the tip's samples (every `stride`-th
+/// of `samples`, from the first), monomorphised on the polarity so the comparisons need no
+/// multiplication: with `POS` the thresholds are in counts, otherwise negated counts and
+/// the comparisons reversed. Returns the phase after the run, the air frames and the rail
+/// frames.
+///
+/// The rule is `now = above(lo) & (air | above(hi))`; the loop runs it phase by phase: in
+/// air `now` is `above(lo)`, in water `above(max(lo, hi))` (air-high scale), so between two
+/// interfaces it compares each sample with one threshold and counts rail samples with one
+/// unsigned comparison (`x <= rl | x >= rh` is `x - (rl + 1)` outside `0..rh - rl - 1`),
+/// and the air frames are counted per interval of air, at its ends. The same edges and
+/// counts as a per-sample evaluation of the rule, with a few instructions per sample on a
+/// 32-bit core (no 64-bit frame index, no iterator state).
+#[inline(always)]
+fn run_loop<const POS: bool, S: EdgeSink>(
+    samples: &[i16],
+    stride: NonZeroUsize,
     (lo, hi): (i64, i64),
     (rl, rh): (i16, i16),
     mut air: bool,
@@ -167,24 +224,39 @@ fn run_loop<'a, const POS: bool, I: Iterator<Item = &'a i16>, S: EdgeSink>(
         lo.clamp(i32::MIN as i64, i32::MAX as i64) as i32,
         hi.clamp(i32::MIN as i64, i32::MAX as i64) as i32,
     );
+    // In water both thresholds must be crossed: the stricter one decides.
+    let water_t = if POS { hi.max(lo) } else { hi.min(lo) };
+    let rails = (rl as i32 + 1, (rh as i32 - rl as i32 - 1).max(0) as u32);
+    // The index step: the stride, or past the end when that is shorter (no overflow).
+    let step = stride.get().min(samples.len().max(1));
     let (mut air_n, mut rail) = (0u32, 0u32);
-    for (i, &x) in samples.enumerate() {
-        rail += ((x <= rl) | (x >= rh)) as u32;
-        let x = x as i32;
-        let (above_lo, above_hi) = if POS {
-            (x > lo, x > hi)
+    // Sample index (into `samples`) of the current scan, and frame where the phase began.
+    let mut idx = 0usize;
+    let mut since = 0usize;
+    loop {
+        let found = if air {
+            scan::<POS, true>(samples, &mut idx, step, lo, rails, &mut rail)
         } else {
-            (x < lo, x < hi)
+            scan::<POS, false>(samples, &mut idx, step, water_t, rails, &mut rail)
         };
-        let now = above_lo & (air | above_hi);
-        air_n += now as u32;
-        if now != air {
-            sink.edge(Edge {
-                frame: first + i as u64,
-                to_air: now,
-            });
+        if !found {
+            break;
         }
-        air = now;
+        let i = idx / stride;
+        if air {
+            air_n += (i - since) as u32;
+        }
+        since = i;
+        air = !air;
+        sink.edge(Edge {
+            frame: first + i as u64,
+            to_air: air,
+        });
+        idx += step;
+    }
+    if air {
+        let n = samples.len() / stride + (samples.len() % stride != 0) as usize;
+        air_n += n.saturating_sub(since) as u32;
     }
     (air, air_n, rail)
 }
@@ -218,6 +290,23 @@ pub struct PhaseDetector {
 }
 
 impl PhaseDetector {
+    /// All zero bytes: the placeholder in an unused probe slot of a chain (reconfigured
+    /// before use; the learner is `Some` because `None` is not zero bytes).
+    pub(crate) const ZERO: Self = PhaseDetector {
+        channel: 0,
+        sign: 0,
+        threshold: 0.0,
+        hysteresis: 0.0,
+        rail_low: 0,
+        rail_high: 0,
+        min_swing: 0,
+        learn_period: 0,
+        thresholds: None,
+        levels: None,
+        learner: Some(LevelLearner::ZERO),
+        air: false,
+    };
+
     /// A detector for `tip`; `initial_air` is the phase assumed before the first interface.
     pub fn new(tip: &TipConfig, det: &DetectorConfig, initial_air: bool) -> Self {
         let sign = tip.polarity.sign();
@@ -401,8 +490,10 @@ impl PhaseDetector {
         let n = (frames.len() / channels) as u32;
         let Some(t) = self.thresholds else {
             for f in frames.chunks_exact(channels) {
-                let x = f[ch];
-                rail += ((x <= rl) | (x >= rh)) as u32;
+                // `ch < channels` is checked by the configuration; `get` keeps it panic-free.
+                if let Some(&x) = f.get(ch) {
+                    rail += ((x <= rl) | (x >= rh)) as u32;
+                }
             }
             let air = if self.air { n } else { 0 };
             return RunCounts {
@@ -412,12 +503,14 @@ impl PhaseDetector {
             };
         };
         let (lo, hi) = (t.enter_water as i64, t.enter_air as i64);
-        let samples = frames.iter().skip(ch).step_by(channels);
+        // The tip's samples: every `channels`-th from its channel on.
+        let samples = frames.get(ch..).unwrap_or(&[]);
+        let stride = NonZeroUsize::new(channels).unwrap_or(NonZeroUsize::MIN);
         let (air, air_n, rail_n) = if self.sign > 0 {
-            run_loop::<true, _, _>(samples, (lo, hi), (rl, rh), self.air, first, sink)
+            run_loop::<true, _>(samples, stride, (lo, hi), (rl, rh), self.air, first, sink)
         } else {
             // In the air-is-high scale y = -x: y > t  <=>  x < -t.
-            run_loop::<false, _, _>(samples, (-lo, -hi), (rl, rh), self.air, first, sink)
+            run_loop::<false, _>(samples, stride, (-lo, -hi), (rl, rh), self.air, first, sink)
         };
         rail += rail_n;
         self.air = air;

@@ -136,6 +136,31 @@ pub struct StationConfig<const P: usize> {
 }
 
 impl<const P: usize> StationConfig<P> {
+    /// Zero values everywhere (all zero bytes; the placeholder of an unconfigured chain,
+    /// not a usable configuration).
+    pub(crate) const fn zero() -> Self {
+        StationConfig {
+            front: FrontConfig {
+                before_air: false,
+                hold_frames: 0,
+                burst_interfaces: 0,
+                burst_frames: 0,
+                settle_frames: 0,
+            },
+            delay_frames: 0,
+            grace_frames: 0,
+            dead_after_frames: 0,
+            elevations_mm: Vec::new(),
+            profile: ProfileConfig {
+                bed: crate::profile::BedTreatment::LinearToZero,
+                max_iterations: 0,
+            },
+            sample_rate_hz: 0.0,
+            reference_depth_m: 0.0,
+            decay_fit_every: 0,
+        }
+    }
+
     /// Defaults at `sample_rate_hz`: the front rule of [`FrontConfig::for_rate`], a delay of
     /// [`default_delay_frames`], a grace of 100 ms, a dead-probe wait of the burst window
     /// (20 ms), the default profile fit, a decay fit at
@@ -328,33 +353,47 @@ pub(crate) struct Station<const P: usize> {
 }
 
 impl<const P: usize> Station<P> {
-    pub(crate) fn new(
+    /// No station: the state of an unconfigured chain's station slot (all zero bytes).
+    pub(crate) const EMPTY: Self = Station {
+        cfg: StationConfig::zero(),
+        tips: Vec::new(),
+        front_frame: 0,
+        cut: None,
+        locked: None,
+        station_emitted: false,
+        slices: 0,
+        decay: DecayTracker::new(),
+        fronts: Deque::new(),
+        profiles: Deque::new(),
+    };
+
+    /// (Re)build the state in place for a fresh record of `cfg` with `probes`, one probe's
+    /// front path at a time.
+    pub(crate) fn configure(
+        &mut self,
         cfg: &StationConfig<P>,
         probes: &[ProbeConfig],
         det: &DetectorConfig,
         initial_air: bool,
-    ) -> Self {
-        let mut tips = Vec::new();
+    ) {
+        self.cfg = cfg.clone();
+        self.tips.clear();
         for p in probes {
-            let _ = tips.push(FrontTip {
+            let _ = self.tips.push(FrontTip {
                 detector: PhaseDetector::new(&p.leading, det, initial_air),
                 front: FrontDetector::new(cfg.front),
                 done: false,
                 emitted: false,
             });
         }
-        Station {
-            cfg: cfg.clone(),
-            tips,
-            front_frame: 0,
-            cut: None,
-            locked: None,
-            station_emitted: false,
-            slices: 0,
-            decay: DecayTracker::new(),
-            fronts: Deque::new(),
-            profiles: Deque::new(),
-        }
+        self.front_frame = 0;
+        self.cut = None;
+        self.locked = None;
+        self.station_emitted = false;
+        self.slices = 0;
+        self.decay.clear();
+        self.fronts.clear();
+        self.profiles.clear();
     }
 
     fn delay(&self) -> u64 {

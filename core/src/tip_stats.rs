@@ -30,6 +30,19 @@ impl Default for TipAccumulator {
 }
 
 impl TipAccumulator {
+    /// All zero bytes: the placeholder in an unused probe slot of a chain.
+    pub(crate) const ZERO: Self = TipAccumulator {
+        since: None,
+        frames: 0,
+        air_frames: 0,
+        rail_frames: 0,
+        unlearnt_frames: 0,
+        bubbles: 0,
+        droplets: 0,
+        bubble_chords: ChordStats::ZERO,
+        droplet_chords: ChordStats::ZERO,
+    };
+
     /// An empty accumulator at the start of a record.
     pub const fn new() -> Self {
         TipAccumulator {
