@@ -36,6 +36,8 @@ pub enum Command {
     Simulate(crate::demo::SimulateArgs),
     /// Decode a session archive into CSV files and report link gaps and errors.
     Unpack(crate::unpack::UnpackArgs),
+    /// Read a field logger's flash image back into CSV files.
+    Logbook(crate::logbook_cmd::LogbookArgs),
     /// Figures (SVG, PNG) and a one-page HTML summary of a replay or archive folder.
     Report(crate::report::ReportArgs),
     /// Combine repeated transient runs of one rig, aligned on the front.
@@ -81,17 +83,17 @@ fn dispatch(command: Command) -> Result<(), HostError> {
         Command::Replay(a) => crate::replay::run(&a).map(|_| ()),
         Command::Synth(a) => {
             let s = crate::synth::run(&a)?;
-            println!("{s}");
+            crate::stdout::println(&s.to_string());
             Ok(())
         }
         Command::Ports => {
             let ports = crate::ports::list()
                 .map_err(|e| HostError::Usage(format!("cannot list serial ports: {e}")))?;
             if ports.is_empty() {
-                println!("no serial ports found");
+                crate::stdout::println("no serial ports found");
             }
             for p in ports {
-                println!("{p}");
+                crate::stdout::println(&p.to_string());
             }
             Ok(())
         }
@@ -99,6 +101,7 @@ fn dispatch(command: Command) -> Result<(), HostError> {
         Command::Demo(a) => crate::demo::run(&a).map(|_| ()),
         Command::Simulate(a) => crate::demo::simulate(&a).map(|_| ()),
         Command::Unpack(a) => crate::unpack::run(&a).map(|_| ()),
+        Command::Logbook(a) => crate::logbook_cmd::run(&a).map(|_| ()),
         Command::Report(a) => crate::report::run(&a).map(|_| ()).map_err(HostError::from),
         Command::Ensemble(a) => crate::ensemble::run(&a).map(|_| ()),
     }

@@ -215,7 +215,7 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
         device,
         out: args.out.clone(),
     };
-    print!("{summary}");
+    crate::stdout::print(&summary.to_string());
     Ok(summary)
 }
 

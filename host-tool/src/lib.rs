@@ -9,6 +9,8 @@
 //! - [`synth`]: synthetic captures with known truth;
 //! - [`session`], [`watch`], [`commands`], [`live`], [`dashboard`], [`archive`],
 //!   [`unpack`]: the live link (framed results from devices over serial ports);
+//! - [`flash_image`], [`logbook_cmd`]: a field logger's flash image read back through the
+//!   core's log into the same CSV files;
 //! - [`device_sim`], [`demo`]: a simulated device, and the live link without hardware;
 //! - [`cli`]: the `frothline` command line.
 #![warn(missing_docs)]
@@ -22,14 +24,17 @@ pub mod demo;
 pub mod device_sim;
 pub mod ensemble;
 pub mod error;
+pub mod flash_image;
 pub mod hydraulics;
 pub mod layout;
 pub mod live;
+pub mod logbook_cmd;
 pub mod ports;
 pub mod replay;
 pub mod report;
 pub mod rig;
 pub mod session;
+pub mod stdout;
 pub mod synth;
 pub mod transient;
 pub mod unpack;

@@ -356,7 +356,7 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
         windows_csv: final_path,
     };
     if !args.quiet {
-        print!("{}", summary_table(&report));
+        crate::stdout::print(&summary_table(&report));
     }
     Ok(report)
 }

@@ -47,6 +47,12 @@ pub fn profile_columns() -> Vec<&'static str> {
 /// Window results held per device while its sample rate is unknown.
 const MAX_HELD: usize = 4096;
 
+/// Probe arrivals at one station further apart than this belong to different fronts, s.
+const FRONT_EVENT_GAP_S: f64 = 1.0;
+
+/// The rate assumed for [`FRONT_EVENT_GAP_S`] before a device has described itself, Hz.
+const DEFAULT_RATE_HZ: f64 = 40_000.0;
+
 /// What a session is set up with.
 #[derive(Clone, Debug, Default)]
 pub struct SessionOptions {
@@ -752,8 +758,19 @@ impl Session {
         let name = self.meta(port, device, f.probe as usize).name;
         let station = self.station_name(device, f.station);
         let info = self.devices.entry((port, device)).or_default();
-        info.fronts.insert(f.station, f.frame);
         let fs = info.sample_rate_hz;
+        // The station's front is its earliest probe arrival (the core starts the station's
+        // windows there); the probes of one front report within moments of each other, and
+        // an arrival more than FRONT_EVENT_GAP_S after the stored one is a new front.
+        let gap = (fs.unwrap_or(DEFAULT_RATE_HZ) * FRONT_EVENT_GAP_S) as u64;
+        info.fronts
+            .entry(f.station)
+            .and_modify(|a| {
+                if f.frame < *a || f.frame > a.saturating_add(gap) {
+                    *a = f.frame;
+                }
+            })
+            .or_insert(f.frame);
         self.report.fronts += 1;
         let Some(out) = self.out.as_mut() else {
             return Ok(());

@@ -1039,7 +1039,7 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
     );
     let files = write_outputs(&run, &args.out, &description)?;
     if !args.quiet {
-        print!("{}", summary(&run, Some(&files)));
+        crate::stdout::print(&summary(&run, Some(&files)));
     }
     let report = ReplayReport {
         layout: run.layout.clone(),

@@ -279,7 +279,7 @@ pub fn run(args: &UnpackArgs) -> Result<UnpackReport, HostError> {
     let layout = args.layout.as_deref().map(Layout::load).transpose()?;
     let report = unpack_with(&args.archive, Some(&args.out), layout, &mut |_| {})?;
     if !args.quiet {
-        print!("{report}");
+        crate::stdout::print(&report.to_string());
     }
     Ok(report)
 }

@@ -608,7 +608,7 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
         notes,
     };
     if !args.quiet {
-        print!("{summary}");
+        crate::stdout::print(&summary.to_string());
     }
     Ok(summary)
 }
