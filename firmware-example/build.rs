@@ -1,6 +1,6 @@
 //! Build script: the board's memory layout and linker scripts, and the raw samples of the
-//! embedded capture (the data chunk of `capture/capture.wav`, 16-bit PCM, as
-//! little-endian i16 in `$OUT_DIR/capture.i16`).
+//! embedded capture (the data chunk of `capture/capture.wav`, or `capture-surge/` in the
+//! field-logger build; 16-bit PCM, as little-endian i16 in `$OUT_DIR/capture.i16`).
 
 use std::env;
 use std::fs;
@@ -23,11 +23,17 @@ fn main() {
         println!("cargo:rustc-link-arg-bins=-Tdefmt.x");
     }
 
-    let wav = "capture/capture.wav";
+    // The field-logger build embeds the surge capture, the others the steady one.
+    let dir = if env::var_os("CARGO_FEATURE_FIELD_LOGGER").is_some() {
+        "capture-surge"
+    } else {
+        "capture"
+    };
+    let wav = format!("{dir}/capture.wav");
     println!("cargo:rerun-if-changed={wav}");
-    println!("cargo:rerun-if-changed=capture/config.rs");
+    println!("cargo:rerun-if-changed={dir}/config.rs");
     let samples = if env::var_os("CARGO_FEATURE_EMULATED_MPS2").is_some() {
-        let bytes = fs::read(wav).unwrap_or_else(|e| {
+        let bytes = fs::read(&wav).unwrap_or_else(|e| {
             panic!("{wav}: {e} (run `bash scripts/firmware-capture.sh` at the repo root)")
         });
         pcm16_data(&bytes).unwrap_or_else(|e| panic!("{wav}: {e}"))

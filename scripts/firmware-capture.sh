@@ -13,12 +13,23 @@
 #      of `frothline replay --window 10ms`, the probe layout in wire units, and the count
 #      and digest of the records that replay gives.
 # The firmware's build script turns capture.wav into the raw i16 block it embeds.
-# Usage: bash scripts/firmware-capture.sh [--config-only]
+# With --surge, the same for the field-logger build's capture, firmware-example/capture-surge
+# (a surge front reaching one station of 8 dual-tip probes, 20 kHz, 120 ms, fixed levels:
+# no learning period to adapt; the chain is a station chain with front-relative windows).
+# Usage: bash scripts/firmware-capture.sh [--surge] [--config-only]
 #   --config-only  keep capture.wav and layout.toml, only rewrite config.rs (after a change
 #                  of the core or the host changed the records: the expected digest follows)
 set -euo pipefail
 cd "$(dirname "$0")/.."
 dir=firmware-example/capture
+config_only=0
+for a in "$@"; do
+    case "$a" in
+        --surge) dir=firmware-example/capture-surge ;;
+        --config-only) config_only=1 ;;
+        *) echo "firmware-capture: unknown argument $a" >&2; exit 2 ;;
+    esac
+done
 window=10ms
 lags=64    # keep equal to firmware-example/src/config.rs LAGS
 
@@ -26,7 +37,7 @@ gen() {
     cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml -- \
         "$dir/capture.wav" "$dir/layout.toml" "$window" "$lags" "$dir/config.rs"
 }
-if [ "${1:-}" = "--config-only" ]; then
+if [ $config_only -eq 1 ]; then
     gen
     exit 0
 fi
@@ -34,7 +45,7 @@ cargo build --release -q -p frothline-host
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 ./target/release/frothline synth "$dir/scenario.toml" --out "$tmp" >/dev/null
-cp "$tmp/capture.wav" "$tmp/truth.csv" "$dir/"
+cp "$tmp/capture.wav" "$tmp"/truth*.csv "$dir/"
 python3 - "$tmp/layout.toml" "$dir/layout.toml" <<'PY'
 import sys
 src, dst = sys.argv[1], sys.argv[2]
@@ -42,7 +53,7 @@ out = []
 for line in open(src):
     out.append(line)
     key = line.split("=")[0].strip()
-    if key == "hysteresis":
+    if key == "hysteresis" and "capture-surge" not in dst:
         out.append("learn_period_s = 0.02           # firmware example: a 60 ms capture\n")
     elif key == "tip_spacing_mm":
         out.append("max_lag_ms = 3.0                 # firmware example: 60 of 64 lag slots\n")

@@ -5,26 +5,31 @@
 # when the run hits the time limit.
 #
 # Usage: bash scripts/firmware-run.sh [MODE] [options]
-#   MODE            run (default) | adc | overrun | measure   (see firmware-example/src/mps2.rs)
+#   MODE            run (default) | adc | overrun | measure | logger (see firmware-example/src/mps2.rs);
+#                   logger builds the field-logger firmware (surge capture, station chain) and
+#                   writes the field log's flash image, sent out of UART1, to --log
 #   --uart PATH     UART0 to PATH (default target/firmware/uart-MODE.bin); `stdio` for stdout
 #   --icount SHIFT  QEMU -icount shift: one instruction = 2^SHIFT ns (default 0: 1000 MIPS;
 #                   4 = 62.5 MIPS, a Cortex-M4F at 60-100 MHz, where this pipeline overruns)
 #   --timeout SEC   wall-clock limit (default 60)
 #   --features F    extra cargo features (e.g. defmt-semihosting: decode stdout with defmt-print)
+#   --log PATH      logger mode: the flash image (default target/firmware/fieldlog-image.bin)
 #   --verify        after the run, decode the UART file and check every window result
-#                   against a host replay of the same capture (needs the host tool to build)
+#                   against a host replay of the same capture (needs the host tool to build);
+#                   logger mode: the flash image too (frothline-capture-gen verify-log)
 set -uo pipefail
 cd "$(dirname "$0")/.."
-mode=run uart="" shift_=0 secs=60 features="" verify=0
+mode=run uart="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
 while [ $# -gt 0 ]; do
     case "$1" in
-        run|adc|overrun|measure) mode=$1 ;;
+        run|adc|overrun|measure|logger) mode=$1 ;;
         --uart) uart=$2; shift ;;
         --icount) shift_=$2; shift ;;
         --timeout) secs=$2; shift ;;
         --features) features=$2; shift ;;
+        --log) log=$2; shift ;;
         --verify) verify=1 ;;
-        -h|--help) sed -n '2,17p' "$0"; exit 0 ;;
+        -h|--help) sed -n '2,22p' "$0"; exit 0 ;;
         *) echo "firmware-run: unknown argument $1" >&2; exit 2 ;;
     esac
     shift
@@ -32,6 +37,15 @@ done
 mkdir -p target/firmware
 [ -n "$uart" ] || uart=target/firmware/uart-$mode.bin
 if [ "$uart" = stdio ]; then serial=stdio; else serial=file:$uart; fi
+
+capture=firmware-example/capture
+second_serial=()
+if [ "$mode" = logger ]; then
+    features="field-logger${features:+,$features}"
+    capture=firmware-example/capture-surge
+    rm -f "$log"
+    second_serial=(-serial "file:$log")
+fi
 
 qemu=$(bash scripts/fetch-qemu.sh) || { echo "firmware-run: no QEMU" >&2; exit 2; }
 (cd firmware-example && cargo build --release -q ${features:+--features "$features"}) \
@@ -41,15 +55,20 @@ elf=firmware-example/target/thumbv7em-none-eabihf/release/frothline-firmware-exa
 timeout "$secs" "$qemu" -machine mps2-an386 -nographic -monitor none \
     -semihosting-config "enable=on,target=native,arg=$mode" \
     -icount "shift=$shift_,sleep=off" \
-    -serial "$serial" -kernel "$elf"
+    -serial "$serial" "${second_serial[@]}" -kernel "$elf"
 rc=$?
 if [ $rc -eq 124 ]; then
     echo "firmware-run: no exit within ${secs}s (killed)" >&2
     exit 124
 fi
 if [ $rc -eq 0 ] && [ $verify -eq 1 ] && [ "$uart" != stdio ]; then
-    d=firmware-example/capture
+    d=$capture
     cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml -- \
         verify-uart "$d/capture.wav" "$d/layout.toml" 10ms "$uart" || rc=1
+    if [ "$mode" = logger ]; then
+        # PRE_TRIGGER: keep equal to firmware-example/src/field_log.rs PRE_TRIGGER_FRAMES.
+        cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml -- \
+            verify-log "$d/capture.wav" "$d/layout.toml" 10ms "$log" 6 || rc=1
+    fi
 fi
 exit $rc

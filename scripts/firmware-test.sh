@@ -9,6 +9,11 @@
 #            host replay with the current core and host tool (skipped with --no-host)
 #   wire     the UART output of `run` decodes to frames whose window results equal the
 #            host replay's (needs the host tool; skipped with --no-host)
+#   logger   the field-logger build (surge capture, station chain): records equal a host
+#            replay, a front triggered the capture, the log mounts afresh with every logged
+#            record; with the host: the UART frames and the flash image (sent out of UART1)
+#            checked against a host replay (verify-uart, verify-log)
+#   logbook  `frothline logbook` reads the image back into CSV (skipped with --no-host)
 # Prints "N passed, N failed" and exits non-zero on any failure.
 set -uo pipefail
 cd "$(dirname "$0")/.."
@@ -27,6 +32,7 @@ mkdir -p target/firmware
 if [ $host -eq 1 ]; then
     # The digest the firmware checks itself against, from a host replay with today's core.
     check expected bash scripts/firmware-capture.sh --config-only
+    check expected-surge bash scripts/firmware-capture.sh --surge --config-only
 fi
 for m in run adc overrun measure; do
     check "$m" bash scripts/firmware-run.sh "$m" --icount 0
@@ -35,6 +41,19 @@ if [ $host -eq 1 ]; then
     d=firmware-example/capture
     check wire cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml -- \
         verify-uart "$d/capture.wav" "$d/layout.toml" 10ms target/firmware/uart-run.bin
+fi
+if [ $host -eq 1 ]; then
+    check logger bash scripts/firmware-run.sh logger --icount 0 --verify
+    logbook() {
+        rm -rf target/firmware/fieldlog-csv
+        cargo run -q -p frothline-host -- logbook target/firmware/fieldlog-image.bin \
+            --page-bytes 4096 --write-unit 4 \
+            --out target/firmware/fieldlog-csv --layout firmware-example/capture-surge/layout.toml \
+            && [ "$(wc -l < target/firmware/fieldlog-csv/windows.csv)" -gt 1 ]
+    }
+    check logbook logbook
+else
+    check logger bash scripts/firmware-run.sh logger --icount 0
 fi
 echo "$pass passed, $fail failed"
 [ $fail -eq 0 ]

@@ -69,6 +69,12 @@ pub const PROBE_CONFIGS: [ProbeConfig; PROBES] = [
         max_lag: 60,
     },
 ];
+/// Samples of the chain's delay ring: none (a steady flow).
+pub const DELAY_RING_SAMPLES: usize = 0;
+/// The station settings: none (a steady flow).
+pub fn station<const P: usize>() -> Option<StationConfig<P>> {
+    None
+}
 /// Probe names, in layout order.
 pub const PROBE_NAMES: [&str; PROBES] = [
     "P1",

@@ -24,7 +24,21 @@ pub const DEVICE_ID: u16 = 0x0F1E;
 /// four times what 8 probes at 10 ms windows need.
 pub const BAUD: u32 = 921_600;
 
-/// The chain the firmware runs.
-pub type FwChain = frothline_core::Chain<PROBES, LAGS>;
-/// The chain's records.
-pub type FwRecord = frothline_core::ProbeWindow<LAGS>;
+/// Station slots of the chain: one when the capture has a station (the field-logger
+/// build's surge capture, whose delay ring is not empty), none otherwise (no station state).
+pub const STATION_SLOTS: usize = (crate::capture::DELAY_RING_SAMPLES != 0) as usize;
+
+/// The chain the firmware runs: a steady chain (no delay ring), or in the field-logger
+/// build a station chain with the delay ring its capture's station needs. Its records keep
+/// no raw correlation sums (`S = 0`: they do not go on the wire, and would cost 28 × LAGS
+/// bytes per queued record); their other fields are a host replay's, bit for bit.
+pub type FwChain = frothline_core::GenericChain<
+    PROBES,
+    LAGS,
+    { crate::capture::DELAY_RING_SAMPLES },
+    0,
+    { STATION_SLOTS },
+>;
+/// The chain's records, as the main loop takes them (`poll_lean`: no raw correlation sums,
+/// so a record moves 1.5 KB through the stack instead of 3.3 KB).
+pub type FwRecord = frothline_core::ProbeWindow<1>;

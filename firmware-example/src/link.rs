@@ -11,7 +11,8 @@ use crate::capture;
 use crate::config::{FwRecord, BAUD, DEVICE_ID, STREAM_WINDOWS};
 use embedded_io::Write;
 use frothline_core::wire::{
-    quant, Body, DeviceDescription, Health, Streamer, StreamerConfig, WindowResult, WindowSetting,
+    quant, Body, DeviceDescription, FrontArrival, Health, ProfileFit, Streamer, StreamerConfig,
+    WindowResult, WindowSetting,
 };
 
 /// Firmware version, as the device description carries it.
@@ -47,24 +48,24 @@ impl<W: Write> Link<W> {
 
     /// Queue the device description (sent first).
     pub fn describe(&mut self) {
-        let mut d = DeviceDescription {
-            firmware: heapless::String::new(),
-            sample_rate_millihz: quant::sample_rate(capture::SAMPLE_RATE_HZ as f32),
-            channels: capture::CHANNELS,
-            window: WindowSetting::from_policy(&capture::WINDOW).unwrap_or(WindowSetting::Whole),
-            probes: heapless::Vec::new(),
-        };
-        let _ = d.firmware.push_str(FIRMWARE);
-        for p in capture::PROBE_LAYOUT {
-            let _ = d.probes.push(p);
-        }
-        self.streamer.offer(Body::Describe(d));
+        self.streamer.offer(Body::Describe(description()));
     }
 
-    /// Queue the window result of one record.
-    pub fn record(&mut self, rec: &FwRecord) {
+    /// Queue the window result of one record; returns it.
+    pub fn record(&mut self, rec: &FwRecord) -> WindowResult {
         let w = wire_result(rec, self.sample_rate_hz);
         self.streamer.offer_window(w);
+        w
+    }
+
+    /// Queue a front arrival (station chains).
+    pub fn front(&mut self, f: FrontArrival) {
+        self.streamer.offer(Body::Front(f));
+    }
+
+    /// Queue a profile fit (station chains).
+    pub fn profile(&mut self, p: ProfileFit) {
+        self.streamer.offer(Body::Profile(p));
     }
 
     /// Queue a health frame (replaces one not yet sent: its counters are cumulative).
@@ -81,8 +82,9 @@ impl<W: Write> Link<W> {
         }
     }
 
-    /// Send everything queued (at the end of a run), letting the clock run on.
-    pub fn drain(&mut self, mut now: u64) {
+    /// Send everything queued (at the end of a run), letting the clock run on from `now`;
+    /// returns the time reached.
+    pub fn drain(&mut self, mut now: u64) -> u64 {
         let step = (self.sample_rate_hz as u64 / 100).max(1);
         let mut rounds = 0u32;
         while !self.streamer.is_idle() && rounds < 100_000 {
@@ -91,6 +93,7 @@ impl<W: Write> Link<W> {
             rounds += 1;
         }
         let _ = self.tx.flush();
+        now
     }
 
     /// The streamer's counters.
@@ -111,4 +114,20 @@ pub fn wire_result(rec: &FwRecord, sample_rate_hz: f32) -> WindowResult {
         .copied()
         .flatten();
     WindowResult::from_probe_window_with_spacing(rec, sample_rate_hz, spacing_mm)
+}
+
+/// The device description: the capture's rate, channels, window and probe layout.
+pub fn description() -> DeviceDescription {
+    let mut d = DeviceDescription {
+        firmware: heapless::String::new(),
+        sample_rate_millihz: quant::sample_rate(capture::SAMPLE_RATE_HZ as f32),
+        channels: capture::CHANNELS,
+        window: WindowSetting::from_policy(&capture::WINDOW).unwrap_or(WindowSetting::Whole),
+        probes: heapless::Vec::new(),
+    };
+    let _ = d.firmware.push_str(FIRMWARE);
+    for p in capture::PROBE_LAYOUT {
+        let _ = d.probes.push(p);
+    }
+    d
 }

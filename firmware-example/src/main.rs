@@ -36,6 +36,8 @@ pub mod capture;
 pub mod config;
 #[cfg(feature = "self-check")]
 pub mod digest;
+#[cfg(feature = "field-logger")]
+pub mod field_log;
 pub mod link;
 pub mod pipeline;
 pub mod replay;
@@ -49,6 +51,8 @@ pub mod cmsdk_timer;
 pub mod cmsdk_uart;
 #[cfg(feature = "emulated-mps2")]
 mod mps2;
+#[cfg(feature = "field-logger")]
+pub mod ram_nor;
 #[cfg(feature = "emulated-mps2")]
 pub mod sim_adc;
 
@@ -56,18 +60,18 @@ pub mod sim_adc;
 mod board_stm32f4;
 
 use config::FwChain;
-use static_cell::StaticCell;
+use static_cell::ConstStaticCell;
 
-/// Build the chain of the capture's configuration, in static memory.
+/// Build the chain of the capture's configuration, in static memory. Call it once.
 ///
-/// The chain is tens of KiB: it is built straight into its static cell (`init_with`), not
-/// on the stack and then moved.
+/// The chain is tens of KiB: its static is the empty chain (all zero bytes, in `.bss`),
+/// configured in place (`configure` builds one probe's state at a time), never built on
+/// the stack and moved.
 #[inline(never)]
 pub fn make_chain() -> Result<&'static mut FwChain, frothline_core::ConfigError> {
-    static CHAIN: StaticCell<FwChain> = StaticCell::new();
+    static CHAIN: ConstStaticCell<FwChain> = ConstStaticCell::new(FwChain::empty());
     let cfg = capture::chain_config()?;
-    // Validated above: `new` checks the same configuration again and cannot fail here.
-    let chain = CHAIN.uninit();
-    let chain = chain.write(FwChain::new(cfg)?);
+    let chain = CHAIN.take();
+    chain.configure(cfg)?;
     Ok(chain)
 }

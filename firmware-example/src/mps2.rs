@@ -14,6 +14,15 @@
 //!   with whole blocks, so the chain's share can be timed alone (see
 //!   scripts/firmware-measure.sh). Passes on the same condition as `run`.
 //!
+//! - `logger` (field-logger build only, `--features field-logger`: the surge capture and a
+//!   station chain): `run`, and every result also goes to the field logger
+//!   ([`crate::field_log`]): armed from the start, a pre-trigger ring before the front, the
+//!   front and what follows into a power-loss-safe log on a NOR flash stand-in
+//!   ([`crate::ram_nor`]). At the end the log is mounted afresh (as after a power cycle)
+//!   and its records counted, and the region's image goes out of UART1 (QEMU's second
+//!   `-serial`) for `frothline logbook`. Passes as `run` does, and when a front triggered
+//!   the capture, nothing was dropped and the fresh mount finds every logged record.
+//!
 //! Every mode ends with `key=value` summary lines on the semihosting console and exits
 //! QEMU with status 0 (pass) or 1 (fail).
 
@@ -59,6 +68,7 @@ enum Mode {
     Adc,
     Overrun,
     Measure,
+    Logger,
 }
 
 impl Mode {
@@ -72,6 +82,7 @@ impl Mode {
             Some("adc") => Some(Mode::Adc),
             Some("overrun") => Some(Mode::Overrun),
             Some("measure") => Some(Mode::Measure),
+            Some("logger") => Some(Mode::Logger),
             Some(_) if words == 1 => Some(Mode::Run),
             Some(_) => None,
         }
@@ -83,6 +94,7 @@ impl Mode {
             Mode::Adc => "adc",
             Mode::Overrun => "overrun",
             Mode::Measure => "measure",
+            Mode::Logger => "logger",
         }
     }
 }
@@ -157,7 +169,7 @@ fn main() -> ! {
         Some(mode) => run(mode),
         None => {
             report!(
-                "fw.error unknown mode `{}`: run | adc | overrun | measure",
+                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger",
                 arg
             );
             false
@@ -189,8 +201,8 @@ fn run(mode: Mode) -> bool {
             return false;
         }
     };
-    // The chain was built on the stack and moved into its static (the core has no
-    // in-place constructor): note that depth, then repaint to see the steady state.
+    // The chain is configured in place in its static (`Chain::configure`): the start-up
+    // depth is small; note it, then repaint to see the steady state.
     let stack_init = sys::stack_high_water();
     sys::paint_stack();
     let (full_tx, full_rx) = FULL.take().split();
@@ -216,7 +228,27 @@ fn run(mode: Mode) -> bool {
     };
     let mut acq = Acquisition::new(source, clock.reader(), per_tick, full_tx, free_rx);
     let link = Link::new(uart, capture::SAMPLE_RATE_HZ);
+    #[cfg(feature = "field-logger")]
+    let mut log = match mode {
+        Mode::Logger => match logger::mount() {
+            Some(l) => Some(l),
+            None => {
+                report!("fw.error the field log did not mount");
+                return false;
+            }
+        },
+        _ => None,
+    };
+    #[cfg(not(feature = "field-logger"))]
+    if mode == Mode::Logger {
+        report!("fw.error mode `logger` needs the field-logger build (--features field-logger)");
+        return false;
+    }
     let mut pipe = Pipeline::new(chain, full_rx, free_tx, link, clock);
+    #[cfg(feature = "field-logger")]
+    if let Some(l) = log.as_mut() {
+        pipe.set_tap(l);
+    }
     pipe.start();
     let block_ticks =
         (PCLK_HZ as u64 * BLOCK_FRAMES as u64 / capture::SAMPLE_RATE_HZ as u64) as u32;
@@ -287,8 +319,83 @@ fn run(mode: Mode) -> bool {
             measure_streaming(chain, &clock, v);
         }
     }
+    #[cfg(feature = "field-logger")]
+    let pass = match log {
+        Some(l) => logger::finish(l) && pass,
+        None => pass,
+    };
     report!("fw.verdict {}", if pass { "pass" } else { "FAIL" });
     pass
+}
+
+/// The field log of mode `logger`: a NOR flash stand-in in RAM, and the end-of-run checks.
+#[cfg(feature = "field-logger")]
+mod logger {
+    use crate::cmsdk_timer::PCLK_HZ;
+    use crate::cmsdk_uart::CmsdkUart;
+    use crate::field_log::{count_records, FieldLog};
+    use crate::ram_nor::RamNor;
+    use crate::sys;
+    use embedded_io::Write;
+    use static_cell::ConstStaticCell;
+
+    /// The log region: 16 sectors of 4 KiB (15 hold records, see the core's logbook).
+    pub const LOG_BYTES: usize = 64 * 1024;
+    type Flash = RamNor<LOG_BYTES>;
+    static FLASH: ConstStaticCell<Flash> = ConstStaticCell::new(RamNor::new());
+
+    /// Erase the region (a factory-fresh part) and mount the log on it, armed.
+    pub fn mount() -> Option<FieldLog<&'static mut Flash>> {
+        let flash = FLASH.try_take()?;
+        flash.erase_all();
+        FieldLog::mount(flash).ok()
+    }
+
+    /// Flush, report, mount the log afresh and count its records, send the image out of
+    /// UART1; true when the capture was triggered and every logged frame is on flash.
+    pub fn finish(mut log: FieldLog<&'static mut Flash>) -> bool {
+        log.flush();
+        let st = log.stats();
+        let state = log.state();
+        let flash = log.into_flash();
+        let (found, flash) = match count_records(flash) {
+            Ok(x) => x,
+            Err(e) => {
+                report!("fw.error the field log did not mount again: {}", e);
+                return false;
+            }
+        };
+        report!(
+            "fw.logger state={} triggers={} descriptions={} logged={} dropped={} overwritten={} encode_errors={} log_error={} pages_recycled={} records_after_remount={} image_bytes={}",
+            match state {
+                frothline_core::logbook::LoggerState::Idle => "idle",
+                frothline_core::logbook::LoggerState::Armed => "armed",
+                frothline_core::logbook::LoggerState::Capturing { .. } => "capturing",
+            },
+            st.logger.triggers,
+            st.descriptions,
+            st.logger.logged,
+            st.logger.dropped,
+            st.logger.overwritten,
+            st.encode_errors,
+            st.first_error.is_some(),
+            st.log.pages_recycled,
+            found,
+            LOG_BYTES
+        );
+        let Some(regs) = sys::take(sys::Device::Uart1) else {
+            return false;
+        };
+        let mut uart = CmsdkUart::new(regs, PCLK_HZ, crate::config::BAUD);
+        let sent = uart.write_all(flash.image()).is_ok() && uart.flush().is_ok();
+        sent && st.logger.triggers >= 1
+            && st.logger.logged > 0
+            && st.logger.dropped == 0
+            && st.encode_errors == 0
+            && st.first_error.is_none()
+            && st.descriptions >= 1
+            && found == st.logger.logged + st.descriptions
+    }
 }
 
 /// Variants of the capture's configuration for [`measure_streaming`].
@@ -339,10 +446,10 @@ fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, variant: Variant)
         }
         tips += 1 + p.trailing.is_some() as usize;
     }
-    let Ok(fresh) = FwChain::new(cfg) else {
+    // In place again: a chain built by value would need its size in stack.
+    if chain.configure(cfg).is_err() {
         return;
-    };
-    *chain = fresh;
+    }
     let mut block = [0i16; BLOCK_SAMPLES];
     let mut src = ReplaySource::new(capture::SAMPLES, capture::CHANNELS as usize);
     let ch = capture::CHANNELS as usize;
@@ -360,10 +467,10 @@ fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, variant: Variant)
     }
     let t0 = clock.now();
     while chain.finish().is_err() {
-        while chain.poll().is_some() {}
+        while chain.poll_lean().is_some() {}
     }
     let close = clock.now().wrapping_sub(t0) as u64;
-    while chain.poll().is_some() {}
+    while chain.poll_lean().is_some() {}
     report!(
         "fw.streaming variant={} frames={} channels={} tips={} push_ticks={} finish_ticks={}",
         match variant {
@@ -380,7 +487,11 @@ fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, variant: Variant)
 }
 
 #[inline(never)]
-fn summary<W: embedded_io::Write, C: Clock>(mode: Mode, pipe: &Pipeline<W, C>, total: u64) -> bool {
+fn summary<W: embedded_io::Write, C: Clock>(
+    mode: Mode,
+    pipe: &Pipeline<'_, W, C>,
+    total: u64,
+) -> bool {
     let d = pipe.digest();
     let matches = d.records() == capture::EXPECTED_RECORDS && d.value() == capture::EXPECTED_DIGEST;
     let dropped = HEALTH.dropped_frames.load(Ordering::Relaxed);

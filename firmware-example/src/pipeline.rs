@@ -10,12 +10,27 @@ use crate::digest::Digest;
 use crate::link::Link;
 use core::sync::atomic::Ordering;
 use embedded_io::Write;
-use frothline_core::wire::Health;
-use frothline_core::Flags;
+use frothline_core::wire::{FrontArrival, Health, ProfileFit, WindowResult};
+use frothline_core::{Flags, FrontRecord};
 use heapless::spsc::{Consumer, Producer};
 
 /// A health frame goes out every this many blocks (and at the end).
 const HEALTH_EVERY_BLOCKS: u32 = 8;
+
+/// A second consumer of the results besides the link (the field logger, see
+/// [`crate::field_log`]): it sees every window result, front, profile and health frame.
+pub trait ResultTap {
+    /// One window result.
+    fn window(&mut self, w: WindowResult);
+    /// A probe's front arrival.
+    fn front(&mut self, f: FrontArrival);
+    /// A profile fit.
+    fn profile(&mut self, p: ProfileFit);
+    /// Health counters.
+    fn health(&mut self, h: Health);
+    /// The run ended: write out what is pending.
+    fn flush(&mut self);
+}
 
 /// Where the main loop's time went, in clock ticks.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -31,8 +46,8 @@ pub struct Timing {
     pub stalled: u64,
 }
 
-/// The main loop's state.
-pub struct Pipeline<W, C> {
+/// The main loop's state; `'t` is the borrow of an optional [`ResultTap`].
+pub struct Pipeline<'t, W, C> {
     chain: &'static mut FwChain,
     full: Consumer<'static, Filled>,
     free: Producer<'static, &'static mut Block>,
@@ -43,6 +58,7 @@ pub struct Pipeline<W, C> {
     pub stall_ticks: u32,
     /// Time accounting.
     pub timing: Timing,
+    tap: Option<&'t mut dyn ResultTap>,
     #[cfg(feature = "self-check")]
     digest: Digest,
     frames_pushed: u64,
@@ -51,7 +67,7 @@ pub struct Pipeline<W, C> {
     stuck: u64,
 }
 
-impl<W: Write, C: Clock> Pipeline<W, C> {
+impl<'t, W: Write, C: Clock> Pipeline<'t, W, C> {
     /// A pipeline over the given chain, queue ends, link and clock.
     pub fn new(
         chain: &'static mut FwChain,
@@ -70,6 +86,7 @@ impl<W: Write, C: Clock> Pipeline<W, C> {
             channels,
             stall_ticks: 0,
             timing: Timing::default(),
+            tap: None,
             #[cfg(feature = "self-check")]
             digest: Digest::new(),
             frames_pushed: 0,
@@ -77,6 +94,11 @@ impl<W: Write, C: Clock> Pipeline<W, C> {
             saturated: 0,
             stuck: 0,
         }
+    }
+
+    /// Hand every result to `tap` too (the field logger).
+    pub fn set_tap(&mut self, tap: &'t mut dyn ResultTap) {
+        self.tap = Some(tap);
     }
 
     /// The clock.
@@ -128,6 +150,9 @@ impl<W: Write, C: Clock> Pipeline<W, C> {
         if self.blocks % HEALTH_EVERY_BLOCKS == 0 {
             let h = self.health();
             self.link.health(h);
+            if let Some(t) = self.tap.as_mut() {
+                t.health(h);
+            }
         }
         self.link.pump(self.sample_clock());
         self.timing.records += self.clock.now().wrapping_sub(t0) as u64;
@@ -140,22 +165,50 @@ impl<W: Write, C: Clock> Pipeline<W, C> {
     }
 
     /// End the run: close the last window, send every record and a last health frame.
+    /// A station chain closes several windows here (the frames still in its delay ring):
+    /// the link is drained after each batch, the clock running on as a UART would, so the
+    /// streamer never has to drop results at the end.
     pub fn finish(&mut self) {
         while self.step() {}
-        while self.chain.finish().is_err() {
+        let mut now = self.sample_clock();
+        loop {
+            let done = self.chain.finish().is_ok();
             self.drain_records();
+            now = self.link.drain(now);
+            if done {
+                break;
+            }
         }
-        self.drain_records();
         let h = self.health();
         self.link.health(h);
-        let now = self.sample_clock();
+        if let Some(t) = self.tap.as_mut() {
+            t.health(h);
+            t.flush();
+        }
         self.link.drain(now);
     }
 
     fn drain_records(&mut self) {
         let t0 = self.clock.now();
-        while let Some(rec) = self.chain.poll() {
+        while let Some(rec) = self.chain.poll_lean() {
             self.on_record(&rec);
+        }
+        // Station chains (the field-logger build): the one station is station 0.
+        while let Some(p) = self.chain.poll_profile() {
+            let fit = p.to_wire(0);
+            self.link.profile(fit);
+            if let Some(t) = self.tap.as_mut() {
+                t.profile(fit);
+            }
+        }
+        while let Some(f) = self.chain.poll_front() {
+            if let FrontRecord::Probe(a) = f {
+                let arrival = a.to_wire(0);
+                self.link.front(arrival);
+                if let Some(t) = self.tap.as_mut() {
+                    t.front(arrival);
+                }
+            }
         }
         self.timing.records += self.clock.now().wrapping_sub(t0) as u64;
     }
@@ -164,8 +217,11 @@ impl<W: Write, C: Clock> Pipeline<W, C> {
         // The host replay keeps its records without the raw correlation sums (they do not
         // go on the wire either): the digest covers the same.
         #[cfg(feature = "self-check")]
-        self.digest.add(&rec.without_sums::<1>());
-        self.link.record(rec);
+        self.digest.add(rec);
+        let w = self.link.record(rec);
+        if let Some(t) = self.tap.as_mut() {
+            t.window(w);
+        }
         self.saturated += rec.lead.rail_frames + rec.trail.as_ref().map_or(0, |t| t.rail_frames);
         if let Some(p) = self.chain.config().probes.get(rec.probe as usize) {
             let mut set = |ch: u8, stuck: bool| {

@@ -92,6 +92,8 @@ pub enum Device {
     Timer1,
     /// CMSDK APB UART 0 (the results link; QEMU's first `-serial`).
     Uart0,
+    /// CMSDK APB UART 1 (the field log's read-out; QEMU's second `-serial`).
+    Uart1,
 }
 
 #[cfg(feature = "emulated-mps2")]
@@ -101,6 +103,7 @@ impl Device {
             Device::Timer0 => 0x4000_0000,
             Device::Timer1 => 0x4000_1000,
             Device::Uart0 => 0x4000_4000,
+            Device::Uart1 => 0x4000_5000,
         }
     }
 
@@ -109,6 +112,7 @@ impl Device {
             Device::Timer0 => 1,
             Device::Timer1 => 2,
             Device::Uart0 => 4,
+            Device::Uart1 => 8,
         }
     }
 }

@@ -22,9 +22,12 @@
 #[path = "../../src/digest.rs"]
 mod digest;
 
+use frothline_core::front::FrontConfig;
+use frothline_core::profile::ProfileConfig;
 use frothline_core::wire::quant;
 use frothline_core::{
-    ChainConfig, DetectorConfig, LevelSource, Polarity, ProbeConfig, TipConfig, WindowPolicy,
+    ChainConfig, DetectorConfig, LevelSource, Polarity, ProbeConfig, StationConfig, TipConfig,
+    WindowPolicy,
 };
 use frothline_host::replay::{self, ReplayArgs};
 use frothline_host::window_spec::WindowSpec;
@@ -47,6 +50,9 @@ fn run() -> Result<(), String> {
     if args.first().map(String::as_str) == Some("verify-uart") {
         return verify_uart(&args[1..]);
     }
+    if args.first().map(String::as_str) == Some("verify-log") {
+        return verify_log(&args[1..]);
+    }
     let [capture, layout, window, lags, out] = args.as_slice() else {
         return Err(
             "usage: frothline-capture-gen CAPTURE.wav LAYOUT.toml WINDOW LAGS OUT.rs".into(),
@@ -61,9 +67,14 @@ fn run() -> Result<(), String> {
 
     let (cap, layout_doc, chain) =
         replay::open_rig(&capture, &layout, window.clone()).map_err(|e| e.to_string())?;
-    let cfg = chain.config().clone();
     let sample_rate = cap.sample_rate();
     let frames = cap.frames();
+    let transient = frothline_host::transient::is_transient(&layout_doc);
+    let cfg = if transient {
+        station_config(&layout_doc, &cap, &window)?
+    } else {
+        chain.config().clone()
+    };
     drop(chain);
 
     let tmp = std::env::temp_dir().join(format!("frothline-capture-gen-{}", std::process::id()));
@@ -83,7 +94,7 @@ fn run() -> Result<(), String> {
         }
     }
 
-    if lags == 64 {
+    if lags == 64 && !transient {
         device_shaped_check(&capture, &cfg, &report.records)?;
     }
     for (i, p) in cfg.probes.iter().enumerate() {
@@ -151,14 +162,6 @@ fn emit_chain<const P: usize>(w: &mut String, cfg: &ChainConfig<P>) -> Result<()
         initial_air,
         station,
     } = cfg;
-    if station.is_some() {
-        // The firmware's `chain_config` leaves the station stage off (ChainConfig::new).
-        return Err(
-            "the layout configures a station (front, profile, decay): the firmware \
-                    example emits steady-flow configurations only"
-                .into(),
-        );
-    }
     let DetectorConfig {
         threshold,
         hysteresis,
@@ -181,6 +184,9 @@ fn emit_chain<const P: usize>(w: &mut String, cfg: &ChainConfig<P>) -> Result<()
     let window = match window {
         WindowPolicy::Whole => "WindowPolicy::Whole".to_string(),
         WindowPolicy::Frames(n) => format!("WindowPolicy::Frames({n})"),
+        WindowPolicy::AfterFront { frames } => {
+            format!("WindowPolicy::AfterFront {{ frames: {frames} }}")
+        }
         other => {
             return Err(format!(
                 "window policy {other:?} is not supported by the firmware"
@@ -216,7 +222,108 @@ fn emit_chain<const P: usize>(w: &mut String, cfg: &ChainConfig<P>) -> Result<()
         );
     }
     let _ = writeln!(w, "];");
+    emit_station(w, station.as_ref(), *channels)
+}
+
+/// The station settings (transient captures) as a function building them, and the delay
+/// ring the chain needs for them (0 samples for a steady capture).
+fn emit_station<const P: usize>(
+    w: &mut String,
+    station: Option<&StationConfig<P>>,
+    channels: u8,
+) -> Result<(), String> {
+    let Some(st) = station else {
+        let _ = writeln!(
+            w,
+            "/// Samples of the chain's delay ring: none (a steady flow)."
+        );
+        let _ = writeln!(w, "pub const DELAY_RING_SAMPLES: usize = 0;");
+        let _ = writeln!(w, "/// The station settings: none (a steady flow).");
+        let _ = writeln!(
+            w,
+            "pub fn station<const P: usize>() -> Option<StationConfig<P>> {{\n    None\n}}"
+        );
+        return Ok(());
+    };
+    let StationConfig {
+        front,
+        delay_frames,
+        grace_frames,
+        dead_after_frames,
+        elevations_mm,
+        profile,
+        sample_rate_hz,
+        reference_depth_m,
+        decay_fit_every,
+    } = st;
+    if *profile != ProfileConfig::default() {
+        return Err(format!(
+            "profile settings {profile:?} differ from the defaults the firmware emits"
+        ));
+    }
+    let FrontConfig {
+        before_air,
+        hold_frames,
+        burst_interfaces,
+        burst_frames,
+        settle_frames,
+    } = front;
+    let depth = if reference_depth_m.is_finite() {
+        format!("{reference_depth_m:?}")
+    } else {
+        "f32::NAN".into()
+    };
+    let ring = (*delay_frames as usize + 1) * channels as usize;
+    let _ = writeln!(
+        w,
+        "/// Samples of the chain's delay ring: (delay + 1) frames of every channel."
+    );
+    let _ = writeln!(w, "pub const DELAY_RING_SAMPLES: usize = {ring};");
+    let _ = writeln!(
+        w,
+        "/// The station settings of a host replay of this capture."
+    );
+    let _ = writeln!(
+        w,
+        "pub fn station<const P: usize>() -> Option<StationConfig<P>> {{\n    \
+         let mut s = StationConfig::new({sample_rate_hz:?}, {before_air});\n    \
+         s.front = FrontConfig {{\n        before_air: {before_air},\n        \
+         hold_frames: {hold_frames},\n        burst_interfaces: {burst_interfaces},\n        \
+         burst_frames: {burst_frames},\n        settle_frames: {settle_frames},\n    }};\n    \
+         s.delay_frames = {delay_frames};\n    s.grace_frames = {grace_frames};\n    \
+         s.dead_after_frames = {dead_after_frames};\n    s.profile = ProfileConfig::default();\n    \
+         s.reference_depth_m = {depth};\n    s.decay_fit_every = {decay_fit_every};"
+    );
+    for e in elevations_mm {
+        let _ = writeln!(w, "    s.elevations_mm.push({e:?}).ok()?;");
+    }
+    let _ = writeln!(w, "    Some(s)\n}}");
     Ok(())
+}
+
+/// The chain configuration of a transient capture's one station, as the host's transient
+/// replay builds it.
+fn station_config(
+    layout: &frothline_host::layout::Layout,
+    cap: &frothline_host::capture::Capture,
+    window: &WindowSpec,
+) -> Result<ChainConfig<{ frothline_host::rig::MAX_PROBES }>, String> {
+    use frothline_host::transient;
+    let fs = cap.sample_rate();
+    let policy = transient::transient_policy(window, fs, layout)?;
+    let mut configs = transient::station_configs(layout, cap.channels(), fs, policy, cap)
+        .map_err(|e| e.to_string())?;
+    if configs.len() != 1 {
+        return Err(format!(
+            "{} stations: the firmware example runs one station chain",
+            configs.len()
+        ));
+    }
+    let (info, cfg) = configs.remove(0);
+    if info.probes != (0..layout.probes.len()).collect::<Vec<_>>() {
+        return Err("the station's probes are not the layout's probes in order".into());
+    }
+    Ok(cfg)
 }
 
 fn tip(t: &TipConfig) -> String {
@@ -301,43 +408,20 @@ fn emit_layout(w: &mut String, layout: &frothline_host::layout::Layout) -> Resul
 
 /// Decode the firmware's UART output and compare its window results with a host replay.
 fn verify_uart(args: &[String]) -> Result<(), String> {
-    use frothline_core::wire::{Body, Decoder, FeedResult, WindowResult};
+    use frothline_core::wire::{Body, Decoder, FeedResult};
     let [capture, layout, window, uart] = args else {
         return Err(
             "usage: frothline-capture-gen verify-uart CAPTURE.wav LAYOUT.toml WINDOW UART.bin"
                 .into(),
         );
     };
-    let window: WindowSpec = window.parse()?;
-    let tmp = std::env::temp_dir().join(format!("frothline-verify-uart-{}", std::process::id()));
-    let report = replay::run(&ReplayArgs {
-        capture: PathBuf::from(capture),
-        layout: PathBuf::from(layout),
-        out: tmp.clone(),
-        window,
-        quiet: true,
-    })
-    .map_err(|e| e.to_string())?;
-    let _ = std::fs::remove_dir_all(&tmp);
-    let fs = report.sample_rate as f32;
-    let expected: Vec<WindowResult> = report
-        .records
-        .iter()
-        .map(|r| {
-            let spacing = report
-                .layout
-                .probes
-                .get(r.probe as usize)
-                .and_then(|p| p.tip_spacing_mm)
-                .map(|mm| mm as f32);
-            WindowResult::from_probe_window_with_spacing(r, fs, spacing)
-        })
-        .collect();
+    let (expected, layout_doc) = host_results(capture, layout, window)?;
 
     let bytes = std::fs::read(uart).map_err(|e| format!("{uart}: {e}"))?;
     let mut dec: Decoder = Decoder::new();
     let mut got = Vec::new();
     let (mut describes, mut healths, mut last_health) = (0, 0, None);
+    let mut fronts_profiles = 0;
     let mut rest: &[u8] = &bytes;
     while !rest.is_empty() {
         let r = dec.feed(rest);
@@ -346,8 +430,8 @@ fn verify_uart(args: &[String]) -> Result<(), String> {
             match frame.body {
                 Body::Describe(d) => {
                     describes += 1;
-                    if d.channels as usize != report.layout.tip_channels().len()
-                        || d.probes.len() != report.layout.probes.len()
+                    if d.channels as usize != layout_doc.tip_channels().len()
+                        || d.probes.len() != layout_doc.probes.len()
                     {
                         return Err(format!(
                             "device description does not match the layout: {d:?}"
@@ -359,13 +443,15 @@ fn verify_uart(args: &[String]) -> Result<(), String> {
                     healths += 1;
                     last_health = Some(h);
                 }
+                Body::Front(_) | Body::Profile(_) => fronts_profiles += 1,
                 other => eprintln!("verify-uart: unexpected frame {other:?}"),
             }
         }
     }
     let st = *dec.stats();
     eprintln!(
-        "verify-uart: {} bytes, {} frames ({describes} description, {healths} health), {} window results \
+        "verify-uart: {} bytes, {} frames ({describes} description, {healths} health, \
+         {fronts_profiles} front/profile), {} window results \
          (host replay: {}), lost {}, crc failures {}, malformed {}, last health {last_health:?}",
         bytes.len(),
         st.frames,
@@ -399,6 +485,177 @@ fn verify_uart(args: &[String]) -> Result<(), String> {
         "verify-uart: every window result equals the host replay's ({} with a correlation, {} with chord times)",
         got.iter().filter(|w| w.correlation.is_some()).count(),
         got.iter().filter(|w| w.chords.is_some()).count()
+    );
+    Ok(())
+}
+
+/// The window results a host replay of `capture` gives, as the wire carries them.
+fn host_results(
+    capture: &str,
+    layout: &str,
+    window: &str,
+) -> Result<
+    (
+        Vec<frothline_core::wire::WindowResult>,
+        frothline_host::layout::Layout,
+    ),
+    String,
+> {
+    use frothline_core::wire::WindowResult;
+    let window: WindowSpec = window.parse()?;
+    let tmp = std::env::temp_dir().join(format!("frothline-verify-{}", std::process::id()));
+    let report = replay::run(&ReplayArgs {
+        capture: PathBuf::from(capture),
+        layout: PathBuf::from(layout),
+        out: tmp.clone(),
+        window,
+        quiet: true,
+    })
+    .map_err(|e| e.to_string())?;
+    let _ = std::fs::remove_dir_all(&tmp);
+    let fs = report.sample_rate as f32;
+    let results = report
+        .records
+        .iter()
+        .map(|r| {
+            let spacing = report
+                .layout
+                .probes
+                .get(r.probe as usize)
+                .and_then(|p| p.tip_spacing_mm)
+                .map(|mm| mm as f32);
+            WindowResult::from_probe_window_with_spacing(r, fs, spacing)
+        })
+        .collect();
+    Ok((results, report.layout))
+}
+
+/// Read the field log image the firmware's `logger` mode sent out of UART1 (the NOR flash
+/// stand-in: 4096-byte sectors, 4-byte write unit) and check it against a host replay:
+/// every logged window result equals the host's for the same probe and window, every
+/// window from the front on is in the log in order, a front frame opens the capture and
+/// at most the pre-trigger ring's frames precede it.
+fn verify_log(args: &[String]) -> Result<(), String> {
+    use frothline_core::wire::{Body, Decoder, FeedResult};
+    use frothline_host::flash_image::{read_log, Geometry};
+    let [capture, layout, window, image, pre] = args else {
+        return Err(
+            "usage: frothline-capture-gen verify-log CAPTURE.wav LAYOUT.toml WINDOW IMAGE.bin PRE_TRIGGER"
+                .into(),
+        );
+    };
+    let pre: usize = pre
+        .parse()
+        .map_err(|_| format!("PRE_TRIGGER `{pre}` is not a number"))?;
+    let (expected, _) = host_results(capture, layout, window)?;
+    let bytes = std::fs::read(image).map_err(|e| format!("{image}: {e}"))?;
+    let geometry = Geometry {
+        page_bytes: 4096,
+        write_unit: 4,
+    };
+    let log = read_log(&bytes, geometry).map_err(|e| format!("{image}: {e}"))?;
+    let mut dec: Decoder = Decoder::new();
+    let mut frames = Vec::new();
+    for rec in &log.records {
+        // A record is one frame as `wire::encode` wrote it; the delimiter ends it.
+        let mut buf = rec.clone();
+        if buf.last() != Some(&0) {
+            buf.push(0);
+        }
+        let mut rest: &[u8] = &buf;
+        while !rest.is_empty() {
+            let r = dec.feed(rest);
+            rest = r.remaining();
+            if let FeedResult::Frame { frame, .. } = r {
+                frames.push(frame);
+            }
+        }
+    }
+    let st = *dec.stats();
+    if frames.len() != log.records.len() || st.crc_failures + st.malformed + st.oversize > 0 {
+        return Err(format!(
+            "{} records, {} frames decoded ({st:?})",
+            log.records.len(),
+            frames.len()
+        ));
+    }
+    let Some(first_front) = frames.iter().position(|f| matches!(f.body, Body::Front(_))) else {
+        return Err("no front frame in the log".into());
+    };
+    // Before the front: the device description the logger writes at a trigger, then the
+    // pre-trigger ring.
+    let before = frames[..first_front]
+        .iter()
+        .filter(|f| !matches!(f.body, Body::Describe(_)))
+        .count();
+    if before > pre {
+        return Err(format!(
+            "{before} frames before the front, the pre-trigger ring holds {pre}"
+        ));
+    }
+    if !frames[..first_front]
+        .iter()
+        .any(|f| matches!(f.body, Body::Describe(_)))
+    {
+        return Err("no device description before the front".into());
+    }
+    let Body::Front(arrival) = frames[first_front].body.clone() else {
+        return Err("unreachable: not a front".into());
+    };
+    let mut logged = Vec::new();
+    for f in &frames {
+        if let Body::Windows(ws) = &f.body {
+            logged.extend(ws.iter().copied());
+        }
+    }
+    for (i, g) in logged.iter().enumerate() {
+        match expected
+            .iter()
+            .find(|e| e.probe == g.probe && e.start == g.start)
+        {
+            Some(e) if e == g => {}
+            Some(e) => {
+                return Err(format!(
+                    "logged window result {i} differs:\n  device {g:?}\n  host   {e:?}"
+                ))
+            }
+            None => {
+                return Err(format!(
+                    "logged window result {i} is not in the host replay: {g:?}"
+                ))
+            }
+        }
+    }
+    // The windows after the front (the pre-front window starts at frame 0) are all in the
+    // log, in order: the capture outlasts the record.
+    let after: Vec<_> = expected.iter().filter(|e| e.start > 0).collect();
+    let logged_after: Vec<_> = logged.iter().filter(|g| g.start > 0).collect();
+    if after.len() != logged_after.len() || after.iter().zip(&logged_after).any(|(a, b)| *a != *b) {
+        return Err(format!(
+            "the log holds {} window results after the front, the host replay gives {}",
+            logged_after.len(),
+            after.len()
+        ));
+    }
+    let kinds = |k: fn(&Body) -> bool| frames.iter().filter(|f| k(&f.body)).count();
+    eprintln!(
+        "verify-log: {} bytes, {} pages ({} with a header), {} records = {} frames: {} from the \
+         pre-trigger ring, \
+         {} front, {} windows, {} profile, {} health; first front at frame {} (probe {}); \
+         {} window results equal the host replay's, none missing after the front",
+        bytes.len(),
+        log.pages,
+        log.stats.pages_found,
+        log.records.len(),
+        frames.len(),
+        before,
+        kinds(|b| matches!(b, Body::Front(_))),
+        kinds(|b| matches!(b, Body::Windows(_))),
+        kinds(|b| matches!(b, Body::Profile(_))),
+        kinds(|b| matches!(b, Body::Health(_))),
+        arrival.frame,
+        arrival.probe,
+        logged.len()
     );
     Ok(())
 }

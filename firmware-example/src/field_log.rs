@@ -1,0 +1,220 @@
+//! The unattended field logger: wait for a front, keep what came just before it, and
+//! store the results after it in a power-loss-safe log on flash.
+//!
+//! ```text
+//! records, fronts, profiles, health -> wire frames (frothline_core::wire::encode)
+//!   -> FieldLogger: Armed   -> pre-trigger ring of the last PRE_TRIGGER_FRAMES frames
+//!                   a front -> ring + front frame into the log, then CAPTURE_FRAMES more
+//!   -> Logbook on NOR flash (frothline_core::logbook): a record is on flash in full
+//!      once `append` returned, whatever power does afterwards
+//! ```
+//!
+//! The log holds the frames exactly as they would go over the UART, so the host reads an
+//! image of the flash region back with `frothline logbook IMAGE --out DIR` into the same
+//! CSV files a live session gives. Board-independent: any `NorFlash` will do (the
+//! emulated board uses [`crate::ram_nor::RamNor`]).
+//!
+//! Window results of one window close (all probes, same start) share one frame, as on the
+//! UART; the batch goes out when the next window starts, when it holds
+//! [`MAX_WINDOWS_PER_FRAME`] results, or at [`FieldLog::flush`].
+
+use crate::config::DEVICE_ID;
+use embedded_storage::nor_flash::NorFlash;
+use frothline_core::logbook::{FieldLogger, LogError, LogStats, Logbook, LoggerState, LoggerStats};
+use frothline_core::wire::{
+    encode, Body, Frame, FrontArrival, Health, ProfileFit, WindowResult, Windows, MAX_FRAME_BYTES,
+    MAX_WINDOWS_PER_FRAME,
+};
+
+/// Frames kept from before the front (window results and health), written out with it.
+pub const PRE_TRIGGER_FRAMES: usize = 6;
+/// Frames logged after the front: at 10 ms windows, one window frame and one profile frame
+/// per window plus the probes' front frames and health: about 100 ms of flow.
+pub const CAPTURE_FRAMES: u32 = 40;
+
+/// Counters of the logger and its log, for the summary.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct FieldLogStats {
+    /// The logger's counters (triggers, logged, dropped, overwritten).
+    pub logger: LoggerStats,
+    /// The log's counters since mount.
+    pub log: LogStats,
+    /// Frames that could not be encoded (none expected: every body fits a frame).
+    pub encode_errors: u32,
+    /// The first log error seen, if any.
+    pub first_error: Option<LogError>,
+    /// Device descriptions written (one at the start of each capture).
+    pub descriptions: u32,
+}
+
+/// The field logger over a log on `F`.
+pub struct FieldLog<F: NorFlash> {
+    book: Logbook<F>,
+    logger: FieldLogger<PRE_TRIGGER_FRAMES>,
+    seq: u16,
+    batch: Windows,
+    encode_errors: u32,
+    first_error: Option<LogError>,
+    descriptions: u32,
+}
+
+impl<F: NorFlash> FieldLog<F> {
+    /// Mount the log on `flash` (never fails on content: see `Logbook::mount`) and arm.
+    /// Each capture starts with the device description, so that a log whose oldest pages
+    /// were recycled still tells the host the sample rate and the probes.
+    pub fn mount(flash: F) -> Result<Self, LogError> {
+        let book = Logbook::mount(flash)?;
+        let mut logger = FieldLogger::new(CAPTURE_FRAMES);
+        logger.arm();
+        Ok(FieldLog {
+            book,
+            logger,
+            seq: 0,
+            batch: Windows::new(),
+            encode_errors: 0,
+            first_error: None,
+            descriptions: 0,
+        })
+    }
+
+    /// One window result.
+    pub fn window(&mut self, w: WindowResult) {
+        if self
+            .batch
+            .first()
+            .is_some_and(|first| first.start != w.start)
+            || self.batch.len() == MAX_WINDOWS_PER_FRAME
+        {
+            self.flush();
+        }
+        // Cannot fail: flushed above when full.
+        let _ = self.batch.push(w);
+    }
+
+    /// A probe's front arrival: the first one triggers the capture (later ones are logged
+    /// and restart the capture count, see `FieldLogger::front_detected`).
+    pub fn front(&mut self, f: FrontArrival) {
+        self.flush();
+        self.emit(Body::Front(f), true);
+    }
+
+    /// A profile fit of a slice after the front.
+    pub fn profile(&mut self, p: ProfileFit) {
+        self.flush();
+        self.emit(Body::Profile(p), false);
+    }
+
+    /// Health counters.
+    pub fn health(&mut self, h: Health) {
+        self.flush();
+        self.emit(Body::Health(h), false);
+    }
+
+    /// Send the pending window results.
+    pub fn flush(&mut self) {
+        if self.batch.is_empty() {
+            return;
+        }
+        let batch = core::mem::take(&mut self.batch);
+        self.emit(Body::Windows(batch), false);
+    }
+
+    /// The logger's state.
+    pub fn state(&self) -> LoggerState {
+        self.logger.state()
+    }
+
+    /// Counters.
+    pub fn stats(&self) -> FieldLogStats {
+        FieldLogStats {
+            logger: *self.logger.stats(),
+            log: *self.book.stats(),
+            encode_errors: self.encode_errors,
+            first_error: self.first_error,
+            descriptions: self.descriptions,
+        }
+    }
+
+    /// Give the flash back (after [`flush`](Self::flush)).
+    pub fn into_flash(self) -> F {
+        self.book.into_inner()
+    }
+
+    fn emit(&mut self, body: Body, front: bool) {
+        let frame = Frame {
+            device: DEVICE_ID,
+            seq: self.seq,
+            body,
+        };
+        self.seq = self.seq.wrapping_add(1);
+        let mut buf = [0u8; MAX_FRAME_BYTES];
+        let Ok(bytes) = encode(&frame, &mut buf) else {
+            self.encode_errors = self.encode_errors.saturating_add(1);
+            return;
+        };
+        let r = if front {
+            if self.logger.state() == LoggerState::Armed {
+                self.describe();
+            }
+            self.logger.front_detected(bytes, &mut self.book)
+        } else {
+            self.logger.result(bytes, &mut self.book)
+        };
+        if let Err(e) = r {
+            self.first_error.get_or_insert(e);
+        }
+    }
+}
+
+impl<F: NorFlash> FieldLog<F> {
+    /// Write the device description straight to the log (not through the pre-trigger ring).
+    fn describe(&mut self) {
+        let frame = Frame {
+            device: DEVICE_ID,
+            seq: self.seq,
+            body: Body::Describe(crate::link::description()),
+        };
+        self.seq = self.seq.wrapping_add(1);
+        let mut buf = [0u8; MAX_FRAME_BYTES];
+        match encode(&frame, &mut buf) {
+            Ok(bytes) => {
+                if let Err(e) = self.book.append(bytes) {
+                    self.first_error.get_or_insert(e);
+                } else {
+                    self.descriptions = self.descriptions.saturating_add(1);
+                }
+            }
+            Err(_) => self.encode_errors = self.encode_errors.saturating_add(1),
+        }
+    }
+}
+
+/// Count the records a log on `flash` holds (a fresh mount, as after a power cycle).
+pub fn count_records<F: NorFlash>(flash: F) -> Result<(u32, F), LogError> {
+    let mut book = Logbook::mount(flash)?;
+    let n = book.records().count() as u32;
+    Ok((n, book.into_inner()))
+}
+
+impl<F: NorFlash> crate::pipeline::ResultTap for FieldLog<F> {
+    fn window(&mut self, w: WindowResult) {
+        FieldLog::window(self, w);
+    }
+
+    fn front(&mut self, f: FrontArrival) {
+        FieldLog::front(self, f);
+    }
+
+    fn profile(&mut self, p: ProfileFit) {
+        FieldLog::profile(self, p);
+    }
+
+    fn health(&mut self, h: Health) {
+        FieldLog::health(self, h);
+    }
+
+    fn flush(&mut self) {
+        FieldLog::flush(self);
+    }
+}
