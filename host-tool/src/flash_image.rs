@@ -209,11 +209,18 @@ pub struct Detection {
     pub best: Option<LogRead>,
     /// Every geometry tried, in the order tried.
     pub candidates: Vec<Candidate>,
+    /// The page sizes that read as many records as the best (the best's included),
+    /// smallest first: more than one means the image cannot tell the page size.
+    pub same_records_pages: Vec<usize>,
 }
 
 /// Try every geometry of `pages` x `units` whose page size divides the image length and
-/// keep the one that reads the most records (ties: the larger page, then the larger
-/// unit) among those that find at least one valid page header.
+/// keep the one that reads the most records among those that find at least one valid
+/// page header. Ties: the smaller page, then the larger unit. A page size that is too
+/// small cuts the log at its first page end, one too large misses every later page
+/// header, so two page sizes read the same records only when all of them sit in the
+/// first page: the smallest page that holds them is then the tightest explanation (and
+/// [`Detection::same_records_pages`] says which others read the same).
 pub fn detect(image: &[u8], pages: &[usize], units: &[usize]) -> Detection {
     let mut best: Option<LogRead> = None;
     let mut candidates = Vec::new();
@@ -241,7 +248,7 @@ pub fn detect(image: &[u8], pages: &[usize], units: &[usize]) -> Detection {
             let key = |l: &LogRead| {
                 (
                     l.records.len(),
-                    l.geometry.page_bytes,
+                    std::cmp::Reverse(l.geometry.page_bytes),
                     l.geometry.write_unit,
                 )
             };
@@ -250,7 +257,26 @@ pub fn detect(image: &[u8], pages: &[usize], units: &[usize]) -> Detection {
             }
         }
     }
-    Detection { best, candidates }
+    let same_records_pages = match &best {
+        Some(b) => {
+            let mut p: Vec<usize> = candidates
+                .iter()
+                .filter(
+                    |c| matches!(c.outcome, Ok((found, n)) if found > 0 && n == b.records.len()),
+                )
+                .map(|c| c.geometry.page_bytes)
+                .collect();
+            p.sort_unstable();
+            p.dedup();
+            p
+        }
+        None => Vec::new(),
+    };
+    Detection {
+        best,
+        candidates,
+        same_records_pages,
+    }
 }
 
 #[cfg(test)]

@@ -57,6 +57,9 @@ pub struct LogbookReport {
     pub geometry: Geometry,
     /// True when the page size or write unit was detected rather than given.
     pub detected: bool,
+    /// Page sizes that read the same records as the one chosen (see
+    /// [`flash_image::detect`]); more than one: the image cannot tell the page size.
+    pub same_records_pages: Vec<usize>,
     /// Geometries tried.
     pub tried: usize,
     /// Geometries tried that found a valid page header.
@@ -182,11 +185,11 @@ fn find_log(
     path: &Path,
     image: &[u8],
     args: &LogbookArgs,
-) -> Result<(LogRead, Vec<Candidate>), HostError> {
+) -> Result<(LogRead, Vec<Candidate>, Vec<usize>), HostError> {
     let (pages, units) = candidate_sets(path, image.len(), args)?;
     let det = flash_image::detect(image, &pages, &units);
     if let Some(best) = det.best {
-        return Ok((best, det.candidates));
+        return Ok((best, det.candidates, det.same_records_pages));
     }
     // Nothing found: say why. A flash error cannot come from a read-only image read in
     // bounds; it would mean the core tried to write.
@@ -280,7 +283,7 @@ pub fn read_image(args: &LogbookArgs) -> Result<LogbookReport, HostError> {
     let layout = args.layout.as_deref().map(Layout::load).transpose()?;
     let path = &args.image;
     let image = load_image(path)?;
-    let (log, candidates) = find_log(path, &image, args)?;
+    let (log, candidates, same_records_pages) = find_log(path, &image, args)?;
     let name = path
         .file_name()
         .map_or_else(|| "flash".to_string(), |n| n.to_string_lossy().into_owned());
@@ -295,6 +298,7 @@ pub fn read_image(args: &LogbookArgs) -> Result<LogbookReport, HostError> {
             .iter()
             .filter(|c| matches!(c.outcome, Ok((p, _)) if p > 0))
             .count(),
+        same_records_pages,
         pages: log.pages,
         pages_found: log.stats.pages_found,
         recovered_cut: log.stats.recovered_cut,
@@ -324,6 +328,13 @@ impl std::fmt::Display for LogbookReport {
             );
             if g.layout_unit() == 4 {
                 let _ = write!(o, "; write units 1, 2 and 4 B lay a log out the same");
+            }
+            if let [first, .., last] = self.same_records_pages[..] {
+                let _ = write!(
+                    o,
+                    "; every record sits in the first page, so pages of {first} to {last} B \
+                     read the same and the smallest is taken: give --page-bytes if it is known"
+                );
             }
             let _ = write!(o, ")");
         } else {
@@ -385,24 +396,7 @@ impl std::fmt::Display for LogbookReport {
                 let _ = writeln!(o, "  ... {} more", s.seq_gaps.len() - 20);
             }
         }
-        let _ = write!(o, "{} window results", s.windows);
-        if s.windows_without_times > 0 {
-            let _ = write!(
-                o,
-                " ({} without times: the log holds no device description)",
-                s.windows_without_times
-            );
-        }
-        if s.fronts > 0 {
-            let _ = write!(o, ", {} fronts", s.fronts);
-        }
-        if s.profiles > 0 {
-            let _ = write!(o, ", {} profiles", s.profiles);
-        }
-        let files: Vec<String> = s.files.iter().map(|p| p.display().to_string()).collect();
-        if !files.is_empty() {
-            let _ = write!(o, " -> {}", files.join(", "));
-        }
+        o.push_str(&s.results_line("the log holds no device description"));
         writeln!(f, "{o}")
     }
 }

@@ -282,6 +282,26 @@ pub struct SessionReport {
 }
 
 impl SessionReport {
+    /// One line of what came out: window results (and how many lack times, `why`),
+    /// fronts, profiles, and the files written.
+    pub fn results_line(&self, why: &str) -> String {
+        let mut o = format!("{} window results", self.windows);
+        if self.windows_without_times > 0 {
+            o += &format!(" ({} without times: {why})", self.windows_without_times);
+        }
+        if self.fronts > 0 {
+            o += &format!(", {} fronts", self.fronts);
+        }
+        if self.profiles > 0 {
+            o += &format!(", {} profiles", self.profiles);
+        }
+        let files: Vec<String> = self.files.iter().map(|p| p.display().to_string()).collect();
+        if !files.is_empty() {
+            o += &format!(" -> {}", files.join(", "));
+        }
+        o
+    }
+
     /// Frames accepted, all ports.
     pub fn frames(&self) -> u64 {
         self.ports.iter().map(|p| p.decoder.frames).sum()
@@ -1216,6 +1236,59 @@ mod tests {
             &["p0", "0.1", "0.2", "", "0.1234", "45.67", "0.0015"]
         );
         assert_eq!(first[12], "12.5");
+    }
+
+    /// The probes of one front arrive one after the other; times since the front count
+    /// from the first of them (where the core starts the station's windows), and an
+    /// arrival long after is a new front (common practice, no source).
+    #[test]
+    fn times_since_the_front_count_from_the_earliest_probe_of_each_front() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut s = Session::new(SessionOptions {
+            ports: vec!["a".into()],
+            out_dir: Some(dir.path().to_path_buf()),
+            ..Default::default()
+        })
+        .unwrap();
+        let mut seq = 0u16;
+        let mut send = |s: &mut Session, body: Body| {
+            seq += 1;
+            let f = Frame {
+                device: 4,
+                seq,
+                body,
+            };
+            s.received(0, 0, &enc(&f)).unwrap();
+        };
+        send(&mut s, describe(4).body);
+        let front = |probe: u8, frame: u64| {
+            Body::Front(FrontArrival {
+                probe,
+                station: 0,
+                frame,
+            })
+        };
+        let at = |start: u64| {
+            let mut w = window(0);
+            w.start = start;
+            Body::window(w)
+        };
+        // First front: probe 0 at frame 1000, probe 1 at 1300 (20 kHz).
+        send(&mut s, front(0, 1000));
+        send(&mut s, front(1, 1300));
+        send(&mut s, at(1000));
+        send(&mut s, at(3000));
+        // A second front 5 s later.
+        send(&mut s, front(0, 101_000));
+        send(&mut s, at(101_000));
+        s.finish().unwrap();
+        let csv = std::fs::read_to_string(dir.path().join("windows.csv")).unwrap();
+        let since: Vec<&str> = csv
+            .lines()
+            .skip(1)
+            .map(|l| l.split(',').nth(3).unwrap())
+            .collect();
+        assert_eq!(since, ["0", "0.1", "0"]);
     }
 
     #[test]

@@ -252,24 +252,7 @@ impl std::fmt::Display for UnpackReport {
                 "tail: CORRUPT chunk header at offset {offset}: the last {bytes} bytes were not read"
             ),
         };
-        let _ = write!(o, "{} window results", s.windows);
-        if s.windows_without_times > 0 {
-            let _ = write!(
-                o,
-                " ({} without times: the device never described itself)",
-                s.windows_without_times
-            );
-        }
-        if s.fronts > 0 {
-            let _ = write!(o, ", {} fronts", s.fronts);
-        }
-        if s.profiles > 0 {
-            let _ = write!(o, ", {} profiles", s.profiles);
-        }
-        let files: Vec<String> = s.files.iter().map(|p| p.display().to_string()).collect();
-        if !files.is_empty() {
-            let _ = write!(o, " -> {}", files.join(", "));
-        }
+        o.push_str(&s.results_line("the device never described itself"));
         writeln!(f, "{o}")
     }
 }

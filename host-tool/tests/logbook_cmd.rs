@@ -619,7 +619,7 @@ fn a_given_geometry_the_log_cannot_use_is_refused() {
 }
 
 #[test]
-fn geometry_ties_go_to_the_larger_page_then_the_larger_unit() {
+fn geometry_ties_go_to_the_smaller_page_then_the_larger_unit() {
     // One cycle fits in the first KiB of page 0: every page size from 1 KiB to half the
     // image reads the same records, and units 1, 2 and 4 lay them out the same.
     let b = build::<4096, 4>(8, 1, false);
@@ -628,6 +628,10 @@ fn geometry_ties_go_to_the_larger_page_then_the_larger_unit() {
     let out = dir.path().join("out");
     let r = read_image(&args(&img, &out)).unwrap();
     assert_eq!(r.records as usize, b.records);
-    assert_eq!((r.geometry.page_bytes, r.geometry.write_unit), (16384, 4));
+    assert_eq!((r.geometry.page_bytes, r.geometry.write_unit), (1024, 4));
+    assert_eq!(r.same_records_pages, [1024, 2048, 4096, 8192, 16384]);
+    assert!(r
+        .to_string()
+        .contains("pages of 1024 to 16384 B read the same"));
     check_windows(&out.join("windows.csv"), &b.windows, true);
 }
