@@ -67,7 +67,6 @@ use crate::station::{FrontRecord, ProfileRecord, Station, MAX_DECAY_POINTS};
 use crate::tip_stats::TipAccumulator;
 use crate::window::WindowPolicy;
 use crate::MAX_CHANNELS;
-use heapless::Deque;
 
 /// Longest run of frames handed to the tips at once: keeps a run of a wide frame in L1 (and
 /// bounds the correlators' buffer of leading-tip edges).
@@ -103,6 +102,26 @@ impl EdgeSink for BubbleCounter {
     }
 }
 
+/// Run a copy of `detector` over `run` (frames from `first`) to find where the `need`-th
+/// bubble closes. Apart from the caller, so the copy takes stack only when it is made.
+#[inline(never)]
+fn look_ahead(
+    detector: &PhaseDetector,
+    run: &[i16],
+    channels: usize,
+    first: u64,
+    need: u32,
+) -> BubbleCounter {
+    let mut peek = detector.clone();
+    let mut counter = BubbleCounter {
+        need,
+        seen: 0,
+        at: None,
+    };
+    peek.process(run, channels, first, &mut counter);
+    counter
+}
+
 /// The queue is full: drain it with [`GenericChain::poll`] and call again.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -135,8 +154,9 @@ impl Tip {
         self.stats.add_run(n, counts);
     }
 
-    fn close(&mut self) -> TipStats {
-        self.stats.close(self.detector.levels())
+    /// Close the window into `out` (in place).
+    fn close_into(&mut self, out: &mut TipStats) {
+        self.stats.close_into(out, self.detector.levels())
     }
 }
 
@@ -248,47 +268,81 @@ impl<const P: usize, const L: usize> Probes<P, L> {
     }
 }
 
-/// A closed window waiting in the queue: the record without its raw correlation sums
-/// (those wait in the [`SumsStore`], if the chain keeps them).
+/// The closed windows waiting to be polled, oldest first, in `P` slots: records without
+/// their raw correlation sums (those wait in the [`SumsStore`], if the chain keeps them;
+/// a record type of no lag slots), built in place in their slot and lent out from there.
 #[derive(Clone, Debug)]
-struct Closed {
-    probe: u8,
-    start: u64,
-    end: u64,
-    since_front: Option<i64>,
-    lead: TipStats,
-    trail: Option<TipStats>,
-    flags: Flags,
-    correlation: Option<CorrelationResult>,
+struct RecordQueue<const P: usize> {
+    slots: [ProbeWindow<0>; P],
+    head: usize,
+    len: usize,
 }
 
-impl Closed {
-    /// The record, with `correlation_sums` attached.
-    fn into_record<const M: usize>(
-        self,
-        correlation_sums: Option<CorrelationSums<M>>,
-    ) -> ProbeWindow<M> {
-        let Closed {
-            probe,
-            start,
-            end,
-            since_front,
-            lead,
-            trail,
-            flags,
-            correlation,
-        } = self;
-        ProbeWindow {
-            probe,
-            start,
-            end,
-            since_front,
-            lead,
-            trail,
-            flags,
-            correlation,
-            correlation_sums,
+impl<const P: usize> RecordQueue<P> {
+    /// An empty slot, all zero bytes (so an empty chain's `static` stays in `.bss`): the
+    /// options are `Some` of values whose own options are `None` (a `None` of the outer
+    /// ones would be a non-zero niche value). Slots are written in full before they are
+    /// read.
+    const EMPTY_SLOT: ProbeWindow<0> = ProbeWindow {
+        trail: Some(TipStats::ZERO),
+        correlation: Some(CorrelationResult::none(0)),
+        ..ProbeWindow::<0>::ZERO
+    };
+
+    const fn new() -> Self {
+        RecordQueue {
+            slots: [Self::EMPTY_SLOT; P],
+            head: 0,
+            len: 0,
         }
+    }
+
+    fn capacity(&self) -> usize {
+        P
+    }
+
+    fn len(&self) -> usize {
+        self.len
+    }
+
+    fn clear(&mut self) {
+        self.head = 0;
+        self.len = 0;
+    }
+
+    /// The oldest record.
+    fn front(&self) -> Option<&ProbeWindow<0>> {
+        if self.len == 0 {
+            return None;
+        }
+        self.slots.get(self.head)
+    }
+
+    /// The record `pos` places after the oldest.
+    fn get(&self, pos: usize) -> Option<&ProbeWindow<0>> {
+        if pos >= self.len {
+            return None;
+        }
+        self.slots
+            .get((self.head + pos).checked_rem(P).unwrap_or(0))
+    }
+
+    /// Drop the oldest record.
+    fn pop_front(&mut self) {
+        if self.len > 0 {
+            self.head = (self.head + 1).checked_rem(P).unwrap_or(0);
+            self.len -= 1;
+        }
+    }
+
+    /// The slot of a new newest record, to be filled in place (`None` when full).
+    fn push_slot(&mut self) -> Option<&mut ProbeWindow<0>> {
+        if self.len >= P {
+            return None;
+        }
+        let at = (self.head + self.len).checked_rem(P).unwrap_or(0);
+        self.len += 1;
+        self.slots.get_mut(at)
     }
 }
 
@@ -381,7 +435,7 @@ impl<const P: usize, const T: usize> StationSlot<P, T> {
 struct Stats<const P: usize, const L: usize, const S: usize, const T: usize> {
     config: ChainConfig<P>,
     probes: Probes<P, L>,
-    queue: Deque<Closed, P>,
+    queue: RecordQueue<P>,
     sums: SumsStore<L, S>,
     /// The leading tips' edges of one run of one probe (tip-by-tip runs).
     run: RunBuffer,
@@ -478,7 +532,7 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
             stats: Stats {
                 config: ChainConfig::placeholder(),
                 probes: Probes::new(),
-                queue: Deque::new(),
+                queue: RecordQueue::new(),
                 sums: SumsStore::new(),
                 run: RunBuffer::new(),
                 frame: 0,
@@ -653,11 +707,13 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
 
     /// Take the oldest finished record, if any.
     pub fn poll(&mut self) -> Option<ProbeWindow<L>> {
-        let closed = self.stats.queue.pop_front()?;
+        let rec = self.stats.queue.front()?;
         // Every record with a correlation result has sums, kept in the same order (when the
         // chain keeps them).
-        let sums = closed.correlation.and_then(|_| self.stats.sums.pop());
-        Some(closed.into_record(sums))
+        let sums = rec.correlation.and_then(|_| self.stats.sums.pop());
+        let out = rec.with_sums(sums);
+        self.stats.queue.pop_front();
+        Some(out)
     }
 
     /// Take the oldest finished record without its raw correlation sums (given up if the
@@ -665,12 +721,22 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
     /// results takes. It moves about half the bytes of [`poll`](Self::poll)'s record
     /// (`28 L` bytes less) through the caller's stack.
     pub fn poll_lean(&mut self) -> Option<ProbeWindow<1>> {
-        let closed = self.stats.queue.pop_front()?;
-        if closed.correlation.is_some() {
+        self.poll_lean_with(|rec| rec.with_sums(None))
+    }
+
+    /// Hand the oldest finished record, without its raw correlation sums (as
+    /// [`poll_lean`](Self::poll_lean) gives it, as a record of no lag slots), to `f` where
+    /// it lies in the chain's queue, then drop it; `None` when there is none. No copy of
+    /// the record is made: what a device that sends each record on at once takes.
+    pub fn poll_lean_with<R>(&mut self, f: impl FnOnce(&ProbeWindow<0>) -> R) -> Option<R> {
+        let rec = self.stats.queue.front()?;
+        if rec.correlation.is_some() {
             // Keep the sums store in step with the queue.
             let _ = self.stats.sums.pop();
         }
-        Some(closed.into_record(None))
+        let out = f(rec);
+        self.stats.queue.pop_front();
+        Some(out)
     }
 
     /// Take the oldest front record, if any (station chains). The queue holds every front
@@ -845,13 +911,7 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
                 let need = count.saturating_sub(self.window_bubbles).max(1);
                 let run = data.get(done * n..(done + len) * n).unwrap_or(&[]);
                 if let Some(p) = self.probes.get(probe as usize) {
-                    let mut peek = p.lead.detector.clone();
-                    let mut counter = BubbleCounter {
-                        need,
-                        seen: 0,
-                        at: None,
-                    };
-                    peek.process(run, n, self.frame, &mut counter);
+                    let counter = look_ahead(&p.lead.detector, run, n, self.frame, need);
                     bubbles = counter.seen;
                     if let Some(e) = counter.at {
                         let upto = e.saturating_add(1).saturating_sub(self.frame);
@@ -986,6 +1046,26 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
         }
     }
 
+    /// Hand the window just closed to the station: each probe's void fraction and flags,
+    /// from its record (the newest records of the queue, one per probe in order). Apart
+    /// from `close_window`, so only a station chain's stack holds the list.
+    #[inline(never)]
+    fn slice_station(&mut self, partial: bool) {
+        // At most P probes (and a station takes at most MAX_STATION_PROBES of them).
+        let mut lead_c = [(None, Flags::NONE); P];
+        let probes = self.probes.len();
+        let k = probes.min(P).min(crate::front::MAX_STATION_PROBES);
+        let first = self.queue.len().saturating_sub(probes);
+        for (i, slot) in lead_c.iter_mut().enumerate().take(k) {
+            if let Some(rec) = self.queue.get(first + i) {
+                *slot = (rec.lead.void_fraction(), rec.flags);
+            }
+        }
+        if let Some(s) = self.station.as_mut() {
+            s.slice(self.window_start, self.frame, &lead_c[..k], partial);
+        }
+    }
+
     fn close_window(&mut self, partial: bool) {
         let frame = self.frame;
         if let Some(s) = self.station.as_mut() {
@@ -1000,56 +1080,71 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
         let after_front = matches!(self.config.window, WindowPolicy::AfterFront { .. });
         let late_start =
             after_front && !pre && locked.is_some_and(|(a, w)| self.window_start == w && w > a);
-        let mut lead_c = [(None, Flags::NONE); crate::front::MAX_STATION_PROBES];
         let det = &self.config.detector;
         for (i, p) in self.probes.iter_mut().enumerate() {
+            // Room was checked before the window was processed (the sums store has a slot
+            // for every record the queue can hold, or keeps none). Were the queue full, the
+            // oldest record would give way.
+            if self.queue.len() >= self.queue.capacity() {
+                if self.queue.front().is_some_and(|r| r.correlation.is_some()) {
+                    let _ = self.sums.pop();
+                }
+                self.queue.pop_front();
+            }
+            let Some(rec) = self.queue.push_slot() else {
+                break;
+            };
+            // The record is built in its queue slot.
             let (lead_tip, trail_tip, corr) = p.parts_mut();
-            let lead = lead_tip.close();
-            let trail = trail_tip.map(Tip::close);
-            let mut flags = lead.flags;
+            rec.probe = i as u8;
+            rec.start = self.window_start;
+            rec.end = self.frame;
+            rec.since_front = since_front;
+            rec.correlation_sums = None;
+            lead_tip.close_into(&mut rec.lead);
+            match trail_tip {
+                Some(t) => {
+                    let slot = rec.trail.get_or_insert(TipStats::ZERO);
+                    t.close_into(slot);
+                }
+                None => rec.trail = None,
+            }
+            let mut flags = rec.lead.flags;
             flags.set_if(Flags::PARTIAL_WINDOW, partial);
             flags.set_if(Flags::PRE_FRONT, pre);
             flags.set_if(Flags::LATE_FRONT_START, late_start);
-            if let Some(t) = &trail {
+            if let Some(t) = &rec.trail {
                 flags.set_if(Flags::TRAILING_STUCK, t.flags.contains(Flags::STUCK));
             }
-            let (correlation, sums) = match (corr, &trail) {
+            let (correlation, sums) = match (corr, &rec.trail) {
                 (Some(c), Some(t)) => {
-                    let sums = c.close(self.frame, &mut flags);
-                    let (result, f) = sums.analyse(det.min_peak_coefficient);
-                    flags |= f;
+                    let (result, sums) = if S == 0 {
+                        // No sums kept: analyse them in the correlator, no copy made.
+                        let min_peak = det.min_peak_coefficient;
+                        (c.close_analysed(self.frame, min_peak, &mut flags), None)
+                    } else {
+                        let sums = c.close(self.frame, &mut flags);
+                        let (result, f) = sums.analyse(det.min_peak_coefficient);
+                        flags |= f;
+                        (result, Some(sums))
+                    };
                     flags.set_if(
                         Flags::FEW_BUBBLES,
-                        lead.bubbles.min(t.bubbles) < det.min_bubbles,
+                        rec.lead.bubbles.min(t.bubbles) < det.min_bubbles,
                     );
-                    (Some(result), Some(sums))
+                    (Some(result), sums)
                 }
                 _ => (None, None),
             };
-            if let Some(slot) = lead_c.get_mut(i) {
-                *slot = (lead.void_fraction(), flags);
-            }
-            let rec = Closed {
-                probe: i as u8,
-                start: self.window_start,
-                end: self.frame,
-                since_front,
-                lead,
-                trail,
-                flags,
-                correlation,
-            };
-            // Room was checked before the window was processed (the sums store has a
-            // slot for every record the queue can hold, or keeps none).
-            let _ = self.queue.push_back(rec);
+            rec.flags = flags;
+            rec.correlation = correlation;
             if let Some(sums) = sums {
                 self.sums.push(sums);
             }
         }
-        if let (Some(s), false, Some(since)) = (self.station.as_mut(), pre, since_front) {
+        if let (true, false, Some(since)) = (self.station.is_some(), pre, since_front) {
             if since >= 0 {
-                let k = self.probes.len().min(lead_c.len());
-                s.slice(self.window_start, self.frame, &lead_c[..k], partial);
+                self.slice_station(partial);
             }
         }
         self.pre_front_open = false;

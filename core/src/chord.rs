@@ -97,6 +97,16 @@ impl ChordStats {
         }
     }
 
+    /// Back to no chord yet ([`new`](Self::new)), in place.
+    pub(crate) fn clear(&mut self) {
+        self.count = 0;
+        self.sum = 0;
+        self.min = u32::MAX;
+        self.max = 0;
+        self.short = 0;
+        self.bins = [0; CHORD_BINS];
+    }
+
     /// Add one chord of `n` samples.
     #[inline]
     pub fn add(&mut self, n: u32) {

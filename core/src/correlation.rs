@@ -262,7 +262,86 @@ impl<const L: usize> CorrelationSums<L> {
     /// [`Flags::PEAK_AT_LAG_BOUNDARY`], [`Flags::TU_UNDEFINED`]); `min_peak` is the
     /// smallest acceptable peak coefficient.
     pub fn analyse(&self, min_peak: f32) -> (CorrelationResult, Flags) {
-        let lags = self.lags();
+        self.view().analyse::<L>(min_peak)
+    }
+
+    /// Both coefficient functions at every lag (NaN where undefined) into `cross` and
+    /// `auto` (as many lags as fit): the same values as
+    /// [`cross_coefficient`](Self::cross_coefficient) and
+    /// [`auto_coefficient`](Self::auto_coefficient), bit for bit, computed in chunks so the
+    /// float stage vectorises.
+    pub fn coefficients(&self, cross: &mut [f32], auto: &mut [f32]) {
+        let v = self.view();
+        v.fill(cross, false, false);
+        v.fill(auto, true, false);
+    }
+
+    /// The sums as slices.
+    fn view(&self) -> SumsView<'_> {
+        SumsView {
+            frames: self.frames,
+            windows: self.windows,
+            lead_air: self.lead_air,
+            trail_air: self.trail_air,
+            cross: &self.cross,
+            auto: &self.auto,
+            lead_head: &self.lead_head,
+            lead_tail: &self.lead_tail,
+            trail_head: &self.trail_head,
+        }
+    }
+}
+
+/// The fields of [`CorrelationSums`] as slices (`lags()` = the length of `cross`; missing
+/// entries of the others read as 0): the sums of a record, or of a correlator's window
+/// analysed in place.
+#[derive(Clone, Copy)]
+struct SumsView<'a> {
+    frames: u64,
+    windows: u32,
+    lead_air: u64,
+    trail_air: u64,
+    cross: &'a [u64],
+    auto: &'a [u64],
+    lead_head: &'a [u32],
+    lead_tail: &'a [u32],
+    trail_head: &'a [u32],
+}
+
+impl SumsView<'_> {
+    fn lags(&self) -> usize {
+        self.cross.len()
+    }
+
+    /// [`CorrelationSums::overlap`].
+    fn overlap(&self, tau: usize) -> u64 {
+        self.frames
+            .saturating_sub((self.windows as u64).saturating_mul(tau as u64))
+    }
+
+    /// These sums as a record keeps them.
+    fn to_sums<const L: usize>(self) -> CorrelationSums<L> {
+        fn vec<T: Copy, const L: usize>(s: &[T]) -> Vec<T, L> {
+            let mut v = Vec::new();
+            let _ = v.extend_from_slice(s.get(..s.len().min(L)).unwrap_or(&[]));
+            v
+        }
+        CorrelationSums {
+            frames: self.frames,
+            windows: self.windows,
+            lead_air: self.lead_air,
+            trail_air: self.trail_air,
+            cross: vec(self.cross),
+            auto: vec(self.auto),
+            lead_head: vec(self.lead_head),
+            lead_tail: vec(self.lead_tail),
+            trail_head: vec(self.trail_head),
+        }
+    }
+
+    /// [`CorrelationSums::analyse`], with room for `L` lags (at least `lags()`).
+    fn analyse<const L: usize>(&self, min_peak: f32) -> (CorrelationResult, Flags) {
+        let lags = self.lags().min(L);
         let mut rab = [f32::NAN; L];
         let mut raa = [f32::NAN; L];
         self.fill(&mut rab, false, false);
@@ -273,51 +352,91 @@ impl<const L: usize> CorrelationSums<L> {
         analyse_functions(rab, raa, min_peak)
     }
 
-    /// Both coefficient functions at every lag (NaN where undefined) into `cross` and
-    /// `auto` (as many lags as fit): the same values as
-    /// [`cross_coefficient`](Self::cross_coefficient) and
-    /// [`auto_coefficient`](Self::auto_coefficient), bit for bit, computed in chunks so the
-    /// float stage vectorises.
-    pub fn coefficients(&self, cross: &mut [f32], auto: &mut [f32]) {
-        self.fill(cross, false, false);
-        self.fill(auto, true, false);
-    }
-
     /// One coefficient function (`auto`: R_aa, else R_ab) into `out`, chunk by chunk;
     /// with `stop_at_zero`, stop after the chunk in which it first falls to 0 or below (the
     /// rest of `out` is left as it is).
     fn fill(&self, out: &mut [f32], auto: bool, stop_at_zero: bool) {
-        const CHUNK: usize = 32;
+        const CHUNK: usize = 16;
+        const STOP_CHUNK: usize = 8;
         let lags = self.lags().min(out.len());
         let (prod, second, second_total) = if auto {
-            (&self.auto, &self.lead_head, self.lead_air)
+            (self.auto, self.lead_head, self.lead_air)
         } else {
-            (&self.cross, &self.trail_head, self.trail_air)
+            (self.cross, self.trail_head, self.trail_air)
         };
+        // Windows of up to SMALL_N frames (every real window) take a 32-bit integer stage:
+        // the same integers as the 64-bit one (see `pearson_parts_small`), without 64-bit
+        // multiplications and conversions (library calls on a 32-bit core).
+        let small = match (
+            self.lead_tail.get(..lags),
+            second.get(..lags),
+            prod.get(..lags),
+        ) {
+            (Some(tail), Some(head), Some(prod))
+                if self.frames <= SMALL_N as u64
+                    && self.lead_air <= u32::MAX as u64
+                    && second_total <= u32::MAX as u64 =>
+            {
+                Some((tail, head, prod))
+            }
+            _ => None,
+        };
+        // The overlap of the next lag in the 32-bit stage: `frames - windows * tau`,
+        // saturating, one lag after the other (the same values as `overlap`).
+        let mut n32 = self.frames as u32;
+        // Stopping at the first zero, short chunks: R_aa usually falls to 0 within a few
+        // lags, and the lags after it are not needed.
+        let chunk_len = if stop_at_zero { STOP_CHUNK } else { CHUNK };
+        // The variance terms of a chunk (its numerators wait in `out`).
+        let mut parts = [[0f32; CHUNK]; 2];
         let mut first = 0;
         while first < lags {
-            let len = (lags - first).min(CHUNK);
-            // Exact integer stage, lag by lag.
-            let mut parts = [[0f32; CHUNK]; 3];
-            for i in 0..len {
-                let tau = first + i;
-                let get32 = |c: &Vec<u32, L>| c.get(tau).copied().unwrap_or(0) as u64;
-                let n = self.overlap(tau);
-                let sa = self.lead_air.saturating_sub(get32(&self.lead_tail));
-                let sb = second_total.saturating_sub(get32(second));
-                let sab = prod.get(tau).copied().unwrap_or(0);
-                let (num, va, vb) =
-                    pearson_parts(n, sa, sb, sab).unwrap_or((f32::NAN, f32::NAN, f32::NAN));
-                let [pn, pa, pb] = &mut parts;
-                if let (Some(x), Some(y), Some(z)) = (pn.get_mut(i), pa.get_mut(i), pb.get_mut(i)) {
-                    (*x, *y, *z) = (num, va, vb);
+            let len = (lags - first).min(chunk_len);
+            // Exact integer stage, lag by lag (the first `len` entries of `parts`).
+            let [pa, pb] = &mut parts;
+            let pn = out.get_mut(first..first + len).unwrap_or(&mut []);
+            if let Some((tail, head, prod)) = small {
+                let (lead_air, second_total) = (self.lead_air as u32, second_total as u32);
+                let range = first..first + len;
+                let ins = tail
+                    .get(range.clone())
+                    .unwrap_or(&[])
+                    .iter()
+                    .zip(head.get(range.clone()).unwrap_or(&[]))
+                    .zip(prod.get(range).unwrap_or(&[]));
+                let outs = pn.iter_mut().zip(pa.iter_mut()).zip(pb.iter_mut());
+                for (((&t, &h), &sab), ((x, y), z)) in ins.zip(outs) {
+                    // A `sab` beyond u32::MAX exceeds `min(sa, sb) <= n` either way.
+                    (*x, *y, *z) = pearson_parts_masked(
+                        n32,
+                        lead_air.saturating_sub(t),
+                        second_total.saturating_sub(h),
+                        sab.min(u32::MAX as u64) as u32,
+                    );
+                    n32 = n32.saturating_sub(self.windows);
+                }
+            } else {
+                for i in 0..len {
+                    let tau = first + i;
+                    let get32 = |c: &[u32]| c.get(tau).copied().unwrap_or(0) as u64;
+                    let n = self.overlap(tau);
+                    let sa = self.lead_air.saturating_sub(get32(self.lead_tail));
+                    let sb = second_total.saturating_sub(get32(second));
+                    let sab = prod.get(tau).copied().unwrap_or(0);
+                    let (num, va, vb) =
+                        pearson_parts(n, sa, sb, sab).unwrap_or((f32::NAN, f32::NAN, f32::NAN));
+                    if let (Some(x), Some(y), Some(z)) =
+                        (pn.get_mut(i), pa.get_mut(i), pb.get_mut(i))
+                    {
+                        (*x, *y, *z) = (num, va, vb);
+                    }
                 }
             }
-            // Float stage over the chunk.
-            let [pn, pa, pb] = &parts;
+            // Float stage over the chunk (each numerator replaced by its coefficient).
+            let [pa, pb] = &parts;
             let chunk = out.get_mut(first..first + len).unwrap_or(&mut []);
-            for (o, ((&n, &va), &vb)) in chunk.iter_mut().zip(pn.iter().zip(pa).zip(pb)) {
-                *o = pearson_finish(n, va, vb);
+            for (o, (&va, &vb)) in chunk.iter_mut().zip(pa.iter().zip(pb)) {
+                *o = pearson_finish(*o, va, vb);
             }
             if stop_at_zero && chunk.iter().any(|&r| r <= 0.0) {
                 return;
@@ -403,7 +522,10 @@ fn pearson_parts(n: u64, sa: u64, sb: u64, sab: u64) -> Option<(f32, f32, f32)> 
     if n < 2 || sa > n || sb > n || sab > sa.min(sb) {
         return None;
     }
-    if n <= 1 << 31 {
+    if n <= SMALL_N as u64 {
+        // All four are at most n here.
+        pearson_parts_small(n as u32, sa as u32, sb as u32, sab as u32)
+    } else if n <= 1 << 31 {
         let (n, sa, sb, sab) = (n as i64, sa as i64, sb as i64, sab as i64);
         Some((
             (n * sab - sa * sb) as f32,
@@ -416,6 +538,39 @@ fn pearson_parts(n: u64, sa: u64, sb: u64, sab: u64) -> Option<(f32, f32, f32)> 
         let (va, vb) = (sa.checked_mul(n - sa)?, sb.checked_mul(n - sb)?);
         Some((num as f32, va as f32, vb as f32))
     }
+}
+
+/// Longest overlap whose integer stage fits 32-bit arithmetic: `n^2 < 2^31`.
+const SMALL_N: u32 = 46_340;
+
+/// [`pearson_parts`] for `n <= SMALL_N`, in 32-bit integers: every product is below
+/// `n^2 < 2^31`, so the integers are those of the 64-bit stage, and their rounding to f32
+/// (a single instruction on a Cortex-M4F, a library call from 64 bits) is the same.
+#[inline(always)]
+fn pearson_parts_small(n: u32, sa: u32, sb: u32, sab: u32) -> Option<(f32, f32, f32)> {
+    if !(2..=SMALL_N).contains(&n) || sa > n || sb > n || sab > sa.min(sb) {
+        return None;
+    }
+    let (n, sa, sb, sab) = (n as i32, sa as i32, sb as i32, sab as i32);
+    Some((
+        n.wrapping_mul(sab).wrapping_sub(sa.wrapping_mul(sb)) as f32,
+        sa.wrapping_mul(n - sa) as f32,
+        sb.wrapping_mul(n - sb) as f32,
+    ))
+}
+
+/// [`pearson_parts_small`] without branches, for a whole function: inconsistent sums give a
+/// variance term of 0, so [`pearson_finish`] gives NaN for them, as for `None`.
+#[inline(always)]
+fn pearson_parts_masked(n: u32, sa: u32, sb: u32, sab: u32) -> (f32, f32, f32) {
+    let ok = (2..=SMALL_N).contains(&n) & (sa <= n) & (sb <= n) & (sab <= sa.min(sb));
+    let mask = (ok as i32).wrapping_neg();
+    let (n, sa, sb, sab) = (n as i32, sa as i32, sb as i32, sab as i32);
+    (
+        n.wrapping_mul(sab).wrapping_sub(sa.wrapping_mul(sb)) as f32,
+        (sa.wrapping_mul(n.wrapping_sub(sa)) & mask) as f32,
+        sb.wrapping_mul(n.wrapping_sub(sb)) as f32,
+    )
 }
 
 /// The float stage of [`pearson`] (NaN when a variance is zero): `num / sqrt(va vb)`, with
@@ -445,9 +600,10 @@ fn pearson_finish(num: f32, va: f32, vb: f32) -> f32 {
 #[inline]
 fn rsqrt(x: f32) -> f32 {
     let mut y = F32Ext::invsqrt(x);
-    for _ in 0..3 {
-        y *= 1.5 - 0.5 * x * y * y;
-    }
+    // Three steps, written out (a loop of three is not unrolled at opt-level "s").
+    y *= 1.5 - 0.5 * x * y * y;
+    y *= 1.5 - 0.5 * x * y * y;
+    y *= 1.5 - 0.5 * x * y * y;
     y
 }
 
@@ -605,41 +761,45 @@ fn analyse_functions(rab: &[f32], raa: &[f32], min_peak: f32) -> (CorrelationRes
 
 /// Add the ramp `c * ramp(tau - p)` to the second-difference array `d` over lags
 /// `0..=max_lag` (see the module documentation).
+/// (`d` holds two's-complement `i64` values in `u64` slots: the wrapping operations are
+/// the same bit for bit.)
 #[inline]
-fn add_ramp(d: &mut [i64], max_lag: usize, p: i64, c: i64) {
+fn add_ramp(d: &mut [u64], max_lag: usize, p: i64, c: i64) {
     if p >= 0 {
         if p < max_lag as i64 {
             if let Some(x) = d.get_mut(p as usize + 1) {
-                *x = x.wrapping_add(c);
+                *x = x.wrapping_add(c as u64);
             }
         }
     } else {
         if let Some(x) = d.first_mut() {
-            *x = x.wrapping_sub(c.wrapping_mul(p));
+            *x = x.wrapping_sub(c.wrapping_mul(p) as u64);
         }
         if let Some(x) = d.get_mut(1) {
-            *x = x.wrapping_add(c.wrapping_mul(p.wrapping_add(1)));
+            *x = x.wrapping_add(c.wrapping_mul(p.wrapping_add(1)) as u64);
         }
     }
 }
 
-/// The double prefix sum of `d`, written into `out` (clamped to the output type: exact
-/// sums are never negative and fit).
-fn double_prefix<T: TryFrom<i64> + Default, const L: usize>(
-    d: impl Iterator<Item = i64>,
-    out: &mut Vec<T, L>,
-) {
-    out.clear();
+/// The double prefix sum of the second differences `d` (two's-complement `i64` values),
+/// in place, clamped at 0 (exact sums are never negative).
+fn double_prefix_wide(d: &mut [u64]) {
     let (mut slope, mut value) = (0i64, 0i64);
-    for x in d {
-        slope = slope.wrapping_add(x);
+    for x in d.iter_mut() {
+        slope = slope.wrapping_add(*x as i64);
         value = value.wrapping_add(slope);
-        if out
-            .push(T::try_from(value.max(0)).unwrap_or_default())
-            .is_err()
-        {
-            break;
-        }
+        *x = value.max(0) as u64;
+    }
+}
+
+/// The double prefix sum of the second differences `d` (two's-complement `i32` values), in
+/// place, clamped to `u32` (0 when out of range: exact sums are never negative and fit).
+fn double_prefix_narrow(d: &mut [u32]) {
+    let (mut slope, mut value) = (0i64, 0i64);
+    for x in d.iter_mut() {
+        slope = slope.wrapping_add(*x as i32 as i64);
+        value = value.wrapping_add(slope);
+        *x = u32::try_from(value.max(0)).unwrap_or(0);
     }
 }
 
@@ -768,12 +928,14 @@ impl RunBuffer {
 pub struct Correlator<const L: usize> {
     max_lag: usize,
     start: u64,
-    /// Second differences of the cross and auto sums over the lags.
-    cross: [i64; L],
-    auto: [i64; L],
-    /// Second differences of the air counts among the first frames of the window.
-    lead_head: [i32; L],
-    trail_head: [i32; L],
+    /// Second differences of the cross and auto sums over the lags (two's-complement
+    /// `i64` values; at a window close, in place, the sums themselves).
+    cross: [u64; L],
+    auto: [u64; L],
+    /// Second differences of the air counts among the first frames of the window
+    /// (two's-complement `i32` values; at a window close, the counts).
+    lead_head: [u32; L],
+    trail_head: [u32; L],
     ring: Ring<L>,
     lead_air: bool,
     trail_air: bool,
@@ -884,51 +1046,97 @@ impl<const L: usize> Correlator<L> {
     /// next window there. Raises [`Flags::CORRELATION_OVERFLOW`] in `flags` if edges were
     /// lost. Call it between runs (after [`end_run`](Self::end_run)).
     pub fn close(&mut self, end: u64, flags: &mut Flags) -> CorrelationSums<L> {
-        let t_end = self.rel(end);
         let (lead_air, trail_air) = (self.lead_air, self.trail_air);
+        let mut tail = [0u32; L];
+        let totals = self.settle(end, &mut tail);
+        let sums = self.view(totals, &tail).to_sums();
+        self.reopen(end, lead_air, trail_air, flags);
+        sums
+    }
+
+    /// Close the window at absolute frame `end` as [`close`](Self::close) does, and return
+    /// the derived results of its sums (as [`CorrelationSums::analyse`] gives them, bit for
+    /// bit) instead of the sums: they are analysed where they are, in the correlator, so
+    /// no copy of them is made. The analysis flags and [`Flags::CORRELATION_OVERFLOW`] go
+    /// into `flags`.
+    pub fn close_analysed(
+        &mut self,
+        end: u64,
+        min_peak: f32,
+        flags: &mut Flags,
+    ) -> CorrelationResult {
+        let (lead_air, trail_air) = (self.lead_air, self.trail_air);
+        let mut tail = [0u32; L];
+        let totals = self.settle(end, &mut tail);
+        let (result, f) = self.view(totals, &tail).analyse::<L>(min_peak);
+        *flags |= f;
+        self.reopen(end, lead_air, trail_air, flags);
+        result
+    }
+
+    /// The first half of a close: clip the intervals open at `end`, turn the second
+    /// differences into the sums in place, and the leading tip's tail counts into `tail`.
+    /// Returns `(frames, lead_air, trail_air, lags)`.
+    fn settle(&mut self, end: u64, tail: &mut [u32; L]) -> (u64, u64, u64, usize) {
+        let t_end = self.rel(end);
         // Clip intervals open at the window end.
-        if lead_air {
+        if self.lead_air {
             self.lead_edge(t_end, false);
         }
-        if trail_air {
+        if self.trail_air {
             self.trail_edge(t_end, false);
         }
-        let lags = self.max_lag + 1;
-        let mut sums = CorrelationSums::empty(0);
-        sums.frames = end.saturating_sub(self.start);
-        sums.windows = 1;
+        let lags = (self.max_lag + 1).min(L);
+        let frames = end.saturating_sub(self.start);
         // sum e t over a tip's edges is minus its air time.
-        sums.lead_air = self.lead_q.wrapping_neg().max(0) as u64;
-        sums.trail_air = self.trail_q.wrapping_neg().max(0) as u64;
-        double_prefix(self.cross.iter().take(lags).copied(), &mut sums.cross);
-        double_prefix(self.auto.iter().take(lags).copied(), &mut sums.auto);
-        double_prefix(
-            self.lead_head.iter().take(lags).map(|&x| x as i64),
-            &mut sums.lead_head,
-        );
-        double_prefix(
-            self.trail_head.iter().take(lags).map(|&x| x as i64),
-            &mut sums.trail_head,
-        );
+        let lead_air = self.lead_q.wrapping_neg().max(0) as u64;
+        let trail_air = self.trail_q.wrapping_neg().max(0) as u64;
+        for d in [&mut self.cross, &mut self.auto] {
+            double_prefix_wide(d.get_mut(..lags).unwrap_or(&mut []));
+        }
+        for d in [&mut self.lead_head, &mut self.trail_head] {
+            double_prefix_narrow(d.get_mut(..lags).unwrap_or(&mut []));
+        }
         // Tail counts: an edge at t adds -e ramp(tau - (N - t)); the ring holds every edge
-        // of the last max_lag frames.
-        let mut tail = [0i64; L];
+        // of the last max_lag frames (only ramps that start inside the lags: 0 <= p < m).
         let m = self.max_lag;
         self.ring.for_each_recent(|t, e| {
             let p = t_end.wrapping_sub(t);
             if p < 0 || p >= m as i64 {
                 return p < 0;
             }
-            add_ramp(&mut tail, m, p, -e);
+            if let Some(x) = tail.get_mut(p as usize + 1) {
+                *x = x.wrapping_add((-e) as i32 as u32);
+            }
             true
         });
-        double_prefix(tail.iter().take(lags).copied(), &mut sums.lead_tail);
+        double_prefix_narrow(tail.get_mut(..lags).unwrap_or(&mut []));
+        (frames, lead_air, trail_air, lags)
+    }
+
+    /// The sums of a settled window.
+    fn view<'a>(&'a self, totals: (u64, u64, u64, usize), tail: &'a [u32]) -> SumsView<'a> {
+        let (frames, lead_air, trail_air, lags) = totals;
+        SumsView {
+            frames,
+            windows: 1,
+            lead_air,
+            trail_air,
+            cross: self.cross.get(..lags).unwrap_or(&[]),
+            auto: self.auto.get(..lags).unwrap_or(&[]),
+            lead_head: self.lead_head.get(..lags).unwrap_or(&[]),
+            lead_tail: tail.get(..lags).unwrap_or(&[]),
+            trail_head: self.trail_head.get(..lags).unwrap_or(&[]),
+        }
+    }
+
+    /// The second half of a close: flag lost edges and open the next window at `end`.
+    fn reopen(&mut self, end: u64, lead_air: bool, trail_air: bool, flags: &mut Flags) {
         if self.overflow {
             *flags |= Flags::CORRELATION_OVERFLOW;
         }
         self.reset(end);
         self.open(end, lead_air, trail_air);
-        sums
     }
 
     fn reset(&mut self, start: u64) {
@@ -1036,23 +1244,23 @@ impl<const L: usize> Correlator<L> {
 /// (running sums `se = sum e_j`, `sq = sum e_j t_j`): `p = t_j - t < 0`, so each adds the
 /// line `c (tau - p)`, `c = -e e_j`.
 #[inline]
-fn add_line(d: &mut [i64], t: i64, e: i64, se: i64, sq: i64) {
+fn add_line(d: &mut [u64], t: i64, e: i64, se: i64, sq: i64) {
     // D[0] += sum -c p = e (sq - t se);  D[1] += sum c (1 + p) = -e (se (1 - t) + sq).
     if let Some(x) = d.first_mut() {
-        *x = x.wrapping_add(e.wrapping_mul(sq.wrapping_sub(t.wrapping_mul(se))));
+        *x = x.wrapping_add(e.wrapping_mul(sq.wrapping_sub(t.wrapping_mul(se))) as u64);
     }
     if let Some(x) = d.get_mut(1) {
         let s = se.wrapping_mul(1i64.wrapping_sub(t)).wrapping_add(sq);
-        *x = x.wrapping_sub(e.wrapping_mul(s));
+        *x = x.wrapping_sub(e.wrapping_mul(s) as u64);
     }
 }
 
 /// An edge `(t, e)` adds `e ramp(tau - t)` to the air count of the first `tau` frames.
 #[inline]
-fn add_head(d: &mut [i32], max_lag: usize, t: i64, e: i64) {
+fn add_head(d: &mut [u32], max_lag: usize, t: i64, e: i64) {
     if (0..max_lag as i64).contains(&t) {
         if let Some(x) = d.get_mut(t as usize + 1) {
-            *x = x.wrapping_add(e as i32);
+            *x = x.wrapping_add(e as i32 as u32);
         }
     }
 }

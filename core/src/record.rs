@@ -42,6 +42,20 @@ pub struct TipStats {
 }
 
 impl TipStats {
+    /// Nothing counted (a record slot not filled yet).
+    pub(crate) const ZERO: Self = TipStats {
+        frames: 0,
+        air_frames: 0,
+        rail_frames: 0,
+        unlearnt_frames: 0,
+        bubbles: 0,
+        droplets: 0,
+        bubble_chords: ChordStats::ZERO,
+        droplet_chords: ChordStats::ZERO,
+        levels: None,
+        flags: Flags::NONE,
+    };
+
     /// Void fraction: the fraction of the window's frames in air.
     pub fn void_fraction(&self) -> Option<f32> {
         (self.frames > 0).then(|| (self.air_frames as f64 / self.frames as f64) as f32)
@@ -92,6 +106,38 @@ pub struct ProbeWindow<const L: usize = DEFAULT_LAGS> {
 }
 
 impl<const L: usize> ProbeWindow<L> {
+    /// An empty record (a queue slot not filled yet).
+    pub(crate) const ZERO: Self = ProbeWindow {
+        probe: 0,
+        start: 0,
+        end: 0,
+        since_front: None,
+        lead: TipStats::ZERO,
+        trail: None,
+        flags: Flags::NONE,
+        correlation: None,
+        correlation_sums: None,
+    };
+
+    /// The same record with `correlation_sums` (its own, if any, left out), as a record
+    /// type of `M` lag slots.
+    pub(crate) fn with_sums<const M: usize>(
+        &self,
+        correlation_sums: Option<CorrelationSums<M>>,
+    ) -> ProbeWindow<M> {
+        ProbeWindow {
+            probe: self.probe,
+            start: self.start,
+            end: self.end,
+            since_front: self.since_front,
+            lead: self.lead.clone(),
+            trail: self.trail.clone(),
+            flags: self.flags,
+            correlation: self.correlation,
+            correlation_sums,
+        }
+    }
+
     /// The same record without its raw correlation sums, as a record type of `M` lag slots
     /// (pick a small `M`): what a consumer keeps when it only needs the results. Moving a
     /// record moves its sums too (`28 L` bytes), so a host that stores or sends many records

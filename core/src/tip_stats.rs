@@ -68,6 +68,14 @@ impl TipAccumulator {
 
     /// Close the window: return its statistics and start the next window.
     pub fn close(&mut self, levels: Option<Levels>) -> TipStats {
+        let mut stats = TipStats::ZERO;
+        self.close_into(&mut stats, levels);
+        stats
+    }
+
+    /// [`close`](Self::close), the statistics written into `stats` (a record built in
+    /// place: no copy of it through the stack).
+    pub fn close_into(&mut self, stats: &mut TipStats, levels: Option<Levels>) {
         let mut flags = Flags::NONE;
         let chords = self.bubble_chords.count + self.droplet_chords.count;
         let short = self.bubble_chords.short + self.droplet_chords.short;
@@ -78,23 +86,26 @@ impl TipAccumulator {
             Flags::SHORT_CHORDS,
             chords > 0 && short as u64 * 10 >= chords as u64,
         );
-        let stats = TipStats {
-            frames: self.frames,
-            air_frames: self.air_frames,
-            rail_frames: self.rail_frames,
-            unlearnt_frames: self.unlearnt_frames,
-            bubbles: self.bubbles,
-            droplets: self.droplets,
-            bubble_chords: self.bubble_chords.clone(),
-            droplet_chords: self.droplet_chords.clone(),
-            levels,
-            flags,
-        };
-        *self = TipAccumulator {
-            since: self.since,
-            ..TipAccumulator::new()
-        };
-        stats
+        stats.frames = self.frames;
+        stats.air_frames = self.air_frames;
+        stats.rail_frames = self.rail_frames;
+        stats.unlearnt_frames = self.unlearnt_frames;
+        stats.bubbles = self.bubbles;
+        stats.droplets = self.droplets;
+        stats.bubble_chords.clone_from(&self.bubble_chords);
+        stats.droplet_chords.clone_from(&self.droplet_chords);
+        stats.levels = levels;
+        stats.flags = flags;
+        // Start the next window (as `new()`, keeping `since`), field by field: no
+        // temporary accumulator on the stack.
+        self.frames = 0;
+        self.air_frames = 0;
+        self.rail_frames = 0;
+        self.unlearnt_frames = 0;
+        self.bubbles = 0;
+        self.droplets = 0;
+        self.bubble_chords.clear();
+        self.droplet_chords.clear();
     }
 }
 

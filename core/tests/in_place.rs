@@ -331,6 +331,21 @@ fn poll_lean_gives_the_records_of_poll_without_their_sums() {
     }
     assert!(full.iter().any(|r| r.correlation.is_some()));
     assert_eq!(lean, full);
+    // poll_lean_with lends the same records where they lie (a record type of no lag slots).
+    let mut c = Steady::new(steady_config(6, WindowPolicy::Frames(1500))).unwrap();
+    let mut lent = Vec::new();
+    for block in samples.chunks(777) {
+        let mut rest = block;
+        while !rest.is_empty() {
+            let used = c.push(rest);
+            rest = &rest[used..];
+            while c
+                .poll_lean_with(|r| lent.push(r.without_sums::<1>()))
+                .is_some()
+            {}
+        }
+    }
+    assert_eq!(lent, full);
 }
 
 #[test]

@@ -32,7 +32,7 @@ use cortex_m::peripheral::DWT;
 use cortex_m_rt::entry;
 use critical_section::Mutex;
 use heapless::spsc::Queue;
-use static_cell::ConstStaticCell;
+use static_cell::{ConstStaticCell, StaticCell};
 use stm32f4xx_hal::adc::config::{
     AdcConfig, Continuous, Dma as AdcDma, ExternalTrigger, SampleTime, Scan, Sequence, TriggerMode,
 };
@@ -341,7 +341,9 @@ fn main() -> ! {
         halt()
     }
 
-    let link = Link::new(uart, capture::SAMPLE_RATE_HZ);
+    // The link lives in a static, built in place (not on the main loop's stack).
+    static LINK: StaticCell<Link<DmaUart>> = StaticCell::new();
+    let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
     let mut pipe = Pipeline::new(chain, full_rx, free_tx, link, CycleClock);
     pipe.start();
     loop {

@@ -39,6 +39,6 @@ pub type FwChain = frothline_core::GenericChain<
     0,
     { STATION_SLOTS },
 >;
-/// The chain's records, as the main loop takes them (`poll_lean`: no raw correlation sums,
-/// so a record moves 1.5 KB through the stack instead of 3.3 KB).
-pub type FwRecord = frothline_core::ProbeWindow<1>;
+/// The chain's records, as the main loop sees them (`poll_lean_with`: lent where they lie
+/// in the chain's queue, without raw correlation sums, a record type of no lag slots).
+pub type FwRecord = frothline_core::ProbeWindow<0>;

@@ -70,7 +70,7 @@ impl<W: Write> Link<W> {
 
     /// Queue a health frame (replaces one not yet sent: its counters are cumulative).
     pub fn health(&mut self, h: Health) {
-        self.streamer.offer(Body::Health(h));
+        self.streamer.offer_health(h);
     }
 
     /// Send what the link's budget allows at sample-clock time `now` (frames).

@@ -44,7 +44,7 @@ use cortex_m_rt::{entry, exception};
 use cortex_m_semihosting::debug;
 use critical_section::Mutex;
 use heapless::spsc::Queue;
-use static_cell::ConstStaticCell;
+use static_cell::{ConstStaticCell, StaticCell};
 
 #[cfg(feature = "defmt-semihosting")]
 use defmt_semihosting as _;
@@ -141,11 +141,13 @@ impl SampleSource for Source {
 type PacedAcquisition = Acquisition<Source, TimerReader>;
 
 /// The acquisition, from `main` to the SysTick handler (taken once, in a critical section).
-static HANDOFF: Mutex<RefCell<Option<PacedAcquisition>>> = Mutex::new(RefCell::new(None));
+/// (The acquisition itself lives in a static of its own: see [`acquisition`].)
+static HANDOFF: Mutex<RefCell<Option<&'static mut PacedAcquisition>>> =
+    Mutex::new(RefCell::new(None));
 
 #[exception]
 fn SysTick() {
-    static mut ACQ: Option<PacedAcquisition> = None;
+    static mut ACQ: Option<&'static mut PacedAcquisition> = None;
     if ACQ.is_none() {
         *ACQ = critical_section::with(|cs| HANDOFF.borrow_ref_mut(cs).take());
     }
@@ -210,24 +212,12 @@ fn run(mode: Mode) -> bool {
     for b in BLOCK_BUFFERS.take().iter_mut() {
         let _ = free_tx.enqueue(b);
     }
-    let channels = capture::CHANNELS as usize;
-    let source = match mode {
-        Mode::Adc => {
-            let dev = SimAdc::new(capture::SAMPLES, channels);
-            match Adc::new(dev, SimDrdy, AdcConfig::new(capture::CHANNELS)) {
-                Ok(adc) => Source::Adc(adc),
-                Err(_) => return false,
-            }
-        }
-        _ => Source::Replay(ReplaySource::new(capture::SAMPLES, channels)),
+    let Some(acq) = acquisition(mode, clock.reader(), full_tx, free_rx) else {
+        return false;
     };
-    let per_tick = if mode == Mode::Measure {
-        BLOCK_FRAMES
-    } else {
-        1
-    };
-    let mut acq = Acquisition::new(source, clock.reader(), per_tick, full_tx, free_rx);
-    let link = Link::new(uart, capture::SAMPLE_RATE_HZ);
+    // The link lives in a static, built in place (not on this function's stack).
+    static LINK: StaticCell<Link<CmsdkUart>> = StaticCell::new();
+    let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
     #[cfg(feature = "field-logger")]
     let mut log = match mode {
         Mode::Logger => match logger::mount() {
@@ -294,6 +284,55 @@ fn run(mode: Mode) -> bool {
     pipe.finish();
     let total = pipe.clock().now().wrapping_sub(t_start) as u64;
     let stack_run = sys::stack_high_water();
+    let pass = end_of_run(mode, pipe, total, stack_init, stack_run);
+    #[cfg(feature = "field-logger")]
+    let pass = match log {
+        Some(l) => logger::finish(l) && pass,
+        None => pass,
+    };
+    report!("fw.verdict {}", if pass { "pass" } else { "FAIL" });
+    pass
+}
+
+/// The acquisition of `mode`, built in place in a static (not on the stack of [`run`],
+/// which stays below the main loop for the whole run). `None` if the ADC does not start.
+#[inline(never)]
+fn acquisition(
+    mode: Mode,
+    clock: TimerReader,
+    full_tx: heapless::spsc::Producer<'static, Filled>,
+    free_rx: heapless::spsc::Consumer<'static, &'static mut Block>,
+) -> Option<&'static mut PacedAcquisition> {
+    static ACQUISITION: StaticCell<PacedAcquisition> = StaticCell::new();
+    let channels = capture::CHANNELS as usize;
+    let source = match mode {
+        Mode::Adc => {
+            let dev = SimAdc::new(capture::SAMPLES, channels);
+            match Adc::new(dev, SimDrdy, AdcConfig::new(capture::CHANNELS)) {
+                Ok(adc) => Source::Adc(adc),
+                Err(_) => return None,
+            }
+        }
+        _ => Source::Replay(ReplaySource::new(capture::SAMPLES, channels)),
+    };
+    let per_tick = if mode == Mode::Measure {
+        BLOCK_FRAMES
+    } else {
+        1
+    };
+    Some(ACQUISITION.init_with(|| Acquisition::new(source, clock, per_tick, full_tx, free_rx)))
+}
+
+/// The end of a run: the summary lines, and in mode `measure` the calibration and the
+/// streaming variants. Apart from [`run`] so its locals do not sit below the main loop.
+#[inline(never)]
+fn end_of_run(
+    mode: Mode,
+    pipe: Pipeline<'_, CmsdkUart, CmsdkTimer>,
+    total: u64,
+    stack_init: usize,
+    stack_run: usize,
+) -> bool {
     let pass = summary(mode, &pipe, total);
     report!(
         "fw.memory static_ram_bytes={} stack_init_bytes={} stack_run_bytes={} chain_bytes={} record_bytes={} block_bytes={}",
@@ -319,12 +358,6 @@ fn run(mode: Mode) -> bool {
             measure_streaming(chain, &clock, v);
         }
     }
-    #[cfg(feature = "field-logger")]
-    let pass = match log {
-        Some(l) => logger::finish(l) && pass,
-        None => pass,
-    };
-    report!("fw.verdict {}", if pass { "pass" } else { "FAIL" });
     pass
 }
 

@@ -4,7 +4,7 @@
 //! UART and a clock, and call [`Pipeline::step`] from their main loop.
 
 use crate::acquire::{Block, Clock, Filled, HEALTH};
-use crate::config::{FwChain, FwRecord, BLOCK_FRAMES};
+use crate::config::{FwChain, FwRecord, BLOCK_FRAMES, PROBES};
 #[cfg(feature = "self-check")]
 use crate::digest::Digest;
 use crate::link::Link;
@@ -47,11 +47,13 @@ pub struct Timing {
 }
 
 /// The main loop's state; `'t` is the borrow of an optional [`ResultTap`].
-pub struct Pipeline<'t, W, C> {
+pub struct Pipeline<'t, W: 'static, C> {
     chain: &'static mut FwChain,
     full: Consumer<'static, Filled>,
     free: Producer<'static, &'static mut Block>,
-    link: Link<W>,
+    /// The link, in static memory (its streamer holds a frame buffer and a queue of
+    /// window results: kept off the main loop's stack).
+    link: &'static mut Link<W>,
     clock: C,
     channels: usize,
     /// Extra ticks to stall after every block (0 normally; the overrun test sets it).
@@ -65,18 +67,26 @@ pub struct Pipeline<'t, W, C> {
     blocks: u32,
     saturated: u64,
     stuck: u64,
+    /// The channels of each probe's tips (leading, trailing), for the stuck-tip bits.
+    tip_channels: [Option<(u8, Option<u8>)>; PROBES],
 }
 
-impl<'t, W: Write, C: Clock> Pipeline<'t, W, C> {
-    /// A pipeline over the given chain, queue ends, link and clock.
+impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
+    /// A pipeline over the given chain, queue ends, link and clock. (Not inlined: built
+    /// where the caller keeps it, with no temporary copy in the caller's frame.)
+    #[inline(never)]
     pub fn new(
         chain: &'static mut FwChain,
         full: Consumer<'static, Filled>,
         free: Producer<'static, &'static mut Block>,
-        link: Link<W>,
+        link: &'static mut Link<W>,
         clock: C,
     ) -> Self {
         let channels = chain.config().channels as usize;
+        let mut tip_channels = [None; PROBES];
+        for (slot, p) in tip_channels.iter_mut().zip(chain.config().probes.iter()) {
+            *slot = Some((p.leading.channel, p.trailing.map(|t| t.channel)));
+        }
         Pipeline {
             chain,
             full,
@@ -93,6 +103,7 @@ impl<'t, W: Write, C: Clock> Pipeline<'t, W, C> {
             blocks: 0,
             saturated: 0,
             stuck: 0,
+            tip_channels,
         }
     }
 
@@ -106,7 +117,9 @@ impl<'t, W: Write, C: Clock> Pipeline<'t, W, C> {
         &self.clock
     }
 
-    /// Send the device description.
+    /// Send the device description. (Not inlined: the description is built on the stack,
+    /// which would otherwise stay reserved below the main loop.)
+    #[inline(never)]
     pub fn start(&mut self) {
         self.link.describe();
         self.link.pump(0);
@@ -168,6 +181,7 @@ impl<'t, W: Write, C: Clock> Pipeline<'t, W, C> {
     /// A station chain closes several windows here (the frames still in its delay ring):
     /// the link is drained after each batch, the clock running on as a UART would, so the
     /// streamer never has to drop results at the end.
+    #[inline(never)]
     pub fn finish(&mut self) {
         while self.step() {}
         let mut now = self.sample_clock();
@@ -190,9 +204,17 @@ impl<'t, W: Write, C: Clock> Pipeline<'t, W, C> {
 
     fn drain_records(&mut self) {
         let t0 = self.clock.now();
-        while let Some(rec) = self.chain.poll_lean() {
-            self.on_record(&rec);
-        }
+        // Each record is handed on where it lies in the chain's queue (no copy of it here).
+        let mut sink = RecordSink {
+            link: &mut *self.link,
+            tap: &mut self.tap,
+            #[cfg(feature = "self-check")]
+            digest: &mut self.digest,
+            saturated: &mut self.saturated,
+            stuck: &mut self.stuck,
+            tip_channels: &self.tip_channels,
+        };
+        while self.chain.poll_lean_with(|rec| sink.record(rec)).is_some() {}
         // Station chains (the field-logger build): the one station is station 0.
         while let Some(p) = self.chain.poll_profile() {
             let fit = p.to_wire(0);
@@ -211,32 +233,6 @@ impl<'t, W: Write, C: Clock> Pipeline<'t, W, C> {
             }
         }
         self.timing.records += self.clock.now().wrapping_sub(t0) as u64;
-    }
-
-    fn on_record(&mut self, rec: &FwRecord) {
-        // The host replay keeps its records without the raw correlation sums (they do not
-        // go on the wire either): the digest covers the same.
-        #[cfg(feature = "self-check")]
-        self.digest.add(rec);
-        let w = self.link.record(rec);
-        if let Some(t) = self.tap.as_mut() {
-            t.window(w);
-        }
-        self.saturated += rec.lead.rail_frames + rec.trail.as_ref().map_or(0, |t| t.rail_frames);
-        if let Some(p) = self.chain.config().probes.get(rec.probe as usize) {
-            let mut set = |ch: u8, stuck: bool| {
-                let bit = 1u64 << (ch & 63);
-                if stuck {
-                    self.stuck |= bit;
-                } else {
-                    self.stuck &= !bit;
-                }
-            };
-            set(p.leading.channel, rec.flags.contains(Flags::STUCK));
-            if let Some(t) = p.trailing {
-                set(t.channel, rec.flags.contains(Flags::TRAILING_STUCK));
-            }
-        }
     }
 
     /// The sample clock: frames read from the source (pushed or dropped).
@@ -276,6 +272,48 @@ impl<'t, W: Write, C: Clock> Pipeline<'t, W, C> {
 
     /// The link.
     pub fn link(&self) -> &Link<W> {
-        &self.link
+        self.link
+    }
+}
+
+/// Where the main loop sends each record: the parts of the [`Pipeline`] a record updates
+/// (borrowed apart from the chain, which lends the record).
+struct RecordSink<'a, 't, W> {
+    link: &'a mut Link<W>,
+    tap: &'a mut Option<&'t mut dyn ResultTap>,
+    #[cfg(feature = "self-check")]
+    digest: &'a mut Digest,
+    saturated: &'a mut u64,
+    stuck: &'a mut u64,
+    tip_channels: &'a [Option<(u8, Option<u8>)>; PROBES],
+}
+
+impl<W: Write> RecordSink<'_, '_, W> {
+    #[inline(never)]
+    fn record(&mut self, rec: &FwRecord) {
+        // The host replay keeps its records without the raw correlation sums (they do not
+        // go on the wire either): the digest covers the same.
+        #[cfg(feature = "self-check")]
+        self.digest.add(rec);
+        let w = self.link.record(rec);
+        if let Some(t) = self.tap.as_mut() {
+            t.window(w);
+        }
+        *self.saturated += rec.lead.rail_frames + rec.trail.as_ref().map_or(0, |t| t.rail_frames);
+        if let Some(&Some((lead, trail))) = self.tip_channels.get(rec.probe as usize) {
+            let stuck = &mut *self.stuck;
+            let mut set = |ch: u8, is_stuck: bool| {
+                let bit = 1u64 << (ch & 63);
+                if is_stuck {
+                    *stuck |= bit;
+                } else {
+                    *stuck &= !bit;
+                }
+            };
+            set(lead, rec.flags.contains(Flags::STUCK));
+            if let Some(t) = trail {
+                set(t, rec.flags.contains(Flags::TRAILING_STUCK));
+            }
+        }
     }
 }

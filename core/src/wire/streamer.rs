@@ -208,6 +208,12 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
         }
     }
 
+    /// Queue a health frame: `offer(Body::Health(h))` without building a [`Body`] (as large
+    /// as its largest variant) on the caller's stack.
+    pub fn offer_health(&mut self, h: Health) -> Offer {
+        Self::replace(&mut self.health, h, &mut self.stats)
+    }
+
     /// Queue one window result; returns true if the oldest queued one was dropped for it.
     pub fn offer_window(&mut self, w: WindowResult) -> bool {
         let dropped = self.windows.is_full();
