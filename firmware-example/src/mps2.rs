@@ -354,6 +354,7 @@ fn end_of_run(
             Variant::Whole,
             Variant::WholeFixed,
             Variant::WholeFixedLeading,
+            Variant::Practical,
         ] {
             measure_streaming(chain, &clock, v);
         }
@@ -440,7 +441,13 @@ enum Variant {
     WholeFixed,
     /// ... and no trailing tips (no correlation; 8 tips instead of 16).
     WholeFixedLeading,
+    /// Settings of a practical run: 50 ms windows, the default 0.2 s learning period,
+    /// learnt levels, over the capture played [`PRACTICAL_REPEATS`] times (1.02 s).
+    Practical,
 }
+
+/// Plays of the capture in [`Variant::Practical`].
+const PRACTICAL_REPEATS: usize = 17;
 
 /// The chain's streaming cost alone: the capture again through a chain with one window
 /// over the whole record (no window closes until the end), blocks decoded before timing.
@@ -450,13 +457,19 @@ fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, variant: Variant)
         return;
     };
     cfg.window = frothline_core::WindowPolicy::Whole;
+    let mut repeats = 1;
+    if variant == Variant::Practical {
+        cfg.window = frothline_core::WindowPolicy::Frames(capture::SAMPLE_RATE_HZ / 20);
+        cfg.detector.learn_period = capture::SAMPLE_RATE_HZ / 5;
+        repeats = PRACTICAL_REPEATS;
+    }
     let fixed = frothline_core::LevelSource::Fixed {
         air: 26000,
         water: 3000,
     };
     let mut tips = 0;
     for p in cfg.probes.iter_mut() {
-        if variant != Variant::Whole {
+        if !matches!(variant, Variant::Whole | Variant::Practical) {
             p.leading.levels = fixed;
             if let Some(t) = p.trailing.as_mut() {
                 t.levels = fixed;
@@ -484,19 +497,27 @@ fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, variant: Variant)
         return;
     }
     let mut block = [0i16; BLOCK_SAMPLES];
-    let mut src = ReplaySource::new(capture::SAMPLES, capture::CHANNELS as usize);
     let ch = capture::CHANNELS as usize;
     let mut push = 0u64;
     let mut frames = 0usize;
-    loop {
-        let n = src.fill(&mut block[..BLOCK_FRAMES * ch]).unwrap_or(0);
-        if n == 0 {
-            break;
+    for _ in 0..repeats {
+        let mut src = ReplaySource::new(capture::SAMPLES, ch);
+        loop {
+            let n = src.fill(&mut block[..BLOCK_FRAMES * ch]).unwrap_or(0);
+            if n == 0 {
+                break;
+            }
+            let mut rest = &block[..n * ch];
+            while !rest.is_empty() {
+                let t0 = clock.now();
+                let used = chain.push(rest);
+                push += clock.now().wrapping_sub(t0) as u64;
+                frames += used / ch;
+                rest = &rest[used..];
+                // Records are taken untimed (their cost is the pipeline's records share).
+                while chain.poll_lean().is_some() {}
+            }
         }
-        let t0 = clock.now();
-        let used = chain.push(&block[..n * ch]);
-        push += clock.now().wrapping_sub(t0) as u64;
-        frames += used / ch;
     }
     let t0 = clock.now();
     while chain.finish().is_err() {
@@ -510,6 +531,7 @@ fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, variant: Variant)
             Variant::Whole => "whole",
             Variant::WholeFixed => "whole-fixed",
             Variant::WholeFixedLeading => "whole-fixed-leading",
+            Variant::Practical => "practical",
         },
         frames,
         ch,
