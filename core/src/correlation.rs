@@ -982,27 +982,8 @@ impl<const L: usize> Correlator<L> {
     /// with the given phases of the two tips.
     pub fn new(max_lag: u16, start: u64, lead_air: bool, trail_air: bool) -> Self {
         const { assert!(L >= 2 && L <= 1 << 16, "L must lie in 2..=65536") };
-        let mut c = Correlator {
-            max_lag: (max_lag as usize).min(L - 1),
-            start,
-            cross: [0; L],
-            auto: [0; L],
-            lead_head: [0; L],
-            trail_head: [0; L],
-            ring: Ring {
-                edges: [0; L],
-                next: 0,
-                len: 0,
-            },
-            lead_air: false,
-            trail_air: false,
-            lead_e: 0,
-            lead_q: 0,
-            trail_e: 0,
-            trail_q: 0,
-            overflow: false,
-        };
-        c.open(start, lead_air, trail_air);
+        let mut c = Self::ZERO;
+        c.restart(max_lag, start, lead_air, trail_air);
         c
     }
 
