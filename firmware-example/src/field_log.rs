@@ -19,6 +19,7 @@
 //! [`MAX_WINDOWS_PER_FRAME`] results, or at [`FieldLog::flush`].
 
 use crate::config::DEVICE_ID;
+use crate::pipeline::ResultTap;
 use embedded_storage::nor_flash::NorFlash;
 use frothline_core::logbook::{FieldLogger, LogError, LogStats, Logbook, LoggerState, LoggerStats};
 use frothline_core::wire::{
@@ -78,48 +79,6 @@ impl<F: NorFlash> FieldLog<F> {
         })
     }
 
-    /// One window result.
-    pub fn window(&mut self, w: WindowResult) {
-        if self
-            .batch
-            .first()
-            .is_some_and(|first| first.start != w.start)
-            || self.batch.len() == MAX_WINDOWS_PER_FRAME
-        {
-            self.flush();
-        }
-        // Cannot fail: flushed above when full.
-        let _ = self.batch.push(w);
-    }
-
-    /// A probe's front arrival: the first one triggers the capture (later ones are logged
-    /// and restart the capture count, see `FieldLogger::front_detected`).
-    pub fn front(&mut self, f: FrontArrival) {
-        self.flush();
-        self.emit(Body::Front(f), true);
-    }
-
-    /// A profile fit of a slice after the front.
-    pub fn profile(&mut self, p: ProfileFit) {
-        self.flush();
-        self.emit(Body::Profile(p), false);
-    }
-
-    /// Health counters.
-    pub fn health(&mut self, h: Health) {
-        self.flush();
-        self.emit(Body::Health(h), false);
-    }
-
-    /// Send the pending window results.
-    pub fn flush(&mut self) {
-        if self.batch.is_empty() {
-            return;
-        }
-        let batch = core::mem::take(&mut self.batch);
-        self.emit(Body::Windows(batch), false);
-    }
-
     /// The logger's state.
     pub fn state(&self) -> LoggerState {
         self.logger.state()
@@ -136,12 +95,17 @@ impl<F: NorFlash> FieldLog<F> {
         }
     }
 
-    /// Give the flash back (after [`flush`](Self::flush)).
+    /// Give the flash back (after [`ResultTap::flush`]).
     pub fn into_flash(self) -> F {
         self.book.into_inner()
     }
 
-    fn emit(&mut self, body: Body, front: bool) {
+    /// Encode `body` as the next frame and send it where `route` says.
+    fn emit(&mut self, body: Body, route: Route) {
+        // Each capture opens with the device description, straight into the log.
+        if route == Route::Front && self.logger.state() == LoggerState::Armed {
+            self.emit(Body::Describe(crate::link::description()), Route::Log);
+        }
         let frame = Frame {
             device: DEVICE_ID,
             seq: self.seq,
@@ -153,13 +117,12 @@ impl<F: NorFlash> FieldLog<F> {
             self.encode_errors = self.encode_errors.saturating_add(1);
             return;
         };
-        let r = if front {
-            if self.logger.state() == LoggerState::Armed {
-                self.describe();
-            }
-            self.logger.front_detected(bytes, &mut self.book)
-        } else {
-            self.logger.result(bytes, &mut self.book)
+        let r = match route {
+            Route::Logger => self.logger.result(bytes, &mut self.book),
+            Route::Front => self.logger.front_detected(bytes, &mut self.book),
+            Route::Log => self.book.append(bytes).map(|()| {
+                self.descriptions = self.descriptions.saturating_add(1);
+            }),
         };
         if let Err(e) = r {
             self.first_error.get_or_insert(e);
@@ -167,27 +130,15 @@ impl<F: NorFlash> FieldLog<F> {
     }
 }
 
-impl<F: NorFlash> FieldLog<F> {
-    /// Write the device description straight to the log (not through the pre-trigger ring).
-    fn describe(&mut self) {
-        let frame = Frame {
-            device: DEVICE_ID,
-            seq: self.seq,
-            body: Body::Describe(crate::link::description()),
-        };
-        self.seq = self.seq.wrapping_add(1);
-        let mut buf = [0u8; MAX_FRAME_BYTES];
-        match encode(&frame, &mut buf) {
-            Ok(bytes) => {
-                if let Err(e) = self.book.append(bytes) {
-                    self.first_error.get_or_insert(e);
-                } else {
-                    self.descriptions = self.descriptions.saturating_add(1);
-                }
-            }
-            Err(_) => self.encode_errors = self.encode_errors.saturating_add(1),
-        }
-    }
+/// Where [`FieldLog::emit`] sends a frame.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Route {
+    /// A result: the logger puts it in the pre-trigger ring or the log, by its state.
+    Logger,
+    /// A front: it triggers (or extends) a capture.
+    Front,
+    /// Straight into the log (the device description of a capture).
+    Log,
 }
 
 /// Count the records a log on `flash` holds (a fresh mount, as after a power cycle).
@@ -197,24 +148,43 @@ pub fn count_records<F: NorFlash>(flash: F) -> Result<(u32, F), LogError> {
     Ok((n, book.into_inner()))
 }
 
-impl<F: NorFlash> crate::pipeline::ResultTap for FieldLog<F> {
+impl<F: NorFlash> ResultTap for FieldLog<F> {
+    /// Window results of one window close share a frame (see the module docs).
     fn window(&mut self, w: WindowResult) {
-        FieldLog::window(self, w);
+        if self
+            .batch
+            .first()
+            .is_some_and(|first| first.start != w.start)
+            || self.batch.len() == MAX_WINDOWS_PER_FRAME
+        {
+            self.flush();
+        }
+        // Cannot fail: flushed above when full.
+        let _ = self.batch.push(w);
     }
 
+    /// The first probe's front triggers the capture (later ones are logged and restart
+    /// the capture count, see `FieldLogger::front_detected`).
     fn front(&mut self, f: FrontArrival) {
-        FieldLog::front(self, f);
+        self.flush();
+        self.emit(Body::Front(f), Route::Front);
     }
 
     fn profile(&mut self, p: ProfileFit) {
-        FieldLog::profile(self, p);
+        self.flush();
+        self.emit(Body::Profile(p), Route::Logger);
     }
 
     fn health(&mut self, h: Health) {
-        FieldLog::health(self, h);
+        self.flush();
+        self.emit(Body::Health(h), Route::Logger);
     }
 
     fn flush(&mut self) {
-        FieldLog::flush(self);
+        if self.batch.is_empty() {
+            return;
+        }
+        let batch = core::mem::take(&mut self.batch);
+        self.emit(Body::Windows(batch), Route::Logger);
     }
 }

@@ -368,6 +368,7 @@ mod logger {
     use crate::cmsdk_timer::PCLK_HZ;
     use crate::cmsdk_uart::CmsdkUart;
     use crate::field_log::{count_records, FieldLog};
+    use crate::pipeline::ResultTap;
     use crate::ram_nor::RamNor;
     use crate::sys;
     use embedded_io::Write;
