@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# Measure the firmware example against the budget for 8 dual-tip probes
+# Measure the firmware example against its budget (docs/firmware.md) for 8 dual-tip probes
 # (16 channels at 20 kHz): <= 20 instructions per channel-sample, RAM <= 64 KiB,
 # flash <= 96 KiB.
 #

@@ -1,5 +1,5 @@
-//! Bad input to `frothline replay`: every case gives an error that names what is wrong, and
-//! no output file is left looking complete (brief: "bad input gets a clear error").
+//! Bad input to `frothline replay`: every case gives an error that names what is wrong (the
+//! file, key or line), and no output file is left looking complete.
 
 use std::fs;
 use std::path::{Path, PathBuf};

@@ -200,7 +200,7 @@ fn profile_slices_match_the_generating_profile() {
     assert!(m.initial > m.final_level + 0.15, "{m:?}");
 }
 
-/// Ensembles (item of the issue): per-window velocity from the merged correlation sums of
+/// Ensembles of repeated runs: per-window velocity from the merged correlation sums of
 /// ten runs against the generating velocity, compared with the single runs' windows that
 /// found a peak: the RMS relative error must shrink at least 2x. The ensemble void fraction
 /// (mean over runs) must lie within 0.01 of the generating value realised by the runs'

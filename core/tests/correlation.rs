@@ -445,7 +445,7 @@ fn secondary_peak_ratio_of_two_populations() {
 
 /// The dual-tip turbulence method assumes Gaussian velocity fluctuations: bubbles whose
 /// transit times are Gaussian with standard deviation Tu T should give back Tu (margin 15 %,
-/// from the issue). The method subtracts the widths in quadrature, which holds when both
+/// the accuracy the README claims). The method subtracts the widths in quadrature, which holds when both
 /// peaks are Gaussian-like or the transit-time spread dominates the chord; so the bubbles
 /// here are short (10 samples) next to the spread (10 to 40 samples), and Poisson-spaced
 /// (a quasi-periodic spacing would put side lobes of negative correlation next to the peak

@@ -1,6 +1,6 @@
 //! Compile-time sizes of the firmware: everything that decides its RAM.
 //!
-//! Sized for the target: 8 dual-tip probes (16 channels) at 20 kHz per tip.
+//! Sized for the design point of docs/firmware.md: 8 dual-tip probes (16 channels) at 20 kHz per tip.
 
 /// Probes the chain holds.
 pub const PROBES: usize = 8;
