@@ -747,31 +747,62 @@ pub fn flow_indicators(run: &TransientRun) -> FlowIndicators {
     }
 }
 
-fn json_str(s: &str) -> String {
-    let mut o = String::from("\"");
-    for c in s.chars() {
-        match c {
-            '"' => o.push_str("\\\""),
-            '\\' => o.push_str("\\\\"),
-            '\n' => o.push_str("\\n"),
-            c if (c as u32) < 0x20 => {
-                let _ = write!(o, "\\u{:04x}", c as u32);
-            }
-            c => o.push(c),
-        }
+/// serde_json's pretty printer, with floating-point numbers written in Rust's shortest
+/// round-trip form (`16`, `0.0000011096…`): the form flow.json has always had, and one every
+/// JSON reader takes.
+struct ShortestFloats(serde_json::ser::PrettyFormatter<'static>);
+
+impl serde_json::ser::Formatter for ShortestFloats {
+    fn write_f64<W: ?Sized + std::io::Write>(&mut self, w: &mut W, v: f64) -> std::io::Result<()> {
+        write!(w, "{v}")
     }
-    o.push('"');
-    o
+    fn begin_array<W: ?Sized + std::io::Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.begin_array(w)
+    }
+    fn end_array<W: ?Sized + std::io::Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.end_array(w)
+    }
+    fn begin_array_value<W: ?Sized + std::io::Write>(
+        &mut self,
+        w: &mut W,
+        first: bool,
+    ) -> std::io::Result<()> {
+        self.0.begin_array_value(w, first)
+    }
+    fn end_array_value<W: ?Sized + std::io::Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.end_array_value(w)
+    }
+    fn begin_object<W: ?Sized + std::io::Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.begin_object(w)
+    }
+    fn end_object<W: ?Sized + std::io::Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.end_object(w)
+    }
+    fn begin_object_key<W: ?Sized + std::io::Write>(
+        &mut self,
+        w: &mut W,
+        first: bool,
+    ) -> std::io::Result<()> {
+        self.0.begin_object_key(w, first)
+    }
+    fn begin_object_value<W: ?Sized + std::io::Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.begin_object_value(w)
+    }
+    fn end_object_value<W: ?Sized + std::io::Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.0.end_object_value(w)
+    }
 }
 
 impl FlowIndicators {
     /// `flow.json` (a flat object, the keys `crate::report::indicators` knows, plus
-    /// `reference_velocity_source` and `scale_effect_caution` as texts).
+    /// `reference_velocity_source` and `scale_effect_caution` as texts), keys in this order.
     pub fn to_json(&self, description: &str) -> String {
-        let mut fields: Vec<(String, String)> = vec![("description".into(), json_str(description))];
+        use serde_json::{Map, Value};
+        let mut fields = Map::new();
+        fields.insert("description".into(), Value::from(description));
         let mut num = |k: &str, v: Option<f64>| {
             if let Some(v) = v.filter(|v| v.is_finite()) {
-                fields.push((k.into(), format!("{v}")));
+                fields.insert(k.into(), Value::from(v));
             }
         };
         num("water_temperature_c", Some(self.water_temperature_c));
@@ -785,16 +816,18 @@ impl FlowIndicators {
         num("reference_depth_m", self.reference_depth_m);
         num("reynolds_number", self.reynolds);
         if let Some((_, src)) = self.reference_velocity {
-            fields.push(("reference_velocity_source".into(), json_str(src)));
+            fields.insert("reference_velocity_source".into(), Value::from(src));
         }
         if let Some(c) = &self.caution {
-            fields.push(("scale_effect_caution".into(), json_str(c)));
+            fields.insert("scale_effect_caution".into(), Value::from(c.as_str()));
         }
-        let body: Vec<String> = fields
-            .iter()
-            .map(|(k, v)| format!("  {}: {v}", json_str(k)))
-            .collect();
-        format!("{{\n{}\n}}\n", body.join(",\n"))
+        let mut out = Vec::new();
+        let fmt = ShortestFloats(serde_json::ser::PrettyFormatter::new());
+        let mut ser = serde_json::Serializer::with_formatter(&mut out, fmt);
+        serde::Serialize::serialize(&fields, &mut ser).expect("a map of strings and numbers");
+        let mut text = String::from_utf8(out).expect("serde_json writes UTF-8");
+        text.push('\n');
+        text
     }
 }
 

@@ -36,7 +36,6 @@
 //! Morton gμ⁴/(ρσ³).
 
 use super::error::ReportError;
-use super::json;
 use std::path::Path;
 
 /// Standard gravity, m/s².
@@ -168,6 +167,34 @@ impl Indicators {
     }
 }
 
+/// The entries of a `flow.json` object in file order, nested objects flattened to
+/// `outer.inner` keys: numbers stay numbers; strings, booleans and arrays become text (an
+/// array as its JSON text); `null` is skipped.
+fn flatten_json(
+    object: &serde_json::Map<String, serde_json::Value>,
+    prefix: &str,
+    out: &mut Vec<(String, Value)>,
+) {
+    use serde_json::Value as J;
+    for (k, v) in object {
+        let key = if prefix.is_empty() {
+            k.clone()
+        } else {
+            format!("{prefix}.{k}")
+        };
+        match v {
+            J::Null => {}
+            J::Object(inner) => flatten_json(inner, &key, out),
+            J::Number(n) => match n.as_f64().filter(|x| x.is_finite()) {
+                Some(x) => out.push((key, Value::Number(x))),
+                None => out.push((key, Value::Text(n.to_string()))),
+            },
+            J::String(t) => out.push((key, Value::Text(t.clone()))),
+            other => out.push((key, Value::Text(other.to_string()))),
+        }
+    }
+}
+
 /// Read `flow.json` and `indicators.csv` from `dir` (None when neither exists).
 pub fn read(dir: &Path, found: &mut Vec<&'static str>) -> Result<Option<Indicators>, ReportError> {
     let mut ind = Indicators::default();
@@ -176,11 +203,21 @@ pub fn read(dir: &Path, found: &mut Vec<&'static str>) -> Result<Option<Indicato
     if let Some(text) = read_optional(&json_path)? {
         any = true;
         found.push("flow.json");
-        let entries = json::flat_object(&text).map_err(|(line, message)| ReportError::Parse {
-            path: json_path.clone(),
-            line: Some(line),
-            message,
-        })?;
+        let doc: serde_json::Value =
+            serde_json::from_str(&text).map_err(|e| ReportError::Parse {
+                path: json_path.clone(),
+                line: Some(e.line() as u64),
+                message: e.to_string(),
+            })?;
+        let serde_json::Value::Object(top) = doc else {
+            return Err(ReportError::Parse {
+                path: json_path,
+                line: Some(1),
+                message: "flow.json must hold one JSON object".into(),
+            });
+        };
+        let mut entries = Vec::new();
+        flatten_json(&top, "", &mut entries);
         for (k, v) in entries {
             ind.push(&k, v, "flow.json", "", "");
         }
@@ -248,6 +285,55 @@ fn read_optional(path: &Path) -> Result<Option<String>, ReportError> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn flat(doc: &str) -> Vec<(String, Value)> {
+        let serde_json::Value::Object(top) = serde_json::from_str(doc).unwrap() else {
+            panic!("not an object: {doc}");
+        };
+        let mut out = Vec::new();
+        flatten_json(&top, "", &mut out);
+        out
+    }
+
+    #[test]
+    fn flow_json_scalars_nested_objects_and_arrays_flatten_in_file_order() {
+        let doc = r#"{ "z": 1.5e3, "b": "x\"y\u00e9\ud83d\ude00", "c": {"d": -0.25, "e": null},
+                       "f": [1, {"g": 2}], "h": true, "i": 0 }"#;
+        let num = Value::Number;
+        let txt = |s: &str| Value::Text(s.into());
+        assert_eq!(
+            flat(doc),
+            vec![
+                ("z".into(), num(1500.0)),
+                ("b".into(), txt("x\"yé😀")),
+                ("c.d".into(), num(-0.25)),
+                ("f".into(), txt("[1,{\"g\":2}]")),
+                ("h".into(), txt("true")),
+                ("i".into(), num(0.0)),
+            ]
+        );
+        assert_eq!(flat("{}"), vec![]);
+    }
+
+    #[test]
+    fn a_broken_flow_json_is_an_error_that_names_its_line() {
+        for (doc, line) in [
+            ("{\n\"a\": 1,\n\"b\": 01\n}", 3),
+            ("{\"a\": 1,}", 1),
+            ("[1]", 1),
+            ("{\"a\": 1} x", 1),
+            ("{\n\"a\": \"open", 2),
+        ] {
+            let dir = tempfile::tempdir().unwrap();
+            std::fs::write(dir.path().join("flow.json"), doc).unwrap();
+            match read(dir.path(), &mut Vec::new()) {
+                Err(ReportError::Parse { line: got, .. }) => {
+                    assert_eq!(got, Some(line), "{doc}")
+                }
+                other => panic!("{doc}: {other:?}"),
+            }
+        }
+    }
 
     #[test]
     fn reynolds_froude_and_morton_are_computed_when_missing() {

@@ -31,7 +31,6 @@ pub mod flags;
 mod html;
 pub mod indicators;
 pub mod input;
-mod json;
 mod render;
 pub mod stats;
 mod style;
