@@ -251,8 +251,9 @@ impl Page<'_> {
             h,
             "<p class=\"muted\">C: mean over the windows used, weighted by window length; F: \
              bubbles over time; Fmax: parabolic envelope fitted to the probe's windows{}; chord \
-             median: {}; V and Tu: bubble-weighted means of the window values. Windows used: \
-             after the front (transient runs), without {}.</p>",
+             median: {}; V and Tu: bubble-weighted means of the window values, leaving out \
+             windows flagged no_correlation_peak or peak_at_lag_boundary (velocity not to be \
+             trusted). Windows used: after the front (transient runs), without {}.</p>",
             self.fmax_all
                 .map(|f| format!(" (all probes together: {} Hz)", fmt_num(f)))
                 .unwrap_or_default(),

@@ -285,23 +285,25 @@ fn progress_bar(args: &ReportArgs) -> ProgressBar {
     pb
 }
 
-/// Bits of the flags named in `names` (unknown names are noted and ignored).
-fn excluded_bits(run: &input::Run, names: &[String], notes: &mut Vec<String>) -> u64 {
+/// Bits (over the run's flag names) of the flags named in `names`, and the summary rule
+/// for them. An unknown name is a usage error.
+fn excluded_bits(
+    run: &input::Run,
+    names: &[String],
+) -> Result<(u64, crate::probe_summary::SummaryRule), ReportError> {
+    let core = crate::probe_summary::flag_bits(names)
+        .map_err(|e| ReportError::Usage(format!("--exclude-flags: {e}")))?;
     let mut bits = 0;
-    for n in names.iter().map(|n| n.trim()).filter(|n| !n.is_empty()) {
-        if n == "none" {
-            continue;
-        }
-        match run.flag_names.iter().position(|f| f == n) {
-            Some(i) => bits |= 1 << i,
-            None if flags::meaning(flags::FlagSource::Window, n).is_some() => {}
-            None => notes.push(format!(
-                "--exclude-flags: `{n}` is not a window flag of this version and was not \
-                 raised in this run"
-            )),
+    for (i, f) in run.flag_names.iter().enumerate() {
+        if core.names().any(|n| n == f) {
+            bits |= 1 << i;
         }
     }
-    bits
+    let rule = crate::probe_summary::SummaryRule {
+        excluded: core,
+        ..Default::default()
+    };
+    Ok((bits, rule))
 }
 
 /// Make the report of `args.dir`.
@@ -316,11 +318,15 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
             "--low-reynolds: give a Reynolds number, zero or more".into(),
         ));
     }
+    crate::probe_summary::flag_bits(&args.exclude_flags)
+        .map_err(|e| ReportError::Usage(format!("--exclude-flags: {e}")))?;
     let progress = progress_bar(args);
     let run = input::read_run(&args.dir, &progress)?;
     let mut notes = run.notes.clone();
+    let (excluded_flags, rule) = excluded_bits(&run, &args.exclude_flags)?;
     let sel = Selection {
-        excluded_flags: excluded_bits(&run, &args.exclude_flags, &mut notes),
+        excluded_flags,
+        rule,
     };
     let stations = run.stations();
     if let Some(st) = &args.station {
