@@ -113,6 +113,7 @@ fn equal_to_replay() {
         ui: Ui::Silent,
         duration: Some(Duration::from_secs(60)),
         startup: vec![Startup::Now(Command::StartRun("e2e".into()))],
+        view: Default::default(),
     };
     let t0 = Instant::now();
     let summary = {
@@ -286,6 +287,7 @@ fn unplug_and_reopen() {
         ui: Ui::Silent,
         duration: Some(Duration::from_secs(30)),
         startup: vec![],
+        view: Default::default(),
     };
     let t0 = Instant::now();
     let summary = {
@@ -382,6 +384,7 @@ fn two_devices() {
         ui: Ui::Silent,
         duration: Some(Duration::from_secs(30)),
         startup: vec![],
+        view: Default::default(),
     };
     let summary = {
         let stop2 = stop.clone();

@@ -100,6 +100,7 @@ fn equal_to_replay() {
         ui: Ui::Silent,
         duration: Some(Duration::from_secs(120)),
         startup: vec![Startup::Now(Command::StartRun("surge".into()))],
+        view: Default::default(),
     };
     let summary = {
         let stop2 = stop.clone();

@@ -19,7 +19,7 @@ use crate::commands::{parse_label, Command};
 use crate::dashboard::SAFETY_LINE;
 use crate::error::HostError;
 use crate::layout::Layout;
-use crate::live::{LiveState, LiveWindow};
+use crate::live::{LiveState, LiveWindow, ViewOptions};
 use crate::session::{describe_event, Event, Session, SessionOptions, SessionReport};
 use crate::window_spec::WindowSpec;
 use frothline_core::wire::WindowSetting;
@@ -75,6 +75,13 @@ pub struct WatchArgs {
     /// Ask each device to re-learn the air/water levels of all its probes.
     #[arg(long)]
     pub relearn: bool,
+    /// Convergence target of the running figures, in percent: a probe is done when the
+    /// 95 % intervals of its C, F (and V) are within this share of their means.
+    #[arg(long, value_name = "PERCENT", default_value_t = 5.0)]
+    pub target: f64,
+    /// Show protocol chatter (commands sent, description ACKs) in the events pane.
+    #[arg(long)]
+    pub chatter: bool,
 }
 
 /// How the session is shown.
@@ -116,6 +123,8 @@ pub struct WatchOptions {
     pub duration: Option<Duration>,
     /// Commands for each device after its first description.
     pub startup: Vec<Startup>,
+    /// Convergence target and events of the live view.
+    pub view: ViewOptions,
 }
 
 impl WatchOptions {
@@ -134,6 +143,17 @@ impl WatchOptions {
                 )))
             }
             None => None,
+        };
+        if !(a.target.is_finite() && a.target > 0.0 && a.target < 100.0) {
+            return Err(HostError::Usage(format!(
+                "--target {}: give a percentage above 0 and below 100",
+                a.target
+            )));
+        }
+        let view = ViewOptions {
+            target: a.target / 100.0,
+            chatter: a.chatter,
+            ..ViewOptions::default()
         };
         let mut startup = Vec::new();
         if let Some(w) = a.set_window.clone() {
@@ -157,6 +177,7 @@ impl WatchOptions {
             ui: if a.plain { Ui::Plain } else { Ui::Dashboard },
             duration,
             startup,
+            view,
         })
     }
 }
@@ -284,6 +305,9 @@ pub struct WatchSummary {
     pub elapsed: Duration,
     /// Baud rate of the links.
     pub baud: u32,
+    /// Per probe of every device (highest first): name, elevation in mm, and the running
+    /// figures of its latest run.
+    pub probes: Vec<(String, f64, crate::probe_summary::ProbeTally)>,
 }
 
 impl std::fmt::Display for WatchSummary {
@@ -312,24 +336,27 @@ impl std::fmt::Display for WatchSummary {
         if !self.report.link_gaps.is_empty() {
             writeln!(f, "  link lost {} time(s)", self.report.link_gaps.len())?;
         }
-        let files: Vec<String> = self
-            .report
-            .files
-            .iter()
-            .map(|p| p.display().to_string())
-            .collect();
-        if !files.is_empty() {
-            writeln!(
-                f,
-                "  {} window results -> {}",
-                self.report.windows,
-                files.join(", ")
-            )?;
+        if !self.probes.is_empty() {
+            writeln!(f, "results of the latest run, per probe:")?;
+            let rows: Vec<crate::probe_summary::SummaryRow> = self
+                .probes
+                .iter()
+                .map(|(name, y, tally)| crate::probe_summary::SummaryRow {
+                    name,
+                    elevation_mm: *y,
+                    tally,
+                })
+                .collect();
+            f.write_str(&crate::probe_summary::summary_table(&rows))?;
+        }
+        writeln!(f, "{} window results; files written:", self.report.windows)?;
+        for p in &self.report.files {
+            writeln!(f, "  {}", p.display())?;
         }
         if let Some((path, bytes)) = &self.report.archive {
             writeln!(
                 f,
-                "  archive: {} ({bytes} bytes); decode it again with: frothline unpack {} --out DIR",
+                "  {} (archive, {bytes} bytes; decode it again with: frothline unpack {} --out DIR)",
                 path.display(),
                 path.display()
             )?;
@@ -340,7 +367,7 @@ impl std::fmt::Display for WatchSummary {
 
 /// Keys of the dashboard.
 pub const KEYS_HELP: &str =
-    "q quit   s start run   e end run   r re-learn levels   d describe   (commands go to every device)";
+    "q quit  s start run  e end run  r re-learn  d describe  PgUp/PgDn probes";
 
 struct Watch<'a> {
     opts: WatchOptions,
@@ -533,6 +560,7 @@ pub fn run_with(
     let t0 = Instant::now();
     live.started = Some(t0);
     live.keys_help = KEYS_HELP.into();
+    live.view = opts.view;
     for l in &mut live.links {
         l.baud = opts.baud;
     }
@@ -598,10 +626,15 @@ pub fn run_with(
     let report = w.session.finish()?;
     result?;
     drained?;
+    let probes = crate::dashboard::probe_rows(&w.live)
+        .into_iter()
+        .map(|(_, p)| (p.name.clone(), p.elevation_mm, p.tally.clone()))
+        .collect();
     Ok(WatchSummary {
         report,
         elapsed: t0.elapsed(),
         baud: w.opts.baud,
+        probes,
     })
 }
 
@@ -664,6 +697,15 @@ fn main_loop(
                 KeyCode::Char('e') => w.broadcast(Command::StopRun),
                 KeyCode::Char('r') => w.broadcast(Command::Relearn(u32::MAX)),
                 KeyCode::Char('d') => w.broadcast(Command::DescribeRequest),
+                KeyCode::PageDown | KeyCode::Down => {
+                    let step = if k.code == KeyCode::Down { 1 } else { 8 };
+                    let total = crate::dashboard::probe_rows(&w.live).len();
+                    w.live.probe_scroll = (w.live.probe_scroll + step).min(total.saturating_sub(1));
+                }
+                KeyCode::PageUp | KeyCode::Up => {
+                    let step = if k.code == KeyCode::Up { 1 } else { 8 };
+                    w.live.probe_scroll = w.live.probe_scroll.saturating_sub(step);
+                }
                 _ => {}
             }
         }
