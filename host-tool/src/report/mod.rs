@@ -194,6 +194,8 @@ pub struct ReportSummary {
     pub low_reynolds: bool,
     /// Notes shown on the page (skips, thinning, rows left out, unknown columns).
     pub notes: Vec<String>,
+    /// Per probe: name and whole-record figures (as in the page's probe table).
+    pub probe_summaries: Vec<(String, stats::ProbeSummary)>,
 }
 
 impl ReportSummary {
@@ -581,6 +583,16 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
             run.windows.len()
         ));
     }
+    let untrusted: usize = summaries
+        .iter()
+        .map(|s| s.used.saturating_sub(s.velocity_used))
+        .sum();
+    if untrusted > 0 {
+        notes.push(format!(
+            "{untrusted} used windows left out of V and Tu only: flagged no_correlation_peak \
+             or peak_at_lag_boundary (velocity not to be trusted)"
+        ));
+    }
     let reynolds = run.indicators.as_ref().and_then(|i| i.reynolds());
     let low_reynolds = reynolds.is_some_and(|re| re < args.low_reynolds);
     let html_path = out_dir.join("report.html");
@@ -611,6 +623,12 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
         transient: run.is_transient(),
         low_reynolds,
         notes,
+        probe_summaries: run
+            .probes
+            .iter()
+            .map(|p| p.name.clone())
+            .zip(summaries.iter().cloned())
+            .collect(),
     };
     if !args.quiet {
         crate::stdout::print(&summary.to_string());

@@ -155,7 +155,7 @@ fn summarise_probe(run: &Run, sel: Selection, p: usize) -> ProbeSummary {
     }
     ProbeSummary {
         windows: all.len(),
-        used: used.len(),
+        used: tally.used as usize,
         void_fraction: mean(tally.void_fraction()),
         void_fraction_p10: quantile_sorted(&cs, 0.1),
         void_fraction_p90: quantile_sorted(&cs, 0.9),
