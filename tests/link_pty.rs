@@ -114,6 +114,7 @@ fn equal_to_replay() {
         duration: Some(Duration::from_secs(60)),
         startup: vec![Startup::Now(Command::StartRun("e2e".into()))],
         view: Default::default(),
+        wait_for_port: false,
     };
     let t0 = Instant::now();
     let summary = {
@@ -288,6 +289,7 @@ fn unplug_and_reopen() {
         duration: Some(Duration::from_secs(30)),
         startup: vec![],
         view: Default::default(),
+        wait_for_port: false,
     };
     let t0 = Instant::now();
     let summary = {
@@ -385,6 +387,7 @@ fn two_devices() {
         duration: Some(Duration::from_secs(30)),
         startup: vec![],
         view: Default::default(),
+        wait_for_port: false,
     };
     let summary = {
         let stop2 = stop.clone();

@@ -101,6 +101,7 @@ fn equal_to_replay() {
         duration: Some(Duration::from_secs(120)),
         startup: vec![Startup::Now(Command::StartRun("surge".into()))],
         view: Default::default(),
+        wait_for_port: false,
     };
     let summary = {
         let stop2 = stop.clone();

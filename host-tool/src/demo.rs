@@ -198,6 +198,7 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
         duration: Some(duration),
         startup: vec![Startup::Now(Command::StartRun("demo".into()))],
         view: Default::default(),
+        wait_for_port: false,
     };
     let watch = run_with(opts, interrupt_flag(), &mut |_| {});
     stop.store(true, Ordering::Relaxed);

@@ -82,6 +82,10 @@ pub struct WatchArgs {
     /// Show protocol chatter (commands sent, description ACKs) in the events pane.
     #[arg(long)]
     pub chatter: bool,
+    /// Wait for a port that cannot be opened yet (a device still to be plugged in) instead
+    /// of stopping with an error.
+    #[arg(long)]
+    pub wait_for_port: bool,
 }
 
 /// How the session is shown.
@@ -125,6 +129,8 @@ pub struct WatchOptions {
     pub startup: Vec<Startup>,
     /// Convergence target and events of the live view.
     pub view: ViewOptions,
+    /// Keep trying a port that cannot be opened at the start (else: an error with a hint).
+    pub wait_for_port: bool,
 }
 
 impl WatchOptions {
@@ -178,6 +184,7 @@ impl WatchOptions {
             duration,
             startup,
             view,
+            wait_for_port: a.wait_for_port,
         })
     }
 }
@@ -541,6 +548,13 @@ pub fn run_with(
     if opts.ports.is_empty() {
         return Err(HostError::Usage("give at least one --port".into()));
     }
+    if !opts.wait_for_port {
+        for p in &opts.ports {
+            if let Err(e) = open_port(p, opts.baud) {
+                return Err(HostError::Usage(open_hint(p, &e)));
+            }
+        }
+    }
     let mut ui = opts.ui;
     if ui == Ui::Dashboard && !std::io::stdout().is_terminal() {
         ui = Ui::Plain;
@@ -710,6 +724,29 @@ fn main_loop(
             }
         }
     }
+}
+
+/// Why `port` could not be opened, and what to try.
+pub fn open_hint(port: &str, e: &serialport::Error) -> String {
+    let denied = matches!(
+        e.kind(),
+        serialport::ErrorKind::Io(std::io::ErrorKind::PermissionDenied)
+    ) || e.to_string().to_lowercase().contains("permission");
+    let mut s = format!("cannot open port {port}: {e}\n");
+    if denied {
+        s.push_str(&format!(
+            "hint: the port exists but this user may not open it: check `ls -l {port}` and \
+             join the group that owns it (often `dialout` or `uucp`: \
+             `sudo usermod -aG dialout $USER`, then log in again)\n"
+        ));
+    } else {
+        s.push_str(
+            "hint: `frothline ports` lists the serial ports of this machine; check the cable \
+             and that the device is powered\n",
+        );
+    }
+    s.push_str("hint: give --wait-for-port to wait until the port can be opened");
+    s
 }
 
 /// The process-wide Ctrl-C flag (set by the handler `frothline` installs once).
