@@ -209,7 +209,10 @@ fn compare_with_replay_csv(live: &Path, replay: &Path) {
     };
     let (h1, live) = read(live);
     let (h2, replay) = read(replay);
-    assert_eq!(h1, h2, "same columns");
+    // The live file has the replay's columns, then the run columns.
+    let runs = frothline_host::runs::RUN_COLUMNS;
+    assert_eq!(h1[..h2.len()], h2[..], "same columns");
+    assert_eq!(h1[h2.len()..], runs[..], "then the run columns");
     assert_eq!(live.len(), replay.len());
     let col = |name: &str| h1.iter().position(|h| h == name).unwrap();
     let exact = [

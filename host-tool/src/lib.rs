@@ -35,6 +35,7 @@ pub mod replay;
 pub mod report;
 pub mod rig;
 pub mod running_stats;
+pub mod runs;
 pub mod session;
 pub mod stdout;
 pub mod synth;
