@@ -59,7 +59,21 @@ fn same_figures() {
         .map(|p| p.tally.clone())
         .collect();
 
+    // A mark of a live session shows in the report.
+    let mut marks = frothline_host::marks::MarksCsv::new(dir.path());
+    marks
+        .write(&frothline_host::marks::Mark {
+            run_number: 1,
+            run_label: "flume-b2".into(),
+            host_utc: "2026-12-02T07:00:00.000Z".into(),
+            device_time_s: Some(0.75),
+            note: "inflow valve <half>".into(),
+        })
+        .unwrap();
     let report = frothline_host::report::run(&ReportArgs::new(dir.path())).unwrap();
+    let html = std::fs::read_to_string(&report.html).unwrap();
+    assert!(html.contains("<h2 id=\"marks\">Marks</h2>"));
+    assert!(html.contains("inflow valve &lt;half&gt;") && html.contains("flume-b2"));
     assert_eq!(report.probe_summaries.len(), layout.probes.len());
 
     let mut some_velocity_left_out = false;

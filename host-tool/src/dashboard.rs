@@ -154,15 +154,21 @@ pub fn draw(f: &mut Frame, state: &LiveState, now: Instant) {
         draw_history(f, bottom[0], state);
         draw_recent(f, bottom[1], state);
     }
-    let keys = if state.keys_help.is_empty() {
-        String::new()
-    } else {
-        format!(" keys: {}", state.keys_help)
+    let keys = match &state.prompt {
+        Some(p) => Line::from(vec![
+            Span::styled(
+                format!(" {}", p.question()),
+                Style::default().fg(WARN).add_modifier(Modifier::BOLD),
+            ),
+            Span::raw(format!("{}_", p.text)),
+        ]),
+        None if state.keys_help.is_empty() => Line::from(""),
+        None => Line::from(Span::styled(
+            format!(" keys: {}", state.keys_help),
+            Style::default().fg(ACCENT),
+        )),
     };
-    f.render_widget(
-        Paragraph::new(Line::from(Span::styled(keys, Style::default().fg(ACCENT)))),
-        rows[3],
-    );
+    f.render_widget(Paragraph::new(keys), rows[3]);
     f.render_widget(
         Paragraph::new(Line::from(Span::styled(
             format!(" {SAFETY_LINE}"),

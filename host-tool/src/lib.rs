@@ -29,6 +29,7 @@ pub mod hydraulics;
 pub mod layout;
 pub mod live;
 pub mod logbook_cmd;
+pub mod marks;
 pub mod ports;
 pub mod probe_summary;
 pub mod replay;

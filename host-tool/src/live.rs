@@ -476,6 +476,48 @@ pub struct LiveState {
     pub probe_scroll: usize,
     /// Events lines left out (chatter, profile lines between the ones shown).
     pub events_suppressed: u64,
+    /// A question being answered on the keys line (run label, mark note).
+    pub prompt: Option<Prompt>,
+}
+
+/// What a text prompt asks for.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum PromptKind {
+    /// The label of the run to start.
+    RunLabel,
+    /// The note of a mark.
+    MarkNote,
+}
+
+/// A line of text typed on the dashboard.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Prompt {
+    /// What it is for.
+    pub kind: PromptKind,
+    /// The text so far (starts with the default).
+    pub text: String,
+}
+
+impl Prompt {
+    /// The question shown before the text.
+    pub fn question(&self) -> &'static str {
+        match self.kind {
+            PromptKind::RunLabel => "label of the new run (Enter starts, Esc cancels): ",
+            PromptKind::MarkNote => "mark: a short note (Enter writes, Esc cancels): ",
+        }
+    }
+}
+
+impl LiveState {
+    /// The end of the latest window received from `device`, s of device time.
+    pub fn device_time_s(&self, device: u32) -> Option<f64> {
+        self.devices
+            .get(&device)?
+            .probes
+            .iter()
+            .filter_map(|p| p.window_end_s)
+            .reduce(f64::max)
+    }
 }
 
 impl LiveState {

@@ -685,6 +685,11 @@ impl Session {
         });
     }
 
+    /// The current run of `device` on `port` (see [`crate::runs`]).
+    pub fn run_tag(&self, port: usize, device: u16) -> crate::runs::RunTag {
+        self.runs.tag(port, device)
+    }
+
     /// The CSV name of probe `probe` of `device` on `port`.
     pub fn probe_name(&self, device: u16, probe: usize) -> String {
         let base = self

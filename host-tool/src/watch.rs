@@ -374,7 +374,7 @@ impl std::fmt::Display for WatchSummary {
 
 /// Keys of the dashboard.
 pub const KEYS_HELP: &str =
-    "q quit  s start run  e end run  r re-learn  d describe  PgUp/PgDn probes";
+    "q quit  s start run  e end run  m mark  r re-learn  d describe  PgUp/PgDn probes";
 
 struct Watch<'a> {
     opts: WatchOptions,
@@ -387,6 +387,8 @@ struct Watch<'a> {
     out: Option<std::io::Stdout>,
     /// Standard output was closed (plain mode in a pipe whose reader went away).
     quit: bool,
+    /// marks.csv (when the session writes files).
+    marks: Option<crate::marks::MarksCsv>,
     observer: &'a mut dyn FnMut(&Event),
 }
 
@@ -496,6 +498,83 @@ impl Watch<'_> {
         match self.session.sent(port, crate::archive::now_us(), &bytes) {
             Ok(ev) => self.emit(ev),
             Err(e) => self.note(format!("archive: {e}")),
+        }
+    }
+
+    /// Write a mark with `note` for the first device's current run.
+    pub fn mark(&mut self, note: &str) {
+        let device = self.live.devices.iter().next().map(|(id, d)| (*id, d.port));
+        let (tag, device_time_s) = match device {
+            Some((id, port)) => (
+                self.session.run_tag(port, id as u16),
+                self.live.device_time_s(id),
+            ),
+            None => (Default::default(), None),
+        };
+        let mark = crate::marks::Mark {
+            run_number: tag.number,
+            run_label: tag.label,
+            host_utc: crate::unpack::iso_utc(crate::archive::now_us()),
+            device_time_s,
+            note: note.trim().to_string(),
+        };
+        let result = match self.marks.as_mut() {
+            Some(m) => m.write(&mark).map(|_| m.path().display().to_string()),
+            None => Ok("no file (the session writes none)".into()),
+        };
+        match result {
+            Ok(to) => self.note(format!(
+                "mark in run {} at device t {}: {} -> {to}",
+                mark.run_number,
+                mark.device_time_s
+                    .map_or("-".into(), |t| format!("{t:.1} s")),
+                mark.note
+            )),
+            Err(e) => self.note(format!("mark not written: {e}")),
+        }
+    }
+
+    /// A key typed while a prompt is open: edit, confirm (Enter) or cancel (Esc).
+    fn prompt_key(&mut self, code: ratatui::crossterm::event::KeyCode) {
+        use crate::live::PromptKind;
+        use ratatui::crossterm::event::KeyCode;
+        let Some(p) = self.live.prompt.as_mut() else {
+            return;
+        };
+        match code {
+            KeyCode::Esc => self.live.prompt = None,
+            KeyCode::Backspace => {
+                p.text.pop();
+            }
+            KeyCode::Char(c) => {
+                let limit = match p.kind {
+                    PromptKind::RunLabel => frothline_core::wire::LABEL_BYTES,
+                    PromptKind::MarkNote => crate::marks::MAX_NOTE_CHARS,
+                };
+                let mut t = p.text.clone();
+                t.push(c);
+                if (p.kind == PromptKind::RunLabel && t.len() <= limit)
+                    || (p.kind == PromptKind::MarkNote && t.chars().count() <= limit)
+                {
+                    p.text = t;
+                }
+            }
+            KeyCode::Enter => {
+                let Some(p) = self.live.prompt.take() else {
+                    return;
+                };
+                match p.kind {
+                    PromptKind::RunLabel => match parse_label(p.text.trim()) {
+                        Ok(label) => {
+                            self.runs += 1;
+                            self.broadcast(Command::StartRun(label));
+                        }
+                        Err(e) => self.note(format!("run not started: {e}")),
+                    },
+                    PromptKind::MarkNote => self.mark(&p.text),
+                }
+            }
+            _ => {}
         }
     }
 
@@ -609,6 +688,7 @@ pub fn run_with(
             let _ = writeln!(o, "# archiving every byte to {}", p.display());
         }
     }
+    let w_marks = opts.dir.as_deref().map(crate::marks::MarksCsv::new);
     let mut w = Watch {
         opts,
         session,
@@ -618,6 +698,7 @@ pub fn run_with(
         runs: 0,
         out,
         quit: false,
+        marks: w_marks,
         observer,
     };
     let result = main_loop(&mut w, &rx, &stop, t0, term.as_mut());
@@ -637,7 +718,10 @@ pub fn run_with(
         }
     }
     w.writers.clear();
-    let report = w.session.finish()?;
+    let mut report = w.session.finish()?;
+    if let Some(m) = w.marks.as_ref().filter(|m| m.written > 0) {
+        report.files.push(m.path().to_path_buf());
+    }
     result?;
     drained?;
     let probes = crate::dashboard::probe_rows(&w.live)
@@ -700,13 +784,30 @@ fn main_loop(
             if k.kind != KeyEventKind::Press {
                 continue;
             }
+            if k.code == KeyCode::Char('c') && k.modifiers.contains(KeyModifiers::CONTROL) {
+                return Ok(());
+            }
+            if w.live.prompt.is_some() {
+                w.prompt_key(k.code);
+                continue;
+            }
             match k.code {
                 KeyCode::Char('q') | KeyCode::Esc => return Ok(()),
-                KeyCode::Char('c') if k.modifiers.contains(KeyModifiers::CONTROL) => return Ok(()),
                 KeyCode::Char('s') => {
-                    w.runs += 1;
-                    let label = format!("run-{}", w.runs);
-                    w.broadcast(Command::StartRun(label));
+                    // Default label: the next run number of the first device.
+                    let next = w.live.devices.iter().next().map_or(w.runs, |(id, d)| {
+                        w.session.run_tag(d.port, *id as u16).number
+                    }) + 1;
+                    w.live.prompt = Some(crate::live::Prompt {
+                        kind: crate::live::PromptKind::RunLabel,
+                        text: format!("run-{next}"),
+                    });
+                }
+                KeyCode::Char('m') => {
+                    w.live.prompt = Some(crate::live::Prompt {
+                        kind: crate::live::PromptKind::MarkNote,
+                        text: String::new(),
+                    });
                 }
                 KeyCode::Char('e') => w.broadcast(Command::StopRun),
                 KeyCode::Char('r') => w.broadcast(Command::Relearn(u32::MAX)),

@@ -595,6 +595,7 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
     }
     let reynolds = run.indicators.as_ref().and_then(|i| i.reynolds());
     let low_reynolds = reynolds.is_some_and(|re| re < args.low_reynolds);
+    let marks = crate::marks::read(&args.dir).map_err(ReportError::Usage)?;
     let html_path = out_dir.join("report.html");
     let page = html::Page {
         args,
@@ -608,6 +609,7 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
         low_reynolds,
         notes: &notes,
         sel,
+        marks: &marks,
     };
     std::fs::write(&html_path, page.render()).map_err(|source| ReportError::Write {
         path: html_path.clone(),
