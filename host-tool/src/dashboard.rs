@@ -145,14 +145,14 @@ pub fn draw(f: &mut Frame, state: &LiveState, now: Instant) {
             .split(rows[2]);
         draw_history(f, bottom[0], state);
         draw_decay(f, bottom[1], state);
-        draw_recent(f, bottom[2], state);
+        draw_recent_or_strip(f, bottom[2], state);
     } else {
         let bottom = Layout::default()
             .direction(Direction::Horizontal)
             .constraints([Constraint::Percentage(58), Constraint::Percentage(42)])
             .split(rows[2]);
         draw_history(f, bottom[0], state);
-        draw_recent(f, bottom[1], state);
+        draw_recent_or_strip(f, bottom[1], state);
     }
     let keys = match &state.prompt {
         Some(p) => Line::from(vec![
@@ -816,6 +816,88 @@ fn draw_history(f: &mut Frame, area: Rect, state: &LiveState) {
     f.render_widget(p, area);
 }
 
+fn draw_recent_or_strip(f: &mut Frame, area: Rect, state: &LiveState) {
+    match state.strip_view.quantity() {
+        None => draw_recent(f, area, state),
+        Some((k, name)) => draw_strip(f, area, state, k, name),
+    }
+}
+
+/// Colours of the strip chart's probes (the legend names them, so colour is not the only
+/// cue).
+const STRIP_COLOURS: [Color; 8] = [
+    Color::Cyan,
+    Color::Yellow,
+    Color::Green,
+    Color::Magenta,
+    Color::LightRed,
+    Color::LightBlue,
+    Color::White,
+    Color::LightGreen,
+];
+
+/// The strip chart's series: (probe name, points (device time s, value)), highest probe
+/// first, for quantity `k` (0 C, 1 F, 2 V).
+pub fn strip_data(state: &LiveState, k: usize) -> Vec<(String, Points)> {
+    probe_rows(state)
+        .into_iter()
+        .map(|(_, p)| {
+            let pts = p
+                .strip
+                .iter()
+                .filter_map(|(t, v)| Some((*t, v.get(k).copied().flatten()?)))
+                .filter(|(t, v)| t.is_finite() && v.is_finite())
+                .collect();
+            (p.name.clone(), pts)
+        })
+        .collect()
+}
+
+fn draw_strip(f: &mut Frame, area: Rect, state: &LiveState, k: usize, name: &str) {
+    let series = strip_data(state, k);
+    let (mut t0, mut t1, mut vmax) = (f64::INFINITY, f64::NEG_INFINITY, 0.0f64);
+    for (_, pts) in &series {
+        for &(t, v) in pts {
+            t0 = t0.min(t);
+            t1 = t1.max(t);
+            vmax = vmax.max(v);
+        }
+    }
+    if !t0.is_finite() {
+        (t0, t1) = (0.0, 1.0);
+    }
+    let t1 = t1.max(t0 + 1e-3);
+    let vmax = if k == 0 { 1.0 } else { (vmax * 1.1).max(1e-3) };
+    let sets: Vec<Dataset> = series
+        .iter()
+        .enumerate()
+        .map(|(i, (n, pts))| {
+            Dataset::default()
+                .name(n.clone())
+                .marker(Marker::Braille)
+                .graph_type(GraphType::Line)
+                .style(Style::default().fg(STRIP_COLOURS[i % STRIP_COLOURS.len()]))
+                .data(pts)
+        })
+        .collect();
+    let head = format!(" strip: {name} vs device time (c: next) ");
+    let chart = Chart::new(sets)
+        .block(Block::default().borders(Borders::ALL).title(title(&head)))
+        .x_axis(
+            Axis::default()
+                .bounds([t0, t1])
+                .labels(axis_labels(t0, t1, 1)),
+        )
+        .y_axis(Axis::default().bounds([0.0, vmax]).labels(axis_labels(
+            0.0,
+            vmax,
+            if k == 1 { 0 } else { 1 },
+        )))
+        .legend_position(Some(ratatui::widgets::LegendPosition::TopLeft))
+        .hidden_legend_constraints((Constraint::Ratio(1, 1), Constraint::Ratio(1, 1)));
+    f.render_widget(chart, area);
+}
+
 fn draw_recent(f: &mut Frame, area: Rect, state: &LiveState) {
     let n = area.height.saturating_sub(3) as usize;
     let multi = state.devices.len() > 1;
@@ -874,7 +956,7 @@ fn draw_recent(f: &mut Frame, area: Rect, state: &LiveState) {
     let p = Paragraph::new(lines).block(
         Block::default()
             .borders(Borders::ALL)
-            .title(title(" recent windows: C ")),
+            .title(title(" recent windows: C (c: strip chart) ")),
     );
     f.render_widget(p, area);
 }
@@ -1365,5 +1447,34 @@ mod tests {
         assert!(text.contains("A1 "), "the lowest probe is reachable");
         assert_eq!(probe_page(16, 100, 5), (11, 16, 0));
         assert_eq!(probe_page(3, 0, 5), (0, 3, 0));
+    }
+
+    /// The strip chart: every probe's series against device time, named in its legend;
+    /// `c` cycles C, F, V and back to the table.
+    #[test]
+    fn the_strip_chart_cycles_quantities_and_names_every_probe() {
+        let now = Instant::now();
+        let mut s = state(now);
+        let data = strip_data(&s, 1);
+        assert_eq!(data.len(), 4);
+        // B2-4 (highest, first): F = 110 Hz in each of its 6 windows, ending 0.1 s apart.
+        assert_eq!(data[0].1.len(), 6);
+        assert!((data[0].1[5].0 - 0.6).abs() < 1e-9 && (data[0].1[5].1 - 110.0).abs() < 1e-3);
+        for (view, head) in [
+            (crate::live::StripView::VoidFraction, "strip: C"),
+            (crate::live::StripView::CountRate, "strip: F"),
+            (crate::live::StripView::Velocity, "strip: V"),
+        ] {
+            s.strip_view = view;
+            let text = render_text(&s, now, 160, 48).join("\n");
+            assert!(text.contains(head), "{head}\n{text}");
+            for n in ["B2-1", "B2-2", "B2-3", "B2-4"] {
+                assert!(
+                    text.matches(n).count() >= 2,
+                    "{n} not in the table and legend"
+                );
+            }
+        }
+        assert_eq!(s.strip_view.next(), crate::live::StripView::Table);
     }
 }

@@ -172,6 +172,47 @@ pub struct ProbeRow {
     pub windows: u64,
     /// Running figures of the current run (see [`crate::probe_summary`]).
     pub tally: ProbeTally,
+    /// The latest windows of the run for the strip chart: (end, s of device time; C, F, V).
+    pub strip: VecDeque<(f64, [Option<f64>; 3])>,
+}
+
+/// Windows per probe kept for the strip chart.
+pub const STRIP_POINTS: usize = 600;
+
+/// What the bottom-right panel shows (key `c` cycles it).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum StripView {
+    /// The recent windows as a table of C.
+    #[default]
+    Table,
+    /// C of every probe against device time.
+    VoidFraction,
+    /// F against device time.
+    CountRate,
+    /// V against device time.
+    Velocity,
+}
+
+impl StripView {
+    /// The next view.
+    pub fn next(self) -> StripView {
+        match self {
+            StripView::Table => StripView::VoidFraction,
+            StripView::VoidFraction => StripView::CountRate,
+            StripView::CountRate => StripView::Velocity,
+            StripView::Velocity => StripView::Table,
+        }
+    }
+
+    /// Index into the strip values and a name with unit (none for the table).
+    pub fn quantity(self) -> Option<(usize, &'static str)> {
+        match self {
+            StripView::Table => None,
+            StripView::VoidFraction => Some((0, "C [-]")),
+            StripView::CountRate => Some((1, "F [Hz]")),
+            StripView::Velocity => Some((2, "V [m/s]")),
+        }
+    }
 }
 
 impl ProbeRow {
@@ -478,6 +519,8 @@ pub struct LiveState {
     pub events_suppressed: u64,
     /// A question being answered on the keys line (run label, mark note).
     pub prompt: Option<Prompt>,
+    /// What the bottom-right panel shows.
+    pub strip_view: StripView,
 }
 
 /// What a text prompt asks for.
@@ -565,6 +608,12 @@ impl LiveState {
         // (a new run); the running figures start again.
         if row.window_end_s.is_some_and(|end| w.start_s < end - 1e-9) {
             row.tally = ProbeTally::new();
+            row.strip.clear();
+        }
+        row.strip
+            .push_back((w.end_s, [w.void_fraction, w.bubble_rate_hz, w.velocity_m_s]));
+        while row.strip.len() > STRIP_POINTS {
+            row.strip.pop_front();
         }
         row.tally.add(&w.figures(), &rule);
         row.void_fraction = w.void_fraction;
@@ -718,6 +767,7 @@ impl LiveState {
                         d.run_label = label;
                         for p in &mut d.probes {
                             p.tally = ProbeTally::new();
+                            p.strip.clear();
                         }
                     }
                     Some(Kind::StopRun) => d.running = Some(false),

@@ -374,7 +374,7 @@ impl std::fmt::Display for WatchSummary {
 
 /// Keys of the dashboard.
 pub const KEYS_HELP: &str =
-    "q quit  s start run  e end run  m mark  r re-learn  d describe  PgUp/PgDn probes";
+    "q quit  s start run  e end run  m mark  r re-learn  d describe  c chart  PgUp/PgDn probes";
 
 struct Watch<'a> {
     opts: WatchOptions,
@@ -812,6 +812,7 @@ fn main_loop(
                 KeyCode::Char('e') => w.broadcast(Command::StopRun),
                 KeyCode::Char('r') => w.broadcast(Command::Relearn(u32::MAX)),
                 KeyCode::Char('d') => w.broadcast(Command::DescribeRequest),
+                KeyCode::Char('c') => w.live.strip_view = w.live.strip_view.next(),
                 KeyCode::PageDown | KeyCode::Down => {
                     let step = if k.code == KeyCode::Down { 1 } else { 8 };
                     let total = crate::dashboard::probe_rows(&w.live).len();
