@@ -9,8 +9,8 @@
 use super::input::{Run, Slice, Window};
 use super::render::{DrawError, Figure, Tagger};
 use super::stats::{
-    chord_histogram, envelope_fmax, power_law_curve, slice_void_fraction, DecayFit, ProbeSummary,
-    Selection,
+    chord_histogram, envelope_fmax, power_law_curve, slice_void_fraction,
+    slice_void_fraction_spread, DecayFit, ProbeSummary, Selection,
 };
 use super::style::{
     legend_line, marker_element, probe_colour, probe_marker, station_colour, time_colour, Marker,
@@ -334,7 +334,13 @@ impl ProfileFigure<'_> {
                     fmt_num(sl.profile_exponent.unwrap_or(0.0)),
                 )
             })
-            .chain(["windows over the slice, per probe".to_string()])
+            .chain([
+                if run.windows.iter().any(|w| w.void_fraction_spread.is_some()) {
+                    "windows over the slice, per probe; bars ±1 sd over the runs".to_string()
+                } else {
+                    "windows over the slice, per probe".to_string()
+                },
+            ])
             .collect();
         let all: Vec<(f64, f64)> = curves
             .iter()
@@ -387,6 +393,30 @@ impl ProfileFigure<'_> {
                 colour.mix(0.45).stroke_width((width / 2).max(1)),
             ))?;
             tag.end(root)?;
+            // Run-to-run spread of an ensemble: ±1 standard deviation of C as error bars.
+            let bars: Vec<((f64, f64), f64)> = probes
+                .iter()
+                .filter_map(|&p| {
+                    let c = slice_void_fraction(run, self.ctx.sel, p, sl)?;
+                    let sd = slice_void_fraction_spread(run, self.ctx.sel, p, sl)?;
+                    Some(((c, run.probes[p].elevation_mm?), sd))
+                })
+                .filter(|(_, sd)| *sd > 0.0 && sd.is_finite())
+                .collect();
+            if !bars.is_empty() {
+                tag.begin(root, &format!("profile-spread-t{t:.3}"))?;
+                let cap = (y_top * 0.008).max(1e-9);
+                for ((c, y), sd) in &bars {
+                    let (lo, hi) = ((c - sd).max(0.0), (c + sd).min(1.0));
+                    let style = colour.mix(0.8).stroke_width((width / 2).max(1));
+                    chart.draw_series([
+                        PathElement::new(vec![(lo, *y), (hi, *y)], style),
+                        PathElement::new(vec![(lo, y - cap), (lo, y + cap)], style),
+                        PathElement::new(vec![(hi, y - cap), (hi, y + cap)], style),
+                    ])?;
+                }
+                tag.end(root)?;
+            }
             tag.begin(root, &format!("profile-windows-t{t:.3}"))?;
             let anno = chart.draw_series(
                 pts.iter()

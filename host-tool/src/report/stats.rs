@@ -442,6 +442,23 @@ pub fn slice_void_fraction(run: &Run, sel: Selection, p: usize, s: &Slice) -> Op
     }
 }
 
+/// The run-to-run spread of C of probe `p` over slice `s` (an ensemble's windows), weighted
+/// like [`slice_void_fraction`]; none for a single run.
+pub fn slice_void_fraction_spread(run: &Run, sel: Selection, p: usize, s: &Slice) -> Option<f64> {
+    let (a, b) = (s.start_s?, s.end_s?);
+    let mut m = WMean::default();
+    for w in run
+        .windows
+        .iter()
+        .filter(|w| w.probe == p && w.flags & sel.excluded_flags == 0)
+    {
+        if let (Some(ws), Some(we)) = (w.start_s, w.end_s) {
+            m.add(w.void_fraction_spread, (we.min(b) - ws.max(a)).max(0.0));
+        }
+    }
+    m.get()
+}
+
 /// Normalised histogram of chord times of probe `p`: (lower, upper, fraction of bubbles).
 pub fn chord_histogram(run: &Run, p: usize) -> Vec<(f64, f64, f64)> {
     let mut bins: Vec<(f64, f64, f64)> = run
