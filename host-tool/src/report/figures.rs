@@ -148,8 +148,9 @@ fn place_legend(
     let plot_w = s.width as f64 - s.px(y_label_px + 38.0) as f64;
     let plot_h = s.height as f64 - s.px(22.0 + 24.0 + 54.0 + 24.0) as f64;
     let chars = labels.iter().map(|l| l.chars().count()).max().unwrap_or(0) as f64;
-    let box_w = s.px(10.0 + 28.0 + 16.0) as f64 + chars * s.px(14.0) as f64 * 0.6;
-    let box_h = s.px(12.0) as f64 + labels.len() as f64 * s.px(20.0) as f64;
+    let box_w =
+        (s.px(10.0 + 16.0) + s.px(28.0).max(26)) as f64 + chars * s.legend_px() as f64 * 0.6;
+    let box_h = s.px(12.0) as f64 + labels.len() as f64 * (s.legend_px() as f64 * 1.45);
     let (wf, hf) = ((box_w / plot_w).min(1.0), (box_h / plot_h).min(0.9));
     let mut best: Option<(SeriesLabelPosition, f64)> = None;
     for corner in corners {
@@ -253,7 +254,8 @@ fn legend<'a, DB: DrawingBackend + 'a, CT: CoordTranslate>(
         .configure_series_labels()
         .position(pos)
         .margin(s.px(10.0))
-        .legend_area_size(s.px(28.0))
+        // The keys are drawn 17 px long (style::LineKey): keep room for them at any scale.
+        .legend_area_size(s.px(28.0).max(26))
         .background_style(WHITE.mix(0.88))
         .border_style(GRID)
         .label_font(s.legend())
@@ -1239,7 +1241,8 @@ impl Figure for CountRateFigure<'_> {
             }
             root.draw(&Text::new(
                 label.clone(),
-                (x0 + s.px(36.0) as i32, y),
+                // Past the 17 px line key (style::LineKey) at any scale.
+                (x0 + s.px(12.0) as i32 + s.px(24.0).max(22) as i32, y),
                 text.clone(),
             ))?;
         }
