@@ -207,3 +207,22 @@ fn a_missing_port_is_an_error_with_a_hint() {
     let e = frothline_host::cli::run(["frothline", "replay"]).unwrap_err();
     assert!(!e.to_string().starts_with("error:"), "{e}");
 }
+
+/// `report --exclude-flags` with a misspelt flag is refused before anything is read, and
+/// the message lists the flag names.
+#[test]
+fn a_misspelt_exclude_flag_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let e = frothline_host::cli::run([
+        "frothline",
+        "report",
+        dir.path().to_str().unwrap(),
+        "--exclude-flags",
+        "few_bubble",
+    ])
+    .unwrap_err();
+    let text = e.to_string();
+    assert!(text.contains("--exclude-flags") && text.contains("`few_bubble`"), "{text}");
+    assert!(text.contains("few_bubbles"), "{text}");
+    assert_eq!(e.exit_code(), 2);
+}
