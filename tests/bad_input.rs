@@ -222,7 +222,10 @@ fn a_misspelt_exclude_flag_is_refused() {
     ])
     .unwrap_err();
     let text = e.to_string();
-    assert!(text.contains("--exclude-flags") && text.contains("`few_bubble`"), "{text}");
+    assert!(
+        text.contains("--exclude-flags") && text.contains("`few_bubble`"),
+        "{text}"
+    );
     assert!(text.contains("few_bubbles"), "{text}");
     assert_eq!(e.exit_code(), 2);
 }

@@ -233,7 +233,19 @@ fn compare_with_replay_csv(live: &Path, replay: &Path) {
         ("correlation_peak", 0.5e-4),
         ("turbulence_intensity", 0.5e-4),
     ];
+    // The live transit time is s / V from the sent velocity: relative to V's resolution.
+    let transit = col("transit_time_s");
     for (i, (l, r)) in live.iter().zip(&replay).enumerate() {
+        let v = &r[col("interfacial_velocity_m_s")];
+        if !v.is_empty() {
+            let (a, b): (f64, f64) = (l[transit].parse().unwrap(), r[transit].parse().unwrap());
+            let v: f64 = v.parse().unwrap();
+            // dT/T = dV/V, with dV half a step of 1 mm/s.
+            assert!(
+                (a - b).abs() <= b * 0.5e-3 / v * 1.01 + 1e-9,
+                "row {i} transit: {a} vs {b}"
+            );
+        }
         for name in exact {
             assert_eq!(l[col(name)], r[col(name)], "row {i} {name}");
         }

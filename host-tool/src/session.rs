@@ -778,6 +778,14 @@ impl Session {
             let fs = d.sample_rate_hz?;
             Some((w.start as f64 - front as f64) / fs)
         });
+        // The transit time T is not on the wire, but the device sends V and described the
+        // tip spacing s: T = s / V (to the resolution of V, 1 mm/s).
+        let transit_s = info
+            .and_then(|d| d.desc.as_ref()?.probes.get(w.probe as usize)?.trailing)
+            .map(|t| frothline_core::wire::quant::from_spacing(t.spacing) as f64 * 1e-3)
+            .zip(w.velocity_m_s().map(f64::from))
+            .filter(|(s, v)| *s > 0.0 && *v > 0.0)
+            .map(|(s, v)| s / v);
         self.report.windows += 1;
         if fs.is_none() {
             self.report.windows_without_times += 1;
@@ -786,6 +794,14 @@ impl Session {
             return Ok(());
         };
         let mut row = wire_row(w, &meta, fs, since);
+        if let (Some(t), Some(i)) = (
+            transit_s,
+            crate::windows_csv::COLUMNS
+                .iter()
+                .position(|c| *c == "transit_time_s"),
+        ) {
+            row[i] = (t as f32).to_string();
+        }
         row.extend(self.runs.columns(port, device, self.now_us));
         let path = out.dir.join("windows.csv");
         out.windows
