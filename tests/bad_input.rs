@@ -178,3 +178,54 @@ fn bad_window_is_a_usage_error() {
         .to_string();
     assert!(e.contains("5min"), "{e}");
 }
+
+/// A port that cannot be opened at the start is an error with a hint, and no session
+/// folder is filled with empty files; argument errors carry one `error:` prefix (the binary
+/// adds it, so the message itself must not start with one).
+#[test]
+fn a_missing_port_is_an_error_with_a_hint() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("session");
+    let e = frothline_host::cli::run([
+        "frothline",
+        "watch",
+        "--port",
+        "/dev/frothline-no-such-port",
+        "--plain",
+        "--duration",
+        "1",
+        "--archive",
+        out.to_str().unwrap(),
+    ])
+    .unwrap_err();
+    let text = e.to_string();
+    assert!(text.contains("/dev/frothline-no-such-port"), "{text}");
+    assert!(text.contains("frothline ports"), "{text}");
+    assert!(text.contains("--wait-for-port"), "{text}");
+    assert_eq!(e.exit_code(), 2);
+    assert!(!out.exists(), "a session folder was made");
+    let e = frothline_host::cli::run(["frothline", "replay"]).unwrap_err();
+    assert!(!e.to_string().starts_with("error:"), "{e}");
+}
+
+/// `report --exclude-flags` with a misspelt flag is refused before anything is read, and
+/// the message lists the flag names.
+#[test]
+fn a_misspelt_exclude_flag_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let e = frothline_host::cli::run([
+        "frothline",
+        "report",
+        dir.path().to_str().unwrap(),
+        "--exclude-flags",
+        "few_bubble",
+    ])
+    .unwrap_err();
+    let text = e.to_string();
+    assert!(
+        text.contains("--exclude-flags") && text.contains("`few_bubble`"),
+        "{text}"
+    );
+    assert!(text.contains("few_bubbles"), "{text}");
+    assert_eq!(e.exit_code(), 2);
+}

@@ -113,6 +113,8 @@ fn equal_to_replay() {
         ui: Ui::Silent,
         duration: Some(Duration::from_secs(60)),
         startup: vec![Startup::Now(Command::StartRun("e2e".into()))],
+        view: Default::default(),
+        wait_for_port: false,
     };
     let t0 = Instant::now();
     let summary = {
@@ -207,7 +209,10 @@ fn compare_with_replay_csv(live: &Path, replay: &Path) {
     };
     let (h1, live) = read(live);
     let (h2, replay) = read(replay);
-    assert_eq!(h1, h2, "same columns");
+    // The live file has the replay's columns, then the run columns.
+    let runs = frothline_host::runs::RUN_COLUMNS;
+    assert_eq!(h1[..h2.len()], h2[..], "same columns");
+    assert_eq!(h1[h2.len()..], runs[..], "then the run columns");
     assert_eq!(live.len(), replay.len());
     let col = |name: &str| h1.iter().position(|h| h == name).unwrap();
     let exact = [
@@ -228,7 +233,19 @@ fn compare_with_replay_csv(live: &Path, replay: &Path) {
         ("correlation_peak", 0.5e-4),
         ("turbulence_intensity", 0.5e-4),
     ];
+    // The live transit time is s / V from the sent velocity: relative to V's resolution.
+    let transit = col("transit_time_s");
     for (i, (l, r)) in live.iter().zip(&replay).enumerate() {
+        let v = &r[col("interfacial_velocity_m_s")];
+        if !v.is_empty() {
+            let (a, b): (f64, f64) = (l[transit].parse().unwrap(), r[transit].parse().unwrap());
+            let v: f64 = v.parse().unwrap();
+            // dT/T = dV/V, with dV half a step of 1 mm/s.
+            assert!(
+                (a - b).abs() <= b * 0.5e-3 / v * 1.01 + 1e-9,
+                "row {i} transit: {a} vs {b}"
+            );
+        }
         for name in exact {
             assert_eq!(l[col(name)], r[col(name)], "row {i} {name}");
         }
@@ -286,6 +303,8 @@ fn unplug_and_reopen() {
         ui: Ui::Silent,
         duration: Some(Duration::from_secs(30)),
         startup: vec![],
+        view: Default::default(),
+        wait_for_port: false,
     };
     let t0 = Instant::now();
     let summary = {
@@ -382,6 +401,8 @@ fn two_devices() {
         ui: Ui::Silent,
         duration: Some(Duration::from_secs(30)),
         startup: vec![],
+        view: Default::default(),
+        wait_for_port: false,
     };
     let summary = {
         let stop2 = stop.clone();

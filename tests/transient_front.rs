@@ -423,4 +423,18 @@ fn ensemble_command_writes_its_files() {
     assert!(h.contains(&"y90_spread_mm".to_string()));
     assert!(p.records().count() >= 4);
     assert!(out.path().join("fronts.csv").is_file() && out.path().join("flow.json").is_file());
+
+    // The report draws the run-to-run spread of C as error bars on the profiles, and reads
+    // the spread column (no "columns not used" note for it).
+    let report =
+        frothline_host::report::run(&frothline_host::report::ReportArgs::new(out.path())).unwrap();
+    let svg = std::fs::read_to_string(report.out_dir.join("void_fraction_profile.svg")).unwrap();
+    assert!(svg.contains("profile-spread"), "no error bars drawn");
+    assert!(
+        svg.contains("sd over the runs"),
+        "the legend does not say what the bars are"
+    );
+    assert!(!report.notes.iter().any(|n| n.contains("not used")
+        && n.split([':', ','])
+            .any(|c| c.trim() == "void_fraction_spread")));
 }

@@ -100,6 +100,8 @@ fn equal_to_replay() {
         ui: Ui::Silent,
         duration: Some(Duration::from_secs(120)),
         startup: vec![Startup::Now(Command::StartRun("surge".into()))],
+        view: Default::default(),
+        wait_for_port: false,
     };
     let summary = {
         let stop2 = stop.clone();

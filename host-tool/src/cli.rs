@@ -57,7 +57,12 @@ where
             let _ = e.print();
             return Ok(());
         }
-        Err(e) => return Err(HostError::Usage(e.render().to_string())),
+        // clap starts its message with its own `error: `; the binary adds the one prefix.
+        Err(e) => {
+            let text = e.render().to_string();
+            let text = text.strip_prefix("error: ").unwrap_or(&text).trim_end();
+            return Err(HostError::Usage(text.to_string()));
+        }
     };
     // Host chains (16 probes, 1024 correlation lags) are about a megabyte and are built on
     // the stack before they are boxed: run the command on a thread with room for that,

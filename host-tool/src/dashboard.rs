@@ -3,16 +3,23 @@
 //! ```text
 //! links and devices   status (UP / DOWN / OPENING / QUIET), frames/s, bytes/s and share of
 //!                     the link, age of the last frame, lost frames, CRC failures; per device
-//!                     firmware, sample rate, window, run, device-reported health
-//! probes (top first)  y, C, F, V, Tu, median chord, correlation peak, bubbles, flags
+//!                     firmware, sample rate, window, run, device-reported health (one line
+//!                     per link and device on short terminals)
+//! probes (top first)  running figures of the run: C, F, V, Tu, chord median with 95 %
+//!                     batch-means intervals, windows used, convergence against the target;
+//!                     then the latest window's C and flags (CSV flag names)
 //! C profile           a bar per probe at its elevation (the rows keep the elevation order);
 //!                     in a transient flow, a chart of C against elevation of the latest
 //!                     windows with the station's latest fit C = 0.9 (y/Y90)^n
-//! events | windows    command replies, link events, gaps; one line per analysis window;
-//!                     once a front arrived, between them Cmean against the time since the
-//!                     front with the host's decay fit C(t) = Cf + (C0 - Cf) exp(-t/tau)
+//! events | windows    command replies, link events, gaps, fronts (rate-limited profile
+//!                     lines, no protocol chatter unless asked); one line per analysis
+//!                     window; once a front arrived, between them Cmean against the time
+//!                     since the front with the host's decay fit C(t) = Cf + (C0 - Cf) exp(-t/tau)
 //! keys, safety line
 //! ```
+//!
+//! Space goes to the panels in proportion to what they hold; whatever does not fit is
+//! marked `+N more` (the probe table pages with PgUp/PgDn), nothing is dropped silently.
 
 use crate::live::{LinkHealth, LiveState, ProbeRow};
 use frothline_core::Flags;
@@ -47,31 +54,26 @@ fn title(s: &str) -> Span<'_> {
     Span::styled(s, Style::default().fg(ACCENT).add_modifier(Modifier::BOLD))
 }
 
-/// Short words for the flags, for the probe table (the CSV files carry the full names).
-pub fn short_flag(name: &str) -> &str {
-    match name {
-        "stuck" => "stuck",
-        "levels_not_learnt" => "learning",
-        "saturated" => "saturated",
-        "short_chords" => "short-chords",
-        "partial_window" => "partial",
-        "trailing_stuck" => "trail-stuck",
-        "no_correlation_peak" => "no-peak",
-        "peak_at_lag_boundary" => "lag-edge",
-        "few_bubbles" => "few-bubbles",
-        "tu_undefined" => "no-Tu",
-        "correlation_overflow" => "overflow",
-        other => other,
-    }
-}
-
+/// The latest window's flags with the CSV names; a stuck tip in capitals first, so it
+/// reads without colour.
 fn flag_words(f: Flags) -> String {
-    let v: Vec<&str> = f.names().map(short_flag).collect();
+    let mut v: Vec<String> = Vec::new();
+    for name in f.names() {
+        match name {
+            "stuck" | "trailing_stuck" => v.insert(0, name.to_uppercase()),
+            _ => v.push(name.to_string()),
+        }
+    }
     if v.is_empty() {
         "ok".into()
     } else {
         v.join(" ")
     }
+}
+
+/// True if the flags say a tip stopped switching.
+fn tip_stuck(f: Flags) -> bool {
+    f.contains(Flags::STUCK) || f.contains(Flags::TRAILING_STUCK)
 }
 
 fn bytes_text(b: f64) -> String {
@@ -84,25 +86,44 @@ fn bytes_text(b: f64) -> String {
     }
 }
 
+/// Rows of the probe table: borders, header and one line per probe.
+fn probe_table_height(state: &LiveState) -> u16 {
+    (probe_rows(state).len() as u16).saturating_add(3)
+}
+
 /// Draw the whole dashboard.
 pub fn draw(f: &mut Frame, state: &LiveState, now: Instant) {
     let area = f.area();
-    let head = (2 + 2 * state.links.len() + 2 * state.devices.len()).clamp(4, 14) as u16;
     let front = state
         .shown_station()
         .is_some_and(|(_, s)| s.front_s.is_some());
+    // Heights: the head in full (two lines per link and device) when there is room, else
+    // one line each; the probe table as tall as its rows (it pages when cut); the events
+    // and windows panes take the rest, at least 5 rows.
+    let avail = area.height.saturating_sub(2);
+    let full_head = (2 + 2 * state.links.len() + 2 * state.devices.len()) as u16;
+    let compact_head = (2 + state.links.len() + state.devices.len()) as u16;
+    let probes_need = probe_table_height(state).max(if front { 12 } else { 8 });
+    let bottom_min = 5u16;
+    let compact = full_head + probes_need + bottom_min > avail;
+    let head = if compact { compact_head } else { full_head }
+        .min(avail / 3)
+        .max(3);
+    let probes_h = probes_need
+        .min(avail.saturating_sub(head + bottom_min))
+        .max(4);
     let rows = Layout::default()
         .direction(Direction::Vertical)
         .constraints([
             Constraint::Length(head),
-            Constraint::Min(7),
-            Constraint::Length(if front { 13 } else { 9 }),
+            Constraint::Length(probes_h),
+            Constraint::Min(bottom_min),
             Constraint::Length(1),
             Constraint::Length(1),
         ])
         .split(area);
-    draw_links(f, rows[0], state, now);
-    let profile_w = (area.width / 3).clamp(28, 44);
+    draw_links(f, rows[0], state, now, compact);
+    let profile_w = (area.width / 4).clamp(24, 44);
     let mid = Layout::default()
         .direction(Direction::Horizontal)
         .constraints([Constraint::Min(40), Constraint::Length(profile_w)])
@@ -117,31 +138,37 @@ pub fn draw(f: &mut Frame, state: &LiveState, now: Instant) {
         let bottom = Layout::default()
             .direction(Direction::Horizontal)
             .constraints([
+                Constraint::Percentage(38),
                 Constraint::Percentage(30),
-                Constraint::Percentage(36),
-                Constraint::Percentage(34),
+                Constraint::Percentage(32),
             ])
             .split(rows[2]);
         draw_history(f, bottom[0], state);
         draw_decay(f, bottom[1], state);
-        draw_recent(f, bottom[2], state);
+        draw_recent_or_strip(f, bottom[2], state);
     } else {
         let bottom = Layout::default()
             .direction(Direction::Horizontal)
             .constraints([Constraint::Percentage(58), Constraint::Percentage(42)])
             .split(rows[2]);
         draw_history(f, bottom[0], state);
-        draw_recent(f, bottom[1], state);
+        draw_recent_or_strip(f, bottom[1], state);
     }
-    let keys = if state.keys_help.is_empty() {
-        String::new()
-    } else {
-        format!(" keys: {}", state.keys_help)
+    let keys = match &state.prompt {
+        Some(p) => Line::from(vec![
+            Span::styled(
+                format!(" {}", p.question()),
+                Style::default().fg(WARN).add_modifier(Modifier::BOLD),
+            ),
+            Span::raw(format!("{}_", p.text)),
+        ]),
+        None if state.keys_help.is_empty() => Line::from(""),
+        None => Line::from(Span::styled(
+            format!(" keys: {}", state.keys_help),
+            Style::default().fg(ACCENT),
+        )),
     };
-    f.render_widget(
-        Paragraph::new(Line::from(Span::styled(keys, Style::default().fg(ACCENT)))),
-        rows[3],
-    );
+    f.render_widget(Paragraph::new(keys), rows[3]);
     f.render_widget(
         Paragraph::new(Line::from(Span::styled(
             format!(" {SAFETY_LINE}"),
@@ -167,7 +194,7 @@ fn link_status(l: &LinkHealth, now: Instant) -> Span<'static> {
     }
 }
 
-fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant) {
+fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant, compact: bool) {
     let mut lines = Vec::new();
     let name_w = state
         .links
@@ -201,6 +228,18 @@ fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant) {
                 l.frames_per_s(now),
                 bytes_text(l.bytes_per_s(now)),
             )));
+        }
+        if compact {
+            first.push(Span::styled(
+                format!("  lost {}  CRC {}", l.lost, l.crc_failures),
+                if l.lost + l.crc_failures + l.malformed > 0 {
+                    Style::default().fg(WARN)
+                } else {
+                    Style::default().fg(DIM)
+                },
+            ));
+            lines.push(Line::from(first));
+            continue;
         }
         lines.push(Line::from(first));
         let trouble = l.lost + l.crc_failures + l.malformed > 0;
@@ -248,6 +287,20 @@ fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant) {
             )),
         ]));
         let h = &d.health;
+        if compact {
+            if h.tips_stuck > 0 || h.samples_dropped + h.frames_dropped > 0 {
+                if let Some(last) = lines.last_mut() {
+                    last.spans.push(Span::styled(
+                        format!(
+                            "  {} STUCK tip(s), dropped {} samples, {} frames",
+                            h.tips_stuck, h.samples_dropped, h.frames_dropped
+                        ),
+                        Style::default().fg(WARN),
+                    ));
+                }
+            }
+            continue;
+        }
         let uptime = if d.sample_rate_hz > 0 {
             format!("{:.1} s", h.uptime_frames as f64 / d.sample_rate_hz as f64)
         } else {
@@ -257,8 +310,10 @@ fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant) {
         let text = match d.health_at {
             None => "  health: no report yet".to_string(),
             Some(_) => format!(
-                "  health: dropped {} samples, {} frames  saturated {}  stuck tips {}  buffer peak {} samples  uptime {uptime}",
-                h.samples_dropped, h.frames_dropped, h.saturated, h.tips_stuck, h.buffer_high_water
+                "  health: dropped {} samples, {} frames  saturated {}  {} tips {}  buffer peak {} samples  uptime {uptime}",
+                h.samples_dropped, h.frames_dropped, h.saturated,
+                if h.tips_stuck > 0 { "STUCK" } else { "stuck" },
+                h.tips_stuck, h.buffer_high_water
             ),
         };
         lines.push(Line::from(Span::styled(
@@ -289,23 +344,29 @@ pub fn probe_rows(state: &LiveState) -> Vec<(u32, &ProbeRow)> {
     v
 }
 
-/// Columns of the probe table: header, width, and right alignment.
-const PROBE_COLUMNS: [(&str, u16, bool); 10] = [
-    ("probe", 10, false),
+/// Columns of the probe table: header, width, and right alignment. The running figures
+/// of the run come first; `last C` and `flags` are the latest window's.
+const PROBE_COLUMNS: [(&str, u16, bool); 11] = [
+    ("probe", 8, false),
     ("y [mm]", 6, true),
-    ("C [-]", 6, true),
-    ("F [Hz]", 7, true),
-    ("V [m/s]", 7, true),
-    ("Tu [-]", 6, true),
-    ("chord [ms]", 10, true),
-    ("R peak", 6, true),
-    ("bubbles", 7, true),
+    ("C ±95%", 11, true),
+    ("F [Hz] ±95%", 11, true),
+    ("V [m/s]", 9, true),
+    ("Tu [-]", 9, true),
+    ("chord ms", 8, true),
+    ("windows", 7, true),
+    ("conv", 8, false),
+    ("last C", 6, true),
     ("flags", 8, false),
 ];
 
 fn fit(s: String, w: u16, right: bool) -> String {
     let w = w as usize;
-    let s: String = s.chars().take(w).collect();
+    let s: String = if s.chars().count() > w && w > 1 {
+        s.chars().take(w - 1).chain(['…']).collect()
+    } else {
+        s
+    };
     if right {
         format!("{s:>w$}")
     } else {
@@ -313,12 +374,12 @@ fn fit(s: String, w: u16, right: bool) -> String {
     }
 }
 
-/// Which probe columns fit in `width` cells: the less important ones go first (bubbles,
-/// correlation peak, chord, Tu, ...), so a narrow terminal loses columns instead of cutting
+/// Which probe columns fit in `width` cells: the less important ones go first (chord,
+/// windows, Tu, last C, ...), so a narrow terminal loses columns instead of cutting
 /// numbers. Column indices into `PROBE_COLUMNS`, in order.
 pub fn probe_columns_that_fit(width: u16) -> Vec<usize> {
     // Lower keeps longer; the flags column (last) takes the rest of the width.
-    const KEEP: [u8; 10] = [0, 0, 0, 1, 2, 4, 5, 6, 7, 3];
+    const KEEP: [u8; 11] = [0, 2, 0, 1, 2, 4, 6, 5, 1, 3, 1];
     let mut cols: Vec<usize> = (0..PROBE_COLUMNS.len()).collect();
     let need =
         |cols: &[usize]| -> u16 { cols.iter().map(|&i| PROBE_COLUMNS[i].1 + 1).sum::<u16>() };
@@ -334,6 +395,34 @@ pub fn probe_columns_that_fit(width: u16) -> Vec<usize> {
     cols
 }
 
+/// `0.446±0.055`, or the mean alone before an interval exists.
+fn running(e: Option<crate::running_stats::Estimate>, prec: usize) -> String {
+    crate::probe_summary::estimate_text(e, 1.0, prec)
+}
+
+/// The convergence cell: `done 3%` once C, F (and V) met the target, else the worst
+/// relative half-width; `-` before any interval.
+fn convergence_text(p: &ProbeRow, target: f64) -> String {
+    use crate::running_stats::MIN_BATCHES_FOR_CONVERGENCE as MIN;
+    let batches = p.tally.void_fraction().map_or(0, |e| e.batches);
+    match p.convergence(target) {
+        None if p.tally.used > 0 => format!("{}/{MIN} win", p.tally.used.min(MIN as u64)),
+        None => "-".into(),
+        Some((_, false)) if batches < MIN => format!("{batches}/{MIN} win"),
+        Some((w, true)) => format!("done {:.0}%", w * 100.0),
+        Some((w, false)) if w >= 10.0 => ">999%".into(),
+        Some((w, false)) => format!("{:.0}%", w * 100.0),
+    }
+}
+
+/// The probe rows shown from `scroll` in `rows` lines, and how many lie above and below.
+pub fn probe_page(total: usize, scroll: usize, rows: usize) -> (usize, usize, usize) {
+    let rows = rows.max(1);
+    let start = scroll.min(total.saturating_sub(rows));
+    let end = (start + rows).min(total);
+    (start, end, total - end)
+}
+
 fn draw_probes(f: &mut Frame, area: Rect, state: &LiveState) {
     let cols = probe_columns_that_fit(area.width.saturating_sub(2));
     let last = PROBE_COLUMNS.len() - 1;
@@ -343,34 +432,50 @@ fn draw_probes(f: &mut Frame, area: Rect, state: &LiveState) {
     }))
     .style(Style::default().fg(ACCENT).add_modifier(Modifier::BOLD));
     let multi = state.devices.len() > 1;
-    let rows: Vec<Row> = probe_rows(state)
-        .into_iter()
+    let all = probe_rows(state);
+    let visible = area.height.saturating_sub(3) as usize;
+    let (start, end, below) = probe_page(all.len(), state.probe_scroll, visible);
+    let target = state.view.target;
+    let done = all
+        .iter()
+        .filter(|(_, p)| p.convergence(target).is_some_and(|c| c.1))
+        .count();
+    let rows: Vec<Row> = all[start..end]
+        .iter()
         .map(|(id, p)| {
-            let style = if p.flags.is_empty() {
-                Style::default().fg(GOOD)
-            } else {
-                Style::default().fg(WARN)
-            };
+            let stuck = p.windows > 0 && tip_stuck(p.flags);
             let name = if multi && !p.name.starts_with('d') {
                 format!("{id}:{}", p.name)
             } else {
                 p.name.clone()
             };
+            let t = &p.tally;
             let v = [
-                name,
+                if stuck { format!("!{name}") } else { name },
                 num(Some(p.elevation_mm), 6, 1),
+                running(t.void_fraction(), 3),
+                running(t.count_rate_hz(), 1),
+                running(t.velocity_m_s(), 2),
+                running(t.turbulence_intensity(), 2),
+                running(
+                    t.chord_median_s().map(|mut e| {
+                        e.mean *= 1e3;
+                        e.half_width = None;
+                        e
+                    }),
+                    2,
+                ),
+                format!("{}/{}", t.used, t.windows),
+                convergence_text(p, target),
                 num(p.void_fraction, 6, 3),
-                num(p.bubble_rate_hz, 7, 1),
-                num(p.velocity_m_s, 7, 2),
-                num(p.turbulence_intensity, 6, 2),
-                num(p.chord_median_s.map(|s| s * 1e3), 10, 3),
-                num(p.correlation_peak, 6, 2),
-                if p.windows > 0 {
-                    format!("{:>7}", p.bubbles)
-                } else {
-                    format!("{:>7}", "-")
-                },
             ];
+            let flags_style = if stuck {
+                Style::default().fg(BAD).add_modifier(Modifier::BOLD)
+            } else if (p.flags.0 & !Flags::FEW_BUBBLES.0) != 0 {
+                Style::default().fg(WARN)
+            } else {
+                Style::default()
+            };
             let cells: Vec<Cell> = cols
                 .iter()
                 .map(|&i| {
@@ -381,11 +486,16 @@ fn draw_probes(f: &mut Frame, area: Rect, state: &LiveState) {
                             } else {
                                 "waiting".into()
                             },
-                            style,
+                            flags_style,
                         ))
                     } else {
                         let (_, w, r) = PROBE_COLUMNS[i];
-                        Cell::from(fit(v[i].clone(), w, r))
+                        let style = if i == 8 && p.convergence(target).is_some_and(|c| c.1) {
+                            Style::default().fg(GOOD)
+                        } else {
+                            Style::default()
+                        };
+                        Cell::from(Span::styled(fit(v[i].clone(), w, r), style))
                     }
                 })
                 .collect();
@@ -403,18 +513,38 @@ fn draw_probes(f: &mut Frame, area: Rect, state: &LiveState) {
             }
         })
         .collect();
+    let head = if area.width >= 60 {
+        format!(
+            " probes: run so far, target ±{:.0}%: {done}/{} done ",
+            target * 100.0,
+            all.len()
+        )
+    } else {
+        format!(" probes: {done}/{} done ", all.len())
+    };
+    let mut block = Block::default().borders(Borders::ALL).title(title(&head));
+    if start > 0 || below > 0 {
+        block = block.title_bottom(Span::styled(
+            format!(
+                " {}{}PgUp/PgDn ",
+                if start > 0 {
+                    format!("+{start} more above  ")
+                } else {
+                    String::new()
+                },
+                if below > 0 {
+                    format!("+{below} more below  ")
+                } else {
+                    String::new()
+                }
+            ),
+            Style::default().fg(WARN).add_modifier(Modifier::BOLD),
+        ));
+    }
     let t = Table::new(rows, widths)
         .header(header)
         .column_spacing(1)
-        .block(
-            Block::default()
-                .borders(Borders::ALL)
-                .title(title(if area.width >= 74 {
-                    " probes: latest window, highest first (chord = median bubble chord) "
-                } else {
-                    " probes: latest window, highest first "
-                })),
-        );
+        .block(block);
     f.render_widget(t, area);
 }
 
@@ -445,6 +575,7 @@ pub fn profile_lines(state: &LiveState, width: usize, height: usize) -> Vec<Line
     let mut grid: Vec<Option<(f64, Option<f64>)>> = vec![None; plot_rows];
     let ymax = probes.iter().map(|p| p.0).fold(0.0f64, f64::max);
     let ymin = probes.iter().map(|p| p.0).fold(f64::INFINITY, f64::min);
+    let mut dropped = 0usize;
     for &(y, c) in &probes {
         let span = (ymax - ymin.min(0.0)).max(1e-9);
         let want = (((ymax - y) / span) * (plot_rows - 1) as f64).round() as usize;
@@ -453,8 +584,9 @@ pub fn profile_lines(state: &LiveState, width: usize, height: usize) -> Vec<Line
         let row = (want..plot_rows)
             .chain((0..want).rev())
             .find(|&r| grid[r].is_none());
-        if let Some(r) = row {
-            grid[r] = Some((y, c));
+        match row {
+            Some(r) => grid[r] = Some((y, c)),
+            None => dropped += 1,
         }
     }
     let mut lines = Vec::new();
@@ -487,7 +619,15 @@ pub fn profile_lines(state: &LiveState, width: usize, height: usize) -> Vec<Line
     labels.push_str("0.5");
     labels.push_str(&" ".repeat(bar_w.saturating_sub(mid + 2)));
     labels.push_str("1 C");
-    lines.push(Line::raw(labels));
+    if dropped > 0 {
+        // Too few rows for every probe: say so where the axis labels were.
+        lines.push(Line::from(Span::styled(
+            format!(" +{dropped} more probe(s): see the table"),
+            Style::default().fg(WARN).add_modifier(Modifier::BOLD),
+        )));
+    } else {
+        lines.push(Line::raw(labels));
+    }
     lines
 }
 
@@ -497,7 +637,7 @@ fn draw_profile(f: &mut Frame, area: Rect, state: &LiveState) {
     let p = Paragraph::new(profile_lines(state, inner_w, inner_h)).block(
         Block::default()
             .borders(Borders::ALL)
-            .title(title(" void fraction C vs elevation ")),
+            .title(title(" C vs elevation ")),
     );
     f.render_widget(p, area);
 }
@@ -556,9 +696,9 @@ fn draw_profile_chart(f: &mut Frame, area: Rect, state: &LiveState) {
         * 1.05;
     let head = match (&curve, state.shown_station()) {
         (Some((_, y90, n)), Some((k, _))) => {
-            format!(" C vs y, S{}: Y90 {y90:.1} mm  n {n:.2} ", k.1 + 1)
+            format!(" C vs y S{} Y90 {y90:.1} mm n {n:.2} ", k.1 + 1)
         }
-        (None, Some((k, _))) => format!(" C vs y, S{}: no fit yet ", k.1 + 1),
+        (None, Some((k, _))) => format!(" C vs y S{}: no fit yet ", k.1 + 1),
         _ => " C vs elevation ".to_string(),
     };
     let chart = Chart::new(fit_and_points(
@@ -640,6 +780,7 @@ fn draw_decay(f: &mut Frame, area: Rect, state: &LiveState) {
 
 fn draw_history(f: &mut Frame, area: Rect, state: &LiveState) {
     let n = area.height.saturating_sub(2) as usize;
+    let hidden = state.history.len().saturating_sub(n);
     let lines: Vec<Line> = state
         .history
         .iter()
@@ -655,12 +796,106 @@ fn draw_history(f: &mut Frame, area: Rect, state: &LiveState) {
             Line::from(Span::styled(l.clone(), style))
         })
         .collect();
-    let p = Paragraph::new(lines).block(
-        Block::default()
-            .borders(Borders::ALL)
-            .title(title(" events (host time since start) ")),
-    );
+    let mut block = Block::default()
+        .borders(Borders::ALL)
+        .title(title(" events (host s) "));
+    if hidden > 0 || state.events_suppressed > 0 {
+        let mut what = Vec::new();
+        if hidden > 0 {
+            what.push(format!("+{hidden} older"));
+        }
+        if state.events_suppressed > 0 {
+            what.push(format!("{} routine hidden", state.events_suppressed));
+        }
+        block = block.title_bottom(Span::styled(
+            format!(" {} ", what.join(", ")),
+            Style::default().fg(DIM),
+        ));
+    }
+    let p = Paragraph::new(lines).block(block);
     f.render_widget(p, area);
+}
+
+fn draw_recent_or_strip(f: &mut Frame, area: Rect, state: &LiveState) {
+    match state.strip_view.quantity() {
+        None => draw_recent(f, area, state),
+        Some((k, name)) => draw_strip(f, area, state, k, name),
+    }
+}
+
+/// Colours of the strip chart's probes (the legend names them, so colour is not the only
+/// cue).
+const STRIP_COLOURS: [Color; 8] = [
+    Color::Cyan,
+    Color::Yellow,
+    Color::Green,
+    Color::Magenta,
+    Color::LightRed,
+    Color::LightBlue,
+    Color::White,
+    Color::LightGreen,
+];
+
+/// The strip chart's series: (probe name, points (device time s, value)), highest probe
+/// first, for quantity `k` (0 C, 1 F, 2 V).
+pub fn strip_data(state: &LiveState, k: usize) -> Vec<(String, Points)> {
+    probe_rows(state)
+        .into_iter()
+        .map(|(_, p)| {
+            let pts = p
+                .strip
+                .iter()
+                .filter_map(|(t, v)| Some((*t, v.get(k).copied().flatten()?)))
+                .filter(|(t, v)| t.is_finite() && v.is_finite())
+                .collect();
+            (p.name.clone(), pts)
+        })
+        .collect()
+}
+
+fn draw_strip(f: &mut Frame, area: Rect, state: &LiveState, k: usize, name: &str) {
+    let series = strip_data(state, k);
+    let (mut t0, mut t1, mut vmax) = (f64::INFINITY, f64::NEG_INFINITY, 0.0f64);
+    for (_, pts) in &series {
+        for &(t, v) in pts {
+            t0 = t0.min(t);
+            t1 = t1.max(t);
+            vmax = vmax.max(v);
+        }
+    }
+    if !t0.is_finite() {
+        (t0, t1) = (0.0, 1.0);
+    }
+    let t1 = t1.max(t0 + 1e-3);
+    let vmax = if k == 0 { 1.0 } else { (vmax * 1.1).max(1e-3) };
+    let sets: Vec<Dataset> = series
+        .iter()
+        .enumerate()
+        .map(|(i, (n, pts))| {
+            Dataset::default()
+                .name(n.clone())
+                .marker(Marker::Braille)
+                .graph_type(GraphType::Line)
+                .style(Style::default().fg(STRIP_COLOURS[i % STRIP_COLOURS.len()]))
+                .data(pts)
+        })
+        .collect();
+    let head = format!(" strip: {name} vs device time (c: next) ");
+    let chart = Chart::new(sets)
+        .block(Block::default().borders(Borders::ALL).title(title(&head)))
+        .x_axis(
+            Axis::default()
+                .bounds([t0, t1])
+                .labels(axis_labels(t0, t1, 1)),
+        )
+        .y_axis(Axis::default().bounds([0.0, vmax]).labels(axis_labels(
+            0.0,
+            vmax,
+            if k == 1 { 0 } else { 1 },
+        )))
+        .legend_position(Some(ratatui::widgets::LegendPosition::TopLeft))
+        .hidden_legend_constraints((Constraint::Ratio(1, 1), Constraint::Ratio(1, 1)));
+    f.render_widget(chart, area);
 }
 
 fn draw_recent(f: &mut Frame, area: Rect, state: &LiveState) {
@@ -677,7 +912,15 @@ fn draw_recent(f: &mut Frame, area: Rect, state: &LiveState) {
     if multi {
         head.push_str(&format!(" {:>5}", "dev"));
     }
-    for name in &names {
+    // As many probe columns as fit; the rest is counted in the head.
+    let inner = area.width.saturating_sub(2) as usize;
+    let fixed = 9 + if multi { 6 } else { 0 };
+    let mut shown = inner.saturating_sub(fixed) / 7;
+    if shown < names.len() {
+        shown = inner.saturating_sub(fixed + 8) / 7;
+    }
+    let more = names.len().saturating_sub(shown);
+    for name in names.iter().take(shown) {
         let short: String = name
             .chars()
             .rev()
@@ -688,6 +931,9 @@ fn draw_recent(f: &mut Frame, area: Rect, state: &LiveState) {
             .collect();
         head.push_str(&format!(" {short:>6}"));
     }
+    if more > 0 {
+        head.push_str(&format!(" +{more} more"));
+    }
     let mut lines = vec![Line::from(Span::styled(
         head,
         Style::default().fg(ACCENT).add_modifier(Modifier::BOLD),
@@ -697,7 +943,7 @@ fn draw_recent(f: &mut Frame, area: Rect, state: &LiveState) {
         if multi {
             s.push_str(&format!(" {:>5}", r.device));
         }
-        for c in &r.void_fraction {
+        for c in r.void_fraction.iter().take(shown) {
             s.push_str(&format!(" {}", num(*c, 6, 3)));
         }
         let style = if r.flags.is_empty() {
@@ -710,7 +956,7 @@ fn draw_recent(f: &mut Frame, area: Rect, state: &LiveState) {
     let p = Paragraph::new(lines).block(
         Block::default()
             .borders(Borders::ALL)
-            .title(title(" recent windows: C per probe ")),
+            .title(title(" recent windows: C (c: strip chart) ")),
     );
     f.render_widget(p, area);
 }
@@ -903,9 +1149,15 @@ mod tests {
         // A narrow terminal stays readable (columns cut at the right, never shifted).
         let narrow = render_text(&s, now, 100, 30);
         println!("{}", narrow.join("\n"));
+        // Running figures with their intervals (equal windows: no spread), the convergence
+        // cell waiting for enough windows, the latest flags with the CSV names.
         assert!(narrow
             .iter()
-            .any(|l| l.contains("B2-4") && l.contains("  65.0  0.800   110.0    2.70")));
+            .any(|l| l.contains("B2-4")
+                && l.contains("65.0 0.800±0.000   110.0±0.0 2.70±0.00 6/10 win")));
+        assert!(narrow
+            .iter()
+            .any(|l| l.contains("B2-1") && l.contains("few_bubbles")));
         let lines = render_text(&s, now, 132, 34);
         println!("{}", lines.join("\n"));
         let text = lines.join("\n");
@@ -923,8 +1175,9 @@ mod tests {
             "ACK start-run #1",
             "3 frame(s) lost",
             "C vs elevation",
-            "chord [ms]",
-            "few-bubbles",
+            "windows",
+            "last C",
+            "few_bubbles",
             "local codes",
             "q quit",
         ] {
@@ -960,6 +1213,10 @@ mod tests {
 
     /// A transient flow: one station of five probes, a front, profile fits behind it.
     fn transient_state(now: Instant) -> LiveState {
+        transient_state_with(now, &[8.0, 24.0, 40.0, 56.0, 72.0])
+    }
+
+    fn transient_state_with(now: Instant, elevations: &[f32]) -> LiveState {
         use frothline_core::wire::quant::{exponent, fraction};
         use frothline_core::wire::{FrontArrival, ProfileFit};
         let ports = vec!["/dev/pts/3".to_string()];
@@ -975,7 +1232,6 @@ mod tests {
             window: WindowSetting::Whole,
             probes: Default::default(),
         };
-        let elevations = [8.0f32, 24.0, 40.0, 56.0, 72.0];
         for (i, y) in elevations.iter().enumerate() {
             let _ = desc.probes.push(ProbeLayout {
                 station: 0,
@@ -995,7 +1251,7 @@ mod tests {
             &name,
         );
         let front = 20_000u64;
-        for p in 0..5u8 {
+        for p in 0..elevations.len() as u8 {
             let f = FrontArrival {
                 probe: p,
                 station: 0,
@@ -1043,7 +1299,7 @@ mod tests {
                 station: 0,
                 slice_start: start,
                 slice_frames: 2000,
-                probes_used: 5,
+                probes_used: elevations.len() as u8,
                 y90: Some((y90 * 10.0) as u32),
                 mean_void_fraction: Some(fraction(cmean)),
                 equivalent_depth: Some(400),
@@ -1089,6 +1345,136 @@ mod tests {
         let mut steady = transient_state(now);
         steady.stations.clear();
         let text = render_text(&steady, now, 132, 42).join("\n");
-        assert!(!text.contains("Cmean"));
+        assert!(!text.contains("Cmean: C0"));
+    }
+
+    /// Every probe name and every panel title is on screen at the tested sizes, for a
+    /// steady run (4 probes) and a surge like the transient demo (10 probes); where the
+    /// probe table cannot hold every row, a `+N more` mark says so and paging shows the
+    /// rest.
+    #[test]
+    fn every_probe_and_panel_is_on_screen_at_80x24_100x30_160x48() {
+        let now = Instant::now();
+        let steady = state(now);
+        let elevations: Vec<f32> = (0..10).map(|i| 5.0 + 10.0 * i as f32).collect();
+        let mut surge = transient_state_with(now, &elevations);
+        surge.keys_help = crate::watch::KEYS_HELP.into();
+        let steady_names = ["B2-1", "B2-2", "B2-3", "B2-4"];
+        let surge_names: Vec<String> = (1..=10).map(|i| format!("A{i}")).collect();
+        let cases: [(&LiveState, Vec<&str>, Vec<&str>); 2] = [
+            (
+                &steady,
+                steady_names.to_vec(),
+                vec![
+                    "links and devices",
+                    "probes",
+                    "C vs elevation",
+                    "events",
+                    "recent windows",
+                ],
+            ),
+            (
+                &surge,
+                surge_names.iter().map(|s| s.as_str()).collect(),
+                vec![
+                    "links and devices",
+                    "probes",
+                    "C vs y",
+                    "events",
+                    "Cmean",
+                    "recent windows",
+                ],
+            ),
+        ];
+        for (st, names, titles) in &cases {
+            for (w, h) in [(80u16, 24u16), (100, 30), (160, 48)] {
+                let lines = render_text(st, now, w, h);
+                let text = lines.join("\n");
+                println!("{w}x{h}\n{text}");
+                for t in titles {
+                    assert!(text.contains(t), "{w}x{h}: no panel title {t:?}");
+                }
+                assert!(
+                    text.contains("local codes") || w < 104,
+                    "{w}x{h}: safety line"
+                );
+                // Probe names as whole cells of the table ("A1" must not match "A10").
+                let table_names = |lines: &[String]| -> Vec<String> {
+                    lines
+                        .iter()
+                        .filter_map(|l| {
+                            let cell = l.strip_prefix('│')?.split_whitespace().next()?;
+                            Some(cell.trim_start_matches('!').to_string())
+                        })
+                        .collect()
+                };
+                let mut seen = table_names(&lines);
+                let mut scrolled = (*st).clone();
+                let mut pages = 0;
+                while text_has_more_below(&render_text(&scrolled, now, w, h)) && pages < 10 {
+                    scrolled.probe_scroll += 8;
+                    seen.extend(table_names(&render_text(&scrolled, now, w, h)));
+                    pages += 1;
+                }
+                for n in names {
+                    assert!(seen.iter().any(|s| s == n), "{w}x{h}: probe {n} not shown");
+                }
+                // The 10 probes fit from 80x24 on; nothing is hidden, so no mark.
+                assert_eq!(pages, 0, "{w}x{h}: the probe table should fit");
+            }
+        }
+    }
+
+    fn text_has_more_below(lines: &[String]) -> bool {
+        lines.iter().any(|l| l.contains("more below"))
+    }
+
+    /// More probes than rows: the table says how many are hidden, and paging reaches them.
+    #[test]
+    fn a_cut_probe_table_is_marked_and_pages() {
+        let now = Instant::now();
+        let elevations: Vec<f32> = (0..16).map(|i| 5.0 + 6.0 * i as f32).collect();
+        let mut s = transient_state_with(now, &elevations);
+        let lines = render_text(&s, now, 80, 24);
+        let text = lines.join("\n");
+        println!("{text}");
+        assert!(text.contains("+"), "no more-mark");
+        assert!(text_has_more_below(&lines));
+        s.probe_scroll = 100;
+        let text = render_text(&s, now, 80, 24).join("\n");
+        println!("{text}");
+        assert!(text.contains("more above"));
+        assert!(text.contains("A1 "), "the lowest probe is reachable");
+        assert_eq!(probe_page(16, 100, 5), (11, 16, 0));
+        assert_eq!(probe_page(3, 0, 5), (0, 3, 0));
+    }
+
+    /// The strip chart: every probe's series against device time, named in its legend;
+    /// `c` cycles C, F, V and back to the table.
+    #[test]
+    fn the_strip_chart_cycles_quantities_and_names_every_probe() {
+        let now = Instant::now();
+        let mut s = state(now);
+        let data = strip_data(&s, 1);
+        assert_eq!(data.len(), 4);
+        // B2-4 (highest, first): F = 110 Hz in each of its 6 windows, ending 0.1 s apart.
+        assert_eq!(data[0].1.len(), 6);
+        assert!((data[0].1[5].0 - 0.6).abs() < 1e-9 && (data[0].1[5].1 - 110.0).abs() < 1e-3);
+        for (view, head) in [
+            (crate::live::StripView::VoidFraction, "strip: C"),
+            (crate::live::StripView::CountRate, "strip: F"),
+            (crate::live::StripView::Velocity, "strip: V"),
+        ] {
+            s.strip_view = view;
+            let text = render_text(&s, now, 160, 48).join("\n");
+            assert!(text.contains(head), "{head}\n{text}");
+            for n in ["B2-1", "B2-2", "B2-3", "B2-4"] {
+                assert!(
+                    text.matches(n).count() >= 2,
+                    "{n} not in the table and legend"
+                );
+            }
+        }
+        assert_eq!(s.strip_view.next(), crate::live::StripView::Table);
     }
 }

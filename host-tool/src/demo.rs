@@ -113,11 +113,6 @@ impl std::fmt::Display for DemoSummary {
             d.windows_dropped,
             d.acks,
             d.nacks
-        )?;
-        writeln!(
-            f,
-            "  files in {}: windows.csv and the session archive (frothline unpack <archive> --out DIR reads it again)",
-            self.out.display()
         )
     }
 }
@@ -202,6 +197,8 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
         ui,
         duration: Some(duration),
         startup: vec![Startup::Now(Command::StartRun("demo".into()))],
+        view: Default::default(),
+        wait_for_port: false,
     };
     let watch = run_with(opts, interrupt_flag(), &mut |_| {});
     stop.store(true, Ordering::Relaxed);

@@ -4,6 +4,7 @@
 //! [`crate::session::Event`]); the dashboard only draws it. Keeping the two apart lets tests
 //! drive the state without a terminal.
 
+use crate::probe_summary::{ProbeTally, SummaryRule, WindowFigures};
 use crate::session::{describe_event, setting_text, Event};
 use frothline_core::decay::{DecayFit, DecayTracker};
 use frothline_core::wire::quant::{from_exponent, from_fraction, from_length, from_micros};
@@ -23,6 +24,32 @@ pub const QUIET_AFTER: Duration = Duration::from_secs(3);
 
 /// Points of a station's decay series (Cmean against time since the front) kept and fitted.
 pub const DECAY_POINTS: usize = 256;
+
+/// How the live view judges and reports what it receives.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ViewOptions {
+    /// Convergence target: a running figure is done when the half-width of its 95 %
+    /// interval is at most this share of its mean (0.05: ±5 %).
+    pub target: f64,
+    /// Show protocol chatter in the events (commands sent, ACKs of description requests,
+    /// repeated descriptions).
+    pub chatter: bool,
+    /// One events line per this many profile fits of a station (the first always).
+    pub profile_every: u64,
+}
+
+impl Default for ViewOptions {
+    fn default() -> Self {
+        ViewOptions {
+            target: DEFAULT_TARGET,
+            chatter: false,
+            profile_every: 10,
+        }
+    }
+}
+
+/// The default convergence target: ±5 % of the mean (common practice, no source).
+pub const DEFAULT_TARGET: f64 = 0.05;
 
 /// A station's latest profile fit, as received (kind 0x04).
 #[derive(Clone, Debug, Default, PartialEq)]
@@ -143,6 +170,78 @@ pub struct ProbeRow {
     pub window_end_s: Option<f64>,
     /// Windows received for this probe.
     pub windows: u64,
+    /// Running figures of the current run (see [`crate::probe_summary`]).
+    pub tally: ProbeTally,
+    /// The latest windows of the run for the strip chart: (end, s of device time; C, F, V).
+    pub strip: VecDeque<(f64, [Option<f64>; 3])>,
+}
+
+/// Windows per probe kept for the strip chart.
+pub const STRIP_POINTS: usize = 600;
+
+/// What the bottom-right panel shows (key `c` cycles it).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum StripView {
+    /// The recent windows as a table of C.
+    #[default]
+    Table,
+    /// C of every probe against device time.
+    VoidFraction,
+    /// F against device time.
+    CountRate,
+    /// V against device time.
+    Velocity,
+}
+
+impl StripView {
+    /// The next view.
+    pub fn next(self) -> StripView {
+        match self {
+            StripView::Table => StripView::VoidFraction,
+            StripView::VoidFraction => StripView::CountRate,
+            StripView::CountRate => StripView::Velocity,
+            StripView::Velocity => StripView::Table,
+        }
+    }
+
+    /// Index into the strip values and a name with unit (none for the table).
+    pub fn quantity(self) -> Option<(usize, &'static str)> {
+        match self {
+            StripView::Table => None,
+            StripView::VoidFraction => Some((0, "C [-]")),
+            StripView::CountRate => Some((1, "F [Hz]")),
+            StripView::Velocity => Some((2, "V [m/s]")),
+        }
+    }
+}
+
+impl ProbeRow {
+    /// The worst relative half-width of the running C, F and (when measured) V, and
+    /// whether all of them met `target`. None before any interval exists.
+    pub fn convergence(&self, target: f64) -> Option<(f64, bool)> {
+        let figures = [
+            self.tally.void_fraction(),
+            self.tally.count_rate_hz(),
+            self.tally.velocity_m_s(),
+        ];
+        let mut worst: Option<f64> = None;
+        let mut done = true;
+        for (i, e) in figures.iter().enumerate() {
+            let Some(e) = e else {
+                // C and F are always expected; V only from dual-tip probes.
+                if i < 2 {
+                    done = false;
+                }
+                continue;
+            };
+            match e.relative_half_width() {
+                Some(r) => worst = Some(worst.map_or(r, |w: f64| w.max(r))),
+                None => done = false,
+            }
+            done &= e.converged(target);
+        }
+        worst.map(|w| (w, done))
+    }
 }
 
 /// Decoded result of one probe window, device-independent.
@@ -175,6 +274,21 @@ pub struct LiveWindow {
 }
 
 impl LiveWindow {
+    /// The window's figures for the per-probe summary.
+    pub fn figures(&self) -> WindowFigures {
+        WindowFigures {
+            duration_s: self.end_s - self.start_s,
+            void_fraction: self.void_fraction,
+            count_rate_hz: self.bubble_rate_hz,
+            bubbles: Some(self.bubbles as f64),
+            velocity_m_s: self.velocity_m_s,
+            turbulence_intensity: self.turbulence_intensity,
+            chord_median_s: self.chord_median_s,
+            flags: self.flags,
+            before_front: false,
+        }
+    }
+
     /// A wire window result of `device`, at `sample_rate_hz` (times in frames if unknown).
     pub fn from_wire(device: u16, w: &WindowResult, sample_rate_hz: Option<f64>) -> LiveWindow {
         let fs = sample_rate_hz.filter(|f| *f > 0.0).unwrap_or(1.0);
@@ -355,6 +469,8 @@ pub struct DeviceState {
     pub health: DeviceHealth,
     /// When the latest health report came.
     pub health_at: Option<Instant>,
+    /// Descriptions received.
+    pub descriptions: u64,
 }
 
 /// One analysis window of one device: the void fraction of each probe.
@@ -393,6 +509,58 @@ pub struct LiveState {
     pub keys_help: String,
     /// Stations of transient flows, by (device, station index).
     pub stations: BTreeMap<(u32, u8), StationLive>,
+    /// Convergence target, chatter, event rate.
+    pub view: ViewOptions,
+    /// The rule for flagged windows in the running figures.
+    pub rule: SummaryRule,
+    /// First probe row shown (the probe table scrolls when it does not fit).
+    pub probe_scroll: usize,
+    /// Events lines left out (chatter, profile lines between the ones shown).
+    pub events_suppressed: u64,
+    /// A question being answered on the keys line (run label, mark note).
+    pub prompt: Option<Prompt>,
+    /// What the bottom-right panel shows.
+    pub strip_view: StripView,
+}
+
+/// What a text prompt asks for.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum PromptKind {
+    /// The label of the run to start.
+    RunLabel,
+    /// The note of a mark.
+    MarkNote,
+}
+
+/// A line of text typed on the dashboard.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Prompt {
+    /// What it is for.
+    pub kind: PromptKind,
+    /// The text so far (starts with the default).
+    pub text: String,
+}
+
+impl Prompt {
+    /// The question shown before the text.
+    pub fn question(&self) -> &'static str {
+        match self.kind {
+            PromptKind::RunLabel => "label of the new run (Enter starts, Esc cancels): ",
+            PromptKind::MarkNote => "mark: a short note (Enter writes, Esc cancels): ",
+        }
+    }
+}
+
+impl LiveState {
+    /// The end of the latest window received from `device`, s of device time.
+    pub fn device_time_s(&self, device: u32) -> Option<f64> {
+        self.devices
+            .get(&device)?
+            .probes
+            .iter()
+            .filter_map(|p| p.window_end_s)
+            .reduce(f64::max)
+    }
 }
 
 impl LiveState {
@@ -423,6 +591,7 @@ impl LiveState {
 
     /// Take a window result.
     pub fn window(&mut self, w: &LiveWindow) {
+        let rule = self.rule;
         let dev = self.device(w.device);
         while dev.probes.len() <= w.probe {
             let n = dev.probes.len();
@@ -435,6 +604,18 @@ impl LiveState {
         }
         let nprobes = dev.probes.len();
         let row = &mut dev.probes[w.probe];
+        // A window that starts before the previous one ended: the device's clock went back
+        // (a new run); the running figures start again.
+        if row.window_end_s.is_some_and(|end| w.start_s < end - 1e-9) {
+            row.tally = ProbeTally::new();
+            row.strip.clear();
+        }
+        row.strip
+            .push_back((w.end_s, [w.void_fraction, w.bubble_rate_hz, w.velocity_m_s]));
+        while row.strip.len() > STRIP_POINTS {
+            row.strip.pop_front();
+        }
+        row.tally.add(&w.figures(), &rule);
         row.void_fraction = w.void_fraction;
         row.bubble_rate_hz = w.bubble_rate_hz;
         row.velocity_m_s = w.velocity_m_s;
@@ -517,6 +698,7 @@ impl LiveState {
             }
             Event::Describe { port, device, desc } => {
                 let d = self.device(*device as u32);
+                d.descriptions += 1;
                 d.port = *port;
                 d.firmware = desc.firmware.as_str().to_string();
                 d.sample_rate_hz = (desc.sample_rate_millihz as f64 / 1000.0).round() as u32;
@@ -583,6 +765,10 @@ impl LiveState {
                     Some(Kind::StartRun) => {
                         d.running = Some(true);
                         d.run_label = label;
+                        for p in &mut d.probes {
+                            p.tally = ProbeTally::new();
+                            p.strip.clear();
+                        }
                     }
                     Some(Kind::StopRun) => d.running = Some(false),
                     _ => {}
@@ -590,8 +776,86 @@ impl LiveState {
             }
             _ => {}
         }
-        if let Some(line) = describe_event(e, &ports) {
-            self.note(line);
+        match self.event_line(e, &ports, names) {
+            Some(line) => self.note(line),
+            None => {
+                if describe_event(e, &ports).is_some() {
+                    self.events_suppressed += 1;
+                }
+            }
+        }
+    }
+
+    /// The events line for `e`, or None when it is chatter (unless asked for) or a profile
+    /// fit between the ones shown. Front arrivals are always kept. Lines drop the port when
+    /// there is only one.
+    fn event_line(
+        &self,
+        e: &Event,
+        ports: &[String],
+        names: &dyn Fn(u16, usize) -> String,
+    ) -> Option<String> {
+        let chatter = match e {
+            Event::Sent { .. } => true,
+            Event::Reply {
+                command: Some(Kind::DescribeRequest),
+                nack: None,
+                ..
+            } => true,
+            // The first description of a device is news; repeats are chatter.
+            Event::Describe { device, .. } => self
+                .devices
+                .get(&(*device as u32))
+                .is_some_and(|d| d.descriptions > 1),
+            _ => false,
+        };
+        if chatter && !self.view.chatter {
+            return None;
+        }
+        let single = ports.len() <= 1;
+        let strip = |line: String| -> String {
+            match ports.first() {
+                Some(p) if single => line
+                    .strip_prefix(&format!("{p}: "))
+                    .map(str::to_string)
+                    .unwrap_or(line),
+                _ => line,
+            }
+        };
+        match e {
+            Event::Front { device, front, .. } => {
+                let fs = self.sample_rate(*device);
+                Some(strip(format!(
+                    "{}front at {}, S{}, device t {:.3} s",
+                    if single {
+                        String::new()
+                    } else {
+                        format!("{}: ", ports.first().map_or("?", |s| s.as_str()))
+                    },
+                    names(*device, front.probe as usize),
+                    front.station + 1,
+                    front.frame as f64 / fs
+                )))
+            }
+            Event::Profile { device, fit, .. } => {
+                let st = self.stations.get(&(*device as u32, fit.station))?;
+                let every = self.view.profile_every.max(1);
+                if (st.profiles - 1) % every != 0 {
+                    return None;
+                }
+                let p = st.profile.as_ref()?;
+                let opt = |v: Option<f64>, prec: usize| {
+                    v.map_or("-".to_string(), |v| format!("{v:.prec$}"))
+                };
+                Some(format!(
+                    "S{} profile {}: Y90 {} mm, Cmean {} (1 line in {every})",
+                    fit.station + 1,
+                    st.profiles,
+                    opt(p.y90_mm, 1),
+                    opt(p.mean_void_fraction, 3)
+                ))
+            }
+            other => describe_event(other, ports).map(strip),
         }
     }
 
@@ -628,7 +892,7 @@ fn num(v: Option<f64>, width: usize, prec: usize) -> String {
 pub fn plain_line(row: &ProbeRow, w: &LiveWindow) -> String {
     let flags: Vec<&str> = w.flags.names().collect();
     format!(
-        "{:>9.3} s  dev {:<5} probe {:<10} C {}  F {} Hz  V {} m/s  Tu {}  chord {} ms  n {:>4}  {}",
+        "{:>9.3} s  dev {:<5} probe {:<10} C {}  F {} Hz  V {} m/s  Tu {}  chord {} ms  bubbles {:>4}  {}",
         w.end_s,
         w.device,
         row.name,

@@ -6,6 +6,7 @@
 use crate::capture::Capture;
 use crate::error::{write_err, HostError};
 use crate::layout::Layout;
+use crate::probe_summary::{ProbeTally, SummaryRow, SummaryRule, WindowFigures};
 use crate::rig::HostRecord as ProbeWindow;
 use crate::rig::{chain_config, HostChain, MAX_PROBES};
 use crate::window_spec::WindowSpec;
@@ -361,7 +362,47 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     Ok(report)
 }
 
-/// A short human summary: one line per probe over all its windows.
+/// The figures of a chain record for the per-probe summary (`spacing_mm`: the probe's tip
+/// spacing, for the velocity).
+pub fn window_figures(r: &ProbeWindow, sample_rate: u32, spacing_mm: Option<f64>) -> WindowFigures {
+    let fs = sample_rate.max(1) as f64;
+    let frames = r.end.saturating_sub(r.start);
+    let corr = r.correlation.as_ref();
+    WindowFigures {
+        duration_s: frames as f64 / fs,
+        void_fraction: r.lead.void_fraction().map(f64::from),
+        count_rate_hz: r.lead.bubble_count_rate(fs as f32).map(f64::from),
+        bubbles: Some(r.lead.bubbles as f64),
+        velocity_m_s: corr
+            .and_then(|c| c.velocity_m_s(spacing_mm? as f32, fs as f32))
+            .map(f64::from),
+        turbulence_intensity: corr.and_then(|c| c.turbulence_intensity).map(f64::from),
+        chord_median_s: r.lead.bubble_chords.median().map(|m| m as f64 / fs),
+        flags: r.flags,
+        before_front: r.since_front.is_some_and(|t| t < 0),
+    }
+}
+
+/// Per-probe tallies of `records` under `rule`, one per layout probe.
+pub fn probe_tallies(
+    layout: &Layout,
+    sample_rate: u32,
+    records: &[ProbeWindow],
+    rule: &SummaryRule,
+) -> Vec<ProbeTally> {
+    let mut t = vec![ProbeTally::new(); layout.probes.len()];
+    for r in records {
+        let p = r.probe as usize;
+        if let Some(tally) = t.get_mut(p) {
+            let spacing = layout.probes.get(p).and_then(|p| p.tip_spacing_mm);
+            tally.add(&window_figures(r, sample_rate, spacing), rule);
+        }
+    }
+    t
+}
+
+/// A short human summary: one line per probe over all its windows (see
+/// [`crate::probe_summary`] for the rule on flagged windows).
 pub fn summary_table(r: &ReplayReport) -> String {
     use std::fmt::Write;
     let mut s = String::new();
@@ -374,52 +415,22 @@ pub fn summary_table(r: &ReplayReport) -> String {
         r.records.len(),
         r.windows_csv.display()
     );
-    let _ = writeln!(
-        s,
-        "{:<10} {:>8} {:>7} {:>8} {:>10} {:>12} {:>8}  flags",
-        "probe", "y [mm]", "windows", "C [-]", "F [Hz]", "chord [ms]", "bubbles"
-    );
-    for (i, p) in r.layout.probes.iter().enumerate() {
-        let recs: Vec<&ProbeWindow> = r.records.iter().filter(|w| w.probe as usize == i).collect();
-        let frames: u64 = recs.iter().map(|w| w.lead.frames).sum();
-        let air: u64 = recs.iter().map(|w| w.lead.air_frames).sum();
-        let bubbles: u64 = recs.iter().map(|w| w.lead.bubbles as u64).sum();
-        let mut chords = frothline_core::chord::ChordStats::new();
-        let mut flags = frothline_core::Flags::NONE;
-        for w in &recs {
-            chords.merge(&w.lead.bubble_chords);
-            flags |= w.flags;
-        }
-        let c = if frames > 0 {
-            air as f64 / frames as f64
-        } else {
-            f64::NAN
-        };
-        let f = if frames > 0 {
-            bubbles as f64 * r.sample_rate as f64 / frames as f64
-        } else {
-            f64::NAN
-        };
-        let chord = chords
-            .median()
-            .map_or(f64::NAN, |m| m as f64 * 1e3 / r.sample_rate as f64);
-        let names: Vec<&str> = flags.names().collect();
-        let _ = writeln!(
-            s,
-            "{:<10} {:>8.1} {:>7} {:>8.4} {:>10.1} {:>12.3} {:>8}  {}",
-            p.name,
-            p.elevation_mm,
-            recs.len(),
-            c,
-            f,
-            chord,
-            bubbles,
-            if names.is_empty() {
-                "-".to_string()
-            } else {
-                names.join("|")
-            }
-        );
-    }
+    s.push_str(&probe_table(&r.layout, r.sample_rate, &r.records));
     s
+}
+
+/// The per-probe table of `records` under the default rule.
+pub fn probe_table(layout: &Layout, sample_rate: u32, records: &[ProbeWindow]) -> String {
+    let tallies = probe_tallies(layout, sample_rate, records, &SummaryRule::default());
+    let rows: Vec<SummaryRow> = layout
+        .probes
+        .iter()
+        .zip(&tallies)
+        .map(|(p, tally)| SummaryRow {
+            name: &p.name,
+            elevation_mm: p.elevation_mm,
+            tally,
+        })
+        .collect();
+    crate::probe_summary::summary_table(&rows)
 }

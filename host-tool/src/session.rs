@@ -33,7 +33,9 @@ use std::path::{Path, PathBuf};
 /// Columns of a live fronts.csv: the contract of DESIGN.md §3 (the replay's first columns;
 /// the wire carries no more).
 pub fn front_columns() -> Vec<&'static str> {
-    crate::transient::FRONT_COLUMNS[..3].to_vec()
+    let mut c = crate::transient::FRONT_COLUMNS[..3].to_vec();
+    c.extend(crate::runs::RUN_COLUMNS);
+    c
 }
 
 /// Columns of a live profile.csv: the contract of DESIGN.md §3 (the replay's first ten
@@ -41,6 +43,7 @@ pub fn front_columns() -> Vec<&'static str> {
 pub fn profile_columns() -> Vec<&'static str> {
     let mut c = crate::transient::PROFILE_COLUMNS[..10].to_vec();
     c.push("flags");
+    c.extend(crate::runs::RUN_COLUMNS);
     c
 }
 
@@ -353,6 +356,10 @@ pub struct Session {
     out: Option<Outputs>,
     archive: Option<ArchiveWriter>,
     report: SessionReport,
+    /// The run of each device (run columns of the live CSV files).
+    runs: crate::runs::RunTracker,
+    /// Host time of the bytes being decoded, µs since the Unix epoch.
+    now_us: u64,
 }
 
 fn csv_file(path: &Path, header: &[&str]) -> Result<csv::Writer<BufWriter<File>>, HostError> {
@@ -372,8 +379,8 @@ impl Session {
                 std::fs::create_dir_all(dir).map_err(write_err(dir))?;
                 let path = dir.join("windows.csv");
                 let f = File::create(&path).map_err(write_err(&path))?;
-                let windows =
-                    WindowsCsv::new(BufWriter::new(f)).map_err(|e| write_err(&path)(e.into()))?;
+                let windows = WindowsCsv::new_live(BufWriter::new(f))
+                    .map_err(|e| write_err(&path)(e.into()))?;
                 Some(Outputs {
                     dir: dir.clone(),
                     windows,
@@ -421,6 +428,8 @@ impl Session {
             out,
             archive,
             report,
+            runs: crate::runs::RunTracker::new(),
+            now_us: 0,
         };
         s.flush()?;
         Ok(s)
@@ -503,6 +512,10 @@ impl Session {
             rest = r.remaining();
             if let FeedResult::Frame { frame, .. } = r {
                 let kind = frame.body.kind();
+                if let Body::StartRun(start) = &frame.body {
+                    self.runs
+                        .command_sent(port, frame.seq, start.label.as_str());
+                }
                 p.commands.note_sent(frame.seq, kind);
                 p.commands_sent += 1;
                 events.push(Event::Sent {
@@ -523,6 +536,7 @@ impl Session {
         bytes: &[u8],
     ) -> Result<Vec<Event>, HostError> {
         self.archive_do(|a| a.append(port as u16, t_us, bytes))?;
+        self.now_us = t_us;
         let mut events = Vec::new();
         let mut frames = Vec::new();
         {
@@ -660,6 +674,7 @@ impl Session {
             if let Some(d) = self.devices.get_mut(&(port, device)) {
                 d.fronts.clear();
             }
+            self.runs.acknowledged(port, device, seq, self.now_us);
         }
         events.push(Event::Reply {
             port,
@@ -668,6 +683,11 @@ impl Session {
             command,
             nack,
         });
+    }
+
+    /// The current run of `device` on `port` (see [`crate::runs`]).
+    pub fn run_tag(&self, port: usize, device: u16) -> crate::runs::RunTag {
+        self.runs.tag(port, device)
     }
 
     /// The CSV name of probe `probe` of `device` on `port`.
@@ -758,6 +778,14 @@ impl Session {
             let fs = d.sample_rate_hz?;
             Some((w.start as f64 - front as f64) / fs)
         });
+        // The transit time T is not on the wire, but the device sends V and described the
+        // tip spacing s: T = s / V (to the resolution of V, 1 mm/s).
+        let transit_s = info
+            .and_then(|d| d.desc.as_ref()?.probes.get(w.probe as usize)?.trailing)
+            .map(|t| frothline_core::wire::quant::from_spacing(t.spacing) as f64 * 1e-3)
+            .zip(w.velocity_m_s().map(f64::from))
+            .filter(|(s, v)| *s > 0.0 && *v > 0.0)
+            .map(|(s, v)| s / v);
         self.report.windows += 1;
         if fs.is_none() {
             self.report.windows_without_times += 1;
@@ -765,7 +793,16 @@ impl Session {
         let Some(out) = self.out.as_mut() else {
             return Ok(());
         };
-        let row = wire_row(w, &meta, fs, since);
+        let mut row = wire_row(w, &meta, fs, since);
+        if let (Some(t), Some(i)) = (
+            transit_s,
+            crate::windows_csv::COLUMNS
+                .iter()
+                .position(|c| *c == "transit_time_s"),
+        ) {
+            row[i] = (t as f32).to_string();
+        }
+        row.extend(self.runs.columns(port, device, self.now_us));
         let path = out.dir.join("windows.csv");
         out.windows
             .write_fields(&row)
@@ -801,8 +838,9 @@ impl Session {
             self.report.files.push(path.clone());
         }
         let arrival = fs.map(|fs| (f.frame as f64 / fs).to_string());
+        let [run, label, utc] = self.runs.columns(port, device, self.now_us);
         if let Some(w) = out.fronts.as_mut() {
-            w.write_record([name, station, arrival.unwrap_or_default()])
+            w.write_record([name, station, arrival.unwrap_or_default(), run, label, utc])
                 .map_err(|e| write_err(&path)(e.into()))?;
         }
         out.dirty = true;
@@ -845,6 +883,9 @@ impl Session {
             p.probes_used.to_string(),
             flags.join("|"),
         ];
+        let row = row
+            .into_iter()
+            .chain(self.runs.columns(port, device, self.now_us));
         if let Some(w) = out.profile.as_mut() {
             w.write_record(row)
                 .map_err(|e| write_err(&path)(e.into()))?;

@@ -1042,6 +1042,12 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
     if let Some(c) = &ind.caution {
         let _ = writeln!(s, "caution: {c}");
     }
+    let records: Vec<_> = run.windows.clone();
+    s.push_str(&crate::replay::probe_table(
+        &run.layout,
+        run.sample_rate,
+        &records,
+    ));
     if let Some(f) = files {
         let _ = writeln!(
             s,

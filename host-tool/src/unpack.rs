@@ -133,11 +133,15 @@ pub fn unpack_with(
     })
 }
 
-fn clock(us: u64) -> String {
-    // YYYYMMDDTHHMMSSZ -> HH:MM:SS.mmm
+/// ISO 8601 UTC time with milliseconds: `2026-12-02T05:57:18.293Z`.
+pub fn iso_utc(us: u64) -> String {
+    // utc_stamp gives YYYYMMDDTHHMMSSZ.
     let s = utc_stamp(us);
     format!(
-        "{}:{}:{}.{:03}",
+        "{}-{}-{}T{}:{}:{}.{:03}Z",
+        &s[0..4],
+        &s[4..6],
+        &s[6..8],
         &s[9..11],
         &s[11..13],
         &s[13..15],
@@ -161,10 +165,9 @@ impl std::fmt::Display for UnpackReport {
         if let Some((a, b)) = self.span_us {
             let _ = write!(
                 o,
-                ", host time {} UTC, {} to {} ({:.1} s)",
-                &utc_stamp(a)[..8],
-                clock(a),
-                clock(b),
+                ", host time {} to {} ({:.1} s)",
+                iso_utc(a),
+                iso_utc(b),
                 rel(b)
             );
         }
@@ -217,7 +220,7 @@ impl std::fmt::Display for UnpackReport {
                     o,
                     "  port {} at {} (+{:.3} s)",
                     g.port,
-                    clock(g.host_time_us),
+                    iso_utc(g.host_time_us),
                     rel(g.host_time_us)
                 );
             }
@@ -265,4 +268,19 @@ pub fn run(args: &UnpackArgs) -> Result<UnpackReport, HostError> {
         crate::stdout::print(&report.to_string());
     }
     Ok(report)
+}
+
+#[cfg(test)]
+mod iso_tests {
+    /// ISO 8601 extended format with a Z for UTC; 2026-12-02 05:57:18.293 UTC is
+    /// 1 796 191 038.293 s after the Unix epoch (Python's `datetime(2026, 12, 2, 5, 57, 18,
+    /// 293000, tzinfo=timezone.utc).timestamp()`).
+    #[test]
+    fn dates_are_iso_8601() {
+        assert_eq!(
+            super::iso_utc(1_796_191_038_293_000),
+            "2026-12-02T05:57:18.293Z"
+        );
+        assert_eq!(super::iso_utc(0), "1970-01-01T00:00:00.000Z");
+    }
 }

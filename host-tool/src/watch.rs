@@ -19,7 +19,7 @@ use crate::commands::{parse_label, Command};
 use crate::dashboard::SAFETY_LINE;
 use crate::error::HostError;
 use crate::layout::Layout;
-use crate::live::{LiveState, LiveWindow};
+use crate::live::{LiveState, LiveWindow, ViewOptions};
 use crate::session::{describe_event, Event, Session, SessionOptions, SessionReport};
 use crate::window_spec::WindowSpec;
 use frothline_core::wire::WindowSetting;
@@ -75,6 +75,17 @@ pub struct WatchArgs {
     /// Ask each device to re-learn the air/water levels of all its probes.
     #[arg(long)]
     pub relearn: bool,
+    /// Convergence target of the running figures, in percent: a probe is done when the
+    /// 95 % intervals of its C, F (and V) are within this share of their means.
+    #[arg(long, value_name = "PERCENT", default_value_t = 5.0)]
+    pub target: f64,
+    /// Show protocol chatter (commands sent, description ACKs) in the events pane.
+    #[arg(long)]
+    pub chatter: bool,
+    /// Wait for a port that cannot be opened yet (a device still to be plugged in) instead
+    /// of stopping with an error.
+    #[arg(long)]
+    pub wait_for_port: bool,
 }
 
 /// How the session is shown.
@@ -116,6 +127,10 @@ pub struct WatchOptions {
     pub duration: Option<Duration>,
     /// Commands for each device after its first description.
     pub startup: Vec<Startup>,
+    /// Convergence target and events of the live view.
+    pub view: ViewOptions,
+    /// Keep trying a port that cannot be opened at the start (else: an error with a hint).
+    pub wait_for_port: bool,
 }
 
 impl WatchOptions {
@@ -134,6 +149,17 @@ impl WatchOptions {
                 )))
             }
             None => None,
+        };
+        if !(a.target.is_finite() && a.target > 0.0 && a.target < 100.0) {
+            return Err(HostError::Usage(format!(
+                "--target {}: give a percentage above 0 and below 100",
+                a.target
+            )));
+        }
+        let view = ViewOptions {
+            target: a.target / 100.0,
+            chatter: a.chatter,
+            ..ViewOptions::default()
         };
         let mut startup = Vec::new();
         if let Some(w) = a.set_window.clone() {
@@ -157,6 +183,8 @@ impl WatchOptions {
             ui: if a.plain { Ui::Plain } else { Ui::Dashboard },
             duration,
             startup,
+            view,
+            wait_for_port: a.wait_for_port,
         })
     }
 }
@@ -284,6 +312,9 @@ pub struct WatchSummary {
     pub elapsed: Duration,
     /// Baud rate of the links.
     pub baud: u32,
+    /// Per probe of every device (highest first): name, elevation in mm, and the running
+    /// figures of its latest run.
+    pub probes: Vec<(String, f64, crate::probe_summary::ProbeTally)>,
 }
 
 impl std::fmt::Display for WatchSummary {
@@ -312,24 +343,27 @@ impl std::fmt::Display for WatchSummary {
         if !self.report.link_gaps.is_empty() {
             writeln!(f, "  link lost {} time(s)", self.report.link_gaps.len())?;
         }
-        let files: Vec<String> = self
-            .report
-            .files
-            .iter()
-            .map(|p| p.display().to_string())
-            .collect();
-        if !files.is_empty() {
-            writeln!(
-                f,
-                "  {} window results -> {}",
-                self.report.windows,
-                files.join(", ")
-            )?;
+        if !self.probes.is_empty() {
+            writeln!(f, "results of the latest run, per probe:")?;
+            let rows: Vec<crate::probe_summary::SummaryRow> = self
+                .probes
+                .iter()
+                .map(|(name, y, tally)| crate::probe_summary::SummaryRow {
+                    name,
+                    elevation_mm: *y,
+                    tally,
+                })
+                .collect();
+            f.write_str(&crate::probe_summary::summary_table(&rows))?;
+        }
+        writeln!(f, "{} window results; files written:", self.report.windows)?;
+        for p in &self.report.files {
+            writeln!(f, "  {}", p.display())?;
         }
         if let Some((path, bytes)) = &self.report.archive {
             writeln!(
                 f,
-                "  archive: {} ({bytes} bytes); decode it again with: frothline unpack {} --out DIR",
+                "  {} (archive, {bytes} bytes; decode it again with: frothline unpack {} --out DIR)",
                 path.display(),
                 path.display()
             )?;
@@ -340,7 +374,7 @@ impl std::fmt::Display for WatchSummary {
 
 /// Keys of the dashboard.
 pub const KEYS_HELP: &str =
-    "q quit   s start run   e end run   r re-learn levels   d describe   (commands go to every device)";
+    "q quit  s start run  e end run  m mark  r re-learn  d describe  c chart  PgUp/PgDn probes";
 
 struct Watch<'a> {
     opts: WatchOptions,
@@ -353,6 +387,8 @@ struct Watch<'a> {
     out: Option<std::io::Stdout>,
     /// Standard output was closed (plain mode in a pipe whose reader went away).
     quit: bool,
+    /// marks.csv (when the session writes files).
+    marks: Option<crate::marks::MarksCsv>,
     observer: &'a mut dyn FnMut(&Event),
 }
 
@@ -465,6 +501,83 @@ impl Watch<'_> {
         }
     }
 
+    /// Write a mark with `note` for the first device's current run.
+    pub fn mark(&mut self, note: &str) {
+        let device = self.live.devices.iter().next().map(|(id, d)| (*id, d.port));
+        let (tag, device_time_s) = match device {
+            Some((id, port)) => (
+                self.session.run_tag(port, id as u16),
+                self.live.device_time_s(id),
+            ),
+            None => (Default::default(), None),
+        };
+        let mark = crate::marks::Mark {
+            run_number: tag.number,
+            run_label: tag.label,
+            host_utc: crate::unpack::iso_utc(crate::archive::now_us()),
+            device_time_s,
+            note: note.trim().to_string(),
+        };
+        let result = match self.marks.as_mut() {
+            Some(m) => m.write(&mark).map(|_| m.path().display().to_string()),
+            None => Ok("no file (the session writes none)".into()),
+        };
+        match result {
+            Ok(to) => self.note(format!(
+                "mark in run {} at device t {}: {} -> {to}",
+                mark.run_number,
+                mark.device_time_s
+                    .map_or("-".into(), |t| format!("{t:.1} s")),
+                mark.note
+            )),
+            Err(e) => self.note(format!("mark not written: {e}")),
+        }
+    }
+
+    /// A key typed while a prompt is open: edit, confirm (Enter) or cancel (Esc).
+    fn prompt_key(&mut self, code: ratatui::crossterm::event::KeyCode) {
+        use crate::live::PromptKind;
+        use ratatui::crossterm::event::KeyCode;
+        let Some(p) = self.live.prompt.as_mut() else {
+            return;
+        };
+        match code {
+            KeyCode::Esc => self.live.prompt = None,
+            KeyCode::Backspace => {
+                p.text.pop();
+            }
+            KeyCode::Char(c) => {
+                let limit = match p.kind {
+                    PromptKind::RunLabel => frothline_core::wire::LABEL_BYTES,
+                    PromptKind::MarkNote => crate::marks::MAX_NOTE_CHARS,
+                };
+                let mut t = p.text.clone();
+                t.push(c);
+                if (p.kind == PromptKind::RunLabel && t.len() <= limit)
+                    || (p.kind == PromptKind::MarkNote && t.chars().count() <= limit)
+                {
+                    p.text = t;
+                }
+            }
+            KeyCode::Enter => {
+                let Some(p) = self.live.prompt.take() else {
+                    return;
+                };
+                match p.kind {
+                    PromptKind::RunLabel => match parse_label(p.text.trim()) {
+                        Ok(label) => {
+                            self.runs += 1;
+                            self.broadcast(Command::StartRun(label));
+                        }
+                        Err(e) => self.note(format!("run not started: {e}")),
+                    },
+                    PromptKind::MarkNote => self.mark(&p.text),
+                }
+            }
+            _ => {}
+        }
+    }
+
     fn broadcast(&mut self, cmd: Command) {
         for port in 0..self.opts.ports.len() {
             self.send(port, cmd.clone());
@@ -514,6 +627,13 @@ pub fn run_with(
     if opts.ports.is_empty() {
         return Err(HostError::Usage("give at least one --port".into()));
     }
+    if !opts.wait_for_port {
+        for p in &opts.ports {
+            if let Err(e) = open_port(p, opts.baud) {
+                return Err(HostError::Usage(open_hint(p, &e)));
+            }
+        }
+    }
     let mut ui = opts.ui;
     if ui == Ui::Dashboard && !std::io::stdout().is_terminal() {
         ui = Ui::Plain;
@@ -533,6 +653,7 @@ pub fn run_with(
     let t0 = Instant::now();
     live.started = Some(t0);
     live.keys_help = KEYS_HELP.into();
+    live.view = opts.view;
     for l in &mut live.links {
         l.baud = opts.baud;
     }
@@ -567,6 +688,7 @@ pub fn run_with(
             let _ = writeln!(o, "# archiving every byte to {}", p.display());
         }
     }
+    let w_marks = opts.dir.as_deref().map(crate::marks::MarksCsv::new);
     let mut w = Watch {
         opts,
         session,
@@ -576,6 +698,7 @@ pub fn run_with(
         runs: 0,
         out,
         quit: false,
+        marks: w_marks,
         observer,
     };
     let result = main_loop(&mut w, &rx, &stop, t0, term.as_mut());
@@ -595,13 +718,21 @@ pub fn run_with(
         }
     }
     w.writers.clear();
-    let report = w.session.finish()?;
+    let mut report = w.session.finish()?;
+    if let Some(m) = w.marks.as_ref().filter(|m| m.written > 0) {
+        report.files.push(m.path().to_path_buf());
+    }
     result?;
     drained?;
+    let probes = crate::dashboard::probe_rows(&w.live)
+        .into_iter()
+        .map(|(_, p)| (p.name.clone(), p.elevation_mm, p.tally.clone()))
+        .collect();
     Ok(WatchSummary {
         report,
         elapsed: t0.elapsed(),
         baud: w.opts.baud,
+        probes,
     })
 }
 
@@ -653,21 +784,71 @@ fn main_loop(
             if k.kind != KeyEventKind::Press {
                 continue;
             }
+            if k.code == KeyCode::Char('c') && k.modifiers.contains(KeyModifiers::CONTROL) {
+                return Ok(());
+            }
+            if w.live.prompt.is_some() {
+                w.prompt_key(k.code);
+                continue;
+            }
             match k.code {
                 KeyCode::Char('q') | KeyCode::Esc => return Ok(()),
-                KeyCode::Char('c') if k.modifiers.contains(KeyModifiers::CONTROL) => return Ok(()),
                 KeyCode::Char('s') => {
-                    w.runs += 1;
-                    let label = format!("run-{}", w.runs);
-                    w.broadcast(Command::StartRun(label));
+                    // Default label: the next run number of the first device.
+                    let next = w.live.devices.iter().next().map_or(w.runs, |(id, d)| {
+                        w.session.run_tag(d.port, *id as u16).number
+                    }) + 1;
+                    w.live.prompt = Some(crate::live::Prompt {
+                        kind: crate::live::PromptKind::RunLabel,
+                        text: format!("run-{next}"),
+                    });
+                }
+                KeyCode::Char('m') => {
+                    w.live.prompt = Some(crate::live::Prompt {
+                        kind: crate::live::PromptKind::MarkNote,
+                        text: String::new(),
+                    });
                 }
                 KeyCode::Char('e') => w.broadcast(Command::StopRun),
                 KeyCode::Char('r') => w.broadcast(Command::Relearn(u32::MAX)),
                 KeyCode::Char('d') => w.broadcast(Command::DescribeRequest),
+                KeyCode::Char('c') => w.live.strip_view = w.live.strip_view.next(),
+                KeyCode::PageDown | KeyCode::Down => {
+                    let step = if k.code == KeyCode::Down { 1 } else { 8 };
+                    let total = crate::dashboard::probe_rows(&w.live).len();
+                    w.live.probe_scroll = (w.live.probe_scroll + step).min(total.saturating_sub(1));
+                }
+                KeyCode::PageUp | KeyCode::Up => {
+                    let step = if k.code == KeyCode::Up { 1 } else { 8 };
+                    w.live.probe_scroll = w.live.probe_scroll.saturating_sub(step);
+                }
                 _ => {}
             }
         }
     }
+}
+
+/// Why `port` could not be opened, and what to try.
+pub fn open_hint(port: &str, e: &serialport::Error) -> String {
+    let denied = matches!(
+        e.kind(),
+        serialport::ErrorKind::Io(std::io::ErrorKind::PermissionDenied)
+    ) || e.to_string().to_lowercase().contains("permission");
+    let mut s = format!("cannot open port {port}: {e}\n");
+    if denied {
+        s.push_str(&format!(
+            "hint: the port exists but this user may not open it: check `ls -l {port}` and \
+             join the group that owns it (often `dialout` or `uucp`: \
+             `sudo usermod -aG dialout $USER`, then log in again)\n"
+        ));
+    } else {
+        s.push_str(
+            "hint: `frothline ports` lists the serial ports of this machine; check the cable \
+             and that the device is powered\n",
+        );
+    }
+    s.push_str("hint: give --wait-for-port to wait until the port can be opened");
+    s
 }
 
 /// The process-wide Ctrl-C flag (set by the handler `frothline` installs once).

@@ -124,6 +124,14 @@ impl<W: Write> WindowsCsv<W> {
         Ok(WindowsCsv { out })
     }
 
+    /// Start a live file: the header row with the run columns
+    /// ([`crate::runs::RUN_COLUMNS`]) after [`COLUMNS`].
+    pub fn new_live(sink: W) -> csv::Result<Self> {
+        let mut out = csv::Writer::from_writer(sink);
+        out.write_record(COLUMNS.iter().chain(crate::runs::RUN_COLUMNS.iter()))?;
+        Ok(WindowsCsv { out })
+    }
+
     /// Write one record.
     pub fn write(
         &mut self,

@@ -146,7 +146,7 @@ fn kill_9() {
 
     // The CSV rows the killed process left are whole rows (flushed batch by batch).
     let csv = std::fs::read_to_string(dir.join("windows.csv")).unwrap();
-    let n = frothline_host::windows_csv::COLUMNS.len();
+    let n = frothline_host::windows_csv::COLUMNS.len() + frothline_host::runs::RUN_COLUMNS.len();
     let rows: Vec<&str> = csv.lines().collect();
     assert!(rows.len() > 1);
     for r in &rows {

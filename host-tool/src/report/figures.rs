@@ -9,8 +9,8 @@
 use super::input::{Run, Slice, Window};
 use super::render::{DrawError, Figure, Tagger};
 use super::stats::{
-    chord_histogram, envelope_fmax, power_law_curve, slice_void_fraction, DecayFit, ProbeSummary,
-    Selection,
+    chord_histogram, envelope_fmax, power_law_curve, slice_void_fraction,
+    slice_void_fraction_spread, DecayFit, ProbeSummary, Selection,
 };
 use super::style::{
     legend_line, marker_element, probe_colour, probe_marker, station_colour, time_colour, Marker,
@@ -148,8 +148,9 @@ fn place_legend(
     let plot_w = s.width as f64 - s.px(y_label_px + 38.0) as f64;
     let plot_h = s.height as f64 - s.px(22.0 + 24.0 + 54.0 + 24.0) as f64;
     let chars = labels.iter().map(|l| l.chars().count()).max().unwrap_or(0) as f64;
-    let box_w = s.px(10.0 + 28.0 + 16.0) as f64 + chars * s.px(14.0) as f64 * 0.6;
-    let box_h = s.px(12.0) as f64 + labels.len() as f64 * s.px(20.0) as f64;
+    let box_w =
+        (s.px(10.0 + 16.0) + s.px(28.0).max(26)) as f64 + chars * s.legend_px() as f64 * 0.6;
+    let box_h = s.px(12.0) as f64 + labels.len() as f64 * (s.legend_px() as f64 * 1.45);
     let (wf, hf) = ((box_w / plot_w).min(1.0), (box_h / plot_h).min(0.9));
     let mut best: Option<(SeriesLabelPosition, f64)> = None;
     for corner in corners {
@@ -168,8 +169,34 @@ fn place_legend(
         }
     }
     let (pos, top) = best.unwrap_or((SeriesLabelPosition::UpperRight, data_max * 1.06));
+    // When an upper corner would squash the data (the axis raised by more than a third to
+    // clear the box), a free place at the bottom, where no point lies under the box, keeps
+    // the data's own range.
+    let plain_top = nice_max(data_max * 1.06);
+    if top > 1.3 * data_max * 1.06 {
+        let free = |x0: f64, x1: f64| {
+            !points
+                .iter()
+                .any(|p| p.0 >= x0 && p.0 <= x1 && p.1 <= plain_top * (hf + 0.06))
+        };
+        let lower = [
+            (
+                SeriesLabelPosition::LowerMiddle,
+                0.5 - wf / 2.0 - 0.02,
+                0.5 + wf / 2.0 + 0.02,
+            ),
+            (SeriesLabelPosition::LowerRight, 1.0 - wf - 0.02, 1.0),
+            (SeriesLabelPosition::LowerLeft, 0.0, wf + 0.02),
+        ];
+        if let Some((p, _, _)) = lower.into_iter().find(|(_, a, b)| free(*a, *b)) {
+            return (p, plain_top);
+        }
+    }
     (pos, nice_max(top))
 }
+
+/// Points of a curve or a series, (x, y) in data units.
+type Points = Vec<(f64, f64)>;
 
 /// Keep at most `max` items, evenly spaced.
 fn thin<T>(v: Vec<T>, max: usize) -> Vec<T> {
@@ -227,7 +254,8 @@ fn legend<'a, DB: DrawingBackend + 'a, CT: CoordTranslate>(
         .configure_series_labels()
         .position(pos)
         .margin(s.px(10.0))
-        .legend_area_size(s.px(28.0))
+        // The keys are drawn 17 px long (style::LineKey): keep room for them at any scale.
+        .legend_area_size(s.px(28.0).max(26))
         .background_style(WHITE.mix(0.88))
         .border_style(GRID)
         .label_font(s.legend())
@@ -308,7 +336,13 @@ impl ProfileFigure<'_> {
                     fmt_num(sl.profile_exponent.unwrap_or(0.0)),
                 )
             })
-            .chain(["windows over the slice, per probe".to_string()])
+            .chain([
+                if run.windows.iter().any(|w| w.void_fraction_spread.is_some()) {
+                    "windows over the slice, per probe; bars ±1 sd over the runs".to_string()
+                } else {
+                    "windows over the slice, per probe".to_string()
+                },
+            ])
             .collect();
         let all: Vec<(f64, f64)> = curves
             .iter()
@@ -342,14 +376,49 @@ impl ProfileFigure<'_> {
             let t = sl.since_front_s.unwrap_or(0.0);
             let width = s.line();
             tag.begin(root, &format!("profile-fit-t{t:.3}"))?;
+            // The power law describes the flow below Y90 only: solid up to Y90, then a thin
+            // dashed line where it would run on to C = 1 (the spray region above Y90).
+            let y90 = sl.y90_mm.unwrap_or(0.0);
+            let (below, above): (Points, Points) = curve.iter().partition(|p| p.1 <= y90);
             chart
                 .draw_series(LineSeries::new(
-                    curve.iter().copied(),
+                    below.iter().copied(),
                     colour.stroke_width(width),
                 ))?
                 .label(labels[i].clone())
                 .legend(move |at| legend_line(at, colour, width, false));
+            let above: Vec<(f64, f64)> = below.last().copied().into_iter().chain(above).collect();
+            chart.draw_series(DashedLineSeries::new(
+                above,
+                s.px(5.0),
+                s.px(4.0),
+                colour.mix(0.45).stroke_width((width / 2).max(1)),
+            ))?;
             tag.end(root)?;
+            // Run-to-run spread of an ensemble: ±1 standard deviation of C as error bars.
+            let bars: Vec<((f64, f64), f64)> = probes
+                .iter()
+                .filter_map(|&p| {
+                    let c = slice_void_fraction(run, self.ctx.sel, p, sl)?;
+                    let sd = slice_void_fraction_spread(run, self.ctx.sel, p, sl)?;
+                    Some(((c, run.probes[p].elevation_mm?), sd))
+                })
+                .filter(|(_, sd)| *sd > 0.0 && sd.is_finite())
+                .collect();
+            if !bars.is_empty() {
+                tag.begin(root, &format!("profile-spread-t{t:.3}"))?;
+                let cap = (y_top * 0.008).max(1e-9);
+                for ((c, y), sd) in &bars {
+                    let (lo, hi) = ((c - sd).max(0.0), (c + sd).min(1.0));
+                    let style = colour.mix(0.8).stroke_width((width / 2).max(1));
+                    chart.draw_series([
+                        PathElement::new(vec![(lo, *y), (hi, *y)], style),
+                        PathElement::new(vec![(lo, y - cap), (lo, y + cap)], style),
+                        PathElement::new(vec![(hi, y - cap), (hi, y + cap)], style),
+                    ])?;
+                }
+                tag.end(root)?;
+            }
             tag.begin(root, &format!("profile-windows-t{t:.3}"))?;
             let anno = chart.draw_series(
                 pts.iter()
@@ -1094,8 +1163,17 @@ impl Figure for CountRateFigure<'_> {
                 SeriesLabelPosition::UpperLeft,
             ],
         );
-        let mut chart = builder(root, s, "Bubble count rate against void fraction", 72.0)
-            .build_cartesian_2d(0.0..1.0f64, 0.0..f_top)?;
+        // A legend that would squash the data (many probes) goes right of the plot.
+        let data_top = nice_max(extent.iter().map(|p| p.1).fold(0.0, f64::max) * 1.06);
+        let chars = labels.iter().map(|l| l.chars().count()).max().unwrap_or(0) as f64;
+        let outside_w = (s.px(44.0) as f64 + chars * s.px(14.0) as f64 * 0.6).ceil() as u32;
+        let outside = f_top > 1.3 * data_top && (outside_w as f64) < s.width as f64 * 0.45;
+        let f_top = if outside { data_top } else { f_top };
+        let mut b = builder(root, s, "Bubble count rate against void fraction", 72.0);
+        if outside {
+            b.margin_right(s.px(20.0) + outside_w);
+        }
+        let mut chart = b.build_cartesian_2d(0.0..1.0f64, 0.0..f_top)?;
         mesh!(chart, s, "void fraction C (–)", "bubble count rate F (Hz)").draw()?;
         let r = s.marker();
         for (k, (p, v)) in pts.iter().enumerate() {
@@ -1139,7 +1217,36 @@ impl Figure for CountRateFigure<'_> {
                 .legend(move |at| legend_line(at, FIT, width, true));
             tag.end(root)?;
         }
-        legend(&mut chart, s, pos)
+        if !outside {
+            return legend(&mut chart, s, pos);
+        }
+        // The keys and labels in a column right of the plot, from its top.
+        let (w, _) = root.dim_in_pixel();
+        let x0 = w as i32 - outside_w as i32 - s.px(6.0) as i32;
+        let step = s.px(20.0) as i32;
+        let y0 = chart.plotting_area().get_base_pixel().1 + step / 2;
+        let text = s.legend().pos(Pos::new(HPos::Left, VPos::Center));
+        for (k, label) in labels.iter().enumerate() {
+            let y = y0 + k as i32 * step;
+            let key = (x0 + s.px(12.0) as i32, y);
+            match pts.get(k) {
+                Some((p, _)) => root.draw(&marker_element(
+                    key,
+                    probe_marker(*p),
+                    probe_colour(*p),
+                    r,
+                    true,
+                ))?,
+                None => root.draw(&legend_line(key, FIT, s.line() + 1, true))?,
+            }
+            root.draw(&Text::new(
+                label.clone(),
+                // Past the 17 px line key (style::LineKey) at any scale.
+                (x0 + s.px(12.0) as i32 + s.px(24.0).max(22) as i32, y),
+                text.clone(),
+            ))?;
+        }
+        Ok(())
     }
 }
 

@@ -25,6 +25,8 @@ pub struct Page<'a> {
     pub low_reynolds: bool,
     pub notes: &'a [String],
     pub sel: Selection,
+    /// marks.csv of a live session (empty when none).
+    pub marks: &'a [crate::marks::Mark],
 }
 
 /// Escape text for HTML.
@@ -142,6 +144,7 @@ impl Page<'_> {
         self.figures(&mut h);
         self.fits(&mut h);
         self.flags(&mut h);
+        self.marks(&mut h);
         self.notes(&mut h);
         h.push_str("</body>\n</html>\n");
         h
@@ -251,8 +254,9 @@ impl Page<'_> {
             h,
             "<p class=\"muted\">C: mean over the windows used, weighted by window length; F: \
              bubbles over time; Fmax: parabolic envelope fitted to the probe's windows{}; chord \
-             median: {}; V and Tu: bubble-weighted means of the window values. Windows used: \
-             after the front (transient runs), without {}.</p>",
+             median: {}; V and Tu: bubble-weighted means of the window values, leaving out \
+             windows flagged no_correlation_peak or peak_at_lag_boundary (velocity not to be \
+             trusted). Windows used: after the front (transient runs), without {}.</p>",
             self.fmax_all
                 .map(|f| format!(" (all probes together: {} Hz)", fmt_num(f)))
                 .unwrap_or_default(),
@@ -389,6 +393,31 @@ impl Page<'_> {
                 src.label(),
                 esc(&wher.join(", ")),
                 esc(meaning)
+            );
+        }
+        h.push_str("</table>\n");
+    }
+
+    /// The technician's marks (marks.csv), in file order.
+    fn marks(&self, h: &mut String) {
+        if self.marks.is_empty() {
+            return;
+        }
+        h.push_str(
+            "<h2 id=\"marks\">Marks</h2>\n<table>\n<tr><th>run</th><th class=\"l\">label</th>\
+             <th class=\"l\">host time (UTC)</th><th>device time (s)</th>\
+             <th class=\"l\">note</th></tr>\n",
+        );
+        for m in self.marks {
+            let _ = writeln!(
+                h,
+                "<tr><td>{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td><td>{}</td>\
+                 <td class=\"l\">{}</td></tr>",
+                m.run_number,
+                esc(&m.run_label),
+                esc(&m.host_utc),
+                m.device_time_s.map_or("–".into(), |t| format!("{t:.3}")),
+                esc(&m.note)
             );
         }
         h.push_str("</table>\n");

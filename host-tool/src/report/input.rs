@@ -77,7 +77,12 @@ pub struct Window {
     pub chord_median_s: Option<f64>,
     pub chord_p10_s: Option<f64>,
     pub chord_p90_s: Option<f64>,
+    /// Standard deviation of C across the runs of an ensemble (`frothline ensemble`).
+    pub void_fraction_spread: Option<f64>,
 }
+
+/// The column of an ensemble's windows.csv with the run-to-run spread of C.
+pub const ENSEMBLE_SPREAD: &str = "void_fraction_spread";
 
 impl Window {
     /// Window length in seconds, when both bounds are known and in order.
@@ -346,6 +351,7 @@ fn read_windows(run: &mut Run, progress: &ProgressBar) -> Result<(), ReportError
         c("bubble_chord_median_s"),
         c("bubble_chord_p10_s"),
         c("bubble_chord_p90_s"),
+        c(ENSEMBLE_SPREAD),
     ];
     let flags_col = c("flags");
     run.columns = t
@@ -358,7 +364,11 @@ fn read_windows(run: &mut Run, progress: &ProgressBar) -> Result<(), ReportError
         .headers
         .iter()
         .map(|h| h.as_str())
-        .filter(|h| !WINDOW_COLUMNS.contains(h) && !crate::windows_csv::COLUMNS.contains(h))
+        .filter(|h| {
+            !WINDOW_COLUMNS.contains(h)
+                && !crate::windows_csv::COLUMNS.contains(h)
+                && *h != ENSEMBLE_SPREAD
+        })
         .collect();
     if !unknown.is_empty() {
         run.notes.push(format!(
@@ -427,6 +437,7 @@ fn read_windows(run: &mut Run, progress: &ProgressBar) -> Result<(), ReportError
             chord_median_s: v[12],
             chord_p10_s: v[13],
             chord_p90_s: v[14],
+            void_fraction_spread: v[15],
         });
         Ok(())
     })?;

@@ -194,6 +194,8 @@ pub struct ReportSummary {
     pub low_reynolds: bool,
     /// Notes shown on the page (skips, thinning, rows left out, unknown columns).
     pub notes: Vec<String>,
+    /// Per probe: name and whole-record figures (as in the page's probe table).
+    pub probe_summaries: Vec<(String, stats::ProbeSummary)>,
 }
 
 impl ReportSummary {
@@ -285,23 +287,25 @@ fn progress_bar(args: &ReportArgs) -> ProgressBar {
     pb
 }
 
-/// Bits of the flags named in `names` (unknown names are noted and ignored).
-fn excluded_bits(run: &input::Run, names: &[String], notes: &mut Vec<String>) -> u64 {
+/// Bits (over the run's flag names) of the flags named in `names`, and the summary rule
+/// for them. An unknown name is a usage error.
+fn excluded_bits(
+    run: &input::Run,
+    names: &[String],
+) -> Result<(u64, crate::probe_summary::SummaryRule), ReportError> {
+    let core = crate::probe_summary::flag_bits(names)
+        .map_err(|e| ReportError::Usage(format!("--exclude-flags: {e}")))?;
     let mut bits = 0;
-    for n in names.iter().map(|n| n.trim()).filter(|n| !n.is_empty()) {
-        if n == "none" {
-            continue;
-        }
-        match run.flag_names.iter().position(|f| f == n) {
-            Some(i) => bits |= 1 << i,
-            None if flags::meaning(flags::FlagSource::Window, n).is_some() => {}
-            None => notes.push(format!(
-                "--exclude-flags: `{n}` is not a window flag of this version and was not \
-                 raised in this run"
-            )),
+    for (i, f) in run.flag_names.iter().enumerate() {
+        if core.names().any(|n| n == f) {
+            bits |= 1 << i;
         }
     }
-    bits
+    let rule = crate::probe_summary::SummaryRule {
+        excluded: core,
+        ..Default::default()
+    };
+    Ok((bits, rule))
 }
 
 /// Make the report of `args.dir`.
@@ -316,11 +320,15 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
             "--low-reynolds: give a Reynolds number, zero or more".into(),
         ));
     }
+    crate::probe_summary::flag_bits(&args.exclude_flags)
+        .map_err(|e| ReportError::Usage(format!("--exclude-flags: {e}")))?;
     let progress = progress_bar(args);
     let run = input::read_run(&args.dir, &progress)?;
     let mut notes = run.notes.clone();
+    let (excluded_flags, rule) = excluded_bits(&run, &args.exclude_flags)?;
     let sel = Selection {
-        excluded_flags: excluded_bits(&run, &args.exclude_flags, &mut notes),
+        excluded_flags,
+        rule,
     };
     let stations = run.stations();
     if let Some(st) = &args.station {
@@ -575,8 +583,19 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
             run.windows.len()
         ));
     }
+    let untrusted: usize = summaries
+        .iter()
+        .map(|s| s.used.saturating_sub(s.velocity_used))
+        .sum();
+    if untrusted > 0 {
+        notes.push(format!(
+            "{untrusted} used windows left out of V and Tu only: flagged no_correlation_peak \
+             or peak_at_lag_boundary (velocity not to be trusted)"
+        ));
+    }
     let reynolds = run.indicators.as_ref().and_then(|i| i.reynolds());
     let low_reynolds = reynolds.is_some_and(|re| re < args.low_reynolds);
+    let marks = crate::marks::read(&args.dir).map_err(ReportError::Usage)?;
     let html_path = out_dir.join("report.html");
     let page = html::Page {
         args,
@@ -590,6 +609,7 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
         low_reynolds,
         notes: &notes,
         sel,
+        marks: &marks,
     };
     std::fs::write(&html_path, page.render()).map_err(|source| ReportError::Write {
         path: html_path.clone(),
@@ -605,6 +625,12 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
         transient: run.is_transient(),
         low_reynolds,
         notes,
+        probe_summaries: run
+            .probes
+            .iter()
+            .map(|p| p.name.clone())
+            .zip(summaries.iter().cloned())
+            .collect(),
     };
     if !args.quiet {
         crate::stdout::print(&summary.to_string());

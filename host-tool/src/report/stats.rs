@@ -13,12 +13,16 @@
 //! - Power-law profile C = 0.9 (y/Y90)^n, drawn from a slice's Y90 and n.
 
 use super::input::{Run, Slice, Window};
+use crate::probe_summary::{ProbeTally, SummaryRule, WindowFigures};
+use frothline_core::Flags;
 
 /// Which windows enter means and fits.
 #[derive(Debug, Clone, Copy)]
 pub struct Selection {
     /// Windows carrying any of these flag bits are left out.
     pub excluded_flags: u64,
+    /// The per-probe summary rule (the same flags, as core flags, and the velocity rule).
+    pub rule: SummaryRule,
 }
 
 impl Selection {
@@ -78,8 +82,11 @@ pub struct ProbeSummary {
     pub chord_p10_s: Option<f64>,
     pub chord_p90_s: Option<f64>,
     pub chord_source: ChordSource,
+    /// Over the used windows whose velocity is trusted (see [`crate::probe_summary`]).
     pub velocity_m_s: Option<f64>,
     pub turbulence_intensity: Option<f64>,
+    /// Used windows that entered V and Tu.
+    pub velocity_used: usize,
     pub correlation_peak: Option<f64>,
     /// Parabolic envelope fitted to this probe's windows.
     pub fmax_hz: Option<f64>,
@@ -97,22 +104,11 @@ pub fn summarise(run: &Run, sel: Selection) -> Vec<ProbeSummary> {
 fn summarise_probe(run: &Run, sel: Selection, p: usize) -> ProbeSummary {
     let all: Vec<&Window> = run.windows.iter().filter(|w| w.probe == p).collect();
     let used: Vec<&Window> = all.iter().copied().filter(|w| sel.uses(w)).collect();
-    let mut c = WMean::default();
     let (mut chord, mut med, mut p10, mut p90) = Default::default();
-    let (mut v, mut tu, mut peak) = Default::default();
-    let (mut bubbles, mut time, mut f_mean) = (0.0, 0.0, WMean::default());
-    let mut bubbles_known = true;
+    let mut peak = WMean::default();
+    let mut bubbles = 0.0;
     for w in &used {
-        let dur = w.duration_s().unwrap_or(1.0);
-        c.add(w.void_fraction, dur);
-        f_mean.add(w.count_rate_hz, dur);
-        match w.bubbles {
-            Some(b) => {
-                bubbles += b;
-                time += dur;
-            }
-            None => bubbles_known = false,
-        }
+        bubbles += w.bubbles.unwrap_or(0.0);
         let nb = w.bubbles.unwrap_or(1.0);
         add_all(
             [
@@ -120,18 +116,17 @@ fn summarise_probe(run: &Run, sel: Selection, p: usize) -> ProbeSummary {
                 (&mut med, w.chord_median_s),
                 (&mut p10, w.chord_p10_s),
                 (&mut p90, w.chord_p90_s),
-                (&mut v, w.velocity_m_s),
-                (&mut tu, w.turbulence_intensity),
                 (&mut peak, w.correlation_peak),
             ],
             nb,
         );
     }
-    let count_rate_hz = if bubbles_known && time > 0.0 && w_has_bubbles(&used) {
-        Some(bubbles / time)
-    } else {
-        f_mean.get()
-    };
+    // C, F, V and Tu: the per-probe summary shared with replay and the live view.
+    let mut tally = ProbeTally::new();
+    for w in &all {
+        tally.add(&window_figures(run, w), &sel.rule);
+    }
+    let mean = |e: Option<crate::running_stats::Estimate>| e.map(|e| e.mean);
     let mut cs: Vec<f64> = used.iter().filter_map(|w| w.void_fraction).collect();
     cs.sort_by(f64::total_cmp);
     let hist: Vec<(f64, f64, f64)> = run
@@ -160,19 +155,20 @@ fn summarise_probe(run: &Run, sel: Selection, p: usize) -> ProbeSummary {
     }
     ProbeSummary {
         windows: all.len(),
-        used: used.len(),
-        void_fraction: c.get(),
+        used: tally.used as usize,
+        void_fraction: mean(tally.void_fraction()),
         void_fraction_p10: quantile_sorted(&cs, 0.1),
         void_fraction_p90: quantile_sorted(&cs, 0.9),
-        count_rate_hz,
+        count_rate_hz: mean(tally.count_rate_hz()),
         bubbles,
         chord_mean_s: chord.get(),
         chord_median_s,
         chord_p10_s,
         chord_p90_s,
         chord_source,
-        velocity_m_s: v.get(),
-        turbulence_intensity: tu.get(),
+        velocity_m_s: mean(tally.velocity_m_s()),
+        turbulence_intensity: mean(tally.turbulence_intensity()),
+        velocity_used: tally.velocity_used as usize,
         correlation_peak: peak.get(),
         fmax_hz: envelope_fmax(
             used.iter()
@@ -182,8 +178,32 @@ fn summarise_probe(run: &Run, sel: Selection, p: usize) -> ProbeSummary {
     }
 }
 
-fn w_has_bubbles(ws: &[&Window]) -> bool {
-    ws.iter().any(|w| w.bubbles.is_some())
+/// The core flags of a report window (names this version does not know map to none).
+pub fn core_flags(run: &Run, bits: u64) -> Flags {
+    let mut f = Flags::NONE;
+    for (i, name) in run.flag_names.iter().enumerate() {
+        if bits & (1 << i) != 0 {
+            if let Some((flag, _)) = Flags::NAMES.iter().find(|(_, n)| n == name) {
+                f |= *flag;
+            }
+        }
+    }
+    f
+}
+
+/// A windows.csv row as the per-probe summary's input.
+fn window_figures(run: &Run, w: &Window) -> WindowFigures {
+    WindowFigures {
+        duration_s: w.duration_s().unwrap_or(1.0),
+        void_fraction: w.void_fraction,
+        count_rate_hz: w.count_rate_hz,
+        bubbles: w.bubbles,
+        velocity_m_s: w.velocity_m_s,
+        turbulence_intensity: w.turbulence_intensity,
+        chord_median_s: w.chord_median_s,
+        flags: core_flags(run, w.flags),
+        before_front: w.since_front_s.is_some_and(|t| t < 0.0),
+    }
 }
 
 fn add_all<const N: usize>(items: [(&mut WMean, Option<f64>); N], weight: f64) {
@@ -420,6 +440,23 @@ pub fn slice_void_fraction(run: &Run, sel: Selection, p: usize, s: &Slice) -> Op
             .min_by(|a, b| a.0.total_cmp(&b.0))
             .map(|x| x.1)
     }
+}
+
+/// The run-to-run spread of C of probe `p` over slice `s` (an ensemble's windows), weighted
+/// like [`slice_void_fraction`]; none for a single run.
+pub fn slice_void_fraction_spread(run: &Run, sel: Selection, p: usize, s: &Slice) -> Option<f64> {
+    let (a, b) = (s.start_s?, s.end_s?);
+    let mut m = WMean::default();
+    for w in run
+        .windows
+        .iter()
+        .filter(|w| w.probe == p && w.flags & sel.excluded_flags == 0)
+    {
+        if let (Some(ws), Some(we)) = (w.start_s, w.end_s) {
+            m.add(w.void_fraction_spread, (we.min(b) - ws.max(a)).max(0.0));
+        }
+    }
+    m.get()
 }
 
 /// Normalised histogram of chord times of probe `p`: (lower, upper, fraction of bubbles).

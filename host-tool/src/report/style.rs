@@ -151,7 +151,12 @@ impl Sizes {
     }
     /// Legend text style.
     pub fn legend(&self) -> TextStyle<'static> {
-        (FONT, self.px(14.0) as f64).into_font().color(&INK)
+        (FONT, self.legend_px() as f64).into_font().color(&INK)
+    }
+    /// Legend text height, px: scaled, but never below 10 px, so small figures keep a
+    /// readable legend.
+    pub fn legend_px(&self) -> u32 {
+        self.px(14.0).max(10)
     }
     /// Marker radius, px.
     pub fn marker(&self) -> i32 {
