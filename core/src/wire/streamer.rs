@@ -17,11 +17,12 @@
 //! health, then window results. Window results wait in a queue of `Q`; when it is full the
 //! **oldest** result is dropped. A new description or health frame replaces a queued one
 //! (nothing is lost: health counters are cumulative). An urgent frame offered to a full
-//! urgent queue is dropped. Every drop is counted, and the total goes out in the
-//! `frames_dropped` field of the next health frame (filled in when it is encoded), so drops
-//! are never silent. Sequence numbers are given when a frame is encoded, so a frame dropped
-//! here leaves no sequence gap: gaps at the host mean link loss, `frames_dropped` means
-//! streamer drops, and the two never count the same frame.
+//! urgent queue is dropped. Every drop is counted, and the totals go out in the
+//! `windows_dropped` (window results) and `frames_dropped` (whole frames) fields of the
+//! next health frame (filled in when it is encoded), so drops are never silent. Sequence
+//! numbers are given when a frame is encoded, so a frame dropped here leaves no sequence
+//! gap: gaps at the host mean link loss, the health counters mean streamer drops, and the
+//! two never count the same frame.
 //!
 //! Window results waiting together are packed into one frame (up to
 //! [`MAX_WINDOWS_PER_FRAME`]), which shares the header, CRC and COBS overhead: the results
@@ -29,8 +30,8 @@
 
 use crate::wire::codec::encode;
 use crate::wire::frame::{
-    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, StartRun,
-    WindowResult, WindowSetting, Windows,
+    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, RunStart,
+    StartRun, WindowResult, WindowSetting, Windows,
 };
 use crate::wire::{MAX_FRAME_BYTES, MAX_WINDOWS_PER_FRAME};
 use heapless::Deque;
@@ -97,11 +98,9 @@ pub struct StreamerStats {
 }
 
 impl StreamerStats {
-    /// Every frame or window result dropped: what health frames report.
-    pub fn dropped(&self) -> u32 {
-        self.windows_dropped
-            .saturating_add(self.urgent_dropped)
-            .saturating_add(self.encode_errors)
+    /// Whole frames dropped (urgent queue full, encode errors): `Health::frames_dropped`.
+    pub fn frames_dropped(&self) -> u32 {
+        self.urgent_dropped.saturating_add(self.encode_errors)
     }
 }
 
@@ -109,6 +108,7 @@ impl StreamerStats {
 #[derive(Clone, Debug)]
 enum Urgent {
     Front(FrontArrival),
+    RunStart(RunStart),
     Profile(ProfileFit),
     StartRun(StartRun),
     StopRun,
@@ -123,6 +123,7 @@ impl Urgent {
     fn into_body(self) -> Body {
         match self {
             Urgent::Front(b) => Body::Front(b),
+            Urgent::RunStart(b) => Body::RunStart(b),
             Urgent::Profile(b) => Body::Profile(b),
             Urgent::StartRun(b) => Body::StartRun(b),
             Urgent::StopRun => Body::StopRun,
@@ -190,6 +191,7 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
             Body::Describe(d) => return Self::replace(&mut self.describe, d, &mut self.stats),
             Body::Health(h) => return Self::replace(&mut self.health, h, &mut self.stats),
             Body::Front(b) => Urgent::Front(b),
+            Body::RunStart(b) => Urgent::RunStart(b),
             Body::Profile(b) => Urgent::Profile(b),
             Body::StartRun(b) => Urgent::StartRun(b),
             Body::StopRun => Urgent::StopRun,
@@ -308,7 +310,8 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
         } else if let Some(d) = self.describe.take() {
             Body::Describe(d)
         } else if let Some(mut h) = self.health.take() {
-            h.frames_dropped = self.stats.dropped();
+            h.windows_dropped = self.stats.windows_dropped;
+            h.frames_dropped = self.stats.frames_dropped();
             Body::Health(h)
         } else if !self.windows.is_empty() {
             let mut ws = Windows::new();
@@ -420,7 +423,7 @@ mod tests {
         // Health first (it carries the drop count), then the two newest windows in one frame.
         assert_eq!(got.len(), 2);
         match &got[0].body {
-            Body::Health(h) => assert_eq!(h.frames_dropped, 3),
+            Body::Health(h) => assert_eq!((h.windows_dropped, h.frames_dropped), (3, 0)),
             other => panic!("{other:?}"),
         }
         match &got[1].body {
