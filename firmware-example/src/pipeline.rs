@@ -249,6 +249,7 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             tips_stuck: self.stuck,
             buffer_high_water: HEALTH.queue_high_water.load(Ordering::Relaxed)
                 * (BLOCK_FRAMES * self.channels) as u32,
+            windows_dropped: 0,
             frames_dropped: 0,
             uptime_frames: self.sample_clock(),
         }

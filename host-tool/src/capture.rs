@@ -1066,7 +1066,7 @@ mod tests {
         let p = files.write("nodata.wav", &wav(&fmt, &[], None));
         let mut c = Capture::open(&p).unwrap();
         assert_eq!(c.frames(), 0);
-        assert_eq!(read_all(&mut c, 10).unwrap(), vec![]);
+        assert_eq!(read_all(&mut c, 10).unwrap(), Vec::<i16>::new());
     }
 
     #[test]

@@ -34,7 +34,12 @@ fn usage_errors_exit_with_2() {
     ]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("at most 16"));
-    let out = frothline(&["unpack", "/nonexistent/session.flc", "--out", "/tmp/x"]);
+    let out = frothline(&[
+        "unpack",
+        "/nonexistent/session.frothwire",
+        "--out",
+        "/tmp/x",
+    ]);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("cannot read archive"));
 }
@@ -60,7 +65,7 @@ fn a_short_demo_writes_an_archive_that_unpacks_to_the_same_csv() {
     let archive = std::fs::read_dir(&dir)
         .unwrap()
         .map(|e| e.unwrap().path())
-        .find(|p| p.extension().is_some_and(|x| x == "flc"))
+        .find(|p| p.extension().is_some_and(|x| x == "frothwire"))
         .expect("an archive");
     let un = tmp.path().join("un");
     let out = frothline(&[
