@@ -65,7 +65,7 @@ def main():
     sys.path.insert(0, str(HERE))
     import decode_frames as dec  # noqa: E402
 
-    counts = {"cases": 0, "frames": 0, "unsupported": 0, "rejected": 0, "windows": 0,
+    counts = {"cases": 0, "frame": 0, "unsupported": 0, "rejected": 0, "windows": 0,
               "mismatches": 0}
     shown = 0
     for line in sys.stdin:
