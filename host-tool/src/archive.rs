@@ -697,7 +697,8 @@ mod tests {
         }
         drop(w);
         let mut bytes = std::fs::read(&path).unwrap();
-        // Chunk k starts at 24 + 37 k (2 + 1 + 1 + 1 + 1 + 30 + 4 = 40? times are 1 byte):
+        // Every chunk is 40 bytes: sync 2, kind 1, port 1, time 1 (under 128 µs), length 1,
+        // payload 30, CRC 4.
         let chunk = 2 + 1 + 1 + 1 + 1 + 30 + 4;
         // Overwrite the header of chunk 5 (its port becomes 0xff) and flip a payload byte
         // of chunk 9.
@@ -747,6 +748,38 @@ mod tests {
             let e = ArchiveReader::open(&p).err().expect(name).to_string();
             assert!(e.contains(name) && e.contains(says), "{e}");
         }
+    }
+
+    /// The worked example of docs/archive-format.md, byte for byte.
+    #[test]
+    fn the_worked_example_of_the_format_page() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("example.frothwire");
+        let start = 1_796_194_800_000_000;
+        let mut w = ArchiveWriter::create(&path, start).unwrap();
+        w.opened(0, start + 100_000, "/dev/ttyUSB0").unwrap();
+        let ack = [
+            0x0b, 0x02, 0x07, 0x30, 0x90, 0x03, 0x02, 0x06, 0xae, 0x31, 0x86, 0x00,
+        ];
+        w.append(0, start + 250_000, &ack).unwrap();
+        drop(w);
+        let hex: String = std::fs::read(&path)
+            .unwrap()
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect();
+        assert_eq!(
+            hex,
+            "894652570d0a1a0a02000000005c0031a1610600525d3b29\
+             c5570200a08d060c2f6465762f747479555342301cad9ced\
+             c557000090a10f0c0b02073090030206ae31860018e661b2"
+        );
+        let (c, r) = read_all(&path);
+        assert_eq!(r.start_us(), start);
+        assert_eq!(
+            (c[1].host_time_us, c[1].bytes.as_slice()),
+            (start + 250_000, &ack[..])
+        );
     }
 
     #[test]

@@ -1141,7 +1141,7 @@ pub fn describe_event(e: &Event, ports: &[String]) -> Option<String> {
                 format!(" `{}`", run.label)
             },
             run.utc_ms.map_or_else(String::new, |ms| format!(
-                " at {} UTC",
+                " at {}",
                 crate::archive::utc_iso(ms.saturating_mul(1000))
             ))
         ),
