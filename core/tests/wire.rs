@@ -1312,9 +1312,11 @@ fn streamer_keeps_up_with_8_probes_at_20_windows_per_second_on_115200() {
     assert_eq!(dec.stats().lost, 0);
     assert_eq!(s.stats().windows_sent, 8 * 20 * 30);
     assert!(load <= 0.5, "load {load}");
-    // The front offered at t = 0 is urgent and goes first, the description right after.
-    assert!(matches!(host[0].body, Body::Front(_)));
-    assert!(matches!(host[1].body, Body::Describe(_)));
+    // The description is the first frame (the power-on marker), then the front offered at
+    // t = 0 (urgent) before any result.
+    assert!(matches!(host[0].body, Body::Describe(_)));
+    assert_eq!(host[0].seq, 0);
+    assert!(matches!(host[1].body, Body::Front(_)));
     let healths = host
         .iter()
         .filter(|f| matches!(f.body, Body::Health(_)))

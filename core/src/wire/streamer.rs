@@ -13,8 +13,9 @@
 //! and every byte handed out spends one byte of credit. Each call does bounded work: at
 //! most one frame is encoded.
 //!
-//! Policy when the link cannot keep up: urgent frames go first, then the description, then
-//! health, then window results. Window results wait in a queue of `Q`; when it is full the
+//! Policy when the link cannot keep up: the very first frame is the description if one is
+//! queued (a device's power-on marker); after it urgent frames go first, then the
+//! description, then health, then window results. Window results wait in a queue of `Q`; when it is full the
 //! **oldest** result is dropped. A new description or health frame replaces a queued one
 //! (nothing is lost: health counters are cumulative). An urgent frame offered to a full
 //! urgent queue is dropped. Every drop is counted, and the totals go out in the
@@ -271,6 +272,12 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
         &self.stats
     }
 
+    /// Free places in the urgent queue: a device reads its next command only while there
+    /// is room for the answer (and a RunStart), leaving further commands in its receiver.
+    pub fn urgent_room(&self) -> usize {
+        P - self.urgent.len()
+    }
+
     /// Window results waiting.
     pub fn queued_windows(&self) -> usize {
         self.windows.len()
@@ -305,7 +312,15 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
 
     /// Encode the next frame into the transmit buffer; false if nothing waits.
     fn load(&mut self) -> bool {
-        let body = if let Some(u) = self.urgent.pop_front() {
+        // A device's first frame is its description (the power-on marker of the sequence
+        // state machine, docs/wire-protocol.md section 9), whatever else waits.
+        let first = self.stats.frames_sent == 0 && self.describe.is_some();
+        let body = if first {
+            match self.describe.take() {
+                Some(d) => Body::Describe(d),
+                None => return false,
+            }
+        } else if let Some(u) = self.urgent.pop_front() {
             u.into_body()
         } else if let Some(d) = self.describe.take() {
             Body::Describe(d)
