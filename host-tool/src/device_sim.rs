@@ -1002,6 +1002,34 @@ mod tests {
         });
     }
 
+    /// In a transient run the description gives the window actually streamed: windows of
+    /// 50 ms counted from the front (AfterFront), never Whole; after SetWindow the new one.
+    #[test]
+    fn a_transient_device_describes_the_window_it_streams() {
+        big_stack(|| {
+            let cap =
+                crate::demo::transient_demo_capture(crate::window_spec::WindowSpec::Whole).unwrap();
+            let fs = cap.sample_rate;
+            let t0 = Instant::now();
+            let opts = SimOptions {
+                baud: 0,
+                ..SimOptions::default()
+            };
+            let mut d = SimDevice::new(cap, opts, t0).unwrap();
+            let frames = (transient::DEFAULT_SLICE_S * fs as f64).round() as u32;
+            assert_eq!(d.description().window, WindowSetting::AfterFront { frames });
+            let mut log = CommandLog::default();
+            let (_, b) = log
+                .encode(&Command::SetWindow(WindowSetting::Frames(fs / 10)))
+                .unwrap();
+            d.input(&b, t0);
+            assert_eq!(
+                d.description().window,
+                WindowSetting::AfterFront { frames: fs / 10 }
+            );
+        });
+    }
+
     /// Line noise, cut and mutated command frames, in random chunks: the device never
     /// panics, and replies only to frames whose CRC holds.
     #[test]

@@ -1251,6 +1251,33 @@ mod tests {
         encode(f, &mut buf).unwrap().to_vec()
     }
 
+    /// Frames of protocol version 1 are skipped and said so, once, with what to do.
+    #[test]
+    fn version_1_frames_are_refused_with_a_clear_message() {
+        let mut s = Session::new(SessionOptions {
+            ports: vec!["old".into()],
+            ..Default::default()
+        })
+        .unwrap();
+        // The version-1 Ack of the version-1 spec, three times (seq 305 each: repeats).
+        let v1 = [
+            0x0b, 0x01, 0x07, 0x30, 0xb1, 0x02, 0x29, 0x7e, 0x38, 0x8d, 0x8c, 0x00,
+        ];
+        let events = s.received(0, 1, &v1.repeat(3)).unwrap();
+        let lines: Vec<String> = events
+            .iter()
+            .filter_map(|e| describe_event(e, &["old".to_string()]))
+            .collect();
+        assert!(
+            lines[0].contains("protocol version 1 skipped: this build reads version 2"),
+            "{lines:?}"
+        );
+        let r = s.finish().unwrap();
+        let w = r.version_warnings();
+        assert_eq!(w.len(), 1);
+        assert!(w[0].contains("3 frame(s) of protocol version 1"), "{w:?}");
+    }
+
     /// A stream of frames with faults at the host: some frames dropped whole, some
     /// corrupted (a byte flipped), garbage inserted, one duplicated. No corrupted frame may
     /// be accepted, the lost count must equal the dropped plus corrupted frames (their

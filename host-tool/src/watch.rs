@@ -412,6 +412,12 @@ impl std::fmt::Display for WatchSummary {
                 d.bytes_discarded
             )?;
         }
+        for w in self.report.version_warnings() {
+            writeln!(f, "  {w}")?;
+        }
+        if !self.report.runs.is_empty() {
+            writeln!(f, "  runs started: {}", self.report.runs.len())?;
+        }
         if !self.report.link_gaps.is_empty() {
             writeln!(f, "  link lost {} time(s)", self.report.link_gaps.len())?;
         }
