@@ -73,8 +73,12 @@ timeout "$secs" "$qemu" -machine mps2-an386 -nographic -monitor none \
     "${serial[@]}" "${second_serial[@]}" -kernel "$elf"
 rc=$?
 if [ -n "$fifo_dir" ]; then
+    # The copier of the output ends at QEMU's end of file; give it 5 s at most (it would
+    # wait for ever if QEMU never opened the pipe).
     kill "$in_pid" 2>/dev/null
-    wait "$out_pid" 2>/dev/null
+    for _ in $(seq 50); do kill -0 "$out_pid" 2>/dev/null || break; sleep 0.1; done
+    kill "$out_pid" 2>/dev/null
+    wait 2>/dev/null
     rm -rf "$fifo_dir"
 fi
 if [ $rc -eq 124 ]; then
