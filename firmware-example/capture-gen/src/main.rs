@@ -875,7 +875,7 @@ fn verify_commands(args: &[String]) -> Result<(), String> {
     }
     let st = *dec.stats();
     eprintln!(
-        "verify-commands: {} frames, {} answers (expected {}), {describes} descriptions,          {runs} run starts, lost {}, crc failures {}",
+        "verify-commands: {} frames, {} answers (expected {}), {describes} descriptions, {runs} run starts, lost {}, crc failures {}",
         st.frames,
         got.len(),
         want.len(),
