@@ -5,10 +5,11 @@
 # when the run hits the time limit.
 #
 # Usage: bash scripts/firmware-run.sh [MODE] [options]
-#   MODE            run (default) | adc | overrun | measure | logger (see firmware-example/src/mps2.rs);
+#   MODE            run (default) | adc | overrun | measure | logger | commands (see firmware-example/src/mps2.rs);
 #                   logger builds the field-logger firmware (surge capture, station chain) and
 #                   writes the field log's flash image, sent out of UART1, to --log
 #   --uart PATH     UART0 to PATH (default target/firmware/uart-MODE.bin); `stdio` for stdout
+#   --uart-in PATH  UART0's receiver reads PATH (host commands; mode `commands`)
 #   --icount SHIFT  QEMU -icount shift: one instruction = 2^SHIFT ns (default 0: 1000 MIPS;
 #                   4 = 62.5 MIPS, a Cortex-M4F at 60-100 MHz, where this pipeline overruns)
 #   --timeout SEC   wall-clock limit (default 60)
@@ -19,24 +20,38 @@
 #                   logger mode: the flash image too (frothline-capture-gen verify-log)
 set -uo pipefail
 cd "$(dirname "$0")/.."
-mode=run uart="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
+mode=run uart="" uart_in="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
 while [ $# -gt 0 ]; do
     case "$1" in
-        run|adc|overrun|measure|logger) mode=$1 ;;
+        run|adc|overrun|measure|logger|commands) mode=$1 ;;
         --uart) uart=$2; shift ;;
+        --uart-in) uart_in=$2; shift ;;
         --icount) shift_=$2; shift ;;
         --timeout) secs=$2; shift ;;
         --features) features=$2; shift ;;
         --log) log=$2; shift ;;
         --verify) verify=1 ;;
-        -h|--help) sed -n '2,22p' "$0"; exit 0 ;;
+        -h|--help) sed -n '2,23p' "$0"; exit 0 ;;
         *) echo "firmware-run: unknown argument $1" >&2; exit 2 ;;
     esac
     shift
 done
 mkdir -p target/firmware
 [ -n "$uart" ] || uart=target/firmware/uart-$mode.bin
-if [ "$uart" = stdio ]; then serial=stdio; else serial=file:$uart; fi
+if [ "$uart" = stdio ]; then serial=(-serial stdio); else serial=(-serial "file:$uart"); fi
+fifo_dir=""
+if [ -n "$uart_in" ] && [ "$uart" != stdio ]; then
+    # A pipe chardev (QEMU 7 has no input file for a file chardev): QEMU reads UART0's
+    # input from FIFO.in and writes its output to FIFO.out; cat feeds the one from
+    # $uart_in and copies the other into $uart.
+    fifo_dir=$(mktemp -d)
+    mkfifo "$fifo_dir/uart.in" "$fifo_dir/uart.out"
+    cat "$fifo_dir/uart.out" > "$uart" &
+    out_pid=$!
+    cat "$uart_in" > "$fifo_dir/uart.in" &
+    in_pid=$!
+    serial=(-chardev "pipe,id=uart0,path=$fifo_dir/uart" -serial chardev:uart0)
+fi
 
 capture=firmware-example/capture
 second_serial=()
@@ -55,8 +70,17 @@ elf=firmware-example/target/thumbv7em-none-eabihf/release/frothline-firmware-exa
 timeout "$secs" "$qemu" -machine mps2-an386 -nographic -monitor none \
     -semihosting-config "enable=on,target=native,arg=$mode" \
     -icount "shift=$shift_,sleep=off" \
-    -serial "$serial" "${second_serial[@]}" -kernel "$elf"
+    "${serial[@]}" "${second_serial[@]}" -kernel "$elf"
 rc=$?
+if [ -n "$fifo_dir" ]; then
+    # The copier of the output ends at QEMU's end of file; give it 5 s at most (it would
+    # wait for ever if QEMU never opened the pipe).
+    kill "$in_pid" 2>/dev/null
+    for _ in $(seq 50); do kill -0 "$out_pid" 2>/dev/null || break; sleep 0.1; done
+    kill "$out_pid" 2>/dev/null
+    wait 2>/dev/null
+    rm -rf "$fifo_dir"
+fi
 if [ $rc -eq 124 ]; then
     echo "firmware-run: no exit within ${secs}s (killed)" >&2
     exit 124

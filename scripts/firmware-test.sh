@@ -14,6 +14,10 @@
 #            record; with the host: the UART frames and the flash image (sent out of UART1)
 #            checked against a host replay (verify-uart, verify-log)
 #   logbook  `frothline logbook` reads the image back into CSV (skipped with --no-host)
+#   commands host commands fed to UART0's receiver from a file (one of every answer of
+#            docs/wire-protocol.md section 8: repeats, already running, unknown kind,
+#            version, malformed, bad argument, busy, not running, an echo and line noise
+#            unanswered); every answer checked in order on the host (skipped with --no-host)
 # Prints "N passed, N failed" and exits non-zero on any failure.
 set -uo pipefail
 cd "$(dirname "$0")/.."
@@ -52,6 +56,14 @@ if [ $host -eq 1 ]; then
             && [ "$(wc -l < target/firmware/fieldlog-csv/windows.csv)" -gt 1 ]
     }
     check logbook logbook
+    commands() {
+        local gen=(cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml --)
+        "${gen[@]}" commands-in target/firmware/commands-in.bin \
+            && bash scripts/firmware-run.sh commands --icount 0 \
+                --uart target/firmware/uart-commands.bin --uart-in target/firmware/commands-in.bin \
+            && "${gen[@]}" verify-commands target/firmware/uart-commands.bin
+    }
+    check commands commands
 else
     check logger bash scripts/firmware-run.sh logger --icount 0
 fi

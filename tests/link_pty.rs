@@ -433,3 +433,106 @@ fn two_devices() {
         "rows of device 12 are prefixed"
     );
 }
+
+/// At 4800 Bd (480 bytes/s) a read returns a byte or a few: the archive gathers reads for
+/// `watch::GATHER` before it writes a chunk, so the archive stays within twice the bytes
+/// received (it was 20 times with a chunk per read).
+#[test]
+fn the_archive_at_4800_baud_is_at_most_twice_the_bytes_received() {
+    big_stack(archive_at_4800);
+}
+
+fn archive_at_4800() {
+    let tmp = tempfile::tempdir().unwrap();
+    let (capture, layout) = fixture();
+    let cap = SimCapture::from_files(&capture, &layout, window()).unwrap();
+    let (master, slave, path) = pty();
+    let sim_stop = Arc::new(AtomicBool::new(false));
+    let opts = SimOptions {
+        baud: 4800,
+        speed: 1.0,
+        autostart: true,
+        repeat: true,
+        ..sim_opts(1.0)
+    };
+    let sim = device_sim::spawn(cap, opts, master, sim_stop.clone()).unwrap();
+    let dir = tmp.path().join("slow");
+    let watch_opts = WatchOptions {
+        ports: vec![path],
+        baud: 4800,
+        dir: Some(dir.clone()),
+        layout: None,
+        layout_text: None,
+        ui: Ui::Silent,
+        duration: Some(Duration::from_secs(8)),
+        startup: vec![],
+        view: Default::default(),
+        wait_for_port: false,
+    };
+    let summary =
+        watch::run_with(watch_opts, Arc::new(AtomicBool::new(false)), &mut |_| {}).unwrap();
+    sim_stop.store(true, Ordering::Relaxed);
+    sim.join().unwrap().unwrap();
+    drop(slave);
+    let received = summary.report.ports[0].bytes;
+    let (archive, size) = summary.report.archive.clone().expect("an archive");
+    let ratio = size as f64 / received as f64;
+    println!(
+        "4800 Bd, 8 s: {received} bytes received, archive {} = {size} bytes, {ratio:.2} x",
+        archive.display()
+    );
+    assert!(received > 2500, "{received} bytes in 8 s at 480 B/s");
+    assert!(ratio <= 2.0, "archive {size} bytes for {received} received");
+    // The archive decodes to the frames the session decoded.
+    let rep = frothline_host::unpack::unpack_with(&archive, None, None, &mut |_| {}).unwrap();
+    assert_eq!(rep.session.frames(), summary.report.frames());
+    assert!(rep.damage.is_empty());
+}
+
+/// Two watch sessions started in the same second into one folder: two archives (the
+/// second named `-2`), and the second's CSV files in a subfolder named after its archive,
+/// so neither overwrites the other's windows.csv.
+#[test]
+fn two_sessions_in_one_folder_in_the_same_second_share_nothing() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("shared");
+    let (_m1, _s1, p1) = pty();
+    let (_m2, _s2, p2) = pty();
+    let session = |port: String, dir: PathBuf| {
+        std::thread::spawn(move || {
+            let opts = WatchOptions {
+                ports: vec![port],
+                baud: 115_200,
+                dir: Some(dir),
+                layout: None,
+                layout_text: None,
+                ui: Ui::Silent,
+                duration: Some(Duration::from_millis(1500)),
+                startup: vec![],
+                view: Default::default(),
+                wait_for_port: false,
+            };
+            watch::run_with(opts, Arc::new(AtomicBool::new(false)), &mut |_| {}).unwrap()
+        })
+    };
+    let a = session(p1, dir.clone());
+    std::thread::sleep(Duration::from_millis(100));
+    let b = session(p2, dir.clone());
+    let (a, b) = (a.join().unwrap(), b.join().unwrap());
+    let (pa, pb) = (a.report.archive.unwrap().0, b.report.archive.unwrap().0);
+    assert_ne!(pa, pb);
+    let (ca, cb) = (a.report.files[0].clone(), b.report.files[0].clone());
+    assert_eq!(
+        ca,
+        dir.join("windows.csv"),
+        "the first session holds the folder"
+    );
+    let stem = pb.file_stem().unwrap();
+    assert_eq!(cb, dir.join(stem).join("windows.csv"));
+    assert!(stem.to_string_lossy().ends_with("-2") || pa.file_stem() != pb.file_stem());
+    assert!(ca.exists() && cb.exists());
+    assert!(
+        !dir.join(watch::LOCK_FILE).exists(),
+        "the lock goes with its session"
+    );
+}

@@ -354,6 +354,7 @@ fn health_frame(seq: u16) -> Vec<u8> {
             saturated_samples: 0,
             tips_stuck: 0,
             buffer_high_water: 0,
+            windows_dropped: 0,
             frames_dropped: 0,
             uptime_frames: seq as u64,
         }),

@@ -8,8 +8,8 @@
 use frothline_core::wire::{
     self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, Decoder,
     DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, Nack, NackReason,
-    ProbeLayout, ProfileFit, Relearn, SeqCheck, StartRun, Streamer, StreamerConfig, TrailingTip,
-    WindowResult, WindowSetting, Windows, LABEL_BYTES, MAX_FRAME_BYTES, MAX_PROBES,
+    ProbeLayout, ProfileFit, Relearn, RunStart, SeqCheck, StartRun, Streamer, StreamerConfig,
+    TrailingTip, WindowResult, WindowSetting, Windows, LABEL_BYTES, MAX_FRAME_BYTES, MAX_PROBES,
     MAX_WINDOWS_PER_FRAME,
 };
 use proptest::prelude::*;
@@ -102,7 +102,7 @@ fn sample_frames() -> Vec<Frame> {
         body,
     };
     let host = |seq: u16, body: Body| Frame {
-        device: 0,
+        device: wire::HOST_ID,
         seq,
         body,
     };
@@ -204,23 +204,35 @@ fn sample_frames() -> Vec<Frame> {
                 saturated_samples: 12,
                 tips_stuck: 0b100,
                 buffer_high_water: 512,
-                frames_dropped: 3,
+                windows_dropped: 3,
+                frames_dropped: 1,
                 uptime_frames: 1_200_000,
+            }),
+        ),
+        dev(
+            305,
+            Body::RunStart(RunStart {
+                run: 2,
+                label: label("run-07"),
+                uptime_frames: 1_200_000,
+                // 2026-12-02T07:00:00Z
+                utc_ms: Some(1_796_194_800_000),
             }),
         ),
         host(
             1,
             Body::StartRun(StartRun {
                 label: label("run-07"),
+                utc_ms: Some(1_796_194_800_000),
             }),
         ),
         host(2, Body::StopRun),
         host(3, Body::SetWindow(WindowSetting::Frames(1000))),
         host(4, Body::Relearn(Relearn { probes: 0b11 })),
         host(5, Body::DescribeRequest),
-        dev(305, Body::Ack(Ack { seq: 41 })),
+        dev(306, Body::Ack(Ack { seq: 41 })),
         dev(
-            306,
+            307,
             Body::Nack(Nack {
                 seq: 42,
                 reason: NackReason::Busy,
@@ -311,11 +323,19 @@ fn largest_frames() -> Vec<Frame> {
             saturated_samples: u64::MAX,
             tips_stuck: u64::MAX,
             buffer_high_water: u32::MAX,
+            windows_dropped: u32::MAX,
             frames_dropped: u32::MAX,
             uptime_frames: u64::MAX,
         })),
+        f(Body::RunStart(RunStart {
+            run: u32::MAX,
+            label: full(LABEL_BYTES),
+            uptime_frames: u64::MAX,
+            utc_ms: Some(u64::MAX),
+        })),
         f(Body::StartRun(StartRun {
             label: full(LABEL_BYTES),
+            utc_ms: Some(u64::MAX),
         })),
         f(Body::StopRun),
         f(Body::SetWindow(WindowSetting::Bubbles {
@@ -416,20 +436,23 @@ fn ref_parse(frame: &[u8]) -> (u8, u16, u8, u16, Vec<u8>) {
 /// Expected encodings of `sample_frames()`, in order. Produced once by the encoder and
 /// checked by hand against docs/wire-protocol.md (the Ack frame byte by byte, see
 /// `golden_ack_by_hand`) and by the reference decoder above.
-const GOLDEN: [(Kind, &str); 12] = [
-    (Kind::Describe, "18010701ac0208666c2d302e312e3080dac4090301e8070201070101d804f00103010209f403b71721e27d5500"),
-    (Kind::Windows, "07010702ad02021cc0b802e807c413904e0501b009cc089003b410018827884001dc0b0701c0b802e8070101010106013e89d02c00"),
-    (Kind::Front, "07010703ae020108c0c4074358c72100"),
-    (Kind::Profile, "06010704af0215a08d06d00f0601d20601cc2101e50301cc080178056df23e4500"),
-    (Kind::Health, "06010705b0020d0c04800403809f498c1f93b000"),
-    (Kind::StartRun, "02010e20010672756e2d303721dccd7c00"),
-    (Kind::StopRun, "0201072102b6cc69fb00"),
-    (Kind::SetWindow, "02010a220301e8073081ae9b00"),
-    (Kind::Relearn, "020108230403aab22c3c00"),
-    (Kind::DescribeRequest, "020107240550ad7a1800"),
-    (Kind::Ack, "0b010730b102297e388d8c00"),
-    (Kind::Nack, "0c010731b2022a03a9bac2f800"),
-];
+/// The golden vectors of `sample_frames()`, in order, from `golden_v2.txt`. Produced once
+/// by the encoder and checked by hand against docs/wire-protocol.md (the Ack frame byte by
+/// byte, see `golden_ack_by_hand`) and by the reference decoder above.
+fn golden() -> Vec<(Kind, &'static str)> {
+    include_str!("golden_v2.txt")
+        .lines()
+        .filter_map(|l| l.strip_prefix("frame "))
+        .map(|l| {
+            let (name, hex) = l.split_once(' ').unwrap();
+            let kind = Kind::ALL
+                .into_iter()
+                .find(|k| format!("{k:?}") == name)
+                .unwrap_or_else(|| panic!("kind {name}"));
+            (kind, hex)
+        })
+        .collect()
+}
 
 #[test]
 fn print_encodings() {
@@ -445,9 +468,10 @@ fn print_encodings() {
 #[test]
 fn golden_vectors_for_every_kind() {
     let frames = sample_frames();
-    assert_eq!(frames.len(), GOLDEN.len());
+    let golden = golden();
+    assert_eq!(frames.len(), golden.len());
     let mut kinds = BTreeSet::new();
-    for (f, (kind, want)) in frames.iter().zip(GOLDEN) {
+    for (f, (kind, want)) in frames.iter().zip(golden) {
         assert_eq!(f.body.kind(), kind);
         kinds.insert(kind.code());
         let got = enc(f);
@@ -465,12 +489,12 @@ fn golden_vectors_for_every_kind() {
 
 #[test]
 fn golden_ack_by_hand() {
-    // Ack { seq: 41 } from device 7, sequence number 305:
-    //   version 01 | device 7 -> varint 07 | kind Ack 30 | seq 305 = 0x131 -> varint b1 02
+    // Ack { seq: 41 } from device 7, sequence number 306:
+    //   version 02 | device 7 -> varint 07 | kind Ack 30 | seq 306 = 0x132 -> varint b2 02
     //   | body: Ack.seq 41 -> varint 29
-    // CRC-32/ISO-HDLC of those 6 bytes = 0x8c8d387e (zlib.crc32 agrees) -> 7e 38 8d 8c.
-    let payload = [0x01, 0x07, 0x30, 0xB1, 0x02, 0x29];
-    assert_eq!(ref_crc32(&payload), 0x8C8D_387E);
+    // CRC-32/ISO-HDLC of those 6 bytes = 0x085ff489 (zlib.crc32 agrees) -> 89 f4 5f 08.
+    let payload = [0x02, 0x07, 0x30, 0xB2, 0x02, 0x29];
+    assert_eq!(ref_crc32(&payload), 0x085F_F489);
     let crc = ref_crc32(&payload);
     assert_eq!(crc, crc32(&payload));
     // No zero byte in payload ++ crc here, so COBS is one block: length+1, the bytes, 00.
@@ -480,14 +504,14 @@ fn golden_ack_by_hand() {
     let mut want = vec![data.len() as u8 + 1];
     want.extend_from_slice(&data);
     want.push(0);
-    assert_eq!(hex(&want), "0b010730b102297e388d8c00");
+    assert_eq!(hex(&want), "0b020730b2022989f45f0800");
     let f = Frame {
         device: 7,
-        seq: 305,
+        seq: 306,
         body: Body::Ack(Ack { seq: 41 }),
     };
     assert_eq!(enc(&f), want);
-    assert_eq!(hex(&want), GOLDEN[10].1);
+    assert_eq!(hex(&want), golden()[11].1);
 }
 
 /// The worked example of docs/wire-protocol.md, byte for byte.
@@ -503,13 +527,13 @@ fn doc_worked_example() {
         seq: 301,
         body: Body::Windows(w),
     };
-    let want = "07010702ad02011cc0b802e807c413904e0501b009cc089003b410018827884001dc0b\
-                057650ea9400";
+    let want = "07020702ad02011cc0b802e807c413904e0501b009cc089003b410018827884001dc0b\
+                056f6e391f00";
     assert_eq!(hex(&enc(&f)), want);
     let payload = unhex(
-        "010702ad0201 00 c0b802 e807 c413 904e 05 01 b009 cc08 9003 b410 01 8827 8840 01 dc0b 00",
+        "020702ad0201 00 c0b802 e807 c413 904e 05 01 b009 cc08 9003 b410 01 8827 8840 01 dc0b 00",
     );
-    assert_eq!(crc32(&payload), 0x94EA_5076);
+    assert_eq!(crc32(&payload), 0x1F39_6E6F);
     let mut b = unhex(want);
     assert_eq!(decode(&mut b), Ok(f));
 }
@@ -522,11 +546,18 @@ fn body_layouts_follow_the_spec() {
     // Front: probe u8, station u8, frame varint 123456 = c0 c4 07.
     assert_eq!(body(2), vec![0x01, 0x00, 0xC0, 0xC4, 0x07]);
     // SetWindow Frames(1000): variant index 1, then varint 1000 = e8 07.
-    assert_eq!(body(7), vec![0x01, 0xE8, 0x07]);
+    assert_eq!(body(8), vec![0x01, 0xE8, 0x07]);
     // StopRun: empty body.
-    assert_eq!(body(6), Vec::<u8>::new());
+    assert_eq!(body(7), Vec::<u8>::new());
     // Nack: seq 42, reason Busy = 3.
-    assert_eq!(body(11), vec![0x2A, 0x03]);
+    assert_eq!(body(12), vec![0x2A, 0x03]);
+    // RunStart: run 2, label "run-07" (len 6), uptime 1200000 = 80 9f 49, Some(utc).
+    let r = body(5);
+    assert_eq!(&r[..11], b"\x02\x06run-07\x80\x9f\x49");
+    assert_eq!(r[11], 0x01);
+    // Health: ..., windows_dropped 3, frames_dropped 1, uptime 1200000.
+    let h = body(4);
+    assert_eq!(&h[h.len() - 5..], &[0x03, 0x01, 0x80, 0x9F, 0x49]);
     // Windows, second entry: probe 1, start 40000 = c0 b8 02, frames 1000 = e8 07, C 0,
     // rate 0, bubbles 0, chords None, correlation None, flags 1.
     let w = body(1);
@@ -602,38 +633,65 @@ fn unknown_kind_and_version_are_reported_with_their_header() {
         }
         other => panic!("{other:?}"),
     }
-    let mut v2 = vec![2u8, 0x05, 0x02, 0x0A];
-    v2.extend_from_slice(&crc32(&v2).to_le_bytes());
-    let mut cobs = vec![v2.len() as u8 + 1];
-    cobs.extend_from_slice(&v2);
+    // A version-1 frame (the Ack of the version-1 spec's golden vectors) is refused with
+    // its header: a version-2 decoder does not read version 1.
+    let mut v1 = unhex("0b010730b102297e388d8c00");
+    assert_eq!(
+        decode(&mut v1.clone()).map_err(|e| e.to_string()),
+        Err(
+            "frame of protocol version 1 from device 7: this build reads version 2 only \
+             (update the device's firmware or the host tool so both speak the same version)"
+                .to_string()
+        )
+    );
+    let mut v3 = vec![3u8, 0x05, 0x02, 0x0A];
+    v3.extend_from_slice(&crc32(&v3).to_le_bytes());
+    let mut cobs = vec![v3.len() as u8 + 1];
+    cobs.extend_from_slice(&v3);
     cobs.push(0);
     match dec.feed(&cobs) {
         FeedResult::Unsupported { header, seq, .. } => {
-            assert_eq!(header.version, 2);
+            assert_eq!(header.version, 3);
             assert_eq!(seq, SeqCheck::InOrder);
         }
         other => panic!("{other:?}"),
     }
-    assert_eq!(dec.stats().unsupported, 2);
+    assert!(matches!(dec.feed(&v1), FeedResult::Unsupported { .. }));
+    v1.clear();
+    assert_eq!(dec.stats().unsupported, 3);
+    assert_eq!(dec.stats().other_version, 2);
+    assert_eq!(dec.stats().last_other_version, 1);
 }
 
 #[test]
 fn trailing_bytes_and_bad_fields_are_malformed() {
     // Append a byte to the body and fix the CRC: the CRC passes, the payload has a tail.
-    let payload = [0x01, 0x07, 0x30, 0xAC, 0x02, 0x29, 0x00];
+    let payload = [0x02, 0x07, 0x30, 0xAC, 0x02, 0x29, 0x00];
     let mut d = payload.to_vec();
     d.extend_from_slice(&crc32(&payload).to_le_bytes());
     assert_eq!(wire::decode_unstuffed(&d), Err(wire::WireError::Malformed));
     // A WindowSetting variant index 9 does not exist.
-    let payload = [0x01, 0x07, 0x22, 0x01, 0x09];
+    let payload = [0x02, 0x07, 0x22, 0x01, 0x09];
     let mut d = payload.to_vec();
     d.extend_from_slice(&crc32(&payload).to_le_bytes());
     assert_eq!(wire::decode_unstuffed(&d), Err(wire::WireError::Malformed));
     // A firmware string longer than 16 bytes.
-    let mut payload = vec![0x01, 0x07, 0x01, 0x01, 17];
+    let mut payload = vec![0x02, 0x07, 0x01, 0x01, 17];
     payload.extend_from_slice(&[b'a'; 17]);
     payload.extend_from_slice(&[0x01, 0x01, 0x00, 0x00]);
     let mut d = payload.clone();
+    d.extend_from_slice(&crc32(&payload).to_le_bytes());
+    assert_eq!(wire::decode_unstuffed(&d), Err(wire::WireError::Malformed));
+    // A run label of 17 bytes.
+    let mut payload = vec![0x02, 0xFF, 0xFF, 0x03, 0x20, 0x01, 17];
+    payload.extend_from_slice(&[b'a'; 17]);
+    payload.push(0x00);
+    let mut d = payload.clone();
+    d.extend_from_slice(&crc32(&payload).to_le_bytes());
+    assert_eq!(wire::decode_unstuffed(&d), Err(wire::WireError::Malformed));
+    // A u16 varint that overflows its type: seq = ff ff 07 (0x1fffff).
+    let payload = [0x02, 0x07, 0x30, 0xFF, 0xFF, 0x07, 0x29];
+    let mut d = payload.to_vec();
     d.extend_from_slice(&crc32(&payload).to_le_bytes());
     assert_eq!(wire::decode_unstuffed(&d), Err(wire::WireError::Malformed));
 }
@@ -718,7 +776,8 @@ fn garbage_without_delimiter_costs_exactly_the_next_frame() {
     assert_eq!(got[1].0, frames[2]);
     assert_eq!(got[1].1, SeqCheck::Gap(1));
     assert_eq!(dec.stats().lost, 1);
-    assert_eq!(dec.stats().crc_failures + dec.stats().malformed, 1);
+    let st = dec.stats();
+    assert_eq!(st.crc_failures + st.malformed + st.bad_framing, 1);
 }
 
 // ---------------------------------------------------------------------------------------
@@ -927,6 +986,7 @@ fn arb_setting() -> impl Strategy<Value = WindowSetting> {
                 probe,
                 max_frames
             }),
+        any::<u32>().prop_map(|frames| WindowSetting::AfterFront { frames }),
     ]
 }
 
@@ -1002,17 +1062,34 @@ fn arb_body() -> impl Strategy<Value = Body> {
             any::<u64>(),
             any::<u32>(),
             any::<u32>(),
+            any::<u32>(),
             any::<u64>()
         )
-            .prop_map(|(a, b, c, d, e, f)| Body::Health(Health {
+            .prop_map(|(a, b, c, d, e, g, f)| Body::Health(Health {
                 samples_dropped: a,
                 saturated_samples: b,
                 tips_stuck: c,
                 buffer_high_water: d,
-                frames_dropped: e,
+                windows_dropped: e,
+                frames_dropped: g,
                 uptime_frames: f,
             })),
-        arb_label().prop_map(|label| Body::StartRun(StartRun { label })),
+        (
+            any::<u32>(),
+            arb_label(),
+            any::<u64>(),
+            proptest::option::of(any::<u64>())
+        )
+            .prop_map(
+                |(run, label, uptime_frames, utc_ms)| Body::RunStart(RunStart {
+                    run,
+                    label,
+                    uptime_frames,
+                    utc_ms
+                })
+            ),
+        (arb_label(), proptest::option::of(any::<u64>()))
+            .prop_map(|(label, utc_ms)| Body::StartRun(StartRun { label, utc_ms })),
         Just(Body::StopRun),
         arb_setting().prop_map(Body::SetWindow),
         any::<u32>().prop_map(|probes| Body::Relearn(Relearn { probes })),
@@ -1231,13 +1308,15 @@ fn streamer_keeps_up_with_8_probes_at_20_windows_per_second_on_115200() {
         100.0 * load,
         s.stats()
     );
-    assert_eq!(s.stats().dropped(), 0);
+    assert_eq!(s.stats().windows_dropped, 0);
     assert_eq!(dec.stats().lost, 0);
     assert_eq!(s.stats().windows_sent, 8 * 20 * 30);
     assert!(load <= 0.5, "load {load}");
-    // The front offered at t = 0 is urgent and goes first, the description right after.
-    assert!(matches!(host[0].body, Body::Front(_)));
-    assert!(matches!(host[1].body, Body::Describe(_)));
+    // The description is the first frame (the power-on marker), then the front offered at
+    // t = 0 (urgent) before any result.
+    assert!(matches!(host[0].body, Body::Describe(_)));
+    assert_eq!(host[0].seq, 0);
+    assert!(matches!(host[1].body, Body::Front(_)));
     let healths = host
         .iter()
         .filter(|f| matches!(f.body, Body::Health(_)))
@@ -1264,9 +1343,9 @@ fn streamer_overloaded_drops_oldest_windows_and_says_so() {
     assert!(healths.len() >= 9, "{}", healths.len());
     assert!(healths
         .windows(2)
-        .all(|w| w[0].frames_dropped <= w[1].frames_dropped));
-    let reported = healths.last().unwrap().frames_dropped;
-    assert!(reported > 0 && reported <= st.dropped());
+        .all(|w| w[0].windows_dropped <= w[1].windows_dropped));
+    let reported = healths.last().unwrap().windows_dropped;
+    assert!(reported > 0 && reported <= st.windows_dropped);
     let fronts = host
         .iter()
         .filter(|f| matches!(f.body, Body::Front(_)))
@@ -1393,4 +1472,86 @@ fn soak_decoder_with_random_inputs() {
          no panic, in {:.2} s",
         dt.as_secs_f64()
     );
+}
+
+// ---------------------------------------------------------------------------------------
+// The sequence state machine of docs/wire-protocol.md section 9
+// ---------------------------------------------------------------------------------------
+
+fn seq_frame(seq: u16, describe: bool) -> Vec<u8> {
+    let body = if describe {
+        sample_frames()[0].body.clone()
+    } else {
+        Body::Ack(Ack { seq: 1 })
+    };
+    enc(&Frame {
+        device: 9,
+        seq,
+        body,
+    })
+}
+
+fn checks(dec: &mut Decoder, seqs: &[(u16, bool)]) -> Vec<SeqCheck> {
+    let mut bytes = Vec::new();
+    for &(s, d) in seqs {
+        bytes.extend_from_slice(&seq_frame(s, d));
+    }
+    feed_all(dec, &bytes, &[1000])
+        .into_iter()
+        .map(|(_, c)| c)
+        .collect()
+}
+
+#[test]
+fn a_power_on_describe_restarts_the_numbering_from_any_number() {
+    // A device at 40000 restarts: its first frame is a Describe with seq 0. Read as a gap
+    // it would be 25535 frames lost; the state machine calls it a restart.
+    let mut dec: Decoder = Decoder::new();
+    let got = checks(
+        &mut dec,
+        &[(39_999, false), (40_000, false), (0, true), (1, false)],
+    );
+    assert_eq!(
+        got,
+        [
+            SeqCheck::First,
+            SeqCheck::InOrder,
+            SeqCheck::Restarted,
+            SeqCheck::InOrder
+        ]
+    );
+    assert_eq!(
+        (dec.stats().lost, dec.stats().restarts, dec.stats().stale),
+        (0, 1, 0)
+    );
+}
+
+#[test]
+fn a_far_jump_is_held_in_doubt_until_the_next_frame() {
+    let mut dec: Decoder = Decoder::new();
+    // A stray far ahead (d = 9999 >= MAX_GAP), then the old numbering goes on: one stale.
+    let got = checks(&mut dec, &[(100, false), (10_100, false), (101, false)]);
+    assert_eq!(got, [SeqCheck::First, SeqCheck::Stale, SeqCheck::InOrder]);
+    assert_eq!(
+        (dec.stats().lost, dec.stats().stale, dec.stats().restarts),
+        (0, 1, 0)
+    );
+    // A jump followed by its successor: the sender restarted (no loss counted), and the
+    // first of the two is no longer counted stale. Across the wrap: 65535 then 0.
+    let got = checks(&mut dec, &[(65_535, false), (0, false), (1, false)]);
+    assert_eq!(
+        got,
+        [SeqCheck::Stale, SeqCheck::Restarted, SeqCheck::InOrder]
+    );
+    assert_eq!(
+        (dec.stats().lost, dec.stats().stale, dec.stats().restarts),
+        (0, 1, 1)
+    );
+    // Below MAX_GAP a jump is loss.
+    let got = checks(&mut dec, &[(4_096, false)]);
+    assert_eq!(got, [SeqCheck::Gap(4094)]);
+    assert_eq!(wire::decoder::MAX_GAP, 4096);
+    // A repeat is a duplicate and leaves the state alone.
+    let got = checks(&mut dec, &[(4_096, false), (4_097, false)]);
+    assert_eq!(got, [SeqCheck::Duplicate, SeqCheck::InOrder]);
 }

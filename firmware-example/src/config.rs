@@ -16,8 +16,13 @@ pub const BLOCK_FRAMES: usize = 128;
 pub const BLOCK_SAMPLES: usize = BLOCK_FRAMES * MAX_CHANNELS;
 /// Acquisition blocks: two (double buffering: one filling, one being processed).
 pub const BLOCKS: usize = 2;
-/// Window results the wire streamer can hold while the link is busy (two windows' worth).
-pub const STREAM_WINDOWS: usize = 2 * PROBES;
+/// Window results the wire streamer can hold while the link is busy: a window's worth and
+/// half another. The main loop pumps the link after every block (6.4 ms, 590 bytes of
+/// link budget at the baud rate, 1024 bytes of burst), and a block closes at most one
+/// window per probe, so the queue empties faster than it fills (every firmware check
+/// verifies that no result was dropped). 12 rather than 16 makes room in the 64 KiB
+/// budget for the command responder and the version-2 frames.
+pub const STREAM_WINDOWS: usize = PROBES + PROBES / 2;
 /// The device id written into every wire frame.
 pub const DEVICE_ID: u16 = 0x0F1E;
 /// The link's baud rate (8N1): the streamer's byte budget. 921 600 baud = 92 kB/s, about

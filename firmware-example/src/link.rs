@@ -11,8 +11,8 @@ use crate::capture;
 use crate::config::{FwRecord, BAUD, DEVICE_ID, STREAM_WINDOWS};
 use embedded_io::Write;
 use frothline_core::wire::{
-    quant, Body, DeviceDescription, FrontArrival, Health, ProfileFit, Streamer, StreamerConfig,
-    WindowResult, WindowSetting,
+    quant, Body, DeviceDescription, FrontArrival, Health, ProfileFit, Reply, RunStart, Streamer,
+    StreamerConfig, WindowResult, WindowSetting,
 };
 
 /// Firmware version, as the device description carries it.
@@ -66,6 +66,27 @@ impl<W: Write> Link<W> {
     /// Queue a profile fit (station chains).
     pub fn profile(&mut self, p: ProfileFit) {
         self.streamer.offer(Body::Profile(p));
+    }
+
+    /// Queue a run start (urgent: it goes before the run's results and the Ack of the
+    /// command that started it).
+    pub fn run_start(&mut self, r: RunStart) {
+        self.streamer.offer(Body::RunStart(r));
+    }
+
+    /// Queue the answer to a host command (urgent).
+    pub fn reply(&mut self, r: Reply) {
+        self.streamer.offer(r.body());
+    }
+
+    /// Free places for urgent frames (answers, run starts).
+    pub fn urgent_room(&self) -> usize {
+        self.streamer.urgent_room()
+    }
+
+    /// The byte port itself (its receiver carries the host's commands).
+    pub fn port(&mut self) -> &mut W {
+        &mut self.tx
     }
 
     /// Queue a health frame (replaces one not yet sent: its counters are cumulative).

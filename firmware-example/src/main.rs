@@ -33,6 +33,7 @@ compile_error!("choose a board: feature `emulated-mps2` (the default) or `board-
 pub mod acquire;
 pub mod adc;
 pub mod capture;
+pub mod commands;
 pub mod config;
 #[cfg(feature = "self-check")]
 pub mod digest;

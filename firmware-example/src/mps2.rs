@@ -14,6 +14,15 @@
 //!   with whole blocks, so the chain's share can be timed alone (see
 //!   scripts/firmware-measure.sh). Passes on the same condition as `run`.
 //!
+//! - `commands`: `run`, reading host commands from UART0's receiver and answering them
+//!   through the core's responder ([`crate::commands`]) until a StopRun ends the run; then
+//!   it goes on answering until the receiver has been quiet for 20 ms. Passes when a
+//!   StopRun ended the run and the link dropped nothing; `scripts/firmware-test.sh` feeds
+//!   the commands from a file and checks every answer on the host
+//!   (`frothline-capture-gen commands-in` / `verify-commands`).
+//! - Every mode answers host commands the same way while it runs (none arrive in the
+//!   other checks).
+//!
 //! - `logger` (field-logger build only, `--features field-logger`: the surge capture and a
 //!   station chain): `run`, and every result also goes to the field logger
 //!   ([`crate::field_log`]): armed from the start, a pre-trigger ring before the front, the
@@ -69,6 +78,7 @@ enum Mode {
     Overrun,
     Measure,
     Logger,
+    Commands,
 }
 
 impl Mode {
@@ -83,6 +93,7 @@ impl Mode {
             Some("overrun") => Some(Mode::Overrun),
             Some("measure") => Some(Mode::Measure),
             Some("logger") => Some(Mode::Logger),
+            Some("commands") => Some(Mode::Commands),
             Some(_) if words == 1 => Some(Mode::Run),
             Some(_) => None,
         }
@@ -95,6 +106,7 @@ impl Mode {
             Mode::Overrun => "overrun",
             Mode::Measure => "measure",
             Mode::Logger => "logger",
+            Mode::Commands => "commands",
         }
     }
 }
@@ -171,7 +183,7 @@ fn main() -> ! {
         Some(mode) => run(mode),
         None => {
             report!(
-                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger",
+                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands",
                 arg
             );
             false
@@ -248,9 +260,10 @@ fn run(mode: Mode) -> bool {
 
     let t_start = pipe.clock().now();
     if mode == Mode::Measure {
-        while !pipe.done() {
+        while !pipe.done() && !pipe.stopped() {
             acq.tick();
             while pipe.step() {}
+            pipe.serve_commands(COMMAND_BYTES_PER_LOOP);
         }
     } else {
         critical_section::with(|cs| HANDOFF.borrow_ref_mut(cs).replace(acq));
@@ -263,7 +276,8 @@ fn run(mode: Mode) -> bool {
         syst.clear_current();
         syst.enable_interrupt();
         syst.enable_counter();
-        while !pipe.done() {
+        while !pipe.done() && !pipe.stopped() {
+            pipe.serve_commands(COMMAND_BYTES_PER_LOOP);
             if pipe.step() {
                 continue;
             }
@@ -281,7 +295,13 @@ fn run(mode: Mode) -> bool {
         syst.disable_interrupt();
         syst.disable_counter();
     }
+    if !pipe.stopped() {
+        pipe.run_over();
+    }
     pipe.finish();
+    if mode == Mode::Commands {
+        answer_until_quiet(&mut pipe);
+    }
     let total = pipe.clock().now().wrapping_sub(t_start) as u64;
     let stack_run = sys::stack_high_water();
     let pass = end_of_run(mode, pipe, total, stack_init, stack_run);
@@ -292,6 +312,29 @@ fn run(mode: Mode) -> bool {
     };
     report!("fw.verdict {}", if pass { "pass" } else { "FAIL" });
     pass
+}
+
+/// Command bytes read per pass of the main loop (bounded work: a pass also runs at every
+/// sample tick, so the receiver is read far faster than a UART fills it in emulation; a
+/// real board would take its commands by interrupt or DMA).
+const COMMAND_BYTES_PER_LOOP: usize = 8;
+
+/// After the run (mode `commands`): keep answering until the receiver has been quiet for
+/// 20 ms of the board's clock, sending each answer.
+#[inline(never)]
+fn answer_until_quiet(pipe: &mut Pipeline<'_, CmsdkUart, CmsdkTimer>) {
+    const QUIET_TICKS: u32 = PCLK_HZ / 50;
+    let mut now = pipe.sample_clock();
+    let mut last = pipe.clock().now();
+    loop {
+        if pipe.serve_commands(COMMAND_BYTES_PER_LOOP) > 0 {
+            last = pipe.clock().now();
+            now = pipe.drain_link(now);
+        } else if pipe.clock().now().wrapping_sub(last) > QUIET_TICKS {
+            break;
+        }
+    }
+    pipe.drain_link(now);
 }
 
 /// The acquisition of `mode`, built in place in a static (not on the stack of [`run`],
@@ -594,9 +637,21 @@ fn summary<W: embedded_io::Write, C: Clock>(
         pipe.link().write_errors(),
         h.samples_dropped
     );
+    let c = pipe.commands();
+    report!(
+        "fw.commands executed={} repeats={} acks={} nacks={} unreadable={} not_from_host={} stopped={}",
+        c.executed,
+        c.repeats,
+        c.acks,
+        c.nacks,
+        c.unreadable,
+        c.not_from_host,
+        pipe.stopped()
+    );
     let clean = pipe.link().write_errors() == 0 && st.windows_dropped == 0;
     match mode {
         Mode::Overrun => dropped > 0 && h.samples_dropped > 0 && clean,
+        Mode::Commands => pipe.stopped() && clean,
         _ => matches && dropped == 0 && clean,
     }
 }

@@ -4,13 +4,14 @@
 //! UART and a clock, and call [`Pipeline::step`] from their main loop.
 
 use crate::acquire::{Block, Clock, Filled, HEALTH};
+use crate::commands::{FwTarget, RunState};
 use crate::config::{FwChain, FwRecord, BLOCK_FRAMES, PROBES};
 #[cfg(feature = "self-check")]
 use crate::digest::Digest;
 use crate::link::Link;
 use core::sync::atomic::Ordering;
-use embedded_io::Write;
-use frothline_core::wire::{FrontArrival, Health, ProfileFit, WindowResult};
+use embedded_io::{Read, ReadReady, Write};
+use frothline_core::wire::{FrontArrival, Health, ProfileFit, Responder, RunStart, WindowResult};
 use frothline_core::{Flags, FrontRecord};
 use heapless::spsc::{Consumer, Producer};
 
@@ -69,6 +70,9 @@ pub struct Pipeline<'t, W: 'static, C> {
     stuck: u64,
     /// The channels of each probe's tips (leading, trailing), for the stuck-tip bits.
     tip_channels: [Option<(u8, Option<u8>)>; PROBES],
+    /// Host commands: the core's responder, and the run they act on.
+    responder: Responder,
+    run: RunState,
 }
 
 impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
@@ -104,6 +108,8 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             saturated: 0,
             stuck: 0,
             tip_channels,
+            responder: Responder::new(),
+            run: RunState::started(),
         }
     }
 
@@ -122,7 +128,33 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
     #[inline(never)]
     pub fn start(&mut self) {
         self.link.describe();
+        self.link.run_start(RunStart {
+            run: 1,
+            label: heapless::String::new(),
+            uptime_frames: 0,
+            utc_ms: None,
+        });
         self.link.pump(0);
+    }
+
+    /// True once a StopRun command ended the run.
+    pub fn stopped(&self) -> bool {
+        self.run.stop
+    }
+
+    /// The run ended by itself (the capture is over): StopRun is `not_running` from here.
+    pub fn run_over(&mut self) {
+        self.run.running = false;
+    }
+
+    /// Send what is queued, letting the clock run on from `now` (after the run).
+    pub fn drain_link(&mut self, now: u64) -> u64 {
+        self.link.drain(now)
+    }
+
+    /// The responder's counters.
+    pub fn commands(&self) -> &frothline_core::wire::ResponderStats {
+        self.responder.stats()
     }
 
     /// True when a full block waits.
@@ -249,6 +281,7 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             tips_stuck: self.stuck,
             buffer_high_water: HEALTH.queue_high_water.load(Ordering::Relaxed)
                 * (BLOCK_FRAMES * self.channels) as u32,
+            windows_dropped: 0,
             frames_dropped: 0,
             uptime_frames: self.sample_clock(),
         }
@@ -273,6 +306,37 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
     /// The link.
     pub fn link(&self) -> &Link<W> {
         self.link
+    }
+}
+
+impl<W: Write + Read + ReadReady + 'static, C: Clock> Pipeline<'_, W, C> {
+    /// Answer the host's commands waiting in the port's receiver, at most `max_bytes`
+    /// bytes per call (bounded work in the main loop); returns the bytes read. Bytes are
+    /// read only while the link has room for an answer and a run start (further commands
+    /// wait in the receiver), and the link is pumped after each answer.
+    pub fn serve_commands(&mut self, max_bytes: usize) -> usize {
+        let mut n = 0;
+        while n < max_bytes && self.link.urgent_room() >= 2 {
+            let port = self.link.port();
+            if !port.read_ready().unwrap_or(false) {
+                break;
+            }
+            let mut b = [0u8; 1];
+            if !matches!(port.read(&mut b), Ok(1)) {
+                break;
+            }
+            n += 1;
+            let mut target = FwTarget {
+                link: &mut *self.link,
+                run: &mut self.run,
+            };
+            if let Some(reply) = self.responder.feed(b[0], &mut target) {
+                self.link.reply(reply);
+                let now = self.sample_clock();
+                self.link.pump(now);
+            }
+        }
+        n
     }
 }
 

@@ -1,22 +1,24 @@
 //! Host -> device commands: StartRun, StopRun, SetWindow, Relearn and DescribeRequest as
 //! wire frames.
 //!
-//! The host writes its commands with its own device id ([`HOST_DEVICE_ID`]) and its own
-//! sequence numbers, one counter per link; the device answers each command with an `Ack`
-//! or a `Nack` that quotes the command's sequence number, so [`CommandLog`] can tell which
-//! command a reply is about.
+//! The host writes its commands with the host id ([`HOST_DEVICE_ID`], the protocol's
+//! [`wire::HOST_ID`]: devices ignore frames with any other id) and its own sequence
+//! numbers, one counter per link; the device answers each command with an `Ack` or a
+//! `Nack` that quotes the command's sequence number, so [`CommandLog`] can tell which
+//! command a reply is about. A StartRun carries the host's UTC, which the device quotes
+//! in the run's RunStart frame.
 
 use frothline_core::wire::{self, Body, Frame, Kind, Relearn, StartRun, WindowSetting};
 use std::collections::VecDeque;
 
 /// The device id the host writes into its command frames (no device uses it).
-pub const HOST_DEVICE_ID: u16 = 0xFFFF;
+pub const HOST_DEVICE_ID: u16 = wire::HOST_ID;
 
 /// A command for a device.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub enum Command {
     /// Start a run with this label (at most [`wire::LABEL_BYTES`] bytes of UTF-8): the
-    /// device resets its sample clock.
+    /// device starts the run's sample clock at frame 0 (refused while a run is going).
     StartRun(String),
     /// Stop the run.
     StopRun,
@@ -43,7 +45,11 @@ impl Command {
     /// The body of the command frame; fails for a label that does not fit.
     pub fn body(&self) -> Result<Body, String> {
         Ok(match self {
-            Command::StartRun(label) => Body::StartRun(start_run(label)?),
+            Command::StartRun(label) => {
+                let mut s = start_run(label)?;
+                s.utc_ms = Some(crate::archive::now_us() / 1000);
+                Body::StartRun(s)
+            }
             Command::StopRun => Body::StopRun,
             Command::SetWindow(s) => Body::SetWindow(*s),
             Command::Relearn(mask) => Body::Relearn(Relearn { probes: *mask }),
@@ -60,6 +66,7 @@ pub fn kind_name(kind: Kind) -> &'static str {
         Kind::Front => "front",
         Kind::Profile => "profile",
         Kind::Health => "health",
+        Kind::RunStart => "run-start",
         Kind::StartRun => "start-run",
         Kind::StopRun => "stop-run",
         Kind::SetWindow => "set-window",
@@ -178,7 +185,10 @@ mod tests {
                 } => {
                     assert!(remaining.is_empty());
                     assert_eq!(frame.device, HOST_DEVICE_ID);
-                    assert_eq!(frame.body, c.body().unwrap());
+                    assert_eq!(frame.body.kind(), c.kind());
+                    if !matches!(c, Command::StartRun(_)) {
+                        assert_eq!(frame.body, c.body().unwrap());
+                    }
                 }
                 other => panic!("{other:?}"),
             }

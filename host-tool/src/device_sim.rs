@@ -4,9 +4,10 @@
 //! ```text
 //! wall clock x speed -> sample clock -> push the capture's frames due -> Chain -> records
 //!   -> WindowResult::from_probe_window -> Streamer (link byte budget: baud / 10 B/s) -> port
-//! port -> command frames -> StartRun / StopRun / SetWindow / Relearn / DescribeRequest
-//!      -> Ack or Nack (unknown kind, bad argument, wrong version, malformed payload)
-//! Describe at start and on request; Health every second (cumulative counters)
+//! port -> the core's command Responder (repeats, already running, unknown kind, version,
+//!      malformed) -> StartRun / StopRun / SetWindow / Relearn / DescribeRequest -> Ack/Nack
+//! Describe at power-on, after SetWindow and on request; RunStart at every run start;
+//! Health every second (cumulative counters)
 //! ```
 //!
 //! The chain is built from the same configuration `frothline replay` derives from the layout
@@ -14,9 +15,11 @@
 //! records (compare after the wire's quantisation).
 //!
 //! A run plays the capture once from its first frame: [`SimOptions::autostart`] starts one
-//! at power-on, `StartRun` starts a new one (sample clock back to 0, capture from the start),
-//! `StopRun` ends it (the open window is closed, flagged partial). At the end of the capture
-//! the run ends the same way, and with [`SimOptions::repeat`] a new run starts at once.
+//! at power-on, `StartRun` starts one when none is going (sample clock at 0, capture from
+//! the start; refused with `already_running` during a run), `StopRun` ends it (the open
+//! window is closed, flagged partial). At the end of the capture the run ends the same way,
+//! and with [`SimOptions::repeat`] a new run starts at once. Every run start sends a
+//! RunStart frame (run number, label, device time, the host's UTC from StartRun).
 //! `SetWindow` and `Relearn` rebuild the chain at the current position: the open window is
 //! closed (partial), and the new chain continues the run's sample clock; it learns its
 //! levels again unless the layout fixes them (the core has no per-probe re-learn yet, so
@@ -41,8 +44,9 @@ use crate::rig::{chain_config, Counts, HostChain, ToCounts, HOST_LAGS, MAX_PROBE
 use crate::transient::{self, StationChain, StationInfo};
 use crate::window_spec::WindowSpec;
 use frothline_core::wire::{
-    self, quant, Ack, Body, DeviceDescription, Health, Nack, NackReason, ProbeLayout, Streamer,
-    StreamerConfig, TrailingTip, WindowResult, WindowSetting, WireError,
+    quant, Body, CommandTarget, DeviceDescription, Health, NackReason, ProbeLayout, Reply,
+    Responder, RunStart, StartRun, Streamer, StreamerConfig, TrailingTip, WindowResult,
+    WindowSetting,
 };
 use frothline_core::{ChainConfig, Flags, FrontRecord, WindowPolicy};
 use std::io::{Read, Write};
@@ -248,12 +252,16 @@ pub struct SimStats {
     pub windows_dropped: u32,
     /// Records the chain produced.
     pub records: u64,
-    /// Command frames answered with Ack.
+    /// Command frames answered with Ack (repeats included).
     pub acks: u64,
-    /// Command frames answered with Nack.
+    /// Command frames answered with Nack (repeats included).
     pub nacks: u64,
-    /// Received frames that could not be answered (CRC failure, broken framing).
+    /// Repeated command frames answered again without being carried out.
+    pub repeats: u64,
+    /// Received frames that could not be answered (CRC failure, broken framing, too long).
     pub unreadable: u64,
+    /// Valid frames not from the host id (ignored).
+    pub not_from_host: u64,
     /// Runs started.
     pub runs: u64,
     /// Bytes the port did not take (write timeout or error).
@@ -277,10 +285,11 @@ pub struct SimDevice {
     stations: Option<StationConfigs>,
     chain: Option<Chains>,
     streamer: Box<Streamer<WINDOW_QUEUE, URGENT_QUEUE>>,
-    /// Bytes of an incoming frame.
-    rx: Vec<u8>,
-    rx_overflow: bool,
+    /// The command handler (the one every device uses).
+    responder: Responder,
     power_on: Instant,
+    /// Runs started since power-on.
+    run: u32,
     /// Running: the wall time the run's sample clock started at, and its frame position.
     run_t0: Instant,
     pos: usize,
@@ -316,9 +325,9 @@ impl SimDevice {
             stations,
             chain: None,
             streamer,
-            rx: Vec::new(),
-            rx_overflow: false,
+            responder: Responder::new(),
             power_on: now,
+            run: 0,
             run_t0: now,
             pos: 0,
             offset: 0,
@@ -331,7 +340,7 @@ impl SimDevice {
         let desc = d.description();
         d.streamer.offer(Body::Describe(desc));
         if d.opts.autostart {
-            d.start_run(now);
+            let _ = d.start_run(now, &StartRun::default());
         }
         Ok(d)
     }
@@ -339,11 +348,17 @@ impl SimDevice {
     /// The counters.
     pub fn stats(&self) -> SimStats {
         let s = self.streamer.stats();
+        let r = self.responder.stats();
         SimStats {
             frames_sent: s.frames_sent,
             bytes_sent: s.bytes_sent,
             windows_sent: s.windows_sent,
             windows_dropped: s.windows_dropped,
+            acks: r.acks as u64,
+            nacks: r.nacks as u64,
+            repeats: r.repeats as u64,
+            unreadable: r.unreadable as u64,
+            not_from_host: r.not_from_host as u64,
             ..self.stats.clone()
         }
     }
@@ -435,19 +450,30 @@ impl SimDevice {
         }
     }
 
-    fn start_run(&mut self, now: Instant) {
-        if self.running {
-            self.end_run();
-        }
-        match self.new_chain(self.config.clone()) {
-            Ok(c) => self.chain = Some(c),
-            Err(_) => return,
-        }
+    /// Frames of the sample clock since power-on at `now`.
+    fn uptime_frames(&self, now: Instant) -> u64 {
+        let fs = self.cap.sample_rate as f64 * self.opts.speed;
+        (now.duration_since(self.power_on).as_secs_f64() * fs) as u64
+    }
+
+    /// Start a run (none may be going): a fresh chain at frame 0 and its RunStart frame.
+    fn start_run(&mut self, now: Instant, cmd: &StartRun) -> Result<(), NackReason> {
+        let chain = self.new_chain(self.config.clone())?;
+        self.chain = Some(chain);
         self.pos = 0;
         self.offset = 0;
         self.run_t0 = now;
         self.running = true;
         self.stats.runs += 1;
+        self.run = self.run.saturating_add(1);
+        let run = RunStart {
+            run: self.run,
+            label: cmd.label.clone(),
+            uptime_frames: self.uptime_frames(now),
+            utc_ms: cmd.utc_ms,
+        };
+        self.streamer.offer(Body::RunStart(run));
+        Ok(())
     }
 
     /// Close the current chain: its open window comes out (flagged partial).
@@ -573,112 +599,17 @@ impl SimDevice {
         }
     }
 
-    /// Command bytes from the host.
+    /// Command bytes from the host: each command frame is answered through the core's
+    /// [`Responder`] (an Ack or Nack queued as an urgent frame).
     pub fn input(&mut self, bytes: &[u8], now: Instant) {
+        let mut responder = std::mem::take(&mut self.responder);
         for &b in bytes {
-            if b != 0 {
-                if self.rx.len() < wire::MAX_FRAME_BYTES {
-                    self.rx.push(b);
-                } else {
-                    self.rx_overflow = true;
-                }
-                continue;
-            }
-            let mut frame = std::mem::take(&mut self.rx);
-            let overflow = std::mem::replace(&mut self.rx_overflow, false);
-            if frame.is_empty() {
-                continue;
-            }
-            if overflow {
-                self.stats.unreadable += 1;
-                continue;
-            }
-            self.command(&mut frame, now);
-            frame.clear();
-            self.rx = frame;
-        }
-    }
-
-    fn reply(&mut self, seq: u16, result: Result<(), NackReason>) {
-        match result {
-            Ok(()) => {
-                self.stats.acks += 1;
-                self.streamer.offer(Body::Ack(Ack { seq }));
-            }
-            Err(reason) => {
-                self.stats.nacks += 1;
-                self.streamer.offer(Body::Nack(Nack { seq, reason }));
+            let reply: Option<Reply> = responder.feed(b, &mut SimTarget { dev: self, now });
+            if let Some(r) = reply {
+                self.streamer.offer(r.body());
             }
         }
-    }
-
-    fn command(&mut self, bytes: &mut [u8], now: Instant) {
-        let frame = match wire::decode(bytes) {
-            Ok(f) => f,
-            Err(WireError::UnsupportedVersion(h)) => {
-                return self.reply(h.seq, Err(NackReason::UnsupportedVersion))
-            }
-            Err(WireError::UnknownKind(h)) => {
-                return self.reply(h.seq, Err(NackReason::UnknownCommand))
-            }
-            Err(WireError::Malformed) => {
-                // The CRC matched, so the header at the front of the unstuffed bytes is
-                // what the host sent: refuse the command by its sequence number.
-                return match header_seq(bytes) {
-                    Some(seq) => self.reply(seq, Err(NackReason::BadArgument)),
-                    None => self.stats.unreadable += 1,
-                };
-            }
-            Err(_) => {
-                self.stats.unreadable += 1;
-                return;
-            }
-        };
-        let seq = frame.seq;
-        let result = match frame.body {
-            Body::StartRun(_) => {
-                self.start_run(now);
-                Ok(())
-            }
-            Body::StopRun => {
-                if self.running {
-                    self.end_run();
-                    Ok(())
-                } else {
-                    Err(NackReason::NotRunning)
-                }
-            }
-            Body::SetWindow(s) => match s.to_policy().map(|p| self.front_relative(p)) {
-                Some(policy) if policy.is_valid() => {
-                    let mut cfg = self.config.clone();
-                    cfg.window = policy;
-                    let r = self.rebuild(cfg);
-                    if r.is_ok() {
-                        let d = self.description();
-                        self.streamer.offer(Body::Describe(d));
-                    }
-                    r
-                }
-                _ => Err(NackReason::BadArgument),
-            },
-            Body::Relearn(r) => {
-                let n = self.config.probes.len();
-                let all = if n >= 32 { u32::MAX } else { (1u32 << n) - 1 };
-                if r.probes & all == 0 {
-                    Err(NackReason::BadArgument)
-                } else {
-                    self.rebuild(self.config.clone())
-                }
-            }
-            Body::DescribeRequest => {
-                let d = self.description();
-                self.streamer.offer(Body::Describe(d));
-                Ok(())
-            }
-            // A result or reply kind sent to the device is no command it knows.
-            _ => Err(NackReason::UnknownCommand),
-        };
-        self.reply(seq, result);
+        self.responder = responder;
     }
 
     /// Run the sample clock up to `now`: push the frames due, queue the records, end the run
@@ -711,7 +642,7 @@ impl SimDevice {
             if self.pos >= self.cap.frames() {
                 self.end_run();
                 if self.opts.repeat {
-                    self.start_run(now);
+                    let _ = self.start_run(now, &StartRun::default());
                 }
             }
         }
@@ -720,10 +651,9 @@ impl SimDevice {
             .is_none_or(|t| now.duration_since(t) >= self.opts.health_every)
         {
             self.last_health = Some(now);
-            let fs = self.cap.sample_rate as f64 * self.opts.speed;
             let mut h = self.health;
             h.tips_stuck = self.stuck_bits;
-            h.uptime_frames = (now.duration_since(self.power_on).as_secs_f64() * fs) as u64;
+            h.uptime_frames = self.uptime_frames(now);
             self.streamer.offer(Body::Health(h));
         }
     }
@@ -824,24 +754,57 @@ fn write_all_within<P: Write>(port: &mut P, bytes: &[u8], within: Duration) -> R
     Ok(())
 }
 
-/// The sequence number of the header at the front of an unstuffed payload.
-fn header_seq(b: &[u8]) -> Option<u16> {
-    fn varint(b: &[u8], pos: &mut usize) -> Option<u64> {
-        let mut v = 0u64;
-        for shift in (0..64).step_by(7) {
-            let byte = *b.get(*pos)?;
-            *pos += 1;
-            v |= ((byte & 0x7F) as u64) << shift;
-            if byte & 0x80 == 0 {
-                return Some(v);
-            }
-        }
-        None
+/// The simulated device as the responder's [`CommandTarget`], at wall time `now`.
+struct SimTarget<'a> {
+    dev: &'a mut SimDevice,
+    now: Instant,
+}
+
+impl CommandTarget for SimTarget<'_> {
+    fn running(&self) -> bool {
+        self.dev.running
     }
-    let mut pos = 1; // version
-    varint(b, &mut pos)?; // device
-    pos += 1; // kind
-    u16::try_from(varint(b, &mut pos)?).ok()
+
+    fn start_run(&mut self, cmd: &StartRun) -> Result<(), NackReason> {
+        self.dev.start_run(self.now, cmd)
+    }
+
+    fn stop_run(&mut self) -> Result<(), NackReason> {
+        self.dev.end_run();
+        Ok(())
+    }
+
+    fn set_window(&mut self, setting: WindowSetting) -> Result<(), NackReason> {
+        let d = &mut *self.dev;
+        let policy = setting
+            .to_policy()
+            .map(|p| d.front_relative(p))
+            .filter(|p| p.is_valid())
+            .ok_or(NackReason::BadArgument)?;
+        let mut cfg = d.config.clone();
+        cfg.window = policy;
+        d.rebuild(cfg)?;
+        let desc = d.description();
+        d.streamer.offer(Body::Describe(desc));
+        Ok(())
+    }
+
+    fn relearn(&mut self, probes: u32) -> Result<(), NackReason> {
+        let d = &mut *self.dev;
+        let n = d.config.probes.len();
+        let all = if n >= 32 { u32::MAX } else { (1u32 << n) - 1 };
+        if probes & all == 0 {
+            return Err(NackReason::BadArgument);
+        }
+        // The core has no per-probe re-learn yet: every probe re-learns.
+        d.rebuild(d.config.clone())
+    }
+
+    fn describe(&mut self) -> Result<(), NackReason> {
+        let desc = self.dev.description();
+        self.dev.streamer.offer(Body::Describe(desc));
+        Ok(())
+    }
 }
 
 #[cfg(test)]
@@ -919,9 +882,11 @@ mod tests {
             );
             assert!(first.iter().any(|f| matches!(f.body, Body::Health(_))));
             let mut log = CommandLog::default();
+            let last_sent = std::cell::RefCell::new(Vec::new());
             let mut send = |d: &mut SimDevice, c: Command| {
                 let (seq, b) = log.encode(&c).unwrap();
                 d.input(&b, t0);
+                *last_sent.borrow_mut() = b;
                 seq
             };
             // Not running yet: StopRun is refused.
@@ -931,6 +896,11 @@ mod tests {
             let s_mask = send(&mut d, Command::Relearn(1 << 20));
             let s_desc = send(&mut d, Command::DescribeRequest);
             let s_start = send(&mut d, Command::StartRun("t".into()));
+            // The same StartRun frame again (a host retrying): acked, not run again.
+            let again = last_sent.borrow().clone();
+            d.input(&again, t0);
+            // A new StartRun during the run: already running, the run goes on.
+            let s_second = send(&mut d, Command::StartRun("u".into()));
             let got = step(&mut d, &mut t, 0.05, &mut dec);
             assert_eq!(
                 replies(&got),
@@ -940,28 +910,58 @@ mod tests {
                     (s_mask, Some(NackReason::BadArgument)),
                     (s_desc, None),
                     (s_start, None),
+                    (s_start, None),
+                    (s_second, Some(NackReason::AlreadyRunning)),
                 ]
             );
+            // One RunStart, before the Ack of its StartRun, labelled and dated by the host.
+            let runs: Vec<(usize, &RunStart)> = got
+                .iter()
+                .enumerate()
+                .filter_map(|(i, f)| match &f.body {
+                    Body::RunStart(r) => Some((i, r)),
+                    _ => None,
+                })
+                .collect();
+            assert_eq!(runs.len(), 1, "{got:?}");
+            let (at, run) = runs[0];
+            assert_eq!((run.run, run.label.as_str()), (1, "t"));
+            assert!(run.utc_ms.is_some_and(|ms| ms > 1_700_000_000_000));
+            let ack_at = got
+                .iter()
+                .position(|f| matches!(&f.body, Body::Ack(a) if a.seq == s_start))
+                .unwrap();
+            assert!(at < ack_at);
             assert!(got.iter().any(|f| matches!(f.body, Body::Describe(_))));
             assert!(d.running());
+            assert_eq!(d.stats().runs, 1);
+            assert_eq!(d.stats().repeats, 1);
 
-            // A frame of a device kind, a frame of an unknown kind, a payload that does not
-            // parse, and line noise.
+            // A frame of a device kind from the host id, a frame of an unknown kind, a
+            // frame of version 1, a payload that does not parse, the device's own frame
+            // echoed back (ignored), and line noise (unanswered).
             let mut buf = [0u8; MAX_FRAME_BYTES];
             let ack = Frame {
                 device: 0xFFFF,
                 seq: 900,
                 body: Body::Ack(frothline_core::wire::Ack { seq: 1 }),
             };
-            d.input(wire::encode(&ack, &mut buf).unwrap(), t);
-            let mut payload = vec![1u8, 0x7F, 0x7E, 0x85, 0x07]; // kind 0x7E, seq 901
-            let crc = wire::crc32(&payload);
-            payload.extend_from_slice(&crc.to_le_bytes());
-            d.input(&cobs(&payload), t);
-            let mut bad = vec![1u8, 0x7F, Kind::SetWindow.code(), 0x86, 0x07, 9]; // seq 902, variant 9
-            let crc = wire::crc32(&bad);
-            bad.extend_from_slice(&crc.to_le_bytes());
-            d.input(&cobs(&bad), t);
+            d.input(frothline_core::wire::encode(&ack, &mut buf).unwrap(), t);
+            let raw = |payload: &[u8]| {
+                let mut p = payload.to_vec();
+                p.extend_from_slice(&frothline_core::wire::crc32(payload).to_le_bytes());
+                cobs(&p)
+            };
+            d.input(&raw(&[2, 0xFF, 0xFF, 0x03, 0x7E, 0x85, 0x07]), t); // kind 0x7E, seq 901
+            d.input(&raw(&[1, 0xFF, 0xFF, 0x03, 0x21, 0x86, 0x07]), t); // version 1, seq 902
+            let set_window = Kind::SetWindow.code();
+            d.input(&raw(&[2, 0xFF, 0xFF, 0x03, set_window, 0x87, 0x07, 9]), t); // variant 9
+            let echo = Frame {
+                device: 1,
+                seq: 904,
+                body: Body::StopRun,
+            };
+            d.input(frothline_core::wire::encode(&echo, &mut buf).unwrap(), t);
             d.input(&[0x55, 0x13, 0x00, 0xFF, 0xFF, 0x00], t);
             let got = step(&mut d, &mut t, 0.05, &mut dec);
             assert_eq!(
@@ -969,10 +969,13 @@ mod tests {
                 vec![
                     (900, Some(NackReason::UnknownCommand)),
                     (901, Some(NackReason::UnknownCommand)),
-                    (902, Some(NackReason::BadArgument)),
+                    (902, Some(NackReason::UnsupportedVersion)),
+                    (903, Some(NackReason::Malformed)),
                 ]
             );
             assert_eq!(d.stats().unreadable, 2);
+            assert_eq!(d.stats().not_from_host, 1);
+            assert!(d.running(), "no refused command stopped the run");
 
             // SetWindow rebuilds the chain: windows of 50 ms from here on, continuing the
             // run's sample clock.
@@ -996,6 +999,34 @@ mod tests {
             let got = step(&mut d, &mut t, 0.05, &mut dec);
             assert_eq!(replies(&got), vec![(s, Some(NackReason::NotRunning))]);
             assert_eq!(dec.stats().lost, 0);
+        });
+    }
+
+    /// In a transient run the description gives the window actually streamed: windows of
+    /// 50 ms counted from the front (AfterFront), never Whole; after SetWindow the new one.
+    #[test]
+    fn a_transient_device_describes_the_window_it_streams() {
+        big_stack(|| {
+            let cap =
+                crate::demo::transient_demo_capture(crate::window_spec::WindowSpec::Whole).unwrap();
+            let fs = cap.sample_rate;
+            let t0 = Instant::now();
+            let opts = SimOptions {
+                baud: 0,
+                ..SimOptions::default()
+            };
+            let mut d = SimDevice::new(cap, opts, t0).unwrap();
+            let frames = (transient::DEFAULT_SLICE_S * fs as f64).round() as u32;
+            assert_eq!(d.description().window, WindowSetting::AfterFront { frames });
+            let mut log = CommandLog::default();
+            let (_, b) = log
+                .encode(&Command::SetWindow(WindowSetting::Frames(fs / 10)))
+                .unwrap();
+            d.input(&b, t0);
+            assert_eq!(
+                d.description().window,
+                WindowSetting::AfterFront { frames: fs / 10 }
+            );
         });
     }
 

@@ -245,7 +245,6 @@ pub fn decode_log(
         layout,
         layout_text: None,
         out_dir: out.map(Path::to_path_buf),
-        archive: None,
     })?;
     // A second decoder only tallies the frames by kind (the session's decoder counts the
     // rejects and the sequence gaps).

@@ -1,14 +1,14 @@
 //! Which run a live row belongs to: run number, label and host start time per device.
 //!
-//! A run starts when a device acknowledges a StartRun command; its label is the one the
-//! host sent with that command. The tracker reads both from the session's own record of the
-//! link (commands sent, replies received), which the archive keeps too, so `watch` and
-//! `unpack` of its archive give every row the same run columns. Run numbers count a
-//! device's acknowledged StartRun commands from 1; rows before the first are run 0 with an
-//! empty label (a run started before this session, or never).
+//! A run starts when a device reports one in a RunStart frame (wire protocol version 2),
+//! with the label the host sent in its StartRun command. The session feeds
+//! [`RunTracker::started`] from those frames, which the archive keeps, so `watch` and
+//! `unpack` of its archive give every row the same run columns. Run numbers count the run
+//! starts of a device seen in the session from 1; rows before the first are run 0 with an
+//! empty label (a run started before this session, or never). `command_sent` and
+//! `acknowledged` serve a device that reports no run starts of its own.
 //!
-//! This is the one place that decides the run of a row: a device that reports its own run
-//! (number, label, start time) would feed [`RunTracker::started`] from that report instead.
+//! This is the one place that decides the run of a row.
 
 use std::collections::HashMap;
 
@@ -67,7 +67,7 @@ impl RunTracker {
     /// The run columns of a row received at host time `t_us`.
     pub fn columns(&self, port: usize, device: u16, t_us: u64) -> [String; 3] {
         let t = self.tag(port, device);
-        [t.number.to_string(), t.label, crate::unpack::iso_utc(t_us)]
+        [t.number.to_string(), t.label, crate::archive::utc_iso(t_us)]
     }
 }
 

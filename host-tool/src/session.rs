@@ -8,6 +8,7 @@
 //!     Describe  -> probe names/elevations, sample rate (held windows are written now)
 //!     Windows   -> windows.csv (held until the device's sample rate is known)
 //!     Front     -> fronts.csv          Profile -> profile.csv
+//!     RunStart  -> a new run: its number, label and UTC (earlier fronts no longer apply)
 //!     Health, Ack/Nack, sequence gaps, CRC failures -> events for the live view
 //! ```
 //!
@@ -24,7 +25,8 @@ use crate::windows_csv::{wire_row, ProbeMeta, WindowsCsv};
 use frothline_core::wire::quant::{from_exponent, from_fraction, from_length};
 use frothline_core::wire::{
     Body, Decoder, DecoderStats, DeviceDescription, DeviceSeqStats, FeedResult, FrontArrival,
-    Header, Health, Kind, NackReason, ProfileFit, SeqCheck, WindowResult, WindowSetting,
+    Header, Health, Kind, NackReason, ProfileFit, RunStart, SeqCheck, WindowResult, WindowSetting,
+    PROTOCOL_VERSION,
 };
 use std::collections::BTreeMap;
 use std::fs::File;
@@ -68,14 +70,14 @@ pub struct SessionOptions {
     pub layout_text: Option<String>,
     /// Folder for windows.csv, fronts.csv and profile.csv (`None`: no CSV files).
     pub out_dir: Option<PathBuf>,
-    /// Archive file to append every byte to (`None`: no archive).
-    pub archive: Option<PathBuf>,
 }
 
 /// A frame rejected by the decoder.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Rejected {
-    /// The CRC did not match (or the frame was too short to hold one).
+    /// Not a frame: invalid COBS, or too short to hold a header and a CRC.
+    Framing,
+    /// The CRC did not match.
     Crc,
     /// CRC valid, payload invalid.
     Malformed,
@@ -134,6 +136,15 @@ pub enum Event {
         device: u16,
         /// The fit.
         fit: ProfileFit,
+    },
+    /// A run began on the device.
+    RunStart {
+        /// Port number.
+        port: usize,
+        /// Device id.
+        device: u16,
+        /// Its number, label, device time and host UTC.
+        run: RunStart,
     },
     /// Device health counters.
     Health {
@@ -233,6 +244,19 @@ pub struct SeqGap {
     pub host_time_us: u64,
 }
 
+/// A run start, for the session report.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct RunMark {
+    /// Port number.
+    pub port: usize,
+    /// Device id.
+    pub device: u16,
+    /// The run.
+    pub run: RunStart,
+    /// Host arrival time of the RunStart frame, µs since the Unix epoch.
+    pub host_time_us: u64,
+}
+
 /// A link-down moment, for the session report.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct LinkGap {
@@ -270,6 +294,8 @@ pub struct SessionReport {
     pub seq_gaps: Vec<SeqGap>,
     /// Every link-down moment.
     pub link_gaps: Vec<LinkGap>,
+    /// Every run start.
+    pub runs: Vec<RunMark>,
     /// Window results written to windows.csv.
     pub windows: u64,
     /// Window results written without times (the device never described itself).
@@ -318,6 +344,23 @@ impl SessionReport {
     /// CRC failures, all ports.
     pub fn crc_failures(&self) -> u64 {
         self.ports.iter().map(|p| p.decoder.crc_failures).sum()
+    }
+
+    /// Lines about frames of another protocol version, one per port that had any: what
+    /// they were and what to do.
+    pub fn version_warnings(&self) -> Vec<String> {
+        self.ports
+            .iter()
+            .filter(|p| p.decoder.other_version > 0)
+            .map(|p| {
+                format!(
+                    "{}: {} frame(s) of protocol version {} skipped: this build reads version \
+                     {PROTOCOL_VERSION} only (update the device's firmware or the host tool so \
+                     both speak the same version)",
+                    p.name, p.decoder.other_version, p.decoder.last_other_version
+                )
+            })
+            .collect()
     }
 }
 
@@ -371,9 +414,18 @@ fn csv_file(path: &Path, header: &[&str]) -> Result<csv::Writer<BufWriter<File>>
 }
 
 impl Session {
-    /// Open the session's files: the CSV folder (created if missing) with windows.csv, and
-    /// the archive.
+    /// Open the session's files: the CSV folder (created if missing) with windows.csv; no
+    /// archive.
     pub fn new(opts: SessionOptions) -> Result<Session, HostError> {
+        Self::with_archive(opts, None)
+    }
+
+    /// [`new`](Self::new), appending every byte to `archive` (made by
+    /// [`ArchiveWriter::create_in`]).
+    pub fn with_archive(
+        opts: SessionOptions,
+        archive: Option<ArchiveWriter>,
+    ) -> Result<Session, HostError> {
         let out = match &opts.out_dir {
             Some(dir) => {
                 std::fs::create_dir_all(dir).map_err(write_err(dir))?;
@@ -388,15 +440,6 @@ impl Session {
                     profile: None,
                     dirty: true,
                 })
-            }
-            None => None,
-        };
-        let archive = match &opts.archive {
-            Some(p) => {
-                if let Some(parent) = p.parent().filter(|d| !d.as_os_str().is_empty()) {
-                    std::fs::create_dir_all(parent).map_err(write_err(parent))?;
-                }
-                Some(ArchiveWriter::open(p).map_err(write_err(p))?)
             }
             None => None,
         };
@@ -565,6 +608,10 @@ impl Session {
                         }
                         events.push(Event::Unsupported { port, header });
                     }
+                    FeedResult::BadFraming { .. } => events.push(Event::Rejected {
+                        port,
+                        why: Rejected::Framing,
+                    }),
                     FeedResult::CrcFailure { .. } => events.push(Event::Rejected {
                         port,
                         why: Rejected::Crc,
@@ -603,7 +650,7 @@ impl Session {
                 SeqCheck::Restarted => events.push(Event::Restarted { port, device }),
                 _ => {}
             }
-            self.frame(port, device, frame.body, &mut events)?;
+            self.frame(port, device, t_us, frame.body, &mut events)?;
         }
         self.flush()?;
         Ok(events)
@@ -613,6 +660,7 @@ impl Session {
         &mut self,
         port: usize,
         device: u16,
+        t_us: u64,
         body: Body,
         events: &mut Vec<Event>,
     ) -> Result<(), HostError> {
@@ -648,6 +696,22 @@ impl Session {
                 self.profile(port, device, &fit)?;
                 events.push(Event::Profile { port, device, fit });
             }
+            Body::RunStart(run) => {
+                // A new run: its frame numbers count from 0 again, earlier fronts no longer
+                // apply.
+                if let Some(d) = self.devices.get_mut(&(port, device)) {
+                    d.fronts.clear();
+                }
+                self.runs
+                    .started(port, device, run.label.as_str().to_string(), t_us);
+                self.report.runs.push(RunMark {
+                    port,
+                    device,
+                    run: run.clone(),
+                    host_time_us: t_us,
+                });
+                events.push(Event::RunStart { port, device, run });
+            }
             Body::Health(health) => events.push(Event::Health {
                 port,
                 device,
@@ -669,13 +733,6 @@ impl Session {
         events: &mut Vec<Event>,
     ) {
         let command = self.ports.get(port).and_then(|p| p.commands.kind_of(seq));
-        if nack.is_none() && command == Some(Kind::StartRun) {
-            // A new run: its sample clock starts again, so earlier fronts no longer apply.
-            if let Some(d) = self.devices.get_mut(&(port, device)) {
-                d.fronts.clear();
-            }
-            self.runs.acknowledged(port, device, seq, self.now_us);
-        }
         events.push(Event::Reply {
             port,
             device,
@@ -1093,17 +1150,42 @@ pub fn describe_event(e: &Event, ports: &[String]) -> Option<String> {
             "{}: frame rejected ({})",
             port(p),
             match why {
+                Rejected::Framing => "not a frame: bad COBS or too short",
                 Rejected::Crc => "CRC mismatch",
                 Rejected::Malformed => "malformed payload",
                 Rejected::Oversize => "too long",
             }
         ),
-        Event::Unsupported { port: p, header } => format!(
-            "{}: device {}: frame of version {} kind 0x{:02x} not understood (skipped)",
+        Event::Unsupported { port: p, header } if header.version != PROTOCOL_VERSION => format!(
+            "{}: device {}: frame of protocol version {} skipped: this build reads version \
+             {PROTOCOL_VERSION} only (update the device's firmware or the host tool)",
             port(p),
             header.device,
-            header.version,
+            header.version
+        ),
+        Event::Unsupported { port: p, header } => format!(
+            "{}: device {}: frame of kind 0x{:02x} not understood (skipped)",
+            port(p),
+            header.device,
             header.kind
+        ),
+        Event::RunStart {
+            port: p,
+            device,
+            run,
+        } => format!(
+            "{}: device {device} run {} started{}{}",
+            port(p),
+            run.run,
+            if run.label.is_empty() {
+                String::new()
+            } else {
+                format!(" `{}`", run.label)
+            },
+            run.utc_ms.map_or_else(String::new, |ms| format!(
+                " at {}",
+                crate::archive::utc_iso(ms.saturating_mul(1000))
+            ))
         ),
         Event::Stray {
             port: p,
@@ -1126,6 +1208,7 @@ pub fn nack_text(r: NackReason) -> String {
         NackReason::NotRunning => "no run in progress".into(),
         NackReason::AlreadyRunning => "a run is already in progress".into(),
         NackReason::UnsupportedVersion => "protocol version not supported".into(),
+        NackReason::Malformed => "malformed command frame".into(),
         other => format!("reason code {}", other.code()),
     }
 }
@@ -1151,6 +1234,10 @@ pub fn setting_text(s: &WindowSetting, fs: f64) -> String {
             Some(m) => format!("{count} bubbles of probe {probe} (at most {m} frames)"),
             None => format!("{count} bubbles of probe {probe}"),
         },
+        WindowSetting::AfterFront { frames } => format!(
+            "{} from each front",
+            setting_text(&WindowSetting::Frames(frames), fs)
+        ),
     }
 }
 
@@ -1206,6 +1293,33 @@ mod tests {
         encode(f, &mut buf).unwrap().to_vec()
     }
 
+    /// Frames of protocol version 1 are skipped and said so, once, with what to do.
+    #[test]
+    fn version_1_frames_are_refused_with_a_clear_message() {
+        let mut s = Session::new(SessionOptions {
+            ports: vec!["old".into()],
+            ..Default::default()
+        })
+        .unwrap();
+        // The version-1 Ack of the version-1 spec, three times (seq 305 each: repeats).
+        let v1 = [
+            0x0b, 0x01, 0x07, 0x30, 0xb1, 0x02, 0x29, 0x7e, 0x38, 0x8d, 0x8c, 0x00,
+        ];
+        let events = s.received(0, 1, &v1.repeat(3)).unwrap();
+        let lines: Vec<String> = events
+            .iter()
+            .filter_map(|e| describe_event(e, &["old".to_string()]))
+            .collect();
+        assert!(
+            lines[0].contains("protocol version 1 skipped: this build reads version 2"),
+            "{lines:?}"
+        );
+        let r = s.finish().unwrap();
+        let w = r.version_warnings();
+        assert_eq!(w.len(), 1);
+        assert!(w[0].contains("3 frame(s) of protocol version 1"), "{w:?}");
+    }
+
     /// A stream of frames with faults at the host: some frames dropped whole, some
     /// corrupted (a byte flipped), garbage inserted, one duplicated. No corrupted frame may
     /// be accepted, the lost count must equal the dropped plus corrupted frames (their
@@ -1213,12 +1327,15 @@ mod tests {
     #[test]
     fn faults_between_device_and_host() {
         let dir = tempfile::tempdir().unwrap();
-        let mut s = Session::new(SessionOptions {
-            ports: vec!["test".into()],
-            out_dir: Some(dir.path().to_path_buf()),
-            archive: Some(dir.path().join("a.flc")),
-            ..Default::default()
-        })
+        let archive = ArchiveWriter::create_in(dir.path(), 1).unwrap();
+        let mut s = Session::with_archive(
+            SessionOptions {
+                ports: vec!["test".into()],
+                out_dir: Some(dir.path().to_path_buf()),
+                ..Default::default()
+            },
+            Some(archive),
+        )
         .unwrap();
         let mut stream = enc(&describe(3));
         let mut sent = Vec::new();
@@ -1268,7 +1385,10 @@ mod tests {
         assert_eq!(r.lost(), dropped + corrupted);
         assert_eq!(r.ports[0].decoder.duplicates, 300 / 17);
         let d = r.ports[0].decoder;
-        assert_eq!(d.crc_failures + d.malformed, corrupted + 2 * (300 / 17));
+        assert_eq!(
+            d.crc_failures + d.malformed + d.bad_framing,
+            corrupted + 2 * (300 / 17)
+        );
         let csv = std::fs::read_to_string(dir.path().join("windows.csv")).unwrap();
         assert_eq!(csv.lines().count(), 1 + sent.len());
         let first: Vec<&str> = csv.lines().nth(1).unwrap().split(',').collect();

@@ -1,12 +1,14 @@
 //! `frothline unpack`: an archive of a live session back into CSV files, with a report of
 //! what the link did: link-down gaps, sequence gaps per device, CRC failures, malformed
-//! frames, bytes discarded, an unfinished frame and an incomplete tail.
+//! frames, bytes discarded, an unfinished frame, runs started, damaged stretches of the
+//! archive (skipped to the next valid chunk) and an incomplete tail. A file that is no
+//! archive (empty, a WAV capture, other bytes) is an error naming the file.
 //!
 //! The archive's bytes go through the same [`Session`] as during the live session, so the
 //! CSV files are the ones `frothline watch` wrote (up to the last complete chunk when the
 //! session was killed).
 
-use crate::archive::{utc_stamp, ArchiveReader, ChunkKind, Tail};
+use crate::archive::{utc_iso, ArchiveReader, ChunkKind, Damage, Tail};
 use crate::error::HostError;
 use crate::layout::Layout;
 use crate::session::{Event, Session, SessionOptions, SessionReport};
@@ -16,7 +18,7 @@ use std::path::{Path, PathBuf};
 /// Arguments of `frothline unpack`.
 #[derive(clap::Args, Debug, Clone)]
 pub struct UnpackArgs {
-    /// The session archive (`session-<UTC time>.flc` written by `frothline watch`).
+    /// The session archive (`session-<UTC time>.frothwire` written by `frothline watch`).
     pub archive: PathBuf,
     /// Folder for windows.csv (and fronts.csv, profile.csv when the session had them).
     #[arg(long, short)]
@@ -42,6 +44,10 @@ pub struct UnpackReport {
     pub span_us: Option<(u64, u64)>,
     /// How the file ended.
     pub tail: Tail,
+    /// Damaged stretches skipped (reading resumed at the next valid chunk).
+    pub damage: Vec<Damage>,
+    /// The file header's CRC failed: chunk times are relative to an unknown start.
+    pub header_damaged: bool,
     /// The decoded session.
     pub session: SessionReport,
 }
@@ -74,6 +80,10 @@ fn scan_ports(path: &Path) -> Result<(Vec<String>, Option<String>), HostError> {
 }
 
 fn read_err(path: &Path, e: std::io::Error) -> HostError {
+    if e.kind() == std::io::ErrorKind::InvalidData {
+        // The reader's own message names the file and what is wrong with it.
+        return HostError::Usage(e.to_string());
+    }
     HostError::Usage(format!("cannot read archive {}: {e}", path.display()))
 }
 
@@ -101,7 +111,6 @@ pub fn unpack_with(
         layout,
         layout_text: None,
         out_dir: out.map(Path::to_path_buf),
-        archive: None,
     })?;
     let mut r = ArchiveReader::open(archive).map_err(|e| read_err(archive, e))?;
     let mut chunks = 0u64;
@@ -129,24 +138,10 @@ pub fn unpack_with(
         chunks,
         span_us: span,
         tail,
+        damage: r.damage().to_vec(),
+        header_damaged: r.header_damaged(),
         session: session.finish()?,
     })
-}
-
-/// ISO 8601 UTC time with milliseconds: `2026-12-02T05:57:18.293Z`.
-pub fn iso_utc(us: u64) -> String {
-    // utc_stamp gives YYYYMMDDTHHMMSSZ.
-    let s = utc_stamp(us);
-    format!(
-        "{}-{}-{}T{}:{}:{}.{:03}Z",
-        &s[0..4],
-        &s[4..6],
-        &s[6..8],
-        &s[9..11],
-        &s[11..13],
-        &s[13..15],
-        (us / 1000) % 1000
-    )
 }
 
 impl std::fmt::Display for UnpackReport {
@@ -166,21 +161,31 @@ impl std::fmt::Display for UnpackReport {
             let _ = write!(
                 o,
                 ", host time {} to {} ({:.1} s)",
-                iso_utc(a),
-                iso_utc(b),
+                utc_iso(a),
+                utc_iso(b),
                 rel(b)
             );
         }
         let _ = writeln!(o);
+        if self.header_damaged {
+            let _ = writeln!(
+                o,
+                "file header DAMAGED (its CRC fails): the times above count from 1970, not from the session's start"
+            );
+        }
+        for w in s.version_warnings() {
+            let _ = writeln!(o, "{w}");
+        }
         for (i, p) in s.ports.iter().enumerate() {
             let d = &p.decoder;
             let _ = writeln!(
                 o,
-                "port {i} ({}): {} bytes, {} frames, {} lost in sequence gaps, {} CRC failures, {} malformed, {} oversize, {} unsupported, {} bytes discarded, {} repeated, {} stale, {} commands sent",
+                "port {i} ({}): {} bytes, {} frames, {} lost in sequence gaps, {} not frames (bad framing), {} CRC failures, {} malformed, {} oversize, {} unsupported, {} bytes discarded, {} repeated, {} stale, {} commands sent",
                 p.name,
                 p.bytes,
                 d.frames,
                 d.lost,
+                d.bad_framing,
                 d.crc_failures,
                 d.malformed,
                 d.oversize,
@@ -220,7 +225,7 @@ impl std::fmt::Display for UnpackReport {
                     o,
                     "  port {} at {} (+{:.3} s)",
                     g.port,
-                    iso_utc(g.host_time_us),
+                    utc_iso(g.host_time_us),
                     rel(g.host_time_us)
                 );
             }
@@ -244,15 +249,49 @@ impl std::fmt::Display for UnpackReport {
                 let _ = writeln!(o, "  ... {} more", s.seq_gaps.len() - 50);
             }
         }
+        if !s.runs.is_empty() {
+            let _ = writeln!(o, "runs started: {}", s.runs.len());
+            for r in s.runs.iter().take(50) {
+                let _ = writeln!(
+                    o,
+                    "  port {} device {} run {}{} at +{:.3} s{}",
+                    r.port,
+                    r.device,
+                    r.run.run,
+                    if r.run.label.is_empty() {
+                        String::new()
+                    } else {
+                        format!(" `{}`", r.run.label)
+                    },
+                    rel(r.host_time_us),
+                    r.run.utc_ms.map_or_else(String::new, |ms| format!(
+                        " (host UTC {})",
+                        utc_iso(ms.saturating_mul(1000))
+                    ))
+                );
+            }
+        }
+        if self.damage.is_empty() {
+            let _ = writeln!(o, "damage: none (every chunk's CRC holds)");
+        } else {
+            let total: u64 = self.damage.iter().map(|d| d.bytes).sum();
+            let _ = writeln!(
+                o,
+                "damage: {} DAMAGED stretch(es), {total} bytes skipped (reading resumed at the next valid chunk each time):",
+                self.damage.len()
+            );
+            for d in self.damage.iter().take(20) {
+                let _ = writeln!(o, "  {} bytes at offset {}", d.bytes, d.offset);
+            }
+            if self.damage.len() > 20 {
+                let _ = writeln!(o, "  ... {} more", self.damage.len() - 20);
+            }
+        }
         let _ = match &self.tail {
             Tail::Clean => writeln!(o, "tail: clean (the file ends on a whole chunk)"),
             Tail::Incomplete(n) => writeln!(
                 o,
                 "tail: INCOMPLETE: the last {n} bytes are a chunk cut short (the writer stopped mid-write); everything before them was read"
-            ),
-            Tail::Corrupt { offset, bytes } => writeln!(
-                o,
-                "tail: CORRUPT chunk header at offset {offset}: the last {bytes} bytes were not read"
             ),
         };
         o.push_str(&s.results_line("the device never described itself"));
@@ -278,9 +317,9 @@ mod iso_tests {
     #[test]
     fn dates_are_iso_8601() {
         assert_eq!(
-            super::iso_utc(1_796_191_038_293_000),
+            crate::archive::utc_iso(1_796_191_038_293_000),
             "2026-12-02T05:57:18.293Z"
         );
-        assert_eq!(super::iso_utc(0), "1970-01-01T00:00:00.000Z");
+        assert_eq!(crate::archive::utc_iso(0), "1970-01-01T00:00:00.000Z");
     }
 }

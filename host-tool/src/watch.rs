@@ -15,6 +15,7 @@
 //! or `q` ends the session cleanly: readers stopped, the last bytes archived, the archive
 //! synced, the CSV files flushed, the terminal restored.
 
+use crate::archive::ArchiveWriter;
 use crate::commands::{parse_label, Command};
 use crate::dashboard::SAFETY_LINE;
 use crate::error::HostError;
@@ -24,7 +25,7 @@ use crate::session::{describe_event, Event, Session, SessionOptions, SessionRepo
 use crate::window_spec::WindowSpec;
 use frothline_core::wire::WindowSetting;
 use std::io::{IsTerminal, Write};
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{self, Receiver, RecvTimeoutError, Sender};
 use std::sync::Arc;
@@ -49,8 +50,10 @@ pub struct WatchArgs {
     #[arg(long, default_value_t = 115_200)]
     pub baud: u32,
     /// Folder for the session: the archive of every byte received
-    /// (`session-<UTC time>.flc`, read it again with `frothline unpack`) and the decoded
-    /// windows.csv, fronts.csv, profile.csv (replaced by each session).
+    /// (`session-<UTC time>.frothwire`, a new file for each session; read it again with
+    /// `frothline unpack`) and the decoded windows.csv, fronts.csv, profile.csv (replaced by
+    /// each session; a session started while another one writes the folder puts its CSV
+    /// files in a subfolder named after its archive).
     #[arg(long, value_name = "DIR", default_value = "frothline-data")]
     pub archive: PathBuf,
     /// A layout file (TOML) whose probe names label the probes, by index.
@@ -234,6 +237,108 @@ pub fn open_port(path: &str, baud: u32) -> serialport::Result<Box<dyn serialport
         .open()
 }
 
+/// Reads of one port are gathered for this long (from the first byte) before they go to the
+/// session as one piece: at low baud rates a read returns a byte or two, and an archive
+/// chunk per read would cost more than the bytes. 50 ms is 24 bytes at 4800 Bd and
+/// 576 bytes at 115200 Bd; the live view lags by at most this much.
+pub const GATHER: Duration = Duration::from_millis(50);
+
+/// Most bytes gathered before they go out anyway.
+const GATHER_BYTES: usize = 4096;
+
+/// Bytes read from a port and not yet handed on, with the arrival time of the first.
+#[derive(Default)]
+struct Batch {
+    bytes: Vec<u8>,
+    first: Option<(Instant, u64)>,
+}
+
+impl Batch {
+    fn add(&mut self, b: &[u8]) {
+        if self.first.is_none() {
+            self.first = Some((Instant::now(), crate::archive::now_us()));
+        }
+        self.bytes.extend_from_slice(b);
+    }
+
+    fn due(&self) -> bool {
+        self.bytes.len() >= GATHER_BYTES || self.first.is_some_and(|(t, _)| t.elapsed() >= GATHER)
+    }
+
+    /// Hand the bytes on (nothing if none): an error when the session is gone.
+    fn send(&mut self, port: usize, tx: &Sender<LinkMsg>) -> Result<(), ()> {
+        let Some((_, t_us)) = self.first.take() else {
+            return Ok(());
+        };
+        let bytes = std::mem::take(&mut self.bytes);
+        tx.send(LinkMsg::Bytes { port, t_us, bytes })
+            .map_err(|_| ())
+    }
+}
+
+/// The claim of a watch session on its folder's CSV files: `.watch-lock` holds the
+/// process id, removed when the session ends. A session that finds the lock held by a
+/// live process writes its CSV files into a subfolder named after its archive instead, so
+/// two sessions never write the same windows.csv. A lock left by a killed process is
+/// taken over.
+pub struct FolderLock {
+    path: PathBuf,
+}
+
+/// The name of the lock file in a watch folder.
+pub const LOCK_FILE: &str = ".watch-lock";
+
+impl FolderLock {
+    /// The CSV folder for a session archiving to `archive` in `dir`, and the lock if this
+    /// session holds the folder.
+    pub fn claim(dir: &Path, archive: &Path) -> (PathBuf, Option<FolderLock>) {
+        let path = dir.join(LOCK_FILE);
+        for _ in 0..2 {
+            match std::fs::OpenOptions::new()
+                .write(true)
+                .create_new(true)
+                .open(&path)
+            {
+                Ok(mut f) => {
+                    let _ = write!(f, "{}", std::process::id());
+                    return (dir.to_path_buf(), Some(FolderLock { path }));
+                }
+                Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+                    let holder = std::fs::read_to_string(&path)
+                        .ok()
+                        .and_then(|s| s.trim().parse::<u32>().ok());
+                    if holder.is_some_and(process_alive) {
+                        break;
+                    }
+                    // Left by a process that is gone: take it over.
+                    let _ = std::fs::remove_file(&path);
+                }
+                Err(_) => break,
+            }
+        }
+        let stem = archive
+            .file_stem()
+            .map_or_else(|| "session".into(), |s| s.to_string_lossy().into_owned());
+        (dir.join(stem), None)
+    }
+}
+
+impl Drop for FolderLock {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_file(&self.path);
+    }
+}
+
+/// True if process `pid` runs (Linux: /proc; elsewhere assumed, which only costs a
+/// separate CSV folder).
+fn process_alive(pid: u32) -> bool {
+    if cfg!(target_os = "linux") {
+        Path::new(&format!("/proc/{pid}")).exists()
+    } else {
+        true
+    }
+}
+
 fn reader(port: usize, path: String, baud: u32, tx: Sender<LinkMsg>, stop: Arc<AtomicBool>) {
     let mut last_failure = String::new();
     while !stop.load(Ordering::Relaxed) {
@@ -252,21 +357,16 @@ fn reader(port: usize, path: String, baud: u32, tx: Sender<LinkMsg>, stop: Arc<A
                     return;
                 }
                 let mut buf = vec![0u8; 4096];
+                let mut batch = Batch::default();
                 loop {
                     if stop.load(Ordering::Relaxed) {
+                        let _ = batch.send(port, &tx);
                         return;
                     }
                     let lost = match p.read(&mut buf) {
                         Ok(0) => Some("the port reported end of input".to_string()),
                         Ok(n) => {
-                            let msg = LinkMsg::Bytes {
-                                port,
-                                t_us: crate::archive::now_us(),
-                                bytes: buf[..n].to_vec(),
-                            };
-                            if tx.send(msg).is_err() {
-                                return;
-                            }
+                            batch.add(&buf[..n]);
                             None
                         }
                         Err(e) => match e.kind() {
@@ -276,6 +376,9 @@ fn reader(port: usize, path: String, baud: u32, tx: Sender<LinkMsg>, stop: Arc<A
                             _ => Some(e.to_string()),
                         },
                     };
+                    if (lost.is_some() || batch.due()) && batch.send(port, &tx).is_err() {
+                        return;
+                    }
                     if let Some(reason) = lost {
                         let msg = LinkMsg::Lost {
                             port,
@@ -339,6 +442,12 @@ impl std::fmt::Display for WatchSummary {
                 d.malformed + d.oversize,
                 d.bytes_discarded
             )?;
+        }
+        for w in self.report.version_warnings() {
+            writeln!(f, "  {w}")?;
+        }
+        if !self.report.runs.is_empty() {
+            writeln!(f, "  runs started: {}", self.report.runs.len())?;
         }
         if !self.report.link_gaps.is_empty() {
             writeln!(f, "  link lost {} time(s)", self.report.link_gaps.len())?;
@@ -514,7 +623,7 @@ impl Watch<'_> {
         let mark = crate::marks::Mark {
             run_number: tag.number,
             run_label: tag.label,
-            host_utc: crate::unpack::iso_utc(crate::archive::now_us()),
+            host_utc: crate::archive::utc_iso(crate::archive::now_us()),
             device_time_s,
             note: note.trim().to_string(),
         };
@@ -639,16 +748,26 @@ pub fn run_with(
         ui = Ui::Plain;
     }
     let started_us = crate::archive::now_us();
-    let session = Session::new(SessionOptions {
-        ports: opts.ports.clone(),
-        layout: opts.layout.clone(),
-        layout_text: opts.layout_text.clone(),
-        out_dir: opts.dir.clone(),
-        archive: opts
-            .dir
-            .as_ref()
-            .map(|d| d.join(crate::archive::session_file_name(started_us))),
-    })?;
+    let (archive, csv_dir, folder_lock) = match &opts.dir {
+        Some(dir) => {
+            std::fs::create_dir_all(dir).map_err(crate::error::write_err(dir))?;
+            let a =
+                ArchiveWriter::create_in(dir, started_us).map_err(crate::error::write_err(dir))?;
+            let (csv, lock) = FolderLock::claim(dir, a.path());
+            (Some(a), Some(csv), lock)
+        }
+        None => (None, None, None),
+    };
+    let separate = folder_lock.is_none() && csv_dir.is_some();
+    let session = Session::with_archive(
+        SessionOptions {
+            ports: opts.ports.clone(),
+            layout: opts.layout.clone(),
+            layout_text: opts.layout_text.clone(),
+            out_dir: csv_dir.clone(),
+        },
+        archive,
+    )?;
     let mut live = LiveState::new(&opts.ports);
     let t0 = Instant::now();
     live.started = Some(t0);
@@ -659,6 +778,12 @@ pub fn run_with(
     }
     if let Some(p) = session.archive_path() {
         live.note(format!("archiving every byte to {}", p.display()));
+    }
+    if let (true, Some(d)) = (separate, &csv_dir) {
+        live.note(format!(
+            "another session writes this folder: CSV files go to {}",
+            d.display()
+        ));
     }
     let mut term = if ui == Ui::Dashboard {
         Some(
@@ -686,6 +811,13 @@ pub fn run_with(
         let _ = writeln!(o, "# {SAFETY_LINE}");
         if let Some(p) = session.archive_path() {
             let _ = writeln!(o, "# archiving every byte to {}", p.display());
+        }
+        if let (true, Some(d)) = (separate, &csv_dir) {
+            let _ = writeln!(
+                o,
+                "# another session writes this folder: CSV files go to {}",
+                d.display()
+            );
         }
     }
     let w_marks = opts.dir.as_deref().map(crate::marks::MarksCsv::new);
@@ -722,6 +854,7 @@ pub fn run_with(
     if let Some(m) = w.marks.as_ref().filter(|m| m.written > 0) {
         report.files.push(m.path().to_path_buf());
     }
+    drop(folder_lock);
     result?;
     drained?;
     let probes = crate::dashboard::probe_rows(&w.live)

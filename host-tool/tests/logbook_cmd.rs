@@ -181,6 +181,7 @@ fn health_frame(seq: u16) -> Frame {
             saturated_samples: 3,
             tips_stuck: 0,
             buffer_high_water: 100,
+            windows_dropped: 0,
             frames_dropped: 0,
             uptime_frames: seq as u64 * 1000,
         }),

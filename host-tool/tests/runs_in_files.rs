@@ -4,7 +4,7 @@
 //! files byte for byte.
 
 use frothline_core::wire::{
-    encode, Ack, Body, DeviceDescription, Frame, FrontArrival, ProbeLayout, WindowResult,
+    encode, Ack, Body, DeviceDescription, Frame, FrontArrival, ProbeLayout, RunStart, WindowResult,
     WindowSetting, MAX_FRAME_BYTES,
 };
 use frothline_host::commands::Command;
@@ -52,15 +52,18 @@ fn window(i: u64) -> WindowResult {
 #[test]
 fn two_runs_are_told_apart_in_every_live_file_and_unpack_agrees() {
     let dir = tempfile::tempdir().unwrap();
-    let archive = dir.path().join("session.flc");
-    let mut s = Session::new(SessionOptions {
-        ports: vec!["sim".into()],
-        out_dir: Some(dir.path().join("live")),
-        archive: Some(archive.clone()),
-        ..Default::default()
-    })
-    .unwrap();
+    let archive = dir.path().join("session.frothwire");
     let t0 = 1_796_191_038_000_000u64;
+    let writer = frothline_host::archive::ArchiveWriter::create(&archive, t0).unwrap();
+    let mut s = Session::with_archive(
+        SessionOptions {
+            ports: vec!["sim".into()],
+            out_dir: Some(dir.path().join("live")),
+            ..Default::default()
+        },
+        Some(writer),
+    )
+    .unwrap();
     s.opened(0, t0).unwrap();
     let mut seq = 0u16;
     let mut from_device = |s: &mut Session, t: u64, body: Body| {
@@ -79,6 +82,17 @@ fn two_runs_are_told_apart_in_every_live_file_and_unpack_agrees() {
             .encode_command(0, &Command::StartRun(label.into()))
             .unwrap();
         s.sent(0, t, &bytes).unwrap();
+        // A version-2 device reports the run it started, then acknowledges the command.
+        from_device(
+            &mut s,
+            t + 4_000,
+            Body::RunStart(RunStart {
+                run: k as u32 + 1,
+                label: label.try_into().unwrap(),
+                uptime_frames: 0,
+                utc_ms: Some(t / 1000),
+            }),
+        );
         from_device(&mut s, t + 5_000, Body::Ack(Ack { seq: cmd_seq }));
         // The device clock starts again with each run: the same window times recur.
         from_device(

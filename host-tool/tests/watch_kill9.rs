@@ -121,7 +121,7 @@ fn kill_9() {
     let archives: Vec<PathBuf> = std::fs::read_dir(&dir)
         .unwrap()
         .map(|e| e.unwrap().path())
-        .filter(|p| p.extension().is_some_and(|x| x == "flc"))
+        .filter(|p| p.extension().is_some_and(|x| x == "frothwire"))
         .collect();
     assert_eq!(archives.len(), 1, "{archives:?}");
     let archive = &archives[0];
@@ -155,7 +155,7 @@ fn kill_9() {
 
     // Cut the archive inside its last chunk: it reads up to the chunk before.
     let bytes = std::fs::read(archive).unwrap();
-    let cut = tmp.path().join("cut.flc");
+    let cut = tmp.path().join("cut.frothwire");
     std::fs::write(&cut, &bytes[..bytes.len() - 3]).unwrap();
     let (some, rep2) = decode(&cut);
     assert!(

@@ -13,6 +13,9 @@ Window results keep the wire's integers (fixed-point units of section 7), so a t
 compare them exactly. Stops after --count window results, or --timeout seconds.
 
     python3 decode_frames.py PORT [--count N] [--timeout SECONDS] [--baud B]
+
+`decode(frame)` is also imported by check_decoders.py, which runs it beside the reference
+decoder of the spec on golden vectors and mutated frames.
 """
 
 import argparse
@@ -22,6 +25,7 @@ import time
 import zlib
 
 MAX_FRAME_BYTES = 545  # section 1: no valid frame is longer (0x00 included)
+VERSION = 2  # section 4
 
 
 def cobs_decode(enc):
@@ -79,13 +83,13 @@ class Cursor:
         raise ValueError("option tag")
 
     def seq(self, read, cap):
-        n = self.uvar(64)
+        n = self.uvar(32)  # section 3: length prefixes are u32 varints
         if n > cap:
             raise ValueError("too many elements")
         return [read() for _ in range(n)]
 
     def text(self, cap):
-        n = self.uvar(64)
+        n = self.uvar(32)
         if n > cap or self.pos + n > len(self.data):
             raise ValueError("string")
         s = self.data[self.pos:self.pos + n].decode("utf-8")
@@ -113,6 +117,8 @@ def window_setting(c):
         return {"frames": u32(c)}
     if variant == 2:
         return {"bubbles": u32(c), "probe": c.byte(), "max_frames": c.opt(lambda: u32(c))}
+    if variant == 3:
+        return {"after_front": u32(c)}
     raise ValueError("window setting")
 
 
@@ -152,9 +158,26 @@ def describe(c):
 
 def health(c):
     keys = ["samples_dropped", "saturated_samples", "tips_stuck", "buffer_high_water",
-            "frames_dropped", "uptime_frames"]
-    widths = [64, 64, 64, 32, 32, 64]
+            "windows_dropped", "frames_dropped", "uptime_frames"]
+    widths = [64, 64, 64, 32, 32, 32, 64]
     return {k: c.uvar(w) for k, w in zip(keys, widths)}
+
+
+def run_start(c):
+    return {"run": u32(c), "label": c.text(16), "uptime_frames": u64(c),
+            "utc_ms": c.opt(lambda: u64(c))}
+
+
+def profile(c):
+    return {"station": c.byte(), "slice_start": u64(c), "slice_frames": u32(c),
+            "probes_used": c.byte(), "y90": c.opt(lambda: u32(c)),
+            "mean_void_fraction": c.opt(lambda: u16(c)),
+            "equivalent_depth": c.opt(lambda: u32(c)), "exponent": c.opt(lambda: u16(c)),
+            "fit_rmse": c.opt(lambda: u16(c)), "flags": u32(c)}
+
+
+def empty(c):
+    return None
 
 
 # Section 5: kind codes and their bodies.
@@ -162,7 +185,14 @@ KINDS = {
     0x01: ("describe", describe),
     0x02: ("windows", lambda c: c.seq(lambda: window_result(c), 8)),
     0x03: ("front", lambda c: {"probe": c.byte(), "station": c.byte(), "frame": u64(c)}),
+    0x04: ("profile", profile),
     0x05: ("health", health),
+    0x06: ("run_start", run_start),
+    0x20: ("start_run", lambda c: {"label": c.text(16), "utc_ms": c.opt(lambda: u64(c))}),
+    0x21: ("stop_run", empty),
+    0x22: ("set_window", window_setting),
+    0x23: ("relearn", lambda c: {"probes": u32(c)}),
+    0x24: ("describe_request", empty),
     0x30: ("ack", lambda c: {"seq": u16(c)}),
     0x31: ("nack", lambda c: {"seq": u16(c), "reason": c.byte()}),
 }
@@ -170,6 +200,8 @@ KINDS = {
 
 def decode(frame):
     """One frame (the bytes between two delimiters) -> dict, or raises ValueError."""
+    if len(frame) >= MAX_FRAME_BYTES:
+        raise ValueError("oversize")
     data = cobs_decode(frame)
     if len(data) < 8:
         raise ValueError("short")
@@ -178,7 +210,7 @@ def decode(frame):
         raise ValueError("CRC")
     c = Cursor(payload)
     version, device, kind, seq = c.byte(), u16(c), c.byte(), u16(c)
-    if version != 1 or kind not in KINDS:
+    if version != VERSION or kind not in KINDS:
         return {"device": device, "seq": seq, "kind": "unsupported", "code": kind}
     name, parse = KINDS[kind]
     body = parse(c)
@@ -212,7 +244,7 @@ def main():
         pending += chunk
         *frames, rest = bytes(pending).split(b"\x00")
         pending = bytearray(rest)
-        if len(pending) > MAX_FRAME_BYTES:
+        if len(pending) >= MAX_FRAME_BYTES:
             counts["oversize"] += 1
             pending = bytearray()
         for f in frames:
@@ -220,7 +252,7 @@ def main():
                 continue
             try:
                 d = decode(f)
-            except (ValueError, UnicodeDecodeError):
+            except ValueError:  # UnicodeDecodeError is one
                 counts["crc_or_malformed"] += 1
                 continue
             counts["frames"] += 1

@@ -65,9 +65,12 @@ impl core::fmt::Display for WireError {
             WireError::TooShort => write!(f, "frame shorter than a header and a CRC"),
             WireError::Crc => write!(f, "CRC mismatch"),
             WireError::Malformed => write!(f, "payload does not parse"),
-            WireError::UnsupportedVersion(h) => {
-                write!(f, "protocol version {} not supported", h.version)
-            }
+            WireError::UnsupportedVersion(h) => write!(
+                f,
+                "frame of protocol version {} from device {}: this build reads version {} only \
+                 (update the device's firmware or the host tool so both speak the same version)",
+                h.version, h.device, PROTOCOL_VERSION
+            ),
             WireError::UnknownKind(h) => write!(f, "unknown frame kind 0x{:02x}", h.kind),
         }
     }
@@ -99,6 +102,7 @@ pub fn encode<'b>(frame: &Frame, buf: &'b mut [u8]) -> Result<&'b [u8], WireErro
         Body::Front(b) => emit(&h, b, buf),
         Body::Profile(b) => emit(&h, b, buf),
         Body::Health(b) => emit(&h, b, buf),
+        Body::RunStart(b) => emit(&h, b, buf),
         Body::StartRun(b) => emit(&h, b, buf),
         Body::SetWindow(b) => emit(&h, b, buf),
         Body::Relearn(b) => emit(&h, b, buf),
@@ -138,6 +142,7 @@ pub fn decode_unstuffed(data: &[u8]) -> Result<Frame, WireError> {
         Kind::Front => Body::Front(exact(rest)?),
         Kind::Profile => Body::Profile(exact(rest)?),
         Kind::Health => Body::Health(exact(rest)?),
+        Kind::RunStart => Body::RunStart(exact(rest)?),
         Kind::StartRun => Body::StartRun(exact(rest)?),
         Kind::StopRun => empty(rest, Body::StopRun)?,
         Kind::SetWindow => Body::SetWindow(exact(rest)?),
@@ -154,7 +159,7 @@ pub fn decode_unstuffed(data: &[u8]) -> Result<Frame, WireError> {
 }
 
 /// Deserialize a `T` that must use up every byte.
-fn exact<'a, T: Deserialize<'a>>(bytes: &'a [u8]) -> Result<T, WireError> {
+pub(crate) fn exact<'a, T: Deserialize<'a>>(bytes: &'a [u8]) -> Result<T, WireError> {
     match postcard::take_from_bytes::<T>(bytes) {
         Ok((v, [])) => Ok(v),
         _ => Err(WireError::Malformed),

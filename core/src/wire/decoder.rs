@@ -21,6 +21,7 @@
 //!             remaining
 //!         }
 //!         FeedResult::Unsupported { remaining, .. }
+//!         | FeedResult::BadFraming { remaining }
 //!         | FeedResult::CrcFailure { remaining }
 //!         | FeedResult::Malformed { remaining }
 //!         | FeedResult::Oversize { remaining } => remaining,
@@ -33,14 +34,29 @@
 //! are skipped silently, so a sender may put an extra 0x00 before a frame to mark a start.
 //!
 //! Sequence numbers are tracked per device id in a table of `D` entries (the least recently
-//! seen device is evicted when a new one arrives and the table is full). A gap counts its
-//! missing frames as lost; a repeated or older number is counted as a duplicate or stale
-//! frame, never as loss. A gap of 32768 or more reads as "older" (the 16-bit sequence
-//! number is compared modulo 65536).
+//! seen device is evicted when a new one arrives and the table is full), by the state
+//! machine of `docs/wire-protocol.md` section 9 (modulo 65536):
+//!
+//! ```text
+//! distance d = (seq - last - 1) mod 65536
+//! Tracking(last): d = 0                      -> InOrder
+//!                 seq = last                 -> Duplicate   (contents not to be used)
+//!                 seq = 0 and kind Describe  -> Restarted   (a device's first frame)
+//!                 0 < d < MAX_GAP            -> Gap(d)      (d frames lost)
+//!                 else                       -> Stale, and Doubt(last, seq)
+//! Doubt(last, c): seq = c + 1                -> Restarted   (c un-counted from stale)
+//!                 else                       -> as Tracking(last)
+//! ```
 
 use crate::wire::codec::{decode, WireError};
 use crate::wire::frame::{Frame, Header};
 use crate::wire::{MAX_FRAME_BYTES, MIN_FRAME_BYTES};
+
+/// The largest forward jump of a sequence number read as frames lost on the link. A larger
+/// jump (a restart from a number of 4096 or more, a stray frame) is held in doubt: the
+/// next frame tells a restart from a stray (see the module docs). 4096 frames are more
+/// than three minutes of 8 probes at 20 windows/s; a longer silence shows as a link gap.
+pub const MAX_GAP: u16 = 4096;
 
 /// What one call to [`Decoder::feed`] produced. `remaining` is the input after the
 /// delimiter that completed the event: feed it next.
@@ -69,13 +85,18 @@ pub enum FeedResult<'a> {
         /// Unread input.
         remaining: &'a [u8],
     },
-    /// A frame whose CRC did not match (or that was too short to hold one).
+    /// Bytes between two delimiters that are not a frame: invalid COBS, or fewer than 8
+    /// bytes after COBS decoding (no room for the smallest header and the CRC).
+    BadFraming {
+        /// Unread input.
+        remaining: &'a [u8],
+    },
+    /// A frame whose CRC did not match.
     CrcFailure {
         /// Unread input.
         remaining: &'a [u8],
     },
-    /// A frame that was not valid COBS, or whose CRC matched but whose payload did not
-    /// parse.
+    /// A frame whose CRC matched but whose payload did not parse.
     Malformed {
         /// Unread input.
         remaining: &'a [u8],
@@ -94,6 +115,7 @@ impl<'a> FeedResult<'a> {
             FeedResult::Consumed => &[],
             FeedResult::Frame { remaining, .. }
             | FeedResult::Unsupported { remaining, .. }
+            | FeedResult::BadFraming { remaining }
             | FeedResult::CrcFailure { remaining }
             | FeedResult::Malformed { remaining }
             | FeedResult::Oversize { remaining } => remaining,
@@ -115,8 +137,9 @@ pub enum SeqCheck {
     Duplicate,
     /// An older number (reordered or replayed); the tracked number is kept.
     Stale,
-    /// A second frame in a row older than the tracked number, following the previous
-    /// one: the device restarted its numbering; tracking continues from here.
+    /// The device restarted its numbering; tracking continues from here. Either a
+    /// Describe with sequence number 0 out of order (a device's first frame after power-on),
+    /// or the second of two frames that did not fit, following each other.
     Restarted,
 }
 
@@ -128,10 +151,16 @@ pub struct DecoderStats {
     pub frames: u64,
     /// Valid frames of an unsupported version or kind.
     pub unsupported: u64,
-    /// Frames rejected for their CRC (or too short to carry one).
+    /// Valid frames of an unsupported protocol version (also counted in `unsupported`).
+    pub other_version: u64,
+    /// The version of the last such frame (0: none seen).
+    pub last_other_version: u8,
+    /// Byte runs between delimiters that were no frame: invalid COBS, or fewer than 8
+    /// bytes after COBS decoding.
+    pub bad_framing: u64,
+    /// Frames rejected for their CRC.
     pub crc_failures: u64,
-    /// Frames rejected as malformed (bad COBS, or a valid CRC over a payload that does not
-    /// parse).
+    /// Frames with a valid CRC over a payload that does not parse.
     pub malformed: u64,
     /// Frames longer than the buffer.
     pub oversize: u64,
@@ -211,6 +240,9 @@ impl<const N: usize, const D: usize> Decoder<N, D> {
             stats: DecoderStats {
                 frames: 0,
                 unsupported: 0,
+                other_version: 0,
+                last_other_version: 0,
+                bad_framing: 0,
                 crc_failures: 0,
                 malformed: 0,
                 oversize: 0,
@@ -291,9 +323,11 @@ impl<const N: usize, const D: usize> Decoder<N, D> {
             return;
         }
         if !self.overflow {
-            if let Some(dst) = self.buf.get_mut(self.len..self.len + bytes.len()) {
+            // A frame of N bytes counts its delimiter: at most N - 1 bytes come before it.
+            let end = self.len + bytes.len();
+            if let Some(dst) = self.buf.get_mut(self.len..end).filter(|_| end < N) {
                 dst.copy_from_slice(bytes);
-                self.len += bytes.len();
+                self.len = end;
                 return;
             }
             self.overflow = true;
@@ -320,16 +354,22 @@ impl<const N: usize, const D: usize> Decoder<N, D> {
         match decode(&mut self.buf[..n]) {
             Ok(frame) => {
                 self.stats.frames = self.stats.frames.saturating_add(1);
-                let seq = self.track(frame.device, frame.seq);
+                let power_on =
+                    frame.seq == 0 && matches!(frame.body, crate::wire::Body::Describe(_));
+                let seq = self.track(frame.device, frame.seq, power_on);
                 Some(FeedResult::Frame {
                     frame,
                     seq,
                     remaining,
                 })
             }
-            Err(WireError::UnsupportedVersion(header) | WireError::UnknownKind(header)) => {
+            Err(e @ (WireError::UnsupportedVersion(header) | WireError::UnknownKind(header))) => {
                 self.stats.unsupported = self.stats.unsupported.saturating_add(1);
-                let seq = self.track(header.device, header.seq);
+                if matches!(e, WireError::UnsupportedVersion(_)) {
+                    self.stats.other_version = self.stats.other_version.saturating_add(1);
+                    self.stats.last_other_version = header.version;
+                }
+                let seq = self.track(header.device, header.seq, false);
                 Some(FeedResult::Unsupported {
                     header,
                     seq,
@@ -339,7 +379,11 @@ impl<const N: usize, const D: usize> Decoder<N, D> {
             Err(e) => {
                 s.bytes_discarded = s.bytes_discarded.saturating_add(n as u64);
                 Some(match e {
-                    WireError::Crc | WireError::TooShort => {
+                    WireError::Cobs | WireError::TooShort => {
+                        s.bad_framing = s.bad_framing.saturating_add(1);
+                        FeedResult::BadFraming { remaining }
+                    }
+                    WireError::Crc => {
                         s.crc_failures = s.crc_failures.saturating_add(1);
                         FeedResult::CrcFailure { remaining }
                     }
@@ -352,7 +396,7 @@ impl<const N: usize, const D: usize> Decoder<N, D> {
         }
     }
 
-    fn track(&mut self, device: u16, seq: u16) -> SeqCheck {
+    fn track(&mut self, device: u16, seq: u16, power_on: bool) -> SeqCheck {
         self.tick = self.tick.wrapping_add(1);
         let tick = self.tick;
         let slot = match self
@@ -394,20 +438,29 @@ impl<const N: usize, const D: usize> Decoder<N, D> {
         e.touched = tick;
         e.stats.frames = e.stats.frames.saturating_add(1);
         let gap = seq.wrapping_sub(e.stats.last_seq.wrapping_add(1));
-        if gap < 0x8000 {
+        if gap == 0 {
             e.stats.last_seq = seq;
             e.stale_run = None;
-            if gap == 0 {
-                return SeqCheck::InOrder;
-            }
-            e.stats.lost = e.stats.lost.saturating_add(gap as u64);
-            s.lost = s.lost.saturating_add(gap as u64);
-            return SeqCheck::Gap(gap);
+            return SeqCheck::InOrder;
         }
         if seq == e.stats.last_seq {
             e.stats.duplicates = e.stats.duplicates.saturating_add(1);
             s.duplicates = s.duplicates.saturating_add(1);
             return SeqCheck::Duplicate;
+        }
+        if power_on {
+            e.stats.last_seq = seq;
+            e.stale_run = None;
+            e.stats.restarts = e.stats.restarts.saturating_add(1);
+            s.restarts = s.restarts.saturating_add(1);
+            return SeqCheck::Restarted;
+        }
+        if gap < MAX_GAP {
+            e.stats.last_seq = seq;
+            e.stale_run = None;
+            e.stats.lost = e.stats.lost.saturating_add(gap as u64);
+            s.lost = s.lost.saturating_add(gap as u64);
+            return SeqCheck::Gap(gap);
         }
         if e.stale_run.is_some_and(|prev| seq == prev.wrapping_add(1)) {
             e.stats.last_seq = seq;
@@ -464,7 +517,7 @@ mod tests {
         assert_eq!(dec.stats().lost, 2);
         assert_eq!(dec.stats().duplicates, 1);
         assert_eq!(dec.stats().stale, 1);
-        // A restart: 0, 1 after 3 (0 is stale, then 1 follows it).
+        // A restart: 0, 1 after 3 (0 is stale, then 1 follows it; no Describe marks it).
         assert_eq!(seq_of(&mut dec, &ack(1, 0)), SeqCheck::Stale);
         assert_eq!(seq_of(&mut dec, &ack(1, 1)), SeqCheck::Restarted);
         assert_eq!(seq_of(&mut dec, &ack(1, 2)), SeqCheck::InOrder);

@@ -69,6 +69,8 @@ pub enum Kind {
     Profile = 0x04,
     /// [`Health`]: cumulative device health counters.
     Health = 0x05,
+    /// [`RunStart`]: a run began (its number, label, start on the device clock, host UTC).
+    RunStart = 0x06,
     /// Command [`StartRun`].
     StartRun = 0x20,
     /// Command: stop the run (no body).
@@ -87,12 +89,13 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 12] = [
+    pub const ALL: [Kind; 13] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
         Kind::Profile,
         Kind::Health,
+        Kind::RunStart,
         Kind::StartRun,
         Kind::StopRun,
         Kind::SetWindow,
@@ -115,6 +118,7 @@ impl Kind {
             0x03 => Kind::Front,
             0x04 => Kind::Profile,
             0x05 => Kind::Health,
+            0x06 => Kind::RunStart,
             0x20 => Kind::StartRun,
             0x21 => Kind::StopRun,
             0x22 => Kind::SetWindow,
@@ -125,6 +129,11 @@ impl Kind {
             _ => return None,
         })
     }
+
+    /// Codes set aside for kinds that are specified but not implemented by this build:
+    /// 0x07 log-chunk reply, 0x25 set-clock, 0x26 set-levels, 0x27 read-log. A device
+    /// answers the command codes among them with Nack `UnknownCommand`; a host skips 0x07.
+    pub const RESERVED: [u8; 4] = [0x07, 0x25, 0x26, 0x27];
 
     /// True for the kinds a device sends (results and replies).
     pub const fn is_from_device(self) -> bool {
@@ -181,6 +190,8 @@ pub enum Body {
     Profile(ProfileFit),
     /// Health counters.
     Health(Health),
+    /// A run began.
+    RunStart(RunStart),
     /// Command: start a run.
     StartRun(StartRun),
     /// Command: stop the run.
@@ -206,6 +217,7 @@ impl Body {
             Body::Front(_) => Kind::Front,
             Body::Profile(_) => Kind::Profile,
             Body::Health(_) => Kind::Health,
+            Body::RunStart(_) => Kind::RunStart,
             Body::StartRun(_) => Kind::StartRun,
             Body::StopRun => Kind::StopRun,
             Body::SetWindow(_) => Kind::SetWindow,
@@ -375,11 +387,33 @@ pub struct Health {
     pub tips_stuck: u64,
     /// Highest fill of the acquisition buffer, samples.
     pub buffer_high_water: u32,
-    /// Frames the streamer dropped because the link could not keep up (filled in by the
+    /// Window results (entries of kind 0x02, not frames) the streamer dropped, oldest
+    /// first, because the link could not keep up (filled in by the
     /// [`Streamer`](crate::wire::Streamer) when it sends the frame).
+    pub windows_dropped: u32,
+    /// Whole frames the streamer dropped: urgent frames (fronts, profiles, run starts,
+    /// replies) offered to a full queue, and frames that failed to encode.
     pub frames_dropped: u32,
     /// Frames (sample-clock ticks) since the device started sampling.
     pub uptime_frames: u64,
+}
+
+/// Kind 0x06: a run began. Sent before any result of the run (and, for a run started by
+/// a command, before the command's Ack), so a host can label every later row with the
+/// run's number, label and UTC start.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct RunStart {
+    /// Run number since power-on: 1 for the first run, +1 per run (saturating).
+    pub run: u32,
+    /// The run's label (the StartRun command's; empty for a run the device started itself).
+    pub label: String<LABEL_BYTES>,
+    /// Device time of the run's frame 0: sample-clock frames since the device started
+    /// sampling (the clock of [`Health::uptime_frames`]).
+    pub uptime_frames: u64,
+    /// The host's UTC at the StartRun command, milliseconds since the Unix epoch; absent
+    /// for a run the device started by itself.
+    pub utc_ms: Option<u64>,
 }
 
 // ---------------------------------------------------------------------------------------
@@ -392,10 +426,14 @@ pub struct Health {
 pub struct StartRun {
     /// A label for the run, UTF-8, at most [`LABEL_BYTES`] bytes.
     pub label: String<LABEL_BYTES>,
+    /// The host's UTC now, milliseconds since the Unix epoch (absent: the host has no
+    /// clock). The device quotes it in the run's [`RunStart`].
+    pub utc_ms: Option<u64>,
 }
 
 /// Kind 0x22 body: a window policy. Encoded by postcard's variant index (varint): 0 = whole,
-/// 1 = fixed frames, 2 = bubble count. Append new variants only.
+/// 1 = fixed frames, 2 = bubble count, 3 = fixed frames counted from the front. Append new
+/// variants only.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum WindowSetting {
@@ -412,6 +450,12 @@ pub enum WindowSetting {
         probe: u8,
         /// Longest window, frames.
         max_frames: Option<u32>,
+    },
+    /// Windows of `frames` frames counted from each station's front arrival, after one
+    /// pre-front record (index 3): what a transient run streams.
+    AfterFront {
+        /// Window length, frames.
+        frames: u32,
     },
 }
 
@@ -430,6 +474,7 @@ impl WindowSetting {
                 probe,
                 max_frames,
             },
+            WindowSetting::AfterFront { frames } => crate::WindowPolicy::AfterFront { frames },
         })
     }
 
@@ -448,6 +493,10 @@ impl WindowSetting {
                 probe,
                 max_frames,
             }),
+            crate::WindowPolicy::AfterFront { frames } => {
+                Some(WindowSetting::AfterFront { frames })
+            }
+            #[allow(unreachable_patterns)]
             _ => None,
         }
     }
@@ -501,6 +550,9 @@ pub enum NackReason {
     AlreadyRunning,
     /// 6: the command's protocol version is not supported.
     UnsupportedVersion,
+    /// 7: the CRC holds but the body does not parse (a byte left over, a label over 16
+    /// bytes, an unknown window variant).
+    Malformed,
     /// A code this build does not know.
     Other(u8),
 }
@@ -515,6 +567,7 @@ impl NackReason {
             NackReason::NotRunning => 4,
             NackReason::AlreadyRunning => 5,
             NackReason::UnsupportedVersion => 6,
+            NackReason::Malformed => 7,
             NackReason::Other(c) => c,
         }
     }
@@ -528,6 +581,7 @@ impl NackReason {
             4 => NackReason::NotRunning,
             5 => NackReason::AlreadyRunning,
             6 => NackReason::UnsupportedVersion,
+            7 => NackReason::Malformed,
             c => NackReason::Other(c),
         }
     }

@@ -14,7 +14,10 @@
 //! - [`codec`]: [`encode`] and [`decode`] of one frame into and out of caller buffers;
 //! - [`decoder`]: the streaming [`Decoder`] a serial read loop feeds, with resynchronisation
 //!   and loss counting;
-//! - [`streamer`]: the device-side [`Streamer`] that fits frames into the link's byte budget.
+//! - [`streamer`]: the device-side [`Streamer`] that fits frames into the link's byte budget;
+//! - [`responder`]: the device-side [`Responder`] that reads command frames and answers
+//!   them (idempotent sequence numbers, already running, unknown kinds, malformed bodies),
+//!   the one command handler of every device.
 //!
 //! The byte layout is specified in `docs/wire-protocol.md` (enough to write a decoder in
 //! another language); the golden vectors in `core/tests/wire.rs` pin it.
@@ -26,22 +29,29 @@ pub mod codec;
 pub mod decoder;
 pub mod frame;
 pub mod quant;
+pub mod responder;
 pub mod streamer;
 
 pub use codec::{crc32, decode, decode_unstuffed, encode, WireError};
 pub use decoder::{Decoder, DecoderStats, DeviceSeqStats, FeedResult, SeqCheck};
 pub use frame::{
     Ack, Body, ChordTimes, Correlation, DeviceDescription, Frame, FrontArrival, Header, Health,
-    Kind, Nack, NackReason, ProbeLayout, ProfileFit, Relearn, StartRun, TrailingTip, WindowResult,
-    WindowSetting, Windows,
+    Kind, Nack, NackReason, ProbeLayout, ProfileFit, Relearn, RunStart, StartRun, TrailingTip,
+    WindowResult, WindowSetting, Windows,
 };
+pub use responder::{Command, CommandTarget, Reply, Responder, ResponderStats};
 pub use streamer::{Offer, Streamer, StreamerConfig, StreamerStats};
 
 use postcard::experimental::max_size::MaxSize;
 
 /// The protocol version every frame carries in its first byte. Bump it whenever a body
 /// layout changes; the header layout itself never changes.
-pub const PROTOCOL_VERSION: u8 = 1;
+pub const PROTOCOL_VERSION: u8 = 2;
+
+/// The device id a host writes into the header of its command frames. No device uses it;
+/// a device ignores frames that carry another id (its own output echoed back, another
+/// device's frames on a shared line).
+pub const HOST_ID: u16 = 0xFFFF;
 
 /// Most probes a device description can list.
 pub const MAX_PROBES: usize = 16;
@@ -71,6 +81,7 @@ pub const MAX_BODY_BYTES: usize = {
     m = max(m, FrontArrival::POSTCARD_MAX_SIZE);
     m = max(m, ProfileFit::POSTCARD_MAX_SIZE);
     m = max(m, Health::POSTCARD_MAX_SIZE);
+    m = max(m, RunStart::POSTCARD_MAX_SIZE);
     m = max(m, StartRun::POSTCARD_MAX_SIZE);
     m = max(m, WindowSetting::POSTCARD_MAX_SIZE);
     m = max(m, Relearn::POSTCARD_MAX_SIZE);

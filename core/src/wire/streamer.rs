@@ -13,15 +13,17 @@
 //! and every byte handed out spends one byte of credit. Each call does bounded work: at
 //! most one frame is encoded.
 //!
-//! Policy when the link cannot keep up: urgent frames go first, then the description, then
-//! health, then window results. Window results wait in a queue of `Q`; when it is full the
+//! Policy when the link cannot keep up: the very first frame is the description if one is
+//! queued (a device's power-on marker); after it urgent frames go first, then the
+//! description, then health, then window results. Window results wait in a queue of `Q`; when it is full the
 //! **oldest** result is dropped. A new description or health frame replaces a queued one
 //! (nothing is lost: health counters are cumulative). An urgent frame offered to a full
-//! urgent queue is dropped. Every drop is counted, and the total goes out in the
-//! `frames_dropped` field of the next health frame (filled in when it is encoded), so drops
-//! are never silent. Sequence numbers are given when a frame is encoded, so a frame dropped
-//! here leaves no sequence gap: gaps at the host mean link loss, `frames_dropped` means
-//! streamer drops, and the two never count the same frame.
+//! urgent queue is dropped. Every drop is counted, and the totals go out in the
+//! `windows_dropped` (window results) and `frames_dropped` (whole frames) fields of the
+//! next health frame (filled in when it is encoded), so drops are never silent. Sequence
+//! numbers are given when a frame is encoded, so a frame dropped here leaves no sequence
+//! gap: gaps at the host mean link loss, the health counters mean streamer drops, and the
+//! two never count the same frame.
 //!
 //! Window results waiting together are packed into one frame (up to
 //! [`MAX_WINDOWS_PER_FRAME`]), which shares the header, CRC and COBS overhead: the results
@@ -29,8 +31,8 @@
 
 use crate::wire::codec::encode;
 use crate::wire::frame::{
-    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, StartRun,
-    WindowResult, WindowSetting, Windows,
+    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, RunStart,
+    StartRun, WindowResult, WindowSetting, Windows,
 };
 use crate::wire::{MAX_FRAME_BYTES, MAX_WINDOWS_PER_FRAME};
 use heapless::Deque;
@@ -97,11 +99,9 @@ pub struct StreamerStats {
 }
 
 impl StreamerStats {
-    /// Every frame or window result dropped: what health frames report.
-    pub fn dropped(&self) -> u32 {
-        self.windows_dropped
-            .saturating_add(self.urgent_dropped)
-            .saturating_add(self.encode_errors)
+    /// Whole frames dropped (urgent queue full, encode errors): `Health::frames_dropped`.
+    pub fn frames_dropped(&self) -> u32 {
+        self.urgent_dropped.saturating_add(self.encode_errors)
     }
 }
 
@@ -109,6 +109,7 @@ impl StreamerStats {
 #[derive(Clone, Debug)]
 enum Urgent {
     Front(FrontArrival),
+    RunStart(RunStart),
     Profile(ProfileFit),
     StartRun(StartRun),
     StopRun,
@@ -123,6 +124,7 @@ impl Urgent {
     fn into_body(self) -> Body {
         match self {
             Urgent::Front(b) => Body::Front(b),
+            Urgent::RunStart(b) => Body::RunStart(b),
             Urgent::Profile(b) => Body::Profile(b),
             Urgent::StartRun(b) => Body::StartRun(b),
             Urgent::StopRun => Body::StopRun,
@@ -190,6 +192,7 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
             Body::Describe(d) => return Self::replace(&mut self.describe, d, &mut self.stats),
             Body::Health(h) => return Self::replace(&mut self.health, h, &mut self.stats),
             Body::Front(b) => Urgent::Front(b),
+            Body::RunStart(b) => Urgent::RunStart(b),
             Body::Profile(b) => Urgent::Profile(b),
             Body::StartRun(b) => Urgent::StartRun(b),
             Body::StopRun => Urgent::StopRun,
@@ -269,6 +272,12 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
         &self.stats
     }
 
+    /// Free places in the urgent queue: a device reads its next command only while there
+    /// is room for the answer (and a RunStart), leaving further commands in its receiver.
+    pub fn urgent_room(&self) -> usize {
+        P - self.urgent.len()
+    }
+
     /// Window results waiting.
     pub fn queued_windows(&self) -> usize {
         self.windows.len()
@@ -303,12 +312,21 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
 
     /// Encode the next frame into the transmit buffer; false if nothing waits.
     fn load(&mut self) -> bool {
-        let body = if let Some(u) = self.urgent.pop_front() {
+        // A device's first frame is its description (the power-on marker of the sequence
+        // state machine, docs/wire-protocol.md section 9), whatever else waits.
+        let first = self.stats.frames_sent == 0 && self.describe.is_some();
+        let body = if first {
+            match self.describe.take() {
+                Some(d) => Body::Describe(d),
+                None => return false,
+            }
+        } else if let Some(u) = self.urgent.pop_front() {
             u.into_body()
         } else if let Some(d) = self.describe.take() {
             Body::Describe(d)
         } else if let Some(mut h) = self.health.take() {
-            h.frames_dropped = self.stats.dropped();
+            h.windows_dropped = self.stats.windows_dropped;
+            h.frames_dropped = self.stats.frames_dropped();
             Body::Health(h)
         } else if !self.windows.is_empty() {
             let mut ws = Windows::new();
@@ -420,7 +438,7 @@ mod tests {
         // Health first (it carries the drop count), then the two newest windows in one frame.
         assert_eq!(got.len(), 2);
         match &got[0].body {
-            Body::Health(h) => assert_eq!(h.frames_dropped, 3),
+            Body::Health(h) => assert_eq!((h.windows_dropped, h.frames_dropped), (3, 0)),
             other => panic!("{other:?}"),
         }
         match &got[1].body {

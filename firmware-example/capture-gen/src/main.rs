@@ -15,6 +15,10 @@
 //! every window result equals the one a host replay of the capture gives, in order, with
 //! no frame lost or corrupt.
 //!
+//! `commands-in OUT.bin` writes the host commands of the firmware's `commands` check (one
+//! of every answer of docs/wire-protocol.md section 8) as the bytes QEMU feeds to UART0;
+//! `verify-commands UART.bin` checks the firmware's answers to them, in order.
+//!
 //! `LAGS` is the firmware chain's number of correlation lag slots: every probe's `max_lag`
 //! must stay below it, or the device would cap a lag the host does not (the records would
 //! differ), and the generator refuses.
@@ -52,6 +56,12 @@ fn run() -> Result<(), String> {
     }
     if args.first().map(String::as_str) == Some("verify-log") {
         return verify_log(&args[1..]);
+    }
+    if args.first().map(String::as_str) == Some("commands-in") {
+        return commands_in(&args[1..]);
+    }
+    if args.first().map(String::as_str) == Some("verify-commands") {
+        return verify_commands(&args[1..]);
     }
     let [capture, layout, window, lags, out] = args.as_slice() else {
         return Err(
@@ -444,6 +454,7 @@ fn verify_uart(args: &[String]) -> Result<(), String> {
                     last_health = Some(h);
                 }
                 Body::Front(_) | Body::Profile(_) => fronts_profiles += 1,
+                Body::RunStart(r) if r.run == 1 => {}
                 other => eprintln!("verify-uart: unexpected frame {other:?}"),
             }
         }
@@ -726,6 +737,162 @@ fn device_shaped_check<const P: usize, const L: usize>(
         return Err(format!(
             "a chain of the firmware's shape gives other records than the host replay; {detail}"
         ));
+    }
+    Ok(())
+}
+
+/// COBS of `data` with the delimiter (docs/wire-protocol.md section 1), for hand-made
+/// payloads.
+fn cobs(data: &[u8]) -> Vec<u8> {
+    let mut out = vec![0u8];
+    let mut code_at = 0;
+    for &b in data {
+        if b == 0 || out.len() - code_at == 0xFF {
+            out[code_at] = (out.len() - code_at) as u8;
+            code_at = out.len();
+            out.push(0);
+            if b == 0 {
+                continue;
+            }
+        }
+        out.push(b);
+    }
+    out[code_at] = (out.len() - code_at) as u8;
+    out.push(0);
+    out
+}
+
+/// A frame of a hand-made payload (header and body), CRC added.
+fn raw_frame(payload: &[u8]) -> Vec<u8> {
+    let mut d = payload.to_vec();
+    d.extend_from_slice(&frothline_core::wire::crc32(payload).to_le_bytes());
+    cobs(&d)
+}
+
+/// The commands of the `commands` check and the answer each must get, in order: the seq
+/// and `None` for an Ack or the Nack code. Frames that must get no answer have none.
+fn command_script() -> Result<(Vec<u8>, Vec<(u16, Option<u8>)>), String> {
+    use frothline_core::wire::{Body, Frame, WindowSetting};
+    use frothline_host::commands::{Command, CommandLog};
+    let mut log = CommandLog::default();
+    let mut bytes = Vec::new();
+    let mut want = Vec::new();
+    let mut send = |bytes: &mut Vec<u8>, c: Command| -> Result<(u16, Vec<u8>), String> {
+        let (seq, b) = log.encode(&c)?;
+        bytes.extend_from_slice(&b);
+        Ok((seq, b))
+    };
+    // The run started at power-on: a StartRun is already_running, and the same frame
+    // again (a host retrying) gets the same answer, not run again.
+    let (s, again) = send(&mut bytes, Command::StartRun("again".into()))?;
+    bytes.extend_from_slice(&again);
+    want.extend([(s, Some(5)), (s, Some(5))]);
+    // DescribeRequest, and its repeat: Ack twice, one description.
+    let (s, again) = send(&mut bytes, Command::DescribeRequest)?;
+    bytes.extend_from_slice(&again);
+    want.extend([(s, None), (s, None)]);
+    // Unknown kind 0x7E, version 1, a trailing byte after StopRun, a 17-byte label.
+    bytes.extend(raw_frame(&[2, 0xFF, 0xFF, 0x03, 0x7E, 0x20]));
+    want.push((0x20, Some(1)));
+    bytes.extend(raw_frame(&[1, 0xFF, 0xFF, 0x03, 0x21, 0x21]));
+    want.push((0x21, Some(6)));
+    bytes.extend(raw_frame(&[2, 0xFF, 0xFF, 0x03, 0x21, 0x22, 0x00]));
+    want.push((0x22, Some(7)));
+    let mut long = vec![2, 0xFF, 0xFF, 0x03, 0x20, 0x23, 17];
+    long.extend_from_slice(b"0123456789abcdefg");
+    long.push(0);
+    bytes.extend(raw_frame(&long));
+    want.push((0x23, Some(7)));
+    // A zero window and a mask of no probe: bad_argument; valid ones: busy (this firmware
+    // does not rebuild its chain during a run).
+    let (s, _) = send(&mut bytes, Command::SetWindow(WindowSetting::Frames(0)))?;
+    want.push((s, Some(2)));
+    let (s, _) = send(&mut bytes, Command::SetWindow(WindowSetting::Frames(1000)))?;
+    want.push((s, Some(3)));
+    let (s, _) = send(&mut bytes, Command::Relearn(1 << 20))?;
+    want.push((s, Some(2)));
+    let (s, _) = send(&mut bytes, Command::Relearn(u32::MAX))?;
+    want.push((s, Some(3)));
+    // The device's own frame echoed back, and line noise: no answer.
+    let mut buf = [0u8; frothline_core::wire::MAX_FRAME_BYTES];
+    let echo = Frame {
+        device: 0x0F1E,
+        seq: 7,
+        body: Body::StopRun,
+    };
+    let echo = frothline_core::wire::encode(&echo, &mut buf).map_err(|e| e.to_string())?;
+    bytes.extend_from_slice(echo);
+    bytes.extend_from_slice(&[0x55, 0x13, 0x00, 0xFF, 0x00]);
+    // StopRun ends the run; a second one is not_running; StartRun then is busy.
+    let (s, _) = send(&mut bytes, Command::StopRun)?;
+    want.push((s, None));
+    let (s, _) = send(&mut bytes, Command::StopRun)?;
+    want.push((s, Some(4)));
+    let (s, _) = send(&mut bytes, Command::StartRun("next".into()))?;
+    want.push((s, Some(3)));
+    Ok((bytes, want))
+}
+
+/// Write the command bytes of the `commands` check.
+fn commands_in(args: &[String]) -> Result<(), String> {
+    let [out] = args else {
+        return Err("usage: frothline-capture-gen commands-in OUT.bin".into());
+    };
+    let (bytes, want) = command_script()?;
+    std::fs::write(out, &bytes).map_err(|e| format!("{out}: {e}"))?;
+    eprintln!(
+        "commands-in: {} bytes, {} answers expected",
+        bytes.len(),
+        want.len()
+    );
+    Ok(())
+}
+
+/// Check the firmware's answers to the `commands` check, in order; one RunStart (the run
+/// of power-on) and two descriptions (power-on and the one DescribeRequest carried out).
+fn verify_commands(args: &[String]) -> Result<(), String> {
+    use frothline_core::wire::{Body, Decoder, FeedResult};
+    let [uart] = args else {
+        return Err("usage: frothline-capture-gen verify-commands UART.bin".into());
+    };
+    let (_, want) = command_script()?;
+    let bytes = std::fs::read(uart).map_err(|e| format!("{uart}: {e}"))?;
+    let mut dec: Decoder = Decoder::new();
+    let (mut got, mut describes, mut runs) = (Vec::new(), 0, 0);
+    let mut rest: &[u8] = &bytes;
+    while !rest.is_empty() {
+        let r = dec.feed(rest);
+        rest = r.remaining();
+        if let FeedResult::Frame { frame, .. } = r {
+            match frame.body {
+                Body::Ack(a) => got.push((a.seq, None)),
+                Body::Nack(n) => got.push((n.seq, Some(n.reason.code()))),
+                Body::Describe(_) => describes += 1,
+                Body::RunStart(_) => runs += 1,
+                _ => {}
+            }
+        }
+    }
+    let st = *dec.stats();
+    eprintln!(
+        "verify-commands: {} frames, {} answers (expected {}), {describes} descriptions, {runs} run starts, lost {}, crc failures {}",
+        st.frames,
+        got.len(),
+        want.len(),
+        st.lost,
+        st.crc_failures
+    );
+    for (i, (g, w)) in got.iter().zip(&want).enumerate() {
+        eprintln!(
+            "  answer {i}: seq {} {:?} (expected seq {} {:?})",
+            g.0, g.1, w.0, w.1
+        );
+    }
+    if got != want {
+        return Err(format!("answers {got:?}, expected {want:?}"));
+    }
+    if describes != 2 || runs != 1 || st.lost + st.crc_failures + st.malformed > 0 {
+        return Err("descriptions, run starts or frame counts differ".into());
     }
     Ok(())
 }
