@@ -172,7 +172,11 @@ impl SimCapture {
         window: WindowSpec,
     ) -> Result<Self, HostError> {
         let generator = crate::synth::Generator::new(scenario.clone(), scenario.seed)?;
-        let text = crate::synth::output::layout_toml(scenario, generator.resolved());
+        let text = crate::synth::output::layout_toml(
+            scenario,
+            generator.resolved(),
+            &generator.tip_levels(),
+        );
         let layout = Layout::parse(&text, Path::new("<built-in scenario>"))?;
         let cap = generator.render_interleaved();
         let channels = cap.channels as usize;

@@ -1571,7 +1571,10 @@ water_level = 0.6
         assert_eq!(l.probes[0].tip_levels(false), None);
         assert!(!l.probes[0].air_is_high);
         // The probe's pair applies to both tips.
-        let l = parse(&format!("{MIN}{DUAL}air_level = 26000\nwater_level = 3000\n")).unwrap();
+        let l = parse(&format!(
+            "{MIN}{DUAL}air_level = 26000\nwater_level = 3000\n"
+        ))
+        .unwrap();
         assert_eq!(l.probes[0].tip_levels(true), l.probes[0].tip_levels(false));
         let m = fails(
             &format!("{MIN}{DUAL}air_level = 26000\nwater_level = 3000\nleading_air_level = 1\nleading_water_level = 2\n"),
@@ -1592,8 +1595,10 @@ water_level = 0.6
         );
         assert!(m.contains("trailing_water_level"), "{m}");
         let m = fails(
-            &format!("{MIN}{DUAL}leading_air_level = 26000\nleading_water_level = 3000\n\
-                      trailing_air_level = 3000\ntrailing_water_level = 26000\n"),
+            &format!(
+                "{MIN}{DUAL}leading_air_level = 26000\nleading_water_level = 3000\n\
+                      trailing_air_level = 3000\ntrailing_water_level = 26000\n"
+            ),
             "probe[0].trailing_water_level",
             13,
         );

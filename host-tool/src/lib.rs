@@ -2,6 +2,7 @@
 //!
 //! - [`layout`] and [`capture`]: the rig layout (TOML) and captures (WAV);
 //! - [`rig`]: layout + capture format -> the core's chain configuration;
+//!   [`record_levels`]: tips' levels learnt from the whole record before a replay;
 //! - [`replay`]: captures through the core -> [`windows_csv`]; [`transient`]: the replay
 //!   of transient layouts (surge fronts: one station chain per station, profile.csv,
 //!   fronts.csv, stations.csv, flow.json); [`ensemble`]: repeated runs of a rig aligned on
@@ -30,6 +31,7 @@ pub mod layout;
 pub mod live;
 pub mod logbook_cmd;
 pub mod ports;
+pub mod record_levels;
 pub mod replay;
 pub mod report;
 pub mod rig;

@@ -6,6 +6,7 @@
 use crate::capture::Capture;
 use crate::error::{write_err, HostError};
 use crate::layout::Layout;
+use crate::record_levels::{self, LevelRule, RecordLevels};
 use crate::rig::HostRecord as ProbeWindow;
 use crate::rig::{chain_config, HostChain, MAX_PROBES};
 use crate::window_spec::WindowSpec;
@@ -40,6 +41,12 @@ pub struct ReplayArgs {
     /// No progress bar and no summary table.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Levels of tips without fixed levels in the layout: `record` learns them from the
+    /// whole capture first, then processes it from its first frame; `device` learns them
+    /// as the device does, during the record (its first learning period runs without
+    /// levels), and reproduces a device's records exactly.
+    #[arg(long, value_enum, default_value_t = LevelRule::Record)]
+    pub levels: LevelRule,
 }
 
 /// What a replay produced, for the summary and for tests.
@@ -57,15 +64,44 @@ pub struct ReplayReport {
     pub windows_csv: PathBuf,
 }
 
-/// Layout probes as CSV row metadata.
+/// Layout probes as CSV row metadata (where the levels come from not known).
 pub fn probe_meta(layout: &Layout) -> Vec<ProbeMeta> {
+    probe_meta_with(layout, &[])
+}
+
+/// Layout probes as CSV row metadata, with where each probe's leading-tip levels come
+/// from (`sources`, per probe; see [`levels_sources`]).
+pub fn probe_meta_with(layout: &Layout, sources: &[Option<&'static str>]) -> Vec<ProbeMeta> {
     layout
         .probes
         .iter()
-        .map(|p| ProbeMeta {
+        .enumerate()
+        .map(|(i, p)| ProbeMeta {
             name: p.name.clone(),
             elevation_mm: p.elevation_mm,
             x_mm: p.x_mm,
+            levels_from: sources.get(i).copied().flatten(),
+        })
+        .collect()
+}
+
+/// Where each probe's leading-tip levels come from: the layout, the record (`learnt`, when
+/// the record rule ran) or the device's causal rule.
+pub fn levels_sources(layout: &Layout, learnt: Option<&RecordLevels>) -> Vec<Option<&'static str>> {
+    layout
+        .probes
+        .iter()
+        .map(|p| {
+            if p.tip_levels(false).is_some() {
+                return Some("layout");
+            }
+            let ch = p.leading.min(255) as u8;
+            Some(
+                learnt
+                    .and_then(|l| l.tip(ch))
+                    .and_then(|t| t.outcome.source_name())
+                    .unwrap_or("device_rule"),
+            )
         })
         .collect()
 }
@@ -102,6 +138,33 @@ pub fn open_rig(
         source,
     })?;
     Ok((cap, layout_doc, Box::new(chain)))
+}
+
+/// `chain` rebuilt with the record's levels for its learning tips; the tips that did not
+/// learn are reported on stderr (probe and tip named) and keep the causal rule.
+pub fn with_record_levels(
+    chain: Box<HostChain>,
+    learnt: &RecordLevels,
+    layout: &Layout,
+    layout_path: &Path,
+) -> Result<Box<HostChain>, HostError> {
+    let mut cfg = chain.config().clone();
+    drop(chain);
+    report_unlearnt(learnt, layout, cfg.detector.min_swing);
+    learnt.apply(&mut cfg);
+    let chain = HostChain::new(cfg).map_err(|source| HostError::Config {
+        file: layout_path.to_path_buf(),
+        source,
+    })?;
+    Ok(Box::new(chain))
+}
+
+/// Tell the user on stderr which tips learnt no levels from the record.
+pub fn report_unlearnt(learnt: &RecordLevels, layout: &Layout, min_swing: u16) {
+    let names: Vec<String> = layout.probes.iter().map(|p| p.name.clone()).collect();
+    for w in learnt.warnings(&names, min_swing) {
+        eprintln!("warning: {w}");
+    }
 }
 
 /// Push every frame of `cap` through `chain`, handing each record to `sink`.
@@ -307,7 +370,15 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     if crate::transient::is_transient(&Layout::load(&args.layout)?) {
         return crate::transient::run(args).map(|(_, report)| report);
     }
-    let (mut cap, layout, chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
+    let (mut cap, layout, mut chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
+    let mut learnt = None;
+    if args.levels == LevelRule::Record {
+        let cfg = chain.config();
+        let tips = record_levels::learning_tips(cfg, |i| i);
+        let l = record_levels::learn(&args.capture, &tips, cfg.detector.min_swing)?;
+        chain = with_record_levels(chain, &l, &layout, &args.layout)?;
+        learnt = Some(l);
+    }
     std::fs::create_dir_all(&args.out).map_err(write_err(&args.out))?;
     let final_path = args.out.join("windows.csv");
     let partial = args.out.join("windows.csv.partial");
@@ -317,7 +388,7 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
         source: e.into(),
     };
     let mut csv = WindowsCsv::new(BufWriter::new(file)).map_err(csv_err)?;
-    let meta = probe_meta(&layout);
+    let meta = probe_meta_with(&layout, &levels_sources(&layout, learnt.as_ref()));
     let spacing: Vec<Option<f64>> = layout.probes.iter().map(|p| p.tip_spacing_mm).collect();
     let fs = cap.sample_rate();
     let bar = progress_bar(cap.frames(), args.quiet);
