@@ -70,7 +70,8 @@ pub fn layout_toml(scenario: &Scenario, resolved: &Resolved, tip_levels: &[(f64,
     match &scenario.transient {
         Some(t) => {
             let _ = writeln!(s, "kind = \"transient\"");
-            let _ = writeln!(s, "phase_before_front = \"air\"");
+            let before = if t.submerged { "water" } else { "air" };
+            let _ = writeln!(s, "phase_before_front = \"{before}\"");
             let _ = writeln!(s, "reference_depth_m = {}", tv_f(t.reservoir_depth_m));
         }
         None => {
