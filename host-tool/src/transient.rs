@@ -99,6 +99,8 @@ pub const FRONT_COLUMNS: &[&str] = &[
     "false_starts",
     "elevation_mm",
     "flags",
+    "confirmed_arrival_s",
+    "first_contact_s",
 ];
 
 /// Columns of `stations.csv`.
@@ -664,14 +666,16 @@ impl TransientRun {
                 if rec.is_some_and(|r| r.late) {
                     flags.push("late");
                 }
+                // The probe's arrival is its first contact with the front; the confirmed
+                // arrival (the onset of the sustained change) follows at the end.
                 rows.push(vec![
                     self.layout.probes[g].name.clone(),
                     info.name.clone(),
-                    opt(rec.map(|r| self.secs(r.arrival as f64))),
+                    opt(rec.map(|r| self.secs(r.first_contact as f64))),
                     opt(st_arrival.map(|a| self.secs(a as f64))),
                     opt(rec
                         .zip(st_arrival)
-                        .map(|(r, a)| self.secs(r.arrival as f64 - a as f64))),
+                        .map(|(r, a)| self.secs(r.first_contact as f64 - a as f64))),
                     opt(rec.map(|r| self.secs(r.confirmed_at as f64))),
                     opt(rec.map(|r| match r.rule {
                         FrontRule::Hold => "hold",
@@ -680,6 +684,8 @@ impl TransientRun {
                     opt(rec.map(|r| r.false_starts)),
                     self.layout.probes[g].elevation_mm.to_string(),
                     flags.join("|"),
+                    opt(rec.map(|r| self.secs(r.arrival as f64))),
+                    opt(rec.map(|r| self.secs(r.first_contact as f64))),
                 ]);
             }
         }

@@ -268,6 +268,7 @@ fn emit_station<const P: usize>(
         burst_interfaces,
         burst_frames,
         settle_frames,
+        contact_gap_frames,
     } = front;
     let depth = if reference_depth_m.is_finite() {
         format!("{reference_depth_m:?}")
@@ -290,7 +291,8 @@ fn emit_station<const P: usize>(
          let mut s = StationConfig::new({sample_rate_hz:?}, {before_air});\n    \
          s.front = FrontConfig {{\n        before_air: {before_air},\n        \
          hold_frames: {hold_frames},\n        burst_interfaces: {burst_interfaces},\n        \
-         burst_frames: {burst_frames},\n        settle_frames: {settle_frames},\n    }};\n    \
+         burst_frames: {burst_frames},\n        settle_frames: {settle_frames},\n        \
+         contact_gap_frames: {contact_gap_frames},\n    }};\n    \
          s.delay_frames = {delay_frames};\n    s.grace_frames = {grace_frames};\n    \
          s.dead_after_frames = {dead_after_frames};\n    s.profile = ProfileConfig::default();\n    \
          s.reference_depth_m = {depth};\n    s.decay_fit_every = {decay_fit_every};"
