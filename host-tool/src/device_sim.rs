@@ -130,6 +130,7 @@ impl SimCapture {
         let layout_doc = Layout::load(layout)?;
         let mut cap = crate::capture::Capture::open(capture)?;
         layout_doc.check_channels(cap.channels(), layout)?;
+        crate::replay::check_levels_fit(&layout_doc, &cap, layout)?;
         if layout_doc.probes.len() > MAX_PROBES {
             return Err(HostError::Usage(format!(
                 "{}: {} probes, the host handles at most {MAX_PROBES}",

@@ -211,6 +211,10 @@ pub struct ProbeSource {
     pub leading: Location,
     /// The `trailing` value.
     pub trailing: Option<Location>,
+    /// The level values, in the order of the keys `air_level`, `water_level`,
+    /// `leading_air_level`, `leading_water_level`, `trailing_air_level`,
+    /// `trailing_water_level`.
+    pub levels: [Option<Location>; 6],
 }
 
 /// A 1-based line and column (in characters) in the layout file.
@@ -597,6 +601,48 @@ impl Layout {
                         key: format!("probe[{i}].{what}"),
                         at,
                         problem: Box::new(Problem::ChannelBeyondCapture { channel, channels }),
+                    });
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// Check every fixed level against the capture's sample range `lo..=hi` (file units;
+    /// `format` names the sample format for the message): a level the file cannot hold is
+    /// a typing error, not a level.
+    pub fn check_levels(
+        &self,
+        (lo, hi): (f64, f64),
+        format: &str,
+        file: &Path,
+    ) -> Result<(), LayoutError> {
+        for (i, p) in self.probes.iter().enumerate() {
+            let pairs = [(p.levels, 0), (p.leading_levels, 2), (p.trailing_levels, 4)];
+            for (pair, k) in pairs {
+                let Some(l) = pair else { continue };
+                for (j, v) in [(k, l.air), (k + 1, l.water)] {
+                    if (lo..=hi).contains(&v) {
+                        continue;
+                    }
+                    let name = [
+                        "air_level",
+                        "water_level",
+                        "leading_air_level",
+                        "leading_water_level",
+                        "trailing_air_level",
+                        "trailing_water_level",
+                    ][j];
+                    return Err(LayoutError::Key {
+                        file: file.to_path_buf(),
+                        key: format!("probe[{i}].{name}"),
+                        at: p.source.and_then(|s| s.levels[j]),
+                        problem: Box::new(Problem::OutOfRange {
+                            detail: format!(
+                                "{name} = {v} lies outside the capture's sample range \
+                                 {lo}..={hi} ({format}): levels are in the file's units"
+                            ),
+                        }),
                     });
                 }
             }
@@ -1137,6 +1183,15 @@ fn build_probe(
             table,
             leading: cx.at(p.leading.span()),
             trailing: p.trailing.as_ref().map(|v| cx.at(v.span())),
+            levels: [
+                &p.air_level,
+                &p.water_level,
+                &p.leading_air_level,
+                &p.leading_water_level,
+                &p.trailing_air_level,
+                &p.trailing_water_level,
+            ]
+            .map(|v| v.as_ref().map(|v| cx.at(v.span()))),
         }),
     })
 }

@@ -230,15 +230,18 @@ impl RecordLevels {
             } else {
                 own + up * swing
             };
-            let clamp = |v: f32| v.clamp(i16::MIN as f32, i16::MAX as f32);
+            // A level the ADC cannot give: the tip is not in the phase it seemed to be.
+            if !(i16::MIN as f32..=i16::MAX as f32).contains(&other) {
+                continue;
+            }
             let levels = if in_air {
                 Levels {
                     air: own,
-                    water: clamp(other),
+                    water: other,
                 }
             } else {
                 Levels {
-                    air: clamp(other),
+                    air: other,
                     water: own,
                 }
             };
@@ -468,7 +471,7 @@ pub fn from_histogram(hist: &[u32], polarity: Polarity, min_swing: u16) -> TipOu
 
 /// A one-phase tip whose noise around its mode exceeds this many times the median noise
 /// of the tips that learnt both levels is left unlearnt (common practice, no source).
-const NOISY_FACTOR: f32 = 3.0;
+const NOISY_FACTOR: f32 = 1.5;
 
 /// Standard deviation (counts) of the values within `half` counts of `centre`.
 fn spread_around(hist: &[u32], centre: f32, half: f32) -> f32 {

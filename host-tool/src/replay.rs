@@ -106,6 +106,60 @@ pub fn levels_sources(layout: &Layout, learnt: Option<&RecordLevels>) -> Vec<Opt
         .collect()
 }
 
+/// Tips that learn their levels during the record (the device's rule, or the tips the
+/// record rule could not give levels) need a learning period of at least 64 frames to fill
+/// its histogram: a shorter one (`learn_period_s = 1e-9`, or a 1 Hz file) is refused,
+/// with the key, the value and the frames it makes at the capture's rate.
+pub fn check_learn_period(
+    cfg: &frothline_core::ChainConfig<{ crate::rig::MAX_PROBES }>,
+    layout: &Layout,
+    sample_rate: u32,
+    layout_path: &Path,
+) -> Result<(), HostError> {
+    let learning = cfg.probes.iter().any(|p| {
+        core::iter::once(&p.leading)
+            .chain(p.trailing.as_ref())
+            .any(|t| t.levels == frothline_core::LevelSource::Learnt)
+    });
+    let period = layout.detector.learn_period_s;
+    let frames = period * sample_rate as f64;
+    if learning && frames < 64.0 {
+        return Err(HostError::Usage(format!(
+            "{}: key `detector.learn_period_s`: {period} s is {frames:.3e} frames at \
+             {sample_rate} Hz, but a learning period must hold at least 64 frames ({:.4} s \
+             at this rate) to fill its histogram; give a longer period, or fix the tips' \
+             levels in the layout",
+            layout_path.display(),
+            64.0 / sample_rate.max(1) as f64
+        )));
+    }
+    Ok(())
+}
+
+/// A learning period too short is an error under the device's rule; under the record rule
+/// it concerns only the tips the record could not give levels (already named), so it is a
+/// warning there.
+pub fn period_rule(check: Result<(), HostError>, rule: LevelRule) -> Result<(), HostError> {
+    match (check, rule) {
+        (Err(e), LevelRule::Record) => {
+            eprintln!("warning: {e}");
+            Ok(())
+        }
+        (other, _) => other,
+    }
+}
+
+/// The layout's fixed levels must lie inside the capture's sample range.
+pub fn check_levels_fit(
+    layout: &Layout,
+    cap: &Capture,
+    layout_path: &Path,
+) -> Result<(), HostError> {
+    let format = cap.format();
+    layout.check_levels(format.full_scale(), &format.to_string(), layout_path)?;
+    Ok(())
+}
+
 /// Open a capture and its layout and build the chain for them.
 pub fn open_rig(
     capture: &Path,
@@ -115,6 +169,7 @@ pub fn open_rig(
     let layout_doc = Layout::load(layout)?;
     let cap = Capture::open(capture)?;
     layout_doc.check_channels(cap.channels(), layout)?;
+    check_levels_fit(&layout_doc, &cap, layout)?;
     if layout_doc.probes.len() > MAX_PROBES {
         return Err(HostError::Usage(format!(
             "{}: {} probes, the host handles at most {MAX_PROBES}",
@@ -379,6 +434,10 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
         chain = with_record_levels(chain, &l, &layout, &args.layout)?;
         learnt = Some(l);
     }
+    period_rule(
+        check_learn_period(chain.config(), &layout, cap.sample_rate(), &args.layout),
+        args.levels,
+    )?;
     std::fs::create_dir_all(&args.out).map_err(write_err(&args.out))?;
     let final_path = args.out.join("windows.csv");
     let partial = args.out.join("windows.csv.partial");

@@ -443,6 +443,7 @@ pub fn replay_capture(
     let layout = Layout::load(layout_path)?;
     let mut cap = Capture::open(capture)?;
     layout.check_channels(cap.channels(), layout_path)?;
+    crate::replay::check_levels_fit(&layout, &cap, layout_path)?;
     replay_open(&mut cap, &layout, layout_path, window, rule, full)
 }
 
@@ -488,6 +489,12 @@ fn replay_open(
             l.apply(cfg);
         }
         learnt = Some(l);
+    }
+    for (_, cfg) in &configs {
+        crate::replay::period_rule(
+            crate::replay::check_learn_period(cfg, layout, fs, layout_path),
+            rule,
+        )?;
     }
     let mut run = with_big_stack(|| {
         run_blocks(layout, configs, fs, &[], full, |buf| {
