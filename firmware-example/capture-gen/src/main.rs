@@ -9,7 +9,9 @@
 //! - the probe layout for the device-description frame (wire units);
 //! - the number and digest of the records a host replay (`replay::run`, the code behind
 //!   `frothline replay`) gives for the capture, which the firmware checks its own records
-//!   against.
+//!   against. The replay runs with the device's causal level rule
+//!   (`LevelRule::Device`, `--levels device`): tips without fixed levels learn them during
+//!   the record, as the firmware does.
 //!
 //! `verify-uart` decodes what the firmware sent on its UART (wire frames) and checks that
 //! every window result equals the one a host replay of the capture gives, in order, with
