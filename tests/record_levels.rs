@@ -172,3 +172,103 @@ fn default_replay_then_report_uses_every_window() {
     assert_eq!(summary.windows, 4 * 20);
     assert_eq!(summary.windows_used, summary.windows);
 }
+
+/// A strong linear drift (both levels rise by 6000 counts, a quarter of the swing, over the
+/// record): the replay re-learns the levels every second (`DRIFT_SEGMENT_S`), so C stays
+/// within 0.002 of the binary truth, and windows.csv shows the levels each window used
+/// rising with the drift.
+#[test]
+fn levels_follow_a_slow_drift() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("cap");
+    let mut s = scenario();
+    s.signal.drift.kind = DriftKind::Linear;
+    s.signal.drift.amplitude_counts = 6000.0;
+    Generator::new(s, 12)
+        .unwrap()
+        .write_dir(&dir, false)
+        .unwrap();
+    let out = tmp.path().join("out");
+    replay(&dir, &dir.join("layout.toml"), &out, &["--window", "1s"]);
+    let want = truth(&dir);
+    let got = whole_record(&out);
+    for (probe, &(c_true, _)) in &want {
+        let (c, _, _) = &got[probe];
+        assert!(
+            (c - c_true).abs() < 0.002,
+            "{probe}: C {c} vs truth {c_true}"
+        );
+    }
+    // The air level of the first probe in each window: it rises by about 1000 counts a
+    // second (the drift's rate), window after window.
+    let mut r = csv::Reader::from_path(out.join("windows.csv")).unwrap();
+    let h = r.headers().unwrap().clone();
+    let col = |n: &str| h.iter().position(|x| x == n).unwrap();
+    let (p, air) = (col("probe"), col("air_level_counts"));
+    let levels: Vec<f64> = r
+        .records()
+        .map(|x| x.unwrap())
+        .filter(|x| &x[p] == "A")
+        .map(|x| x[air].parse().unwrap())
+        .collect();
+    assert_eq!(levels.len(), 6);
+    for w in levels.windows(2) {
+        let step = w[1] - w[0];
+        assert!((step - 1000.0).abs() < 150.0, "{levels:?}");
+    }
+}
+
+/// With per-segment levels, the probes split over worker threads give exactly the records
+/// of one chain (the schedule is applied at the same frames in every worker).
+#[test]
+fn level_schedule_is_the_same_on_one_chain_and_on_workers() {
+    std::thread::Builder::new()
+        .stack_size(256 << 20)
+        .spawn(|| {
+            use frothline_host::record_levels::{learn_with, learning_tips};
+            use frothline_host::replay::{
+                drive_parallel_with, drive_with, open_rig, with_record_levels, LevelSchedule,
+            };
+            let tmp = tempfile::tempdir().unwrap();
+            let dir = tmp.path().join("cap");
+            let mut s = scenario();
+            s.duration_s = 3.5;
+            Generator::new(s, 2)
+                .unwrap()
+                .write_dir(&dir, false)
+                .unwrap();
+            let (cap_path, layout_path) = (dir.join("capture.wav"), dir.join("layout.toml"));
+            let bar = indicatif::ProgressBar::hidden();
+            let run = |workers: usize| {
+                let window = "70ms".parse().unwrap();
+                let (mut cap, layout, chain) = open_rig(&cap_path, &layout_path, window).unwrap();
+                let tips = learning_tips(chain.config(), |i| i);
+                let learnt = learn_with(&cap_path, &tips, 64, true).unwrap();
+                assert_eq!(learnt.segment_count(), 4);
+                let schedule = LevelSchedule::from_record(&learnt).unwrap();
+                let chain = with_record_levels(chain, &learnt, &layout, &layout_path).unwrap();
+                let mut out = Vec::new();
+                if workers == 1 {
+                    let mut chain = chain;
+                    drive_with(&mut cap, &mut chain, Some(&schedule), &bar, |r| {
+                        out.push(r);
+                        Ok(())
+                    })
+                    .unwrap();
+                } else {
+                    drive_parallel_with(&mut cap, chain, Some(&schedule), workers, &bar, |r| {
+                        out.push(r);
+                        Ok(())
+                    })
+                    .unwrap();
+                }
+                out
+            };
+            let one = run(1);
+            assert_eq!(one, run(2));
+            assert_eq!(one, run(3));
+        })
+        .unwrap()
+        .join()
+        .unwrap();
+}

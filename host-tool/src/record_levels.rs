@@ -11,6 +11,10 @@
 //! learning span of the whole record; for a surge the span after the front is where both
 //! phases occur, and the one-phase span before it only adds to one class.
 //!
+//! A steady replay also learns every tip's levels in each [`DRIFT_SEGMENT_S`] segment
+//! (from histograms of 64-count bins kept in the same pass) and applies them segment by
+//! segment ([`crate::replay::LevelSchedule`]), so the levels follow a slow drift.
+//!
 //! The class-size rule of a learning period (each phase at least 0.5 % of the samples) is
 //! replaced by an absolute one ([`MIN_CLASS_SAMPLES`]), so a tip in air above the flow that
 //! meets water only now and then still learns its water level when its histogram is
@@ -152,6 +156,37 @@ impl TipLevels {
 pub struct RecordLevels {
     /// One entry per tip that had no fixed levels.
     pub tips: Vec<TipLevels>,
+    /// Drift tracking: each tip's levels in every [`DRIFT_SEGMENT_S`] segment of the
+    /// record (same order as `tips`; `None` where the segment did not show both phases
+    /// clearly, and the record's levels hold there). Empty when not tracked.
+    pub segments: Vec<Vec<Option<Levels>>>,
+    /// Frames per segment (0 when not tracked).
+    pub segment_frames: u64,
+}
+
+/// Length of the segments in which a steady replay re-learns every tip's levels, to
+/// follow a slow drift of the conditioners, s. A segment's levels apply to its frames; a
+/// drift is thus followed to within what it moves in one segment (common practice, no
+/// source: conditioners drift over minutes, a second holds thousands of interfaces).
+pub const DRIFT_SEGMENT_S: f64 = 1.0;
+
+/// Width of the bins of the per-segment histograms, counts.
+const SEGMENT_BIN: usize = 64;
+
+impl RecordLevels {
+    /// The levels tip `i` (index into `tips`) uses in segment `k`: the segment's own, else
+    /// the record's.
+    pub fn levels_in_segment(&self, i: usize, k: usize) -> Option<Levels> {
+        self.segments
+            .get(i)
+            .and_then(|s| s.get(k).copied().flatten())
+            .or_else(|| self.tips.get(i).and_then(|t| t.outcome.levels()))
+    }
+
+    /// Number of segments tracked.
+    pub fn segment_count(&self) -> usize {
+        self.segments.iter().map(Vec::len).max().unwrap_or(0)
+    }
 }
 
 impl RecordLevels {
@@ -357,6 +392,16 @@ pub fn learning_tips(
 /// Learn the levels of `tips` from the capture at `path` (opened afresh: the replay reads
 /// it again after), with the smallest accepted swing `min_swing` (counts).
 pub fn learn(path: &Path, tips: &[LearningTip], min_swing: u16) -> Result<RecordLevels, HostError> {
+    learn_with(path, tips, min_swing, false)
+}
+
+/// [`learn`], and with `track_drift` the levels of every [`DRIFT_SEGMENT_S`] segment too.
+pub fn learn_with(
+    path: &Path,
+    tips: &[LearningTip],
+    min_swing: u16,
+    track_drift: bool,
+) -> Result<RecordLevels, HostError> {
     if tips.is_empty() {
         return Ok(RecordLevels::default());
     }
@@ -364,6 +409,14 @@ pub fn learn(path: &Path, tips: &[LearningTip], min_swing: u16) -> Result<Record
     let channels = cap.channels().max(1);
     let chans: Vec<usize> = tips.iter().map(|t| t.2.channel as usize).collect();
     let mut hist = vec![vec![0u32; 1 << 16]; chans.len()];
+    let segment_frames = if track_drift {
+        ((DRIFT_SEGMENT_S * cap.sample_rate() as f64).round() as u64).max(LEARN_STRIDE)
+    } else {
+        0
+    };
+    let bins = (1 << 16) / SEGMENT_BIN;
+    // Per tip, per segment: a histogram of `SEGMENT_BIN`-count bins.
+    let mut seg_hist: Vec<Vec<Vec<u32>>> = vec![Vec::new(); chans.len()];
     let mut buf = Vec::with_capacity(BLOCK_FRAMES * channels);
     let mut at = 0u64;
     loop {
@@ -372,14 +425,24 @@ pub fn learn(path: &Path, tips: &[LearningTip], min_swing: u16) -> Result<Record
             break;
         }
         let skip = ((LEARN_STRIDE - at % LEARN_STRIDE) % LEARN_STRIDE) as usize;
-        for frame in buf[(skip * channels).min(buf.len())..]
+        for (j, frame) in buf[(skip * channels).min(buf.len())..]
             .chunks_exact(channels)
             .step_by(LEARN_STRIDE as usize)
+            .enumerate()
         {
-            for (h, &c) in hist.iter_mut().zip(&chans) {
+            let f = at + (skip + j * LEARN_STRIDE as usize) as u64;
+            let seg = f.checked_div(segment_frames).map(|k| k as usize);
+            for ((h, sh), &c) in hist.iter_mut().zip(seg_hist.iter_mut()).zip(&chans) {
                 if let Some(&x) = frame.get(c) {
                     let b = (x as u16 ^ 0x8000) as usize;
                     h[b] = h[b].saturating_add(1);
+                    if let Some(k) = seg {
+                        while sh.len() <= k {
+                            sh.push(vec![0u32; bins]);
+                        }
+                        let cell = &mut sh[k][b / SEGMENT_BIN];
+                        *cell = cell.saturating_add(1);
+                    }
                 }
             }
         }
@@ -395,7 +458,28 @@ pub fn learn(path: &Path, tips: &[LearningTip], min_swing: u16) -> Result<Record
             outcome: from_histogram(h, tip.polarity, min_swing),
         })
         .collect();
-    let mut levels = RecordLevels { tips: out };
+    let mut full = vec![0u32; 1 << 16];
+    let segments = seg_hist
+        .iter()
+        .zip(tips)
+        .map(|(sh, t)| {
+            sh.iter()
+                .map(|coarse| {
+                    // Each coarse bin's count at its centre value.
+                    full.iter_mut().for_each(|c| *c = 0);
+                    for (b, &c) in coarse.iter().enumerate() {
+                        full[b * SEGMENT_BIN + SEGMENT_BIN / 2] = c;
+                    }
+                    from_histogram(&full, t.2.polarity, min_swing).levels()
+                })
+                .collect()
+        })
+        .collect();
+    let mut levels = RecordLevels {
+        tips: out,
+        segments,
+        segment_frames,
+    };
     let polarities: Vec<Polarity> = tips.iter().map(|t| t.2.polarity).collect();
     levels.borrow_swing(&hist, &polarities);
     Ok(levels)
@@ -644,6 +728,7 @@ mod tests {
                     outcome: from_histogram(h, Polarity::AirHigh, 64),
                 })
                 .collect(),
+            ..Default::default()
         };
         assert!(matches!(levels.tips[3].outcome, TipOutcome::Unclear { .. }));
         levels.borrow_swing(&hists, &polarities);

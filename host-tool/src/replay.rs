@@ -11,6 +11,7 @@ use crate::rig::HostRecord as ProbeWindow;
 use crate::rig::{chain_config, HostChain, MAX_PROBES};
 use crate::window_spec::WindowSpec;
 use crate::windows_csv::{ProbeMeta, WindowsCsv};
+use frothline_core::levels::Levels;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::fs::File;
 use std::io::BufWriter;
@@ -222,10 +223,70 @@ pub fn report_unlearnt(learnt: &RecordLevels, layout: &Layout, min_swing: u16) {
     }
 }
 
+/// Levels that change during the record, segment by segment (drift tracking): every tip
+/// listed takes its segment's levels at the segment's first frame.
+#[derive(Clone, Debug, Default)]
+pub struct LevelSchedule {
+    /// Frames per segment (> 0).
+    pub segment_frames: u64,
+    /// (layout probe index, trailing tip, levels per segment).
+    pub tips: Vec<(usize, bool, Vec<Levels>)>,
+}
+
+impl LevelSchedule {
+    /// The schedule of a record's per-segment levels (tips without levels left out);
+    /// `None` when the record was not learnt segment by segment.
+    pub fn from_record(learnt: &RecordLevels) -> Option<LevelSchedule> {
+        if learnt.segment_frames == 0 {
+            return None;
+        }
+        let n = learnt.segment_count();
+        let tips = learnt
+            .tips
+            .iter()
+            .enumerate()
+            .filter_map(|(i, t)| {
+                let levels: Option<Vec<Levels>> =
+                    (0..n).map(|k| learnt.levels_in_segment(i, k)).collect();
+                levels.map(|l| (t.probe, t.trailing, l))
+            })
+            .collect();
+        Some(LevelSchedule {
+            segment_frames: learnt.segment_frames,
+            tips,
+        })
+    }
+
+    /// Apply the levels of the segment that starts at `frame`, if one does, to the tips of
+    /// `chain` (`local` maps a layout probe index to the chain's).
+    fn apply(&self, chain: &mut HostChain, frame: u64, local: &dyn Fn(usize) -> Option<usize>) {
+        if self.segment_frames == 0 || !frame.is_multiple_of(self.segment_frames) {
+            return;
+        }
+        let k = (frame / self.segment_frames) as usize;
+        for (probe, trailing, levels) in &self.tips {
+            if let (Some(p), Some(l)) = (local(*probe), levels.get(k)) {
+                chain.set_tip_levels(p, *trailing, *l);
+            }
+        }
+    }
+}
+
 /// Push every frame of `cap` through `chain`, handing each record to `sink`.
 pub fn drive(
     cap: &mut Capture,
     chain: &mut HostChain,
+    progress: &ProgressBar,
+    sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
+) -> Result<u64, HostError> {
+    drive_with(cap, chain, None, progress, sink)
+}
+
+/// [`drive`] with the levels of `schedule` applied as the record goes.
+pub fn drive_with(
+    cap: &mut Capture,
+    chain: &mut HostChain,
+    schedule: Option<&LevelSchedule>,
     progress: &ProgressBar,
     mut sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
 ) -> Result<u64, HostError> {
@@ -237,26 +298,42 @@ pub fn drive(
             break;
         }
         frames += n as u64;
-        push_all(chain, &buf, &mut |r| sink(r))?;
+        push_all(chain, &buf, schedule, &Some, &mut |r| sink(r))?;
         progress.inc(n as u64);
     }
     finish_all(chain, &mut |r| sink(r))?;
     Ok(frames)
 }
 
-/// Push a whole block, draining records as the chain's queue fills.
+/// Push a whole block, draining records as the chain's queue fills, and cut at the
+/// schedule's segment starts to apply their levels.
 fn push_all<E>(
     chain: &mut HostChain,
     block: &[i16],
+    schedule: Option<&LevelSchedule>,
+    local: &dyn Fn(usize) -> Option<usize>,
     sink: &mut dyn FnMut(ProbeWindow) -> Result<(), E>,
 ) -> Result<(), E> {
+    let channels = (chain.config().channels as usize).max(1);
     let mut rest = block;
     while !rest.is_empty() {
-        let used = chain.push(rest);
-        rest = &rest[used..];
-        while let Some(r) = chain.poll() {
-            sink(r.without_sums())?;
+        let mut piece = rest;
+        if let Some(s) = schedule.filter(|s| s.segment_frames > 0) {
+            let at = chain.frames();
+            s.apply(chain, at, local);
+            let to_next = s.segment_frames - at % s.segment_frames;
+            let take = (to_next as usize).saturating_mul(channels).min(rest.len());
+            piece = &rest[..take];
         }
+        let mut left = piece;
+        while !left.is_empty() {
+            let used = chain.push(left);
+            left = &left[used..];
+            while let Some(r) = chain.poll() {
+                sink(r.without_sums())?;
+            }
+        }
+        rest = &rest[piece.len()..];
     }
     Ok(())
 }
@@ -286,6 +363,18 @@ pub fn drive_parallel(
     chain: Box<HostChain>,
     workers: usize,
     progress: &ProgressBar,
+    sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
+) -> Result<u64, HostError> {
+    drive_parallel_with(cap, chain, None, workers, progress, sink)
+}
+
+/// [`drive_parallel`] with the levels of `schedule` applied as the record goes.
+pub fn drive_parallel_with(
+    cap: &mut Capture,
+    chain: Box<HostChain>,
+    schedule: Option<&LevelSchedule>,
+    workers: usize,
+    progress: &ProgressBar,
     mut sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
 ) -> Result<u64, HostError> {
     use frothline_core::WindowPolicy;
@@ -296,7 +385,7 @@ pub fn drive_parallel(
     let workers = workers.min(cfg.probes.len());
     if workers <= 1 || !independent {
         let mut chain = chain;
-        return drive(cap, &mut chain, progress, sink);
+        return drive_with(cap, &mut chain, schedule, progress, sink);
     }
     // Contiguous groups of probes, balanced by tip count.
     let tips: Vec<usize> = cfg
@@ -338,8 +427,9 @@ pub fn drive_parallel(
                     out.borrow_mut().push(r);
                     Ok(())
                 };
+                let local = |g: usize| global.iter().position(|&x| x == g);
                 for block in rx {
-                    let _ = push_all(&mut chain, &block, &mut keep);
+                    let _ = push_all(&mut chain, &block, schedule, &local, &mut keep);
                     let _ = rec_tx.send((w, out.take()));
                 }
                 let _ = finish_all(&mut chain, &mut keep);
@@ -430,7 +520,7 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     if args.levels == LevelRule::Record {
         let cfg = chain.config();
         let tips = record_levels::learning_tips(cfg, |i| i);
-        let l = record_levels::learn(&args.capture, &tips, cfg.detector.min_swing)?;
+        let l = record_levels::learn_with(&args.capture, &tips, cfg.detector.min_swing, true)?;
         chain = with_record_levels(chain, &l, &layout, &args.layout)?;
         learnt = Some(l);
     }
@@ -455,7 +545,8 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     let workers = std::thread::available_parallelism()
         .map_or(1, |n| n.get())
         .min(4);
-    let result = drive_parallel(&mut cap, chain, workers, &bar, |r| {
+    let schedule = learnt.as_ref().and_then(LevelSchedule::from_record);
+    let result = drive_parallel_with(&mut cap, chain, schedule.as_ref(), workers, &bar, |r| {
         csv.write(
             &r,
             &meta[r.probe as usize],
