@@ -8,6 +8,8 @@
 //!   fronts.csv, stations.csv, flow.json); [`ensemble`]: repeated runs of a rig aligned on
 //!   the front;
 //! - [`synth`]: synthetic captures with known truth;
+//! - [`tipcheck`]: every tip's levels, noise, swing and interface times on a segment of a
+//!   capture, written into the layout on request;
 //! - [`session`], [`watch`], [`commands`], [`live`], [`dashboard`], [`archive`],
 //!   [`unpack`]: the live link (framed results from devices over serial ports);
 //! - [`flash_image`], [`logbook_cmd`]: a field logger's flash image read back through the
@@ -38,6 +40,7 @@ pub mod rig;
 pub mod session;
 pub mod stdout;
 pub mod synth;
+pub mod tipcheck;
 pub mod transient;
 pub mod unpack;
 pub mod watch;

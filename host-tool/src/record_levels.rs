@@ -61,7 +61,7 @@ pub enum LevelRule {
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum TipOutcome {
     /// Two clear levels, counts, with the noise (standard deviation, counts) of the
-    /// samples on each side of the midpoint.
+    /// samples within a quarter of the swing of each level.
     Learnt {
         /// The levels.
         levels: Levels,
@@ -540,7 +540,13 @@ pub fn from_histogram(hist: &[u32], polarity: Polarity, min_swing: u16) -> TipOu
             true,
         ),
     };
-    let (lo_sd, hi_sd) = class_noise(hist, 0.5 * (low + high));
+    // The noise of each phase: the spread of the samples within a quarter of the swing of
+    // its level (the interfaces' ramps between the levels stay out).
+    let quarter = 0.25 * (high - low);
+    let (lo_sd, hi_sd) = (
+        spread_around(hist, low, quarter),
+        spread_around(hist, high, quarter),
+    );
     let (air_noise, water_noise) = if air_low {
         (lo_sd, hi_sd)
     } else {
@@ -557,23 +563,37 @@ pub fn from_histogram(hist: &[u32], polarity: Polarity, min_swing: u16) -> TipOu
 /// of the tips that learnt both levels is left unlearnt (common practice, no source).
 const NOISY_FACTOR: f32 = 1.5;
 
-/// Standard deviation (counts) of the values within `half` counts of `centre`.
+/// The standard deviation (counts) of the values within `half` counts of `centre`,
+/// estimated robustly as 1.4826 times their median absolute deviation from `centre` (the
+/// normal distribution's ratio; Hampel 1974, "The influence curve and its role in robust
+/// estimation"), so the few samples on interface ramps do not inflate it.
 fn spread_around(hist: &[u32], centre: f32, half: f32) -> f32 {
-    let (mut n, mut s, mut q) = (0f64, 0f64, 0f64);
-    for (b, &c) in hist.iter().enumerate() {
-        let x = value(b) as f64;
-        if c == 0 || (x - centre as f64).abs() > half as f64 {
+    let c = centre as f64;
+    let lo = ((c - half as f64).floor() + 32768.0).clamp(0.0, 65535.0) as usize;
+    let hi = ((c + half as f64).ceil() + 32768.0).clamp(0.0, 65535.0) as usize;
+    // Counts by distance from the centre, in whole counts.
+    let mut by_dist: Vec<(u64, u64)> = Vec::new();
+    let mut n = 0u64;
+    for (b, &k) in hist.iter().enumerate().take(hi + 1).skip(lo) {
+        if k == 0 {
             continue;
         }
-        n += c as f64;
-        s += c as f64 * x;
-        q += c as f64 * x * x;
+        let d = (value(b) as f64 - c).abs().round() as u64;
+        by_dist.push((d, k as u64));
+        n += k as u64;
     }
-    if n < 2.0 {
+    if n < 2 {
         return 0.0;
     }
-    let m = s / n;
-    ((q / n - m * m).max(0.0)).sqrt() as f32
+    by_dist.sort_unstable();
+    let mut seen = 0u64;
+    for (d, k) in by_dist {
+        seen += k;
+        if 2 * seen >= n {
+            return (1.4826 * d as f64) as f32;
+        }
+    }
+    0.0
 }
 
 /// Width of the bins in which a one-phase tip's mode is first looked for, counts.
@@ -616,29 +636,6 @@ fn mode_level(hist: &[u32]) -> Option<f32> {
         }
     }
     Some((centre - 32768.0) as f32)
-}
-
-/// Standard deviations (counts) of the values below and above `mid`.
-fn class_noise(hist: &[u32], mid: f32) -> (f32, f32) {
-    let mut acc = [(0f64, 0f64, 0f64); 2];
-    for (b, &c) in hist.iter().enumerate() {
-        if c == 0 {
-            continue;
-        }
-        let x = value(b) as f64;
-        let a = &mut acc[(x > mid as f64) as usize];
-        a.0 += c as f64;
-        a.1 += c as f64 * x;
-        a.2 += c as f64 * x * x;
-    }
-    let sd = |(n, s, q): (f64, f64, f64)| -> f32 {
-        if n < 2.0 {
-            return f32::NAN;
-        }
-        let m = s / n;
-        ((q / n - m * m).max(0.0)).sqrt() as f32
-    };
-    (sd(acc[0]), sd(acc[1]))
 }
 
 #[cfg(test)]
