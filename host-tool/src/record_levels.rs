@@ -425,26 +425,43 @@ pub fn learn_with(
             break;
         }
         let skip = ((LEARN_STRIDE - at % LEARN_STRIDE) % LEARN_STRIDE) as usize;
-        for (j, frame) in buf[(skip * channels).min(buf.len())..]
-            .chunks_exact(channels)
-            .step_by(LEARN_STRIDE as usize)
-            .enumerate()
-        {
-            let f = at + (skip + j * LEARN_STRIDE as usize) as u64;
-            let seg = f.checked_div(segment_frames).map(|k| k as usize);
-            for ((h, sh), &c) in hist.iter_mut().zip(seg_hist.iter_mut()).zip(&chans) {
-                if let Some(&x) = frame.get(c) {
-                    let b = (x as u16 ^ 0x8000) as usize;
-                    h[b] = h[b].saturating_add(1);
-                    if let Some(k) = seg {
-                        while sh.len() <= k {
-                            sh.push(vec![0u32; bins]);
-                        }
-                        let cell = &mut sh[k][b / SEGMENT_BIN];
-                        *cell = cell.saturating_add(1);
+        // Cut the block at segment starts, so each piece belongs to one segment.
+        let mut first = skip;
+        while first < n {
+            let f0 = at + first as u64;
+            let (end, seg) = match f0.checked_div(segment_frames) {
+                Some(k) => (
+                    (((k + 1) * segment_frames - at) as usize).min(n),
+                    Some(k as usize),
+                ),
+                None => (n, None),
+            };
+            if let Some(k) = seg {
+                for sh in seg_hist.iter_mut() {
+                    while sh.len() <= k {
+                        sh.push(vec![0u32; bins]);
                     }
                 }
             }
+            let piece = &buf[first * channels..end * channels];
+            for frame in piece.chunks_exact(channels).step_by(LEARN_STRIDE as usize) {
+                for ((h, sh), &c) in hist.iter_mut().zip(seg_hist.iter_mut()).zip(&chans) {
+                    if let Some(&x) = frame.get(c) {
+                        let b = (x as u16 ^ 0x8000) as usize;
+                        h[b] = h[b].saturating_add(1);
+                        if let Some(cell) = seg
+                            .and_then(|k| sh.get_mut(k))
+                            .map(|v| &mut v[b / SEGMENT_BIN])
+                        {
+                            *cell = cell.saturating_add(1);
+                        }
+                    }
+                }
+            }
+            // The next piece starts on the stride grid.
+            let next = end.max(first + 1);
+            first =
+                next + ((LEARN_STRIDE - (at + next as u64) % LEARN_STRIDE) % LEARN_STRIDE) as usize;
         }
         at += n as u64;
     }
@@ -458,20 +475,12 @@ pub fn learn_with(
             outcome: from_histogram(h, tip.polarity, min_swing),
         })
         .collect();
-    let mut full = vec![0u32; 1 << 16];
     let segments = seg_hist
         .iter()
         .zip(tips)
         .map(|(sh, t)| {
             sh.iter()
-                .map(|coarse| {
-                    // Each coarse bin's count at its centre value.
-                    full.iter_mut().for_each(|c| *c = 0);
-                    for (b, &c) in coarse.iter().enumerate() {
-                        full[b * SEGMENT_BIN + SEGMENT_BIN / 2] = c;
-                    }
-                    from_histogram(&full, t.2.polarity, min_swing).levels()
-                })
+                .map(|coarse| segment_levels(coarse, t.2.polarity, min_swing))
                 .collect()
         })
         .collect();
@@ -485,22 +494,23 @@ pub fn learn_with(
     Ok(levels)
 }
 
-/// The value of histogram bin `b` (bins are i16 values offset by 0x8000).
-fn value(b: usize) -> i16 {
-    (b as u16 ^ 0x8000) as i16
+/// What [`modes`] found.
+enum Modes {
+    Two { low: f32, high: f32 },
+    OnePhase { min: i16, max: i16 },
+    Unclear { min: i16, max: i16 },
+    Empty,
 }
 
-/// Learn one tip's levels from the counts of its values (`hist[x ^ 0x8000]`).
-pub fn from_histogram(hist: &[u32], polarity: Polarity, min_swing: u16) -> TipOutcome {
-    let total: u64 = hist.iter().map(|&c| c as u64).sum();
-    if total == 0 {
-        return TipOutcome::Empty;
-    }
-    let first = hist.iter().position(|&c| c > 0).unwrap_or(0);
-    let last = hist.iter().rposition(|&c| c > 0).unwrap_or(0);
-    let (min, max) = (value(first), value(last));
+/// The two levels of counted values (`(value, count)` in increasing value, counts > 0) by
+/// the device's rule ([`LevelLearner`]), with the record rule's class size.
+fn modes(points: impl Iterator<Item = (i16, u32)> + Clone, min_swing: u16) -> Modes {
+    let total: u64 = points.clone().map(|(_, c)| c as u64).sum();
+    let (Some((min, _)), Some((max, _))) = (points.clone().next(), points.clone().last()) else {
+        return Modes::Empty;
+    };
     if (max as i32 - min as i32) < min_swing as i32 {
-        return TipOutcome::OnePhase { min, max };
+        return Modes::OnePhase { min, max };
     }
     // Scale long records down so the learner's 32-bit sums cannot saturate.
     let scale = |c: u32| -> u32 {
@@ -512,8 +522,8 @@ pub fn from_histogram(hist: &[u32], polarity: Polarity, min_swing: u16) -> TipOu
     };
     let mut learner = LevelLearner::new();
     let feed = |l: &mut LevelLearner| {
-        for (b, &c) in hist.iter().enumerate().skip(first).take(last + 1 - first) {
-            l.observe_repeated(value(b), scale(c));
+        for (x, c) in points.clone() {
+            l.observe_repeated(x, scale(c));
         }
     };
     feed(&mut learner);
@@ -521,8 +531,52 @@ pub fn from_histogram(hist: &[u32], polarity: Polarity, min_swing: u16) -> TipOu
     feed(&mut learner);
     let fed = total.min(MAX_FED);
     let min_class = MIN_CLASS_SAMPLES.min((fed / 200).max(2));
-    let Learnt::Modes { low, high } = learner.decide_with_min_class(min_swing, min_class) else {
-        return TipOutcome::Unclear { min, max };
+    match learner.decide_with_min_class(min_swing, min_class) {
+        Learnt::Modes { low, high } => Modes::Two { low, high },
+        Learnt::Unclear => Modes::Unclear { min, max },
+    }
+}
+
+/// The levels of one drift segment from its coarse histogram (`SEGMENT_BIN`-count bins,
+/// each count taken at its bin's centre), or `None` when it shows no two clear levels.
+fn segment_levels(coarse: &[u32], polarity: Polarity, min_swing: u16) -> Option<Levels> {
+    let points = coarse
+        .iter()
+        .enumerate()
+        .filter(|&(_, &c)| c > 0)
+        .map(|(b, &c)| (value(b * SEGMENT_BIN + SEGMENT_BIN / 2), c));
+    match modes(points, min_swing) {
+        Modes::Two { low, high } => Some(match polarity {
+            Polarity::AirHigh => Levels {
+                air: high,
+                water: low,
+            },
+            Polarity::AirLow => Levels {
+                air: low,
+                water: high,
+            },
+        }),
+        _ => None,
+    }
+}
+
+/// The value of histogram bin `b` (bins are i16 values offset by 0x8000).
+fn value(b: usize) -> i16 {
+    (b as u16 ^ 0x8000) as i16
+}
+
+/// Learn one tip's levels from the counts of its values (`hist[x ^ 0x8000]`).
+pub fn from_histogram(hist: &[u32], polarity: Polarity, min_swing: u16) -> TipOutcome {
+    let points = hist
+        .iter()
+        .enumerate()
+        .filter(|&(_, &c)| c > 0)
+        .map(|(b, &c)| (value(b), c));
+    let (low, high) = match modes(points, min_swing) {
+        Modes::Two { low, high } => (low, high),
+        Modes::OnePhase { min, max } => return TipOutcome::OnePhase { min, max },
+        Modes::Unclear { min, max } => return TipOutcome::Unclear { min, max },
+        Modes::Empty => return TipOutcome::Empty,
     };
     let (levels, air_low) = match polarity {
         Polarity::AirHigh => (
