@@ -1,12 +1,12 @@
-//! Host -> device commands: StartRun, StopRun, SetWindow, Relearn and DescribeRequest as
-//! wire frames.
+//! Host -> device commands: StartRun, StopRun, SetWindow, Relearn, DescribeRequest and
+//! SetLevels as wire frames.
 //!
 //! The host writes its commands with its own device id ([`HOST_DEVICE_ID`]) and its own
 //! sequence numbers, one counter per link; the device answers each command with an `Ack`
 //! or a `Nack` that quotes the command's sequence number, so [`CommandLog`] can tell which
 //! command a reply is about.
 
-use frothline_core::wire::{self, Body, Frame, Kind, Relearn, StartRun, WindowSetting};
+use frothline_core::wire::{self, Body, Frame, Kind, Relearn, SetLevels, StartRun, WindowSetting};
 use std::collections::VecDeque;
 
 /// The device id the host writes into its command frames (no device uses it).
@@ -26,6 +26,8 @@ pub enum Command {
     Relearn(u32),
     /// Ask for the device description.
     DescribeRequest,
+    /// Fix one tip's air and water levels (counts): a calibration's result.
+    SetLevels(SetLevels),
 }
 
 impl Command {
@@ -37,6 +39,7 @@ impl Command {
             Command::SetWindow(_) => Kind::SetWindow,
             Command::Relearn(_) => Kind::Relearn,
             Command::DescribeRequest => Kind::DescribeRequest,
+            Command::SetLevels(_) => Kind::SetLevels,
         }
     }
 
@@ -48,6 +51,7 @@ impl Command {
             Command::SetWindow(s) => Body::SetWindow(*s),
             Command::Relearn(mask) => Body::Relearn(Relearn { probes: *mask }),
             Command::DescribeRequest => Body::DescribeRequest,
+            Command::SetLevels(l) => Body::SetLevels(*l),
         })
     }
 }
@@ -65,6 +69,7 @@ pub fn kind_name(kind: Kind) -> &'static str {
         Kind::SetWindow => "set-window",
         Kind::Relearn => "relearn",
         Kind::DescribeRequest => "describe-request",
+        Kind::SetLevels => "set-levels",
         Kind::Ack => "ack",
         Kind::Nack => "nack",
         _ => "unknown",

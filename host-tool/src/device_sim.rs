@@ -44,7 +44,7 @@ use frothline_core::wire::{
     self, quant, Ack, Body, DeviceDescription, Health, Nack, NackReason, ProbeLayout, Streamer,
     StreamerConfig, TrailingTip, WindowResult, WindowSetting, WireError,
 };
-use frothline_core::{ChainConfig, Flags, FrontRecord, WindowPolicy};
+use frothline_core::{ChainConfig, Flags, FrontRecord, LevelSource, WindowPolicy};
 use std::io::{Read, Write};
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -498,6 +498,40 @@ impl SimDevice {
         }
     }
 
+    /// SetLevels: fix one tip's levels from the current position on (the chain is rebuilt
+    /// there, as for Relearn). A probe or tip the device does not have, equal levels and
+    /// levels that contradict the tip's polarity are bad arguments.
+    fn set_levels(&mut self, l: frothline_core::wire::SetLevels) -> Result<(), NackReason> {
+        let mut cfg = self.config.clone();
+        let probe = cfg
+            .probes
+            .get_mut(l.probe as usize)
+            .ok_or(NackReason::BadArgument)?;
+        let tip = if l.trailing {
+            probe.trailing.as_mut().ok_or(NackReason::BadArgument)?
+        } else {
+            &mut probe.leading
+        };
+        let air_high = tip.polarity == frothline_core::Polarity::AirHigh;
+        if l.air == l.water || (l.air > l.water) != air_high {
+            return Err(NackReason::BadArgument);
+        }
+        tip.levels = frothline_core::LevelSource::Fixed {
+            air: l.air,
+            water: l.water,
+        };
+        self.rebuild(cfg)
+    }
+
+    /// The levels source of every tip, (leading, trailing) per probe, as configured now.
+    pub fn tip_levels(&self) -> Vec<(LevelSource, Option<LevelSource>)> {
+        self.config
+            .probes
+            .iter()
+            .map(|p| (p.leading.levels, p.trailing.map(|t| t.levels)))
+            .collect()
+    }
+
     /// Rebuild the chain at the current position with `config` (SetWindow, Relearn).
     fn rebuild(&mut self, config: ChainConfig<MAX_PROBES>) -> Result<(), NackReason> {
         let chain = self.new_chain(config.clone())?;
@@ -680,6 +714,7 @@ impl SimDevice {
                 self.streamer.offer(Body::Describe(d));
                 Ok(())
             }
+            Body::SetLevels(l) => self.set_levels(l),
             // A result or reply kind sent to the device is no command it knows.
             _ => Err(NackReason::UnknownCommand),
         };
@@ -948,6 +983,42 @@ mod tests {
                 ]
             );
             assert!(got.iter().any(|f| matches!(f.body, Body::Describe(_))));
+            assert!(d.running());
+
+            // SetLevels: a tip's levels fixed from here on (acknowledged); a probe or tip
+            // the device lacks, equal levels, and levels against the polarity are refused.
+            use frothline_core::wire::SetLevels;
+            let lv = |probe, trailing, air, water| {
+                Command::SetLevels(SetLevels {
+                    probe,
+                    trailing,
+                    air,
+                    water,
+                })
+            };
+            let s_ok = send(&mut d, lv(0, true, 25_500, 3_200));
+            let s_again = send(&mut d, lv(0, true, 25_500, 3_200));
+            let s_probe = send(&mut d, lv(200, false, 25_500, 3_200));
+            let s_equal = send(&mut d, lv(0, false, 3_000, 3_000));
+            let s_polarity = send(&mut d, lv(0, false, 3_000, 25_000));
+            let got = step(&mut d, &mut t, 0.05, &mut dec);
+            assert_eq!(
+                replies(&got),
+                vec![
+                    (s_ok, None),
+                    (s_again, None),
+                    (s_probe, Some(NackReason::BadArgument)),
+                    (s_equal, Some(NackReason::BadArgument)),
+                    (s_polarity, Some(NackReason::BadArgument)),
+                ]
+            );
+            assert_eq!(
+                d.tip_levels()[0].1,
+                Some(LevelSource::Fixed {
+                    air: 25_500,
+                    water: 3_200
+                })
+            );
             assert!(d.running());
 
             // A frame of a device kind, a frame of an unknown kind, a payload that does not
