@@ -10,8 +10,11 @@
 #      has 64 lag slots, the host's 256, and both must search the same lags);
 #   3. frothline-capture-gen (firmware-example/capture-gen) reads the layout and capture
 #      with the host tool's own code and writes capture/config.rs: the chain configuration
-#      of `frothline replay --window 10ms`, the probe layout in wire units, and the count
-#      and digest of the records that replay gives.
+#      of `frothline replay --window 10ms --levels device`, the probe layout in wire
+#      units, and the count and digest of the records that replay gives. The replay uses
+#      the device's causal level rule (`--levels device`: learnt during the record, as the
+#      firmware learns them), not the default record rule, so firmware and host agree
+#      record for record.
 # The firmware's build script turns capture.wav into the raw i16 block it embeds.
 # With --surge, the same for the field-logger build's capture, firmware-example/capture-surge
 # (a surge front reaching one station of 8 dual-tip probes, 20 kHz, 120 ms, fixed levels:

@@ -37,6 +37,8 @@ fn same_figures() {
         out: dir.path().to_path_buf(),
         window: "100ms".parse().unwrap(),
         quiet: true,
+        // The simulated device learns its levels by the causal rule: so does this replay.
+        levels: frothline_host::record_levels::LevelRule::Device,
     };
     let replay = frothline_host::replay::run(&args).unwrap();
     let layout = &replay.layout;

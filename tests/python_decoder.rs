@@ -89,6 +89,7 @@ fn run() {
         out: tmp.path().to_path_buf(),
         window: "100ms".parse().unwrap(),
         quiet: true,
+        levels: frothline_host::record_levels::LevelRule::Device,
     })
     .unwrap();
     let expected: Vec<WindowResult> = replay

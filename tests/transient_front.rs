@@ -40,7 +40,7 @@ fn run_seed(scenario: &Scenario, seed: u64, sizes: &[usize], keep: bool) -> Run 
     let cap = g.render_interleaved();
     let truth = g.transient_truth(&cap.truth);
     let layout = Layout::parse(
-        &layout_toml(scenario, g.resolved()),
+        &layout_toml(scenario, g.resolved(), &g.tip_levels()),
         Path::new("layout.toml"),
     )
     .unwrap();
@@ -357,6 +357,7 @@ fn replay_and_a_streamed_device_path_give_identical_records() {
         &dir.path().join("capture.wav"),
         &dir.path().join("layout.toml"),
         &"50ms".parse::<WindowSpec>().unwrap(),
+        frothline_host::record_levels::LevelRule::Device,
         None,
     )
     .unwrap();

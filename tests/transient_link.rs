@@ -37,7 +37,14 @@ fn big_stack<F: FnOnce() + Send + 'static>(f: F) {
 /// The replay's probe arrivals and profile fits in wire form, sorted.
 fn replay_wire() -> (Vec<FrontArrival>, Vec<ProfileFit>) {
     let (capture, layout) = fixture();
-    let run = transient::replay_capture(&capture, &layout, &WindowSpec::Whole, None).unwrap();
+    let run = transient::replay_capture(
+        &capture,
+        &layout,
+        &WindowSpec::Whole,
+        frothline_host::record_levels::LevelRule::Device,
+        None,
+    )
+    .unwrap();
     let mut fronts: Vec<FrontArrival> = run
         .fronts
         .iter()

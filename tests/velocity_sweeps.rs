@@ -52,8 +52,11 @@ fn run_here(case: &Case) -> (ProbeWindow, Layout) {
     );
     let scenario = Scenario::from_toml_str(&text).unwrap();
     let resolved = scenario.resolve().unwrap();
-    let layout =
-        Layout::parse(&layout_toml(&scenario, &resolved), Path::new("synth.toml")).unwrap();
+    let layout = Layout::parse(
+        &layout_toml(&scenario, &resolved, &[]),
+        Path::new("synth.toml"),
+    )
+    .unwrap();
     let gen = Generator::new(scenario, case.seed).unwrap();
     let cap = gen.render_interleaved();
     let mut cfg = chain_config(

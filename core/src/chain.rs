@@ -653,6 +653,35 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
             .map(|(a, _)| a)
     }
 
+    /// Give the leading (`trailing` false) or trailing tip of probe `probe` new levels,
+    /// used from the next frame pushed ([`frames`](Self::frames)): a host that learnt a
+    /// record's levels segment by segment applies each segment's at its first frame (push
+    /// whole frames up to it first). Refused (false) for a tip that does not exist, while a
+    /// partial frame is pending, and for station chains, whose front path runs ahead of
+    /// the statistics.
+    pub fn set_tip_levels(
+        &mut self,
+        probe: usize,
+        trailing: bool,
+        levels: crate::levels::Levels,
+    ) -> bool {
+        if self.stats.station.is_some() || self.partial_len > 0 {
+            return false;
+        }
+        let Some(p) = self.stats.probes.get_mut(probe) else {
+            return false;
+        };
+        let (lead, trail, _) = p.parts_mut();
+        let tip = if trailing { trail } else { Some(lead) };
+        match tip {
+            Some(t) => {
+                t.detector.set_levels(levels);
+                true
+            }
+            None => false,
+        }
+    }
+
     /// What the front detector of probe `probe` knows so far (station chains only).
     pub fn tip_front(&self, probe: usize) -> Option<crate::front::TipFront> {
         self.stats.station.as_ref()?.tip(probe)

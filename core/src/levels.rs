@@ -151,6 +151,27 @@ impl LevelLearner {
         self.max = hi;
     }
 
+    /// Feed `count` samples of value `x` at once: the same state as `count` calls of
+    /// [`observe`](Self::observe) with that one sample. A host that has counted a record's
+    /// values (a full 16-bit histogram) feeds them through this, so it learns the levels of
+    /// the whole record by the device's rule in one pass over the counts.
+    pub fn observe_repeated(&mut self, x: i16, count: u32) {
+        if count == 0 {
+            return;
+        }
+        self.min = self.min.min(x);
+        self.max = self.max.max(x);
+        if self.ranged {
+            let width = 1i32 << self.shift;
+            let rel = x as i32 - self.origin;
+            let bin = (rel >> self.shift).clamp(0, LEARN_BINS as i32 - 1);
+            let off = (rel - (bin << self.shift)).clamp(0, width - 1) as u32;
+            let b = bin as usize;
+            self.counts[b] = self.counts[b].saturating_add(count);
+            self.offsets[b] = self.offsets[b].saturating_add(off.saturating_mul(count));
+        }
+    }
+
     /// Set the histogram range from the min/max seen so far (widened by a quarter of the
     /// span each side) and start a fresh histogram and min/max.
     pub fn range_from_seen(&mut self) {
@@ -176,9 +197,17 @@ impl LevelLearner {
 
     /// End a learning period: decide the levels and start the next period.
     pub fn finish_period(&mut self, min_swing: u16) -> Learnt {
-        let out = self.decide(min_swing);
+        let out = self.decide(min_swing, None);
         self.range_from_seen();
         out
+    }
+
+    /// Decide the levels of what was observed, accepting a class of at least `min_class`
+    /// samples (instead of the learning period's 0.5 % of them): a whole record's
+    /// histogram in which one phase is rare but well sampled (a tip mostly in air above
+    /// the flow still meets water for tens of milliseconds). The histogram is kept.
+    pub fn decide_with_min_class(&self, min_swing: u16, min_class: u64) -> Learnt {
+        self.decide(min_swing, Some(min_class.max(2)))
     }
 
     fn bin_low(&self, b: usize) -> f32 {
@@ -218,7 +247,7 @@ impl LevelLearner {
         })
     }
 
-    fn decide(&self, min_swing: u16) -> Learnt {
+    fn decide(&self, min_swing: u16, min_class: Option<u64>) -> Learnt {
         if !self.ranged {
             return Learnt::Unclear;
         }
@@ -264,7 +293,7 @@ impl LevelLearner {
         let eta = best / var_t;
         let low_n: u64 = self.counts[..=best_k].iter().map(|&c| c as u64).sum();
         let high_n = total - low_n;
-        let min_class = (total / 200).max(2);
+        let min_class = min_class.unwrap_or((total / 200).max(2));
         if eta < MIN_SEPARABILITY || low_n < min_class || high_n < min_class {
             return Learnt::Unclear;
         }
@@ -310,6 +339,41 @@ mod tests {
             let b = (s as f64 / n as f64) as f32;
             assert_eq!(a.to_bits(), b.to_bits(), "{s} / {n}");
         }
+    }
+
+    /// Counted values fed at once give the state that sample-by-sample feeding gives
+    /// (the same histogram, so the same decision).
+    #[test]
+    fn repeated_observation_equals_samples() {
+        let frames: std::vec::Vec<i16> = (0..8000)
+            .map(|i| {
+                if (i / 52) % 3 == 0 {
+                    3100 + (i % 11) as i16
+                } else {
+                    25900 - (i % 13) as i16
+                }
+            })
+            .collect();
+        let mut a = LevelLearner::new();
+        a.observe(&frames, 1, 0, 0);
+        a.range_from_seen();
+        a.observe(&frames, 1, 0, 0);
+        let mut counts = std::collections::BTreeMap::new();
+        for &x in frames.iter().step_by(LEARN_STRIDE as usize) {
+            *counts.entry(x).or_insert(0u32) += 1;
+        }
+        let mut b = LevelLearner::new();
+        for (&x, &n) in &counts {
+            b.observe_repeated(x, n);
+        }
+        b.range_from_seen();
+        for (&x, &n) in &counts {
+            b.observe_repeated(x, n);
+        }
+        assert_eq!(a.counts, b.counts);
+        assert_eq!(a.offsets, b.offsets);
+        assert_eq!((a.min, a.max), (b.min, b.max));
+        assert_eq!(a.finish_period(64), b.finish_period(64));
     }
 
     /// The learnt levels of a two-level signal (analytic case: the mode bins' means).

@@ -348,6 +348,18 @@ impl PhaseDetector {
         self.levels
     }
 
+    /// Use `levels` from the next frame on (thresholds recomputed). A learning detector
+    /// keeps learning and replaces them at its next learning event.
+    pub fn set_levels(&mut self, levels: Levels) {
+        self.levels = Some(levels);
+        self.thresholds = Some(Thresholds::from_levels(
+            levels,
+            self.sign,
+            self.threshold,
+            self.hysteresis,
+        ));
+    }
+
     /// Process whole `frames` (interleaved, `channels` wide) whose first frame has absolute
     /// index `first`, reporting every interface to `sink`.
     pub fn process<S: EdgeSink>(

@@ -146,6 +146,7 @@ impl<const P: usize> StationConfig<P> {
                 burst_interfaces: 0,
                 burst_frames: 0,
                 settle_frames: 0,
+                contact_gap_frames: 0,
             },
             delay_frames: 0,
             grace_frames: 0,
@@ -214,6 +215,8 @@ pub struct ProbeArrival {
     pub probe: u8,
     /// Arrival frame: the first interface of the sustained change.
     pub arrival: u64,
+    /// First contact with the front ([`TipFront::first_contact`]), at or before `arrival`.
+    pub first_contact: u64,
     /// Frames the detector needed to confirm it ([`TipFront::confirmed_at`]).
     pub confirmed_at: u64,
     /// The rule that confirmed it.
@@ -526,6 +529,7 @@ impl<const P: usize> Station<P> {
             let _ = self.fronts.push_back(FrontRecord::Probe(ProbeArrival {
                 probe: i as u8,
                 arrival,
+                first_contact: s.first_contact.unwrap_or(arrival).min(arrival),
                 confirmed_at,
                 rule,
                 false_starts: s.false_starts,

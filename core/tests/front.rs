@@ -130,6 +130,55 @@ fn front_into_bubbly_flow_found_within_one_millisecond() {
     }
 }
 
+/// A frothy nose: a dry tip meets the front as short water contacts (0.3 to 1 ms) 6 to
+/// 15 ms apart, each followed by more air than the settle time, so the first contacts are
+/// false starts and the sustained change comes later (burst or hold). The first contact is
+/// the first of those contacts (analytic case: the frame where the synthetic front's first
+/// water begins), and a stray droplet 100 ms ahead of the front stays out of it.
+#[test]
+fn first_contact_of_a_frothy_nose() {
+    let mut late = 0;
+    for seed in 0..20u64 {
+        let mut rng = StdRng::seed_from_u64(seed);
+        let n = ms(800.0);
+        let t0 = ms(300.0) + rng.random_range(0..400);
+        let mut p = vec![true; n];
+        // A stray droplet well ahead.
+        fill(&mut p, t0 - ms(100.0), t0 - ms(99.6), false);
+        // The nose: a few sparse contacts.
+        let mut at = t0;
+        for _ in 0..4 {
+            let len = ms(rng.random_range(0.3..1.0)).max(1);
+            fill(&mut p, at, at + len, false);
+            at += len + ms(rng.random_range(6.0..15.0));
+        }
+        // Then the body of the roller: water with bubbles.
+        bubbly(&mut p, at, false, &mut rng);
+        for sizes in [&[n][..], &[1usize, 997, 40, 4096][..]] {
+            let f = detect(&render(&p), FrontConfig::for_rate(FS, true), sizes);
+            let arrival = f.arrival.expect("front found");
+            let first = f.first_contact.expect("first contact");
+            assert_eq!(
+                first, t0 as u64,
+                "seed {seed}: first contact {first} vs {t0}"
+            );
+            assert!(arrival >= first, "seed {seed}: {arrival} vs {first}");
+            late += (arrival > first + ms(5.0) as u64) as u32;
+        }
+    }
+    // Most noses confirm only after false starts: the first contact is what moved.
+    assert!(
+        late >= 20,
+        "{late} of 40 cases with a late confirmed arrival"
+    );
+    // A clean front: the first contact is the arrival.
+    let n = ms(600.0);
+    let mut p = vec![true; n];
+    fill(&mut p, ms(300.0), n, false);
+    let f = detect(&render(&p), FrontConfig::for_rate(FS, true), &[n]);
+    assert_eq!(f.first_contact, f.arrival);
+}
+
 #[test]
 fn burst_rule_fires_on_a_roller_that_never_holds_water() {
     // Droplets of 0.3 ms every 2 ms from t0: never 5 ms of water, six interfaces in 6 ms.
@@ -207,6 +256,7 @@ fn rules_can_be_switched_off_and_degenerate_input_is_harmless() {
         burst_interfaces: 0,
         burst_frames: 0,
         settle_frames: 0,
+        contact_gap_frames: 0,
     };
     let mut d = FrontDetector::new(off);
     for i in 0..100u64 {

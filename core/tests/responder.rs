@@ -137,14 +137,15 @@ fn every_rule_gives_its_answer() {
         ),
         [nack(4, NackReason::BadArgument)]
     );
-    // Unknown kind (0x7E), a reserved kind (0x26 set-levels) and a device kind (Ack).
+    // Unknown kind (0x7E), a set-levels command (0x26) without its body, and a device kind
+    // (Ack).
     assert_eq!(
         feed(&mut r, &mut t, &raw(&[2, 0xFF, 0xFF, 0x03, 0x7E, 5])),
         [nack(5, NackReason::UnknownCommand)]
     );
     assert_eq!(
         feed(&mut r, &mut t, &raw(&[2, 0xFF, 0xFF, 0x03, 0x26, 6])),
-        [nack(6, NackReason::UnknownCommand)]
+        [nack(6, NackReason::Malformed)]
     );
     assert_eq!(
         feed(&mut r, &mut t, &frame(7, Body::Ack(Ack { seq: 1 }))),

@@ -8,9 +8,9 @@
 use frothline_core::wire::{
     self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, Decoder,
     DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, Nack, NackReason,
-    ProbeLayout, ProfileFit, Relearn, RunStart, SeqCheck, StartRun, Streamer, StreamerConfig,
-    TrailingTip, WindowResult, WindowSetting, Windows, LABEL_BYTES, MAX_FRAME_BYTES, MAX_PROBES,
-    MAX_WINDOWS_PER_FRAME,
+    ProbeLayout, ProfileFit, Relearn, RunStart, SeqCheck, SetLevels, StartRun, Streamer,
+    StreamerConfig, TrailingTip, WindowResult, WindowSetting, Windows, LABEL_BYTES,
+    MAX_FRAME_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME,
 };
 use proptest::prelude::*;
 use rand::rngs::StdRng;
@@ -238,6 +238,15 @@ fn sample_frames() -> Vec<Frame> {
                 reason: NackReason::Busy,
             }),
         ),
+        host(
+            6,
+            Body::SetLevels(SetLevels {
+                probe: 2,
+                trailing: true,
+                air: 25_100,
+                water: -3_000,
+            }),
+        ),
     ]
 }
 
@@ -345,6 +354,12 @@ fn largest_frames() -> Vec<Frame> {
         })),
         f(Body::Relearn(Relearn { probes: u32::MAX })),
         f(Body::DescribeRequest),
+        f(Body::SetLevels(SetLevels {
+            probe: u8::MAX,
+            trailing: true,
+            air: i16::MIN,
+            water: i16::MIN,
+        })),
         f(Body::Ack(Ack { seq: u16::MAX })),
         f(Body::Nack(Nack {
             seq: u16::MAX,
@@ -485,6 +500,17 @@ fn golden_vectors_for_every_kind() {
         );
     }
     assert_eq!(kinds.len(), Kind::ALL.len(), "every kind has a vector");
+}
+
+/// SetLevels { probe 2, trailing, air 25100, water -3000 } from the host (id 0xFFFF), seq 6,
+/// worked by hand from docs/wire-protocol.md: body 02 | 01 | air zigzag 50200 -> varint
+/// 98 88 03 | water zigzag 5999 -> varint ef 2e.
+#[test]
+fn golden_set_levels_by_hand() {
+    let f = &sample_frames()[13];
+    let (version, device, kind, seq, body) = ref_parse(&enc(f));
+    assert_eq!((version, device, kind, seq), (2, 0xFFFF, 0x26, 6));
+    assert_eq!(body, [0x02, 0x01, 0x98, 0x88, 0x03, 0xEF, 0x2E]);
 }
 
 #[test]
@@ -1094,6 +1120,14 @@ fn arb_body() -> impl Strategy<Value = Body> {
         arb_setting().prop_map(Body::SetWindow),
         any::<u32>().prop_map(|probes| Body::Relearn(Relearn { probes })),
         Just(Body::DescribeRequest),
+        (any::<u8>(), any::<bool>(), any::<i16>(), any::<i16>()).prop_map(
+            |(probe, trailing, air, water)| Body::SetLevels(SetLevels {
+                probe,
+                trailing,
+                air,
+                water
+            })
+        ),
         any::<u16>().prop_map(|seq| Body::Ack(Ack { seq })),
         (any::<u16>(), any::<u8>()).prop_map(|(seq, r)| Body::Nack(Nack {
             seq,

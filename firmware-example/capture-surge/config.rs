@@ -80,6 +80,7 @@ pub fn station<const P: usize>() -> Option<StationConfig<P>> {
         burst_interfaces: 6,
         burst_frames: 400,
         settle_frames: 100,
+        contact_gap_frames: 1000,
     };
     s.delay_frames = 800;
     s.grace_frames = 2000;

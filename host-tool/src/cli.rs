@@ -42,6 +42,10 @@ pub enum Command {
     Report(crate::report::ReportArgs),
     /// Combine repeated transient runs of one rig, aligned on the front.
     Ensemble(crate::ensemble::EnsembleArgs),
+    /// Check every tip on a segment of a capture (levels, noise, swing, interface times;
+    /// flags small swing, high noise, moved levels) and optionally write the levels into
+    /// the layout.
+    Tipcheck(crate::tipcheck::TipcheckArgs),
 }
 
 /// Parse `args` (including the program name) and run the command.
@@ -109,5 +113,6 @@ fn dispatch(command: Command) -> Result<(), HostError> {
         Command::Logbook(a) => crate::logbook_cmd::run(&a).map(|_| ()),
         Command::Report(a) => crate::report::run(&a).map(|_| ()).map_err(HostError::from),
         Command::Ensemble(a) => crate::ensemble::run(&a).map(|_| ()),
+        Command::Tipcheck(a) => crate::tipcheck::run(&a).map(|_| ()),
     }
 }

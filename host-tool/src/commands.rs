@@ -1,5 +1,5 @@
-//! Host -> device commands: StartRun, StopRun, SetWindow, Relearn and DescribeRequest as
-//! wire frames.
+//! Host -> device commands: StartRun, StopRun, SetWindow, Relearn, DescribeRequest and
+//! SetLevels as wire frames.
 //!
 //! The host writes its commands with the host id ([`HOST_DEVICE_ID`], the protocol's
 //! [`wire::HOST_ID`]: devices ignore frames with any other id) and its own sequence
@@ -8,7 +8,7 @@
 //! command a reply is about. A StartRun carries the host's UTC, which the device quotes
 //! in the run's RunStart frame.
 
-use frothline_core::wire::{self, Body, Frame, Kind, Relearn, StartRun, WindowSetting};
+use frothline_core::wire::{self, Body, Frame, Kind, Relearn, SetLevels, StartRun, WindowSetting};
 use std::collections::VecDeque;
 
 /// The device id the host writes into its command frames (no device uses it).
@@ -28,6 +28,8 @@ pub enum Command {
     Relearn(u32),
     /// Ask for the device description.
     DescribeRequest,
+    /// Fix one tip's air and water levels (counts): a calibration's result.
+    SetLevels(SetLevels),
 }
 
 impl Command {
@@ -39,6 +41,7 @@ impl Command {
             Command::SetWindow(_) => Kind::SetWindow,
             Command::Relearn(_) => Kind::Relearn,
             Command::DescribeRequest => Kind::DescribeRequest,
+            Command::SetLevels(_) => Kind::SetLevels,
         }
     }
 
@@ -54,6 +57,7 @@ impl Command {
             Command::SetWindow(s) => Body::SetWindow(*s),
             Command::Relearn(mask) => Body::Relearn(Relearn { probes: *mask }),
             Command::DescribeRequest => Body::DescribeRequest,
+            Command::SetLevels(l) => Body::SetLevels(*l),
         })
     }
 }
@@ -72,6 +76,7 @@ pub fn kind_name(kind: Kind) -> &'static str {
         Kind::SetWindow => "set-window",
         Kind::Relearn => "relearn",
         Kind::DescribeRequest => "describe-request",
+        Kind::SetLevels => "set-levels",
         Kind::Ack => "ack",
         Kind::Nack => "nack",
         _ => "unknown",

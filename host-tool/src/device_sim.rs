@@ -48,7 +48,7 @@ use frothline_core::wire::{
     Responder, RunStart, StartRun, Streamer, StreamerConfig, TrailingTip, WindowResult,
     WindowSetting,
 };
-use frothline_core::{ChainConfig, Flags, FrontRecord, WindowPolicy};
+use frothline_core::{ChainConfig, Flags, FrontRecord, LevelSource, WindowPolicy};
 use std::io::{Read, Write};
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -134,6 +134,7 @@ impl SimCapture {
         let layout_doc = Layout::load(layout)?;
         let mut cap = crate::capture::Capture::open(capture)?;
         layout_doc.check_channels(cap.channels(), layout)?;
+        crate::replay::check_levels_fit(&layout_doc, &cap, layout)?;
         if layout_doc.probes.len() > MAX_PROBES {
             return Err(HostError::Usage(format!(
                 "{}: {} probes, the host handles at most {MAX_PROBES}",
@@ -176,7 +177,11 @@ impl SimCapture {
         window: WindowSpec,
     ) -> Result<Self, HostError> {
         let generator = crate::synth::Generator::new(scenario.clone(), scenario.seed)?;
-        let text = crate::synth::output::layout_toml(scenario, generator.resolved());
+        let text = crate::synth::output::layout_toml(
+            scenario,
+            generator.resolved(),
+            &generator.tip_levels(),
+        );
         let layout = Layout::parse(&text, Path::new("<built-in scenario>"))?;
         let cap = generator.render_interleaved();
         let channels = cap.channels as usize;
@@ -519,6 +524,40 @@ impl SimDevice {
         }
     }
 
+    /// SetLevels: fix one tip's levels from the current position on (the chain is rebuilt
+    /// there, as for Relearn). A probe or tip the device does not have, equal levels and
+    /// levels that contradict the tip's polarity are bad arguments.
+    fn set_levels(&mut self, l: frothline_core::wire::SetLevels) -> Result<(), NackReason> {
+        let mut cfg = self.config.clone();
+        let probe = cfg
+            .probes
+            .get_mut(l.probe as usize)
+            .ok_or(NackReason::BadArgument)?;
+        let tip = if l.trailing {
+            probe.trailing.as_mut().ok_or(NackReason::BadArgument)?
+        } else {
+            &mut probe.leading
+        };
+        let air_high = tip.polarity == frothline_core::Polarity::AirHigh;
+        if l.air == l.water || (l.air > l.water) != air_high {
+            return Err(NackReason::BadArgument);
+        }
+        tip.levels = frothline_core::LevelSource::Fixed {
+            air: l.air,
+            water: l.water,
+        };
+        self.rebuild(cfg)
+    }
+
+    /// The levels source of every tip, (leading, trailing) per probe, as configured now.
+    pub fn tip_levels(&self) -> Vec<(LevelSource, Option<LevelSource>)> {
+        self.config
+            .probes
+            .iter()
+            .map(|p| (p.leading.levels, p.trailing.map(|t| t.levels)))
+            .collect()
+    }
+
     /// Rebuild the chain at the current position with `config` (SetWindow, Relearn).
     fn rebuild(&mut self, config: ChainConfig<MAX_PROBES>) -> Result<(), NackReason> {
         let chain = self.new_chain(config.clone())?;
@@ -804,6 +843,10 @@ impl CommandTarget for SimTarget<'_> {
         let desc = self.dev.description();
         self.dev.streamer.offer(Body::Describe(desc));
         Ok(())
+    }
+
+    fn set_levels(&mut self, levels: &frothline_core::wire::SetLevels) -> Result<(), NackReason> {
+        self.dev.set_levels(*levels)
     }
 }
 

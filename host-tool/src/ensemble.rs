@@ -528,6 +528,7 @@ impl Ensemble {
                 frames: self.window_frames as u32,
             },
             delay_frames: Vec::new(),
+            levels_from: Vec::new(),
         };
         let rows: Vec<Vec<String>> = self
             .slices()
@@ -652,7 +653,13 @@ pub fn run(args: &EnsembleArgs) -> Result<EnsembleReport, HostError> {
     for c in &captures {
         let mut full = Vec::new();
         let mut keep = |r: &FullRecord| full.push(r.clone());
-        let run = transient::replay_capture(c, &args.layout, &args.window, Some(&mut keep))?;
+        let run = transient::replay_capture(
+            c,
+            &args.layout,
+            &args.window,
+            crate::record_levels::LevelRule::Record,
+            Some(&mut keep),
+        )?;
         let e = match &mut ensemble {
             Some(e) => e,
             None => ensemble.insert(

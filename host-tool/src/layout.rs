@@ -143,6 +143,13 @@ pub struct FixedLevels {
     pub water: f64,
 }
 
+/// The level pairs of a probe table: (prefix, air key, water key).
+const LEVEL_KEYS: [(&str, &str, &str); 3] = [
+    ("", "air_level", "water_level"),
+    ("leading_", "leading_air_level", "leading_water_level"),
+    ("trailing_", "trailing_air_level", "trailing_water_level"),
+];
+
 /// One `[[probe]]` table: a single-tip or dual-tip probe.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct ProbeSpec {
@@ -161,8 +168,15 @@ pub struct ProbeSpec {
     /// `air_is_high`: polarity, air reads the higher value. Default true, or inferred from
     /// fixed levels when those are given and `air_is_high` is not.
     pub air_is_high: bool,
-    /// `air_level` and `water_level`: fixed levels, file units. `None`: learn them.
+    /// `air_level` and `water_level`: fixed levels of both tips, file units. `None`: see
+    /// the per-tip pairs; with neither, the levels are learnt.
     pub levels: Option<FixedLevels>,
+    /// `leading_air_level` and `leading_water_level`: the leading tip's own fixed levels.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub leading_levels: Option<FixedLevels>,
+    /// `trailing_air_level` and `trailing_water_level`: the trailing tip's own fixed levels.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub trailing_levels: Option<FixedLevels>,
     /// `max_lag_ms`: longest lag searched by the cross-correlation, milliseconds.
     pub max_lag_ms: Option<f64>,
     /// Where the probe was written in the layout file (`None` when built in code).
@@ -171,6 +185,17 @@ pub struct ProbeSpec {
 }
 
 impl ProbeSpec {
+    /// The fixed levels of the leading (`trailing` false) or trailing tip: its own pair,
+    /// else the probe's pair; `None` when they are learnt.
+    pub fn tip_levels(&self, trailing: bool) -> Option<FixedLevels> {
+        let own = if trailing {
+            self.trailing_levels
+        } else {
+            self.leading_levels
+        };
+        own.or(self.levels)
+    }
+
     /// The channels of this probe's tips: leading first, then trailing if any.
     pub fn channels(&self) -> impl Iterator<Item = usize> {
         std::iter::once(self.leading).chain(self.trailing)
@@ -186,6 +211,10 @@ pub struct ProbeSource {
     pub leading: Location,
     /// The `trailing` value.
     pub trailing: Option<Location>,
+    /// The level values, in the order of the keys `air_level`, `water_level`,
+    /// `leading_air_level`, `leading_water_level`, `trailing_air_level`,
+    /// `trailing_water_level`.
+    pub levels: [Option<Location>; 6],
 }
 
 /// A 1-based line and column (in characters) in the layout file.
@@ -323,7 +352,8 @@ pub enum Problem {
     TrailingWithoutSpacing,
     /// `tip_spacing_mm` given without `trailing`.
     SpacingWithoutTrailing,
-    /// Only one of `air_level` / `water_level` is given.
+    /// Only one key of a level pair (`air_level` / `water_level`, or a tip's own pair) is
+    /// given.
     HalfLevelPair {
         /// The key that is missing.
         missing: &'static str,
@@ -377,7 +407,7 @@ impl fmt::Display for Problem {
             }
             Problem::HalfLevelPair { missing } => write!(
                 f,
-                "`air_level` and `water_level` go together: `{missing}` is missing"
+                "an air level and a water level go together: `{missing}` is missing"
             ),
             Problem::ChannelInUse {
                 channel,
@@ -459,6 +489,10 @@ struct RawProbe {
     air_is_high: Option<Spanned<bool>>,
     air_level: Option<Spanned<f64>>,
     water_level: Option<Spanned<f64>>,
+    leading_air_level: Option<Spanned<f64>>,
+    leading_water_level: Option<Spanned<f64>>,
+    trailing_air_level: Option<Spanned<f64>>,
+    trailing_water_level: Option<Spanned<f64>>,
     max_lag_ms: Option<Spanned<f64>>,
 }
 
@@ -567,6 +601,48 @@ impl Layout {
                         key: format!("probe[{i}].{what}"),
                         at,
                         problem: Box::new(Problem::ChannelBeyondCapture { channel, channels }),
+                    });
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// Check every fixed level against the capture's sample range `lo..=hi` (file units;
+    /// `format` names the sample format for the message): a level the file cannot hold is
+    /// a typing error, not a level.
+    pub fn check_levels(
+        &self,
+        (lo, hi): (f64, f64),
+        format: &str,
+        file: &Path,
+    ) -> Result<(), LayoutError> {
+        for (i, p) in self.probes.iter().enumerate() {
+            let pairs = [(p.levels, 0), (p.leading_levels, 2), (p.trailing_levels, 4)];
+            for (pair, k) in pairs {
+                let Some(l) = pair else { continue };
+                for (j, v) in [(k, l.air), (k + 1, l.water)] {
+                    if (lo..=hi).contains(&v) {
+                        continue;
+                    }
+                    let name = [
+                        "air_level",
+                        "water_level",
+                        "leading_air_level",
+                        "leading_water_level",
+                        "trailing_air_level",
+                        "trailing_water_level",
+                    ][j];
+                    return Err(LayoutError::Key {
+                        file: file.to_path_buf(),
+                        key: format!("probe[{i}].{name}"),
+                        at: p.source.and_then(|s| s.levels[j]),
+                        problem: Box::new(Problem::OutOfRange {
+                            detail: format!(
+                                "{name} = {v} lies outside the capture's sample range \
+                                 {lo}..={hi} ({format}): levels are in the file's units"
+                            ),
+                        }),
                     });
                 }
             }
@@ -963,61 +1039,117 @@ fn build_probe(
         channels.insert(channel, (k, cx.at(span).line));
     }
 
-    // levels and polarity
-    let levels = match (&p.air_level, &p.water_level) {
-        (None, None) => None,
-        (Some(a), None) => {
-            return Err(cx.err(
-                key("air_level"),
-                a.span(),
-                Problem::HalfLevelPair {
-                    missing: "water_level",
-                },
-            ))
-        }
-        (None, Some(w)) => {
-            return Err(cx.err(
-                key("water_level"),
-                w.span(),
-                Problem::HalfLevelPair {
-                    missing: "air_level",
-                },
-            ))
-        }
-        (Some(a), Some(w)) => {
-            let air = cx.finite(&key("air_level"), a)?;
-            let water = cx.finite(&key("water_level"), w)?;
-            if air == water {
-                return Err(cx.err(
-                    key("water_level"),
-                    w.span(),
-                    Problem::Inconsistent {
-                        detail: format!("water_level must differ from air_level (both {air})"),
-                    },
-                ));
+    // levels and polarity: the probe's pair (both tips) or each tip's own pair
+    let pair = |prefix: &'static str,
+                a: &Option<Spanned<f64>>,
+                w: &Option<Spanned<f64>>|
+     -> Result<Option<(FixedLevels, Range<usize>)>, LayoutError> {
+        let (ak, wk) = LEVEL_KEYS
+            .iter()
+            .find(|k| k.0 == prefix)
+            .map_or(("air_level", "water_level"), |k| (k.1, k.2));
+        match (a, w) {
+            (None, None) => Ok(None),
+            (Some(a), None) => {
+                Err(cx.err(key(ak), a.span(), Problem::HalfLevelPair { missing: wk }))
             }
-            Some(FixedLevels { air, water })
+            (None, Some(w)) => {
+                Err(cx.err(key(wk), w.span(), Problem::HalfLevelPair { missing: ak }))
+            }
+            (Some(a), Some(w)) => {
+                let air = cx.finite(&key(ak), a)?;
+                let water = cx.finite(&key(wk), w)?;
+                if air == water {
+                    return Err(cx.err(
+                        key(wk),
+                        w.span(),
+                        Problem::Inconsistent {
+                            detail: format!("{wk} must differ from {ak} (both {air})"),
+                        },
+                    ));
+                }
+                Ok(Some((FixedLevels { air, water }, w.span())))
+            }
         }
     };
-    let air_is_high = match (&p.air_is_high, levels) {
-        (Some(v), Some(l)) if *v.get_ref() != (l.air > l.water) => {
-            return Err(cx.err(
-                key("air_is_high"),
-                v.span(),
-                Problem::Inconsistent {
-                    detail: format!(
-                        "air_is_high = {} contradicts air_level = {} and water_level = {}",
+    let levels = pair("", &p.air_level, &p.water_level)?;
+    let leading_levels = pair("leading_", &p.leading_air_level, &p.leading_water_level)?;
+    let trailing_levels = pair("trailing_", &p.trailing_air_level, &p.trailing_water_level)?;
+    if let (Some(_), None) = (&trailing_levels, trailing) {
+        let span = trailing_levels.as_ref().map_or(0..0, |l| l.1.clone());
+        return Err(cx.err(
+            key("trailing_water_level"),
+            span,
+            Problem::Inconsistent {
+                detail: "the probe has no `trailing` tip to take these levels".into(),
+            },
+        ));
+    }
+    if let (Some(_), Some((_, span))) = (
+        &levels,
+        leading_levels.as_ref().or(trailing_levels.as_ref()),
+    ) {
+        let which = if leading_levels.is_some() {
+            "leading_water_level"
+        } else {
+            "trailing_water_level"
+        };
+        return Err(cx.err(
+            key(which),
+            span.clone(),
+            Problem::Inconsistent {
+                detail: "give either `air_level`/`water_level` (both tips) or each tip's \
+                         own pair, not both"
+                    .into(),
+            },
+        ));
+    }
+    // Every pair must read air on the same side as the polarity.
+    let pairs: Vec<(&str, FixedLevels, Range<usize>)> = [
+        ("", levels.clone()),
+        ("leading_", leading_levels.clone()),
+        ("trailing_", trailing_levels.clone()),
+    ]
+    .into_iter()
+    .filter_map(|(k, l)| l.map(|(l, s)| (k, l, s)))
+    .collect();
+    let air_is_high = match (&p.air_is_high, pairs.first()) {
+        (Some(v), _) => *v.get_ref(),
+        (None, Some((_, l, _))) => l.air > l.water,
+        (None, None) => true,
+    };
+    for (prefix, l, span) in &pairs {
+        if (l.air > l.water) != air_is_high {
+            let (k, detail) = match &p.air_is_high {
+                Some(v) => (
+                    "air_is_high".to_string(),
+                    format!(
+                        "air_is_high = {} contradicts {prefix}air_level = {} and \
+                         {prefix}water_level = {}",
                         v.get_ref(),
                         l.air,
                         l.water
                     ),
-                },
-            ))
+                ),
+                None => (
+                    format!("{prefix}water_level"),
+                    format!(
+                        "{prefix}air_level = {} and {prefix}water_level = {} read air on the \
+                         other side from the probe's other level pair",
+                        l.air, l.water
+                    ),
+                ),
+            };
+            let span = match &p.air_is_high {
+                Some(v) => v.span(),
+                None => span.clone(),
+            };
+            return Err(cx.err(key(&k), span, Problem::Inconsistent { detail }));
         }
-        (Some(v), _) => *v.get_ref(),
-        (None, Some(l)) => l.air > l.water,
-        (None, None) => true,
-    };
+    }
+    let levels = levels.map(|l| l.0);
+    let leading_levels = leading_levels.map(|l| l.0);
+    let trailing_levels = trailing_levels.map(|l| l.0);
 
     let max_lag_ms = match (&p.max_lag_ms, trailing) {
         (Some(v), None) => {
@@ -1044,11 +1176,22 @@ fn build_probe(
         tip_spacing_mm,
         air_is_high,
         levels,
+        leading_levels,
+        trailing_levels,
         max_lag_ms,
         source: Some(ProbeSource {
             table,
             leading: cx.at(p.leading.span()),
             trailing: p.trailing.as_ref().map(|v| cx.at(v.span())),
+            levels: [
+                &p.air_level,
+                &p.water_level,
+                &p.leading_air_level,
+                &p.leading_water_level,
+                &p.trailing_air_level,
+                &p.trailing_water_level,
+            ]
+            .map(|v| v.as_ref().map(|v| cx.at(v.span()))),
         }),
     })
 }
@@ -1446,6 +1589,81 @@ water_level = 0.6
             "probe[0].name",
             5,
         );
+    }
+
+    /// Each tip's own level pair; the probe's pair stays accepted; mixing them, a pair for
+    /// a missing trailing tip, half pairs and pairs that read air on opposite sides are
+    /// refused with the key named.
+    #[test]
+    fn per_tip_levels() {
+        const DUAL: &str = "trailing = 1\ntip_spacing_mm = 5\n";
+        let l = parse(&format!(
+            "{MIN}{DUAL}leading_air_level = 26000\nleading_water_level = 3000\n\
+             trailing_air_level = 25100\ntrailing_water_level = 3400\n"
+        ))
+        .unwrap();
+        let p = &l.probes[0];
+        assert_eq!(
+            p.tip_levels(false),
+            Some(FixedLevels {
+                air: 26000.0,
+                water: 3000.0
+            })
+        );
+        assert_eq!(
+            p.tip_levels(true),
+            Some(FixedLevels {
+                air: 25100.0,
+                water: 3400.0
+            })
+        );
+        assert!(p.air_is_high);
+        // Only the trailing tip fixed: the leading tip learns.
+        let l = parse(&format!(
+            "{MIN}{DUAL}trailing_air_level = -2000\ntrailing_water_level = 9000\n"
+        ))
+        .unwrap();
+        assert_eq!(l.probes[0].tip_levels(false), None);
+        assert!(!l.probes[0].air_is_high);
+        // The probe's pair applies to both tips.
+        let l = parse(&format!(
+            "{MIN}{DUAL}air_level = 26000\nwater_level = 3000\n"
+        ))
+        .unwrap();
+        assert_eq!(l.probes[0].tip_levels(true), l.probes[0].tip_levels(false));
+        let m = fails(
+            &format!("{MIN}{DUAL}air_level = 26000\nwater_level = 3000\nleading_air_level = 1\nleading_water_level = 2\n"),
+            "probe[0].leading_water_level",
+            13,
+        );
+        assert!(m.contains("not both"), "{m}");
+        let m = fails(
+            &format!("{MIN}trailing_air_level = 26000\ntrailing_water_level = 3000\n"),
+            "probe[0].trailing_water_level",
+            9,
+        );
+        assert!(m.contains("no `trailing` tip"), "{m}");
+        let m = fails(
+            &format!("{MIN}{DUAL}trailing_air_level = 26000\n"),
+            "probe[0].trailing_air_level",
+            10,
+        );
+        assert!(m.contains("trailing_water_level"), "{m}");
+        let m = fails(
+            &format!(
+                "{MIN}{DUAL}leading_air_level = 26000\nleading_water_level = 3000\n\
+                      trailing_air_level = 3000\ntrailing_water_level = 26000\n"
+            ),
+            "probe[0].trailing_water_level",
+            13,
+        );
+        assert!(m.contains("other side"), "{m}");
+        let m = fails(
+            &format!("{MIN}{DUAL}air_is_high = false\ntrailing_air_level = 26000\ntrailing_water_level = 3000\n"),
+            "probe[0].air_is_high",
+            10,
+        );
+        assert!(m.contains("contradicts trailing_air_level"), "{m}");
     }
 
     #[test]

@@ -7,10 +7,12 @@ use crate::capture::Capture;
 use crate::error::{write_err, HostError};
 use crate::layout::Layout;
 use crate::probe_summary::{ProbeTally, SummaryRow, SummaryRule, WindowFigures};
+use crate::record_levels::{self, LevelRule, RecordLevels};
 use crate::rig::HostRecord as ProbeWindow;
 use crate::rig::{chain_config, HostChain, MAX_PROBES};
 use crate::window_spec::WindowSpec;
 use crate::windows_csv::{ProbeMeta, WindowsCsv};
+use frothline_core::levels::Levels;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::fs::File;
 use std::io::BufWriter;
@@ -41,6 +43,12 @@ pub struct ReplayArgs {
     /// No progress bar and no summary table.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Levels of tips without fixed levels in the layout: `record` learns them from the
+    /// whole capture first, then processes it from its first frame; `device` learns them
+    /// as the device does, during the record (its first learning period runs without
+    /// levels), and reproduces a device's records exactly.
+    #[arg(long, value_enum, default_value_t = LevelRule::Record)]
+    pub levels: LevelRule,
 }
 
 /// What a replay produced, for the summary and for tests.
@@ -58,17 +66,100 @@ pub struct ReplayReport {
     pub windows_csv: PathBuf,
 }
 
-/// Layout probes as CSV row metadata.
+/// Layout probes as CSV row metadata (where the levels come from not known).
 pub fn probe_meta(layout: &Layout) -> Vec<ProbeMeta> {
+    probe_meta_with(layout, &[])
+}
+
+/// Layout probes as CSV row metadata, with where each probe's leading-tip levels come
+/// from (`sources`, per probe; see [`levels_sources`]).
+pub fn probe_meta_with(layout: &Layout, sources: &[Option<&'static str>]) -> Vec<ProbeMeta> {
     layout
         .probes
         .iter()
-        .map(|p| ProbeMeta {
+        .enumerate()
+        .map(|(i, p)| ProbeMeta {
             name: p.name.clone(),
             elevation_mm: p.elevation_mm,
             x_mm: p.x_mm,
+            levels_from: sources.get(i).copied().flatten(),
         })
         .collect()
+}
+
+/// Where each probe's leading-tip levels come from: the layout, the record (`learnt`, when
+/// the record rule ran) or the device's causal rule.
+pub fn levels_sources(layout: &Layout, learnt: Option<&RecordLevels>) -> Vec<Option<&'static str>> {
+    layout
+        .probes
+        .iter()
+        .map(|p| {
+            if p.tip_levels(false).is_some() {
+                return Some("layout");
+            }
+            let ch = p.leading.min(255) as u8;
+            Some(
+                learnt
+                    .and_then(|l| l.tip(ch))
+                    .and_then(|t| t.outcome.source_name())
+                    .unwrap_or("device_rule"),
+            )
+        })
+        .collect()
+}
+
+/// Tips that learn their levels during the record (the device's rule, or the tips the
+/// record rule could not give levels) need a learning period of at least 64 frames to fill
+/// its histogram: a shorter one (`learn_period_s = 1e-9`, or a 1 Hz file) is refused,
+/// with the key, the value and the frames it makes at the capture's rate.
+pub fn check_learn_period(
+    cfg: &frothline_core::ChainConfig<{ crate::rig::MAX_PROBES }>,
+    layout: &Layout,
+    sample_rate: u32,
+    layout_path: &Path,
+) -> Result<(), HostError> {
+    let learning = cfg.probes.iter().any(|p| {
+        core::iter::once(&p.leading)
+            .chain(p.trailing.as_ref())
+            .any(|t| t.levels == frothline_core::LevelSource::Learnt)
+    });
+    let period = layout.detector.learn_period_s;
+    let frames = period * sample_rate as f64;
+    if learning && frames < 64.0 {
+        return Err(HostError::Usage(format!(
+            "{}: key `detector.learn_period_s`: {period} s is {frames:.3e} frames at \
+             {sample_rate} Hz, but a learning period must hold at least 64 frames ({:.4} s \
+             at this rate) to fill its histogram; give a longer period, or fix the tips' \
+             levels in the layout",
+            layout_path.display(),
+            64.0 / sample_rate.max(1) as f64
+        )));
+    }
+    Ok(())
+}
+
+/// A learning period too short is an error under the device's rule; under the record rule
+/// it concerns only the tips the record could not give levels (already named), so it is a
+/// warning there.
+pub fn period_rule(check: Result<(), HostError>, rule: LevelRule) -> Result<(), HostError> {
+    match (check, rule) {
+        (Err(e), LevelRule::Record) => {
+            eprintln!("warning: {e}");
+            Ok(())
+        }
+        (other, _) => other,
+    }
+}
+
+/// The layout's fixed levels must lie inside the capture's sample range.
+pub fn check_levels_fit(
+    layout: &Layout,
+    cap: &Capture,
+    layout_path: &Path,
+) -> Result<(), HostError> {
+    let format = cap.format();
+    layout.check_levels(format.full_scale(), &format.to_string(), layout_path)?;
+    Ok(())
 }
 
 /// Open a capture and its layout and build the chain for them.
@@ -80,6 +171,7 @@ pub fn open_rig(
     let layout_doc = Layout::load(layout)?;
     let cap = Capture::open(capture)?;
     layout_doc.check_channels(cap.channels(), layout)?;
+    check_levels_fit(&layout_doc, &cap, layout)?;
     if layout_doc.probes.len() > MAX_PROBES {
         return Err(HostError::Usage(format!(
             "{}: {} probes, the host handles at most {MAX_PROBES}",
@@ -105,10 +197,97 @@ pub fn open_rig(
     Ok((cap, layout_doc, Box::new(chain)))
 }
 
+/// `chain` rebuilt with the record's levels for its learning tips; the tips that did not
+/// learn are reported on stderr (probe and tip named) and keep the causal rule.
+pub fn with_record_levels(
+    chain: Box<HostChain>,
+    learnt: &RecordLevels,
+    layout: &Layout,
+    layout_path: &Path,
+) -> Result<Box<HostChain>, HostError> {
+    let mut cfg = chain.config().clone();
+    drop(chain);
+    report_unlearnt(learnt, layout, cfg.detector.min_swing);
+    learnt.apply(&mut cfg);
+    let chain = HostChain::new(cfg).map_err(|source| HostError::Config {
+        file: layout_path.to_path_buf(),
+        source,
+    })?;
+    Ok(Box::new(chain))
+}
+
+/// Tell the user on stderr which tips learnt no levels from the record.
+pub fn report_unlearnt(learnt: &RecordLevels, layout: &Layout, min_swing: u16) {
+    let names: Vec<String> = layout.probes.iter().map(|p| p.name.clone()).collect();
+    for w in learnt.warnings(&names, min_swing) {
+        eprintln!("warning: {w}");
+    }
+}
+
+/// Levels that change during the record, segment by segment (drift tracking): every tip
+/// listed takes its segment's levels at the segment's first frame.
+#[derive(Clone, Debug, Default)]
+pub struct LevelSchedule {
+    /// Frames per segment (> 0).
+    pub segment_frames: u64,
+    /// (layout probe index, trailing tip, levels per segment).
+    pub tips: Vec<(usize, bool, Vec<Levels>)>,
+}
+
+impl LevelSchedule {
+    /// The schedule of a record's per-segment levels (tips without levels left out);
+    /// `None` when the record was not learnt segment by segment.
+    pub fn from_record(learnt: &RecordLevels) -> Option<LevelSchedule> {
+        if learnt.segment_frames == 0 {
+            return None;
+        }
+        let n = learnt.segment_count();
+        let tips = learnt
+            .tips
+            .iter()
+            .enumerate()
+            .filter_map(|(i, t)| {
+                let levels: Option<Vec<Levels>> =
+                    (0..n).map(|k| learnt.levels_in_segment(i, k)).collect();
+                levels.map(|l| (t.probe, t.trailing, l))
+            })
+            .collect();
+        Some(LevelSchedule {
+            segment_frames: learnt.segment_frames,
+            tips,
+        })
+    }
+
+    /// Apply the levels of the segment that starts at `frame`, if one does, to the tips of
+    /// `chain` (`local` maps a layout probe index to the chain's).
+    fn apply(&self, chain: &mut HostChain, frame: u64, local: &dyn Fn(usize) -> Option<usize>) {
+        if self.segment_frames == 0 || !frame.is_multiple_of(self.segment_frames) {
+            return;
+        }
+        let k = (frame / self.segment_frames) as usize;
+        for (probe, trailing, levels) in &self.tips {
+            if let (Some(p), Some(l)) = (local(*probe), levels.get(k)) {
+                chain.set_tip_levels(p, *trailing, *l);
+            }
+        }
+    }
+}
+
 /// Push every frame of `cap` through `chain`, handing each record to `sink`.
 pub fn drive(
     cap: &mut Capture,
     chain: &mut HostChain,
+    progress: &ProgressBar,
+    sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
+) -> Result<u64, HostError> {
+    drive_with(cap, chain, None, progress, sink)
+}
+
+/// [`drive`] with the levels of `schedule` applied as the record goes.
+pub fn drive_with(
+    cap: &mut Capture,
+    chain: &mut HostChain,
+    schedule: Option<&LevelSchedule>,
     progress: &ProgressBar,
     mut sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
 ) -> Result<u64, HostError> {
@@ -120,26 +299,42 @@ pub fn drive(
             break;
         }
         frames += n as u64;
-        push_all(chain, &buf, &mut |r| sink(r))?;
+        push_all(chain, &buf, schedule, &Some, &mut |r| sink(r))?;
         progress.inc(n as u64);
     }
     finish_all(chain, &mut |r| sink(r))?;
     Ok(frames)
 }
 
-/// Push a whole block, draining records as the chain's queue fills.
+/// Push a whole block, draining records as the chain's queue fills, and cut at the
+/// schedule's segment starts to apply their levels.
 fn push_all<E>(
     chain: &mut HostChain,
     block: &[i16],
+    schedule: Option<&LevelSchedule>,
+    local: &dyn Fn(usize) -> Option<usize>,
     sink: &mut dyn FnMut(ProbeWindow) -> Result<(), E>,
 ) -> Result<(), E> {
+    let channels = (chain.config().channels as usize).max(1);
     let mut rest = block;
     while !rest.is_empty() {
-        let used = chain.push(rest);
-        rest = &rest[used..];
-        while let Some(r) = chain.poll() {
-            sink(r.without_sums())?;
+        let mut piece = rest;
+        if let Some(s) = schedule.filter(|s| s.segment_frames > 0) {
+            let at = chain.frames();
+            s.apply(chain, at, local);
+            let to_next = s.segment_frames - at % s.segment_frames;
+            let take = (to_next as usize).saturating_mul(channels).min(rest.len());
+            piece = &rest[..take];
         }
+        let mut left = piece;
+        while !left.is_empty() {
+            let used = chain.push(left);
+            left = &left[used..];
+            while let Some(r) = chain.poll() {
+                sink(r.without_sums())?;
+            }
+        }
+        rest = &rest[piece.len()..];
     }
     Ok(())
 }
@@ -169,6 +364,18 @@ pub fn drive_parallel(
     chain: Box<HostChain>,
     workers: usize,
     progress: &ProgressBar,
+    sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
+) -> Result<u64, HostError> {
+    drive_parallel_with(cap, chain, None, workers, progress, sink)
+}
+
+/// [`drive_parallel`] with the levels of `schedule` applied as the record goes.
+pub fn drive_parallel_with(
+    cap: &mut Capture,
+    chain: Box<HostChain>,
+    schedule: Option<&LevelSchedule>,
+    workers: usize,
+    progress: &ProgressBar,
     mut sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
 ) -> Result<u64, HostError> {
     use frothline_core::WindowPolicy;
@@ -179,7 +386,7 @@ pub fn drive_parallel(
     let workers = workers.min(cfg.probes.len());
     if workers <= 1 || !independent {
         let mut chain = chain;
-        return drive(cap, &mut chain, progress, sink);
+        return drive_with(cap, &mut chain, schedule, progress, sink);
     }
     // Contiguous groups of probes, balanced by tip count.
     let tips: Vec<usize> = cfg
@@ -221,8 +428,9 @@ pub fn drive_parallel(
                     out.borrow_mut().push(r);
                     Ok(())
                 };
+                let local = |g: usize| global.iter().position(|&x| x == g);
                 for block in rx {
-                    let _ = push_all(&mut chain, &block, &mut keep);
+                    let _ = push_all(&mut chain, &block, schedule, &local, &mut keep);
                     let _ = rec_tx.send((w, out.take()));
                 }
                 let _ = finish_all(&mut chain, &mut keep);
@@ -308,7 +516,19 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     if crate::transient::is_transient(&Layout::load(&args.layout)?) {
         return crate::transient::run(args).map(|(_, report)| report);
     }
-    let (mut cap, layout, chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
+    let (mut cap, layout, mut chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
+    let mut learnt = None;
+    if args.levels == LevelRule::Record {
+        let cfg = chain.config();
+        let tips = record_levels::learning_tips(cfg, |i| i);
+        let l = record_levels::learn_with(&args.capture, &tips, cfg.detector.min_swing, true)?;
+        chain = with_record_levels(chain, &l, &layout, &args.layout)?;
+        learnt = Some(l);
+    }
+    period_rule(
+        check_learn_period(chain.config(), &layout, cap.sample_rate(), &args.layout),
+        args.levels,
+    )?;
     std::fs::create_dir_all(&args.out).map_err(write_err(&args.out))?;
     let final_path = args.out.join("windows.csv");
     let partial = args.out.join("windows.csv.partial");
@@ -318,7 +538,7 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
         source: e.into(),
     };
     let mut csv = WindowsCsv::new(BufWriter::new(file)).map_err(csv_err)?;
-    let meta = probe_meta(&layout);
+    let meta = probe_meta_with(&layout, &levels_sources(&layout, learnt.as_ref()));
     let spacing: Vec<Option<f64>> = layout.probes.iter().map(|p| p.tip_spacing_mm).collect();
     let fs = cap.sample_rate();
     let bar = progress_bar(cap.frames(), args.quiet);
@@ -326,7 +546,8 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     let workers = std::thread::available_parallelism()
         .map_or(1, |n| n.get())
         .min(4);
-    let result = drive_parallel(&mut cap, chain, workers, &bar, |r| {
+    let schedule = learnt.as_ref().and_then(LevelSchedule::from_record);
+    let result = drive_parallel_with(&mut cap, chain, schedule.as_ref(), workers, &bar, |r| {
         csv.write(
             &r,
             &meta[r.probe as usize],

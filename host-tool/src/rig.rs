@@ -108,22 +108,21 @@ pub fn chain_config(
         } else {
             Polarity::AirLow
         };
-        let levels = match &p.levels {
-            Some(l) => LevelSource::Fixed {
-                air: clamp_i16(units.to_counts(l.air)),
-                water: clamp_i16(units.to_counts(l.water)),
-            },
-            None => LevelSource::Learnt,
-        };
-        let tip = |ch: usize| TipConfig {
+        let tip = |ch: usize, trailing: bool| TipConfig {
             channel: ch.min(255) as u8,
             polarity,
-            levels,
+            levels: match p.tip_levels(trailing) {
+                Some(l) => LevelSource::Fixed {
+                    air: clamp_i16(units.to_counts(l.air)),
+                    water: clamp_i16(units.to_counts(l.water)),
+                },
+                None => LevelSource::Learnt,
+            },
         };
         let max_lag = default_max_lag_s(p.max_lag_ms, p.tip_spacing_mm) * fs;
         let probe = ProbeConfig {
-            leading: tip(p.leading),
-            trailing: p.trailing.map(tip),
+            leading: tip(p.leading, false),
+            trailing: p.trailing.map(|c| tip(c, true)),
             max_lag: max_lag.round().clamp(2.0, u16::MAX as f64) as u16,
         };
         // The caller checks the probe count against MAX_PROBES first.

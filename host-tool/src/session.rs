@@ -778,6 +778,7 @@ impl Session {
                 name: self.probe_name(device, probe),
                 elevation_mm: f64::NAN,
                 x_mm: f64::NAN,
+                levels_from: None,
             })
     }
 
@@ -795,6 +796,7 @@ impl Session {
                 name: self.probe_name(device, i),
                 elevation_mm: from_length(p.elevation) as f64,
                 x_mm: from_length(p.x) as f64,
+                levels_from: None,
             })
             .collect();
         let fs = desc.sample_rate_millihz as f64 / 1000.0;

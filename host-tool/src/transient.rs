@@ -23,7 +23,8 @@ use crate::capture::Capture;
 use crate::error::{write_err, HostError};
 use crate::hydraulics;
 use crate::layout::{Layout, Phase};
-use crate::replay::{probe_meta, ReplayArgs, ReplayReport};
+use crate::record_levels::{self, LevelRule};
+use crate::replay::{ReplayArgs, ReplayReport};
 use crate::rig::{chain_config, Counts, FullRecord, HostRecord, ToCounts, HOST_LAGS, MAX_PROBES};
 use crate::window_spec::WindowSpec;
 use crate::windows_csv::WindowsCsv;
@@ -98,6 +99,8 @@ pub const FRONT_COLUMNS: &[&str] = &[
     "false_starts",
     "elevation_mm",
     "flags",
+    "confirmed_arrival_s",
+    "first_contact_s",
 ];
 
 /// Columns of `stations.csv`.
@@ -156,6 +159,9 @@ pub struct TransientRun {
     pub policy: WindowPolicy,
     /// Delay of each station chain, frames.
     pub delay_frames: Vec<u32>,
+    /// Where each layout probe's leading-tip levels came from (`windows.csv`
+    /// `levels_from`; empty when not known).
+    pub levels_from: Vec<Option<&'static str>>,
 }
 
 /// The front-relative policy for `spec` at `sample_rate`: fixed durations count from the
@@ -366,6 +372,7 @@ pub fn run_blocks(
         fronts,
         policy,
         delay_frames,
+        levels_from: Vec::new(),
     })
 }
 
@@ -425,16 +432,19 @@ pub fn replay_samples(
 }
 
 /// A transient replay of a capture file.
+/// `rule` says how tips without fixed levels get them (see [`crate::record_levels`]).
 pub fn replay_capture(
     capture: &Path,
     layout_path: &Path,
     window: &WindowSpec,
+    rule: LevelRule,
     full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
 ) -> Result<TransientRun, HostError> {
     let layout = Layout::load(layout_path)?;
     let mut cap = Capture::open(capture)?;
     layout.check_channels(cap.channels(), layout_path)?;
-    replay_open(&mut cap, &layout, layout_path, window, full)
+    crate::replay::check_levels_fit(&layout, &cap, layout_path)?;
+    replay_open(&mut cap, &layout, layout_path, window, rule, full)
 }
 
 fn replay_open(
@@ -442,6 +452,7 @@ fn replay_open(
     layout: &Layout,
     layout_path: &Path,
     window: &WindowSpec,
+    rule: LevelRule,
     full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
 ) -> Result<TransientRun, HostError> {
     if let Some(st) = stations(layout)
@@ -458,18 +469,41 @@ fn replay_open(
     let fs = cap.sample_rate();
     let channels = cap.channels();
     let policy = transient_policy(window, fs, layout).map_err(HostError::Usage)?;
-    let configs = station_configs(layout, channels, fs, policy, &*cap).map_err(|source| {
+    let mut configs = station_configs(layout, channels, fs, policy, &*cap).map_err(|source| {
         HostError::Config {
             file: layout_path.to_path_buf(),
             source,
         }
     })?;
-    with_big_stack(|| {
+    let mut learnt = None;
+    if rule == LevelRule::Record {
+        let mut tips = Vec::new();
+        let mut min_swing = 64;
+        for (st, cfg) in &configs {
+            tips.extend(record_levels::learning_tips(cfg, |i| st.probes[i]));
+            min_swing = cfg.detector.min_swing;
+        }
+        let l = record_levels::learn(cap.path(), &tips, min_swing)?;
+        crate::replay::report_unlearnt(&l, layout, min_swing);
+        for (_, cfg) in configs.iter_mut() {
+            l.apply(cfg);
+        }
+        learnt = Some(l);
+    }
+    for (_, cfg) in &configs {
+        crate::replay::period_rule(
+            crate::replay::check_learn_period(cfg, layout, fs, layout_path),
+            rule,
+        )?;
+    }
+    let mut run = with_big_stack(|| {
         run_blocks(layout, configs, fs, &[], full, |buf| {
             Ok(cap.read_frames(buf, BLOCK_FRAMES)?)
         })
         .map_err(|e| e.into_host(layout_path))
-    })
+    })?;
+    run.levels_from = crate::replay::levels_sources(layout, learnt.as_ref());
+    Ok(run)
 }
 
 /// Run `f` on a thread with a large stack (the station chains are large values).
@@ -639,14 +673,16 @@ impl TransientRun {
                 if rec.is_some_and(|r| r.late) {
                     flags.push("late");
                 }
+                // The probe's arrival is its first contact with the front; the confirmed
+                // arrival (the onset of the sustained change) follows at the end.
                 rows.push(vec![
                     self.layout.probes[g].name.clone(),
                     info.name.clone(),
-                    opt(rec.map(|r| self.secs(r.arrival as f64))),
+                    opt(rec.map(|r| self.secs(r.first_contact as f64))),
                     opt(st_arrival.map(|a| self.secs(a as f64))),
                     opt(rec
                         .zip(st_arrival)
-                        .map(|(r, a)| self.secs(r.arrival as f64 - a as f64))),
+                        .map(|(r, a)| self.secs(r.first_contact as f64 - a as f64))),
                     opt(rec.map(|r| self.secs(r.confirmed_at as f64))),
                     opt(rec.map(|r| match r.rule {
                         FrontRule::Hold => "hold",
@@ -655,6 +691,8 @@ impl TransientRun {
                     opt(rec.map(|r| r.false_starts)),
                     self.layout.probes[g].elevation_mm.to_string(),
                     flags.join("|"),
+                    opt(rec.map(|r| self.secs(r.arrival as f64))),
+                    opt(rec.map(|r| self.secs(r.first_contact as f64))),
                 ]);
             }
         }
@@ -877,7 +915,7 @@ pub fn write_outputs(
         source: e.into(),
     };
     let mut csv = WindowsCsv::new(std::io::BufWriter::new(file)).map_err(csv_err)?;
-    let meta = probe_meta(&run.layout);
+    let meta = crate::replay::probe_meta_with(&run.layout, &run.levels_from);
     for w in &run.windows {
         let since = w.since_front.map(|f| run.secs(f as f64));
         let p = w.probe as usize;
@@ -1064,7 +1102,7 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
 
 /// `frothline replay` of a transient layout: replay, write the files, print the summary.
 pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError> {
-    let run = replay_capture(&args.capture, &args.layout, &args.window, None)?;
+    let run = replay_capture(&args.capture, &args.layout, &args.window, args.levels, None)?;
     let name = |p: &Path| {
         p.file_name().map_or_else(
             || p.display().to_string(),

@@ -38,6 +38,9 @@ pub const COLUMNS: &[&str] = &[
     "auto_integral_time_s",
     "cross_integral_time_s",
     "turbulence_intensity_skew_corrected",
+    "trailing_air_level_counts",
+    "trailing_water_level_counts",
+    "levels_from",
 ];
 
 /// What a row needs to know about its probe besides the record.
@@ -49,6 +52,12 @@ pub struct ProbeMeta {
     pub elevation_mm: f64,
     /// Streamwise position, mm.
     pub x_mm: f64,
+    /// Where the leading tip's levels come from, for the `levels_from` column: `layout`
+    /// (fixed there), `record` (learnt from the whole record before the replay),
+    /// `record_one_phase` (one level measured, the other from the rig's median swing),
+    /// `device_rule` (learnt during the record, as a device does); `None` when unknown
+    /// (a live device's records).
+    pub levels_from: Option<&'static str>,
 }
 
 fn opt<T: std::fmt::Display>(v: Option<T>) -> String {
@@ -108,6 +117,9 @@ pub fn row(
         opt(corr
             .and_then(|c| c.turbulence_intensity)
             .and_then(frothline_core::correlation::tu_for_gaussian_velocity)),
+        opt(rec.trail.as_ref().and_then(|t| t.levels).map(|l| l.air)),
+        opt(rec.trail.as_ref().and_then(|t| t.levels).map(|l| l.water)),
+        opt(lead.levels.and(meta.levels_from)),
     ]
 }
 

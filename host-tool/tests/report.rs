@@ -224,9 +224,10 @@ fn steady_fixture_skips_what_it_lacks_and_says_why() {
     // no flow indicators in this folder: no section, and the notes say which files were absent
     assert!(!html.contains("id=\"flow\""));
     assert!(html.contains("not present: profile.csv, fronts.csv, chords.csv"));
-    // the levels_not_learnt windows are left out by default
-    assert!(s.windows_used < s.windows);
-    assert!(html.contains("<code>levels_not_learnt</code>"));
+    // the levels_not_learnt windows are left out by default, and a replay that learnt the
+    // levels from the record has none: every window is used
+    assert_eq!(s.windows_used, s.windows);
+    assert!(!html.contains("<code>levels_not_learnt</code>"));
 }
 
 #[test]

@@ -180,6 +180,14 @@ def empty(c):
     return None
 
 
+def set_levels(c):
+    probe, trailing = c.byte(), c.byte()
+    if trailing > 1:
+        raise ValueError("bad bool")
+    return {"probe": probe, "trailing": trailing == 1, "air": c.svar(16),
+            "water": c.svar(16)}
+
+
 # Section 5: kind codes and their bodies.
 KINDS = {
     0x01: ("describe", describe),
@@ -193,6 +201,7 @@ KINDS = {
     0x22: ("set_window", window_setting),
     0x23: ("relearn", lambda c: {"probes": u32(c)}),
     0x24: ("describe_request", empty),
+    0x26: ("set_levels", set_levels),
     0x30: ("ack", lambda c: {"seq": u16(c)}),
     0x31: ("nack", lambda c: {"seq": u16(c), "reason": c.byte()}),
 }

@@ -106,6 +106,7 @@ pub fn encode<'b>(frame: &Frame, buf: &'b mut [u8]) -> Result<&'b [u8], WireErro
         Body::StartRun(b) => emit(&h, b, buf),
         Body::SetWindow(b) => emit(&h, b, buf),
         Body::Relearn(b) => emit(&h, b, buf),
+        Body::SetLevels(b) => emit(&h, b, buf),
         Body::Ack(b) => emit(&h, b, buf),
         Body::Nack(b) => emit(&h, b, buf),
         Body::StopRun | Body::DescribeRequest => emit(&h, &(), buf),
@@ -148,6 +149,7 @@ pub fn decode_unstuffed(data: &[u8]) -> Result<Frame, WireError> {
         Kind::SetWindow => Body::SetWindow(exact(rest)?),
         Kind::Relearn => Body::Relearn(exact(rest)?),
         Kind::DescribeRequest => empty(rest, Body::DescribeRequest)?,
+        Kind::SetLevels => Body::SetLevels(exact(rest)?),
         Kind::Ack => Body::Ack(exact(rest)?),
         Kind::Nack => Body::Nack(exact(rest)?),
     };

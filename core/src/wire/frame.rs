@@ -81,6 +81,8 @@ pub enum Kind {
     Relearn = 0x23,
     /// Command: send a [`DeviceDescription`] (no body).
     DescribeRequest = 0x24,
+    /// Command [`SetLevels`]: fix the air and water levels of one tip.
+    SetLevels = 0x26,
     /// Reply [`Ack`]: a command was carried out.
     Ack = 0x30,
     /// Reply [`Nack`]: a command was refused.
@@ -89,7 +91,7 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 13] = [
+    pub const ALL: [Kind; 14] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
@@ -101,6 +103,7 @@ impl Kind {
         Kind::SetWindow,
         Kind::Relearn,
         Kind::DescribeRequest,
+        Kind::SetLevels,
         Kind::Ack,
         Kind::Nack,
     ];
@@ -124,6 +127,7 @@ impl Kind {
             0x22 => Kind::SetWindow,
             0x23 => Kind::Relearn,
             0x24 => Kind::DescribeRequest,
+            0x26 => Kind::SetLevels,
             0x30 => Kind::Ack,
             0x31 => Kind::Nack,
             _ => return None,
@@ -144,6 +148,7 @@ impl Kind {
                 | Kind::SetWindow
                 | Kind::Relearn
                 | Kind::DescribeRequest
+                | Kind::SetLevels
         )
     }
 }
@@ -202,6 +207,8 @@ pub enum Body {
     Relearn(Relearn),
     /// Command: describe yourself.
     DescribeRequest,
+    /// Command: fix one tip's levels.
+    SetLevels(SetLevels),
     /// Reply: command done.
     Ack(Ack),
     /// Reply: command refused.
@@ -223,6 +230,7 @@ impl Body {
             Body::SetWindow(_) => Kind::SetWindow,
             Body::Relearn(_) => Kind::Relearn,
             Body::DescribeRequest => Kind::DescribeRequest,
+            Body::SetLevels(_) => Kind::SetLevels,
             Body::Ack(_) => Kind::Ack,
             Body::Nack(_) => Kind::Nack,
         }
@@ -513,6 +521,22 @@ pub struct Relearn {
 impl Relearn {
     /// Every probe.
     pub const ALL: Relearn = Relearn { probes: u32::MAX };
+}
+
+/// Kind 0x26: fix the air and water levels of one tip, in ADC counts, from the next frame
+/// on (the tip stops learning). Sent once per tip; sending it again with the same levels
+/// changes nothing.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct SetLevels {
+    /// Probe index (as in the description).
+    pub probe: u8,
+    /// The trailing tip (false: the leading tip).
+    pub trailing: bool,
+    /// Air level, counts.
+    pub air: i16,
+    /// Water level, counts.
+    pub water: i16,
 }
 
 /// Kind 0x30: the command with this sequence number was carried out.

@@ -20,7 +20,7 @@
 
 use crate::wire::codec::{crc32, exact};
 use crate::wire::frame::WindowSetting;
-use crate::wire::frame::{Ack, Body, Header, Kind, Nack, NackReason, Relearn, StartRun};
+use crate::wire::frame::{Ack, Body, Header, Kind, Nack, NackReason, Relearn, SetLevels, StartRun};
 use crate::wire::{cobs_max_encoded, CRC_BYTES, HOST_ID, PROTOCOL_VERSION};
 use postcard::experimental::max_size::MaxSize;
 
@@ -54,6 +54,8 @@ pub enum Command {
     Relearn(Relearn),
     /// 0x24: send the device description.
     DescribeRequest,
+    /// 0x26: fix the air and water levels of one tip.
+    SetLevels(SetLevels),
 }
 
 /// What a device does for each command. The [`Responder`] has already applied the rules
@@ -73,6 +75,12 @@ pub trait CommandTarget {
     fn relearn(&mut self, probes: u32) -> Result<(), NackReason>;
     /// Queue a device description.
     fn describe(&mut self) -> Result<(), NackReason>;
+    /// Fix the air and water levels of one tip from the next frame on. A device that keeps
+    /// no settings of its own refuses it as a command it does not carry out.
+    fn set_levels(&mut self, levels: &SetLevels) -> Result<(), NackReason> {
+        let _ = levels;
+        Err(NackReason::UnknownCommand)
+    }
 }
 
 /// The answer to one command frame.
@@ -267,6 +275,9 @@ impl Responder {
                 Command::Relearn(exact(body).map_err(|_| NackReason::Malformed)?)
             }
             Some(Kind::DescribeRequest) => empty(body, Command::DescribeRequest)?,
+            Some(Kind::SetLevels) => {
+                Command::SetLevels(exact(body).map_err(|_| NackReason::Malformed)?)
+            }
             _ => return Err(NackReason::UnknownCommand),
         };
         match cmd {
@@ -281,6 +292,7 @@ impl Responder {
             Command::SetWindow(w) => target.set_window(w),
             Command::Relearn(r) => target.relearn(r.probes),
             Command::DescribeRequest => target.describe(),
+            Command::SetLevels(l) => target.set_levels(&l),
         }
     }
 }

@@ -9,7 +9,9 @@
 //! - the probe layout for the device-description frame (wire units);
 //! - the number and digest of the records a host replay (`replay::run`, the code behind
 //!   `frothline replay`) gives for the capture, which the firmware checks its own records
-//!   against.
+//!   against. The replay runs with the device's causal level rule
+//!   (`LevelRule::Device`, `--levels device`): tips without fixed levels learn them during
+//!   the record, as the firmware does.
 //!
 //! `verify-uart` decodes what the firmware sent on its UART (wire frames) and checks that
 //! every window result equals the one a host replay of the capture gives, in order, with
@@ -94,6 +96,7 @@ fn run() -> Result<(), String> {
         out: tmp.clone(),
         window,
         quiet: true,
+        levels: frothline_host::record_levels::LevelRule::Device,
     })
     .map_err(|e| e.to_string())?;
     let _ = std::fs::remove_dir_all(&tmp);
@@ -277,6 +280,7 @@ fn emit_station<const P: usize>(
         burst_interfaces,
         burst_frames,
         settle_frames,
+        contact_gap_frames,
     } = front;
     let depth = if reference_depth_m.is_finite() {
         format!("{reference_depth_m:?}")
@@ -299,7 +303,8 @@ fn emit_station<const P: usize>(
          let mut s = StationConfig::new({sample_rate_hz:?}, {before_air});\n    \
          s.front = FrontConfig {{\n        before_air: {before_air},\n        \
          hold_frames: {hold_frames},\n        burst_interfaces: {burst_interfaces},\n        \
-         burst_frames: {burst_frames},\n        settle_frames: {settle_frames},\n    }};\n    \
+         burst_frames: {burst_frames},\n        settle_frames: {settle_frames},\n        \
+         contact_gap_frames: {contact_gap_frames},\n    }};\n    \
          s.delay_frames = {delay_frames};\n    s.grace_frames = {grace_frames};\n    \
          s.dead_after_frames = {dead_after_frames};\n    s.profile = ProfileConfig::default();\n    \
          s.reference_depth_m = {depth};\n    s.decay_fit_every = {decay_fit_every};"
@@ -521,6 +526,7 @@ fn host_results(
         out: tmp.clone(),
         window,
         quiet: true,
+        levels: frothline_host::record_levels::LevelRule::Device,
     })
     .map_err(|e| e.to_string())?;
     let _ = std::fs::remove_dir_all(&tmp);

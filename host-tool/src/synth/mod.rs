@@ -67,6 +67,7 @@
 //! rail_low_counts = -32768     # clipping rails                                    (i16 range)
 //! rail_high_counts = 32767
 //! fixed_levels = false         # write air_level / water_level into the layout     (false)
+//! tip_level_spread = 0.03      # each tip's levels moved by up to this x swing     (0)
 //!
 //! [signal.drift]
 //! kind = "sine"                # "none" | "sine" | "linear"                        ("none")
@@ -127,7 +128,7 @@ use std::fs;
 use std::path::{Path, PathBuf};
 
 use rand::rngs::StdRng;
-use rand::SeedableRng;
+use rand::{Rng, SeedableRng};
 
 pub use flow::{FlowModel, FnFlow, LocalParams};
 pub use intervals::{merge_intervals, Bubble, Interval, ProbeTruth, TipPairSpec};
@@ -144,6 +145,7 @@ pub const BLOCK_FRAMES: usize = 4096;
 
 const PROBE_STREAM: u64 = 1;
 const CHANNEL_STREAM: u64 = 1 << 32;
+const LEVEL_STREAM: u64 = 2 << 32;
 
 /// Errors of the synthetic capture generator.
 #[derive(Debug, thiserror::Error)]
@@ -416,6 +418,44 @@ impl Generator {
         transient::truth(&self.scenario, &self.resolved, truth)
     }
 
+    /// `style` with channel `ch`'s own levels (see `signal.tip_level_spread`).
+    fn tip_style(&self, style: &ChannelStyle, ch: u16) -> ChannelStyle {
+        let spread = self.scenario.signal.tip_level_spread;
+        let mut out = style.clone();
+        if spread > 0.0 {
+            let mut rng = StdRng::seed_from_u64(stream_seed(self.seed, LEVEL_STREAM + ch as u64));
+            let swing = style.air_counts - style.water_counts;
+            out.water_counts += (spread * swing * rng.random_range(-1.0..=1.0)).round();
+            out.air_counts += (spread * swing * rng.random_range(-1.0..=1.0)).round();
+        }
+        out
+    }
+
+    /// Each channel's nominal (undrifted) water and air levels, counts, in channel order.
+    pub fn tip_levels(&self) -> Vec<(f64, f64)> {
+        let mut out = vec![(0.0, 0.0); self.resolved.channels as usize];
+        for p in &self.resolved.probes {
+            let style = ChannelStyle {
+                water_counts: p.water_counts as f64,
+                air_counts: p.air_counts as f64,
+                noise_sigma_counts: 0.0,
+                wetting_time_s: 0.0,
+                dewetting_time_s: 0.0,
+                rails: (0.0, 0.0),
+                drift: Default::default(),
+                duration_s: 0.0,
+                sample_rate_hz: 1,
+            };
+            for ch in core::iter::once(p.leading).chain(p.trailing) {
+                let s = self.tip_style(&style, ch);
+                if let Some(o) = out.get_mut(ch as usize) {
+                    *o = (s.water_counts, s.air_counts);
+                }
+            }
+        }
+        out
+    }
+
     /// One renderer per channel, in channel order.
     pub fn renderers(&self, truth: &[ProbeTruth]) -> Vec<ChannelRenderer> {
         let s = &self.scenario.signal;
@@ -435,6 +475,7 @@ impl Generator {
             };
             for (ch, ivs) in t.tips() {
                 let seed = stream_seed(self.seed, CHANNEL_STREAM + ch as u64);
+                let style = self.tip_style(&style, ch);
                 by_channel[ch as usize] = Some(ChannelRenderer::new(&ivs, &style, seed));
             }
         }
@@ -514,7 +555,7 @@ impl Generator {
         let truth = self.write_wav(&wav)?;
         let layout = write(
             "layout.toml",
-            output::layout_toml(&self.scenario, &self.resolved).as_bytes(),
+            output::layout_toml(&self.scenario, &self.resolved, &self.tip_levels()).as_bytes(),
         )?;
         let truth_path = if self.scenario.transient.is_some() {
             let t = self.transient_truth(&truth);

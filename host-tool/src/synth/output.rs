@@ -58,7 +58,9 @@ fn tv_f(x: f64) -> String {
 /// The layout file of a capture (the format of DESIGN section 2): a steady flow, or a
 /// transient one (dry tips before the front, the reservoir depth as reference depth, fixed
 /// levels) for a scenario with a `[transient]` table.
-pub fn layout_toml(scenario: &Scenario, resolved: &Resolved) -> String {
+/// `tip_levels` are each channel's nominal (water, air) levels: with
+/// `signal.tip_level_spread` above 0 each tip's own pair is written.
+pub fn layout_toml(scenario: &Scenario, resolved: &Resolved, tip_levels: &[(f64, f64)]) -> String {
     let mut s = String::new();
     let _ = writeln!(
         s,
@@ -68,7 +70,8 @@ pub fn layout_toml(scenario: &Scenario, resolved: &Resolved) -> String {
     match &scenario.transient {
         Some(t) => {
             let _ = writeln!(s, "kind = \"transient\"");
-            let _ = writeln!(s, "phase_before_front = \"air\"");
+            let before = if t.submerged { "water" } else { "air" };
+            let _ = writeln!(s, "phase_before_front = \"{before}\"");
             let _ = writeln!(s, "reference_depth_m = {}", tv_f(t.reservoir_depth_m));
         }
         None => {
@@ -101,8 +104,18 @@ pub fn layout_toml(scenario: &Scenario, resolved: &Resolved) -> String {
         // Tips that sit in air before a front cannot learn a water level: a transient
         // layout always fixes them.
         if scenario.signal.fixed_levels || scenario.transient.is_some() {
-            let _ = writeln!(s, "air_level = {}", p.air_counts);
-            let _ = writeln!(s, "water_level = {}", p.water_counts);
+            if scenario.signal.tip_level_spread > 0.0 {
+                let tips = [("leading", Some(p.leading)), ("trailing", p.trailing)];
+                for (name, ch) in tips {
+                    if let Some(&(w, a)) = ch.and_then(|c| tip_levels.get(c as usize)) {
+                        let _ = writeln!(s, "{name}_air_level = {a}");
+                        let _ = writeln!(s, "{name}_water_level = {w}");
+                    }
+                }
+            } else {
+                let _ = writeln!(s, "air_level = {}", p.air_counts);
+                let _ = writeln!(s, "water_level = {}", p.water_counts);
+            }
         }
     }
     s

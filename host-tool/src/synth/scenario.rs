@@ -85,6 +85,10 @@ pub struct SignalSpec {
     pub fixed_levels: bool,
     /// Slow baseline drift (both levels move together).
     pub drift: DriftSpec,
+    /// Each tip's own levels: every channel's water and air levels are moved by up to
+    /// this fraction of the nominal swing (drawn once per channel), as separate sensor
+    /// circuits differ. 0 (the default) gives every tip of a probe the same levels.
+    pub tip_level_spread: f64,
 }
 
 impl Default for SignalSpec {
@@ -99,6 +103,7 @@ impl Default for SignalSpec {
             rail_high_counts: i16::MAX as i32,
             fixed_levels: false,
             drift: DriftSpec::default(),
+            tip_level_spread: 0.0,
         }
     }
 }
@@ -463,6 +468,7 @@ impl Scenario {
             || "must exceed signal.rail_low_counts".into(),
         )?;
         non_negative("signal.drift.amplitude_counts", s.drift.amplitude_counts)?;
+        finite_in("signal.tip_level_spread", s.tip_level_spread, 0.0, 0.2)?;
         if let Some(p) = s.drift.period_s {
             positive("signal.drift.period_s", p)?;
         }

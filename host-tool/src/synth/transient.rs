@@ -9,7 +9,9 @@
 //!   vertical at the station (every probe of a station is reached at `t_a`): a steep
 //!   roller, and a profile that holds from the first instant.
 //! - **Before the front** the tips are dry: `C = 1`, no bubbles. At `t_a` a tip is wetted
-//!   (an air -> water interface exactly at `t_a`), then follows the flow.
+//!   (an air -> water interface exactly at `t_a`), then follows the flow. With
+//!   `submerged = true` they sit in still water instead (`C = 0`, a bore over a still
+//!   layer deeper than the array): at `t_a` the first air of the roller reaches them.
 //! - **Behind the front**, with `tau = t − t_a`, the local void fraction at elevation `y`
 //!   follows the power law of DESIGN.md §1 continued up to air:
 //!   `C(y, tau) = min(1, 0.9 (y / Y90(tau))^n(tau))`, with
@@ -99,6 +101,9 @@ pub struct TransientSpec {
     pub slice_s: f64,
     /// Longest mean chord time (air or water), s: bounds the chords near `C = 0` and `1`.
     pub longest_mean_chord_s: f64,
+    /// The tips sit in still water before the front (and dead probes stay there), instead
+    /// of in air over a dry bed.
+    pub submerged: bool,
 }
 
 impl Default for TransientSpec {
@@ -124,6 +129,7 @@ impl Default for TransientSpec {
             turbulence_intensity: 0.15,
             slice_s: 0.05,
             longest_mean_chord_s: 0.02,
+            submerged: false,
         }
     }
 }
@@ -318,7 +324,7 @@ impl FlowModel for TransientFlow {
     fn at(&self, t_s: f64) -> LocalParams {
         let v0 = self.spec.at(0.0).velocity_m_s;
         let dry = LocalParams {
-            void_fraction: 1.0,
+            void_fraction: if self.spec.submerged { 0.0 } else { 1.0 },
             bubble_rate_hz: 0.0,
             velocity_m_s: v0,
             turbulence_intensity: self.spec.turbulence_intensity,
