@@ -146,10 +146,7 @@ fn bench(c: &mut Criterion) {
     let points: Vec<ProfilePoint> = (0..8)
         .map(|i| {
             let y = 5.0 + 10.0 * i as f32;
-            ProfilePoint {
-                y_mm: y,
-                c: (0.9 * (y / 62.0).powf(1.2)).min(1.0),
-            }
+            ProfilePoint::new(y, (0.9 * (y / 62.0).powf(1.2)).min(1.0))
         })
         .collect();
     let cfg = ProfileConfig::default();

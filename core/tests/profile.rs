@@ -21,10 +21,7 @@ const Y90: f64 = 80.0; // mm
 
 fn pts(ys: &[f64], f: impl Fn(f64) -> f64) -> Vec<ProfilePoint> {
     ys.iter()
-        .map(|&y| ProfilePoint {
-            y_mm: y as f32,
-            c: f(y).clamp(0.0, 1.0) as f32,
-        })
+        .map(|&y| ProfilePoint::new(y as f32, f(y).clamp(0.0, 1.0) as f32))
         .collect()
 }
 
@@ -215,10 +212,7 @@ fn power_law_fit_recovers_the_exponent_with_noise() {
                 .iter()
                 .map(|&y| {
                     let c = (0.9 * (y / Y90).powf(n)).min(0.97) + noise.sample(&mut rng);
-                    ProfilePoint {
-                        y_mm: y as f32,
-                        c: c.clamp(0.0, 1.0) as f32,
-                    }
+                    ProfilePoint::new(y as f32, c.clamp(0.0, 1.0) as f32)
                 })
                 .collect();
             let fit = fit_profile(&p, &ProfileConfig::default());
@@ -258,10 +252,7 @@ fn order_duplicates_and_non_monotonic_profiles() {
     // Two tips at one elevation are merged (mean C).
     let mut dup = sorted.clone();
     dup[1].c = 0.40;
-    dup.push(ProfilePoint {
-        y_mm: 20.0,
-        c: 0.50,
-    });
+    dup.push(ProfilePoint::new(20.0, 0.50));
     let merged = fit_profile(&dup, &cfg);
     let plain = fit_profile(&sorted, &cfg);
     assert_eq!(merged.points_used, 5);
@@ -273,7 +264,7 @@ fn order_duplicates_and_non_monotonic_profiles() {
     assert!((a - b).abs() < 1e-6, "{a} vs {b}");
     // A splash: C dips below 0.9 above Y90.
     let mut splash = sorted.clone();
-    splash.push(ProfilePoint { y_mm: 60.0, c: 0.7 });
+    splash.push(ProfilePoint::new(60.0, 0.7));
     let s = fit_profile(&splash, &cfg);
     assert!(s.flags.contains(ProfileFlags::SEVERAL_CROSSINGS));
     assert_eq!(s.y90_mm, Some(40.0));
@@ -283,9 +274,9 @@ fn order_duplicates_and_non_monotonic_profiles() {
 fn bed_treatments_differ_by_half_the_bed_band() {
     // Constant C below 0.9 then a jump: held bed adds C1 y1 / 2 to the integral.
     let p = [
-        ProfilePoint { y_mm: 10.0, c: 0.4 },
-        ProfilePoint { y_mm: 20.0, c: 0.4 },
-        ProfilePoint { y_mm: 30.0, c: 1.0 },
+        ProfilePoint::new(10.0, 0.4),
+        ProfilePoint::new(20.0, 0.4),
+        ProfilePoint::new(30.0, 1.0),
     ];
     let lin = fit_profile(&p, &ProfileConfig::default());
     let hold = fit_profile(
@@ -308,24 +299,15 @@ fn degenerate_inputs_give_defined_output() {
     assert_eq!(empty.points_used, 0);
     assert_eq!(empty.y90_mm, None);
 
-    let one = fit_profile(&[ProfilePoint { y_mm: 5.0, c: 0.5 }], &cfg);
+    let one = fit_profile(&[ProfilePoint::new(5.0, 0.5)], &cfg);
     assert!(one.flags.contains(ProfileFlags::TOO_FEW_POINTS));
 
     let nan = [
-        ProfilePoint {
-            y_mm: f32::NAN,
-            c: 0.5,
-        },
-        ProfilePoint {
-            y_mm: 10.0,
-            c: f32::NAN,
-        },
-        ProfilePoint {
-            y_mm: f32::INFINITY,
-            c: 0.5,
-        },
-        ProfilePoint { y_mm: -3.0, c: 0.5 },
-        ProfilePoint { y_mm: 3.0, c: 1.5 },
+        ProfilePoint::new(f32::NAN, 0.5),
+        ProfilePoint::new(10.0, f32::NAN),
+        ProfilePoint::new(f32::INFINITY, 0.5),
+        ProfilePoint::new(-3.0, 0.5),
+        ProfilePoint::new(3.0, 1.5),
     ];
     let f = fit_profile(&nan, &cfg);
     assert!(f.flags.contains(ProfileFlags::POINTS_DROPPED));
@@ -346,10 +328,7 @@ fn degenerate_inputs_give_defined_output() {
 
     // A probe at the bed (y = 0) is used in the integral, not in the fit.
     let bed = fit_profile(
-        &[
-            ProfilePoint { y_mm: 0.0, c: 0.0 },
-            ProfilePoint { y_mm: 10.0, c: 0.9 },
-        ],
+        &[ProfilePoint::new(0.0, 0.0), ProfilePoint::new(10.0, 0.9)],
         &cfg,
     );
     assert_eq!(bed.y90_mm, Some(10.0));
@@ -358,10 +337,7 @@ fn degenerate_inputs_give_defined_output() {
 
     // More points than the capacity: the rest dropped and flagged.
     let many: Vec<ProfilePoint> = (0..40)
-        .map(|i| ProfilePoint {
-            y_mm: i as f32,
-            c: (i as f32 / 20.0).min(1.0),
-        })
+        .map(|i| ProfilePoint::new(i as f32, (i as f32 / 20.0).min(1.0)))
         .collect();
     let m = fit_profile(&many, &cfg);
     assert_eq!(m.points_used as usize, MAX_PROFILE_POINTS);

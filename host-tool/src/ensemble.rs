@@ -422,10 +422,14 @@ impl Ensemble {
                     .flags
                     .contains(frothline_core::Flags::LEVELS_NOT_LEARNT);
                 if let (Some(c), true) = (w.void_fraction, learnt) {
-                    points.push(ProfilePoint {
-                        y_mm: self.layout.probes[p].elevation_mm as f32,
-                        c: c as f32,
-                    });
+                    // The standard error of the pooled runs' void fraction: the renewal
+                    // variance of the merged chords (all runs' cycles).
+                    let sigma = w.record.lead.void_fraction_sigma().unwrap_or(0.0);
+                    points.push(ProfilePoint::with_sigma(
+                        self.layout.probes[p].elevation_mm as f32,
+                        c as f32,
+                        sigma,
+                    ));
                     used |= 1 << local;
                 }
             }
