@@ -485,14 +485,15 @@ const GL5: [(f32, f32); 5] = [
     (0.906_179_8, 0.236_926_9),
 ];
 /// Panels of [`depth_integral`].
-const PANELS: usize = 4;
+const PANELS: usize = 8;
 
 /// `∫_0^Y90 w(y, C(y)) dy` over the depth of a fitted profile, `C` from the model, `y` in
 /// mm: e.g. `|_, c| c` gives `Cmean Y90`, `|y, c| (1 − c) v(y)` a water discharge per unit
 /// width. The substitution `y = Y90 s³` smooths the bed end (a power law `y^n` with small
-/// `n`, a velocity `y^(1/N)`), then 4 panels of 5-point Gauss-Legendre in `s`: 20
-/// evaluations of `w`, relative error below 1e-5 on `y^q` for `q >= 0.1` (checked against
-/// closed forms in core/tests/profile.rs). 0 when `Y90` is not positive or `w` is not
+/// `n`, a velocity `y^(1/N)`), then 8 panels of 5-point Gauss-Legendre in `s`: 40
+/// evaluations of `w`, relative error below 1e-5 on `y^q` for `q >= 0.1` and on the
+/// exponential profile for `D' >= 0.1` (checked against closed forms in
+/// core/tests/profile.rs). 0 when `Y90` is not positive or `w` is not
 /// finite.
 pub fn depth_integral(model: &FittedProfile, w: impl Fn(f32, f32) -> f32) -> f32 {
     let top = model.y90_mm();
