@@ -295,8 +295,10 @@ pub struct ProfileRecord {
 impl ProfileRecord {
     /// The wire form (kind 0x04) of this record for station `station`.
     pub fn to_wire(&self, station: u8) -> crate::wire::ProfileFit {
-        use crate::wire::quant::{exponent, fraction, length_unsigned};
+        use crate::profile::ProfileModel;
+        use crate::wire::quant::{exponent, fraction, length_unsigned, spacing};
         let fit = &self.fit;
+        let e = &fit.errors;
         crate::wire::ProfileFit {
             station,
             slice_start: self.start,
@@ -308,6 +310,16 @@ impl ProfileRecord {
             exponent: fit.power_law.map(|p| exponent(p.exponent)),
             fit_rmse: fit.power_law.map(|p| fraction(p.rmse)),
             flags: fit.flags.0 as u32,
+            estimate: match fit.estimate {
+                None => 0,
+                Some(ProfileModel::PowerLaw) => 1,
+                Some(ProfileModel::Exponential) => 2,
+                Some(ProfileModel::Trapezoid) => 3,
+            },
+            y90_se: e.y90_mm.map(spacing),
+            mean_void_fraction_se: e.mean_void_fraction.map(fraction),
+            exponent_se: e.shape.map(exponent),
+            equivalent_depth_se: e.equivalent_depth_mm.map(spacing),
         }
     }
 }

@@ -195,6 +195,11 @@ fn sample_frames() -> Vec<Frame> {
                 exponent: Some(1100),
                 fit_rmse: Some(120),
                 flags: 0,
+                estimate: 1,
+                y90_se: Some(62),
+                mean_void_fraction_se: Some(95),
+                exponent_se: Some(140),
+                equivalent_depth_se: Some(48),
             }),
         ),
         dev(
@@ -305,6 +310,11 @@ fn largest_frames() -> Vec<Frame> {
             exponent: Some(u16::MAX),
             fit_rmse: Some(u16::MAX),
             flags: u32::MAX,
+            estimate: u8::MAX,
+            y90_se: Some(u16::MAX),
+            mean_void_fraction_se: Some(u16::MAX),
+            exponent_se: Some(u16::MAX),
+            equivalent_depth_se: Some(u16::MAX),
         })),
         f(Body::Health(Health {
             samples_dropped: u64::MAX,
@@ -420,7 +430,7 @@ const GOLDEN: [(Kind, &str); 12] = [
     (Kind::Describe, "18010701ac0208666c2d302e312e3080dac4090301e8070201070101d804f00103010209f403b71721e27d5500"),
     (Kind::Windows, "07010702ad02021cc0b802e807c413904e0501b009cc089003b410018827884001dc0b0701c0b802e8070101010106013e89d02c00"),
     (Kind::Front, "07010703ae020108c0c4074358c72100"),
-    (Kind::Profile, "06010704af0215a08d06d00f0601d20601cc2101e50301cc080178056df23e4500"),
+    (Kind::Profile, "06010704af0215a08d06d00f0601d20601cc2101e50301cc0801780f01013e015f018c01013076d3596e00"),
     (Kind::Health, "06010705b0020d0c04800403809f498c1f93b000"),
     (Kind::StartRun, "02010e20010672756e2d303721dccd7c00"),
     (Kind::StopRun, "0201072102b6cc69fb00"),
@@ -980,22 +990,36 @@ fn arb_body() -> impl Strategy<Value = Body> {
                 proptest::option::of(any::<u16>()),
                 proptest::option::of(any::<u16>()),
                 any::<u32>()
+            ),
+            (
+                any::<u8>(),
+                proptest::option::of(any::<u16>()),
+                proptest::option::of(any::<u16>()),
+                proptest::option::of(any::<u16>()),
+                proptest::option::of(any::<u16>()),
             )
         )
-            .prop_map(|((station, slice_start, slice_frames, probes_used), o)| {
-                Body::Profile(ProfileFit {
-                    station,
-                    slice_start,
-                    slice_frames,
-                    probes_used,
-                    y90: o.0,
-                    mean_void_fraction: o.1,
-                    equivalent_depth: o.2,
-                    exponent: o.3,
-                    fit_rmse: o.4,
-                    flags: o.5,
-                })
-            }),
+            .prop_map(
+                |((station, slice_start, slice_frames, probes_used), o, u)| {
+                    Body::Profile(ProfileFit {
+                        station,
+                        slice_start,
+                        slice_frames,
+                        probes_used,
+                        y90: o.0,
+                        mean_void_fraction: o.1,
+                        equivalent_depth: o.2,
+                        exponent: o.3,
+                        fit_rmse: o.4,
+                        flags: o.5,
+                        estimate: u.0,
+                        y90_se: u.1,
+                        mean_void_fraction_se: u.2,
+                        exponent_se: u.3,
+                        equivalent_depth_se: u.4,
+                    })
+                }
+            ),
         (
             any::<u64>(),
             any::<u64>(),

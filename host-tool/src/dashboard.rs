@@ -555,8 +555,19 @@ fn draw_profile_chart(f: &mut Frame, area: Rect, state: &LiveState) {
         .fold(1.0f64, f64::max)
         * 1.05;
     let head = match (&curve, state.shown_station()) {
-        (Some((_, y90, n)), Some((k, _))) => {
-            format!(" C vs y, S{}: Y90 {y90:.1} mm  n {n:.2} ", k.1 + 1)
+        (Some((_, y90, n)), Some((k, s))) => {
+            let p = s.profile.as_ref();
+            let read = match p.and_then(|p| p.estimate) {
+                Some("trapezoid") => " bad fit",
+                Some("exponential") => " exp",
+                _ => "",
+            };
+            format!(
+                " C vs y, S{}: Y90 {y90:.1}{} mm  n {n:.2}{}{read} ",
+                k.1 + 1,
+                plus_minus(p.and_then(|p| p.y90_se_mm), 1),
+                plus_minus(p.and_then(|p| p.exponent_se), 2),
+            )
         }
         (None, Some((k, _))) => format!(" C vs y, S{}: no fit yet ", k.1 + 1),
         _ => " C vs elevation ".to_string(),
@@ -608,14 +619,28 @@ pub fn decay_chart_data(state: &LiveState) -> (Points, Option<(Points, f64, f64,
     (points, curve)
 }
 
+/// `±e` with `prec` decimals, or nothing.
+fn plus_minus(se: Option<f64>, prec: usize) -> String {
+    se.map_or(String::new(), |e| format!("±{e:.prec$}"))
+}
+
 fn draw_decay(f: &mut Frame, area: Rect, state: &LiveState) {
     let (points, curve) = decay_chart_data(state);
     let tmax = points.iter().map(|p| p.0).fold(0.05f64, f64::max);
+    // The latest slice's Cmean with its standard error.
+    let latest = state
+        .shown_station()
+        .and_then(|(_, s)| s.profile.as_ref())
+        .and_then(|p| {
+            let c = p.mean_void_fraction?;
+            Some(format!(" {c:.3}{}", plus_minus(p.mean_void_fraction_se, 3)))
+        })
+        .unwrap_or_default();
     let head = match &curve {
         Some((_, c0, cf, tau)) => {
-            format!(" Cmean: C0 {c0:.2} Cf {cf:.2} tau {tau:.3} s ")
+            format!(" Cmean{latest}: C0 {c0:.2} Cf {cf:.2} tau {tau:.3} s ")
         }
-        None => format!(" Cmean vs t-front: {} pts, no fit ", points.len()),
+        None => format!(" Cmean{latest} vs t-front: {} pts, no fit ", points.len()),
     };
     let chart = Chart::new(fit_and_points(
         curve.as_ref().map(|c| c.0.as_slice()),
@@ -960,7 +985,7 @@ mod tests {
 
     /// A transient flow: one station of five probes, a front, profile fits behind it.
     fn transient_state(now: Instant) -> LiveState {
-        use frothline_core::wire::quant::{exponent, fraction};
+        use frothline_core::wire::quant::{exponent, fraction, spacing};
         use frothline_core::wire::{FrontArrival, ProfileFit};
         let ports = vec!["/dev/pts/3".to_string()];
         let mut s = LiveState::new(&ports);
@@ -1050,6 +1075,11 @@ mod tests {
                 exponent: Some(exponent(n)),
                 fit_rmse: Some(fraction(0.012)),
                 flags: 0,
+                estimate: 1,
+                y90_se: Some(spacing(0.8)),
+                mean_void_fraction_se: Some(fraction(0.011)),
+                exponent_se: Some(exponent(0.06)),
+                equivalent_depth_se: Some(spacing(0.5)),
             };
             s.apply(
                 &Event::Profile {
@@ -1082,7 +1112,14 @@ mod tests {
         let lines = render_text(&s, now, 132, 42);
         println!("{}", lines.join("\n"));
         let text = lines.join("\n");
-        for want in ["Y90 62.0 mm", "n 0.70", "C0 0.57", "Cf 0.22", "tau 0.12"] {
+        for want in [
+            "Y90 62.0±0.8 mm",
+            "n 0.70±0.06",
+            "±0.011:",
+            "C0 0.57",
+            "Cf 0.22",
+            "tau 0.12",
+        ] {
             assert!(text.contains(want), "missing {want:?}");
         }
         // Without a front the decay panel is not shown.

@@ -33,7 +33,7 @@ pub use decoder::{Decoder, DecoderStats, DeviceSeqStats, FeedResult, SeqCheck};
 pub use frame::{
     Ack, Body, ChordTimes, Correlation, DeviceDescription, Frame, FrontArrival, Header, Health,
     Kind, Nack, NackReason, ProbeLayout, ProfileFit, Relearn, StartRun, TrailingTip, WindowResult,
-    WindowSetting, Windows,
+    WindowSetting, Windows, PROFILE_ESTIMATES,
 };
 pub use streamer::{Offer, Streamer, StreamerConfig, StreamerStats};
 
