@@ -242,7 +242,8 @@ fn single_runs_are_no_worse_than_plain_least_squares() {
 }
 
 /// The ensemble of 10 runs (the fit of the ensemble void fractions, `frothline ensemble`):
-/// median |dCmean| <= 0.01 and median |dY90| <= 1 mm against the generating profile.
+/// median |dCmean| <= 0.01 and median |dY90| <= 1 mm against the generating profile; the
+/// spread of Cmean across the runs matches the runs' own standard errors.
 #[test]
 fn ensemble_of_ten_runs_is_unbiased() {
     let r = runs();
@@ -252,7 +253,11 @@ fn ensemble_of_ten_runs_is_unbiased() {
     }
     let truth = &r[0].truth;
     let (mut dc, mut dy, mut dct, mut dyt) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+    let mut ratio = Vec::new();
     for s in e.slices() {
+        if let (Some(spread), Some(se)) = (s.spread.1, s.run_void_fraction_se) {
+            ratio.push(spread / se);
+        }
         let Some(t) = truth.get(s.k as usize) else {
             continue; // the partial last slice
         };
@@ -267,6 +272,11 @@ fn ensemble_of_ten_runs_is_unbiased() {
         dyt.push((tr.y90_mm as f64 - t.y90_mm).abs());
     }
     assert!(dc.len() >= 17, "{} slices", dc.len());
+    // The per-run standard error must describe the scatter between runs: the sample
+    // standard deviation of ten runs is itself uncertain by about 1/sqrt(2 × 9) = 24 %.
+    let r = median(ratio);
+    println!("spread of Cmean across runs / the runs' own standard error: median {r:.2}");
+    assert!((0.75..=1.33).contains(&r), "spread / se {r}");
     let (mc, my) = (median(dc), median(dy));
     println!(
         "ensemble of 10: median |dCmean| {mc:.4}, |dY90| {my:.2} mm; trapezoid {:.4}, {:.2} mm",
