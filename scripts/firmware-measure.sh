@@ -70,6 +70,10 @@ def kv(path):
             fields = dict(p.split("=", 1) for p in parts[1:] if "=" in p)
             d.setdefault("streaming", {})[fields["variant"]] = fields
             continue
+        if tag == "profile_fit":
+            fields = dict(p.split("=", 1) for p in parts[1:] if "=" in p)
+            d.setdefault("profile_fit", {})[fields["points"]] = fields
+            continue
         for p in parts[1:]:
             if "=" in p:
                 k, v = p.split("=", 1)
@@ -140,6 +144,16 @@ for name, v in [
     print("  %-82s %8.1f" % (name, v))
 cpu = pipeline * samples / frames * 20000 / 1e6
 print("  -> at 20 kHz x 16 channels the pipeline needs %.0f million instructions per second" % (cpu))
+
+pf = m.get("profile_fit", {})
+if pf:
+    print("\n# profile fit, once per slice of a station chain (instructions per fit)")
+    for key, name in [("weighted_6", "six probes 11 mm apart, three below Y90, standard errors (3 passes per model)"),
+                      ("plain_8", "eight probes, no standard errors (1 pass per model)")]:
+        if key in pf:
+            per_fit = int(pf[key]["ticks"]) * ipt / int(pf[key]["fits"])
+            # A 50 ms slice at 20 kHz of 16 channels holds 16 000 channel-samples.
+            print("  %-82s %8.0f  (%.2f per channel-sample at 50 ms slices)" % (name, per_fit, per_fit / 16000))
 
 print("\n# RAM (bytes)")
 print("  emulated build: static %d (.data %d + .bss %d), stack while running %d -> %d (%.1f KiB)"

@@ -373,9 +373,12 @@ fn replay_and_a_streamed_device_path_give_identical_records() {
         .windows
         .iter()
         .filter(|w| w.start == p.start)
-        .map(|w| ProfilePoint {
-            y_mm: file.layout.probes[w.probe as usize].elevation_mm as f32,
-            c: w.lead.void_fraction().unwrap(),
+        .map(|w| {
+            ProfilePoint::with_sigma(
+                file.layout.probes[w.probe as usize].elevation_mm as f32,
+                w.lead.void_fraction().unwrap(),
+                w.lead.void_fraction_sigma().unwrap(),
+            )
         })
         .collect();
     assert_eq!(fit_profile(&points, &ProfileConfig::default()), p.fit);

@@ -1,7 +1,11 @@
 //! Cost of the station stages (transient flows): the per-slice profile fit, the decay fit,
 //! and a station chain against a plain chain.
 //!
-//! - `profile_fit_8_points`: one `fit_profile` of 8 points (a power law, n = 1.2);
+//! - `profile_fit_8_points`: one `fit_profile` of 8 points without standard errors (a
+//!   power law, n = 1.2; one equal-weight pass per model);
+//! - `profile_fit_6_points_weighted`: one `fit_profile` of a coarse station with standard
+//!   errors, as a device slice gives them (six probes 11 mm apart, three below Y90 = 34 mm,
+//!   n = 0.7; one equal-weight and two reweighted passes per model);
 //! - `decay_fit_{20,128}_points`: one `DecayTracker::fit` over 20 / 128 slices;
 //! - `chain_*`: 8 dual-tip probes (16 channels) at 40 kHz, 2^18 frames (6.6 s) in memory,
 //!   tips dry until 0.1 s then bubbly (C from 0.1 at the lowest probe to 0.94 at the top,
@@ -17,7 +21,7 @@
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use frothline_core::decay::DecayTracker;
-use frothline_core::profile::{fit_profile, ProfileConfig, ProfilePoint};
+use frothline_core::profile::{fit_profile, renewal_sigma, ProfileConfig, ProfilePoint};
 use frothline_core::{
     Chain, ChainConfig, LevelSource, Polarity, ProbeConfig, StationConfig, TipConfig, WindowPolicy,
 };
@@ -26,6 +30,8 @@ use rand_distr::{Distribution, Gamma, Normal};
 use std::hint::black_box;
 
 const FS: f64 = 40_000.0;
+/// Void fractions of the coarse station of `profile_fit_6_points_weighted`.
+const COARSE_C: [f32; 6] = [0.225227, 0.530996, 0.775882, 0.962872, 0.98, 0.99];
 const FRAMES: usize = 1 << 18;
 const CHANNELS: usize = 16;
 const AIR: i16 = 24_000;
@@ -146,15 +152,25 @@ fn bench(c: &mut Criterion) {
     let points: Vec<ProfilePoint> = (0..8)
         .map(|i| {
             let y = 5.0 + 10.0 * i as f32;
-            ProfilePoint {
-                y_mm: y,
-                c: (0.9 * (y / 62.0).powf(1.2)).min(1.0),
-            }
+            ProfilePoint::new(y, (0.9 * (y / 62.0).powf(1.2)).min(1.0))
         })
         .collect();
     let cfg = ProfileConfig::default();
     g.bench_function("profile_fit_8_points", |b| {
         b.iter(|| black_box(fit_profile(black_box(&points), &cfg)))
+    });
+    // 0.9 (y/34)^0.7 (at most 0.98) + 0.01 ((i mod 3) − 1), rounded: the same points as
+    // the firmware's measure mode (firmware-example/src/mps2.rs).
+    let coarse: Vec<ProfilePoint> = COARSE_C
+        .iter()
+        .enumerate()
+        .map(|(i, &c)| {
+            let y = 5.0 + 11.0 * i as f32;
+            ProfilePoint::with_sigma(y, c, renewal_sigma(c, 20, Some(0.6), Some(0.8)))
+        })
+        .collect();
+    g.bench_function("profile_fit_6_points_weighted", |b| {
+        b.iter(|| black_box(fit_profile(black_box(&coarse), &cfg)))
     });
     for n in [20usize, 128] {
         let mut t = DecayTracker::<128>::new();

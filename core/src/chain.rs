@@ -1081,13 +1081,14 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
     #[inline(never)]
     fn slice_station(&mut self, partial: bool) {
         // At most P probes (and a station takes at most MAX_STATION_PROBES of them).
-        let mut lead_c = [(None, Flags::NONE); P];
+        let mut lead_c = [(None, 0.0f32, Flags::NONE); P];
         let probes = self.probes.len();
         let k = probes.min(P).min(crate::front::MAX_STATION_PROBES);
         let first = self.queue.len().saturating_sub(probes);
         for (i, slot) in lead_c.iter_mut().enumerate().take(k) {
             if let Some(rec) = self.queue.get(first + i) {
-                *slot = (rec.lead.void_fraction(), rec.flags);
+                let sigma = rec.lead.void_fraction_sigma().unwrap_or(0.0);
+                *slot = (rec.lead.void_fraction(), sigma, rec.flags);
             }
         }
         if let Some(s) = self.station.as_mut() {

@@ -136,6 +136,36 @@ impl ChordStats {
         (self.count > 0).then(|| (self.sum as f64 / self.count as f64) as f32)
     }
 
+    /// The squared coefficient of variation of the chords, `s²/mean²` (`s²` the sample
+    /// variance, divisor `n − 1`): the mean is exact,
+    /// the second moment from the histogram (a bin's value is its one integer when it holds
+    /// one, its geometric middle otherwise: within a few % for bins 19 % wide). `None` with
+    /// fewer than 3 chords.
+    pub fn cv2(&self) -> Option<f32> {
+        if self.count < 3 || self.sum == 0 {
+            return None;
+        }
+        let mut m2 = 0.0f32;
+        for (b, &c) in self.bins.iter().enumerate() {
+            if c == 0 {
+                continue;
+            }
+            let (lo, hi) = (bin_lower(b), bin_upper(b));
+            let x2 = if hi - lo <= 1.0 {
+                let x = F32Ext::ceil(lo);
+                x * x
+            } else {
+                lo * hi
+            };
+            m2 += c as f32 * x2;
+        }
+        let n = self.count as f32;
+        let mean = self.sum as f32 / n;
+        // The sample variance with Bessel's correction, n/(n − 1).
+        let cv2 = (m2 / n / (mean * mean) - 1.0) * n / (n - 1.0);
+        cv2.is_finite().then_some(cv2.max(0.0))
+    }
+
     /// The `q`-quantile (0..=1) of the chords, samples, from the histogram.
     pub fn quantile(&self, q: f32) -> Option<f32> {
         if self.count == 0 || !(0.0..=1.0).contains(&q) {

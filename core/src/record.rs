@@ -61,6 +61,20 @@ impl TipStats {
         (self.frames > 0).then(|| (self.air_frames as f64 / self.frames as f64) as f32)
     }
 
+    /// Standard error of [`void_fraction`](Self::void_fraction) from the window's chords
+    /// (the renewal-process variance of [`crate::profile::renewal_sigma`]: cycles are the
+    /// closed bubbles or droplets, whichever are more, the chord spreads from the
+    /// histograms).
+    pub fn void_fraction_sigma(&self) -> Option<f32> {
+        let c = self.void_fraction()?;
+        Some(crate::profile::renewal_sigma(
+            c,
+            self.bubbles.max(self.droplets),
+            self.bubble_chords.cv2(),
+            self.droplet_chords.cv2(),
+        ))
+    }
+
     /// Bubble count rate, bubbles per second, at `sample_rate` frames per second.
     pub fn bubble_count_rate(&self, sample_rate: f32) -> Option<f32> {
         (self.frames > 0 && sample_rate > 0.0)

@@ -298,8 +298,10 @@ pub struct ProfileRecord {
 impl ProfileRecord {
     /// The wire form (kind 0x04) of this record for station `station`.
     pub fn to_wire(&self, station: u8) -> crate::wire::ProfileFit {
-        use crate::wire::quant::{exponent, fraction, length_unsigned};
+        use crate::profile::ProfileModel;
+        use crate::wire::quant::{exponent, fraction, length_unsigned, spacing};
         let fit = &self.fit;
+        let e = &fit.errors;
         crate::wire::ProfileFit {
             station,
             slice_start: self.start,
@@ -311,6 +313,16 @@ impl ProfileRecord {
             exponent: fit.power_law.map(|p| exponent(p.exponent)),
             fit_rmse: fit.power_law.map(|p| fraction(p.rmse)),
             flags: fit.flags.0 as u32,
+            estimate: match fit.estimate {
+                None => 0,
+                Some(ProfileModel::PowerLaw) => 1,
+                Some(ProfileModel::Exponential) => 2,
+                Some(ProfileModel::Trapezoid) => 3,
+            },
+            y90_se: e.y90_mm.map(spacing),
+            mean_void_fraction_se: e.mean_void_fraction.map(fraction),
+            exponent_se: e.shape.map(exponent),
+            equivalent_depth_se: e.equivalent_depth_mm.map(spacing),
         }
     }
 }
@@ -652,21 +664,21 @@ impl<const P: usize> Station<P> {
     }
 
     /// A window closed after the arrival: fit its profile and queue the record. `lead`
-    /// holds each probe's leading-tip void fraction and flags. Room was checked by the
-    /// caller.
+    /// holds each probe's leading-tip void fraction, its standard error (0: unknown) and
+    /// flags. Room was checked by the caller.
     pub(crate) fn slice(
         &mut self,
         start: u64,
         end: u64,
-        lead: &[(Option<f32>, Flags)],
+        lead: &[(Option<f32>, f32, Flags)],
         partial: bool,
     ) {
         let Some(since_front) = self.since_front(start) else {
             return;
         };
-        let mut points = [ProfilePoint { y_mm: 0.0, c: 0.0 }; MAX_STATION_PROBES];
+        let mut points = [ProfilePoint::new(0.0, 0.0); MAX_STATION_PROBES];
         let (mut k, mut used, mut dead, mut unlearnt) = (0usize, 0u32, 0u32, 0u32);
-        for (i, &(c, flags)) in lead.iter().enumerate().take(MAX_STATION_PROBES) {
+        for (i, &(c, sigma, flags)) in lead.iter().enumerate().take(MAX_STATION_PROBES) {
             let bit = 1u32 << i;
             let (Some(c), Some(&y)) = (c, self.cfg.elevations_mm.get(i)) else {
                 continue;
@@ -680,7 +692,7 @@ impl<const P: usize> Station<P> {
                 continue;
             }
             if let Some(slot) = points.get_mut(k) {
-                *slot = ProfilePoint { y_mm: y, c };
+                *slot = ProfilePoint::with_sigma(y, c, sigma);
                 k += 1;
                 used |= bit;
             }

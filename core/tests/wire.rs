@@ -195,6 +195,11 @@ fn sample_frames() -> Vec<Frame> {
                 exponent: Some(1100),
                 fit_rmse: Some(120),
                 flags: 0,
+                estimate: 1,
+                y90_se: Some(62),
+                mean_void_fraction_se: Some(95),
+                exponent_se: Some(140),
+                equivalent_depth_se: Some(48),
             }),
         ),
         dev(
@@ -326,6 +331,11 @@ fn largest_frames() -> Vec<Frame> {
             exponent: Some(u16::MAX),
             fit_rmse: Some(u16::MAX),
             flags: u32::MAX,
+            estimate: u8::MAX,
+            y90_se: Some(u16::MAX),
+            mean_void_fraction_se: Some(u16::MAX),
+            exponent_se: Some(u16::MAX),
+            equivalent_depth_se: Some(u16::MAX),
         })),
         f(Body::Health(Health {
             samples_dropped: u64::MAX,
@@ -1066,22 +1076,36 @@ fn arb_body() -> impl Strategy<Value = Body> {
                 proptest::option::of(any::<u16>()),
                 proptest::option::of(any::<u16>()),
                 any::<u32>()
+            ),
+            (
+                any::<u8>(),
+                proptest::option::of(any::<u16>()),
+                proptest::option::of(any::<u16>()),
+                proptest::option::of(any::<u16>()),
+                proptest::option::of(any::<u16>()),
             )
         )
-            .prop_map(|((station, slice_start, slice_frames, probes_used), o)| {
-                Body::Profile(ProfileFit {
-                    station,
-                    slice_start,
-                    slice_frames,
-                    probes_used,
-                    y90: o.0,
-                    mean_void_fraction: o.1,
-                    equivalent_depth: o.2,
-                    exponent: o.3,
-                    fit_rmse: o.4,
-                    flags: o.5,
-                })
-            }),
+            .prop_map(
+                |((station, slice_start, slice_frames, probes_used), o, u)| {
+                    Body::Profile(ProfileFit {
+                        station,
+                        slice_start,
+                        slice_frames,
+                        probes_used,
+                        y90: o.0,
+                        mean_void_fraction: o.1,
+                        equivalent_depth: o.2,
+                        exponent: o.3,
+                        fit_rmse: o.4,
+                        flags: o.5,
+                        estimate: u.0,
+                        y90_se: u.1,
+                        mean_void_fraction_se: u.2,
+                        exponent_se: u.3,
+                        equivalent_depth_se: u.4,
+                    })
+                }
+            ),
         (
             any::<u64>(),
             any::<u64>(),

@@ -401,8 +401,48 @@ fn end_of_run(
         ] {
             measure_streaming(chain, &clock, v);
         }
+        measure_profile_fit(&clock);
     }
     pass
+}
+
+/// Fits timed by [`measure_profile_fit`].
+const PROFILE_FITS: u32 = 200;
+
+/// The per-slice cost of a station: timer ticks of [`PROFILE_FITS`] profile fits of a
+/// coarse station with standard errors (six probes 11 mm apart, three below Y90; the
+/// points of the core's `profile_fit_6_points_weighted` bench) and of eight points
+/// without (`profile_fit_8_points`).
+#[inline(never)]
+fn measure_profile_fit<C: Clock>(clock: &C) {
+    use frothline_core::profile::{fit_profile, renewal_sigma, ProfileConfig, ProfilePoint};
+    const COARSE_C: [f32; 6] = [0.225227, 0.530996, 0.775882, 0.962872, 0.98, 0.99];
+    const EIGHT_C: [f32; 8] = [
+        0.043867, 0.163939, 0.302622, 0.453163, 0.612671, 0.779485, 0.952508, 1.0,
+    ];
+    let cfg = ProfileConfig::default();
+    let mut coarse = [ProfilePoint::new(0.0, 0.0); 6];
+    for (i, (p, &c)) in coarse.iter_mut().zip(&COARSE_C).enumerate() {
+        let y = 5.0 + 11.0 * i as f32;
+        *p = ProfilePoint::with_sigma(y, c, renewal_sigma(c, 20, Some(0.6), Some(0.8)));
+    }
+    let mut eight = [ProfilePoint::new(0.0, 0.0); 8];
+    for (i, (p, &c)) in eight.iter_mut().zip(&EIGHT_C).enumerate() {
+        *p = ProfilePoint::new(5.0 + 10.0 * i as f32, c);
+    }
+    for (name, pts) in [("weighted_6", &coarse[..]), ("plain_8", &eight[..])] {
+        let t0 = clock.now();
+        for _ in 0..PROFILE_FITS {
+            core::hint::black_box(fit_profile(core::hint::black_box(pts), &cfg));
+        }
+        let dt = clock.now().wrapping_sub(t0);
+        report!(
+            "fw.profile_fit points={} fits={} ticks={}",
+            name,
+            PROFILE_FITS,
+            dt
+        );
+    }
 }
 
 /// The field log of mode `logger`: a NOR flash stand-in in RAM, and the end-of-run checks.

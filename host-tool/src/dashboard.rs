@@ -695,8 +695,19 @@ fn draw_profile_chart(f: &mut Frame, area: Rect, state: &LiveState) {
         .fold(1.0f64, f64::max)
         * 1.05;
     let head = match (&curve, state.shown_station()) {
-        (Some((_, y90, n)), Some((k, _))) => {
-            format!(" C vs y S{} Y90 {y90:.1} mm n {n:.2} ", k.1 + 1)
+        (Some((_, y90, n)), Some((k, s))) => {
+            let p = s.profile.as_ref();
+            let read = match p.and_then(|p| p.estimate) {
+                Some("trapezoid") => " bad fit",
+                Some("exponential") => " exp",
+                _ => "",
+            };
+            format!(
+                " C vs y S{} Y90 {y90:.1}{} n {n:.2}{}{read} ",
+                k.1 + 1,
+                plus_minus(p.and_then(|p| p.y90_se_mm), 1),
+                plus_minus(p.and_then(|p| p.exponent_se), 2),
+            )
         }
         (None, Some((k, _))) => format!(" C vs y S{}: no fit yet ", k.1 + 1),
         _ => " C vs elevation ".to_string(),
@@ -748,13 +759,27 @@ pub fn decay_chart_data(state: &LiveState) -> (Points, Option<(Points, f64, f64,
     (points, curve)
 }
 
+/// `±e` with `prec` decimals, or nothing.
+fn plus_minus(se: Option<f64>, prec: usize) -> String {
+    se.map_or(String::new(), |e| format!("±{e:.prec$}"))
+}
+
 fn draw_decay(f: &mut Frame, area: Rect, state: &LiveState) {
     let (points, curve) = decay_chart_data(state);
     let tmax = points.iter().map(|p| p.0).fold(0.05f64, f64::max);
+    // The latest slice's Cmean with its standard error.
+    let latest = state
+        .shown_station()
+        .and_then(|(_, s)| s.profile.as_ref())
+        .and_then(|p| {
+            let c = p.mean_void_fraction?;
+            Some(format!(" {c:.3}{}", plus_minus(p.mean_void_fraction_se, 3)))
+        })
+        .unwrap_or_default();
+    // The fit in the title, the latest slice's Cmean on the y axis: both stay whole in a
+    // third of an 80-column screen.
     let head = match &curve {
-        Some((_, c0, cf, tau)) => {
-            format!(" Cmean: C0 {c0:.2} Cf {cf:.2} tau {tau:.3} s ")
-        }
+        Some((_, c0, cf, tau)) => format!(" Cmean fit: C0 {c0:.2} Cf {cf:.2} tau {tau:.2} s "),
         None => format!(" Cmean vs t-front: {} pts, no fit ", points.len()),
     };
     let chart = Chart::new(fit_and_points(
@@ -771,6 +796,10 @@ fn draw_decay(f: &mut Frame, area: Rect, state: &LiveState) {
     )
     .y_axis(
         Axis::default()
+            .title(Span::styled(
+                format!("Cmean{latest}"),
+                Style::default().fg(DIM),
+            ))
             .bounds([0.0, 1.0])
             .labels(axis_labels(0.0, 1.0, 1)),
     )
@@ -1217,7 +1246,7 @@ mod tests {
     }
 
     fn transient_state_with(now: Instant, elevations: &[f32]) -> LiveState {
-        use frothline_core::wire::quant::{exponent, fraction};
+        use frothline_core::wire::quant::{exponent, fraction, spacing};
         use frothline_core::wire::{FrontArrival, ProfileFit};
         let ports = vec!["/dev/pts/3".to_string()];
         let mut s = LiveState::new(&ports);
@@ -1306,6 +1335,11 @@ mod tests {
                 exponent: Some(exponent(n)),
                 fit_rmse: Some(fraction(0.012)),
                 flags: 0,
+                estimate: 1,
+                y90_se: Some(spacing(0.8)),
+                mean_void_fraction_se: Some(fraction(0.011)),
+                exponent_se: Some(exponent(0.06)),
+                equivalent_depth_se: Some(spacing(0.5)),
             };
             s.apply(
                 &Event::Profile {
@@ -1335,17 +1369,23 @@ mod tests {
         let (line, y90, n) = curve.expect("a profile curve");
         assert!((y90 - 62.0).abs() < 0.1 && (n - 0.7).abs() < 0.01);
         assert_eq!(line.last().map(|p| p.1), Some(y90));
-        let lines = render_text(&s, now, 132, 42);
+        let lines = render_text(&s, now, 160, 48);
         println!("{}", lines.join("\n"));
         let text = lines.join("\n");
-        for want in ["Y90 62.0 mm", "n 0.70", "C0 0.57", "Cf 0.22", "tau 0.12"] {
+        for want in [
+            "Y90 62.0±0.8 n 0.70±0.06",
+            "Cmean 0.222±0.011",
+            "C0 0.57",
+            "Cf 0.22",
+            "tau 0.12",
+        ] {
             assert!(text.contains(want), "missing {want:?}");
         }
         // Without a front the decay panel is not shown.
         let mut steady = transient_state(now);
         steady.stations.clear();
         let text = render_text(&steady, now, 132, 42).join("\n");
-        assert!(!text.contains("Cmean: C0"));
+        assert!(!text.contains("Cmean fit"));
     }
 
     /// Every probe name and every panel title is on screen at the tested sizes, for a

@@ -13,7 +13,9 @@
 //!   coefficients of all runs' frames), not from an average of per-run velocities (spread:
 //!   of the per-run velocities);
 //! - **profile slices**: the profile fit of the ensemble void fractions of the station's
-//!   probes at slice `k` (spreads: of the per-run Y90, Cmean and n), and the decay of the
+//!   probes at slice `k`, each point weighted by the renewal standard error of the merged
+//!   chords (spreads: of the per-run Y90, Cmean, n and d; beside them the runs' own
+//!   standard errors of Cmean, which the Cmean spread should match), and the decay of the
 //!   ensemble Cmean against the time since the front.
 //!
 //! Times: `since_front_s` is exact (`k` windows from the origin); `window_start_s` /
@@ -88,6 +90,9 @@ struct SliceAcc {
     y90: Vec<f64>,
     cmean: Vec<f64>,
     n: Vec<f64>,
+    depth: Vec<f64>,
+    /// Each run's standard error of its Cmean.
+    cmean_se: Vec<f64>,
     partial: bool,
 }
 
@@ -137,6 +142,11 @@ fn sd(v: &[f64]) -> Option<f64> {
         .then(|| (v.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / (v.len() - 1) as f64).sqrt())
 }
 
+/// Root mean square.
+fn rms(v: &[f64]) -> Option<f64> {
+    (!v.is_empty()).then(|| (v.iter().map(|x| x * x).sum::<f64>() / v.len() as f64).sqrt())
+}
+
 fn opt<T: std::fmt::Display>(v: Option<T>) -> String {
     v.map(|v| v.to_string()).unwrap_or_default()
 }
@@ -184,6 +194,11 @@ pub struct EnsembleSlice {
     pub record: ProfileRecord,
     /// Spreads across runs of Y90 (mm), Cmean and n.
     pub spread: (Option<f64>, Option<f64>, Option<f64>),
+    /// Spread across runs of d, mm.
+    pub depth_spread_mm: Option<f64>,
+    /// The runs' own standard errors of Cmean, root mean square: what one run claims, to
+    /// set beside the spread across runs (`spread.1`) it should match.
+    pub run_void_fraction_se: Option<f64>,
     /// Mean slice start and end over the runs, s.
     pub start_s: f64,
     /// Mean slice end, s.
@@ -315,6 +330,12 @@ impl Ensemble {
             if let Some(pl) = p.fit.power_law {
                 e.n.push(pl.exponent as f64);
             }
+            if let Some(d) = p.fit.equivalent_depth_mm {
+                e.depth.push(d as f64);
+            }
+            if let Some(se) = p.fit.errors.mean_void_fraction {
+                e.cmean_se.push(se as f64);
+            }
         }
         for f in &run.fronts {
             match &f.record {
@@ -422,10 +443,14 @@ impl Ensemble {
                     .flags
                     .contains(frothline_core::Flags::LEVELS_NOT_LEARNT);
                 if let (Some(c), true) = (w.void_fraction, learnt) {
-                    points.push(ProfilePoint {
-                        y_mm: self.layout.probes[p].elevation_mm as f32,
-                        c: c as f32,
-                    });
+                    // The standard error of the pooled runs' void fraction: the renewal
+                    // variance of the merged chords (all runs' cycles).
+                    let sigma = w.record.lead.void_fraction_sigma().unwrap_or(0.0);
+                    points.push(ProfilePoint::with_sigma(
+                        self.layout.probes[p].elevation_mm as f32,
+                        c as f32,
+                        sigma,
+                    ));
                     used |= 1 << local;
                 }
             }
@@ -456,6 +481,8 @@ impl Ensemble {
                 runs: acc.starts_s.len(),
                 record,
                 spread: (sd(&acc.y90), sd(&acc.cmean), sd(&acc.n)),
+                depth_spread_mm: sd(&acc.depth),
+                run_void_fraction_se: rms(&acc.cmean_se),
                 start_s,
                 end_s,
             });
@@ -515,6 +542,8 @@ impl Ensemble {
             "y90_spread_mm",
             "void_fraction_spread",
             "exponent_spread",
+            "equivalent_depth_spread_mm",
+            "run_void_fraction_se",
         ]);
         let fake = TransientRun {
             layout: self.layout.clone(),
@@ -542,6 +571,8 @@ impl Ensemble {
                     opt(s.spread.0),
                     opt(s.spread.1),
                     opt(s.spread.2),
+                    opt(s.depth_spread_mm),
+                    opt(s.run_void_fraction_se),
                 ]);
                 row
             })

@@ -7,8 +7,12 @@
 use crate::probe_summary::{ProbeTally, SummaryRule, WindowFigures};
 use crate::session::{describe_event, setting_text, Event};
 use frothline_core::decay::{DecayFit, DecayTracker};
-use frothline_core::wire::quant::{from_exponent, from_fraction, from_length, from_micros};
-use frothline_core::wire::{FrontArrival, Health, Kind, ProfileFit, WindowResult};
+use frothline_core::wire::quant::{
+    from_exponent, from_fraction, from_length, from_micros, from_spacing,
+};
+use frothline_core::wire::{
+    FrontArrival, Health, Kind, ProfileFit, WindowResult, PROFILE_ESTIMATES,
+};
 use frothline_core::Flags;
 use std::collections::{BTreeMap, HashMap, VecDeque};
 use std::time::{Duration, Instant};
@@ -70,6 +74,14 @@ pub struct LiveProfile {
     pub rmse: Option<f64>,
     /// Probes that contributed.
     pub probes_used: u8,
+    /// Which estimate Y90 and Cmean are (`power_law`, `exponential`, `trapezoid`).
+    pub estimate: Option<&'static str>,
+    /// Standard error of Y90, mm.
+    pub y90_se_mm: Option<f64>,
+    /// Standard error of Cmean.
+    pub mean_void_fraction_se: Option<f64>,
+    /// Standard error of n.
+    pub exponent_se: Option<f64>,
 }
 
 /// What the live view knows of one station of a transient flow.
@@ -128,6 +140,13 @@ impl StationLive {
             exponent: p.exponent.map(|q| from_exponent(q) as f64),
             rmse: p.fit_rmse.map(|q| from_fraction(q) as f64),
             probes_used: p.probes_used,
+            estimate: PROFILE_ESTIMATES
+                .get(p.estimate as usize)
+                .copied()
+                .filter(|&e| e != "none"),
+            y90_se_mm: p.y90_se.map(|q| from_spacing(q) as f64),
+            mean_void_fraction_se: p.mean_void_fraction_se.map(|q| from_fraction(q) as f64),
+            exponent_se: p.exponent_se.map(|q| from_exponent(q) as f64),
         };
         if let (Some(t), Some(c)) = (since, fit.mean_void_fraction) {
             if self.series.push(t as f32, c as f32).is_ok() {

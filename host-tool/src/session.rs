@@ -22,11 +22,11 @@ use crate::commands::{kind_name, CommandLog, HOST_DEVICE_ID};
 use crate::error::{write_err, HostError};
 use crate::layout::Layout;
 use crate::windows_csv::{wire_row, ProbeMeta, WindowsCsv};
-use frothline_core::wire::quant::{from_exponent, from_fraction, from_length};
+use frothline_core::wire::quant::{from_exponent, from_fraction, from_length, from_spacing};
 use frothline_core::wire::{
     Body, Decoder, DecoderStats, DeviceDescription, DeviceSeqStats, FeedResult, FrontArrival,
     Header, Health, Kind, NackReason, ProfileFit, RunStart, SeqCheck, WindowResult, WindowSetting,
-    PROTOCOL_VERSION,
+    PROFILE_ESTIMATES, PROTOCOL_VERSION,
 };
 use std::collections::BTreeMap;
 use std::fs::File;
@@ -41,10 +41,18 @@ pub fn front_columns() -> Vec<&'static str> {
 }
 
 /// Columns of a live profile.csv: the contract of DESIGN.md §3 (the replay's first ten
-/// columns), then `flags`.
+/// columns), then `flags`, the estimate the contract columns hold and its standard errors
+/// (named as in the replay's profile.csv).
 pub fn profile_columns() -> Vec<&'static str> {
     let mut c = crate::transient::PROFILE_COLUMNS[..10].to_vec();
-    c.push("flags");
+    c.extend([
+        "flags",
+        "estimate",
+        "y90_se_mm",
+        "void_fraction_se",
+        "exponent_se",
+        "equivalent_depth_se_mm",
+    ]);
     c.extend(crate::runs::RUN_COLUMNS);
     c
 }
@@ -941,6 +949,14 @@ impl Session {
             opt(p.fit_rmse.map(from_fraction)),
             p.probes_used.to_string(),
             flags.join("|"),
+            PROFILE_ESTIMATES
+                .get(p.estimate as usize)
+                .filter(|&&e| e != "none")
+                .map_or(String::new(), |e| e.to_string()),
+            opt(p.y90_se.map(from_spacing)),
+            opt(p.mean_void_fraction_se.map(from_fraction)),
+            opt(p.exponent_se.map(from_exponent)),
+            opt(p.equivalent_depth_se.map(from_spacing)),
         ];
         let row = row
             .into_iter()

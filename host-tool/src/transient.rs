@@ -84,6 +84,23 @@ pub const PROFILE_COLUMNS: &[&str] = &[
     "decay_rmse",
     "decay_points",
     "decay_flags",
+    // the estimate in the contract columns, its standard errors (delta method), the
+    // model-free trapezoid and both joint fits
+    "estimate",
+    "y90_se_mm",
+    "void_fraction_se",
+    "exponent_se",
+    "equivalent_depth_se_mm",
+    "trapezoid_y90_mm",
+    "trapezoid_void_fraction",
+    "trapezoid_equivalent_depth_mm",
+    "trapezoid_void_fraction_se",
+    "power_law_y90_mm",
+    "power_law_chi2",
+    "exponential_y90_mm",
+    "exponential_chi2",
+    "exponential_diffusivity_se",
+    "fit_dof",
 ];
 
 /// Columns of `fronts.csv`: the contract, then extras.
@@ -589,10 +606,8 @@ impl TransientRun {
         let f = &p.fit;
         let pl = f.power_law;
         let ex = f.exponential;
-        let model = f.better_model.map(|m| match m {
-            ProfileModel::PowerLaw => "power_law",
-            ProfileModel::Exponential => "exponential",
-        });
+        let model = f.better_model.map(ProfileModel::name);
+        let tr = f.trapezoid;
         let flags: Vec<&str> = f.flags.names().collect();
         let info = &self.stations[s];
         let names = |mask: u32| -> Vec<String> {
@@ -641,6 +656,25 @@ impl TransientRun {
             opt(model_d.map(|m| m.rmse)),
             p.decay_points.to_string(),
             decay_flags.join("|"),
+            opt(f.estimate.map(ProfileModel::name)),
+            opt(f.errors.y90_mm),
+            opt(f.errors.mean_void_fraction),
+            opt(f.errors.shape),
+            opt(f.errors.equivalent_depth_mm),
+            opt(tr.map(|t| t.y90_mm)),
+            opt(tr.map(|t| t.mean_void_fraction)),
+            opt(tr.map(|t| t.equivalent_depth_mm)),
+            opt(tr.and_then(|t| t.errors.mean_void_fraction)),
+            opt(pl.map(|x| x.y90_mm)),
+            opt(pl.map(|x| x.chi2)),
+            opt(ex.map(|x| x.y90_mm)),
+            opt(ex.map(|x| x.chi2)),
+            opt(ex.and_then(|x| x.errors.shape)),
+            if pl.is_some() {
+                f.dof.to_string()
+            } else {
+                String::new()
+            },
         ]
     }
 

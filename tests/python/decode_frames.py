@@ -173,7 +173,11 @@ def profile(c):
             "probes_used": c.byte(), "y90": c.opt(lambda: u32(c)),
             "mean_void_fraction": c.opt(lambda: u16(c)),
             "equivalent_depth": c.opt(lambda: u32(c)), "exponent": c.opt(lambda: u16(c)),
-            "fit_rmse": c.opt(lambda: u16(c)), "flags": u32(c)}
+            "fit_rmse": c.opt(lambda: u16(c)), "flags": u32(c), "estimate": c.byte(),
+            "y90_se": c.opt(lambda: u16(c)),
+            "mean_void_fraction_se": c.opt(lambda: u16(c)),
+            "exponent_se": c.opt(lambda: u16(c)),
+            "equivalent_depth_se": c.opt(lambda: u16(c))}
 
 
 def empty(c):

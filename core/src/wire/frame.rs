@@ -380,7 +380,21 @@ pub struct ProfileFit {
     pub fit_rmse: Option<u16>,
     /// Quality flags of the profile stage.
     pub flags: u32,
+    /// Which estimate `y90`, `mean_void_fraction` and `equivalent_depth` are:
+    /// [`PROFILE_ESTIMATES`] (0 none, 1 power law, 2 exponential, 3 trapezoid).
+    pub estimate: u8,
+    /// Standard error of `y90`, 0.01 mm.
+    pub y90_se: Option<u16>,
+    /// Standard error of `mean_void_fraction`, 1e-4.
+    pub mean_void_fraction_se: Option<u16>,
+    /// Standard error of `exponent`, 1e-3.
+    pub exponent_se: Option<u16>,
+    /// Standard error of `equivalent_depth`, 0.01 mm.
+    pub equivalent_depth_se: Option<u16>,
 }
+
+/// The codes of [`ProfileFit::estimate`], by index.
+pub const PROFILE_ESTIMATES: [&str; 4] = ["none", "power_law", "exponential", "trapezoid"];
 
 /// Kind 0x05: health counters, cumulative since the device started (the host takes
 /// differences, so a lost health frame loses nothing).

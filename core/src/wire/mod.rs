@@ -37,7 +37,7 @@ pub use decoder::{Decoder, DecoderStats, DeviceSeqStats, FeedResult, SeqCheck};
 pub use frame::{
     Ack, Body, ChordTimes, Correlation, DeviceDescription, Frame, FrontArrival, Header, Health,
     Kind, Nack, NackReason, ProbeLayout, ProfileFit, Relearn, RunStart, SetLevels, StartRun,
-    TrailingTip, WindowResult, WindowSetting, Windows,
+    TrailingTip, WindowResult, WindowSetting, Windows, PROFILE_ESTIMATES,
 };
 pub use responder::{Command, CommandTarget, Reply, Responder, ResponderStats};
 pub use streamer::{Offer, Streamer, StreamerConfig, StreamerStats};

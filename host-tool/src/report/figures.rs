@@ -523,6 +523,9 @@ pub struct DecayStation {
     pub station: String,
     /// (time since the front, depth-averaged void fraction).
     pub points: Vec<(f64, f64)>,
+    /// Half-width of each point's 90 % interval (from profile.csv's `void_fraction_se`),
+    /// drawn as an error bar; `None` (or a shorter list) draws none.
+    pub intervals: Vec<Option<f64>>,
     /// The fit (given by the file or made here).
     pub fit: Option<DecayFit>,
     /// True when the fit came from profile.csv's decay columns.
@@ -557,7 +560,13 @@ impl Figure for DecayFigure {
         let mut labels: Vec<String> = Vec::new();
         for st in &self.stations {
             extent.extend(st.points.iter().map(|p| (p.0 / t_top, p.1)));
-            labels.push(format!("station {}: profile slices", st.station));
+            extent.extend(
+                st.points
+                    .iter()
+                    .zip(&st.intervals)
+                    .filter_map(|(p, h)| h.map(|h| (p.0 / t_top, p.1 + h))),
+            );
+            labels.push(slices_label(st));
             if let Some(fit) = st.fit {
                 extent.extend((0..=50).map(|k| {
                     let t = t_max * k as f64 / 50.0;
@@ -593,6 +602,26 @@ impl Figure for DecayFigure {
         let r = s.marker();
         for (i, st) in self.stations.iter().enumerate() {
             let colour = station_colour(i);
+            let bars: Vec<((f64, f64), f64)> = st
+                .points
+                .iter()
+                .zip(&st.intervals)
+                .filter_map(|(&p, h)| h.filter(|h| h.is_finite() && *h > 0.0).map(|h| (p, h)))
+                .collect();
+            if !bars.is_empty() {
+                let cap = t_top * 0.004;
+                let style = colour.mix(0.45).stroke_width(s.line().max(1));
+                tag.begin(root, &format!("decay-intervals-{}", st.station))?;
+                chart.draw_series(bars.iter().flat_map(|&((t, c), h)| {
+                    let (lo, hi) = ((c - h).max(0.0), c + h);
+                    [
+                        PathElement::new(vec![(t, lo), (t, hi)], style),
+                        PathElement::new(vec![(t - cap, lo), (t + cap, lo)], style),
+                        PathElement::new(vec![(t - cap, hi), (t + cap, hi)], style),
+                    ]
+                }))?;
+                tag.end(root)?;
+            }
             tag.begin(root, &format!("decay-slices-{}", st.station))?;
             chart
                 .draw_series(
@@ -600,7 +629,7 @@ impl Figure for DecayFigure {
                         .iter()
                         .map(|&pt| marker_element(pt, Marker::Circle, colour.mix(0.55), r, true)),
                 )?
-                .label(format!("station {}: profile slices", st.station))
+                .label(slices_label(st))
                 .legend(move |at| marker_element(at, Marker::Circle, colour.mix(0.55), r, true));
             tag.end(root)?;
             if let Some(fit) = st.fit {
@@ -618,6 +647,14 @@ impl Figure for DecayFigure {
             }
         }
         legend(&mut chart, s, pos)
+    }
+}
+
+fn slices_label(st: &DecayStation) -> String {
+    if st.intervals.iter().any(Option::is_some) {
+        format!("station {}: profile slices, 90 % intervals", st.station)
+    } else {
+        format!("station {}: profile slices", st.station)
     }
 }
 

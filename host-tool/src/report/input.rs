@@ -112,6 +112,9 @@ pub struct Slice {
     /// `decay_initial`, `decay_final`): a decay fit made by the writer (the report fits one
     /// itself when they are absent).
     pub decay: Option<(f64, f64, f64)>,
+    /// Optional extra column `void_fraction_se`: the standard error of
+    /// `depth_averaged_void_fraction` (drawn as a 90 % interval).
+    pub void_fraction_se: Option<f64>,
     /// Optional extra column `flags`: flags of the slice's profile fit, `|`-separated.
     pub flags: Vec<String>,
     /// Optional extra column `decay_flags`: flags of the decay fit, `|`-separated.
@@ -533,6 +536,7 @@ fn read_profile(run: &mut Run) -> Result<(), ReportError> {
             "decay_final_void_fraction",
         ],
         &["decay_tau_s"],
+        &["void_fraction_se"],
     ] {
         cols.push(aliases.iter().find_map(|a| t.col(a)));
     }
@@ -566,6 +570,7 @@ fn read_profile(run: &mut Run) -> Result<(), ReportError> {
                 (Some(a), Some(b), Some(c)) if c > 0.0 => Some((a, b, c)),
                 _ => None,
             },
+            void_fraction_se: v[12].filter(|e| *e >= 0.0),
             flags: split(text(rec, fc)),
             decay_flags: split(text(rec, dfc)),
         });

@@ -437,14 +437,23 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
         let mut list = Vec::new();
         for st in chosen {
             let rows: Vec<&input::Slice> = run.profile.iter().filter(|s| s.station == st).collect();
-            let points: Vec<(f64, f64)> = rows
+            let kept: Vec<(f64, f64, Option<f64>)> = rows
                 .iter()
-                .filter_map(|s| Some((s.since_front_s?, s.depth_averaged_void_fraction?)))
+                .filter_map(|s| {
+                    let t = s.since_front_s?;
+                    Some((t, s.depth_averaged_void_fraction?, s.void_fraction_se))
+                })
                 .filter(|p| p.0 >= 0.0)
                 .collect();
-            if points.is_empty() {
+            if kept.is_empty() {
                 continue;
             }
+            let points: Vec<(f64, f64)> = kept.iter().map(|p| (p.0, p.1)).collect();
+            // 90 % intervals: ±1.645 standard errors (normal quantile).
+            let intervals: Vec<Option<f64>> = kept
+                .iter()
+                .map(|p| p.2.map(|se| frothline_core::profile::Z90 as f64 * se))
+                .collect();
             let given = rows.iter().rev().find_map(|s| s.decay);
             let (fit, from_file) = match given {
                 Some((c0, cf, tau_s)) => (
@@ -474,6 +483,7 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
             list.push(DecayStation {
                 station: st,
                 points,
+                intervals,
                 fit,
                 fit_from_file: from_file,
             });
