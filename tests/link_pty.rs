@@ -50,6 +50,7 @@ fn replay_wire(out: &Path) -> (Vec<frothline_host::rig::HostRecord>, Vec<WindowR
         out: out.to_path_buf(),
         window: window(),
         quiet: true,
+        strict: false,
     })
     .unwrap();
     let wire = r

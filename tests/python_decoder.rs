@@ -89,6 +89,7 @@ fn run() {
         out: tmp.path().to_path_buf(),
         window: "100ms".parse().unwrap(),
         quiet: true,
+        strict: false,
     })
     .unwrap();
     let expected: Vec<WindowResult> = replay

@@ -39,9 +39,20 @@
 //! data stopped; the error repeats on later calls. No recorded frame is lost: a caller that
 //! wants to keep going treats that error as the end of the capture. An I/O error in the middle
 //! of a read is reported the same way (frames already converted first, the error next call).
+//! [`Capture::end_at_cut`] turns the truncation into a plain end of data instead, remembered
+//! in [`Capture::cut`], for callers that keep the frames and warn.
+//!
+//! # Unfinished headers
+//!
+//! A recorder fixes the data chunk length when it closes the file. One that streamed
+//! (declaring the placeholder 0xFFFFFFFF) or crashed before closing (declaring 0) leaves a
+//! data chunk length that says nothing about the samples. When the data chunk declares 0 or
+//! 0xFFFFFFFF bytes and bytes follow it, the samples are read to the end of the file and
+//! [`Capture::unfinished_header`] reports the declared value (common practice, no source:
+//! the same placeholders appear in streaming WAV writers).
 
 use std::fs::File;
-use std::io::{self, BufReader, Read};
+use std::io::{self, BufReader, Read, Seek};
 use std::path::{Path, PathBuf};
 
 /// Bytes read from the data chunk per underlying read (bounded scratch buffer).
@@ -163,6 +174,18 @@ pub enum CaptureError {
         /// The capture file.
         path: PathBuf,
     },
+    /// The capture holds no complete frame: nothing to analyse.
+    #[error(
+        "{}: the capture holds no sample frame ({channels} channels, the data chunk is empty \
+         or shorter than one frame)",
+        path.display()
+    )]
+    NoFrames {
+        /// The capture file.
+        path: PathBuf,
+        /// Channels declared.
+        channels: usize,
+    },
     /// The data chunk declares more frames than the file holds.
     #[error(
         "{}: truncated capture: the data chunk declares {declared} frames but the file ends \
@@ -188,6 +211,7 @@ impl CaptureError {
             | CaptureError::Malformed { path, .. }
             | CaptureError::Unsupported { path, .. }
             | CaptureError::ZeroChannels { path }
+            | CaptureError::NoFrames { path, .. }
             | CaptureError::Truncated { path, .. } => path,
         }
     }
@@ -232,10 +256,14 @@ struct Header {
     data_len: u64,
 }
 
+/// What a capture is read from: a file, or bytes in memory ([`Capture::from_bytes`]).
+trait Source: Read + Seek + Send {}
+impl<T: Read + Seek + Send> Source for T {}
+
 /// An open capture, read front to back in blocks of frames.
 pub struct Capture {
     path: PathBuf,
-    reader: BufReader<File>,
+    reader: BufReader<Box<dyn Source>>,
     format: SampleFormat,
     channels: usize,
     sample_rate: u32,
@@ -248,6 +276,19 @@ pub struct Capture {
     pending_io: Option<io::Error>,
     /// The data ended before the declared length; reported from the next call on.
     truncated: bool,
+    /// Report the truncation as the end of the data ([`Capture::end_at_cut`]).
+    end_at_cut: bool,
+    /// The data chunk length declared by an unfinished header (0 or 0xFFFFFFFF).
+    unfinished: Option<u32>,
+}
+
+/// Where a capture's data stopped before its header said it would.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Cut {
+    /// Complete frames read (= index of the first missing frame).
+    pub frame: u64,
+    /// Frames the header declared.
+    pub declared: u64,
 }
 
 impl std::fmt::Debug for Capture {
@@ -273,11 +314,30 @@ impl Capture {
         };
         let file = File::open(path).map_err(io_err)?;
         let file_len = file.metadata().map_err(io_err)?.len();
-        let mut reader = BufReader::with_capacity(HEADER_BUFFER, file);
+        Capture::from_source(path, Box::new(file), file_len)
+    }
+
+    /// Reads a capture held in memory; `name` stands for the file in messages.
+    pub fn from_bytes(name: &Path, bytes: Vec<u8>) -> Result<Capture, CaptureError> {
+        let len = bytes.len() as u64;
+        Capture::from_source(name, Box::new(io::Cursor::new(bytes)), len)
+    }
+
+    fn from_source(
+        path: &Path,
+        source: Box<dyn Source>,
+        file_len: u64,
+    ) -> Result<Capture, CaptureError> {
+        let mut reader = BufReader::with_capacity(HEADER_BUFFER, source);
         let h = read_header(&mut reader, file_len).map_err(|e| e.at(path))?;
         let frame_bytes = h.channels * h.format.bytes_per_sample();
-        let frames = h.data_len / frame_bytes as u64;
         let present = file_len.saturating_sub(h.data_offset) / frame_bytes as u64;
+        let unfinished =
+            (matches!(h.data_len, 0 | 0xFFFF_FFFF) && present > 0).then_some(h.data_len as u32);
+        let frames = match unfinished {
+            Some(_) => present,
+            None => h.data_len / frame_bytes as u64,
+        };
         Ok(Capture {
             path: path.to_path_buf(),
             reader,
@@ -291,6 +351,75 @@ impl Capture {
             scratch: Vec::new(),
             pending_io: None,
             truncated: false,
+            end_at_cut: false,
+            unfinished,
+        })
+    }
+
+    /// From now on, a data chunk cut short ends the data ([`Capture::read_frames`] returns 0)
+    /// instead of returning [`CaptureError::Truncated`]; [`Capture::cut`] tells where.
+    pub fn end_at_cut(&mut self) {
+        self.end_at_cut = true;
+    }
+
+    /// Where the data stopped short of the declared length, once the reading got there.
+    pub fn cut(&self) -> Option<Cut> {
+        self.truncated.then_some(Cut {
+            frame: self.position,
+            declared: self.frames,
+        })
+    }
+
+    /// The data chunk length an unfinished header declared (0 or 0xFFFFFFFF), when the
+    /// samples were read to the end of the file instead (see the module documentation).
+    pub fn unfinished_header(&self) -> Option<u32> {
+        self.unfinished
+    }
+
+    /// True if the capture may end where the recorder stopped abruptly: a truncated data
+    /// chunk or an unfinished header. Known at open for both.
+    pub fn ends_abruptly(&self) -> bool {
+        self.frames_in_file < self.frames || self.unfinished.is_some()
+    }
+
+    /// A one-line warning about an abrupt end, naming the file and the last frame read, or
+    /// `None` for a capture read as its header declared.
+    pub fn abrupt_end_warning(&self) -> Option<String> {
+        let path = self.path.display();
+        if let Some(c) = self.cut() {
+            Some(format!(
+                "{path}: truncated capture: the data chunk declares {} frames but the file ends \
+                 after frame {}; results up to the cut were kept, the last window is flagged \
+                 capture_cut",
+                c.declared, c.frame
+            ))
+        } else {
+            self.unfinished.map(|d| {
+                format!(
+                    "{path}: unfinished WAV header (data chunk length 0x{d:08X}): read {} frames \
+                     to the end of the file; the last window is flagged capture_cut",
+                    self.position
+                )
+            })
+        }
+    }
+
+    /// The error a strict caller returns for an abrupt end (see [`Capture::ends_abruptly`]).
+    pub fn abrupt_end_error(&self) -> Option<CaptureError> {
+        if let Some(c) = self.cut() {
+            return Some(CaptureError::Truncated {
+                path: self.path.clone(),
+                frame: c.frame,
+                declared: c.declared,
+            });
+        }
+        self.unfinished.map(|d| CaptureError::Malformed {
+            path: self.path.clone(),
+            reason: format!(
+                "unfinished header: the data chunk declares 0x{d:08X} bytes ({} frames were read \
+                 to the end of the file)",
+                self.position
+            ),
         })
     }
 
@@ -354,6 +483,9 @@ impl Capture {
             });
         }
         if self.truncated {
+            if self.end_at_cut {
+                return Ok(0);
+            }
             return Err(self.truncation());
         }
         let left = self.frames - self.position;
@@ -470,7 +602,7 @@ fn fourcc(b: &[u8]) -> String {
 }
 
 /// Walks the RIFF chunks up to the data chunk; leaves `r` at the first data byte.
-fn read_header(r: &mut BufReader<File>, file_len: u64) -> Result<Header, HeaderError> {
+fn read_header(r: &mut BufReader<Box<dyn Source>>, file_len: u64) -> Result<Header, HeaderError> {
     let mut riff = [0u8; 12];
     let (n, err) = read_full(r, &mut riff);
     if let Some(e) = err {
@@ -1066,7 +1198,7 @@ mod tests {
         let p = files.write("nodata.wav", &wav(&fmt, &[], None));
         let mut c = Capture::open(&p).unwrap();
         assert_eq!(c.frames(), 0);
-        assert_eq!(read_all(&mut c, 10).unwrap(), vec![]);
+        assert_eq!(read_all(&mut c, 10).unwrap(), Vec::<i16>::new());
     }
 
     #[test]

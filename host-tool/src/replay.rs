@@ -1,17 +1,25 @@
 //! `frothline replay`: a recorded capture through the same core the device runs.
 //!
-//! Output files are written under a `.partial` name and renamed only when the whole capture
-//! went through, so a failed run never leaves a file that looks complete.
+//! Output files are written as one set ([`crate::output_set`]): staged, then renamed into
+//! place with a manifest only when the whole capture went through, so a failed run leaves
+//! the folder as it was. The summary comes from running totals ([`crate::run_summary`]):
+//! memory does not grow with the number of windows.
+//!
+//! A capture that stopped abruptly (a truncated data chunk, an unfinished header) is read to
+//! where it stops: the results up to there are written, the last window is flagged
+//! `capture_cut`, a warning names the file and the frame, and `--strict` turns it into a
+//! failure (exit 2, after the files are written).
 
-use crate::capture::Capture;
+use crate::capture::{Capture, CaptureError};
 use crate::error::{write_err, HostError};
 use crate::layout::Layout;
+use crate::output_set::{Committed, OutputSet};
 use crate::rig::HostRecord as ProbeWindow;
 use crate::rig::{chain_config, HostChain, MAX_PROBES};
+use crate::run_summary::RunTotals;
 use crate::window_spec::WindowSpec;
 use crate::windows_csv::{ProbeMeta, WindowsCsv};
 use indicatif::{ProgressBar, ProgressStyle};
-use std::fs::File;
 use std::io::BufWriter;
 use std::path::{Path, PathBuf};
 
@@ -40,6 +48,22 @@ pub struct ReplayArgs {
     /// No progress bar and no summary table.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Fail (exit 2) when the capture stopped abruptly (truncated, or a header its recorder
+    /// never finished). Without it, the results up to the cut are written with a warning and
+    /// the last window is flagged `capture_cut`. The files are written either way.
+    #[arg(long)]
+    pub strict: bool,
+}
+
+/// Whether a replay hands back every record ([`run`], for tests and tools that compare
+/// records) or only running totals ([`run_with`] with `TotalsOnly`, the command line: memory
+/// flat in the length of the capture).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Keep {
+    /// Keep every record in [`ReplayReport::records`].
+    Records,
+    /// Keep only [`ReplayReport::totals`].
+    TotalsOnly,
 }
 
 /// What a replay produced, for the summary and for tests.
@@ -51,10 +75,16 @@ pub struct ReplayReport {
     pub sample_rate: u32,
     /// Frames read.
     pub frames: u64,
-    /// Every record, in the order the chain gave them.
+    /// Every record, in the order the chain gave them (empty under [`Keep::TotalsOnly`]).
     pub records: Vec<ProbeWindow>,
+    /// Running totals per probe.
+    pub totals: RunTotals,
     /// The windows.csv written.
     pub windows_csv: PathBuf,
+    /// The warning about a capture that stopped abruptly, if it did.
+    pub abrupt_end: Option<String>,
+    /// What the run replaced in the output folder.
+    pub committed: Committed,
 }
 
 /// Layout probes as CSV row metadata.
@@ -77,7 +107,9 @@ pub fn open_rig(
     window: WindowSpec,
 ) -> Result<(Capture, Layout, Box<HostChain>), HostError> {
     let layout_doc = Layout::load(layout)?;
-    let cap = Capture::open(capture)?;
+    let mut cap = Capture::open(capture)?;
+    require_frames(&cap)?;
+    cap.end_at_cut();
     layout_doc.check_channels(cap.channels(), layout)?;
     if layout_doc.probes.len() > MAX_PROBES {
         return Err(HostError::Usage(format!(
@@ -102,6 +134,27 @@ pub fn open_rig(
         source,
     })?;
     Ok((cap, layout_doc, Box::new(chain)))
+}
+
+/// A capture with no complete frame is refused: there is nothing to replay, and a summary
+/// of no samples would be all NaN.
+pub fn require_frames(cap: &Capture) -> Result<(), HostError> {
+    if cap.frames_in_file() == 0 {
+        return Err(CaptureError::NoFrames {
+            path: cap.path().to_path_buf(),
+            channels: cap.channels(),
+        }
+        .into());
+    }
+    Ok(())
+}
+
+/// Raises [`Flags::CAPTURE_CUT`](frothline_core::Flags::CAPTURE_CUT) on the records that
+/// reach the last frame of a capture that stopped abruptly.
+pub fn mark_cut(r: &mut ProbeWindow, abrupt: bool, last_frame: u64) {
+    if abrupt && r.end >= last_frame {
+        r.flags |= frothline_core::Flags::CAPTURE_CUT;
+    }
 }
 
 /// Push every frame of `cap` through `chain`, handing each record to `sink`.
@@ -300,32 +353,39 @@ fn progress_bar(frames: u64, quiet: bool) -> ProgressBar {
     bar
 }
 
-/// Run a replay and write its files.
+/// Run a replay and write its files, keeping every record (see [`Keep`]).
 pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
+    run_with(args, Keep::Records)
+}
+
+/// Run a replay and write its files.
+pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError> {
     // Transient layouts (surge fronts): one station chain per station, front-relative
     // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::transient`).
     if crate::transient::is_transient(&Layout::load(&args.layout)?) {
         return crate::transient::run(args).map(|(_, report)| report);
     }
     let (mut cap, layout, chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
-    std::fs::create_dir_all(&args.out).map_err(write_err(&args.out))?;
-    let final_path = args.out.join("windows.csv");
-    let partial = args.out.join("windows.csv.partial");
-    let file = File::create(&partial).map_err(write_err(&partial))?;
+    let set = OutputSet::begin(&args.out)?;
+    let staged = set.staged("windows.csv");
+    let file = set.create("windows.csv")?;
     let csv_err = |e: csv::Error| HostError::Write {
-        path: partial.clone(),
+        path: staged.clone(),
         source: e.into(),
     };
     let mut csv = WindowsCsv::new(BufWriter::new(file)).map_err(csv_err)?;
     let meta = probe_meta(&layout);
     let spacing: Vec<Option<f64>> = layout.probes.iter().map(|p| p.tip_spacing_mm).collect();
     let fs = cap.sample_rate();
-    let bar = progress_bar(cap.frames(), args.quiet);
+    let bar = progress_bar(cap.frames_in_file(), args.quiet);
     let mut records = Vec::new();
+    let mut totals = RunTotals::new(layout.probes.len());
+    let (abrupt, last_frame) = (cap.ends_abruptly(), cap.frames_in_file());
     let workers = std::thread::available_parallelism()
         .map_or(1, |n| n.get())
         .min(4);
-    let result = drive_parallel(&mut cap, chain, workers, &bar, |r| {
+    let result = drive_parallel(&mut cap, chain, workers, &bar, |mut r| {
+        mark_cut(&mut r, abrupt, last_frame);
         csv.write(
             &r,
             &meta[r.probe as usize],
@@ -334,29 +394,40 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
             spacing[r.probe as usize],
         )
         .map_err(csv_err)?;
-        records.push(r);
+        totals.add(&r);
+        if keep == Keep::Records {
+            records.push(r);
+        }
         Ok(())
     });
     bar.finish_and_clear();
-    let frames = match result {
-        Ok(f) => f,
-        Err(e) => {
-            drop(csv);
-            let _ = std::fs::remove_file(&partial);
-            return Err(e);
-        }
-    };
-    csv.finish().map_err(write_err(&partial))?;
-    std::fs::rename(&partial, &final_path).map_err(write_err(&final_path))?;
+    let frames = result?;
+    csv.finish().map_err(write_err(&staged))?;
+    let committed = set.commit(
+        &["windows.csv"],
+        &[("capture", &args.capture), ("layout", &args.layout)],
+    )?;
+    let abrupt_end = cap.abrupt_end_warning();
     let report = ReplayReport {
         layout,
         sample_rate: fs,
         frames,
         records,
-        windows_csv: final_path,
+        totals,
+        windows_csv: args.out.join("windows.csv"),
+        abrupt_end,
+        committed,
     };
+    if let Some(w) = &report.abrupt_end {
+        eprintln!("warning: {w}");
+    }
     if !args.quiet {
         crate::stdout::print(&summary_table(&report));
+    }
+    if args.strict {
+        if let Some(e) = cap.abrupt_end_error() {
+            return Err(e.into());
+        }
     }
     Ok(report)
 }
@@ -368,48 +439,37 @@ pub fn summary_table(r: &ReplayReport) -> String {
     let secs = r.frames as f64 / r.sample_rate.max(1) as f64;
     let _ = writeln!(
         s,
-        "{} frames at {} Hz ({secs:.2} s), {} windows -> {}",
+        "{} frames at {} Hz ({secs:.2} s), {} -> {}",
         r.frames,
         r.sample_rate,
-        r.records.len(),
+        r.totals.windows_phrase(),
         r.windows_csv.display()
     );
+    if let Some(note) = r.committed.note() {
+        let _ = writeln!(s, "{note}");
+    }
     let _ = writeln!(
         s,
         "{:<10} {:>8} {:>7} {:>8} {:>10} {:>12} {:>8}  flags",
         "probe", "y [mm]", "windows", "C [-]", "F [Hz]", "chord [ms]", "bubbles"
     );
+    let empty = crate::run_summary::ProbeTotals::default();
     for (i, p) in r.layout.probes.iter().enumerate() {
-        let recs: Vec<&ProbeWindow> = r.records.iter().filter(|w| w.probe as usize == i).collect();
-        let frames: u64 = recs.iter().map(|w| w.lead.frames).sum();
-        let air: u64 = recs.iter().map(|w| w.lead.air_frames).sum();
-        let bubbles: u64 = recs.iter().map(|w| w.lead.bubbles as u64).sum();
-        let mut chords = frothline_core::chord::ChordStats::new();
-        let mut flags = frothline_core::Flags::NONE;
-        for w in &recs {
-            chords.merge(&w.lead.bubble_chords);
-            flags |= w.flags;
-        }
-        let c = if frames > 0 {
-            air as f64 / frames as f64
-        } else {
-            f64::NAN
-        };
-        let f = if frames > 0 {
-            bubbles as f64 * r.sample_rate as f64 / frames as f64
-        } else {
-            f64::NAN
-        };
-        let chord = chords
+        let t = r.totals.probes.get(i).unwrap_or(&empty);
+        let c = t.void_fraction().unwrap_or(f64::NAN);
+        let f = t.bubble_count_rate(r.sample_rate).unwrap_or(f64::NAN);
+        let chord = t
+            .chords
             .median()
             .map_or(f64::NAN, |m| m as f64 * 1e3 / r.sample_rate as f64);
+        let (flags, windows, bubbles) = (t.flags, t.windows, t.bubbles);
         let names: Vec<&str> = flags.names().collect();
         let _ = writeln!(
             s,
             "{:<10} {:>8.1} {:>7} {:>8.4} {:>10.1} {:>12.3} {:>8}  {}",
             p.name,
             p.elevation_mm,
-            recs.len(),
+            windows,
             c,
             f,
             chord,

@@ -23,6 +23,7 @@ use crate::capture::Capture;
 use crate::error::{write_err, HostError};
 use crate::hydraulics;
 use crate::layout::{Layout, Phase};
+use crate::output_set::{Committed, OutputSet};
 use crate::replay::{probe_meta, ReplayArgs, ReplayReport};
 use crate::rig::{chain_config, Counts, FullRecord, HostRecord, ToCounts, HOST_LAGS, MAX_PROBES};
 use crate::window_spec::WindowSpec;
@@ -431,10 +432,29 @@ pub fn replay_capture(
     window: &WindowSpec,
     full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
 ) -> Result<TransientRun, HostError> {
+    replay_capture_to_cut(capture, layout_path, window, full).map(|(run, _)| run)
+}
+
+/// Like [`replay_capture`], reading a capture that stopped abruptly up to where it stops:
+/// the windows reaching its last frame are flagged `capture_cut`, and the open capture is
+/// handed back for its warning ([`Capture::abrupt_end_warning`]).
+pub fn replay_capture_to_cut(
+    capture: &Path,
+    layout_path: &Path,
+    window: &WindowSpec,
+    full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
+) -> Result<(TransientRun, Capture), HostError> {
     let layout = Layout::load(layout_path)?;
     let mut cap = Capture::open(capture)?;
+    crate::replay::require_frames(&cap)?;
+    cap.end_at_cut();
     layout.check_channels(cap.channels(), layout_path)?;
-    replay_open(&mut cap, &layout, layout_path, window, full)
+    let mut run = replay_open(&mut cap, &layout, layout_path, window, full)?;
+    let (abrupt, last) = (cap.ends_abruptly(), cap.position());
+    for w in &mut run.windows {
+        crate::replay::mark_cut(w, abrupt, last);
+    }
+    Ok((run, cap))
 }
 
 fn replay_open(
@@ -813,34 +833,48 @@ pub struct TransientFiles {
     pub flow: PathBuf,
 }
 
-fn write_csv(path: &Path, header: &[&str], rows: &[Vec<String>]) -> Result<(), HostError> {
-    let partial = path.with_extension("csv.partial");
+fn write_csv(
+    set: &OutputSet,
+    name: &str,
+    header: &[&str],
+    rows: &[Vec<String>],
+) -> Result<(), HostError> {
+    let staged = set.staged(name);
     let err = |e: csv::Error| HostError::Write {
-        path: partial.clone(),
+        path: staged.clone(),
         source: e.into(),
     };
-    let mut w = csv::Writer::from_path(&partial).map_err(err)?;
+    let mut w = csv::Writer::from_writer(set.create(name)?);
     w.write_record(header).map_err(err)?;
     for r in rows {
         w.write_record(r).map_err(err)?;
     }
-    w.flush().map_err(write_err(&partial))?;
-    drop(w);
-    std::fs::rename(&partial, path).map_err(write_err(path))
+    w.flush().map_err(write_err(&staged))
 }
 
-/// Write windows.csv, profile.csv, fronts.csv, stations.csv and flow.json into `dir`.
+/// Write windows.csv, profile.csv, fronts.csv, stations.csv and flow.json into `dir`, as one
+/// set ([`OutputSet`]): all of them, or the folder as it was.
 pub fn write_outputs(
     run: &TransientRun,
     dir: &Path,
     description: &str,
 ) -> Result<TransientFiles, HostError> {
-    std::fs::create_dir_all(dir).map_err(write_err(dir))?;
-    let windows = dir.join("windows.csv");
-    let partial = dir.join("windows.csv.partial");
-    let file = std::fs::File::create(&partial).map_err(write_err(&partial))?;
+    write_output_set(run, dir, description, &[]).map(|(files, _)| files)
+}
+
+/// [`write_outputs`], recording `inputs` (role, path) in the manifest, and telling what the
+/// set replaced.
+pub fn write_output_set(
+    run: &TransientRun,
+    dir: &Path,
+    description: &str,
+    inputs: &[(&str, &Path)],
+) -> Result<(TransientFiles, Committed), HostError> {
+    let set = OutputSet::begin(dir)?;
+    let staged = set.staged("windows.csv");
+    let file = set.create("windows.csv")?;
     let csv_err = |e: csv::Error| HostError::Write {
-        path: partial.clone(),
+        path: staged.clone(),
         source: e.into(),
     };
     let mut csv = WindowsCsv::new(std::io::BufWriter::new(file)).map_err(csv_err)?;
@@ -857,29 +891,36 @@ pub fn write_outputs(
         )
         .map_err(csv_err)?;
     }
-    csv.finish().map_err(write_err(&partial))?;
-    std::fs::rename(&partial, &windows).map_err(write_err(&windows))?;
+    csv.finish().map_err(write_err(&staged))?;
 
-    let profile = dir.join("profile.csv");
     let rows: Vec<Vec<String>> = run
         .profiles
         .iter()
         .map(|(s, p)| run.profile_row(*s, p))
         .collect();
-    write_csv(&profile, PROFILE_COLUMNS, &rows)?;
-    let fronts = dir.join("fronts.csv");
-    write_csv(&fronts, FRONT_COLUMNS, &run.front_rows())?;
-    let stations = dir.join("stations.csv");
-    write_csv(&stations, STATION_COLUMNS, &run.station_rows())?;
-    let flow = dir.join("flow.json");
+    write_csv(&set, "profile.csv", PROFILE_COLUMNS, &rows)?;
+    write_csv(&set, "fronts.csv", FRONT_COLUMNS, &run.front_rows())?;
+    write_csv(&set, "stations.csv", STATION_COLUMNS, &run.station_rows())?;
+    let flow = set.staged("flow.json");
     std::fs::write(&flow, flow_indicators(run).to_json(description)).map_err(write_err(&flow))?;
-    Ok(TransientFiles {
-        windows,
-        profile,
-        fronts,
-        stations,
-        flow,
-    })
+    let names = [
+        "windows.csv",
+        "profile.csv",
+        "fronts.csv",
+        "stations.csv",
+        "flow.json",
+    ];
+    let committed = set.commit(&names, inputs)?;
+    Ok((
+        TransientFiles {
+            windows: dir.join("windows.csv"),
+            profile: dir.join("profile.csv"),
+            fronts: dir.join("fronts.csv"),
+            stations: dir.join("stations.csv"),
+            flow: dir.join("flow.json"),
+        },
+        committed,
+    ))
 }
 
 /// The replay summary of a transient run.
@@ -1025,7 +1066,7 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
 
 /// `frothline replay` of a transient layout: replay, write the files, print the summary.
 pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError> {
-    let run = replay_capture(&args.capture, &args.layout, &args.window, None)?;
+    let (run, cap) = replay_capture_to_cut(&args.capture, &args.layout, &args.window, None)?;
     let name = |p: &Path| {
         p.file_name().map_or_else(
             || p.display().to_string(),
@@ -1037,17 +1078,39 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
         name(&args.capture),
         name(&args.layout)
     );
-    let files = write_outputs(&run, &args.out, &description)?;
+    let (files, committed) = write_output_set(
+        &run,
+        &args.out,
+        &description,
+        &[("capture", &args.capture), ("layout", &args.layout)],
+    )?;
+    let abrupt_end = cap.abrupt_end_warning();
+    if let Some(w) = &abrupt_end {
+        eprintln!("warning: {w}");
+    }
     if !args.quiet {
-        crate::stdout::print(&summary(&run, Some(&files)));
+        let mut text = summary(&run, Some(&files));
+        if let Some(note) = committed.note() {
+            text.push_str(&note);
+            text.push('\n');
+        }
+        crate::stdout::print(&text);
     }
     let report = ReplayReport {
         layout: run.layout.clone(),
         sample_rate: run.sample_rate,
         frames: run.frames,
         records: run.windows.clone(),
+        totals: crate::run_summary::RunTotals::of(run.layout.probes.len(), &run.windows),
         windows_csv: files.windows.clone(),
+        abrupt_end,
+        committed,
     };
+    if args.strict {
+        if let Some(e) = cap.abrupt_end_error() {
+            return Err(e.into());
+        }
+    }
     Ok((run, report))
 }
 

@@ -54,6 +54,7 @@ fn kill_9() {
         out: tmp.path().join("replay"),
         window: window.clone(),
         quiet: true,
+        strict: false,
     })
     .unwrap();
     let expected: Vec<WindowResult> = replay

@@ -84,6 +84,7 @@ fn run() -> Result<(), String> {
         out: tmp.clone(),
         window,
         quiet: true,
+        strict: false,
     })
     .map_err(|e| e.to_string())?;
     let _ = std::fs::remove_dir_all(&tmp);
@@ -510,6 +511,7 @@ fn host_results(
         out: tmp.clone(),
         window,
         quiet: true,
+        strict: false,
     })
     .map_err(|e| e.to_string())?;
     let _ = std::fs::remove_dir_all(&tmp);
