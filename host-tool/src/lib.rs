@@ -36,6 +36,7 @@ pub mod report;
 pub mod rig;
 pub mod run_summary;
 pub mod session;
+pub mod session_time;
 pub mod stdout;
 pub mod synth;
 pub mod transient;
