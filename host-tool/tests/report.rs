@@ -442,3 +442,31 @@ fn write_example_reports() {
         println!("{s}");
     }
 }
+
+/// A chord cell of 1e307 s (which used to hang the chord figure, its axis searching ticks
+/// up to infinity) is refused, naming the file, the line and the column.
+#[test]
+fn a_chord_cell_of_1e307_is_refused_naming_the_cell() {
+    for col in [
+        "bubble_chord_mean_s",
+        "bubble_chord_median_s",
+        "bubble_chord_p10_s",
+        "bubble_chord_p90_s",
+    ] {
+        let text = example("windows.csv");
+        let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+        let header: Vec<&str> = lines[0].split(',').collect();
+        let i = header.iter().position(|h| *h == col).unwrap();
+        let mut cells: Vec<String> = lines[3].split(',').map(str::to_string).collect();
+        cells[i] = "1e307".into();
+        lines[3] = cells.join(",");
+        let dir = scratch(&[("windows.csv", lines.join("\n") + "\n")]);
+        let mut args = ReportArgs::new(dir.path());
+        args.out = Some(dir.path().join("out"));
+        let e = run(&args).unwrap_err().to_string();
+        assert!(
+            e.contains("windows.csv") && e.contains("line 4") && e.contains(col),
+            "{e}"
+        );
+    }
+}

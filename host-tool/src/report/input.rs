@@ -322,7 +322,13 @@ fn text(rec: &csv::StringRecord, col: Option<usize>) -> &str {
     col.and_then(|i| rec.get(i)).unwrap_or("")
 }
 
-/// A number cell: empty, `NaN` and infinities read as "not computed".
+/// Largest magnitude a number cell may hold. No quantity of these files comes near it
+/// (seconds, hertz, metres per second, millimetres, counts of one run); beyond it a value
+/// is damage, and axis arithmetic on it would overflow.
+pub const MAX_CELL_MAGNITUDE: f64 = 1e12;
+
+/// A number cell: empty, `NaN` and infinities read as "not computed"; a finite value beyond
+/// [`MAX_CELL_MAGNITUDE`] is an error naming the column.
 fn num(
     rec: &csv::StringRecord,
     col: Option<usize>,
@@ -333,7 +339,14 @@ fn num(
         return Ok(None);
     }
     match cell.parse::<f64>() {
-        Ok(v) if v.is_finite() => Ok(Some(v)),
+        Ok(v) if v.is_finite() && v.abs() <= MAX_CELL_MAGNITUDE => Ok(Some(v)),
+        Ok(v) if v.is_finite() => {
+            let name = col.and_then(|i| headers.get(i)).map_or("?", |s| s.as_str());
+            Err(format!(
+                "column `{name}`: `{cell}` is beyond ±{MAX_CELL_MAGNITUDE:e}: not a measured \
+                 value (a damaged file?)"
+            ))
+        }
         Ok(_) => Ok(None),
         Err(_) => {
             let name = col.and_then(|i| headers.get(i)).map_or("?", |s| s.as_str());
