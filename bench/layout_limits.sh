@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # How fast oversized layouts are refused: a 10 MB layout (refused by its size before it is
-# read) and layouts of 1024 and 1025 probes (the first validated in full, the second refused
-# by its probe count before its probes are checked), each through `frothline replay`.
+# read), a layout of 10 000 probes just under the size limit and one of 1025 (refused by
+# their probe count before their probes are checked) and one of 1024 probes (validated in
+# full, then refused on the one-channel capture), each through `frothline replay`.
 # Prints the wall time of each, measured in this one run.
 # Usage: bash bench/layout_limits.sh
 set -euo pipefail
@@ -19,7 +20,7 @@ def layout(n):
         parts.append(f'\n[[probe]]\nname = "P{i}"\nelevation_mm = 10.0\nleading = {2*i}\n'
                      f'trailing = {2*i+1}\ntip_spacing_mm = 5.0\n')
     return ''.join(parts)
-for n in (1024, 1025):
+for n in (1024, 1025, 10000):
     open(os.path.join(out, f'probes-{n}.toml'), 'w').write(layout(n))
 big = layout(1)
 big += '# ' + 'x' * 78 + '\n'
@@ -36,7 +37,7 @@ hdr = b'RIFF' + struct.pack('<I', 36 + len(data)) + b'WAVEfmt ' + struct.pack('<
 open(sys.argv[1], 'wb').write(hdr + b'data' + struct.pack('<I', len(data)) + data)
 PY
 fi
-for f in ten-mb.toml probes-1025.toml probes-1024.toml; do
+for f in ten-mb.toml probes-10000.toml probes-1025.toml probes-1024.toml; do
     size=$(stat -c %s "$out/$f")
     t0=$(date +%s.%N)
     msg=$("$bin" replay "$out/one.wav" --layout "$out/$f" --out "$out/replay" --quiet 2>&1 || true)

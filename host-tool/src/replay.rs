@@ -25,6 +25,21 @@ use std::path::{Path, PathBuf};
 
 /// Frames read from the capture per block.
 const BLOCK_FRAMES: usize = 1 << 15;
+/// Windows per block at most in the parallel driver: the records of a block travel from the
+/// workers to the writer together, so short windows get shorter blocks and the records in
+/// flight stay a few megabytes whatever the window length.
+const WINDOWS_PER_BLOCK: usize = 256;
+
+/// Frames per block for `policy` (results do not depend on it: the core's records do not
+/// depend on how samples are split into pushes).
+fn block_frames(policy: &frothline_core::WindowPolicy) -> usize {
+    match policy {
+        frothline_core::WindowPolicy::Frames(n) => (*n as usize)
+            .saturating_mul(WINDOWS_PER_BLOCK)
+            .clamp(1024, BLOCK_FRAMES),
+        _ => BLOCK_FRAMES,
+    }
+}
 
 /// Arguments of `frothline replay`.
 #[derive(clap::Args, Debug, Clone)]
@@ -304,10 +319,11 @@ pub fn drive_parallel(
                 *last_start.iter().min().unwrap_or(&0)
             };
         let mut frames = 0u64;
-        let mut buf = Vec::with_capacity(BLOCK_FRAMES * cap.channels());
+        let block_frames = block_frames(&cfg.window);
+        let mut buf = Vec::with_capacity(block_frames * cap.channels());
         let result: Result<(), HostError> = (|| {
             loop {
-                let n = cap.read_frames(&mut buf, BLOCK_FRAMES)?;
+                let n = cap.read_frames(&mut buf, block_frames)?;
                 if n == 0 {
                     break;
                 }
@@ -317,7 +333,7 @@ pub fn drive_parallel(
                     let _ = tx.send(Arc::clone(&block));
                 }
                 buf = Arc::try_unwrap(block)
-                    .unwrap_or_else(|_| Vec::with_capacity(BLOCK_FRAMES * cap.channels()));
+                    .unwrap_or_else(|_| Vec::with_capacity(block_frames * cap.channels()));
                 while let Ok((w, recs)) = rec_rx.try_recv() {
                     let upto = take(w, recs, &mut pending);
                     flush(&mut pending, upto)?;
