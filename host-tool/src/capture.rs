@@ -589,7 +589,13 @@ fn u32_at(b: &[u8], i: usize) -> u32 {
     u32::from_le_bytes([b[i], b[i + 1], b[i + 2], b[i + 3]])
 }
 
+/// A chunk id for messages: its text when printable, else its bytes in hex (an all-zero
+/// file starts with `00 00 00 00`, not `????`).
 fn fourcc(b: &[u8]) -> String {
+    if !b.iter().all(|&c| c.is_ascii_graphic() || c == b' ') {
+        let hex: Vec<String> = b.iter().map(|c| format!("{c:02X}")).collect();
+        return format!("bytes {}", hex.join(" "));
+    }
     b.iter()
         .map(|&c| {
             if c.is_ascii_graphic() || c == b' ' {
@@ -599,6 +605,16 @@ fn fourcc(b: &[u8]) -> String {
             }
         })
         .collect()
+}
+
+/// [`fourcc`] in quotes when it is text.
+fn quoted_id(b: &[u8]) -> String {
+    let id = fourcc(b);
+    if id.starts_with("bytes ") {
+        id
+    } else {
+        format!("\"{id}\"")
+    }
 }
 
 /// Walks the RIFF chunks up to the data chunk; leaves `r` at the first data byte.
@@ -624,9 +640,9 @@ fn read_header(r: &mut BufReader<Box<dyn Source>>, file_len: u64) -> Result<Head
         let what = if n < 12 {
             format!("only {n} bytes long")
         } else if &riff[..4] != b"RIFF" {
-            format!("starts with \"{}\" instead of \"RIFF\"", fourcc(&riff[..4]))
+            format!("starts with {} instead of \"RIFF\"", quoted_id(&riff[..4]))
         } else {
-            format!("RIFF type \"{}\" instead of \"WAVE\"", fourcc(&riff[8..12]))
+            format!("RIFF type {} instead of \"WAVE\"", quoted_id(&riff[8..12]))
         };
         return Err(HeaderError::NotWav(what));
     }
@@ -691,9 +707,9 @@ fn read_header(r: &mut BufReader<Box<dyn Source>>, file_len: u64) -> Result<Head
                 let skip = u64::from(len) + u64::from(len & 1);
                 if pos + skip > file_len {
                     return Err(HeaderError::Malformed(format!(
-                        "chunk \"{}\" of {len} bytes runs past the end of the file, before any \
+                        "chunk {} of {len} bytes runs past the end of the file, before any \
                          data chunk",
-                        fourcc(id)
+                        quoted_id(id)
                     )));
                 }
                 r.seek_relative(skip as i64)?;
@@ -1139,6 +1155,11 @@ mod tests {
         let e = open_err(&files, "text.wav", b"name,value\nA,1\n");
         assert!(
             matches!(e, CaptureError::NotWav { .. }) && e.to_string().contains("RIFF"),
+            "{e}"
+        );
+        let e = open_err(&files, "zeros.wav", &[0u8; 64]);
+        assert!(
+            e.to_string().contains("starts with bytes 00 00 00 00") && !e.to_string().contains('?'),
             "{e}"
         );
         let e = open_err(&files, "avi.wav", b"RIFF\x10\0\0\0AVI LIST\0\0\0\0");
