@@ -204,3 +204,14 @@ fn replay_totals_only_matches_the_records_it_no_longer_keeps() {
         lean_text.replace(note, "")
     );
 }
+
+#[test]
+fn a_capture_wider_than_64_channels_is_refused_with_its_true_count() {
+    let c = Case::new(&wav_bytes(300, 10));
+    let e = replay(&c.args(false)).unwrap_err().to_string();
+    assert!(
+        e.contains("capture.wav") && e.contains("300 channels") && e.contains("at most 64"),
+        "{e}"
+    );
+    assert!(!e.contains("layout.toml"), "{e}");
+}

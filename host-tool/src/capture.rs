@@ -186,6 +186,20 @@ pub enum CaptureError {
         /// Channels declared.
         channels: usize,
     },
+    /// More channels than the core's chain takes.
+    #[error(
+        "{}: {channels} channels: the host replays captures of at most {max} channels \
+         (one chain reads every channel of a frame); export only the channels the layout uses",
+        path.display()
+    )]
+    TooManyChannels {
+        /// The capture file.
+        path: PathBuf,
+        /// Channels in the capture.
+        channels: usize,
+        /// Most channels read.
+        max: usize,
+    },
     /// The data chunk declares more frames than the file holds.
     #[error(
         "{}: truncated capture: the data chunk declares {declared} frames but the file ends \
@@ -212,6 +226,7 @@ impl CaptureError {
             | CaptureError::Unsupported { path, .. }
             | CaptureError::ZeroChannels { path }
             | CaptureError::NoFrames { path, .. }
+            | CaptureError::TooManyChannels { path, .. }
             | CaptureError::Truncated { path, .. } => path,
         }
     }

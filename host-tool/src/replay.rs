@@ -153,7 +153,18 @@ pub fn open_rig(
 
 /// A capture with no complete frame is refused: there is nothing to replay, and a summary
 /// of no samples would be all NaN.
+///
+/// A capture wider than the core's [`MAX_CHANNELS`](frothline_core::MAX_CHANNELS) is
+/// refused here too, naming the capture and its true channel count.
 pub fn require_frames(cap: &Capture) -> Result<(), HostError> {
+    if cap.channels() > frothline_core::MAX_CHANNELS {
+        return Err(CaptureError::TooManyChannels {
+            path: cap.path().to_path_buf(),
+            channels: cap.channels(),
+            max: frothline_core::MAX_CHANNELS,
+        }
+        .into());
+    }
     if cap.frames_in_file() == 0 {
         return Err(CaptureError::NoFrames {
             path: cap.path().to_path_buf(),

@@ -81,3 +81,18 @@ fn out_naming_a_file_is_refused_in_plain_words() {
     assert!(err.contains("not a folder"), "{err}");
     assert_eq!(std::fs::read_to_string(&file).unwrap(), "x");
 }
+
+/// `synth --probes 17` would write a capture `replay` refuses: it is refused first.
+#[test]
+fn synth_refuses_more_probes_than_replay_runs() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = frothline()
+        .args(["synth", "--probes", "17", "--duration", "0.1", "--out"])
+        .arg(dir.path().join("s"))
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("--probes") && err.contains("16"), "{err}");
+    assert!(!dir.path().join("s/capture.wav").exists());
+}
