@@ -215,3 +215,43 @@ fn a_capture_wider_than_64_channels_is_refused_with_its_true_count() {
     );
     assert!(!e.contains("layout.toml"), "{e}");
 }
+
+/// The surge fixture with its two stations' x_mm swapped: the front reaches the station
+/// listed downstream first, a negative celerity, flagged in stations.csv and the summary.
+#[test]
+fn stations_in_the_wrong_order_are_flagged() {
+    let fx = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/surge-b2");
+    let dir = tempfile::tempdir().unwrap();
+    let text = fs::read_to_string(fx.join("layout.toml"))
+        .unwrap()
+        .replace("x_mm = 0.0", "x_mm = TMP")
+        .replace("x_mm = 600.0", "x_mm = 0.0")
+        .replace("x_mm = TMP", "x_mm = 600.0");
+    fs::write(dir.path().join("layout.toml"), text).unwrap();
+    let args = ReplayArgs {
+        capture: fx.join("capture.wav"),
+        layout: dir.path().join("layout.toml"),
+        out: dir.path().join("out"),
+        window: "50ms".parse().unwrap(),
+        quiet: true,
+        strict: false,
+    };
+    let (run, _) = big_stack(|| frothline_host::transient::run(&args)).unwrap();
+    assert!(run.celerity_from_previous(1).unwrap() < 0.0);
+    assert!(run.arrived_before_previous(1) && !run.arrived_before_previous(0));
+    let stations = fs::read_to_string(dir.path().join("out/stations.csv")).unwrap();
+    assert!(
+        stations.contains(frothline_host::transient::REVERSED_ARRIVAL),
+        "{stations}"
+    );
+    let text = frothline_host::transient::summary(&run, None);
+    assert!(text.contains("before the one upstream"), "{text}");
+    // The fixture as committed raises no such flag.
+    let args = ReplayArgs {
+        layout: fx.join("layout.toml"),
+        out: dir.path().join("good"),
+        ..args
+    };
+    let (run, _) = big_stack(|| frothline_host::transient::run(&args)).unwrap();
+    assert!(!run.arrived_before_previous(1));
+}

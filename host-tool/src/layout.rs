@@ -63,6 +63,10 @@ pub const MAX_TIP_SPACING_MM: f64 = 1000.0;
 /// Largest |x_mm| accepted, mm (10 km of channel): beyond it a celerity over the stations'
 /// distance means nothing.
 pub const MAX_ABS_X_MM: f64 = 1.0e7;
+/// Probes whose `x_mm` lie within this distance of a station's first probe belong to that
+/// station, mm: probes meant to stand at one streamwise position are set to about a
+/// millimetre (common practice, no source), and 600 and 600.0000001 are one position.
+pub const STATION_TOLERANCE_MM: f64 = 1.0;
 /// Largest elevation accepted, mm (100 m above the bed).
 pub const MAX_ELEVATION_MM: f64 = 1.0e5;
 
@@ -697,8 +701,10 @@ impl Layout {
         Ok(())
     }
 
-    /// Probes grouped into stations (equal `x_mm`), in increasing `x_mm`; within a station the
-    /// probe indices are ordered by increasing elevation (file order on ties).
+    /// Probes grouped into stations, in increasing `x_mm`: a station takes every probe within
+    /// [`STATION_TOLERANCE_MM`] downstream of its first (smallest) `x_mm`, and stands at that
+    /// `x_mm`. Within a station the probe indices are ordered by increasing elevation (file
+    /// order on ties).
     pub fn stations(&self) -> Vec<(f64, Vec<usize>)> {
         let mut order: Vec<usize> = (0..self.probes.len()).collect();
         order.sort_by(|&a, &b| {
@@ -712,9 +718,16 @@ impl Layout {
         for i in order {
             let x = self.probes[i].x_mm;
             match stations.last_mut() {
-                Some((sx, members)) if *sx == x => members.push(i),
+                // Within the tolerance of the station's first (smallest) x_mm.
+                Some((sx, members)) if x - *sx <= STATION_TOLERANCE_MM => members.push(i),
                 _ => stations.push((x, vec![i])),
             }
+        }
+        for (_, members) in &mut stations {
+            members.sort_by(|&a, &b| {
+                let (pa, pb) = (&self.probes[a], &self.probes[b]);
+                pa.elevation_mm.total_cmp(&pb.elevation_mm).then(a.cmp(&b))
+            });
         }
         stations
     }
@@ -1762,6 +1775,31 @@ water_level = 0.6
             assert_eq!(e.key(), Some(key), "{e}");
             assert!(e.location().is_some(), "{e}");
         }
+    }
+
+    #[test]
+    fn probes_within_the_station_tolerance_form_one_station_ordered_by_elevation() {
+        let mut t = layout_of(3);
+        t = t.replacen(
+            "elevation_mm = 10.0",
+            "elevation_mm = 30.0\nx_mm = 600.0000001",
+            1,
+        );
+        t = t.replacen(
+            "elevation_mm = 10.0\n",
+            "elevation_mm = 20.0\nx_mm = 600.0\n",
+            1,
+        );
+        t = t.replacen(
+            "elevation_mm = 10.0\n",
+            "elevation_mm = 5.0\nx_mm = 601.5\n",
+            1,
+        );
+        let l = parse(&t).unwrap();
+        let st = l.stations();
+        assert_eq!(st.len(), 2, "{st:?}");
+        assert_eq!(st[0], (600.0, vec![1, 0]));
+        assert_eq!(st[1], (601.5, vec![2]));
     }
 
     #[test]

@@ -44,6 +44,10 @@ pub const RING_SAMPLES: usize = 1 << 16;
 /// The chain type of one station.
 pub type StationChain = frothline_core::Chain<MAX_PROBES, HOST_LAGS, RING_SAMPLES>;
 
+/// Flag of stations.csv (and the summary) for a station the front reached before the one
+/// upstream of it.
+pub const REVERSED_ARRIVAL: &str = "arrived_before_upstream_station";
+
 /// Default window (slice) length after the front, s.
 pub const DEFAULT_SLICE_S: f64 = 0.05;
 
@@ -551,6 +555,12 @@ impl TransientRun {
         .map(|v| v as f64)
     }
 
+    /// True when the front reached station `s` before the station upstream of it (a
+    /// negative celerity): stations listed in the wrong order, or probes swapped.
+    pub fn arrived_before_previous(&self, s: usize) -> bool {
+        self.celerity_from_previous(s).is_some_and(|c| c < 0.0)
+    }
+
     /// The front celerity over the whole array (first to last station with an arrival).
     pub fn celerity(&self) -> Option<f64> {
         let with: Vec<(usize, u64)> = (0..self.stations.len())
@@ -688,9 +698,12 @@ impl TransientRun {
             .enumerate()
             .map(|(s, info)| {
                 let st = self.station_front(s);
-                let flags: Vec<&str> = st
+                let mut flags: Vec<&str> = st
                     .map(|a| a.front.flags.names().collect())
                     .unwrap_or_default();
+                if self.arrived_before_previous(s) {
+                    flags.push(REVERSED_ARRIVAL);
+                }
                 vec![
                     info.name.clone(),
                     info.x_mm.to_string(),
@@ -978,6 +991,13 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
         }
         if let Some(c) = run.celerity_from_previous(i) {
             let _ = writeln!(s, "  front celerity from the previous station: {c:.3} m/s");
+        }
+        if run.arrived_before_previous(i) {
+            let _ = writeln!(
+                s,
+                "  [{REVERSED_ARRIVAL}] the front reached this station before the one upstream: \
+                 check the x_mm of the stations (or swapped probes)"
+            );
         }
         let slices: Vec<&ProfileRecord> = run
             .profiles
