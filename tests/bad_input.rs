@@ -149,14 +149,18 @@ fn toml_syntax_error_gives_a_line() {
 }
 
 #[test]
-fn truncated_wav_is_an_error_naming_the_file() {
+fn truncated_wav_under_strict_is_an_error_naming_the_file_after_writing_the_results() {
     let c = Case::new(GOOD_LAYOUT, 2);
     let wav = c.p("capture.wav");
     let bytes = fs::read(&wav).unwrap();
     fs::write(&wav, &bytes[..bytes.len() / 2 + 1]).unwrap();
-    let e = c.replay_error();
+    let e = frothline_host::cli::run(c.args(&["--quiet", "--strict"]))
+        .expect_err("--strict fails on a cut capture");
+    assert_eq!(e.exit_code(), 2);
+    let e = e.to_string();
     assert!(e.contains("capture.wav"), "{e}");
     assert!(e.to_lowercase().contains("truncated"), "{e}");
+    assert!(c.p("out").join("windows.csv").exists());
 }
 
 #[test]

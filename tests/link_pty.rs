@@ -51,6 +51,7 @@ fn replay_wire(out: &Path) -> (Vec<frothline_host::rig::HostRecord>, Vec<WindowR
         window: window(),
         quiet: true,
         levels: frothline_host::record_levels::LevelRule::Device,
+        strict: false,
     })
     .unwrap();
     let wire = r

@@ -39,6 +39,7 @@ fn same_figures() {
         quiet: true,
         // The simulated device learns its levels by the causal rule: so does this replay.
         levels: frothline_host::record_levels::LevelRule::Device,
+        strict: false,
     };
     let replay = frothline_host::replay::run(&args).unwrap();
     let layout = &replay.layout;

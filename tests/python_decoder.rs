@@ -90,6 +90,7 @@ fn run() {
         window: "100ms".parse().unwrap(),
         quiet: true,
         levels: frothline_host::record_levels::LevelRule::Device,
+        strict: false,
     })
     .unwrap();
     let expected: Vec<WindowResult> = replay

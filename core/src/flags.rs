@@ -56,9 +56,14 @@ impl Flags {
     /// because the arrival was confirmed more than the chain's delay line after it happened
     /// (see [`crate::station`]); `since_front` of the window says by how much.
     pub const LATE_FRONT_START: Flags = Flags(1 << 12);
+    /// The capture stopped abruptly inside or at the end of this window (a data chunk cut
+    /// short, or a header its recorder never finished): the window may hold less than the
+    /// flow gave, and nothing after it was recorded. Raised by the reader of the capture,
+    /// never by the chain.
+    pub const CAPTURE_CUT: Flags = Flags(1 << 13);
 
     /// Names of the flags, in bit order, as written into CSV files.
-    pub const NAMES: [(Flags, &'static str); 13] = [
+    pub const NAMES: [(Flags, &'static str); 14] = [
         (Flags::STUCK, "stuck"),
         (Flags::LEVELS_NOT_LEARNT, "levels_not_learnt"),
         (Flags::SATURATED, "saturated"),
@@ -72,6 +77,7 @@ impl Flags {
         (Flags::CORRELATION_OVERFLOW, "correlation_overflow"),
         (Flags::PRE_FRONT, "pre_front"),
         (Flags::LATE_FRONT_START, "late_front_start"),
+        (Flags::CAPTURE_CUT, "capture_cut"),
     ];
 
     /// True if every bit of `other` is set in `self`.

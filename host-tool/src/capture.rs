@@ -39,9 +39,20 @@
 //! data stopped; the error repeats on later calls. No recorded frame is lost: a caller that
 //! wants to keep going treats that error as the end of the capture. An I/O error in the middle
 //! of a read is reported the same way (frames already converted first, the error next call).
+//! [`Capture::end_at_cut`] turns the truncation into a plain end of data instead, remembered
+//! in [`Capture::cut`], for callers that keep the frames and warn.
+//!
+//! # Unfinished headers
+//!
+//! A recorder fixes the data chunk length when it closes the file. One that streamed
+//! (declaring the placeholder 0xFFFFFFFF) or crashed before closing (declaring 0) leaves a
+//! data chunk length that says nothing about the samples. When the data chunk declares 0 or
+//! 0xFFFFFFFF bytes and bytes follow it, the samples are read to the end of the file and
+//! [`Capture::unfinished_header`] reports the declared value (common practice, no source:
+//! the same placeholders appear in streaming WAV writers).
 
 use std::fs::File;
-use std::io::{self, BufReader, Read};
+use std::io::{self, BufReader, Read, Seek};
 use std::path::{Path, PathBuf};
 
 /// Bytes read from the data chunk per underlying read (bounded scratch buffer).
@@ -163,6 +174,32 @@ pub enum CaptureError {
         /// The capture file.
         path: PathBuf,
     },
+    /// The capture holds no complete frame: nothing to analyse.
+    #[error(
+        "{}: the capture holds no sample frame ({channels} channels, the data chunk is empty \
+         or shorter than one frame)",
+        path.display()
+    )]
+    NoFrames {
+        /// The capture file.
+        path: PathBuf,
+        /// Channels declared.
+        channels: usize,
+    },
+    /// More channels than the core's chain takes.
+    #[error(
+        "{}: {channels} channels: the host replays captures of at most {max} channels \
+         (one chain reads every channel of a frame); export only the channels the layout uses",
+        path.display()
+    )]
+    TooManyChannels {
+        /// The capture file.
+        path: PathBuf,
+        /// Channels in the capture.
+        channels: usize,
+        /// Most channels read.
+        max: usize,
+    },
     /// The data chunk declares more frames than the file holds.
     #[error(
         "{}: truncated capture: the data chunk declares {declared} frames but the file ends \
@@ -188,6 +225,8 @@ impl CaptureError {
             | CaptureError::Malformed { path, .. }
             | CaptureError::Unsupported { path, .. }
             | CaptureError::ZeroChannels { path }
+            | CaptureError::NoFrames { path, .. }
+            | CaptureError::TooManyChannels { path, .. }
             | CaptureError::Truncated { path, .. } => path,
         }
     }
@@ -232,10 +271,14 @@ struct Header {
     data_len: u64,
 }
 
+/// What a capture is read from: a file, or bytes in memory ([`Capture::from_bytes`]).
+trait Source: Read + Seek + Send {}
+impl<T: Read + Seek + Send> Source for T {}
+
 /// An open capture, read front to back in blocks of frames.
 pub struct Capture {
     path: PathBuf,
-    reader: BufReader<File>,
+    reader: BufReader<Box<dyn Source>>,
     format: SampleFormat,
     channels: usize,
     sample_rate: u32,
@@ -248,6 +291,19 @@ pub struct Capture {
     pending_io: Option<io::Error>,
     /// The data ended before the declared length; reported from the next call on.
     truncated: bool,
+    /// Report the truncation as the end of the data ([`Capture::end_at_cut`]).
+    end_at_cut: bool,
+    /// The data chunk length declared by an unfinished header (0 or 0xFFFFFFFF).
+    unfinished: Option<u32>,
+}
+
+/// Where a capture's data stopped before its header said it would.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Cut {
+    /// Complete frames read (= index of the first missing frame).
+    pub frame: u64,
+    /// Frames the header declared.
+    pub declared: u64,
 }
 
 impl std::fmt::Debug for Capture {
@@ -273,11 +329,30 @@ impl Capture {
         };
         let file = File::open(path).map_err(io_err)?;
         let file_len = file.metadata().map_err(io_err)?.len();
-        let mut reader = BufReader::with_capacity(HEADER_BUFFER, file);
+        Capture::from_source(path, Box::new(file), file_len)
+    }
+
+    /// Reads a capture held in memory; `name` stands for the file in messages.
+    pub fn from_bytes(name: &Path, bytes: Vec<u8>) -> Result<Capture, CaptureError> {
+        let len = bytes.len() as u64;
+        Capture::from_source(name, Box::new(io::Cursor::new(bytes)), len)
+    }
+
+    fn from_source(
+        path: &Path,
+        source: Box<dyn Source>,
+        file_len: u64,
+    ) -> Result<Capture, CaptureError> {
+        let mut reader = BufReader::with_capacity(HEADER_BUFFER, source);
         let h = read_header(&mut reader, file_len).map_err(|e| e.at(path))?;
         let frame_bytes = h.channels * h.format.bytes_per_sample();
-        let frames = h.data_len / frame_bytes as u64;
         let present = file_len.saturating_sub(h.data_offset) / frame_bytes as u64;
+        let unfinished =
+            (matches!(h.data_len, 0 | 0xFFFF_FFFF) && present > 0).then_some(h.data_len as u32);
+        let frames = match unfinished {
+            Some(_) => present,
+            None => h.data_len / frame_bytes as u64,
+        };
         Ok(Capture {
             path: path.to_path_buf(),
             reader,
@@ -291,6 +366,75 @@ impl Capture {
             scratch: Vec::new(),
             pending_io: None,
             truncated: false,
+            end_at_cut: false,
+            unfinished,
+        })
+    }
+
+    /// From now on, a data chunk cut short ends the data ([`Capture::read_frames`] returns 0)
+    /// instead of returning [`CaptureError::Truncated`]; [`Capture::cut`] tells where.
+    pub fn end_at_cut(&mut self) {
+        self.end_at_cut = true;
+    }
+
+    /// Where the data stopped short of the declared length, once the reading got there.
+    pub fn cut(&self) -> Option<Cut> {
+        self.truncated.then_some(Cut {
+            frame: self.position,
+            declared: self.frames,
+        })
+    }
+
+    /// The data chunk length an unfinished header declared (0 or 0xFFFFFFFF), when the
+    /// samples were read to the end of the file instead (see the module documentation).
+    pub fn unfinished_header(&self) -> Option<u32> {
+        self.unfinished
+    }
+
+    /// True if the capture may end where the recorder stopped abruptly: a truncated data
+    /// chunk or an unfinished header. Known at open for both.
+    pub fn ends_abruptly(&self) -> bool {
+        self.frames_in_file < self.frames || self.unfinished.is_some()
+    }
+
+    /// A one-line warning about an abrupt end, naming the file and the last frame read, or
+    /// `None` for a capture read as its header declared.
+    pub fn abrupt_end_warning(&self) -> Option<String> {
+        let path = self.path.display();
+        if let Some(c) = self.cut() {
+            Some(format!(
+                "{path}: truncated capture: the data chunk declares {} frames but the file ends \
+                 after frame {}; results up to the cut were kept, the last window is flagged \
+                 capture_cut",
+                c.declared, c.frame
+            ))
+        } else {
+            self.unfinished.map(|d| {
+                format!(
+                    "{path}: unfinished WAV header (data chunk length 0x{d:08X}): read {} frames \
+                     to the end of the file; the last window is flagged capture_cut",
+                    self.position
+                )
+            })
+        }
+    }
+
+    /// The error a strict caller returns for an abrupt end (see [`Capture::ends_abruptly`]).
+    pub fn abrupt_end_error(&self) -> Option<CaptureError> {
+        if let Some(c) = self.cut() {
+            return Some(CaptureError::Truncated {
+                path: self.path.clone(),
+                frame: c.frame,
+                declared: c.declared,
+            });
+        }
+        self.unfinished.map(|d| CaptureError::Malformed {
+            path: self.path.clone(),
+            reason: format!(
+                "unfinished header: the data chunk declares 0x{d:08X} bytes ({} frames were read \
+                 to the end of the file)",
+                self.position
+            ),
         })
     }
 
@@ -354,6 +498,9 @@ impl Capture {
             });
         }
         if self.truncated {
+            if self.end_at_cut {
+                return Ok(0);
+            }
             return Err(self.truncation());
         }
         let left = self.frames - self.position;
@@ -457,7 +604,13 @@ fn u32_at(b: &[u8], i: usize) -> u32 {
     u32::from_le_bytes([b[i], b[i + 1], b[i + 2], b[i + 3]])
 }
 
+/// A chunk id for messages: its text when printable, else its bytes in hex (an all-zero
+/// file starts with `00 00 00 00`, not `????`).
 fn fourcc(b: &[u8]) -> String {
+    if !b.iter().all(|&c| c.is_ascii_graphic() || c == b' ') {
+        let hex: Vec<String> = b.iter().map(|c| format!("{c:02X}")).collect();
+        return format!("bytes {}", hex.join(" "));
+    }
     b.iter()
         .map(|&c| {
             if c.is_ascii_graphic() || c == b' ' {
@@ -469,8 +622,18 @@ fn fourcc(b: &[u8]) -> String {
         .collect()
 }
 
+/// [`fourcc`] in quotes when it is text.
+fn quoted_id(b: &[u8]) -> String {
+    let id = fourcc(b);
+    if id.starts_with("bytes ") {
+        id
+    } else {
+        format!("\"{id}\"")
+    }
+}
+
 /// Walks the RIFF chunks up to the data chunk; leaves `r` at the first data byte.
-fn read_header(r: &mut BufReader<File>, file_len: u64) -> Result<Header, HeaderError> {
+fn read_header(r: &mut BufReader<Box<dyn Source>>, file_len: u64) -> Result<Header, HeaderError> {
     let mut riff = [0u8; 12];
     let (n, err) = read_full(r, &mut riff);
     if let Some(e) = err {
@@ -492,9 +655,9 @@ fn read_header(r: &mut BufReader<File>, file_len: u64) -> Result<Header, HeaderE
         let what = if n < 12 {
             format!("only {n} bytes long")
         } else if &riff[..4] != b"RIFF" {
-            format!("starts with \"{}\" instead of \"RIFF\"", fourcc(&riff[..4]))
+            format!("starts with {} instead of \"RIFF\"", quoted_id(&riff[..4]))
         } else {
-            format!("RIFF type \"{}\" instead of \"WAVE\"", fourcc(&riff[8..12]))
+            format!("RIFF type {} instead of \"WAVE\"", quoted_id(&riff[8..12]))
         };
         return Err(HeaderError::NotWav(what));
     }
@@ -559,9 +722,9 @@ fn read_header(r: &mut BufReader<File>, file_len: u64) -> Result<Header, HeaderE
                 let skip = u64::from(len) + u64::from(len & 1);
                 if pos + skip > file_len {
                     return Err(HeaderError::Malformed(format!(
-                        "chunk \"{}\" of {len} bytes runs past the end of the file, before any \
+                        "chunk {} of {len} bytes runs past the end of the file, before any \
                          data chunk",
-                        fourcc(id)
+                        quoted_id(id)
                     )));
                 }
                 r.seek_relative(skip as i64)?;
@@ -1007,6 +1170,11 @@ mod tests {
         let e = open_err(&files, "text.wav", b"name,value\nA,1\n");
         assert!(
             matches!(e, CaptureError::NotWav { .. }) && e.to_string().contains("RIFF"),
+            "{e}"
+        );
+        let e = open_err(&files, "zeros.wav", &[0u8; 64]);
+        assert!(
+            e.to_string().contains("starts with bytes 00 00 00 00") && !e.to_string().contains('?'),
             "{e}"
         );
         let e = open_err(&files, "avi.wav", b"RIFF\x10\0\0\0AVI LIST\0\0\0\0");

@@ -89,7 +89,9 @@ pub const COMMAND_STACK: usize = 256 << 20;
 
 fn dispatch(command: Command) -> Result<(), HostError> {
     match command {
-        Command::Replay(a) => crate::replay::run(&a).map(|_| ()),
+        Command::Replay(a) => {
+            crate::replay::run_with(&a, crate::replay::Keep::TotalsOnly).map(|_| ())
+        }
         Command::Synth(a) => {
             let s = crate::synth::run(&a)?;
             crate::stdout::println(&s.to_string());

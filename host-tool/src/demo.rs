@@ -31,7 +31,13 @@ pub struct DemoArgs {
     #[arg(long)]
     pub plain: bool,
     /// Seconds to run.
-    #[arg(long, value_name = "SECS", default_value_t = 20.0)]
+    #[arg(
+        long,
+        value_name = "SECS",
+        allow_hyphen_values = true,
+        value_parser = crate::session_time::parse_session_secs,
+        default_value_t = 20.0
+    )]
     pub duration: f64,
     /// Folder for the session archive and CSV files.
     #[arg(long, value_name = "DIR", default_value = "target/demo")]
@@ -79,7 +85,12 @@ pub struct SimulateArgs {
     #[arg(long)]
     pub once: bool,
     /// Stop after this many seconds.
-    #[arg(long, value_name = "SECS")]
+    #[arg(
+        long,
+        value_name = "SECS",
+        allow_hyphen_values = true,
+        value_parser = crate::session_time::parse_session_secs
+    )]
     pub duration: Option<f64>,
 }
 

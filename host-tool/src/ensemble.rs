@@ -38,7 +38,7 @@ use frothline_core::decay::DecayTracker;
 use frothline_core::profile::{fit_profile_sized, ProfileConfig, ProfilePoint};
 use frothline_core::station::{ProfileRecord, MAX_DECAY_POINTS};
 use frothline_core::{CorrelationSums, FrontRecord, TipStats, WindowPolicy};
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, HashMap};
 use std::path::{Path, PathBuf};
 
 /// Arguments of `frothline ensemble`.
@@ -78,6 +78,8 @@ struct WindowAcc {
     sums: Option<CorrelationSums<HOST_LAGS>>,
     starts_s: Vec<f64>,
     ends_s: Vec<f64>,
+    /// Each run's time from the front to the window start, s (when the run knew it).
+    since_s: Vec<f64>,
     flags: frothline_core::Flags,
     spread: Spread,
 }
@@ -147,8 +149,10 @@ fn rms(v: &[f64]) -> Option<f64> {
     (!v.is_empty()).then(|| (v.iter().map(|x| x * x).sum::<f64>() / v.len() as f64).sqrt())
 }
 
-fn opt<T: std::fmt::Display>(v: Option<T>) -> String {
-    v.map(|v| v.to_string()).unwrap_or_default()
+/// A value computed from the core's f32 results, written with the digits of its f32
+/// precision (0.283, not 0.28299999237060547 from the f32 widened to f64).
+fn opt(v: Option<f64>) -> String {
+    v.map(|v| (v as f32).to_string()).unwrap_or_default()
 }
 
 /// The ensemble value of one probe's window `k`.
@@ -268,6 +272,7 @@ impl Ensemble {
                 .and_then(|c| c.velocity_m_s(spacing? as f32, fs))
                 .map(|v| v as f64);
             let (start_s, end_s) = (self.secs(r.start as f64), self.secs(r.end as f64));
+            let since_s = r.since_front.map(|f| self.secs(f as f64));
             let e = self.windows.entry((p, k)).or_insert_with(|| WindowAcc {
                 lead: TipStats {
                     frames: 0,
@@ -285,6 +290,7 @@ impl Ensemble {
                 sums: None,
                 starts_s: Vec::new(),
                 ends_s: Vec::new(),
+                since_s: Vec::new(),
                 flags: frothline_core::Flags::NONE,
                 spread: Spread::default(),
             });
@@ -304,6 +310,7 @@ impl Ensemble {
             e.flags |= r.flags;
             e.starts_s.push(start_s);
             e.ends_s.push(end_s);
+            e.since_s.extend(since_s);
             if let Some(c) = r.lead.void_fraction() {
                 e.spread.void_fraction.push(c as f64);
             }
@@ -384,7 +391,13 @@ impl Ensemble {
                 let start = mean(&w.starts_s).unwrap_or(0.0);
                 let end = mean(&w.ends_s).unwrap_or(start);
                 let runs = w.starts_s.len();
-                let since = k as f64 * self.secs(self.window_frames as f64);
+                // Windows from the front are `k` windows after it, exactly; the record
+                // before the front runs from the start of each run's capture, so its time
+                // since the front is the runs' mean, as each run's replay writes it.
+                let since = match (k < 0, mean(&w.since_s)) {
+                    (true, Some(m)) => m,
+                    _ => k as f64 * self.secs(self.window_frames as f64),
+                };
                 let record = HostRecord {
                     probe: probe as u8,
                     start: (start * self.sample_rate as f64).round() as u64,
@@ -661,6 +674,46 @@ pub fn capture_list(paths: &[PathBuf]) -> Result<Vec<PathBuf>, HostError> {
     Ok(out)
 }
 
+/// An ensemble averages independent runs: a capture given twice (the same file by two
+/// paths, or two files with the same bytes) would count one run twice, so it is refused,
+/// naming both.
+pub fn refuse_repeated_captures(captures: &[PathBuf]) -> Result<(), HostError> {
+    use std::hash::Hasher;
+    let mut seen: HashMap<(u64, u64), &PathBuf> = HashMap::new();
+    for c in captures {
+        let mut file = std::fs::File::open(c).map_err(|source| {
+            HostError::Capture(crate::capture::CaptureError::Io {
+                path: c.clone(),
+                source,
+            })
+        })?;
+        let mut h = std::collections::hash_map::DefaultHasher::new();
+        let mut buf = vec![0u8; 1 << 16];
+        let mut len = 0u64;
+        loop {
+            let n = std::io::Read::read(&mut file, &mut buf).map_err(|source| {
+                HostError::Capture(crate::capture::CaptureError::Io {
+                    path: c.clone(),
+                    source,
+                })
+            })?;
+            if n == 0 {
+                break;
+            }
+            h.write(&buf[..n]);
+            len += n as u64;
+        }
+        if let Some(first) = seen.insert((len, h.finish()), c) {
+            return Err(HostError::Usage(format!(
+                "ensemble: {} and {} hold the same capture: each run must be given once",
+                first.display(),
+                c.display()
+            )));
+        }
+    }
+    Ok(())
+}
+
 /// What `frothline ensemble` did.
 #[derive(Debug)]
 pub struct EnsembleReport {
@@ -673,6 +726,7 @@ pub struct EnsembleReport {
 /// `frothline ensemble`: replay every capture, combine, write the files.
 pub fn run(args: &EnsembleArgs) -> Result<EnsembleReport, HostError> {
     let captures = capture_list(&args.captures)?;
+    refuse_repeated_captures(&captures)?;
     let layout = Layout::load(&args.layout)?;
     if !transient::is_transient(&layout) {
         return Err(HostError::Usage(format!(

@@ -177,7 +177,13 @@ pub fn supported(g: Geometry) -> bool {
 /// [`LogError::Geometry`]: the core cannot use `g` for this image (or `g` is not
 /// [`supported`]); [`LogError::Flash`]: a read outside the image, or the core tried to
 /// write (neither happens).
+///
+/// A dump longer than the core's [`MAX_PAGES`](frothline_core::logbook::MAX_PAGES) pages
+/// of this size whose bytes past that many pages are all erased (0xFF) is read as its
+/// first `MAX_PAGES` pages: a log of that page size cannot be longer, so the rest is the
+/// padding of a dump larger than the log region.
 pub fn read_log(image: &[u8], g: Geometry) -> Result<LogRead, LogError> {
+    let image = without_erased_padding(image, g.page_bytes);
     match g.page_bytes {
         256 => read_unit::<256>(image, g.write_unit),
         512 => read_unit::<512>(image, g.write_unit),
@@ -190,6 +196,15 @@ pub fn read_log(image: &[u8], g: Geometry) -> Result<LogRead, LogError> {
         65536 => read_unit::<65536>(image, g.write_unit),
         131072 => read_unit::<131072>(image, g.write_unit),
         _ => Err(LogError::Geometry),
+    }
+}
+
+/// `image` less an all-erased tail beyond the core's page limit (see [`read_log`]).
+fn without_erased_padding(image: &[u8], page_bytes: usize) -> &[u8] {
+    let limit = page_bytes.saturating_mul(frothline_core::logbook::MAX_PAGES);
+    match image.get(limit..) {
+        Some(tail) if !tail.is_empty() && tail.iter().all(|&b| b == 0xFF) => &image[..limit],
+        _ => image,
     }
 }
 
@@ -294,6 +309,19 @@ mod tests {
         assert_eq!(f.read(u32::MAX, &mut b), Err(ImageFlashError::OutOfBounds));
         assert_eq!(f.write(0, &[0; 4]), Err(ImageFlashError::ReadOnly));
         assert_eq!(f.erase(0, 256), Err(ImageFlashError::ReadOnly));
+    }
+
+    #[test]
+    fn erased_padding_beyond_the_page_limit_is_not_part_of_the_log() {
+        let max = frothline_core::logbook::MAX_PAGES;
+        let mut image = vec![0xFFu8; 4096 * (max + 256)];
+        assert_eq!(without_erased_padding(&image, 4096).len(), 4096 * max);
+        assert_eq!(without_erased_padding(&image, 8192).len(), image.len());
+        // A written byte past the limit: not padding, the image stays whole.
+        let last = image.len() - 1;
+        image[last] = 0;
+        assert_eq!(without_erased_padding(&image, 4096).len(), image.len());
+        assert_eq!(without_erased_padding(&[], 4096).len(), 0);
     }
 
     #[test]

@@ -51,6 +51,24 @@ pub const DEFAULT_LEARN_PERIOD_S: f64 = 0.2;
 pub const DEFAULT_WATER_TEMPERATURE_C: f64 = 20.0;
 /// Largest channel index accepted (a WAV file holds at most 65535 channels).
 pub const MAX_CHANNEL: usize = 65534;
+/// Largest layout file read, bytes. A layout of [`MAX_LAYOUT_PROBES`] probes written out
+/// with comments takes a few hundred kilobytes; anything larger is refused before parsing.
+pub const MAX_LAYOUT_BYTES: u64 = 1 << 20;
+/// Most probes a layout may describe (the host runs at most 16 probes per chain, one chain
+/// per station).
+pub const MAX_LAYOUT_PROBES: usize = 1024;
+/// Longest tip spacing accepted, mm: dual-tip probes space their tips a few millimetres
+/// apart (3 to 10 mm is usual: common practice, no source); a metre is beyond any probe.
+pub const MAX_TIP_SPACING_MM: f64 = 1000.0;
+/// Largest |x_mm| accepted, mm (10 km of channel): beyond it a celerity over the stations'
+/// distance means nothing.
+pub const MAX_ABS_X_MM: f64 = 1.0e7;
+/// Probes whose `x_mm` lie within this distance of a station's first probe belong to that
+/// station, mm: probes meant to stand at one streamwise position are set to about a
+/// millimetre (common practice, no source), and 600 and 600.0000001 are one position.
+pub const STATION_TOLERANCE_MM: f64 = 1.0;
+/// Largest elevation accepted, mm (100 m above the bed).
+pub const MAX_ELEVATION_MM: f64 = 1.0e5;
 
 // ---------------------------------------------------------------------------------------------
 // Public representation
@@ -265,6 +283,18 @@ pub enum LayoutError {
         #[source]
         source: std::io::Error,
     },
+    /// The file is larger than [`MAX_LAYOUT_BYTES`]: refused before it is parsed.
+    #[error(
+        "{}: {bytes} bytes: a layout file may hold at most {MAX_LAYOUT_BYTES} bytes \
+         ({MAX_LAYOUT_PROBES} probes); is this the layout?",
+        path.display()
+    )]
+    TooLarge {
+        /// The layout file.
+        path: PathBuf,
+        /// Its size.
+        bytes: u64,
+    },
     /// The text is not valid TOML.
     #[error("{}, {at}: TOML syntax error: {message}", file.display())]
     Syntax {
@@ -303,7 +333,7 @@ impl LayoutError {
         match self {
             LayoutError::Syntax { at, .. } => Some(*at),
             LayoutError::Key { at, .. } => *at,
-            LayoutError::Io { .. } => None,
+            LayoutError::Io { .. } | LayoutError::TooLarge { .. } => None,
         }
     }
 
@@ -504,11 +534,55 @@ struct RawProbe {
 struct Ctx<'a> {
     text: &'a str,
     file: &'a Path,
+    lines: &'a LineIndex,
+}
+
+/// Byte offsets of line starts, so that a location costs a binary search plus the
+/// characters from its line start (remembered between calls on one long line), not a
+/// scan from the start of the text: validation stays linear in the number of probes.
+struct LineIndex {
+    starts: Vec<usize>,
+    /// The last location computed: (offset, column), to continue along a long line.
+    last: std::cell::Cell<(usize, usize)>,
+    /// Characters counted for columns so far (the linearity test reads it).
+    scanned: std::cell::Cell<usize>,
+}
+
+impl LineIndex {
+    fn new(text: &str) -> LineIndex {
+        let starts = std::iter::once(0)
+            .chain(text.match_indices('\n').map(|(i, _)| i + 1))
+            .collect();
+        LineIndex {
+            starts,
+            last: std::cell::Cell::new((0, 1)),
+            scanned: std::cell::Cell::new(0),
+        }
+    }
+
+    fn locate(&self, text: &str, offset: usize) -> Location {
+        let mut offset = offset.min(text.len());
+        while !text.is_char_boundary(offset) {
+            offset -= 1;
+        }
+        let line = self.starts.partition_point(|&s| s <= offset);
+        let start = self.starts.get(line.wrapping_sub(1)).copied().unwrap_or(0);
+        let (last_off, last_col) = self.last.get();
+        let (from, base) = if last_off >= start && last_off <= offset {
+            (last_off, last_col)
+        } else {
+            (start, 1)
+        };
+        let column = base + text[from..offset].chars().count();
+        self.scanned.set(self.scanned.get() + (offset - from));
+        self.last.set((offset, column));
+        Location { line, column }
+    }
 }
 
 impl Ctx<'_> {
     fn at(&self, span: Range<usize>) -> Location {
-        Location::of_offset(self.text, span.start)
+        self.lines.locate(self.text, span.start)
     }
 
     fn err(&self, key: impl Into<String>, span: Range<usize>, problem: Problem) -> LayoutError {
@@ -562,22 +636,75 @@ impl Ctx<'_> {
 impl Layout {
     /// Reads and parses a layout file.
     pub fn load(path: &Path) -> Result<Layout, LayoutError> {
-        let text = std::fs::read_to_string(path).map_err(|source| LayoutError::Io {
+        let io = |source| LayoutError::Io {
             path: path.to_path_buf(),
             source,
-        })?;
+        };
+        // The size is checked before anything is read.
+        let file = std::fs::File::open(path).map_err(io)?;
+        let bytes = file.metadata().map_err(io)?.len();
+        if bytes > MAX_LAYOUT_BYTES {
+            return Err(LayoutError::TooLarge {
+                path: path.to_path_buf(),
+                bytes,
+            });
+        }
+        let mut text = String::new();
+        std::io::Read::read_to_string(
+            &mut std::io::Read::take(file, MAX_LAYOUT_BYTES + 1),
+            &mut text,
+        )
+        .map_err(io)?;
         Layout::parse(&text, path)
     }
 
     /// Parses and validates layout text; `file` is used in error messages only.
+    ///
+    /// Limits come first: a text over [`MAX_LAYOUT_BYTES`] is refused unparsed, and a
+    /// document with more than [`MAX_LAYOUT_PROBES`] probes before its probes are checked.
+    /// The checks are linear in the size of the text (locations come from one line index).
     pub fn parse(text: &str, file: &Path) -> Result<Layout, LayoutError> {
-        let cx = Ctx { text, file };
+        Layout::parse_counting(text, file).0
+    }
+
+    /// [`Layout::parse`], also returning the bytes scanned to compute locations.
+    fn parse_counting(text: &str, file: &Path) -> (Result<Layout, LayoutError>, usize) {
+        let lines = LineIndex::new(text);
+        let result = Layout::parse_in(text, file, &lines);
+        (result, lines.scanned.get())
+    }
+
+    fn parse_in(text: &str, file: &Path, lines: &LineIndex) -> Result<Layout, LayoutError> {
+        if text.len() as u64 > MAX_LAYOUT_BYTES {
+            return Err(LayoutError::TooLarge {
+                path: file.to_path_buf(),
+                bytes: text.len() as u64,
+            });
+        }
+        let cx = Ctx { text, file, lines };
         // First pass: the TOML document itself, keeping spans of every key for error paths.
         let doc = DeTable::parse(text).map_err(|e| LayoutError::Syntax {
             file: file.to_path_buf(),
             at: Location::of_offset(text, e.span().map_or(0, |s| s.start)),
             message: e.message().trim().to_string(),
         })?;
+        if let Some(probes) = doc.get_ref().get("probe") {
+            if let DeValue::Array(a) = probes.get_ref() {
+                if a.len() > MAX_LAYOUT_PROBES {
+                    return Err(LayoutError::Key {
+                        file: file.to_path_buf(),
+                        key: "probe".into(),
+                        at: Some(cx.at(probes.span())),
+                        problem: Box::new(Problem::OutOfRange {
+                            detail: format!(
+                                "{} probes: a layout may describe at most {MAX_LAYOUT_PROBES}",
+                                a.len()
+                            ),
+                        }),
+                    });
+                }
+            }
+        }
         // Second pass: the schema.
         let raw: RawLayout =
             toml::from_str(text).map_err(|e| schema_error(&cx, doc.get_ref(), &e))?;
@@ -650,8 +777,10 @@ impl Layout {
         Ok(())
     }
 
-    /// Probes grouped into stations (equal `x_mm`), in increasing `x_mm`; within a station the
-    /// probe indices are ordered by increasing elevation (file order on ties).
+    /// Probes grouped into stations, in increasing `x_mm`: a station takes every probe within
+    /// [`STATION_TOLERANCE_MM`] downstream of its first (smallest) `x_mm`, and stands at that
+    /// `x_mm`. Within a station the probe indices are ordered by increasing elevation (file
+    /// order on ties).
     pub fn stations(&self) -> Vec<(f64, Vec<usize>)> {
         let mut order: Vec<usize> = (0..self.probes.len()).collect();
         order.sort_by(|&a, &b| {
@@ -665,9 +794,16 @@ impl Layout {
         for i in order {
             let x = self.probes[i].x_mm;
             match stations.last_mut() {
-                Some((sx, members)) if *sx == x => members.push(i),
+                // Within the tolerance of the station's first (smallest) x_mm.
+                Some((sx, members)) if x - *sx <= STATION_TOLERANCE_MM => members.push(i),
                 _ => stations.push((x, vec![i])),
             }
+        }
+        for (_, members) in &mut stations {
+            members.sort_by(|&a, &b| {
+                let (pa, pb) = (&self.probes[a], &self.probes[b]);
+                pa.elevation_mm.total_cmp(&pb.elevation_mm).then(a.cmp(&b))
+            });
         }
         stations
     }
@@ -990,10 +1126,21 @@ fn build_probe(
     // geometry
     let elevation_mm = {
         let v = &p.elevation_mm;
-        cx.range(&key("elevation_mm"), v, *v.get_ref() >= 0.0, ">= 0")?
+        let x = *v.get_ref();
+        cx.range(
+            &key("elevation_mm"),
+            v,
+            (0.0..=MAX_ELEVATION_MM).contains(&x),
+            &format!("0 to {MAX_ELEVATION_MM}"),
+        )?
     };
     let x_mm = match &p.x_mm {
-        Some(v) => cx.finite(&key("x_mm"), v)?,
+        Some(v) => cx.range(
+            &key("x_mm"),
+            v,
+            v.get_ref().abs() <= MAX_ABS_X_MM,
+            &format!("-{MAX_ABS_X_MM} to {MAX_ABS_X_MM}"),
+        )?,
         None => 0.0,
     };
 
@@ -1015,7 +1162,12 @@ fn build_probe(
                 Problem::SpacingWithoutTrailing,
             ))
         }
-        (Some(_), Some(s)) => Some(cx.positive(&key("tip_spacing_mm"), s)?),
+        (Some(_), Some(s)) => Some(cx.range(
+            &key("tip_spacing_mm"),
+            s,
+            *s.get_ref() > 0.0 && *s.get_ref() <= MAX_TIP_SPACING_MM,
+            &format!("> 0 and at most {MAX_TIP_SPACING_MM}"),
+        )?),
         (None, None) => None,
     };
     let tips = std::iter::once((leading, "leading", p.leading.span())).chain(
@@ -1742,6 +1894,130 @@ water_level = 0.6
         assert!(err.to_string().contains("absent.toml"), "{err}");
         std::fs::write(&path, MIN).unwrap();
         assert_eq!(Layout::load(&path).unwrap().probes.len(), 1);
+    }
+
+    fn layout_of(probes: usize) -> String {
+        let mut t = String::from("[flow]\nkind = \"steady\"\n");
+        for i in 0..probes {
+            t.push_str(&format!(
+                "\n[[probe]]\nname = \"P{i}\"\nelevation_mm = 10.0\nleading = {}\n\
+                 trailing = {}\ntip_spacing_mm = 5.0\n",
+                2 * i,
+                2 * i + 1
+            ));
+        }
+        t
+    }
+
+    /// Validation work grows linearly with the number of probes: the bytes scanned to
+    /// locate keys, counted (not timed), for 100 and 800 probes, stay within a constant of
+    /// the text length (a scan from the start of the text per key grows as its square).
+    #[test]
+    fn validation_scans_linearly_in_the_number_of_probes() {
+        for n in [100, 800] {
+            let text = layout_of(n);
+            let (r, scanned) = Layout::parse_counting(&text, Path::new("big.toml"));
+            assert_eq!(r.unwrap().probes.len(), n);
+            assert!(
+                scanned <= 2 * text.len(),
+                "{n} probes: {scanned} of {}",
+                text.len()
+            );
+        }
+        // One long line of inline tables: still linear.
+        let mut text = String::from("probe = [");
+        for i in 0..800 {
+            text.push_str(&format!(
+                "{{name = \"P{i}\", elevation_mm = 1.0, leading = {i}}}, "
+            ));
+        }
+        text.push_str("]\n[flow]\nkind = \"steady\"\n");
+        let (r, scanned) = Layout::parse_counting(&text, Path::new("line.toml"));
+        assert_eq!(r.unwrap().probes.len(), 800);
+        assert!(scanned <= 2 * text.len(), "{scanned} of {}", text.len());
+    }
+
+    #[test]
+    fn limits_are_checked_before_the_probes() {
+        let e = parse(&layout_of(MAX_LAYOUT_PROBES + 1))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("key `probe`") && e.contains("at most 1024"),
+            "{e}"
+        );
+        let big = "#".repeat(MAX_LAYOUT_BYTES as usize + 1);
+        let e = parse(&big).unwrap_err();
+        assert!(matches!(e, LayoutError::TooLarge { .. }), "{e}");
+        // load() refuses by the file size, before reading.
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("huge.toml");
+        std::fs::File::create(&p)
+            .unwrap()
+            .set_len(10 << 20)
+            .unwrap();
+        let e = Layout::load(&p).unwrap_err().to_string();
+        assert!(
+            e.contains("huge.toml") && e.contains("10485760 bytes"),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn extreme_geometry_is_refused_naming_the_key() {
+        let base = layout_of(1);
+        let cases = [
+            (
+                "tip_spacing_mm = 5.0",
+                "tip_spacing_mm = 1e300",
+                "probe[0].tip_spacing_mm",
+            ),
+            (
+                "elevation_mm = 10.0",
+                "elevation_mm = 1e300",
+                "probe[0].elevation_mm",
+            ),
+            (
+                "elevation_mm = 10.0",
+                "elevation_mm = 10.0\nx_mm = 1e30",
+                "probe[0].x_mm",
+            ),
+            (
+                "elevation_mm = 10.0",
+                "elevation_mm = 10.0\nx_mm = -1e300",
+                "probe[0].x_mm",
+            ),
+        ];
+        for (from, to, key) in cases {
+            let e = parse(&base.replace(from, to)).unwrap_err();
+            assert_eq!(e.key(), Some(key), "{e}");
+            assert!(e.location().is_some(), "{e}");
+        }
+    }
+
+    #[test]
+    fn probes_within_the_station_tolerance_form_one_station_ordered_by_elevation() {
+        let mut t = layout_of(3);
+        t = t.replacen(
+            "elevation_mm = 10.0",
+            "elevation_mm = 30.0\nx_mm = 600.0000001",
+            1,
+        );
+        t = t.replacen(
+            "elevation_mm = 10.0\n",
+            "elevation_mm = 20.0\nx_mm = 600.0\n",
+            1,
+        );
+        t = t.replacen(
+            "elevation_mm = 10.0\n",
+            "elevation_mm = 5.0\nx_mm = 601.5\n",
+            1,
+        );
+        let l = parse(&t).unwrap();
+        let st = l.stations();
+        assert_eq!(st.len(), 2, "{st:?}");
+        assert_eq!(st[0], (600.0, vec![1, 0]));
+        assert_eq!(st[1], (601.5, vec![2]));
     }
 
     #[test]

@@ -406,6 +406,9 @@ pub fn learn_with(
         return Ok(RecordLevels::default());
     }
     let mut cap = Capture::open(path)?;
+    // A capture that stopped abruptly is learnt from what it holds; the processing pass
+    // that follows reports the cut.
+    cap.end_at_cut();
     let channels = cap.channels().max(1);
     let chans: Vec<usize> = tips.iter().map(|t| t.2.channel as usize).collect();
     let mut hist = vec![vec![0u32; 1 << 16]; chans.len()];

@@ -1,25 +1,48 @@
 //! `frothline replay`: a recorded capture through the same core the device runs.
 //!
-//! Output files are written under a `.partial` name and renamed only when the whole capture
-//! went through, so a failed run never leaves a file that looks complete.
+//! Output files are written as one set ([`crate::output_set`]): staged, then renamed into
+//! place with a manifest only when the whole capture went through, so a failed run leaves
+//! the folder as it was. The summary comes from running totals ([`crate::run_summary`]):
+//! memory does not grow with the number of windows.
+//!
+//! A capture that stopped abruptly (a truncated data chunk, an unfinished header) is read to
+//! where it stops: the results up to there are written, the last window is flagged
+//! `capture_cut`, a warning names the file and the frame, and `--strict` turns it into a
+//! failure (exit 2, after the files are written).
 
-use crate::capture::Capture;
+use crate::capture::{Capture, CaptureError};
 use crate::error::{write_err, HostError};
 use crate::layout::Layout;
+use crate::output_set::{Committed, OutputSet};
 use crate::probe_summary::{ProbeTally, SummaryRow, SummaryRule, WindowFigures};
 use crate::record_levels::{self, LevelRule, RecordLevels};
 use crate::rig::HostRecord as ProbeWindow;
 use crate::rig::{chain_config, HostChain, MAX_PROBES};
+use crate::run_summary::RunTotals;
 use crate::window_spec::WindowSpec;
 use crate::windows_csv::{ProbeMeta, WindowsCsv};
 use frothline_core::levels::Levels;
 use indicatif::{ProgressBar, ProgressStyle};
-use std::fs::File;
 use std::io::BufWriter;
 use std::path::{Path, PathBuf};
 
 /// Frames read from the capture per block.
 const BLOCK_FRAMES: usize = 1 << 15;
+/// Windows per block at most in the parallel driver: the records of a block travel from the
+/// workers to the writer together, so short windows get shorter blocks and the records in
+/// flight stay a few megabytes whatever the window length.
+const WINDOWS_PER_BLOCK: usize = 256;
+
+/// Frames per block for `policy` (results do not depend on it: the core's records do not
+/// depend on how samples are split into pushes).
+fn block_frames(policy: &frothline_core::WindowPolicy) -> usize {
+    match policy {
+        frothline_core::WindowPolicy::Frames(n) => (*n as usize)
+            .saturating_mul(WINDOWS_PER_BLOCK)
+            .clamp(1024, BLOCK_FRAMES),
+        _ => BLOCK_FRAMES,
+    }
+}
 
 /// Arguments of `frothline replay`.
 #[derive(clap::Args, Debug, Clone)]
@@ -49,6 +72,22 @@ pub struct ReplayArgs {
     /// levels), and reproduces a device's records exactly.
     #[arg(long, value_enum, default_value_t = LevelRule::Record)]
     pub levels: LevelRule,
+    /// Fail (exit 2) when the capture stopped abruptly (truncated, or a header its recorder
+    /// never finished). Without it, the results up to the cut are written with a warning and
+    /// the last window is flagged `capture_cut`. The files are written either way.
+    #[arg(long)]
+    pub strict: bool,
+}
+
+/// Whether a replay hands back every record ([`run`], for tests and tools that compare
+/// records) or only running totals ([`run_with`] with `TotalsOnly`, the command line: memory
+/// flat in the length of the capture).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Keep {
+    /// Keep every record in [`ReplayReport::records`].
+    Records,
+    /// Keep only [`ReplayReport::totals`].
+    TotalsOnly,
 }
 
 /// What a replay produced, for the summary and for tests.
@@ -60,10 +99,19 @@ pub struct ReplayReport {
     pub sample_rate: u32,
     /// Frames read.
     pub frames: u64,
-    /// Every record, in the order the chain gave them.
+    /// Every record, in the order the chain gave them (empty under [`Keep::TotalsOnly`]).
     pub records: Vec<ProbeWindow>,
+    /// Running totals per probe.
+    pub totals: RunTotals,
+    /// The per-probe summary of [`crate::probe_summary`] under its default rule, one per
+    /// layout probe.
+    pub tallies: Vec<ProbeTally>,
     /// The windows.csv written.
     pub windows_csv: PathBuf,
+    /// The warning about a capture that stopped abruptly, if it did.
+    pub abrupt_end: Option<String>,
+    /// What the run replaced in the output folder.
+    pub committed: Committed,
 }
 
 /// Layout probes as CSV row metadata (where the levels come from not known).
@@ -169,7 +217,9 @@ pub fn open_rig(
     window: WindowSpec,
 ) -> Result<(Capture, Layout, Box<HostChain>), HostError> {
     let layout_doc = Layout::load(layout)?;
-    let cap = Capture::open(capture)?;
+    let mut cap = Capture::open(capture)?;
+    require_frames(&cap)?;
+    cap.end_at_cut();
     layout_doc.check_channels(cap.channels(), layout)?;
     check_levels_fit(&layout_doc, &cap, layout)?;
     if layout_doc.probes.len() > MAX_PROBES {
@@ -270,6 +320,38 @@ impl LevelSchedule {
                 chain.set_tip_levels(p, *trailing, *l);
             }
         }
+    }
+}
+
+/// A capture with no complete frame is refused: there is nothing to replay, and a summary
+/// of no samples would be all NaN.
+///
+/// A capture wider than the core's [`MAX_CHANNELS`](frothline_core::MAX_CHANNELS) is
+/// refused here too, naming the capture and its true channel count.
+pub fn require_frames(cap: &Capture) -> Result<(), HostError> {
+    if cap.channels() > frothline_core::MAX_CHANNELS {
+        return Err(CaptureError::TooManyChannels {
+            path: cap.path().to_path_buf(),
+            channels: cap.channels(),
+            max: frothline_core::MAX_CHANNELS,
+        }
+        .into());
+    }
+    if cap.frames_in_file() == 0 {
+        return Err(CaptureError::NoFrames {
+            path: cap.path().to_path_buf(),
+            channels: cap.channels(),
+        }
+        .into());
+    }
+    Ok(())
+}
+
+/// Raises [`Flags::CAPTURE_CUT`](frothline_core::Flags::CAPTURE_CUT) on the records that
+/// reach the last frame of a capture that stopped abruptly.
+pub fn mark_cut(r: &mut ProbeWindow, abrupt: bool, last_frame: u64) {
+    if abrupt && r.end >= last_frame {
+        r.flags |= frothline_core::Flags::CAPTURE_CUT;
     }
 }
 
@@ -460,10 +542,11 @@ pub fn drive_parallel_with(
                 *last_start.iter().min().unwrap_or(&0)
             };
         let mut frames = 0u64;
-        let mut buf = Vec::with_capacity(BLOCK_FRAMES * cap.channels());
+        let block_frames = block_frames(&cfg.window);
+        let mut buf = Vec::with_capacity(block_frames * cap.channels());
         let result: Result<(), HostError> = (|| {
             loop {
-                let n = cap.read_frames(&mut buf, BLOCK_FRAMES)?;
+                let n = cap.read_frames(&mut buf, block_frames)?;
                 if n == 0 {
                     break;
                 }
@@ -473,7 +556,7 @@ pub fn drive_parallel_with(
                     let _ = tx.send(Arc::clone(&block));
                 }
                 buf = Arc::try_unwrap(block)
-                    .unwrap_or_else(|_| Vec::with_capacity(BLOCK_FRAMES * cap.channels()));
+                    .unwrap_or_else(|_| Vec::with_capacity(block_frames * cap.channels()));
                 while let Ok((w, recs)) = rec_rx.try_recv() {
                     let upto = take(w, recs, &mut pending);
                     flush(&mut pending, upto)?;
@@ -509,8 +592,13 @@ fn progress_bar(frames: u64, quiet: bool) -> ProgressBar {
     bar
 }
 
-/// Run a replay and write its files.
+/// Run a replay and write its files, keeping every record (see [`Keep`]).
 pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
+    run_with(args, Keep::Records)
+}
+
+/// Run a replay and write its files.
+pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError> {
     // Transient layouts (surge fronts): one station chain per station, front-relative
     // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::transient`).
     if crate::transient::is_transient(&Layout::load(&args.layout)?) {
@@ -529,56 +617,83 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
         check_learn_period(chain.config(), &layout, cap.sample_rate(), &args.layout),
         args.levels,
     )?;
-    std::fs::create_dir_all(&args.out).map_err(write_err(&args.out))?;
-    let final_path = args.out.join("windows.csv");
-    let partial = args.out.join("windows.csv.partial");
-    let file = File::create(&partial).map_err(write_err(&partial))?;
+    let set = OutputSet::begin(&args.out)?;
+    let staged = set.staged("windows.csv");
+    let file = set.create("windows.csv")?;
     let csv_err = |e: csv::Error| HostError::Write {
-        path: partial.clone(),
+        path: staged.clone(),
         source: e.into(),
     };
     let mut csv = WindowsCsv::new(BufWriter::new(file)).map_err(csv_err)?;
     let meta = probe_meta_with(&layout, &levels_sources(&layout, learnt.as_ref()));
     let spacing: Vec<Option<f64>> = layout.probes.iter().map(|p| p.tip_spacing_mm).collect();
     let fs = cap.sample_rate();
-    let bar = progress_bar(cap.frames(), args.quiet);
+    let bar = progress_bar(cap.frames_in_file(), args.quiet);
     let mut records = Vec::new();
+    let mut totals = RunTotals::new(layout.probes.len());
+    // The per-probe summary, streaming (memory flat in the record length).
+    let rule = SummaryRule::default();
+    let mut tallies = vec![ProbeTally::new(); layout.probes.len()];
+    let (abrupt, last_frame) = (cap.ends_abruptly(), cap.frames_in_file());
     let workers = std::thread::available_parallelism()
         .map_or(1, |n| n.get())
         .min(4);
     let schedule = learnt.as_ref().and_then(LevelSchedule::from_record);
-    let result = drive_parallel_with(&mut cap, chain, schedule.as_ref(), workers, &bar, |r| {
-        csv.write(
-            &r,
-            &meta[r.probe as usize],
-            fs,
-            None,
-            spacing[r.probe as usize],
-        )
-        .map_err(csv_err)?;
-        records.push(r);
-        Ok(())
-    });
+    let result = drive_parallel_with(
+        &mut cap,
+        chain,
+        schedule.as_ref(),
+        workers,
+        &bar,
+        |mut r| {
+            mark_cut(&mut r, abrupt, last_frame);
+            csv.write(
+                &r,
+                &meta[r.probe as usize],
+                fs,
+                None,
+                spacing[r.probe as usize],
+            )
+            .map_err(csv_err)?;
+            totals.add(&r);
+            if let Some(t) = tallies.get_mut(r.probe as usize) {
+                t.add(&window_figures(&r, fs, spacing[r.probe as usize]), &rule);
+            }
+            if keep == Keep::Records {
+                records.push(r);
+            }
+            Ok(())
+        },
+    );
     bar.finish_and_clear();
-    let frames = match result {
-        Ok(f) => f,
-        Err(e) => {
-            drop(csv);
-            let _ = std::fs::remove_file(&partial);
-            return Err(e);
-        }
-    };
-    csv.finish().map_err(write_err(&partial))?;
-    std::fs::rename(&partial, &final_path).map_err(write_err(&final_path))?;
+    let frames = result?;
+    csv.finish().map_err(write_err(&staged))?;
+    let committed = set.commit(
+        &["windows.csv"],
+        &[("capture", &args.capture), ("layout", &args.layout)],
+    )?;
+    let abrupt_end = cap.abrupt_end_warning();
     let report = ReplayReport {
         layout,
         sample_rate: fs,
         frames,
         records,
-        windows_csv: final_path,
+        totals,
+        tallies,
+        windows_csv: args.out.join("windows.csv"),
+        abrupt_end,
+        committed,
     };
+    if let Some(w) = &report.abrupt_end {
+        eprintln!("warning: {w}");
+    }
     if !args.quiet {
         crate::stdout::print(&summary_table(&report));
+    }
+    if args.strict {
+        if let Some(e) = cap.abrupt_end_error() {
+            return Err(e.into());
+        }
     }
     Ok(report)
 }
@@ -630,23 +745,31 @@ pub fn summary_table(r: &ReplayReport) -> String {
     let secs = r.frames as f64 / r.sample_rate.max(1) as f64;
     let _ = writeln!(
         s,
-        "{} frames at {} Hz ({secs:.2} s), {} windows -> {}",
+        "{} frames at {} Hz ({secs:.2} s), {} -> {}",
         r.frames,
         r.sample_rate,
-        r.records.len(),
+        r.totals.windows_phrase(),
         r.windows_csv.display()
     );
-    s.push_str(&probe_table(&r.layout, r.sample_rate, &r.records));
+    if let Some(note) = r.committed.note() {
+        let _ = writeln!(s, "{note}");
+    }
+    s.push_str(&tally_table(&r.layout, &r.tallies));
     s
 }
 
 /// The per-probe table of `records` under the default rule.
 pub fn probe_table(layout: &Layout, sample_rate: u32, records: &[ProbeWindow]) -> String {
     let tallies = probe_tallies(layout, sample_rate, records, &SummaryRule::default());
+    tally_table(layout, &tallies)
+}
+
+/// The per-probe table of `tallies` (one per layout probe).
+pub fn tally_table(layout: &Layout, tallies: &[ProbeTally]) -> String {
     let rows: Vec<SummaryRow> = layout
         .probes
         .iter()
-        .zip(&tallies)
+        .zip(tallies)
         .map(|(p, tally)| SummaryRow {
             name: &p.name,
             elevation_mm: p.elevation_mm,

@@ -316,6 +316,8 @@ pub struct SessionReport {
     pub files: Vec<PathBuf>,
     /// The archive, if one was written, and its size.
     pub archive: Option<(PathBuf, u64)>,
+    /// Devices whose probe count differs from the `--layout` given (one line each).
+    pub layout_mismatches: Vec<String>,
 }
 
 impl SessionReport {
@@ -335,6 +337,9 @@ impl SessionReport {
         let files: Vec<String> = self.files.iter().map(|p| p.display().to_string()).collect();
         if !files.is_empty() {
             o += &format!(" -> {}", files.join(", "));
+        }
+        for m in &self.layout_mismatches {
+            o += &format!("\nlayout mismatch: {m}");
         }
         o
     }
@@ -796,6 +801,20 @@ impl Session {
         device: u16,
         desc: &DeviceDescription,
     ) -> Result<(), HostError> {
+        if let Some(l) = &self.opts.layout {
+            let (named, sent) = (l.probes.len(), desc.probes.len());
+            let line = format!(
+                "device {device} describes {sent} probes, the layout names {named}{}",
+                if named < sent {
+                    format!(": probes {named}..{} are named p{named}..", sent - 1)
+                } else {
+                    String::new()
+                }
+            );
+            if named != sent && !self.report.layout_mismatches.contains(&line) {
+                self.report.layout_mismatches.push(line);
+            }
+        }
         let meta: Vec<ProbeMeta> = desc
             .probes
             .iter()
@@ -1336,6 +1355,45 @@ mod tests {
         let w = r.version_warnings();
         assert_eq!(w.len(), 1);
         assert!(w[0].contains("3 frame(s) of protocol version 1"), "{w:?}");
+    }
+
+    /// A layout naming fewer probes than the device describes: the summary says so, and
+    /// which probes fall back to p-names.
+    #[test]
+    fn a_layout_with_fewer_probes_than_the_device_is_reported() {
+        let layout = Layout::parse(
+            "[flow]\nkind = \"steady\"\n[[probe]]\nname = \"A\"\nelevation_mm = 1.0\nleading = 0\n",
+            std::path::Path::new("one.toml"),
+        )
+        .unwrap();
+        let mut s = Session::new(SessionOptions {
+            ports: vec!["test".into()],
+            layout: Some(layout),
+            ..Default::default()
+        })
+        .unwrap();
+        let mut f = describe(3);
+        if let Body::Describe(d) = &mut f.body {
+            for leading in 1..4 {
+                let _ = d.probes.push(ProbeLayout {
+                    station: 0,
+                    leading,
+                    trailing: None,
+                    elevation: 125,
+                    x: 0,
+                });
+            }
+        }
+        s.received(0, 1, &enc(&f)).unwrap();
+        s.received(0, 2, &enc(&f)).unwrap();
+        let r = s.finish().unwrap();
+        assert_eq!(r.layout_mismatches.len(), 1, "{:?}", r.layout_mismatches);
+        let line = r.results_line("-");
+        assert!(
+            line.contains("device 3 describes 4 probes, the layout names 1")
+                && line.contains("p1.."),
+            "{line}"
+        );
     }
 
     /// A stream of frames with faults at the host: some frames dropped whole, some

@@ -23,6 +23,7 @@ use crate::capture::Capture;
 use crate::error::{write_err, HostError};
 use crate::hydraulics;
 use crate::layout::{Layout, Phase};
+use crate::output_set::{Committed, OutputSet};
 use crate::record_levels::{self, LevelRule};
 use crate::replay::{ReplayArgs, ReplayReport};
 use crate::rig::{chain_config, Counts, FullRecord, HostRecord, ToCounts, HOST_LAGS, MAX_PROBES};
@@ -43,6 +44,10 @@ pub const RING_SAMPLES: usize = 1 << 16;
 
 /// The chain type of one station.
 pub type StationChain = frothline_core::Chain<MAX_PROBES, HOST_LAGS, RING_SAMPLES>;
+
+/// Flag of stations.csv (and the summary) for a station the front reached before the one
+/// upstream of it.
+pub const REVERSED_ARRIVAL: &str = "arrived_before_upstream_station";
 
 /// Default window (slice) length after the front, s.
 pub const DEFAULT_SLICE_S: f64 = 0.05;
@@ -457,11 +462,31 @@ pub fn replay_capture(
     rule: LevelRule,
     full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
 ) -> Result<TransientRun, HostError> {
+    replay_capture_to_cut(capture, layout_path, window, rule, full).map(|(run, _)| run)
+}
+
+/// Like [`replay_capture`], reading a capture that stopped abruptly up to where it stops:
+/// the windows reaching its last frame are flagged `capture_cut`, and the open capture is
+/// handed back for its warning ([`Capture::abrupt_end_warning`]).
+pub fn replay_capture_to_cut(
+    capture: &Path,
+    layout_path: &Path,
+    window: &WindowSpec,
+    rule: LevelRule,
+    full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
+) -> Result<(TransientRun, Capture), HostError> {
     let layout = Layout::load(layout_path)?;
     let mut cap = Capture::open(capture)?;
+    crate::replay::require_frames(&cap)?;
+    cap.end_at_cut();
     layout.check_channels(cap.channels(), layout_path)?;
     crate::replay::check_levels_fit(&layout, &cap, layout_path)?;
-    replay_open(&mut cap, &layout, layout_path, window, rule, full)
+    let mut run = replay_open(&mut cap, &layout, layout_path, window, rule, full)?;
+    let (abrupt, last) = (cap.ends_abruptly(), cap.position());
+    for w in &mut run.windows {
+        crate::replay::mark_cut(w, abrupt, last);
+    }
+    Ok((run, cap))
 }
 
 fn replay_open(
@@ -580,6 +605,12 @@ impl TransientRun {
             self.sample_rate as f32,
         )
         .map(|v| v as f64)
+    }
+
+    /// True when the front reached station `s` before the station upstream of it (a
+    /// negative celerity): stations listed in the wrong order, or probes swapped.
+    pub fn arrived_before_previous(&self, s: usize) -> bool {
+        self.celerity_from_previous(s).is_some_and(|c| c < 0.0)
     }
 
     /// The front celerity over the whole array (first to last station with an arrival).
@@ -740,9 +771,12 @@ impl TransientRun {
             .enumerate()
             .map(|(s, info)| {
                 let st = self.station_front(s);
-                let flags: Vec<&str> = st
+                let mut flags: Vec<&str> = st
                     .map(|a| a.front.flags.names().collect())
                     .unwrap_or_default();
+                if self.arrived_before_previous(s) {
+                    flags.push(REVERSED_ARRIVAL);
+                }
                 vec![
                     info.name.clone(),
                     info.x_mm.to_string(),
@@ -918,34 +952,48 @@ pub struct TransientFiles {
     pub flow: PathBuf,
 }
 
-fn write_csv(path: &Path, header: &[&str], rows: &[Vec<String>]) -> Result<(), HostError> {
-    let partial = path.with_extension("csv.partial");
+fn write_csv(
+    set: &OutputSet,
+    name: &str,
+    header: &[&str],
+    rows: &[Vec<String>],
+) -> Result<(), HostError> {
+    let staged = set.staged(name);
     let err = |e: csv::Error| HostError::Write {
-        path: partial.clone(),
+        path: staged.clone(),
         source: e.into(),
     };
-    let mut w = csv::Writer::from_path(&partial).map_err(err)?;
+    let mut w = csv::Writer::from_writer(set.create(name)?);
     w.write_record(header).map_err(err)?;
     for r in rows {
         w.write_record(r).map_err(err)?;
     }
-    w.flush().map_err(write_err(&partial))?;
-    drop(w);
-    std::fs::rename(&partial, path).map_err(write_err(path))
+    w.flush().map_err(write_err(&staged))
 }
 
-/// Write windows.csv, profile.csv, fronts.csv, stations.csv and flow.json into `dir`.
+/// Write windows.csv, profile.csv, fronts.csv, stations.csv and flow.json into `dir`, as one
+/// set ([`OutputSet`]): all of them, or the folder as it was.
 pub fn write_outputs(
     run: &TransientRun,
     dir: &Path,
     description: &str,
 ) -> Result<TransientFiles, HostError> {
-    std::fs::create_dir_all(dir).map_err(write_err(dir))?;
-    let windows = dir.join("windows.csv");
-    let partial = dir.join("windows.csv.partial");
-    let file = std::fs::File::create(&partial).map_err(write_err(&partial))?;
+    write_output_set(run, dir, description, &[]).map(|(files, _)| files)
+}
+
+/// [`write_outputs`], recording `inputs` (role, path) in the manifest, and telling what the
+/// set replaced.
+pub fn write_output_set(
+    run: &TransientRun,
+    dir: &Path,
+    description: &str,
+    inputs: &[(&str, &Path)],
+) -> Result<(TransientFiles, Committed), HostError> {
+    let set = OutputSet::begin(dir)?;
+    let staged = set.staged("windows.csv");
+    let file = set.create("windows.csv")?;
     let csv_err = |e: csv::Error| HostError::Write {
-        path: partial.clone(),
+        path: staged.clone(),
         source: e.into(),
     };
     let mut csv = WindowsCsv::new(std::io::BufWriter::new(file)).map_err(csv_err)?;
@@ -962,29 +1010,36 @@ pub fn write_outputs(
         )
         .map_err(csv_err)?;
     }
-    csv.finish().map_err(write_err(&partial))?;
-    std::fs::rename(&partial, &windows).map_err(write_err(&windows))?;
+    csv.finish().map_err(write_err(&staged))?;
 
-    let profile = dir.join("profile.csv");
     let rows: Vec<Vec<String>> = run
         .profiles
         .iter()
         .map(|(s, p)| run.profile_row(*s, p))
         .collect();
-    write_csv(&profile, PROFILE_COLUMNS, &rows)?;
-    let fronts = dir.join("fronts.csv");
-    write_csv(&fronts, FRONT_COLUMNS, &run.front_rows())?;
-    let stations = dir.join("stations.csv");
-    write_csv(&stations, STATION_COLUMNS, &run.station_rows())?;
-    let flow = dir.join("flow.json");
+    write_csv(&set, "profile.csv", PROFILE_COLUMNS, &rows)?;
+    write_csv(&set, "fronts.csv", FRONT_COLUMNS, &run.front_rows())?;
+    write_csv(&set, "stations.csv", STATION_COLUMNS, &run.station_rows())?;
+    let flow = set.staged("flow.json");
     std::fs::write(&flow, flow_indicators(run).to_json(description)).map_err(write_err(&flow))?;
-    Ok(TransientFiles {
-        windows,
-        profile,
-        fronts,
-        stations,
-        flow,
-    })
+    let names = [
+        "windows.csv",
+        "profile.csv",
+        "fronts.csv",
+        "stations.csv",
+        "flow.json",
+    ];
+    let committed = set.commit(&names, inputs)?;
+    Ok((
+        TransientFiles {
+            windows: dir.join("windows.csv"),
+            profile: dir.join("profile.csv"),
+            fronts: dir.join("fronts.csv"),
+            stations: dir.join("stations.csv"),
+            flow: dir.join("flow.json"),
+        },
+        committed,
+    ))
 }
 
 /// The replay summary of a transient run.
@@ -1042,6 +1097,13 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
         }
         if let Some(c) = run.celerity_from_previous(i) {
             let _ = writeln!(s, "  front celerity from the previous station: {c:.3} m/s");
+        }
+        if run.arrived_before_previous(i) {
+            let _ = writeln!(
+                s,
+                "  [{REVERSED_ARRIVAL}] the front reached this station before the one upstream: \
+                 check the x_mm of the stations (or swapped probes)"
+            );
         }
         let slices: Vec<&ProfileRecord> = run
             .profiles
@@ -1136,7 +1198,8 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
 
 /// `frothline replay` of a transient layout: replay, write the files, print the summary.
 pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError> {
-    let run = replay_capture(&args.capture, &args.layout, &args.window, args.levels, None)?;
+    let (run, cap) =
+        replay_capture_to_cut(&args.capture, &args.layout, &args.window, args.levels, None)?;
     let name = |p: &Path| {
         p.file_name().map_or_else(
             || p.display().to_string(),
@@ -1148,17 +1211,45 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
         name(&args.capture),
         name(&args.layout)
     );
-    let files = write_outputs(&run, &args.out, &description)?;
+    let (files, committed) = write_output_set(
+        &run,
+        &args.out,
+        &description,
+        &[("capture", &args.capture), ("layout", &args.layout)],
+    )?;
+    let abrupt_end = cap.abrupt_end_warning();
+    if let Some(w) = &abrupt_end {
+        eprintln!("warning: {w}");
+    }
     if !args.quiet {
-        crate::stdout::print(&summary(&run, Some(&files)));
+        let mut text = summary(&run, Some(&files));
+        if let Some(note) = committed.note() {
+            text.push_str(&note);
+            text.push('\n');
+        }
+        crate::stdout::print(&text);
     }
     let report = ReplayReport {
         layout: run.layout.clone(),
         sample_rate: run.sample_rate,
         frames: run.frames,
         records: run.windows.clone(),
+        totals: crate::run_summary::RunTotals::of(run.layout.probes.len(), &run.windows),
+        tallies: crate::replay::probe_tallies(
+            &run.layout,
+            run.sample_rate,
+            &run.windows,
+            &crate::probe_summary::SummaryRule::default(),
+        ),
         windows_csv: files.windows.clone(),
+        abrupt_end,
+        committed,
     };
+    if args.strict {
+        if let Some(e) = cap.abrupt_end_error() {
+            return Err(e.into());
+        }
+    }
     Ok((run, report))
 }
 

@@ -64,7 +64,12 @@ pub struct WatchArgs {
     #[arg(long)]
     pub plain: bool,
     /// Stop after this many seconds.
-    #[arg(long, value_name = "SECS")]
+    #[arg(
+        long,
+        value_name = "SECS",
+        allow_hyphen_values = true,
+        value_parser = crate::session_time::parse_session_secs
+    )]
     pub duration: Option<f64>,
     /// Start a run with this label (at most 16 bytes) once each device has described itself.
     #[arg(long, value_name = "LABEL", value_parser = parse_label)]

@@ -31,9 +31,14 @@ pub enum WindowSpec {
 
 fn parse_duration(s: &str, whole: &str) -> Result<f64, String> {
     let t = s.trim().to_ascii_lowercase();
+    // The unit is the run of letters at the end, so that a number with an exponent
+    // (`1e-3s`, `2.5E2ms`) keeps its `e`.
     let split = t
-        .find(|c: char| c.is_ascii_alphabetic() || c == 'µ')
-        .unwrap_or(t.len());
+        .char_indices()
+        .rev()
+        .take_while(|(_, c)| c.is_ascii_alphabetic() || *c == 'µ')
+        .last()
+        .map_or(t.len(), |(i, _)| i);
     let (num, unit) = t.split_at(split);
     let scale = match unit {
         "s" => 1.0,
@@ -46,7 +51,8 @@ fn parse_duration(s: &str, whole: &str) -> Result<f64, String> {
         }
         _ => {
             return Err(format!(
-                "window `{whole}`: unknown unit `{unit}` (use s, ms or us)"
+                "window `{whole}`: unknown unit `{unit}` (accepted: a number, exponents allowed, \
+                 then s, ms or us: 50ms, 0.5s, 1e-3s; or `whole`, or `bubbles:N`)"
             ))
         }
     };
@@ -142,6 +148,26 @@ impl WindowSpec {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn durations_with_exponents_keep_their_exponent() {
+        assert_eq!(
+            "1e-3s".parse::<WindowSpec>(),
+            Ok(WindowSpec::Duration(1e-3))
+        );
+        assert_eq!(
+            "2.5E1ms".parse::<WindowSpec>(),
+            Ok(WindowSpec::Duration(0.025))
+        );
+        assert_eq!("1e9s".parse::<WindowSpec>(), Ok(WindowSpec::Duration(1e9)));
+        // 1e9 s is parsed, then refused as frames with a true message.
+        let e = WindowSpec::Duration(1e9)
+            .policy(20_000, |_| None)
+            .unwrap_err();
+        assert!(e.contains("1000000000 s"), "{e}");
+        let e = "5min".parse::<WindowSpec>().unwrap_err();
+        assert!(e.contains("`min`") && e.contains("accepted"), "{e}");
+    }
 
     #[test]
     fn parses_the_grammar() {

@@ -636,3 +636,22 @@ fn geometry_ties_go_to_the_smaller_page_then_the_larger_unit() {
         .contains("pages of 1024 to 16384 B read the same"));
     check_windows(&out.join("windows.csv"), &b.windows, true);
 }
+
+/// A 16 x 4 KiB log dumped with 0xFF padding to 17 MiB (a dump of the whole flash chip,
+/// larger than the core's 4096-page limit for 4 KiB pages) is read as 4 KiB pages: every
+/// record, and no power-loss cut reported (it used to be read as 8 KiB pages, losing
+/// records and reporting a cut head page).
+#[test]
+fn an_oversized_erased_padding_keeps_the_page_size_of_the_log() {
+    let b = build::<4096, 4>(16, 10, false);
+    let mut image = b.image.clone();
+    image.resize(17 << 20, 0xFF);
+    let dir = tempfile::tempdir().unwrap();
+    let img = write_image(dir.path(), "padded.bin", &image);
+    let out = dir.path().join("out");
+    let r = read_image(&args(&img, &out)).unwrap();
+    assert_eq!(r.geometry.page_bytes, 4096);
+    assert_eq!(r.records as usize, b.records);
+    assert!(!r.recovered_cut);
+    check_windows(&out.join("windows.csv"), &b.windows, true);
+}

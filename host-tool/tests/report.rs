@@ -348,6 +348,47 @@ fn a_truncated_last_row_is_left_out_and_a_bad_row_is_an_error() {
 }
 
 #[test]
+fn a_windows_csv_cut_mid_row_leaves_the_cut_row_out_with_a_note() {
+    let full = example("windows.csv");
+    let rows = full.lines().count() - 1;
+    // Cut inside the last row: fewer cells than the header, no line break.
+    let last_start = full.trim_end().rfind('\n').unwrap() + 1;
+    let cut = &full[..last_start + 12];
+    assert!(!cut.ends_with('\n'));
+    let dir = scratch(&[("windows.csv", cut.to_string())]);
+    let s = report(dir.path(), &dir.path().join("out"), |_| {});
+    assert_eq!(s.windows, rows - 1);
+    assert!(
+        s.notes.iter().any(|n| n.contains("cut mid-row")),
+        "{:?}",
+        s.notes
+    );
+}
+
+#[test]
+fn a_folder_mixing_two_runs_is_refused_naming_the_odd_file() {
+    let dir = scratch(&[
+        ("windows.csv", example("windows.csv")),
+        ("profile.csv", example("profile.csv")),
+    ]);
+    let listed = example("windows.csv").len();
+    std::fs::write(
+        dir.path().join("run.json"),
+        format!(
+            r#"{{"run_id": "1.0-1", "inputs": {{}}, "files": [{{"name": "windows.csv", "bytes": {listed}}}]}}"#
+        ),
+    )
+    .unwrap();
+    let mut args = ReportArgs::new(dir.path());
+    args.out = Some(dir.path().join("out"));
+    let e = run(&args).unwrap_err().to_string();
+    assert!(
+        e.contains("profile.csv") && e.contains("another run"),
+        "{e}"
+    );
+}
+
+#[test]
 fn a_header_only_windows_csv_gives_a_page_that_says_why_nothing_is_drawn() {
     let header = example("windows.csv").lines().next().unwrap().to_string() + "\n";
     let dir = scratch(&[("windows.csv", header)]);
@@ -400,5 +441,33 @@ fn write_example_reports() {
         let out = target.join(name);
         let s = report(&fixture(dir), &out, |_| {});
         println!("{s}");
+    }
+}
+
+/// A chord cell of 1e307 s (which used to hang the chord figure, its axis searching ticks
+/// up to infinity) is refused, naming the file, the line and the column.
+#[test]
+fn a_chord_cell_of_1e307_is_refused_naming_the_cell() {
+    for col in [
+        "bubble_chord_mean_s",
+        "bubble_chord_median_s",
+        "bubble_chord_p10_s",
+        "bubble_chord_p90_s",
+    ] {
+        let text = example("windows.csv");
+        let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+        let header: Vec<&str> = lines[0].split(',').collect();
+        let i = header.iter().position(|h| *h == col).unwrap();
+        let mut cells: Vec<String> = lines[3].split(',').map(str::to_string).collect();
+        cells[i] = "1e307".into();
+        lines[3] = cells.join(",");
+        let dir = scratch(&[("windows.csv", lines.join("\n") + "\n")]);
+        let mut args = ReportArgs::new(dir.path());
+        args.out = Some(dir.path().join("out"));
+        let e = run(&args).unwrap_err().to_string();
+        assert!(
+            e.contains("windows.csv") && e.contains("line 4") && e.contains(col),
+            "{e}"
+        );
     }
 }

@@ -55,6 +55,7 @@ fn kill_9() {
         window: window.clone(),
         quiet: true,
         levels: frothline_host::record_levels::LevelRule::Device,
+        strict: false,
     })
     .unwrap();
     let expected: Vec<WindowResult> = replay

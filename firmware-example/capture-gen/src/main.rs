@@ -97,6 +97,7 @@ fn run() -> Result<(), String> {
         window,
         quiet: true,
         levels: frothline_host::record_levels::LevelRule::Device,
+        strict: false,
     })
     .map_err(|e| e.to_string())?;
     let _ = std::fs::remove_dir_all(&tmp);
@@ -527,6 +528,7 @@ fn host_results(
         window,
         quiet: true,
         levels: frothline_host::record_levels::LevelRule::Device,
+        strict: false,
     })
     .map_err(|e| e.to_string())?;
     let _ = std::fs::remove_dir_all(&tmp);

@@ -903,6 +903,11 @@ impl ChordFigure<'_> {
             .map(|b| b.2)
             .fold(0.0, f64::max);
         let (lo, hi) = (lo / 1.5, hi * 1.5);
+        let (lo, hi) = if lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo {
+            (lo, hi)
+        } else {
+            (0.1, 100.0)
+        };
         let frac = |v: f64| (v / lo).ln() / (hi / lo).ln();
         let labels: Vec<String> = hists
             .iter()
@@ -1004,7 +1009,9 @@ impl ChordFigure<'_> {
         });
         let lo = values.clone().fold(f64::INFINITY, f64::min) * 1e3 / 1.6;
         let hi = values.fold(0.0, f64::max) * 1e3 * 1.6;
-        let (lo, hi) = if lo.is_finite() && hi > lo {
+        // A cell such as 1e307 s overflows to infinity in milliseconds; a log axis to
+        // infinity never finishes its ticks, so such a range falls back to the default.
+        let (lo, hi) = if lo.is_finite() && hi.is_finite() && hi > lo {
             (lo, hi)
         } else {
             (0.1, 100.0)

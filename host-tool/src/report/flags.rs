@@ -88,6 +88,11 @@ fn window(name: &str) -> Option<&'static str> {
              confirmed only after the chain's delay line had passed it (a flickering front); \
              since_front_s says by how much."
         }
+        "capture_cut" => {
+            "The capture stopped abruptly in this window (a truncated file, or a header its \
+             recorder never finished): the window may be shorter than the flow, and nothing \
+             after it was recorded."
+        }
         _ => return None,
     })
 }

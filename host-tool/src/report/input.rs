@@ -162,11 +162,34 @@ struct Table {
     reader: csv::Reader<BufReader<File>>,
     cols: HashMap<String, usize>,
     headers: Vec<String>,
+    /// Byte offset of the last line when the file does not end with a line break.
+    unterminated_tail: Option<u64>,
+}
+
+/// Where the last line of `file` starts, if the file does not end with a line break.
+fn unterminated_tail(file: &mut File) -> std::io::Result<Option<u64>> {
+    use std::io::{Read, Seek, SeekFrom};
+    let len = file.metadata()?.len();
+    if len == 0 {
+        return Ok(None);
+    }
+    let tail = len.min(1 << 16);
+    file.seek(SeekFrom::Start(len - tail))?;
+    let mut buf = vec![0u8; tail as usize];
+    file.read_exact(&mut buf)?;
+    file.seek(SeekFrom::Start(0))?;
+    if buf.last() == Some(&b'\n') {
+        return Ok(None);
+    }
+    Ok(Some(match buf.iter().rposition(|&b| b == b'\n') {
+        Some(i) => len - tail + i as u64 + 1,
+        None => len - tail,
+    }))
 }
 
 impl Table {
     fn open(path: &Path) -> Result<Option<Table>, ReportError> {
-        let file = match File::open(path) {
+        let mut file = match File::open(path) {
             Ok(f) => f,
             Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
             Err(source) => {
@@ -176,6 +199,11 @@ impl Table {
                 })
             }
         };
+        let unterminated_tail =
+            unterminated_tail(&mut file).map_err(|source| ReportError::Read {
+                path: path.to_path_buf(),
+                source,
+            })?;
         let mut reader = csv::ReaderBuilder::new()
             .flexible(true)
             .trim(csv::Trim::All)
@@ -195,6 +223,7 @@ impl Table {
             reader,
             cols,
             headers,
+            unterminated_tail,
         }))
     }
 
@@ -211,7 +240,9 @@ impl Table {
     }
 
     /// Visit every row; `each` returns a message for a malformed row. A malformed last row
-    /// is dropped (returned as a note); a malformed row with rows after it is an error.
+    /// is dropped (returned as a note); a malformed row with rows after it is an error. A
+    /// last row without its line break and with fewer cells than the header is malformed
+    /// (a file cut mid-row); shorter rows elsewhere are read, their missing cells empty.
     fn rows(
         &mut self,
         progress: Option<&ProgressBar>,
@@ -232,7 +263,20 @@ impl Table {
                         continue;
                     }
                     let line = rec.position().map(|p| p.line()).unwrap_or(line);
-                    if let Err(message) = each(&rec) {
+                    let at_unterminated_end = self
+                        .unterminated_tail
+                        .is_some_and(|start| rec.position().is_some_and(|p| p.byte() >= start));
+                    let short = at_unterminated_end && rec.len() < self.headers.len();
+                    let result = if short {
+                        Err(format!(
+                            "{} of {} cells and no line break: the file was cut mid-row",
+                            rec.len(),
+                            self.headers.len()
+                        ))
+                    } else {
+                        each(&rec)
+                    };
+                    if let Err(message) = result {
                         pending = Some((line, message));
                     }
                 }
@@ -286,7 +330,13 @@ fn text(rec: &csv::StringRecord, col: Option<usize>) -> &str {
     col.and_then(|i| rec.get(i)).unwrap_or("")
 }
 
-/// A number cell: empty, `NaN` and infinities read as "not computed".
+/// Largest magnitude a number cell may hold. No quantity of these files comes near it
+/// (seconds, hertz, metres per second, millimetres, counts of one run); beyond it a value
+/// is damage, and axis arithmetic on it would overflow.
+pub const MAX_CELL_MAGNITUDE: f64 = 1e12;
+
+/// A number cell: empty, `NaN` and infinities read as "not computed"; a finite value beyond
+/// [`MAX_CELL_MAGNITUDE`] is an error naming the column.
 fn num(
     rec: &csv::StringRecord,
     col: Option<usize>,
@@ -297,7 +347,14 @@ fn num(
         return Ok(None);
     }
     match cell.parse::<f64>() {
-        Ok(v) if v.is_finite() => Ok(Some(v)),
+        Ok(v) if v.is_finite() && v.abs() <= MAX_CELL_MAGNITUDE => Ok(Some(v)),
+        Ok(v) if v.is_finite() => {
+            let name = col.and_then(|i| headers.get(i)).map_or("?", |s| s.as_str());
+            Err(format!(
+                "column `{name}`: `{cell}` is beyond ±{MAX_CELL_MAGNITUDE:e}: not a measured \
+                 value (a damaged file?)"
+            ))
+        }
         Ok(_) => Ok(None),
         Err(_) => {
             let name = col.and_then(|i| headers.get(i)).map_or("?", |s| s.as_str());
@@ -318,12 +375,40 @@ pub fn read_run(dir: &Path, progress: &ProgressBar) -> Result<Run, ReportError> 
             dir.display()
         )));
     }
+    check_manifest(dir)?;
     read_windows(&mut run, progress)?;
     read_fronts(&mut run)?;
     read_profile(&mut run)?;
     read_chords(&mut run)?;
     run.indicators = super::indicators::read(dir, &mut run.files_found)?;
     Ok(run)
+}
+
+/// A folder written by `replay` holds a manifest ([`crate::output_set`]): every run file
+/// present must be the one it lists, so a folder that mixes the files of two runs is
+/// refused, naming the odd file. A folder without a manifest (written by hand or by another
+/// tool) is read as it is.
+fn check_manifest(dir: &Path) -> Result<(), ReportError> {
+    let manifest =
+        crate::output_set::Manifest::read(dir).map_err(|message| ReportError::Parse {
+            path: dir.join(crate::output_set::MANIFEST),
+            line: None,
+            message,
+        })?;
+    let Some(m) = manifest else {
+        return Ok(());
+    };
+    for name in crate::output_set::RUN_FILES {
+        if !dir.join(name).exists() {
+            continue;
+        }
+        m.check(dir, name).map_err(|message| ReportError::Parse {
+            path: dir.join(name),
+            line: None,
+            message: format!("{message}; replay again into an empty folder"),
+        })?;
+    }
+    Ok(())
 }
 
 fn read_windows(run: &mut Run, progress: &ProgressBar) -> Result<(), ReportError> {

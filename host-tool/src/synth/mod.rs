@@ -640,6 +640,16 @@ pub fn scenario_from_args(args: &SynthArgs) -> Result<Scenario, SynthError> {
                 reason: "must be at least 1".into(),
             });
         }
+        // A capture replay cannot read is no test capture.
+        if n > crate::rig::MAX_PROBES {
+            return Err(SynthError::Invalid {
+                key: "--probes".into(),
+                reason: format!(
+                    "{n}: `replay` runs at most {} probes on one chain",
+                    crate::rig::MAX_PROBES
+                ),
+            });
+        }
         s.replicate(n);
     }
     if let Some(sigma) = args.noise {
