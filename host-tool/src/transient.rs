@@ -6,8 +6,8 @@
 //! arrival (see `frothline_core::station`). Every chain is fed the same blocks of the
 //! capture. Windows are front-relative ([`WindowPolicy::AfterFront`]): `--window 20ms`
 //! gives 20 ms windows from the arrival, the default (`whole`) 50 ms ones (a whole-record
-//! average across a surge mixes dry tips, the roller and the flow behind it; other window
-//! kinds pass through unchanged).
+//! average across a surge mixes dry tips, the roller and the flow behind it); `bubbles:N`
+//! windows count from the front too (the station chain's front-relative bubble windows).
 //!
 //! Output, in the `--out` folder:
 //! - `windows.csv` ([`crate::windows_csv`]) with `since_front_s` filled in;
@@ -187,7 +187,8 @@ pub struct TransientRun {
 }
 
 /// The front-relative policy for `spec` at `sample_rate`: fixed durations count from the
-/// front, `whole` becomes [`DEFAULT_SLICE_S`] windows from the front, other kinds pass.
+/// front, `whole` becomes [`DEFAULT_SLICE_S`] windows from the front, bubble-count windows
+/// pass (a station chain starts them at the front).
 pub fn transient_policy(
     spec: &WindowSpec,
     sample_rate: u32,
