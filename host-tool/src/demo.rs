@@ -17,7 +17,7 @@
 use crate::commands::Command;
 use crate::device_sim::{SimCapture, SimOptions, SimStats};
 use crate::error::HostError;
-use crate::watch::{interrupt_flag, run_with, Startup, Ui, WatchOptions, WatchSummary};
+use crate::watch::{interrupt_flag, run_session, Startup, Ui, WatchOptions, WatchSummary};
 use crate::window_spec::WindowSpec;
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -186,6 +186,9 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
         .ok_or_else(|| HostError::Usage("the pseudo-terminal has no name".into()))?;
     use serialport::SerialPort;
     let _ = master.set_timeout(Duration::from_millis(2));
+    // A second handle on the device's end keeps the link up while the session drains it
+    // after the device stopped (the device's own handle closes when it stops).
+    let keep_open = master.try_clone_native().ok();
     let stop = Arc::new(AtomicBool::new(false));
     let sim = crate::device_sim::spawn(
         cap,
@@ -211,13 +214,21 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
         view: Default::default(),
         wait_for_port: false,
     };
-    let watch = run_with(opts, interrupt_flag(), &mut |_| {});
+    // The device stops sending when the session ends; the session then reads what it sent.
+    let stop_device = stop.clone();
+    let watch = run_session(
+        opts,
+        interrupt_flag(),
+        &mut || stop_device.store(true, Ordering::Relaxed),
+        &mut |_| {},
+    );
     stop.store(true, Ordering::Relaxed);
     let device = match sim.join() {
         Ok(r) => r?,
         Err(_) => return Err(HostError::Usage("the simulated device failed".into())),
     };
     drop(slave);
+    drop(keep_open);
     let summary = DemoSummary {
         watch: watch?,
         device,

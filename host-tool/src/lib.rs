@@ -10,7 +10,7 @@
 //! - [`synth`]: synthetic captures with known truth;
 //! - [`tipcheck`]: every tip's levels, noise, swing and interface times on a segment of a
 //!   capture, written into the layout on request;
-//! - [`session`], [`watch`], [`commands`], [`live`], [`dashboard`], [`archive`],
+//! - [`session`], [`watch`], [`link_drain`], [`commands`], [`live`], [`dashboard`], [`archive`],
 //!   [`unpack`]: the live link (framed results from devices over serial ports);
 //! - [`flash_image`], [`logbook_cmd`]: a field logger's flash image read back through the
 //!   core's log into the same CSV files;
@@ -30,6 +30,7 @@ pub mod error;
 pub mod flash_image;
 pub mod hydraulics;
 pub mod layout;
+pub mod link_drain;
 pub mod live;
 pub mod logbook_cmd;
 pub mod marks;
