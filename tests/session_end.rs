@@ -9,7 +9,7 @@
 #[test]
 fn a_demo_session_reads_every_result_the_device_sent() {
     let out = tempfile::tempdir().unwrap();
-    let args = frothline_host::demo::DemoArgs {
+    let args = frothline_host::live::demo::DemoArgs {
         plain: true,
         duration: 3.0,
         out: out.path().join("demo"),
@@ -18,7 +18,7 @@ fn a_demo_session_reads_every_result_the_device_sent() {
         transient: false,
         baud: 115_200,
     };
-    let s = frothline_host::demo::run(&args).unwrap();
+    let s = frothline_host::live::demo::run(&args).unwrap();
     assert!(s.device.windows_sent > 0);
     assert_eq!(s.watch.report.windows, s.device.windows_sent);
     let port = &s.watch.report.ports[0];

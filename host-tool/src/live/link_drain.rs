@@ -2,7 +2,7 @@
 //!
 //! When a session ends (its duration is over, `q`, Ctrl-C), bytes the device already sent
 //! are still on their way: in the port's buffers, in a reader's batch (gathered for up to
-//! [`crate::watch::GATHER`]), in the channel to the session. Closing at once drops the last
+//! [`crate::live::watch::GATHER`]), in the channel to the session. Closing at once drops the last
 //! frames (a 12 s demo lost 4 of 480 window results). So the session first tells whoever
 //! asked to be told (the demo stops its simulated device there), then keeps taking what
 //! the readers hand on until the link has been quiet for [`QUIET`], or for at most
