@@ -33,6 +33,7 @@ pub mod front;
 pub mod levels;
 pub mod logbook;
 pub mod phase;
+pub mod probe_config;
 pub mod profile;
 pub mod record;
 pub mod station;
