@@ -442,7 +442,7 @@ mod tests {
             l.observe(&frames, channels, channel, first);
             let width = 1i32 << want.shift;
             for (i, f) in frames.chunks_exact(channels).enumerate() {
-                if (first + i as u64) % LEARN_STRIDE != 0 {
+                if !(first + i as u64).is_multiple_of(LEARN_STRIDE) {
                     continue;
                 }
                 let v = f[channel];
