@@ -51,5 +51,6 @@ pub mod tipcheck;
 pub mod transient;
 pub mod unpack;
 pub mod watch;
+pub mod watch_control;
 pub mod window_spec;
 pub mod windows_csv;

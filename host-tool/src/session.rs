@@ -416,6 +416,8 @@ pub struct Session {
     runs: crate::runs::RunTracker,
     /// Host time of the bytes being decoded, µs since the Unix epoch.
     now_us: u64,
+    /// marks.csv beside the CSV files (created at the first mark).
+    marks: Option<crate::marks::MarksCsv>,
 }
 
 fn csv_file(path: &Path, header: &[&str]) -> Result<csv::Writer<BufWriter<File>>, HostError> {
@@ -477,10 +479,12 @@ impl Session {
             a.layout(crate::archive::now_us(), text)
                 .map_err(write_err(path))?;
         }
+        let marks = out.as_ref().map(|o| crate::marks::MarksCsv::new(&o.dir));
         let mut s = Session {
             opts,
             ports,
             devices: BTreeMap::new(),
+            marks,
             out,
             archive,
             report,
@@ -1008,6 +1012,31 @@ impl Session {
             w.flush().map_err(write_err(dir.join("profile.csv")))?;
         }
         Ok(())
+    }
+
+    /// A mark made at `t_us` for the device on `port`: a `mark` chunk in the archive (when
+    /// the session writes one), then a row of marks.csv (when it writes files). Returns
+    /// where the row went. `frothline unpack` calls it for every mark chunk it reads.
+    pub fn mark(
+        &mut self,
+        port: usize,
+        t_us: u64,
+        mark: &crate::marks::Mark,
+    ) -> Result<Option<PathBuf>, HostError> {
+        if let Some(a) = self.archive.as_mut() {
+            let path = a.path().to_path_buf();
+            a.mark(port as u16, t_us, &crate::marks::to_payload(mark))
+                .map_err(write_err(path))?;
+        }
+        let Some(m) = self.marks.as_mut() else {
+            return Ok(None);
+        };
+        let first = m.written == 0;
+        m.write(mark)?;
+        if first {
+            self.report.files.push(m.path().to_path_buf());
+        }
+        Ok(Some(m.path().to_path_buf()))
     }
 
     /// Close the session: write held windows (without times), flush the CSV files, sync the

@@ -501,8 +501,6 @@ struct Watch<'a> {
     out: Option<std::io::Stdout>,
     /// Standard output was closed (plain mode in a pipe whose reader went away).
     quit: bool,
-    /// marks.csv (when the session writes files).
-    marks: Option<crate::marks::MarksCsv>,
     observer: &'a mut dyn FnMut(&Event),
 }
 
@@ -625,16 +623,23 @@ impl Watch<'_> {
             ),
             None => (Default::default(), None),
         };
+        let t_us = crate::archive::now_us();
         let mark = crate::marks::Mark {
             run_number: tag.number,
             run_label: tag.label,
-            host_utc: crate::archive::utc_iso(crate::archive::now_us()),
+            host_utc: crate::archive::utc_iso(t_us),
             device_time_s,
-            note: note.trim().to_string(),
+            note: note
+                .trim()
+                .chars()
+                .take(crate::marks::MAX_NOTE_CHARS)
+                .collect(),
         };
-        let result = match self.marks.as_mut() {
-            Some(m) => m.write(&mark).map(|_| m.path().display().to_string()),
-            None => Ok("no file (the session writes none)".into()),
+        let port = device.map_or(0, |(_, p)| p);
+        let result = match self.session.mark(port, t_us, &mark) {
+            Ok(Some(path)) => Ok(path.display().to_string()),
+            Ok(None) => Ok("the archive only (the session writes no CSV files)".into()),
+            Err(e) => Err(e),
         };
         match result {
             Ok(to) => self.note(format!(
@@ -692,6 +697,23 @@ impl Watch<'_> {
         }
     }
 
+    /// An action from outside the keyboard, taken as its key would take it.
+    fn control(&mut self, c: crate::watch_control::Control) {
+        use crate::watch_control::Control;
+        match c {
+            Control::StartRun(label) => match parse_label(label.trim()) {
+                Ok(label) => {
+                    self.runs += 1;
+                    self.broadcast(Command::StartRun(label));
+                }
+                Err(e) => self.note(format!("run not started: {e}")),
+            },
+            Control::StopRun => self.broadcast(Command::StopRun),
+            Control::Mark(note) => self.mark(&note),
+            Control::Relearn => self.broadcast(Command::Relearn(u32::MAX)),
+        }
+    }
+
     fn broadcast(&mut self, cmd: Command) {
         for port in 0..self.opts.ports.len() {
             self.send(port, cmd.clone());
@@ -737,6 +759,18 @@ pub fn run_with(
     opts: WatchOptions,
     stop: Arc<AtomicBool>,
     observer: &mut dyn FnMut(&Event),
+) -> Result<WatchSummary, HostError> {
+    let (_keep, none) = mpsc::channel();
+    run_controlled(opts, stop, observer, none)
+}
+
+/// [`run_with`], also taking the actions sent on `control` (those of the dashboard's keys)
+/// as they come.
+pub fn run_controlled(
+    opts: WatchOptions,
+    stop: Arc<AtomicBool>,
+    observer: &mut dyn FnMut(&Event),
+    control: Receiver<crate::watch_control::Control>,
 ) -> Result<WatchSummary, HostError> {
     if opts.ports.is_empty() {
         return Err(HostError::Usage("give at least one --port".into()));
@@ -825,7 +859,6 @@ pub fn run_with(
             );
         }
     }
-    let w_marks = opts.dir.as_deref().map(crate::marks::MarksCsv::new);
     let mut w = Watch {
         opts,
         session,
@@ -835,10 +868,9 @@ pub fn run_with(
         runs: 0,
         out,
         quit: false,
-        marks: w_marks,
         observer,
     };
-    let result = main_loop(&mut w, &rx, &stop, t0, term.as_mut());
+    let result = main_loop(&mut w, &rx, &control, &stop, t0, term.as_mut());
     if term.is_some() {
         ratatui::restore();
     }
@@ -855,10 +887,7 @@ pub fn run_with(
         }
     }
     w.writers.clear();
-    let mut report = w.session.finish()?;
-    if let Some(m) = w.marks.as_ref().filter(|m| m.written > 0) {
-        report.files.push(m.path().to_path_buf());
-    }
+    let report = w.session.finish()?;
     drop(folder_lock);
     result?;
     drained?;
@@ -877,6 +906,7 @@ pub fn run_with(
 fn main_loop(
     w: &mut Watch<'_>,
     rx: &Receiver<LinkMsg>,
+    control: &Receiver<crate::watch_control::Control>,
     stop: &AtomicBool,
     t0: Instant,
     mut term: Option<&mut ratatui::DefaultTerminal>,
@@ -905,6 +935,9 @@ fn main_loop(
             }
             Err(RecvTimeoutError::Timeout) => {}
             Err(RecvTimeoutError::Disconnected) => return Ok(()),
+        }
+        while let Ok(c) = control.try_recv() {
+            w.control(c);
         }
         let Some(term) = term.as_deref_mut() else {
             continue;
