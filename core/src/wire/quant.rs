@@ -61,6 +61,11 @@ pub fn fraction(x: f32) -> u16 {
     unsigned(x, FRACTION_SCALE) as u16
 }
 
+/// A level in ADC counts -> whole counts (rounded half away from zero, saturating).
+pub fn counts(x: f32) -> i16 {
+    signed(x, 1.0) as i16
+}
+
 /// 1e-4 steps -> fraction.
 pub fn from_fraction(q: u16) -> f32 {
     q as f32 / FRACTION_SCALE
