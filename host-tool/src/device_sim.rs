@@ -7,7 +7,8 @@
 //! port -> the core's command Responder (repeats, already running, unknown kind, version,
 //!      malformed) -> StartRun / StopRun / SetWindow / Relearn / DescribeRequest -> Ack/Nack
 //! Describe at power-on, after SetWindow and on request; RunStart at every run start;
-//! Health every second (cumulative counters)
+//! Health every second (cumulative counters), then the tip health of every probe's latest
+//! window (kind 0x09)
 //! ```
 //!
 //! The chain is built from the same configuration `frothline replay` derives from the layout
@@ -629,6 +630,8 @@ impl SimDevice {
                 .get(r.probe as usize)
                 .and_then(|p| p.tip_spacing_mm);
             self.streamer.offer_window(wire_result(&r, fs, spacing));
+            self.streamer
+                .offer_tips(frothline_core::wire::TipReport::from_probe_window(&r));
         }
         let Some((idx, _)) = station else {
             return;

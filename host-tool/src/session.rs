@@ -163,6 +163,15 @@ pub enum Event {
         /// The counters.
         health: Health,
     },
+    /// Tip health of some probes (their latest windows).
+    TipHealth {
+        /// Port number.
+        port: usize,
+        /// Device id.
+        device: u16,
+        /// The reports.
+        tips: frothline_core::wire::TipHealth,
+    },
     /// A reply to a command: `nack` is `None` for an Ack.
     Reply {
         /// Port number.
@@ -418,6 +427,8 @@ pub struct Session {
     now_us: u64,
     /// marks.csv beside the CSV files (created at the first mark).
     marks: Option<crate::marks::MarksCsv>,
+    /// tips.csv beside them (created at the first tip-health report).
+    tips: Option<crate::tips_csv::TipsCsv>,
 }
 
 fn csv_file(path: &Path, header: &[&str]) -> Result<csv::Writer<BufWriter<File>>, HostError> {
@@ -480,11 +491,13 @@ impl Session {
                 .map_err(write_err(path))?;
         }
         let marks = out.as_ref().map(|o| crate::marks::MarksCsv::new(&o.dir));
+        let tips = out.as_ref().map(|o| crate::tips_csv::TipsCsv::new(&o.dir));
         let mut s = Session {
             opts,
             ports,
             devices: BTreeMap::new(),
             marks,
+            tips,
             out,
             archive,
             report,
@@ -734,6 +747,10 @@ impl Session {
                 device,
                 health,
             }),
+            Body::TipHealth(tips) => {
+                self.tip_health(port, device, &tips)?;
+                events.push(Event::TipHealth { port, device, tips });
+            }
             Body::Ack(a) => self.reply(port, device, a.seq, None, events),
             Body::Nack(n) => self.reply(port, device, n.seq, Some(n.reason), events),
             _ => events.push(Event::Stray { port, device, kind }),
@@ -934,6 +951,43 @@ impl Session {
                 .map_err(|e| write_err(&path)(e.into()))?;
         }
         out.dirty = true;
+        Ok(())
+    }
+
+    fn tip_health(
+        &mut self,
+        port: usize,
+        device: u16,
+        tips: &frothline_core::wire::TipHealth,
+    ) -> Result<(), HostError> {
+        if self.tips.is_none() {
+            return Ok(());
+        }
+        let fs = self
+            .devices
+            .get(&(port, device))
+            .and_then(|d| d.sample_rate_hz);
+        let run = self.runs.columns(port, device, self.now_us);
+        let mut rows = Vec::new();
+        for r in tips {
+            let name = self.meta(port, device, r.probe as usize).name;
+            let tips = [
+                ("leading", Some(&r.leading)),
+                ("trailing", r.trailing.as_ref()),
+            ];
+            for (which, t) in tips {
+                if let Some(t) = t {
+                    let mut row = crate::tips_csv::tip_cells(&name, which, r, t, fs);
+                    row.extend(run.iter().cloned());
+                    rows.push(row);
+                }
+            }
+        }
+        if let Some(t) = self.tips.as_mut() {
+            if t.write(&rows)? {
+                self.report.files.push(t.path().to_path_buf());
+            }
+        }
         Ok(())
     }
 
@@ -1145,7 +1199,7 @@ pub fn describe_event(e: &Event, ports: &[String]) -> Option<String> {
             desc.channels,
             desc.firmware.as_str()
         ),
-        Event::Window { .. } | Event::Health { .. } => return None,
+        Event::Window { .. } | Event::Health { .. } | Event::TipHealth { .. } => return None,
         Event::Front {
             port: p,
             device,
