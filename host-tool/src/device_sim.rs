@@ -630,8 +630,11 @@ impl SimDevice {
                 .get(r.probe as usize)
                 .and_then(|p| p.tip_spacing_mm);
             self.streamer.offer_window(wire_result(&r, fs, spacing));
-            self.streamer
-                .offer_tips(frothline_core::wire::TipReport::from_probe_window(&r));
+            // A window cut short (a command, the end of a run) says little of its tips.
+            if !r.flags.contains(Flags::PARTIAL_WINDOW) {
+                self.streamer
+                    .offer_tips(frothline_core::wire::TipReport::from_probe_window(&r));
+            }
         }
         let Some((idx, _)) = station else {
             return;

@@ -49,6 +49,7 @@ pub mod session_time;
 pub mod stdout;
 pub mod synth;
 pub mod tipcheck;
+pub mod tipcheck_live;
 pub mod tips_csv;
 pub mod transient;
 pub mod unpack;

@@ -711,6 +711,7 @@ impl Watch<'_> {
             Control::StopRun => self.broadcast(Command::StopRun),
             Control::Mark(note) => self.mark(&note),
             Control::Relearn => self.broadcast(Command::Relearn(u32::MAX)),
+            Control::Command(c) => self.broadcast(c),
         }
     }
 

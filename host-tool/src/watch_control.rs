@@ -4,7 +4,7 @@
 //! ([`crate::watch::run_controlled`]).
 
 /// One action, as a key and its prompt would take it.
-#[derive(Clone, Debug, PartialEq, Eq)]
+#[derive(Clone, Debug, PartialEq)]
 pub enum Control {
     /// `s` and a label: start a run on every device.
     StartRun(String),
@@ -14,4 +14,6 @@ pub enum Control {
     Mark(String),
     /// `r`: every device re-learns the levels of all its probes.
     Relearn,
+    /// Any command, sent to every device (a calibration's SetLevels).
+    Command(crate::commands::Command),
 }
