@@ -475,7 +475,12 @@ impl Session {
             .map(|_| PortState {
                 decoder: Box::new(Decoder::new()),
                 sent_decoder: Box::new(Decoder::new()),
-                commands: CommandLog::new(HOST_DEVICE_ID),
+                // A new session's commands start where no earlier session's did (the
+                // device would take a repeat of the last one for a repeat).
+                commands: CommandLog::starting_at(
+                    HOST_DEVICE_ID,
+                    (crate::archive::now_us() / 1_000) as u16,
+                ),
                 bytes: 0,
                 commands_sent: 0,
             })
