@@ -4,12 +4,12 @@
 //! and `unpack` of the archive writes the same files byte for byte.
 #![cfg(unix)]
 
-use frothline_host::archive::{ArchiveReader, ChunkKind};
-use frothline_host::device_sim::{self, SimCapture, SimOptions};
-use frothline_host::session::Event;
+use frothline_host::live::device_sim::{self, SimCapture, SimOptions};
+use frothline_host::live::watch::{self, Ui, WatchOptions};
+use frothline_host::live::watch_control::Control;
+use frothline_host::shared::archive::{ArchiveReader, ChunkKind};
+use frothline_host::shared::session::Event;
 use frothline_host::synth::Scenario;
-use frothline_host::watch::{self, Ui, WatchOptions};
-use frothline_host::watch_control::Control;
 use serialport::SerialPort;
 use std::collections::BTreeSet;
 use std::path::Path;
@@ -149,7 +149,7 @@ fn two_runs() {
     assert_runs_apart(&runs_of(&live, "windows.csv"), "windows.csv");
     assert_runs_apart(&runs_of(&live, "fronts.csv"), "fronts.csv");
     assert_runs_apart(&runs_of(&live, "profile.csv"), "profile.csv");
-    let marks = frothline_host::marks::read(&live).unwrap();
+    let marks = frothline_host::shared::marks::read(&live).unwrap();
     let got: Vec<_> = marks
         .iter()
         .map(|m| (m.run_number, m.run_label.as_str(), m.note.as_str()))
@@ -185,7 +185,7 @@ fn two_runs() {
     assert_eq!(mark_chunks, 2);
     let un = tmp.path().join("unpacked");
     let mut run_starts = Vec::new();
-    frothline_host::unpack::unpack_with(&archive, Some(&un), None, &mut |e| {
+    frothline_host::live::unpack::unpack_with(&archive, Some(&un), None, &mut |e| {
         if let Event::RunStart { run, .. } = e {
             run_starts.push((run.run, run.label.to_string()));
         }

@@ -8,8 +8,8 @@
 
 use frothline_core::wire::{Body, Decoder, FeedResult, Frame, NackReason, SetLevels};
 use frothline_core::{Flags, LevelSource, Polarity};
-use frothline_host::commands::{Command, CommandLog};
-use frothline_host::device_sim::{SimCapture, SimDevice, SimOptions, THREAD_STACK};
+use frothline_host::live::device_sim::{SimCapture, SimDevice, SimOptions, THREAD_STACK};
+use frothline_host::shared::commands::{Command, CommandLog};
 use frothline_host::synth::Scenario;
 use std::time::{Duration, Instant};
 

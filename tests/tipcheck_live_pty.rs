@@ -4,9 +4,9 @@
 //! command that the device acknowledges.
 #![cfg(unix)]
 
-use frothline_host::device_sim::{self, SimCapture, SimOptions};
+use frothline_host::live::device_sim::{self, SimCapture, SimOptions};
+use frothline_host::offline::tipcheck::TipcheckArgs;
 use frothline_host::synth::{Generator, Scenario};
-use frothline_host::tipcheck::TipcheckArgs;
 use serialport::SerialPort;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
@@ -59,7 +59,7 @@ fn live_tipcheck() {
         tolerance: 0.05,
         write: false,
     };
-    let report = frothline_host::tipcheck_live::run(&args, &path).unwrap();
+    let report = frothline_host::live::tipcheck_live::run(&args, &path).unwrap();
     stop.store(true, Ordering::Relaxed);
     let stats = sim.join().unwrap().unwrap();
     drop(slave);

@@ -1,0 +1,780 @@
+//! `frothline replay`: a recorded capture through the same core the device runs.
+//!
+//! Output files are written as one set ([`crate::shared::output_set`]): staged, then renamed into
+//! place with a manifest only when the whole capture went through, so a failed run leaves
+//! the folder as it was. The summary comes from running totals ([`crate::offline::run_summary`]):
+//! memory does not grow with the number of windows.
+//!
+//! A capture that stopped abruptly (a truncated data chunk, an unfinished header) is read to
+//! where it stops: the results up to there are written, the last window is flagged
+//! `capture_cut`, a warning names the file and the frame, and `--strict` turns it into a
+//! failure (exit 2, after the files are written).
+
+use crate::offline::record_levels::{self, LevelRule, RecordLevels};
+use crate::offline::run_summary::RunTotals;
+use crate::shared::capture::{Capture, CaptureError};
+use crate::shared::error::{write_err, HostError};
+use crate::shared::layout::Layout;
+use crate::shared::output_set::{Committed, OutputSet};
+use crate::shared::probe_summary::{ProbeTally, SummaryRow, SummaryRule, WindowFigures};
+use crate::shared::rig::HostRecord as ProbeWindow;
+use crate::shared::rig::{chain_config, HostChain, MAX_PROBES};
+use crate::shared::window_spec::WindowSpec;
+use crate::shared::windows_csv::{ProbeMeta, WindowsCsv};
+use frothline_core::levels::Levels;
+use indicatif::{ProgressBar, ProgressStyle};
+use std::io::BufWriter;
+use std::path::{Path, PathBuf};
+
+/// Frames read from the capture per block.
+const BLOCK_FRAMES: usize = 1 << 15;
+/// Windows per block at most in the parallel driver: the records of a block travel from the
+/// workers to the writer together, so short windows get shorter blocks and the records in
+/// flight stay a few megabytes whatever the window length.
+const WINDOWS_PER_BLOCK: usize = 256;
+
+/// Frames per block for `policy` (results do not depend on it: the core's records do not
+/// depend on how samples are split into pushes).
+fn block_frames(policy: &frothline_core::WindowPolicy) -> usize {
+    match policy {
+        frothline_core::WindowPolicy::Frames(n) => (*n as usize)
+            .saturating_mul(WINDOWS_PER_BLOCK)
+            .clamp(1024, BLOCK_FRAMES),
+        _ => BLOCK_FRAMES,
+    }
+}
+
+/// Arguments of `frothline replay`.
+#[derive(clap::Args, Debug, Clone)]
+pub struct ReplayArgs {
+    /// The capture: a WAV file, one channel per probe tip (16-bit PCM is usual; 8/24/32-bit
+    /// integer and 32-bit float are read too).
+    pub capture: PathBuf,
+    /// The rig layout (TOML): which channel is which tip, elevations, levels, detector settings.
+    #[arg(long, short)]
+    pub layout: PathBuf,
+    /// Folder for the output files (created if missing): windows.csv.
+    #[arg(long, short)]
+    pub out: PathBuf,
+    /// Analysis window: `whole` (one window over the capture); a duration with a unit such
+    /// as `50ms`, `0.5s`, `2s` (consecutive windows from the start of the capture); or
+    /// `bubbles:N[@PROBE][,max=DURATION]`, adaptive windows that each hold N bubbles of the
+    /// reference probe's leading tip (default: the first probe), e.g. `bubbles:200@B2-3,max=1s`
+    /// — for unsteady flows, where a fixed duration holds too few bubbles at times.
+    #[arg(long, short, default_value = "whole")]
+    pub window: WindowSpec,
+    /// No progress bar and no summary table.
+    #[arg(long, short)]
+    pub quiet: bool,
+    /// Levels of tips without fixed levels in the layout: `record` learns them from the
+    /// whole capture first, then processes it from its first frame; `device` learns them
+    /// as the device does, during the record (its first learning period runs without
+    /// levels), and reproduces a device's records exactly.
+    #[arg(long, value_enum, default_value_t = LevelRule::Record)]
+    pub levels: LevelRule,
+    /// Fail (exit 2) when the capture stopped abruptly (truncated, or a header its recorder
+    /// never finished). Without it, the results up to the cut are written with a warning and
+    /// the last window is flagged `capture_cut`. The files are written either way.
+    #[arg(long)]
+    pub strict: bool,
+}
+
+/// Whether a replay hands back every record ([`run`], for tests and tools that compare
+/// records) or only running totals ([`run_with`] with `TotalsOnly`, the command line: memory
+/// flat in the length of the capture).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Keep {
+    /// Keep every record in [`ReplayReport::records`].
+    Records,
+    /// Keep only [`ReplayReport::totals`].
+    TotalsOnly,
+}
+
+/// What a replay produced, for the summary and for tests.
+#[derive(Debug)]
+pub struct ReplayReport {
+    /// The layout used.
+    pub layout: Layout,
+    /// Frames per second of the capture.
+    pub sample_rate: u32,
+    /// Frames read.
+    pub frames: u64,
+    /// Every record, in the order the chain gave them (empty under [`Keep::TotalsOnly`]).
+    pub records: Vec<ProbeWindow>,
+    /// Running totals per probe.
+    pub totals: RunTotals,
+    /// The per-probe summary of [`crate::shared::probe_summary`] under its default rule, one per
+    /// layout probe.
+    pub tallies: Vec<ProbeTally>,
+    /// The windows.csv written.
+    pub windows_csv: PathBuf,
+    /// The warning about a capture that stopped abruptly, if it did.
+    pub abrupt_end: Option<String>,
+    /// What the run replaced in the output folder.
+    pub committed: Committed,
+}
+
+/// Layout probes as CSV row metadata (where the levels come from not known).
+pub fn probe_meta(layout: &Layout) -> Vec<ProbeMeta> {
+    probe_meta_with(layout, &[])
+}
+
+/// Layout probes as CSV row metadata, with where each probe's leading-tip levels come
+/// from (`sources`, per probe; see [`levels_sources`]).
+pub fn probe_meta_with(layout: &Layout, sources: &[Option<&'static str>]) -> Vec<ProbeMeta> {
+    layout
+        .probes
+        .iter()
+        .enumerate()
+        .map(|(i, p)| ProbeMeta {
+            name: p.name.clone(),
+            elevation_mm: p.elevation_mm,
+            x_mm: p.x_mm,
+            levels_from: sources.get(i).copied().flatten(),
+        })
+        .collect()
+}
+
+/// Where each probe's leading-tip levels come from: the layout, the record (`learnt`, when
+/// the record rule ran) or the device's causal rule.
+pub fn levels_sources(layout: &Layout, learnt: Option<&RecordLevels>) -> Vec<Option<&'static str>> {
+    layout
+        .probes
+        .iter()
+        .map(|p| {
+            if p.tip_levels(false).is_some() {
+                return Some("layout");
+            }
+            let ch = p.leading.min(255) as u8;
+            Some(
+                learnt
+                    .and_then(|l| l.tip(ch))
+                    .and_then(|t| t.outcome.source_name())
+                    .unwrap_or("device_rule"),
+            )
+        })
+        .collect()
+}
+
+/// Tips that learn their levels during the record (the device's rule, or the tips the
+/// record rule could not give levels) need a learning period of at least 64 frames to fill
+/// its histogram: a shorter one (`learn_period_s = 1e-9`, or a 1 Hz file) is refused,
+/// with the key, the value and the frames it makes at the capture's rate.
+pub fn check_learn_period(
+    cfg: &frothline_core::ChainConfig<{ crate::shared::rig::MAX_PROBES }>,
+    layout: &Layout,
+    sample_rate: u32,
+    layout_path: &Path,
+) -> Result<(), HostError> {
+    let learning = cfg.probes.iter().any(|p| {
+        core::iter::once(&p.leading)
+            .chain(p.trailing.as_ref())
+            .any(|t| t.levels == frothline_core::LevelSource::Learnt)
+    });
+    let period = layout.detector.learn_period_s;
+    let frames = period * sample_rate as f64;
+    if learning && frames < 64.0 {
+        return Err(HostError::Usage(format!(
+            "{}: key `detector.learn_period_s`: {period} s is {frames:.3e} frames at \
+             {sample_rate} Hz, but a learning period must hold at least 64 frames ({:.4} s \
+             at this rate) to fill its histogram; give a longer period, or fix the tips' \
+             levels in the layout",
+            layout_path.display(),
+            64.0 / sample_rate.max(1) as f64
+        )));
+    }
+    Ok(())
+}
+
+/// A learning period too short is an error under the device's rule; under the record rule
+/// it concerns only the tips the record could not give levels (already named), so it is a
+/// warning there.
+pub fn period_rule(check: Result<(), HostError>, rule: LevelRule) -> Result<(), HostError> {
+    match (check, rule) {
+        (Err(e), LevelRule::Record) => {
+            eprintln!("warning: {e}");
+            Ok(())
+        }
+        (other, _) => other,
+    }
+}
+
+/// The layout's fixed levels must lie inside the capture's sample range.
+pub fn check_levels_fit(
+    layout: &Layout,
+    cap: &Capture,
+    layout_path: &Path,
+) -> Result<(), HostError> {
+    let format = cap.format();
+    layout.check_levels(format.full_scale(), &format.to_string(), layout_path)?;
+    Ok(())
+}
+
+/// Open a capture and its layout and build the chain for them.
+pub fn open_rig(
+    capture: &Path,
+    layout: &Path,
+    window: WindowSpec,
+) -> Result<(Capture, Layout, Box<HostChain>), HostError> {
+    let layout_doc = Layout::load(layout)?;
+    let mut cap = Capture::open(capture)?;
+    require_frames(&cap)?;
+    cap.end_at_cut();
+    layout_doc.check_channels(cap.channels(), layout)?;
+    check_levels_fit(&layout_doc, &cap, layout)?;
+    if layout_doc.probes.len() > MAX_PROBES {
+        return Err(HostError::Usage(format!(
+            "{}: {} probes, the host handles at most {MAX_PROBES}",
+            layout.display(),
+            layout_doc.probes.len()
+        )));
+    }
+    let policy = window
+        .policy(cap.sample_rate(), |name| {
+            layout_doc.probes.iter().position(|p| p.name == name)
+        })
+        .map_err(HostError::Usage)?;
+    let cfg = chain_config(&layout_doc, cap.channels(), cap.sample_rate(), policy, &cap).map_err(
+        |source| HostError::Config {
+            file: layout.to_path_buf(),
+            source,
+        },
+    )?;
+    let chain = HostChain::new(cfg).map_err(|source| HostError::Config {
+        file: layout.to_path_buf(),
+        source,
+    })?;
+    Ok((cap, layout_doc, Box::new(chain)))
+}
+
+/// `chain` rebuilt with the record's levels for its learning tips; the tips that did not
+/// learn are reported on stderr (probe and tip named) and keep the causal rule.
+pub fn with_record_levels(
+    chain: Box<HostChain>,
+    learnt: &RecordLevels,
+    layout: &Layout,
+    layout_path: &Path,
+) -> Result<Box<HostChain>, HostError> {
+    let mut cfg = chain.config().clone();
+    drop(chain);
+    report_unlearnt(learnt, layout, cfg.detector.min_swing);
+    learnt.apply(&mut cfg);
+    let chain = HostChain::new(cfg).map_err(|source| HostError::Config {
+        file: layout_path.to_path_buf(),
+        source,
+    })?;
+    Ok(Box::new(chain))
+}
+
+/// Tell the user on stderr which tips learnt no levels from the record.
+pub fn report_unlearnt(learnt: &RecordLevels, layout: &Layout, min_swing: u16) {
+    let names: Vec<String> = layout.probes.iter().map(|p| p.name.clone()).collect();
+    for w in learnt.warnings(&names, min_swing) {
+        eprintln!("warning: {w}");
+    }
+}
+
+/// Levels that change during the record, segment by segment (drift tracking): every tip
+/// listed takes its segment's levels at the segment's first frame.
+#[derive(Clone, Debug, Default)]
+pub struct LevelSchedule {
+    /// Frames per segment (> 0).
+    pub segment_frames: u64,
+    /// (layout probe index, trailing tip, levels per segment).
+    pub tips: Vec<(usize, bool, Vec<Levels>)>,
+}
+
+impl LevelSchedule {
+    /// The schedule of a record's per-segment levels (tips without levels left out);
+    /// `None` when the record was not learnt segment by segment.
+    pub fn from_record(learnt: &RecordLevels) -> Option<LevelSchedule> {
+        if learnt.segment_frames == 0 {
+            return None;
+        }
+        let n = learnt.segment_count();
+        let tips = learnt
+            .tips
+            .iter()
+            .enumerate()
+            .filter_map(|(i, t)| {
+                let levels: Option<Vec<Levels>> =
+                    (0..n).map(|k| learnt.levels_in_segment(i, k)).collect();
+                levels.map(|l| (t.probe, t.trailing, l))
+            })
+            .collect();
+        Some(LevelSchedule {
+            segment_frames: learnt.segment_frames,
+            tips,
+        })
+    }
+
+    /// Apply the levels of the segment that starts at `frame`, if one does, to the tips of
+    /// `chain` (`local` maps a layout probe index to the chain's).
+    fn apply(&self, chain: &mut HostChain, frame: u64, local: &dyn Fn(usize) -> Option<usize>) {
+        if self.segment_frames == 0 || !frame.is_multiple_of(self.segment_frames) {
+            return;
+        }
+        let k = (frame / self.segment_frames) as usize;
+        for (probe, trailing, levels) in &self.tips {
+            if let (Some(p), Some(l)) = (local(*probe), levels.get(k)) {
+                chain.set_tip_levels(p, *trailing, *l);
+            }
+        }
+    }
+}
+
+/// A capture with no complete frame is refused: there is nothing to replay, and a summary
+/// of no samples would be all NaN.
+///
+/// A capture wider than the core's [`MAX_CHANNELS`](frothline_core::MAX_CHANNELS) is
+/// refused here too, naming the capture and its true channel count.
+pub fn require_frames(cap: &Capture) -> Result<(), HostError> {
+    if cap.channels() > frothline_core::MAX_CHANNELS {
+        return Err(CaptureError::TooManyChannels {
+            path: cap.path().to_path_buf(),
+            channels: cap.channels(),
+            max: frothline_core::MAX_CHANNELS,
+        }
+        .into());
+    }
+    if cap.frames_in_file() == 0 {
+        return Err(CaptureError::NoFrames {
+            path: cap.path().to_path_buf(),
+            channels: cap.channels(),
+        }
+        .into());
+    }
+    Ok(())
+}
+
+/// Raises [`Flags::CAPTURE_CUT`](frothline_core::Flags::CAPTURE_CUT) on the records that
+/// reach the last frame of a capture that stopped abruptly.
+pub fn mark_cut(r: &mut ProbeWindow, abrupt: bool, last_frame: u64) {
+    if abrupt && r.end >= last_frame {
+        r.flags |= frothline_core::Flags::CAPTURE_CUT;
+    }
+}
+
+/// Push every frame of `cap` through `chain`, handing each record to `sink`.
+pub fn drive(
+    cap: &mut Capture,
+    chain: &mut HostChain,
+    progress: &ProgressBar,
+    sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
+) -> Result<u64, HostError> {
+    drive_with(cap, chain, None, progress, sink)
+}
+
+/// [`drive`] with the levels of `schedule` applied as the record goes.
+pub fn drive_with(
+    cap: &mut Capture,
+    chain: &mut HostChain,
+    schedule: Option<&LevelSchedule>,
+    progress: &ProgressBar,
+    mut sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
+) -> Result<u64, HostError> {
+    let mut buf = Vec::with_capacity(BLOCK_FRAMES * cap.channels());
+    let mut frames = 0u64;
+    loop {
+        let n = cap.read_frames(&mut buf, BLOCK_FRAMES)?;
+        if n == 0 {
+            break;
+        }
+        frames += n as u64;
+        push_all(chain, &buf, schedule, &Some, &mut |r| sink(r))?;
+        progress.inc(n as u64);
+    }
+    finish_all(chain, &mut |r| sink(r))?;
+    Ok(frames)
+}
+
+/// Push a whole block, draining records as the chain's queue fills, and cut at the
+/// schedule's segment starts to apply their levels.
+fn push_all<E>(
+    chain: &mut HostChain,
+    block: &[i16],
+    schedule: Option<&LevelSchedule>,
+    local: &dyn Fn(usize) -> Option<usize>,
+    sink: &mut dyn FnMut(ProbeWindow) -> Result<(), E>,
+) -> Result<(), E> {
+    let channels = (chain.config().channels as usize).max(1);
+    let mut rest = block;
+    while !rest.is_empty() {
+        let mut piece = rest;
+        if let Some(s) = schedule.filter(|s| s.segment_frames > 0) {
+            let at = chain.frames();
+            s.apply(chain, at, local);
+            let to_next = s.segment_frames - at % s.segment_frames;
+            let take = (to_next as usize).saturating_mul(channels).min(rest.len());
+            piece = &rest[..take];
+        }
+        let mut left = piece;
+        while !left.is_empty() {
+            let used = chain.push(left);
+            left = &left[used..];
+            while let Some(r) = chain.poll() {
+                sink(r.without_sums())?;
+            }
+        }
+        rest = &rest[piece.len()..];
+    }
+    Ok(())
+}
+
+/// Close the record and drain every remaining record.
+fn finish_all<E>(
+    chain: &mut HostChain,
+    sink: &mut dyn FnMut(ProbeWindow) -> Result<(), E>,
+) -> Result<(), E> {
+    while chain.finish().is_err() {
+        while let Some(r) = chain.poll() {
+            sink(r.without_sums())?;
+        }
+    }
+    while let Some(r) = chain.poll() {
+        sink(r.without_sums())?;
+    }
+    Ok(())
+}
+
+/// Like [`drive`], with the probes split over worker threads, one chain each, fed the same
+/// blocks. Probes are independent under the `Whole` and fixed-duration window policies, so
+/// the records are the ones one chain would give; they are handed to `sink` in the same
+/// order (by window start, then probe). Other policies run on one chain.
+pub fn drive_parallel(
+    cap: &mut Capture,
+    chain: Box<HostChain>,
+    workers: usize,
+    progress: &ProgressBar,
+    sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
+) -> Result<u64, HostError> {
+    drive_parallel_with(cap, chain, None, workers, progress, sink)
+}
+
+/// [`drive_parallel`] with the levels of `schedule` applied as the record goes.
+pub fn drive_parallel_with(
+    cap: &mut Capture,
+    chain: Box<HostChain>,
+    schedule: Option<&LevelSchedule>,
+    workers: usize,
+    progress: &ProgressBar,
+    mut sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
+) -> Result<u64, HostError> {
+    use frothline_core::WindowPolicy;
+    use std::collections::BTreeMap;
+    use std::sync::{mpsc, Arc};
+    let cfg = chain.config().clone();
+    let independent = matches!(cfg.window, WindowPolicy::Whole | WindowPolicy::Frames(_));
+    let workers = workers.min(cfg.probes.len());
+    if workers <= 1 || !independent {
+        let mut chain = chain;
+        return drive_with(cap, &mut chain, schedule, progress, sink);
+    }
+    // Contiguous groups of probes, balanced by tip count.
+    let tips: Vec<usize> = cfg
+        .probes
+        .iter()
+        .map(|p| 1 + p.trailing.is_some() as usize)
+        .collect();
+    let total: usize = tips.iter().sum();
+    let mut groups: Vec<Vec<usize>> = vec![Vec::new(); workers];
+    let mut acc = 0;
+    for (i, t) in tips.iter().enumerate() {
+        let g = (acc * workers / total).min(workers - 1);
+        groups[g].push(i);
+        acc += t;
+    }
+    groups.retain(|g| !g.is_empty());
+    let mut chains = Vec::new();
+    for g in &groups {
+        let mut c = cfg.clone();
+        c.probes.clear();
+        for &i in g {
+            let _ = c.probes.push(cfg.probes[i]);
+        }
+        let c = HostChain::new(c)
+            .map_err(|e| HostError::Usage(format!("internal: split chain refused: {e}")))?;
+        chains.push((Box::new(c), g.clone()));
+    }
+    std::thread::scope(|scope| {
+        let (rec_tx, rec_rx) = mpsc::channel::<(usize, Vec<ProbeWindow>)>();
+        let mut block_txs = Vec::new();
+        for (w, (mut chain, global)) in chains.into_iter().enumerate() {
+            let (tx, rx) = mpsc::sync_channel::<Arc<Vec<i16>>>(2);
+            block_txs.push(tx);
+            let rec_tx = rec_tx.clone();
+            scope.spawn(move || {
+                let out = std::cell::RefCell::new(Vec::new());
+                let mut keep = |mut r: ProbeWindow| -> Result<(), ()> {
+                    r.probe = global[r.probe as usize] as u8;
+                    out.borrow_mut().push(r);
+                    Ok(())
+                };
+                let local = |g: usize| global.iter().position(|&x| x == g);
+                for block in rx {
+                    let _ = push_all(&mut chain, &block, schedule, &local, &mut keep);
+                    let _ = rec_tx.send((w, out.take()));
+                }
+                let _ = finish_all(&mut chain, &mut keep);
+                let _ = rec_tx.send((w, out.take()));
+            });
+        }
+        drop(rec_tx);
+        let n_workers = block_txs.len();
+        let mut pending: BTreeMap<(u64, u8), ProbeWindow> = BTreeMap::new();
+        let mut last_start = vec![0u64; n_workers];
+        let mut flush =
+            |pending: &mut BTreeMap<(u64, u8), ProbeWindow>, upto: u64| -> Result<(), HostError> {
+                while let Some(entry) = pending.first_entry() {
+                    if entry.key().0 >= upto {
+                        break;
+                    }
+                    sink(entry.remove())?;
+                }
+                Ok(())
+            };
+        let mut take =
+            |w: usize, recs: Vec<ProbeWindow>, pending: &mut BTreeMap<(u64, u8), ProbeWindow>| {
+                for r in recs {
+                    last_start[w] = last_start[w].max(r.start);
+                    pending.insert((r.start, r.probe), r);
+                }
+                *last_start.iter().min().unwrap_or(&0)
+            };
+        let mut frames = 0u64;
+        let block_frames = block_frames(&cfg.window);
+        let mut buf = Vec::with_capacity(block_frames * cap.channels());
+        let result: Result<(), HostError> = (|| {
+            loop {
+                let n = cap.read_frames(&mut buf, block_frames)?;
+                if n == 0 {
+                    break;
+                }
+                frames += n as u64;
+                let block = Arc::new(std::mem::take(&mut buf));
+                for tx in &block_txs {
+                    let _ = tx.send(Arc::clone(&block));
+                }
+                buf = Arc::try_unwrap(block)
+                    .unwrap_or_else(|_| Vec::with_capacity(block_frames * cap.channels()));
+                while let Ok((w, recs)) = rec_rx.try_recv() {
+                    let upto = take(w, recs, &mut pending);
+                    flush(&mut pending, upto)?;
+                }
+                progress.inc(n as u64);
+            }
+            Ok(())
+        })();
+        drop(block_txs);
+        for (w, recs) in rec_rx.iter() {
+            let upto = take(w, recs, &mut pending);
+            if result.is_ok() {
+                flush(&mut pending, upto)?;
+            }
+        }
+        result?;
+        flush(&mut pending, u64::MAX)?;
+        Ok(frames)
+    })
+}
+
+fn progress_bar(frames: u64, quiet: bool) -> ProgressBar {
+    if quiet {
+        return ProgressBar::hidden();
+    }
+    let bar = ProgressBar::new(frames);
+    if let Ok(style) = ProgressStyle::with_template(
+        "{msg:10} [{bar:40}] {percent:>3}% {elapsed_precise} eta {eta}",
+    ) {
+        bar.set_style(style.progress_chars("=> "));
+    }
+    bar.set_message("replaying");
+    bar
+}
+
+/// Run a replay and write its files, keeping every record (see [`Keep`]).
+pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
+    run_with(args, Keep::Records)
+}
+
+/// Run a replay and write its files.
+pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError> {
+    // Transient layouts (surge fronts): one station chain per station, front-relative
+    // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::offline::transient`).
+    if crate::offline::transient::is_transient(&Layout::load(&args.layout)?) {
+        return crate::offline::transient::run(args).map(|(_, report)| report);
+    }
+    let (mut cap, layout, mut chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
+    let mut learnt = None;
+    if args.levels == LevelRule::Record {
+        let cfg = chain.config();
+        let tips = record_levels::learning_tips(cfg, |i| i);
+        let l = record_levels::learn_with(&args.capture, &tips, cfg.detector.min_swing, true)?;
+        chain = with_record_levels(chain, &l, &layout, &args.layout)?;
+        learnt = Some(l);
+    }
+    period_rule(
+        check_learn_period(chain.config(), &layout, cap.sample_rate(), &args.layout),
+        args.levels,
+    )?;
+    let set = OutputSet::begin(&args.out)?;
+    let staged = set.staged("windows.csv");
+    let file = set.create("windows.csv")?;
+    let csv_err = |e: csv::Error| HostError::Write {
+        path: staged.clone(),
+        source: e.into(),
+    };
+    let mut csv = WindowsCsv::new(BufWriter::new(file)).map_err(csv_err)?;
+    let meta = probe_meta_with(&layout, &levels_sources(&layout, learnt.as_ref()));
+    let spacing: Vec<Option<f64>> = layout.probes.iter().map(|p| p.tip_spacing_mm).collect();
+    let fs = cap.sample_rate();
+    let bar = progress_bar(cap.frames_in_file(), args.quiet);
+    let mut records = Vec::new();
+    let mut totals = RunTotals::new(layout.probes.len());
+    // The per-probe summary, streaming (memory flat in the record length).
+    let rule = SummaryRule::default();
+    let mut tallies = vec![ProbeTally::new(); layout.probes.len()];
+    let (abrupt, last_frame) = (cap.ends_abruptly(), cap.frames_in_file());
+    let workers = std::thread::available_parallelism()
+        .map_or(1, |n| n.get())
+        .min(4);
+    let schedule = learnt.as_ref().and_then(LevelSchedule::from_record);
+    let result = drive_parallel_with(
+        &mut cap,
+        chain,
+        schedule.as_ref(),
+        workers,
+        &bar,
+        |mut r| {
+            mark_cut(&mut r, abrupt, last_frame);
+            csv.write(
+                &r,
+                &meta[r.probe as usize],
+                fs,
+                None,
+                spacing[r.probe as usize],
+            )
+            .map_err(csv_err)?;
+            totals.add(&r);
+            if let Some(t) = tallies.get_mut(r.probe as usize) {
+                t.add(&window_figures(&r, fs, spacing[r.probe as usize]), &rule);
+            }
+            if keep == Keep::Records {
+                records.push(r);
+            }
+            Ok(())
+        },
+    );
+    bar.finish_and_clear();
+    let frames = result?;
+    csv.finish().map_err(write_err(&staged))?;
+    let committed = set.commit(
+        &["windows.csv"],
+        &[("capture", &args.capture), ("layout", &args.layout)],
+    )?;
+    let abrupt_end = cap.abrupt_end_warning();
+    let report = ReplayReport {
+        layout,
+        sample_rate: fs,
+        frames,
+        records,
+        totals,
+        tallies,
+        windows_csv: args.out.join("windows.csv"),
+        abrupt_end,
+        committed,
+    };
+    if let Some(w) = &report.abrupt_end {
+        eprintln!("warning: {w}");
+    }
+    if !args.quiet {
+        crate::shared::stdout::print(&summary_table(&report));
+    }
+    if args.strict {
+        if let Some(e) = cap.abrupt_end_error() {
+            return Err(e.into());
+        }
+    }
+    Ok(report)
+}
+
+/// The figures of a chain record for the per-probe summary (`spacing_mm`: the probe's tip
+/// spacing, for the velocity).
+pub fn window_figures(r: &ProbeWindow, sample_rate: u32, spacing_mm: Option<f64>) -> WindowFigures {
+    let fs = sample_rate.max(1) as f64;
+    let frames = r.end.saturating_sub(r.start);
+    let corr = r.correlation.as_ref();
+    WindowFigures {
+        duration_s: frames as f64 / fs,
+        void_fraction: r.lead.void_fraction().map(f64::from),
+        count_rate_hz: r.lead.bubble_count_rate(fs as f32).map(f64::from),
+        bubbles: Some(r.lead.bubbles as f64),
+        velocity_m_s: corr
+            .and_then(|c| c.velocity_m_s(spacing_mm? as f32, fs as f32))
+            .map(f64::from),
+        turbulence_intensity: corr.and_then(|c| c.turbulence_intensity).map(f64::from),
+        chord_median_s: r.lead.bubble_chords.median().map(|m| m as f64 / fs),
+        flags: r.flags,
+        before_front: r.since_front.is_some_and(|t| t < 0),
+    }
+}
+
+/// Per-probe tallies of `records` under `rule`, one per layout probe.
+pub fn probe_tallies(
+    layout: &Layout,
+    sample_rate: u32,
+    records: &[ProbeWindow],
+    rule: &SummaryRule,
+) -> Vec<ProbeTally> {
+    let mut t = vec![ProbeTally::new(); layout.probes.len()];
+    for r in records {
+        let p = r.probe as usize;
+        if let Some(tally) = t.get_mut(p) {
+            let spacing = layout.probes.get(p).and_then(|p| p.tip_spacing_mm);
+            tally.add(&window_figures(r, sample_rate, spacing), rule);
+        }
+    }
+    t
+}
+
+/// A short human summary: one line per probe over all its windows (see
+/// [`crate::shared::probe_summary`] for the rule on flagged windows).
+pub fn summary_table(r: &ReplayReport) -> String {
+    use std::fmt::Write;
+    let mut s = String::new();
+    let secs = r.frames as f64 / r.sample_rate.max(1) as f64;
+    let _ = writeln!(
+        s,
+        "{} frames at {} Hz ({secs:.2} s), {} -> {}",
+        r.frames,
+        r.sample_rate,
+        r.totals.windows_phrase(),
+        r.windows_csv.display()
+    );
+    if let Some(note) = r.committed.note() {
+        let _ = writeln!(s, "{note}");
+    }
+    s.push_str(&tally_table(&r.layout, &r.tallies));
+    s
+}
+
+/// The per-probe table of `records` under the default rule.
+pub fn probe_table(layout: &Layout, sample_rate: u32, records: &[ProbeWindow]) -> String {
+    let tallies = probe_tallies(layout, sample_rate, records, &SummaryRule::default());
+    tally_table(layout, &tallies)
+}
+
+/// The per-probe table of `tallies` (one per layout probe).
+pub fn tally_table(layout: &Layout, tallies: &[ProbeTally]) -> String {
+    let rows: Vec<SummaryRow> = layout
+        .probes
+        .iter()
+        .zip(tallies)
+        .map(|(p, tally)| SummaryRow {
+            name: &p.name,
+            elevation_mm: p.elevation_mm,
+            tally,
+        })
+        .collect();
+    crate::shared::probe_summary::summary_table(&rows)
+}

@@ -1,0 +1,133 @@
+//! From a layout file and a capture's format to the core's chain configuration.
+//!
+//! The one place where physical units of the layout (seconds, file units) become the core's
+//! frames and i16 counts, so replay and the simulated device build identical chains.
+
+use crate::shared::layout::{Layout, Phase};
+use frothline_core::{
+    ChainConfig, ConfigError, DetectorConfig, LevelSource, Polarity, ProbeConfig, TipConfig,
+    WindowPolicy,
+};
+
+/// Most probes a host chain holds (a station array of 16 dual-tip probes is 32 channels).
+pub const MAX_PROBES: usize = 16;
+
+/// Correlation lag slots of a host chain: lags up to 1023 frames, so 6 mm tips at 40 kHz
+/// resolve velocities down to 0.23 m/s. A device with less memory uses fewer slots; set
+/// `max_lag_ms` in the layout to make both compute the same lags.
+pub const HOST_LAGS: usize = 1024;
+
+/// The chain type the host runs.
+pub type HostChain = frothline_core::Chain<MAX_PROBES, HOST_LAGS>;
+
+/// The records of a [`HostChain`] (with their raw correlation sums, 28 KiB each).
+pub type FullRecord = frothline_core::ProbeWindow<HOST_LAGS>;
+
+/// A record as the host keeps and passes it around: results only, without the raw
+/// correlation sums ([`FullRecord::without_sums`]), so storing thousands stays cheap.
+pub type HostRecord = frothline_core::ProbeWindow<4>;
+
+/// How the host maps file units to counts (the capture's conversion).
+pub trait ToCounts {
+    /// A level or rail in file units, as i16 counts.
+    fn to_counts(&self, file_units: f64) -> f64;
+}
+
+impl ToCounts for crate::shared::capture::Capture {
+    fn to_counts(&self, v: f64) -> f64 {
+        crate::shared::capture::Capture::to_counts(self, v)
+    }
+}
+
+/// Identity mapping, for captures already in i16 counts (the synthesiser, the device).
+pub struct Counts;
+
+impl ToCounts for Counts {
+    fn to_counts(&self, v: f64) -> f64 {
+        v
+    }
+}
+
+fn clamp_i16(v: f64) -> i16 {
+    v.round().clamp(i16::MIN as f64, i16::MAX as f64) as i16
+}
+
+/// Slowest interfacial velocity searched by default, m/s (the layout's `max_lag_ms` overrides).
+pub const SLOWEST_VELOCITY_M_S: f64 = 0.2;
+
+/// The longest correlation lag in seconds: the layout's `max_lag_ms`, or the time the
+/// slowest velocity of interest takes over the tip spacing. The core caps it at its
+/// compile-time maximum lag.
+pub fn default_max_lag_s(max_lag_ms: Option<f64>, tip_spacing_mm: Option<f64>) -> f64 {
+    match (max_lag_ms, tip_spacing_mm) {
+        (Some(ms), _) => ms * 1e-3,
+        (None, Some(mm)) => mm * 1e-3 / SLOWEST_VELOCITY_M_S,
+        (None, None) => 0.0,
+    }
+}
+
+/// Build the chain configuration of `layout` for a capture of `channels` channels at
+/// `sample_rate` frames per second.
+pub fn chain_config(
+    layout: &Layout,
+    channels: usize,
+    sample_rate: u32,
+    window: WindowPolicy,
+    units: &dyn ToCounts,
+) -> Result<ChainConfig<MAX_PROBES>, ConfigError> {
+    if channels == 0 || channels > frothline_core::MAX_CHANNELS {
+        return Err(ConfigError::BadChannelCount(channels.min(255) as u8));
+    }
+    let d = &layout.detector;
+    let fs = sample_rate as f64;
+    let detector = DetectorConfig {
+        threshold: d.threshold as f32,
+        hysteresis: d.hysteresis as f32,
+        learn_period: (d.learn_period_s * fs).round().clamp(64.0, u32::MAX as f64) as u32,
+        rail_low: d
+            .rail_low
+            .map_or(i16::MIN, |v| clamp_i16(units.to_counts(v))),
+        rail_high: d
+            .rail_high
+            .map_or(i16::MAX, |v| clamp_i16(units.to_counts(v))),
+        min_swing: d.min_swing.map_or(64, |v| {
+            (units.to_counts(v) - units.to_counts(0.0))
+                .abs()
+                .round()
+                .clamp(1.0, u16::MAX as f64) as u16
+        }),
+        ..DetectorConfig::default()
+    };
+    let mut cfg = ChainConfig::new(channels as u8, window);
+    cfg.detector = detector;
+    cfg.initial_air = layout.flow.phase_before_front == Phase::Air
+        && layout.flow.kind == crate::shared::layout::FlowKind::Transient;
+    for p in &layout.probes {
+        let polarity = if p.air_is_high {
+            Polarity::AirHigh
+        } else {
+            Polarity::AirLow
+        };
+        let tip = |ch: usize, trailing: bool| TipConfig {
+            channel: ch.min(255) as u8,
+            polarity,
+            levels: match p.tip_levels(trailing) {
+                Some(l) => LevelSource::Fixed {
+                    air: clamp_i16(units.to_counts(l.air)),
+                    water: clamp_i16(units.to_counts(l.water)),
+                },
+                None => LevelSource::Learnt,
+            },
+        };
+        let max_lag = default_max_lag_s(p.max_lag_ms, p.tip_spacing_mm) * fs;
+        let probe = ProbeConfig {
+            leading: tip(p.leading, false),
+            trailing: p.trailing.map(|c| tip(c, true)),
+            max_lag: max_lag.round().clamp(2.0, u16::MAX as f64) as u16,
+        };
+        // The caller checks the probe count against MAX_PROBES first.
+        let _ = cfg.probes.push(probe);
+    }
+    cfg.validate()?;
+    Ok(cfg)
+}
