@@ -5,10 +5,10 @@
 //!
 //! A device keeps the latest report of each probe ([`TipBook`]) and sends the book after
 //! every health frame, up to [`MAX_TIPS_PER_FRAME`] probes per frame: at a one-second
-//! health period that is a frame or two a second whatever the window length.
+//! health period that is a frame or two a second whatever the window length. The states
+//! are made from window records in [`crate::wire::quant`] (`TipState::from_stats`,
+//! `TipReport::from_probe_window`).
 
-use crate::record::{ProbeWindow, TipStats};
-use crate::wire::quant;
 use heapless::Vec;
 use postcard::experimental::max_size::MaxSize;
 use serde::{Deserialize, Serialize};
@@ -74,37 +74,10 @@ impl TipLevels {
 }
 
 impl TipState {
-    /// The state of a tip from its window statistics.
-    pub fn from_stats(t: &TipStats) -> Self {
-        TipState {
-            levels: t.levels.map(|l| TipLevels {
-                air: quant::counts(l.air),
-                water: quant::counts(l.water),
-            }),
-            interfaces: t.bubbles.saturating_add(t.droplets),
-            bubbles: t.bubbles,
-            void_fraction: quant::fraction(t.void_fraction().unwrap_or(0.0)),
-            flags: t.flags.0,
-        }
-    }
-
     /// Interfaces per second over a window of `frames` frames at `sample_rate` Hz.
     pub fn interfaces_per_s(&self, frames: u32, sample_rate: f32) -> Option<f32> {
         (frames > 0 && sample_rate > 0.0)
             .then(|| self.interfaces as f32 * sample_rate / frames as f32)
-    }
-}
-
-impl TipReport {
-    /// The report of a window record.
-    pub fn from_probe_window<const L: usize>(r: &ProbeWindow<L>) -> Self {
-        TipReport {
-            probe: r.probe,
-            start: r.start,
-            frames: u32::try_from(r.end.saturating_sub(r.start)).unwrap_or(u32::MAX),
-            leading: TipState::from_stats(&r.lead),
-            trailing: r.trail.as_ref().map(TipState::from_stats),
-        }
     }
 }
 
@@ -147,51 +120,5 @@ impl<const N: usize> TipBook<N> {
             }
         }
         (!v.is_empty()).then_some(v)
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-    use crate::levels::Levels;
-    use crate::Flags;
-
-    #[test]
-    fn a_tip_state_counts_both_interfaces_and_rounds_its_levels() {
-        let t = TipStats {
-            frames: 10_000,
-            air_frames: 3_000,
-            bubbles: 9,
-            droplets: 8,
-            levels: Some(Levels {
-                air: 25_100.4,
-                water: -2_999.5,
-            }),
-            flags: Flags::SATURATED,
-            ..TipStats::ZERO
-        };
-        let s = TipState::from_stats(&t);
-        // Levels rounded to the nearest count, half away from zero (spec, TipLevels).
-        assert_eq!(
-            s.levels,
-            Some(TipLevels {
-                air: 25_100,
-                water: -3_000
-            })
-        );
-        assert_eq!(s.levels.unwrap().swing(), 28_100);
-        // Air -> water (bubbles closed) plus water -> air (droplets closed).
-        assert_eq!((s.interfaces, s.bubbles), (17, 9));
-        assert_eq!(s.void_fraction, 3_000);
-        assert_eq!(s.flags, Flags::SATURATED.0);
-        // 17 interfaces in 10 000 frames at 40 kHz (0.25 s): 68 per second.
-        assert_eq!(s.interfaces_per_s(10_000, 40_000.0), Some(68.0));
-        assert_eq!(s.interfaces_per_s(0, 40_000.0), None);
-        // A tip sitting in one phase: no interface, no levels yet, no division by zero.
-        let dead = TipState::from_stats(&TipStats::ZERO);
-        assert_eq!(
-            (dead.interfaces, dead.levels, dead.void_fraction),
-            (0, None, 0)
-        );
     }
 }
