@@ -319,7 +319,7 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             && self.urgent.is_empty()
             && self.describe.is_none()
             && self.health.is_none()
-            && !(self.tips_due && !self.tips.is_empty())
+            && (!self.tips_due || self.tips.is_empty())
     }
 
     /// The sequence number the next frame will carry.
