@@ -17,6 +17,7 @@
 //! postcard's variant index (a varint, in declaration order): their variants may only be
 //! appended.
 
+use crate::wire::tip_health::TipHealth;
 use crate::wire::{LABEL_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME, PROTOCOL_VERSION};
 use heapless::{String, Vec};
 use postcard::experimental::max_size::MaxSize;
@@ -71,6 +72,9 @@ pub enum Kind {
     Health = 0x05,
     /// [`RunStart`]: a run began (its number, label, start on the device clock, host UTC).
     RunStart = 0x06,
+    /// [`TipHealth`]: per tip, the levels in use, interfaces and void fraction of its
+    /// latest window.
+    TipHealth = 0x09,
     /// Command [`StartRun`].
     StartRun = 0x20,
     /// Command: stop the run (no body).
@@ -91,13 +95,14 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 14] = [
+    pub const ALL: [Kind; 15] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
         Kind::Profile,
         Kind::Health,
         Kind::RunStart,
+        Kind::TipHealth,
         Kind::StartRun,
         Kind::StopRun,
         Kind::SetWindow,
@@ -122,6 +127,7 @@ impl Kind {
             0x04 => Kind::Profile,
             0x05 => Kind::Health,
             0x06 => Kind::RunStart,
+            0x09 => Kind::TipHealth,
             0x20 => Kind::StartRun,
             0x21 => Kind::StopRun,
             0x22 => Kind::SetWindow,
@@ -197,6 +203,8 @@ pub enum Body {
     Health(Health),
     /// A run began.
     RunStart(RunStart),
+    /// Tip health of some probes.
+    TipHealth(TipHealth),
     /// Command: start a run.
     StartRun(StartRun),
     /// Command: stop the run.
@@ -225,6 +233,7 @@ impl Body {
             Body::Profile(_) => Kind::Profile,
             Body::Health(_) => Kind::Health,
             Body::RunStart(_) => Kind::RunStart,
+            Body::TipHealth(_) => Kind::TipHealth,
             Body::StartRun(_) => Kind::StartRun,
             Body::StopRun => Kind::StopRun,
             Body::SetWindow(_) => Kind::SetWindow,

@@ -216,11 +216,13 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
     };
     // The device stops sending when the session ends; the session then reads what it sent.
     let stop_device = stop.clone();
+    let (_keep, no_control) = std::sync::mpsc::channel();
     let watch = run_session(
         opts,
         interrupt_flag(),
         &mut || stop_device.store(true, Ordering::Relaxed),
         &mut |_| {},
+        no_control,
     );
     stop.store(true, Ordering::Relaxed);
     let device = match sim.join() {

@@ -10,13 +10,18 @@
 //!   simulate run it on a pseudo-terminal (demo watches the other end)
 //! link_drain: the end of a session reads the frames still on their way
 //! unpack: a session archive -> shared::session -> the same CSV files, with a link report
+//! watch_control: the keys' actions from a channel (tests, scripts); tipcheck_live: a
+//!   device's tips from its tip-health frames, SetLevels back; dashboard_tips: the view
 //! ```
 pub mod dashboard;
+pub mod dashboard_tips;
 pub mod demo;
 pub mod device_sim;
 pub mod link_drain;
 pub mod ports;
 pub mod session_time;
 pub mod state;
+pub mod tipcheck_live;
 pub mod unpack;
 pub mod watch;
+pub mod watch_control;
