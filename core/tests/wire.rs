@@ -8,7 +8,7 @@
 use frothline_core::wire::{
     self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, Decoder,
     DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, Nack, NackReason,
-    ProbeLayout, ProfileFit, Relearn, RunStart, SeqCheck, SetLevels, StartRun, Streamer,
+    ProbeLayout, ProfileFit, Relearn, RunStart, SeqCheck, SetClock, SetLevels, StartRun, Streamer,
     StreamerConfig, TrailingTip, WindowResult, WindowSetting, Windows, LABEL_BYTES,
     MAX_FRAME_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME,
 };
@@ -252,6 +252,12 @@ fn sample_frames() -> Vec<Frame> {
                 water: -3_000,
             }),
         ),
+        host(
+            7,
+            Body::SetClock(SetClock {
+                utc_ms: 1_700_000_000_123,
+            }),
+        ),
     ]
 }
 
@@ -375,6 +381,7 @@ fn largest_frames() -> Vec<Frame> {
             seq: u16::MAX,
             reason: NackReason::Other(u8::MAX),
         })),
+        f(Body::SetClock(SetClock { utc_ms: u64::MAX })),
     ]
 }
 
@@ -521,6 +528,17 @@ fn golden_set_levels_by_hand() {
     let (version, device, kind, seq, body) = ref_parse(&enc(f));
     assert_eq!((version, device, kind, seq), (2, 0xFFFF, 0x26, 6));
     assert_eq!(body, [0x02, 0x01, 0x98, 0x88, 0x03, 0xEF, 0x2E]);
+}
+
+/// SetClock { utc_ms 1 700 000 000 123 } from the host, seq 7, worked by hand from
+/// docs/wire-protocol.md: the body is the LEB128 varint of the milliseconds, 7 bits at a
+/// time from the lowest: fb d0 95 ff bc 31.
+#[test]
+fn golden_set_clock_by_hand() {
+    let f = &sample_frames()[14];
+    let (version, device, kind, seq, body) = ref_parse(&enc(f));
+    assert_eq!((version, device, kind, seq), (2, 0xFFFF, 0x25, 7));
+    assert_eq!(body, [0xFB, 0xD0, 0x95, 0xFF, 0xBC, 0x31]);
 }
 
 #[test]
@@ -1152,6 +1170,7 @@ fn arb_body() -> impl Strategy<Value = Body> {
                 water
             })
         ),
+        any::<u64>().prop_map(|utc_ms| Body::SetClock(SetClock { utc_ms })),
         any::<u16>().prop_map(|seq| Body::Ack(Ack { seq })),
         (any::<u16>(), any::<u8>()).prop_map(|(seq, r)| Body::Nack(Nack {
             seq,

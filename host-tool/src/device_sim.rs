@@ -300,6 +300,8 @@ pub struct SimDevice {
     pos: usize,
     /// Sample-clock offset of the current chain within the run.
     offset: u64,
+    /// The UTC clock a host set (SetClock): its UTC, ms, at that instant.
+    clock: Option<(u64, Instant)>,
     running: bool,
     last_health: Option<Instant>,
     health: Health,
@@ -336,6 +338,7 @@ impl SimDevice {
             run_t0: now,
             pos: 0,
             offset: 0,
+            clock: None,
             running: false,
             last_health: None,
             health: Health::default(),
@@ -475,7 +478,11 @@ impl SimDevice {
             run: self.run,
             label: cmd.label.clone(),
             uptime_frames: self.uptime_frames(now),
-            utc_ms: cmd.utc_ms,
+            // The command's UTC, else the device's clock (SetClock) if it was set.
+            utc_ms: cmd.utc_ms.or_else(|| {
+                self.clock
+                    .map(|(utc, at)| utc + now.saturating_duration_since(at).as_millis() as u64)
+            }),
         };
         self.streamer.offer(Body::RunStart(run));
         Ok(())
@@ -847,6 +854,11 @@ impl CommandTarget for SimTarget<'_> {
 
     fn set_levels(&mut self, levels: &frothline_core::wire::SetLevels) -> Result<(), NackReason> {
         self.dev.set_levels(*levels)
+    }
+
+    fn set_clock(&mut self, utc_ms: u64) -> Result<(), NackReason> {
+        self.dev.clock = Some((utc_ms, self.now));
+        Ok(())
     }
 }
 

@@ -205,6 +205,7 @@ KINDS = {
     0x22: ("set_window", window_setting),
     0x23: ("relearn", lambda c: {"probes": u32(c)}),
     0x24: ("describe_request", empty),
+    0x25: ("set_clock", lambda c: {"utc_ms": u64(c)}),
     0x26: ("set_levels", set_levels),
     0x30: ("ack", lambda c: {"seq": u16(c)}),
     0x31: ("nack", lambda c: {"seq": u16(c), "reason": c.byte()}),

@@ -81,6 +81,8 @@ pub enum Kind {
     Relearn = 0x23,
     /// Command: send a [`DeviceDescription`] (no body).
     DescribeRequest = 0x24,
+    /// Command [`SetClock`]: set the device's UTC clock.
+    SetClock = 0x25,
     /// Command [`SetLevels`]: fix the air and water levels of one tip.
     SetLevels = 0x26,
     /// Reply [`Ack`]: a command was carried out.
@@ -91,7 +93,7 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 14] = [
+    pub const ALL: [Kind; 15] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
@@ -103,6 +105,7 @@ impl Kind {
         Kind::SetWindow,
         Kind::Relearn,
         Kind::DescribeRequest,
+        Kind::SetClock,
         Kind::SetLevels,
         Kind::Ack,
         Kind::Nack,
@@ -127,6 +130,7 @@ impl Kind {
             0x22 => Kind::SetWindow,
             0x23 => Kind::Relearn,
             0x24 => Kind::DescribeRequest,
+            0x25 => Kind::SetClock,
             0x26 => Kind::SetLevels,
             0x30 => Kind::Ack,
             0x31 => Kind::Nack,
@@ -135,9 +139,9 @@ impl Kind {
     }
 
     /// Codes set aside for kinds that are specified but not implemented by this build:
-    /// 0x07 log-chunk reply, 0x25 set-clock, 0x26 set-levels, 0x27 read-log. A device
-    /// answers the command codes among them with Nack `UnknownCommand`; a host skips 0x07.
-    pub const RESERVED: [u8; 4] = [0x07, 0x25, 0x26, 0x27];
+    /// 0x07 log-chunk reply, 0x27 read-log. A device answers the command codes among them
+    /// with Nack `UnknownCommand`; a host skips 0x07.
+    pub const RESERVED: [u8; 2] = [0x07, 0x27];
 
     /// True for the kinds a device sends (results and replies).
     pub const fn is_from_device(self) -> bool {
@@ -148,6 +152,7 @@ impl Kind {
                 | Kind::SetWindow
                 | Kind::Relearn
                 | Kind::DescribeRequest
+                | Kind::SetClock
                 | Kind::SetLevels
         )
     }
@@ -207,6 +212,8 @@ pub enum Body {
     Relearn(Relearn),
     /// Command: describe yourself.
     DescribeRequest,
+    /// Command: set the device's UTC clock.
+    SetClock(SetClock),
     /// Command: fix one tip's levels.
     SetLevels(SetLevels),
     /// Reply: command done.
@@ -230,6 +237,7 @@ impl Body {
             Body::SetWindow(_) => Kind::SetWindow,
             Body::Relearn(_) => Kind::Relearn,
             Body::DescribeRequest => Kind::DescribeRequest,
+            Body::SetClock(_) => Kind::SetClock,
             Body::SetLevels(_) => Kind::SetLevels,
             Body::Ack(_) => Kind::Ack,
             Body::Nack(_) => Kind::Nack,
@@ -535,6 +543,16 @@ pub struct Relearn {
 impl Relearn {
     /// Every probe.
     pub const ALL: Relearn = Relearn { probes: u32::MAX };
+}
+
+/// Kind 0x25: set the device's UTC clock. A host sends it when it connects and before a
+/// StartRun; the device keeps the time on its own clock from the frame it took effect, and
+/// dates the runs it starts with it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct SetClock {
+    /// The host's UTC now, ms since 1970-01-01T00:00:00Z.
+    pub utc_ms: u64,
 }
 
 /// Kind 0x26: fix the air and water levels of one tip, in ADC counts, from the next frame

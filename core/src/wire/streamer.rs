@@ -32,7 +32,7 @@
 use crate::wire::codec::encode;
 use crate::wire::frame::{
     Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, RunStart,
-    SetLevels, StartRun, WindowResult, WindowSetting, Windows,
+    SetClock, SetLevels, StartRun, WindowResult, WindowSetting, Windows,
 };
 use crate::wire::{MAX_FRAME_BYTES, MAX_WINDOWS_PER_FRAME};
 use heapless::Deque;
@@ -116,6 +116,7 @@ enum Urgent {
     SetWindow(WindowSetting),
     Relearn(Relearn),
     DescribeRequest,
+    SetClock(SetClock),
     SetLevels(SetLevels),
     Ack(Ack),
     Nack(Nack),
@@ -132,6 +133,7 @@ impl Urgent {
             Urgent::SetWindow(b) => Body::SetWindow(b),
             Urgent::Relearn(b) => Body::Relearn(b),
             Urgent::DescribeRequest => Body::DescribeRequest,
+            Urgent::SetClock(b) => Body::SetClock(b),
             Urgent::SetLevels(b) => Body::SetLevels(b),
             Urgent::Ack(b) => Body::Ack(b),
             Urgent::Nack(b) => Body::Nack(b),
@@ -201,6 +203,7 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
             Body::SetWindow(b) => Urgent::SetWindow(b),
             Body::Relearn(b) => Urgent::Relearn(b),
             Body::DescribeRequest => Urgent::DescribeRequest,
+            Body::SetClock(b) => Urgent::SetClock(b),
             Body::SetLevels(b) => Urgent::SetLevels(b),
             Body::Ack(b) => Urgent::Ack(b),
             Body::Nack(b) => Urgent::Nack(b),
