@@ -15,12 +15,16 @@
 #   --timeout SEC   wall-clock limit (default 60)
 #   --features F    extra cargo features (e.g. defmt-semihosting: decode stdout with defmt-print)
 #   --log PATH      logger mode: the flash image (default target/firmware/fieldlog-image.bin)
+#   --settings PATH the settings flash (3 x 4 KiB NOR, kept in a file) survives the run in
+#                   PATH: loaded from it when it exists, written back after (a reboot of the
+#                   emulated board keeps its settings); without it every run starts from a
+#                   factory-fresh store
 #   --verify        after the run, decode the UART file and check every window result
 #                   against a host replay of the same capture (needs the host tool to build);
 #                   logger mode: the flash image too (frothline-capture-gen verify-log)
 set -uo pipefail
 cd "$(dirname "$0")/.."
-mode=run uart="" uart_in="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
+mode=run uart="" uart_in="" settings="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
 while [ $# -gt 0 ]; do
     case "$1" in
         run|adc|overrun|measure|logger|commands) mode=$1 ;;
@@ -30,8 +34,9 @@ while [ $# -gt 0 ]; do
         --timeout) secs=$2; shift ;;
         --features) features=$2; shift ;;
         --log) log=$2; shift ;;
+        --settings) settings=$2; shift ;;
         --verify) verify=1 ;;
-        -h|--help) sed -n '2,23p' "$0"; exit 0 ;;
+        -h|--help) sed -n '2,28p' "$0"; exit 0 ;;
         *) echo "firmware-run: unknown argument $1" >&2; exit 2 ;;
     esac
     shift
@@ -67,11 +72,17 @@ qemu=$(bash scripts/fetch-qemu.sh) || { echo "firmware-run: no QEMU" >&2; exit 2
     || { echo "firmware-run: build failed" >&2; exit 2; }
 elf=firmware-example/target/thumbv7em-none-eabihf/release/frothline-firmware-example
 
+# The firmware opens target/firmware/settings.nor (relative to QEMU's working directory).
+rm -f target/firmware/settings.nor
+[ -n "$settings" ] && [ -f "$settings" ] && cp "$settings" target/firmware/settings.nor
 timeout "$secs" "$qemu" -machine mps2-an386 -nographic -monitor none \
     -semihosting-config "enable=on,target=native,arg=$mode" \
     -icount "shift=$shift_,sleep=off" \
     "${serial[@]}" "${second_serial[@]}" -kernel "$elf"
 rc=$?
+if [ -n "$settings" ] && [ -f target/firmware/settings.nor ]; then
+    cp target/firmware/settings.nor "$settings"
+fi
 if [ -n "$fifo_dir" ]; then
     # The copier of the output ends at QEMU's end of file; give it 5 s at most (it would
     # wait for ever if QEMU never opened the pipe).

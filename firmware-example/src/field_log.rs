@@ -104,7 +104,10 @@ impl<F: NorFlash> FieldLog<F> {
     fn emit(&mut self, body: Body, route: Route) {
         // Each capture opens with the device description, straight into the log.
         if route == Route::Front && self.logger.state() == LoggerState::Armed {
-            self.emit(Body::Describe(crate::link::description()), Route::Log);
+            self.emit(
+                Body::Describe(crate::link::description(crate::link::default_window())),
+                Route::Log,
+            );
         }
         let frame = Frame {
             device: DEVICE_ID,

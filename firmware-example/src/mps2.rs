@@ -251,6 +251,7 @@ fn run(mode: Mode) -> bool {
     if let Some(l) = log.as_mut() {
         pipe.set_tap(l);
     }
+    stored::load(&mut pipe);
     pipe.start();
     let block_ticks =
         (PCLK_HZ as u64 * BLOCK_FRAMES as u64 / capture::SAMPLE_RATE_HZ as u64) as u32;
@@ -276,7 +277,7 @@ fn run(mode: Mode) -> bool {
         syst.clear_current();
         syst.enable_interrupt();
         syst.enable_counter();
-        while !pipe.done() && !pipe.stopped() {
+        while !pipe.done() {
             pipe.serve_commands(COMMAND_BYTES_PER_LOOP);
             if pipe.step() {
                 continue;
@@ -295,7 +296,7 @@ fn run(mode: Mode) -> bool {
         syst.disable_interrupt();
         syst.disable_counter();
     }
-    if !pipe.stopped() {
+    if pipe.running() {
         pipe.run_over();
     }
     pipe.finish();
@@ -441,6 +442,74 @@ fn measure_profile_fit<C: Clock>(clock: &C) {
             name,
             PROFILE_FITS,
             dt
+        );
+    }
+}
+
+/// The settings store of the emulated board: three 4 KiB sectors of NOR flash kept in a
+/// file on the host (`target/firmware/settings.nor`, relative to QEMU's working directory;
+/// `scripts/firmware-run.sh` keeps or clears it), so settings survive a reboot of the
+/// emulated board. Without the file (QEMU started elsewhere) the board runs on defaults.
+mod stored {
+    use crate::acquire::Clock;
+    use crate::host_nor::{HostNor, SECTOR_BYTES};
+    use crate::pipeline::Pipeline;
+    use crate::settings::{Loaded, Settings, SettingsStore};
+    use crate::{capture, config};
+    use static_cell::StaticCell;
+
+    /// The store's region.
+    pub const SETTINGS_BYTES: usize = 3 * SECTOR_BYTES;
+    type Store = SettingsStore<HostNor<SETTINGS_BYTES>>;
+    static STORE: StaticCell<Store> = StaticCell::new();
+
+    /// Mount the store, load the newest settings into the pipeline, and report them.
+    #[inline(never)]
+    pub fn load<W: embedded_io::Write, C: Clock>(pipe: &mut Pipeline<'_, W, C>) {
+        let defaults = Settings::defaults(config::DEVICE_ID, capture::WINDOW);
+        let store = HostNor::open(b"target/firmware/settings.nor\0")
+            .and_then(|f| SettingsStore::mount(f).ok())
+            .map(|s| STORE.init(s));
+        let (settings, loaded) = match store {
+            Some(s) => {
+                let (settings, loaded) = s.load(defaults);
+                pipe.set_settings(settings, Some(s));
+                (settings, loaded)
+            }
+            None => {
+                pipe.set_settings(defaults, None);
+                (defaults, Loaded::Defaults)
+            }
+        };
+        report_settings("loaded", &settings, loaded, pipe.has_store());
+    }
+
+    /// One `fw.settings` line.
+    pub fn report_settings(when: &str, s: &Settings, loaded: Loaded, store: bool) {
+        let fixed = s.levels.iter().flatten().filter(|l| l.is_some()).count();
+        let (kind, frames) = match s.window {
+            frothline_core::WindowPolicy::Whole => ("whole", 0),
+            frothline_core::WindowPolicy::Frames(f) => ("frames", f),
+            frothline_core::WindowPolicy::Bubbles { count, .. } => ("bubbles", count),
+            frothline_core::WindowPolicy::AfterFront { frames } => ("after_front", frames),
+            _ => ("other", 0),
+        };
+        let first = s.levels.first().and_then(|l| l[0]).unwrap_or((0, 0));
+        report!(
+            "fw.settings {} store={} records={} device_id={:#06x} window={} window_frames={} fixed_tips={} probe0_leading_air={} probe0_leading_water={} logger_armed={}",
+            when,
+            store,
+            match loaded {
+                Loaded::Stored(n) => n,
+                Loaded::Defaults => 0,
+            },
+            s.device_id,
+            kind,
+            frames,
+            fixed,
+            first.0,
+            first.1,
+            s.logger_armed
         );
     }
 }
@@ -678,17 +747,38 @@ fn summary<W: embedded_io::Write, C: Clock>(
         h.samples_dropped
     );
     let c = pipe.commands();
+    let r = pipe.run_state();
     report!(
-        "fw.commands executed={} repeats={} acks={} nacks={} unreadable={} not_from_host={} stopped={}",
+        "fw.commands executed={} repeats={} acks={} nacks={} unreadable={} not_from_host={} stopped={} starts={} stops={} run={} utc_set={}",
         c.executed,
         c.repeats,
         c.acks,
         c.nacks,
         c.unreadable,
         c.not_from_host,
-        pipe.stopped()
+        pipe.stopped(),
+        r.starts,
+        r.stops,
+        r.run,
+        r.clock.is_some()
     );
-    let clean = pipe.link().write_errors() == 0 && st.windows_dropped == 0;
+    let (save_errors, config_errors) = pipe.errors();
+    report!(
+        "fw.store saves={} save_errors={} config_errors={}",
+        pipe.saves(),
+        save_errors,
+        config_errors
+    );
+    stored::report_settings(
+        "end",
+        pipe.settings(),
+        crate::settings::Loaded::Defaults,
+        pipe.has_store(),
+    );
+    let clean = pipe.link().write_errors() == 0
+        && st.windows_dropped == 0
+        && save_errors == 0
+        && config_errors == 0;
     match mode {
         Mode::Overrun => dropped > 0 && h.samples_dropped > 0 && clean,
         Mode::Commands => pipe.stopped() && clean,

@@ -811,16 +811,35 @@ fn command_script() -> Result<(Vec<u8>, Vec<(u16, Option<u8>)>), String> {
     long.push(0);
     bytes.extend(raw_frame(&long));
     want.push((0x23, Some(7)));
-    // A zero window and a mask of no probe: bad_argument; valid ones: busy (this firmware
-    // does not rebuild its chain during a run).
+    // A zero window and a mask of no probe: bad_argument; valid ones are carried out (the
+    // chain is configured afresh, the run's clock going on).
     let (s, _) = send(&mut bytes, Command::SetWindow(WindowSetting::Frames(0)))?;
     want.push((s, Some(2)));
     let (s, _) = send(&mut bytes, Command::SetWindow(WindowSetting::Frames(1000)))?;
-    want.push((s, Some(3)));
+    want.push((s, None));
     let (s, _) = send(&mut bytes, Command::Relearn(1 << 20))?;
     want.push((s, Some(2)));
     let (s, _) = send(&mut bytes, Command::Relearn(u32::MAX))?;
-    want.push((s, Some(3)));
+    want.push((s, None));
+    // SetLevels: a probe the device does not have, levels against the tip's polarity
+    // (air above water on these tips), then valid levels, twice (the same levels again
+    // change nothing, and are Acked).
+    let lv = |probe, air, water| {
+        Command::SetLevels(frothline_core::wire::SetLevels {
+            probe,
+            trailing: false,
+            air,
+            water,
+        })
+    };
+    let (s, _) = send(&mut bytes, lv(9, 26000, 3000))?;
+    want.push((s, Some(2)));
+    let (s, _) = send(&mut bytes, lv(0, 3000, 26000))?;
+    want.push((s, Some(2)));
+    let (s, _) = send(&mut bytes, lv(0, 26000, 3000))?;
+    want.push((s, None));
+    let (s, _) = send(&mut bytes, lv(0, 26000, 3000))?;
+    want.push((s, None));
     // The device's own frame echoed back, and line noise: no answer.
     let mut buf = [0u8; frothline_core::wire::MAX_FRAME_BYTES];
     let echo = Frame {
@@ -831,13 +850,13 @@ fn command_script() -> Result<(Vec<u8>, Vec<(u16, Option<u8>)>), String> {
     let echo = frothline_core::wire::encode(&echo, &mut buf).map_err(|e| e.to_string())?;
     bytes.extend_from_slice(echo);
     bytes.extend_from_slice(&[0x55, 0x13, 0x00, 0xFF, 0x00]);
-    // StopRun ends the run; a second one is not_running; StartRun then is busy.
+    // StopRun ends the run; a second one is not_running; StartRun then starts run 2.
     let (s, _) = send(&mut bytes, Command::StopRun)?;
     want.push((s, None));
     let (s, _) = send(&mut bytes, Command::StopRun)?;
     want.push((s, Some(4)));
     let (s, _) = send(&mut bytes, Command::StartRun("next".into()))?;
-    want.push((s, Some(3)));
+    want.push((s, None));
     Ok((bytes, want))
 }
 
@@ -856,10 +875,12 @@ fn commands_in(args: &[String]) -> Result<(), String> {
     Ok(())
 }
 
-/// Check the firmware's answers to the `commands` check, in order; one RunStart (the run
-/// of power-on) and two descriptions (power-on and the one DescribeRequest carried out).
+/// Check the firmware's answers to the `commands` check, in order; two RunStarts (the run
+/// of power-on, unlabelled, and run 2 labelled `next`), three descriptions (power-on, the
+/// DescribeRequest carried out, the SetWindow, which reports 1000-frame windows), and run
+/// 2 streamed in windows of 1000 frames counted from its frame 0.
 fn verify_commands(args: &[String]) -> Result<(), String> {
-    use frothline_core::wire::{Body, Decoder, FeedResult};
+    use frothline_core::wire::{Body, Decoder, FeedResult, WindowSetting};
     let [uart] = args else {
         return Err("usage: frothline-capture-gen verify-commands UART.bin".into());
     };
@@ -867,6 +888,9 @@ fn verify_commands(args: &[String]) -> Result<(), String> {
     let bytes = std::fs::read(uart).map_err(|e| format!("{uart}: {e}"))?;
     let mut dec: Decoder = Decoder::new();
     let (mut got, mut describes, mut runs) = (Vec::new(), 0, 0);
+    let (mut labels, mut run) = (Vec::new(), 0u32);
+    let (mut long_windows, mut run2_starts) = (0, Vec::new());
+    let mut last_window = None;
     let mut rest: &[u8] = &bytes;
     while !rest.is_empty() {
         let r = dec.feed(rest);
@@ -875,8 +899,23 @@ fn verify_commands(args: &[String]) -> Result<(), String> {
             match frame.body {
                 Body::Ack(a) => got.push((a.seq, None)),
                 Body::Nack(n) => got.push((n.seq, Some(n.reason.code()))),
-                Body::Describe(_) => describes += 1,
-                Body::RunStart(_) => runs += 1,
+                Body::Describe(d) => {
+                    describes += 1;
+                    last_window = Some(d.window);
+                }
+                Body::RunStart(r) => {
+                    runs += 1;
+                    run = r.run;
+                    labels.push(r.label.to_string());
+                }
+                Body::Windows(ws) => {
+                    for w in ws {
+                        if run == 2 && w.frames == 1000 {
+                            long_windows += 1;
+                            run2_starts.push(w.start);
+                        }
+                    }
+                }
                 _ => {}
             }
         }
@@ -899,8 +938,18 @@ fn verify_commands(args: &[String]) -> Result<(), String> {
     if got != want {
         return Err(format!("answers {got:?}, expected {want:?}"));
     }
-    if describes != 2 || runs != 1 || st.lost + st.crc_failures + st.malformed > 0 {
+    eprintln!(
+        "verify-commands: run labels {labels:?}, last described window {last_window:?}, run 2 windows of 1000 frames at {run2_starts:?}"
+    );
+    if describes != 3 || runs != 2 || st.lost + st.crc_failures + st.malformed > 0 {
         return Err("descriptions, run starts or frame counts differ".into());
+    }
+    if labels != ["", "next"] || last_window != Some(WindowSetting::Frames(1000)) {
+        return Err("run labels or the described window differ".into());
+    }
+    // Run 2 starts at its frame 0 with the stored window: its first window is [0, 1000).
+    if long_windows == 0 || run2_starts.first() != Some(&0) {
+        return Err("run 2 did not stream 1000-frame windows from its frame 0".into());
     }
     Ok(())
 }
