@@ -20,8 +20,14 @@
 //!   StopRun ended the run and the link dropped nothing; `scripts/firmware-test.sh` feeds
 //!   the commands from a file and checks every answer on the host
 //!   (`frothline-capture-gen commands-in` / `verify-commands`).
-//! - Every mode answers host commands the same way while it runs (none arrive in the
-//!   other checks).
+//! - `boot`: `run` after a reboot that must find stored settings (the settings store,
+//!   [`crate::settings`], kept in a host file between QEMU runs: see `stored`): the chain
+//!   runs with them, so its records differ from the host replay's. Passes when stored
+//!   settings were loaded and the link dropped nothing; `scripts/firmware-test.sh` checks
+//!   the settings reported and the UART frames (`frothline-capture-gen verify-boot`).
+//! - Every mode loads its settings from the store at power-on (a factory-fresh store, the
+//!   capture's defaults, unless the runner keeps one), and answers host commands the
+//!   same way while it runs (none arrive in the other checks).
 //!
 //! - `logger` (field-logger build only, `--features field-logger`: the surge capture and a
 //!   station chain): `run`, and every result also goes to the field logger
@@ -79,6 +85,7 @@ enum Mode {
     Measure,
     Logger,
     Commands,
+    Boot,
 }
 
 impl Mode {
@@ -94,6 +101,7 @@ impl Mode {
             Some("measure") => Some(Mode::Measure),
             Some("logger") => Some(Mode::Logger),
             Some("commands") => Some(Mode::Commands),
+            Some("boot") => Some(Mode::Boot),
             Some(_) if words == 1 => Some(Mode::Run),
             Some(_) => None,
         }
@@ -107,6 +115,7 @@ impl Mode {
             Mode::Measure => "measure",
             Mode::Logger => "logger",
             Mode::Commands => "commands",
+            Mode::Boot => "boot",
         }
     }
 }
@@ -183,7 +192,7 @@ fn main() -> ! {
         Some(mode) => run(mode),
         None => {
             report!(
-                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands",
+                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands | boot",
                 arg
             );
             false
@@ -251,7 +260,7 @@ fn run(mode: Mode) -> bool {
     if let Some(l) = log.as_mut() {
         pipe.set_tap(l);
     }
-    stored::load(&mut pipe);
+    let loaded = stored::load(&mut pipe);
     pipe.start();
     let block_ticks =
         (PCLK_HZ as u64 * BLOCK_FRAMES as u64 / capture::SAMPLE_RATE_HZ as u64) as u32;
@@ -306,6 +315,7 @@ fn run(mode: Mode) -> bool {
     let total = pipe.clock().now().wrapping_sub(t_start) as u64;
     let stack_run = sys::stack_high_water();
     let pass = end_of_run(mode, pipe, total, stack_init, stack_run);
+    let pass = pass && (mode != Mode::Boot || matches!(loaded, crate::settings::Loaded::Stored(_)));
     #[cfg(feature = "field-logger")]
     let pass = match log {
         Some(l) => logger::finish(l) && pass,
@@ -465,7 +475,7 @@ mod stored {
 
     /// Mount the store, load the newest settings into the pipeline, and report them.
     #[inline(never)]
-    pub fn load<W: embedded_io::Write, C: Clock>(pipe: &mut Pipeline<'_, W, C>) {
+    pub fn load<W: embedded_io::Write, C: Clock>(pipe: &mut Pipeline<'_, W, C>) -> Loaded {
         let defaults = Settings::defaults(config::DEVICE_ID, capture::WINDOW);
         let store = HostNor::open(b"target/firmware/settings.nor\0")
             .and_then(|f| SettingsStore::mount(f).ok())
@@ -482,6 +492,7 @@ mod stored {
             }
         };
         report_settings("loaded", &settings, loaded, pipe.has_store());
+        loaded
     }
 
     /// One `fw.settings` line.
@@ -782,6 +793,7 @@ fn summary<W: embedded_io::Write, C: Clock>(
     match mode {
         Mode::Overrun => dropped > 0 && h.samples_dropped > 0 && clean,
         Mode::Commands => pipe.stopped() && clean,
+        Mode::Boot => clean,
         _ => matches && dropped == 0 && clean,
     }
 }

@@ -65,6 +65,9 @@ fn run() -> Result<(), String> {
     if args.first().map(String::as_str) == Some("verify-commands") {
         return verify_commands(&args[1..]);
     }
+    if args.first().map(String::as_str) == Some("verify-boot") {
+        return verify_boot(&args[1..]);
+    }
     let [capture, layout, window, lags, out] = args.as_slice() else {
         return Err(
             "usage: frothline-capture-gen CAPTURE.wav LAYOUT.toml WINDOW LAGS OUT.rs".into(),
@@ -872,6 +875,39 @@ fn commands_in(args: &[String]) -> Result<(), String> {
         bytes.len(),
         want.len()
     );
+    Ok(())
+}
+
+/// Check the UART output of the firmware rebooted after the `commands` check (mode `boot`
+/// on the settings store it left): the power-on description reports the stored window of
+/// 1000 frames, and the run is streamed in such windows from its frame 0.
+fn verify_boot(args: &[String]) -> Result<(), String> {
+    use frothline_core::wire::{Body, Decoder, FeedResult, WindowSetting};
+    let [uart] = args else {
+        return Err("usage: frothline-capture-gen verify-boot UART.bin".into());
+    };
+    let bytes = std::fs::read(uart).map_err(|e| format!("{uart}: {e}"))?;
+    let mut dec: Decoder = Decoder::new();
+    let (mut first_window, mut starts) = (None, Vec::new());
+    let mut rest: &[u8] = &bytes;
+    while !rest.is_empty() {
+        let r = dec.feed(rest);
+        rest = r.remaining();
+        if let FeedResult::Frame { frame, .. } = r {
+            match frame.body {
+                Body::Describe(d) if first_window.is_none() => first_window = Some(d.window),
+                Body::Windows(ws) => starts.extend(ws.iter().map(|w| (w.start, w.frames))),
+                _ => {}
+            }
+        }
+    }
+    eprintln!("verify-boot: described window {first_window:?}, windows (start, frames) {starts:?}");
+    if first_window != Some(WindowSetting::Frames(1000)) {
+        return Err("the power-on description does not report the stored window".into());
+    }
+    if !starts.iter().any(|&(s, f)| s == 0 && f == 1000) {
+        return Err("no window of 1000 frames from frame 0".into());
+    }
     Ok(())
 }
 
