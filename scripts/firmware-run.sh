@@ -5,13 +5,16 @@
 # when the run hits the time limit.
 #
 # Usage: bash scripts/firmware-run.sh [MODE] [options]
-#   MODE            run (default) | adc | overrun | measure | logger | commands | boot (see firmware-example/src/mps2.rs);
+#   MODE            run (default) | adc | overrun | measure | logger | commands | boot | instrument (see firmware-example/src/mps2.rs);
 #                   logger builds the field-logger firmware (surge capture, station chain) and
 #                   writes the field log's flash image, sent out of UART1, to --log
-#   --uart PATH     UART0 to PATH (default target/firmware/uart-MODE.bin); `stdio` for stdout
+#   --uart PATH     UART0 to PATH (default target/firmware/uart-MODE.bin); `stdio` for stdout;
+#                   `pty` for a pseudo-terminal a host tool opens (QEMU prints its path)
 #   --uart-in PATH  UART0's receiver reads PATH (host commands; mode `commands`)
 #   --icount SHIFT  QEMU -icount shift: one instruction = 2^SHIFT ns (default 0: 1000 MIPS;
-#                   4 = 62.5 MIPS, a Cortex-M4F at 60-100 MHz, where this pipeline overruns)
+#                   4 = 62.5 MIPS, a Cortex-M4F at 60-100 MHz, where this pipeline overruns);
+#                   `off`: no instruction counting, the board's clock runs in host time
+#                   (mode instrument, talking to a host tool in real time)
 #   --timeout SEC   wall-clock limit (default 60)
 #   --features F    extra cargo features (e.g. defmt-semihosting: decode stdout with defmt-print)
 #   --log PATH      logger mode: the flash image (default target/firmware/fieldlog-image.bin)
@@ -27,7 +30,7 @@ cd "$(dirname "$0")/.."
 mode=run uart="" uart_in="" settings="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
 while [ $# -gt 0 ]; do
     case "$1" in
-        run|adc|overrun|measure|logger|commands|boot) mode=$1 ;;
+        run|adc|overrun|measure|logger|commands|boot|instrument) mode=$1 ;;
         --uart) uart=$2; shift ;;
         --uart-in) uart_in=$2; shift ;;
         --icount) shift_=$2; shift ;;
@@ -43,7 +46,13 @@ while [ $# -gt 0 ]; do
 done
 mkdir -p target/firmware
 [ -n "$uart" ] || uart=target/firmware/uart-$mode.bin
-if [ "$uart" = stdio ]; then serial=(-serial stdio); else serial=(-serial "file:$uart"); fi
+case "$uart" in
+    stdio) serial=(-serial stdio) ;;
+    pty) serial=(-serial pty) ;;
+    *) serial=(-serial "file:$uart") ;;
+esac
+icount=(-icount "shift=$shift_,sleep=off")
+[ "$shift_" = off ] && icount=()
 fifo_dir=""
 if [ -n "$uart_in" ] && [ "$uart" != stdio ]; then
     # A pipe chardev (QEMU 7 has no input file for a file chardev): QEMU reads UART0's
@@ -77,7 +86,7 @@ rm -f target/firmware/settings.nor
 [ -n "$settings" ] && [ -f "$settings" ] && cp "$settings" target/firmware/settings.nor
 timeout "$secs" "$qemu" -machine mps2-an386 -nographic -monitor none \
     -semihosting-config "enable=on,target=native,arg=$mode" \
-    -icount "shift=$shift_,sleep=off" \
+    "${icount[@]}" \
     "${serial[@]}" "${second_serial[@]}" -kernel "$elf"
 rc=$?
 if [ -n "$settings" ] && [ -f target/firmware/settings.nor ]; then

@@ -19,6 +19,10 @@
 #            version, malformed, bad argument, busy, not running, an echo and line noise
 #            unanswered) and every command carried out; every answer checked in order on the
 #            host (skipped with --no-host); the settings store kept in a file
+#   watch    the firmware as an instrument on a pty (real time), driven by `frothline watch
+#            --start-run bench1 --set-window 100ms`, powered off and booted again: labelled
+#            0.1 s windows, a dated run, the window stored and reported after the reboot
+#            (scripts/firmware-watch.sh; skipped with --no-host)
 #   reboot   the firmware booted again on that store: the window and levels the commands
 #            set are loaded, reported (Describe, fw.settings) and used (skipped with --no-host)
 # Prints "N passed, N failed" and exits non-zero on any failure.
@@ -81,6 +85,7 @@ if [ $host -eq 1 ]; then
             && "${gen[@]}" verify-boot target/firmware/uart-boot.bin
     }
     check reboot reboot
+    check watch bash scripts/firmware-watch.sh
 else
     check logger bash scripts/firmware-run.sh logger --icount 0
 fi

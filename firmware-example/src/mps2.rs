@@ -86,6 +86,7 @@ enum Mode {
     Logger,
     Commands,
     Boot,
+    Instrument,
 }
 
 impl Mode {
@@ -102,6 +103,7 @@ impl Mode {
             Some("logger") => Some(Mode::Logger),
             Some("commands") => Some(Mode::Commands),
             Some("boot") => Some(Mode::Boot),
+            Some("instrument") => Some(Mode::Instrument),
             Some(_) if words == 1 => Some(Mode::Run),
             Some(_) => None,
         }
@@ -116,6 +118,7 @@ impl Mode {
             Mode::Logger => "logger",
             Mode::Commands => "commands",
             Mode::Boot => "boot",
+            Mode::Instrument => "instrument",
         }
     }
 }
@@ -192,7 +195,7 @@ fn main() -> ! {
         Some(mode) => run(mode),
         None => {
             report!(
-                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands | boot",
+                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands | boot | instrument",
                 arg
             );
             false
@@ -261,6 +264,9 @@ fn run(mode: Mode) -> bool {
         pipe.set_tap(l);
     }
     let loaded = stored::load(&mut pipe);
+    if mode == Mode::Instrument {
+        pipe.idle_at_power_on();
+    }
     pipe.start();
     let block_ticks =
         (PCLK_HZ as u64 * BLOCK_FRAMES as u64 / capture::SAMPLE_RATE_HZ as u64) as u32;
@@ -286,8 +292,11 @@ fn run(mode: Mode) -> bool {
         syst.clear_current();
         syst.enable_interrupt();
         syst.enable_counter();
+        let mut seen = (pipe.run_state().run, pipe.saves());
         while !pipe.done() {
-            pipe.serve_commands(COMMAND_BYTES_PER_LOOP);
+            if pipe.serve_commands(COMMAND_BYTES_PER_LOOP) > 0 && mode == Mode::Instrument {
+                seen = instrument_news(&pipe, seen);
+            }
             if pipe.step() {
                 continue;
             }
@@ -323,6 +332,36 @@ fn run(mode: Mode) -> bool {
     };
     report!("fw.verdict {}", if pass { "pass" } else { "FAIL" });
     pass
+}
+
+/// Mode `instrument`: a console line for each run started and each settings record
+/// stored since `seen` (run number, saves); returns what is seen now.
+#[inline(never)]
+fn instrument_news<W: embedded_io::Write, C: Clock>(
+    pipe: &Pipeline<'_, W, C>,
+    seen: (u32, u32),
+) -> (u32, u32) {
+    let r = pipe.run_state();
+    if r.run != seen.0 && r.running {
+        report!(
+            "fw.run run={} uptime_frames={} utc_set={} utc_ms={}",
+            r.run,
+            pipe.sample_clock(),
+            r.clock.is_some(),
+            r.clock
+                .map(|c| c.at(pipe.sample_clock(), capture::SAMPLE_RATE_HZ))
+                .unwrap_or(0)
+        );
+    }
+    if pipe.saves() != seen.1 {
+        stored::report_settings(
+            "stored",
+            pipe.settings(),
+            crate::settings::Loaded::Defaults,
+            pipe.has_store(),
+        );
+    }
+    (r.run, pipe.saves())
 }
 
 /// Command bytes read per pass of the main loop (bounded work: a pass also runs at every
@@ -367,6 +406,7 @@ fn acquisition(
                 Err(_) => return None,
             }
         }
+        Mode::Instrument => Source::Replay(ReplaySource::looping(capture::SAMPLES, channels)),
         _ => Source::Replay(ReplaySource::new(capture::SAMPLES, channels)),
     };
     let per_tick = if mode == Mode::Measure {

@@ -245,6 +245,10 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
     #[inline(never)]
     pub fn start(&mut self) {
         self.link.describe();
+        if !self.run.running {
+            self.link.pump(0);
+            return;
+        }
         self.link.run_start(RunStart {
             run: 1,
             label: heapless::String::new(),
@@ -252,6 +256,13 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             utc_ms: None,
         });
         self.link.pump(0);
+    }
+
+    /// Start without a run (an instrument waiting for a host's StartRun). Call before
+    /// [`start`](Self::start).
+    pub fn idle_at_power_on(&mut self) {
+        self.run.running = false;
+        self.run.run = 0;
     }
 
     /// True once a StopRun command was carried out.
