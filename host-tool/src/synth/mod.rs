@@ -641,12 +641,12 @@ pub fn scenario_from_args(args: &SynthArgs) -> Result<Scenario, SynthError> {
             });
         }
         // A capture replay cannot read is no test capture.
-        if n > crate::rig::MAX_PROBES {
+        if n > crate::shared::rig::MAX_PROBES {
             return Err(SynthError::Invalid {
                 key: "--probes".into(),
                 reason: format!(
                     "{n}: `replay` runs at most {} probes on one chain",
-                    crate::rig::MAX_PROBES
+                    crate::shared::rig::MAX_PROBES
                 ),
             });
         }

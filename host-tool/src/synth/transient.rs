@@ -4,7 +4,7 @@
 //!
 //! - **Arrival**: a reservoir of depth `d0` (`reservoir_depth_m`) released at `release_s`
 //!   behind a dam at `dam_x_mm` sends a front over the dry bed at Ritter's (1892) ideal
-//!   celerity `c = 2 sqrt(g d0)` ([`crate::hydraulics::ritter_front_celerity`]); it reaches
+//!   celerity `c = 2 sqrt(g d0)` ([`crate::shared::hydraulics::ritter_front_celerity`]); it reaches
 //!   a station at `x` at `t_a = release_s + (x − dam_x) / c`. The front face is taken
 //!   vertical at the station (every probe of a station is reached at `t_a`): a steep
 //!   roller, and a profile that holds from the first instant.
@@ -174,7 +174,7 @@ impl TransientSpec {
 
     /// Ritter's front celerity, m/s.
     pub fn celerity_m_s(&self) -> f64 {
-        crate::hydraulics::ritter_front_celerity(self.reservoir_depth_m).unwrap_or(f64::NAN)
+        crate::shared::hydraulics::ritter_front_celerity(self.reservoir_depth_m).unwrap_or(f64::NAN)
     }
 
     /// Arrival time at station `x_mm`, s.

@@ -1,8 +1,8 @@
 //! `frothline replay`: a recorded capture through the same core the device runs.
 //!
-//! Output files are written as one set ([`crate::output_set`]): staged, then renamed into
+//! Output files are written as one set ([`crate::shared::output_set`]): staged, then renamed into
 //! place with a manifest only when the whole capture went through, so a failed run leaves
-//! the folder as it was. The summary comes from running totals ([`crate::run_summary`]):
+//! the folder as it was. The summary comes from running totals ([`crate::offline::run_summary`]):
 //! memory does not grow with the number of windows.
 //!
 //! A capture that stopped abruptly (a truncated data chunk, an unfinished header) is read to
@@ -10,17 +10,17 @@
 //! `capture_cut`, a warning names the file and the frame, and `--strict` turns it into a
 //! failure (exit 2, after the files are written).
 
-use crate::capture::{Capture, CaptureError};
-use crate::error::{write_err, HostError};
-use crate::layout::Layout;
-use crate::output_set::{Committed, OutputSet};
-use crate::probe_summary::{ProbeTally, SummaryRow, SummaryRule, WindowFigures};
-use crate::record_levels::{self, LevelRule, RecordLevels};
-use crate::rig::HostRecord as ProbeWindow;
-use crate::rig::{chain_config, HostChain, MAX_PROBES};
-use crate::run_summary::RunTotals;
-use crate::window_spec::WindowSpec;
-use crate::windows_csv::{ProbeMeta, WindowsCsv};
+use crate::offline::record_levels::{self, LevelRule, RecordLevels};
+use crate::offline::run_summary::RunTotals;
+use crate::shared::capture::{Capture, CaptureError};
+use crate::shared::error::{write_err, HostError};
+use crate::shared::layout::Layout;
+use crate::shared::output_set::{Committed, OutputSet};
+use crate::shared::probe_summary::{ProbeTally, SummaryRow, SummaryRule, WindowFigures};
+use crate::shared::rig::HostRecord as ProbeWindow;
+use crate::shared::rig::{chain_config, HostChain, MAX_PROBES};
+use crate::shared::window_spec::WindowSpec;
+use crate::shared::windows_csv::{ProbeMeta, WindowsCsv};
 use frothline_core::levels::Levels;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::io::BufWriter;
@@ -103,7 +103,7 @@ pub struct ReplayReport {
     pub records: Vec<ProbeWindow>,
     /// Running totals per probe.
     pub totals: RunTotals,
-    /// The per-probe summary of [`crate::probe_summary`] under its default rule, one per
+    /// The per-probe summary of [`crate::shared::probe_summary`] under its default rule, one per
     /// layout probe.
     pub tallies: Vec<ProbeTally>,
     /// The windows.csv written.
@@ -161,7 +161,7 @@ pub fn levels_sources(layout: &Layout, learnt: Option<&RecordLevels>) -> Vec<Opt
 /// its histogram: a shorter one (`learn_period_s = 1e-9`, or a 1 Hz file) is refused,
 /// with the key, the value and the frames it makes at the capture's rate.
 pub fn check_learn_period(
-    cfg: &frothline_core::ChainConfig<{ crate::rig::MAX_PROBES }>,
+    cfg: &frothline_core::ChainConfig<{ crate::shared::rig::MAX_PROBES }>,
     layout: &Layout,
     sample_rate: u32,
     layout_path: &Path,
@@ -600,9 +600,9 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
 /// Run a replay and write its files.
 pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError> {
     // Transient layouts (surge fronts): one station chain per station, front-relative
-    // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::transient`).
-    if crate::transient::is_transient(&Layout::load(&args.layout)?) {
-        return crate::transient::run(args).map(|(_, report)| report);
+    // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::offline::transient`).
+    if crate::offline::transient::is_transient(&Layout::load(&args.layout)?) {
+        return crate::offline::transient::run(args).map(|(_, report)| report);
     }
     let (mut cap, layout, mut chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
     let mut learnt = None;
@@ -688,7 +688,7 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
         eprintln!("warning: {w}");
     }
     if !args.quiet {
-        crate::stdout::print(&summary_table(&report));
+        crate::shared::stdout::print(&summary_table(&report));
     }
     if args.strict {
         if let Some(e) = cap.abrupt_end_error() {
@@ -738,7 +738,7 @@ pub fn probe_tallies(
 }
 
 /// A short human summary: one line per probe over all its windows (see
-/// [`crate::probe_summary`] for the rule on flagged windows).
+/// [`crate::shared::probe_summary`] for the rule on flagged windows).
 pub fn summary_table(r: &ReplayReport) -> String {
     use std::fmt::Write;
     let mut s = String::new();
@@ -776,5 +776,5 @@ pub fn tally_table(layout: &Layout, tallies: &[ProbeTally]) -> String {
             tally,
         })
         .collect();
-    crate::probe_summary::summary_table(&rows)
+    crate::shared::probe_summary::summary_table(&rows)
 }

@@ -8,10 +8,10 @@ use std::path::PathBuf;
 pub enum HostError {
     /// The layout file is wrong.
     #[error(transparent)]
-    Layout(#[from] crate::layout::LayoutError),
+    Layout(#[from] crate::shared::layout::LayoutError),
     /// The capture file is wrong.
     #[error(transparent)]
-    Capture(#[from] crate::capture::CaptureError),
+    Capture(#[from] crate::shared::capture::CaptureError),
     /// The synthesiser could not run.
     #[error(transparent)]
     Synth(#[from] crate::synth::SynthError),

@@ -10,7 +10,7 @@
 //! kinds pass through unchanged).
 //!
 //! Output, in the `--out` folder:
-//! - `windows.csv` ([`crate::windows_csv`]) with `since_front_s` filled in;
+//! - `windows.csv` ([`crate::shared::windows_csv`]) with `since_front_s` filled in;
 //! - `profile.csv`: one row per station per slice ([`PROFILE_COLUMNS`]);
 //! - `fronts.csv`: one row per probe ([`FRONT_COLUMNS`]);
 //! - `stations.csv`: one row per station, with the front celerity from the previous
@@ -19,16 +19,18 @@
 //!   velocity and Reynolds number, and the scale-effect caution (the format
 //!   `crate::report::indicators` reads).
 
-use crate::capture::Capture;
-use crate::error::{write_err, HostError};
-use crate::hydraulics;
-use crate::layout::{Layout, Phase};
-use crate::output_set::{Committed, OutputSet};
-use crate::record_levels::{self, LevelRule};
-use crate::replay::{ReplayArgs, ReplayReport};
-use crate::rig::{chain_config, Counts, FullRecord, HostRecord, ToCounts, HOST_LAGS, MAX_PROBES};
-use crate::window_spec::WindowSpec;
-use crate::windows_csv::WindowsCsv;
+use crate::offline::record_levels::{self, LevelRule};
+use crate::offline::replay::{ReplayArgs, ReplayReport};
+use crate::shared::capture::Capture;
+use crate::shared::error::{write_err, HostError};
+use crate::shared::hydraulics;
+use crate::shared::layout::{Layout, Phase};
+use crate::shared::output_set::{Committed, OutputSet};
+use crate::shared::rig::{
+    chain_config, Counts, FullRecord, HostRecord, ToCounts, HOST_LAGS, MAX_PROBES,
+};
+use crate::shared::window_spec::WindowSpec;
+use crate::shared::windows_csv::WindowsCsv;
 use frothline_core::front::FrontRule;
 use frothline_core::profile::ProfileModel;
 use frothline_core::station::{default_delay_frames, StationArrival};
@@ -454,7 +456,7 @@ pub fn replay_samples(
 }
 
 /// A transient replay of a capture file.
-/// `rule` says how tips without fixed levels get them (see [`crate::record_levels`]).
+/// `rule` says how tips without fixed levels get them (see [`crate::offline::record_levels`]).
 pub fn replay_capture(
     capture: &Path,
     layout_path: &Path,
@@ -477,14 +479,14 @@ pub fn replay_capture_to_cut(
 ) -> Result<(TransientRun, Capture), HostError> {
     let layout = Layout::load(layout_path)?;
     let mut cap = Capture::open(capture)?;
-    crate::replay::require_frames(&cap)?;
+    crate::offline::replay::require_frames(&cap)?;
     cap.end_at_cut();
     layout.check_channels(cap.channels(), layout_path)?;
-    crate::replay::check_levels_fit(&layout, &cap, layout_path)?;
+    crate::offline::replay::check_levels_fit(&layout, &cap, layout_path)?;
     let mut run = replay_open(&mut cap, &layout, layout_path, window, rule, full)?;
     let (abrupt, last) = (cap.ends_abruptly(), cap.position());
     for w in &mut run.windows {
-        crate::replay::mark_cut(w, abrupt, last);
+        crate::offline::replay::mark_cut(w, abrupt, last);
     }
     Ok((run, cap))
 }
@@ -526,15 +528,15 @@ fn replay_open(
             min_swing = cfg.detector.min_swing;
         }
         let l = record_levels::learn(cap.path(), &tips, min_swing)?;
-        crate::replay::report_unlearnt(&l, layout, min_swing);
+        crate::offline::replay::report_unlearnt(&l, layout, min_swing);
         for (_, cfg) in configs.iter_mut() {
             l.apply(cfg);
         }
         learnt = Some(l);
     }
     for (_, cfg) in &configs {
-        crate::replay::period_rule(
-            crate::replay::check_learn_period(cfg, layout, fs, layout_path),
+        crate::offline::replay::period_rule(
+            crate::offline::replay::check_learn_period(cfg, layout, fs, layout_path),
             rule,
         )?;
     }
@@ -544,7 +546,7 @@ fn replay_open(
         })
         .map_err(|e| e.into_host(layout_path))
     })?;
-    run.levels_from = crate::replay::levels_sources(layout, learnt.as_ref());
+    run.levels_from = crate::offline::replay::levels_sources(layout, learnt.as_ref());
     Ok(run)
 }
 
@@ -997,7 +999,7 @@ pub fn write_output_set(
         source: e.into(),
     };
     let mut csv = WindowsCsv::new(std::io::BufWriter::new(file)).map_err(csv_err)?;
-    let meta = crate::replay::probe_meta_with(&run.layout, &run.levels_from);
+    let meta = crate::offline::replay::probe_meta_with(&run.layout, &run.levels_from);
     for w in &run.windows {
         let since = w.since_front.map(|f| run.secs(f as f64));
         let p = w.probe as usize;
@@ -1177,7 +1179,7 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
         let _ = writeln!(s, "caution: {c}");
     }
     let records: Vec<_> = run.windows.clone();
-    s.push_str(&crate::replay::probe_table(
+    s.push_str(&crate::offline::replay::probe_table(
         &run.layout,
         run.sample_rate,
         &records,
@@ -1227,19 +1229,19 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
             text.push_str(&note);
             text.push('\n');
         }
-        crate::stdout::print(&text);
+        crate::shared::stdout::print(&text);
     }
     let report = ReplayReport {
         layout: run.layout.clone(),
         sample_rate: run.sample_rate,
         frames: run.frames,
         records: run.windows.clone(),
-        totals: crate::run_summary::RunTotals::of(run.layout.probes.len(), &run.windows),
-        tallies: crate::replay::probe_tallies(
+        totals: crate::offline::run_summary::RunTotals::of(run.layout.probes.len(), &run.windows),
+        tallies: crate::offline::replay::probe_tallies(
             &run.layout,
             run.sample_rate,
             &run.windows,
-            &crate::probe_summary::SummaryRule::default(),
+            &crate::shared::probe_summary::SummaryRule::default(),
         ),
         windows_csv: files.windows.clone(),
         abrupt_end,
@@ -1255,5 +1257,5 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
 
 /// True if `layout` is a transient layout (replayed by this module).
 pub fn is_transient(layout: &Layout) -> bool {
-    layout.flow.kind == crate::layout::FlowKind::Transient
+    layout.flow.kind == crate::shared::layout::FlowKind::Transient
 }

@@ -3,7 +3,7 @@
 //! The one place where physical units of the layout (seconds, file units) become the core's
 //! frames and i16 counts, so replay and the simulated device build identical chains.
 
-use crate::layout::{Layout, Phase};
+use crate::shared::layout::{Layout, Phase};
 use frothline_core::{
     ChainConfig, ConfigError, DetectorConfig, LevelSource, Polarity, ProbeConfig, TipConfig,
     WindowPolicy,
@@ -33,9 +33,9 @@ pub trait ToCounts {
     fn to_counts(&self, file_units: f64) -> f64;
 }
 
-impl ToCounts for crate::capture::Capture {
+impl ToCounts for crate::shared::capture::Capture {
     fn to_counts(&self, v: f64) -> f64 {
-        crate::capture::Capture::to_counts(self, v)
+        crate::shared::capture::Capture::to_counts(self, v)
     }
 }
 
@@ -101,7 +101,7 @@ pub fn chain_config(
     let mut cfg = ChainConfig::new(channels as u8, window);
     cfg.detector = detector;
     cfg.initial_air = layout.flow.phase_before_front == Phase::Air
-        && layout.flow.kind == crate::layout::FlowKind::Transient;
+        && layout.flow.kind == crate::shared::layout::FlowKind::Transient;
     for p in &layout.probes {
         let polarity = if p.air_is_high {
             Polarity::AirHigh

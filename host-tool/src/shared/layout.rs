@@ -29,7 +29,7 @@
 //! and column.
 //!
 //! Level and rail values are in *file units* (the numbers stored in the WAV file: counts for
-//! integer files, -1.0..1.0 for float files); `crate::capture::Capture::to_counts` maps them
+//! integer files, -1.0..1.0 for float files); `crate::shared::capture::Capture::to_counts` maps them
 //! to the i16 counts the core works on.
 
 use std::collections::HashMap;
