@@ -65,7 +65,7 @@ impl Command {
             Command::DescribeRequest => Body::DescribeRequest,
             Command::SetLevels(l) => Body::SetLevels(*l),
             Command::SetClock => Body::SetClock(SetClock {
-                utc_ms: crate::archive::now_us() / 1000,
+                utc_ms: crate::shared::archive::now_us() / 1000,
             }),
         })
     }
