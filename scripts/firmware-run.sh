@@ -5,7 +5,7 @@
 # when the run hits the time limit.
 #
 # Usage: bash scripts/firmware-run.sh [MODE] [options]
-#   MODE            run (default) | adc | overrun | measure | logger | commands | boot | instrument (see firmware-example/src/mps2.rs);
+#   MODE            run (default) | adc | overrun | measure | logger | commands | boot | instrument | field (see firmware-example/src/mps2.rs);
 #                   logger builds the field-logger firmware (surge capture, station chain) and
 #                   writes the field log's flash image, sent out of UART1, to --log
 #   --uart PATH     UART0 to PATH (default target/firmware/uart-MODE.bin); `stdio` for stdout;
@@ -30,7 +30,7 @@ cd "$(dirname "$0")/.."
 mode=run uart="" uart_in="" settings="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
 while [ $# -gt 0 ]; do
     case "$1" in
-        run|adc|overrun|measure|logger|commands|boot|instrument) mode=$1 ;;
+        run|adc|overrun|measure|logger|commands|boot|instrument|field) mode=$1 ;;
         --uart) uart=$2; shift ;;
         --uart-in) uart_in=$2; shift ;;
         --icount) shift_=$2; shift ;;
@@ -69,6 +69,11 @@ fi
 
 capture=firmware-example/capture
 second_serial=()
+if [ "$mode" = field ]; then
+    # The field-logger build; its log is read over UART0 (ReadLog), UART1 unused.
+    features="field-logger${features:+,$features}"
+    capture=firmware-example/capture-surge
+fi
 if [ "$mode" = logger ]; then
     features="field-logger${features:+,$features}"
     capture=firmware-example/capture-surge

@@ -7,7 +7,10 @@
 #      in flash), starts the labelled run (the host's UTC in the StartRun and a SetClock
 #      at connect), and records the session;
 #   3. the board is powered off (QEMU ends) and booted again on the same store: it reports
-#      the stored 100 ms window (2000 frames at 20 kHz) at power-on without being told.
+#      the stored 100 ms window (2000 frames at 20 kHz) at power-on without being told;
+#   4. the field-logger build, left powered after its surge run (mode field), has its log
+#      read over the link by `frothline logbook --port` (ReadLog / LogChunk), as from a
+#      board: the same windows.csv as from the flash image of the logger check.
 # Checks: windows.csv of step 2 has rows of run 1 labelled bench1 in 0.1 s windows, the
 # firmware dated the run (a UTC clock set), and the reboot reports the stored window.
 # Needs the host tool (cargo build) and QEMU (scripts/fetch-qemu.sh). Exits non-zero on
@@ -70,4 +73,35 @@ grep '^fw\.settings' "$out/console-2.txt"
 grep -q "fw.settings loaded store=true records=1 .*window=frames window_frames=2000" \
     "$out/console-2.txt" || fail "the reboot did not load the stored window"
 grep -q "window 100 ms" "$out/watch-2.txt" || fail "the reboot did not report the stored window"
-echo "firmware-watch: pass"
+echo "firmware-watch: instrument pass"
+
+# The field-logger build left powered after its run (mode field): its log read over the
+# link, as from a board, into the same CSV a flash image gives.
+console=$out/console-field.txt
+bash scripts/firmware-run.sh field --icount 0 --uart pty --timeout 60 > "$console" 2>&1 &
+field_pid=$!
+pts=""
+for _ in $(seq 1200); do
+    grep -q '^fw.field' "$console" && pts=$(grep -o '/dev/pts/[0-9]*' "$console" | head -1)
+    [ -n "$pts" ] && break
+    sleep 0.1
+done
+[ -n "$pts" ] || { cat "$console"; fail "the field build did not finish its run"; }
+"$bin" logbook --port "$pts" --out "$out/fieldlog" --page-bytes 4096 --write-unit 4 \
+    --layout firmware-example/capture-surge/layout.toml > "$out/logbook.txt" 2>&1
+rc=$?
+kill "$field_pid" 2>/dev/null
+cat "$out/logbook.txt"
+[ $rc -eq 0 ] || fail "logbook --port"
+grep '^fw\.logger\|^fw\.result' "$console"
+rows=$(($(wc -l < "$out/fieldlog/windows.csv") - 1))
+echo "field log over the link: $rows window rows"
+[ "$rows" -gt 0 ] || fail "no window rows in the log read over the link"
+# The same log as the image the logger check sent out of UART1 (firmware-test.sh runs it
+# first): the same CSV, byte for byte.
+ref=target/firmware/fieldlog-csv/windows.csv
+if [ -f "$ref" ]; then
+    cmp "$ref" "$out/fieldlog/windows.csv" || fail "the log read over the link differs from the image's"
+    echo "field log over the link: windows.csv equal to the flash image's ($ref)"
+fi
+echo "firmware-watch: field log pass"

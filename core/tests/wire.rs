@@ -7,9 +7,9 @@
 
 use frothline_core::wire::{
     self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, Decoder,
-    DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, Nack, NackReason,
-    ProbeLayout, ProfileFit, Relearn, RunStart, SeqCheck, SetClock, SetLevels, StartRun, Streamer,
-    StreamerConfig, TrailingTip, WindowResult, WindowSetting, Windows, LABEL_BYTES,
+    DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, LogChunk, Nack, NackReason,
+    ProbeLayout, ProfileFit, ReadLog, Relearn, RunStart, SeqCheck, SetClock, SetLevels, StartRun,
+    Streamer, StreamerConfig, TrailingTip, WindowResult, WindowSetting, Windows, LABEL_BYTES,
     MAX_FRAME_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME,
 };
 use proptest::prelude::*;
@@ -258,6 +258,16 @@ fn sample_frames() -> Vec<Frame> {
                 utc_ms: 1_700_000_000_123,
             }),
         ),
+        host(8, Body::ReadLog(ReadLog { offset: 4096 })),
+        dev(
+            308,
+            Body::LogChunk(LogChunk {
+                offset: 4096,
+                total: 65536,
+                data: heapless::Vec::from_slice(&[0x47, 0x4C, 0x4C, 0x46, 0x01, 0x00, 0xFF])
+                    .unwrap(),
+            }),
+        ),
     ]
 }
 
@@ -382,6 +392,12 @@ fn largest_frames() -> Vec<Frame> {
             reason: NackReason::Other(u8::MAX),
         })),
         f(Body::SetClock(SetClock { utc_ms: u64::MAX })),
+        f(Body::ReadLog(ReadLog { offset: u32::MAX })),
+        f(Body::LogChunk(LogChunk {
+            offset: u32::MAX,
+            total: u32::MAX,
+            data: heapless::Vec::from_slice(&[0xFF; wire::LOG_CHUNK_BYTES]).unwrap(),
+        })),
     ]
 }
 
@@ -1171,6 +1187,17 @@ fn arb_body() -> impl Strategy<Value = Body> {
             })
         ),
         any::<u64>().prop_map(|utc_ms| Body::SetClock(SetClock { utc_ms })),
+        any::<u32>().prop_map(|offset| Body::ReadLog(ReadLog { offset })),
+        (
+            any::<u32>(),
+            any::<u32>(),
+            proptest::collection::vec(any::<u8>(), 0..=wire::LOG_CHUNK_BYTES)
+        )
+            .prop_map(|(offset, total, d)| Body::LogChunk(LogChunk {
+                offset,
+                total,
+                data: heapless::Vec::from_slice(&d).unwrap(),
+            })),
         any::<u16>().prop_map(|seq| Body::Ack(Ack { seq })),
         (any::<u16>(), any::<u8>()).prop_map(|(seq, r)| Body::Nack(Nack {
             seq,

@@ -22,7 +22,8 @@ use crate::link::Link;
 use crate::settings::{front_relative, Settings};
 use embedded_io::Write;
 use frothline_core::wire::{
-    CommandTarget, NackReason, RunStart, SetLevels, StartRun, WindowSetting,
+    CommandTarget, LogChunk, NackReason, RunStart, SetLevels, StartRun, WindowSetting,
+    LOG_CHUNK_BYTES,
 };
 use frothline_core::ChainConfig;
 
@@ -110,6 +111,8 @@ pub struct FwTarget<'a, W, const P: usize> {
     pub now_frames: u64,
     /// Frames per second.
     pub rate_hz: u32,
+    /// The field log, if the board keeps one (ReadLog).
+    pub log: Option<&'a mut dyn crate::pipeline::ResultTap>,
 }
 
 impl<W: Write, const P: usize> FwTarget<'_, W, P> {
@@ -207,6 +210,29 @@ impl<W: Write, const P: usize> CommandTarget for FwTarget<'_, W, P> {
 
     fn describe(&mut self) -> Result<(), NackReason> {
         self.link.describe();
+        Ok(())
+    }
+
+    fn read_log(&mut self, offset: u32) -> Result<(), NackReason> {
+        let log = self.log.as_mut().ok_or(NackReason::UnknownCommand)?;
+        // The region's size first (a read of no bytes), then the chunk.
+        let total = log
+            .read_region(0, &mut [])
+            .ok_or(NackReason::UnknownCommand)?;
+        if offset >= total {
+            return Err(NackReason::BadArgument);
+        }
+        let n = (total - offset).min(LOG_CHUNK_BYTES as u32) as usize;
+        let mut buf = [0u8; LOG_CHUNK_BYTES];
+        let chunk = buf.get_mut(..n).ok_or(NackReason::BadArgument)?;
+        log.read_region(offset, chunk).ok_or(NackReason::Busy)?;
+        let mut data = heapless::Vec::new();
+        let _ = data.extend_from_slice(chunk);
+        self.link.log_chunk(LogChunk {
+            offset,
+            total,
+            data,
+        });
         Ok(())
     }
 

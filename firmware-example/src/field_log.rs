@@ -183,6 +183,12 @@ impl<F: NorFlash> ResultTap for FieldLog<F> {
         self.emit(Body::Health(h), Route::Logger);
     }
 
+    fn read_region(&mut self, offset: u32, buf: &mut [u8]) -> Option<u32> {
+        let total = self.book.capacity() as u32;
+        self.book.read_raw(offset, buf).ok()?;
+        Some(total)
+    }
+
     fn flush(&mut self) {
         if self.batch.is_empty() {
             return;

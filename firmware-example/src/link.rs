@@ -97,6 +97,11 @@ impl<W: Write> Link<W> {
         self.streamer.offer(Body::RunStart(r));
     }
 
+    /// Queue a chunk of the field log region (urgent: it precedes the ReadLog's Ack).
+    pub fn log_chunk(&mut self, c: frothline_core::wire::LogChunk) {
+        self.streamer.offer(Body::LogChunk(c));
+    }
+
     /// Queue the answer to a host command (urgent).
     pub fn reply(&mut self, r: Reply) {
         self.streamer.offer(r.body());

@@ -38,6 +38,10 @@
 //!   `-serial`) for `frothline logbook`. Passes as `run` does, and when a front triggered
 //!   the capture, nothing was dropped and the fresh mount finds every logged record.
 //!
+//! - `field` (field-logger build): `logger`, then the board stays up answering commands
+//!   until QEMU is stopped, so a host reads the log over the link with ReadLog
+//!   (`frothline logbook --port`), as from a board left powered after a deployment.
+//!
 //! Every mode ends with `key=value` summary lines on the semihosting console and exits
 //! QEMU with status 0 (pass) or 1 (fail).
 
@@ -87,6 +91,7 @@ enum Mode {
     Commands,
     Boot,
     Instrument,
+    Field,
 }
 
 impl Mode {
@@ -104,6 +109,7 @@ impl Mode {
             Some("commands") => Some(Mode::Commands),
             Some("boot") => Some(Mode::Boot),
             Some("instrument") => Some(Mode::Instrument),
+            Some("field") => Some(Mode::Field),
             Some(_) if words == 1 => Some(Mode::Run),
             Some(_) => None,
         }
@@ -119,6 +125,7 @@ impl Mode {
             Mode::Commands => "commands",
             Mode::Boot => "boot",
             Mode::Instrument => "instrument",
+            Mode::Field => "field",
         }
     }
 }
@@ -195,7 +202,7 @@ fn main() -> ! {
         Some(mode) => run(mode),
         None => {
             report!(
-                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands | boot | instrument",
+                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands | boot | instrument | field",
                 arg
             );
             false
@@ -244,7 +251,7 @@ fn run(mode: Mode) -> bool {
     let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
     #[cfg(feature = "field-logger")]
     let mut log = match mode {
-        Mode::Logger => match logger::mount() {
+        Mode::Logger | Mode::Field => match logger::mount() {
             Some(l) => Some(l),
             None => {
                 report!("fw.error the field log did not mount");
@@ -254,7 +261,7 @@ fn run(mode: Mode) -> bool {
         _ => None,
     };
     #[cfg(not(feature = "field-logger"))]
-    if mode == Mode::Logger {
+    if matches!(mode, Mode::Logger | Mode::Field) {
         report!("fw.error mode `logger` needs the field-logger build (--features field-logger)");
         return false;
     }
@@ -321,6 +328,12 @@ fn run(mode: Mode) -> bool {
     if mode == Mode::Commands {
         answer_until_quiet(&mut pipe);
     }
+    if mode == Mode::Field {
+        report!(
+            "fw.field the run is over: the log is read over the link (ReadLog) until power-off"
+        );
+        answer_for_ever(&mut pipe);
+    }
     let total = pipe.clock().now().wrapping_sub(t_start) as u64;
     let stack_run = sys::stack_high_water();
     let pass = end_of_run(mode, pipe, total, stack_init, stack_run);
@@ -385,6 +398,18 @@ fn answer_until_quiet(pipe: &mut Pipeline<'_, CmsdkUart, CmsdkTimer>) {
         }
     }
     pipe.drain_link(now);
+}
+
+/// Mode `field`, after the run: answer commands (a host reading the log back with
+/// ReadLog) until QEMU is stopped: the board left powered for its log to be read.
+#[inline(never)]
+fn answer_for_ever(pipe: &mut Pipeline<'_, CmsdkUart, CmsdkTimer>) -> ! {
+    let mut now = pipe.sample_clock();
+    loop {
+        if pipe.serve_commands(COMMAND_BYTES_PER_LOOP) > 0 {
+            now = pipe.drain_link(now);
+        }
+    }
 }
 
 /// The acquisition of `mode`, built in place in a static (not on the stack of [`run`],

@@ -33,6 +33,12 @@ pub trait ResultTap {
     fn health(&mut self, h: Health);
     /// The run ended: write out what is pending.
     fn flush(&mut self);
+    /// Raw bytes of the log region at `offset` (a host reading the log over the link);
+    /// the region's size, or `None` when there is no log to read.
+    fn read_region(&mut self, offset: u32, buf: &mut [u8]) -> Option<u32> {
+        let _ = (offset, buf);
+        None
+    }
 }
 
 /// Where the main loop's time went, in clock ticks.
@@ -474,6 +480,10 @@ impl<W: Write + Read + ReadReady + 'static, C: Clock> Pipeline<'_, W, C> {
                 config: self.chain.config(),
                 now_frames: HEALTH.frames_in.load(Ordering::Relaxed) as u64,
                 rate_hz: capture::SAMPLE_RATE_HZ,
+                log: match self.tap.as_mut() {
+                    Some(t) => Some(&mut **t),
+                    None => None,
+                },
             };
             if let Some(reply) = self.responder.feed(b[0], &mut target) {
                 self.link.reply(reply);

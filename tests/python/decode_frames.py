@@ -200,6 +200,8 @@ KINDS = {
     0x04: ("profile", profile),
     0x05: ("health", health),
     0x06: ("run_start", run_start),
+    0x07: ("log_chunk", lambda c: {"offset": u32(c), "total": u32(c),
+                                   "data": bytes(c.seq(c.byte, 64)).hex()}),
     0x20: ("start_run", lambda c: {"label": c.text(16), "utc_ms": c.opt(lambda: u64(c))}),
     0x21: ("stop_run", empty),
     0x22: ("set_window", window_setting),
@@ -207,6 +209,7 @@ KINDS = {
     0x24: ("describe_request", empty),
     0x25: ("set_clock", lambda c: {"utc_ms": u64(c)}),
     0x26: ("set_levels", set_levels),
+    0x27: ("read_log", lambda c: {"offset": u32(c)}),
     0x30: ("ack", lambda c: {"seq": u16(c)}),
     0x31: ("nack", lambda c: {"seq": u16(c), "reason": c.byte()}),
 }

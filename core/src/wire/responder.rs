@@ -21,7 +21,7 @@
 use crate::wire::codec::{crc32, exact};
 use crate::wire::frame::WindowSetting;
 use crate::wire::frame::{
-    Ack, Body, Header, Kind, Nack, NackReason, Relearn, SetClock, SetLevels, StartRun,
+    Ack, Body, Header, Kind, Nack, NackReason, ReadLog, Relearn, SetClock, SetLevels, StartRun,
 };
 use crate::wire::{cobs_max_encoded, CRC_BYTES, HOST_ID, PROTOCOL_VERSION};
 use postcard::experimental::max_size::MaxSize;
@@ -41,6 +41,7 @@ pub const COMMAND_FRAME_BYTES: usize = {
     body = max(body, Relearn::POSTCARD_MAX_SIZE);
     body = max(body, SetClock::POSTCARD_MAX_SIZE);
     body = max(body, SetLevels::POSTCARD_MAX_SIZE);
+    body = max(body, ReadLog::POSTCARD_MAX_SIZE);
     cobs_max_encoded(Header::POSTCARD_MAX_SIZE + body + CRC_BYTES) + 1
 };
 
@@ -62,6 +63,8 @@ pub enum Command {
     SetClock(SetClock),
     /// 0x26: fix the air and water levels of one tip.
     SetLevels(SetLevels),
+    /// 0x27: send a chunk of the field log region.
+    ReadLog(ReadLog),
 }
 
 /// What a device does for each command. The [`Responder`] has already applied the rules
@@ -91,6 +94,14 @@ pub trait CommandTarget {
     /// device without a clock refuses it as a command it does not carry out.
     fn set_clock(&mut self, utc_ms: u64) -> Result<(), NackReason> {
         let _ = utc_ms;
+        Err(NackReason::UnknownCommand)
+    }
+    /// Queue a [`LogChunk`](crate::wire::LogChunk) of the field log region from `offset`
+    /// (before returning, so it precedes the Ack); an offset at or beyond the region's end
+    /// is a bad argument. A device without a field log refuses it as a command it does not
+    /// carry out.
+    fn read_log(&mut self, offset: u32) -> Result<(), NackReason> {
+        let _ = offset;
         Err(NackReason::UnknownCommand)
     }
 }
@@ -293,6 +304,9 @@ impl Responder {
             Some(Kind::SetLevels) => {
                 Command::SetLevels(exact(body).map_err(|_| NackReason::Malformed)?)
             }
+            Some(Kind::ReadLog) => {
+                Command::ReadLog(exact(body).map_err(|_| NackReason::Malformed)?)
+            }
             _ => return Err(NackReason::UnknownCommand),
         };
         match cmd {
@@ -309,6 +323,7 @@ impl Responder {
             Command::DescribeRequest => target.describe(),
             Command::SetClock(c) => target.set_clock(c.utc_ms),
             Command::SetLevels(l) => target.set_levels(&l),
+            Command::ReadLog(r) => target.read_log(r.offset),
         }
     }
 }

@@ -31,8 +31,8 @@
 
 use crate::wire::codec::encode;
 use crate::wire::frame::{
-    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, RunStart,
-    SetClock, SetLevels, StartRun, WindowResult, WindowSetting, Windows,
+    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, LogChunk, Nack, ProfileFit, ReadLog,
+    Relearn, RunStart, SetClock, SetLevels, StartRun, WindowResult, WindowSetting, Windows,
 };
 use crate::wire::{MAX_FRAME_BYTES, MAX_WINDOWS_PER_FRAME};
 use heapless::Deque;
@@ -118,6 +118,8 @@ enum Urgent {
     DescribeRequest,
     SetClock(SetClock),
     SetLevels(SetLevels),
+    ReadLog(ReadLog),
+    LogChunk(LogChunk),
     Ack(Ack),
     Nack(Nack),
 }
@@ -135,6 +137,8 @@ impl Urgent {
             Urgent::DescribeRequest => Body::DescribeRequest,
             Urgent::SetClock(b) => Body::SetClock(b),
             Urgent::SetLevels(b) => Body::SetLevels(b),
+            Urgent::ReadLog(b) => Body::ReadLog(b),
+            Urgent::LogChunk(b) => Body::LogChunk(b),
             Urgent::Ack(b) => Body::Ack(b),
             Urgent::Nack(b) => Body::Nack(b),
         }
@@ -205,6 +209,8 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
             Body::DescribeRequest => Urgent::DescribeRequest,
             Body::SetClock(b) => Urgent::SetClock(b),
             Body::SetLevels(b) => Urgent::SetLevels(b),
+            Body::ReadLog(b) => Urgent::ReadLog(b),
+            Body::LogChunk(b) => Urgent::LogChunk(b),
             Body::Ack(b) => Urgent::Ack(b),
             Body::Nack(b) => Urgent::Nack(b),
         };

@@ -10,7 +10,7 @@
 //! clock, so the runs a device starts by itself are dated too.
 
 use frothline_core::wire::{
-    self, Body, Frame, Kind, Relearn, SetClock, SetLevels, StartRun, WindowSetting,
+    self, Body, Frame, Kind, ReadLog, Relearn, SetClock, SetLevels, StartRun, WindowSetting,
 };
 use std::collections::VecDeque;
 
@@ -35,6 +35,8 @@ pub enum Command {
     SetLevels(SetLevels),
     /// Set the device's UTC clock to the host's UTC now (taken when the frame is built).
     SetClock,
+    /// Ask for a chunk of the device's field log region.
+    ReadLog(ReadLog),
 }
 
 impl Command {
@@ -48,6 +50,7 @@ impl Command {
             Command::DescribeRequest => Kind::DescribeRequest,
             Command::SetLevels(_) => Kind::SetLevels,
             Command::SetClock => Kind::SetClock,
+            Command::ReadLog(_) => Kind::ReadLog,
         }
     }
 
@@ -64,6 +67,7 @@ impl Command {
             Command::Relearn(mask) => Body::Relearn(Relearn { probes: *mask }),
             Command::DescribeRequest => Body::DescribeRequest,
             Command::SetLevels(l) => Body::SetLevels(*l),
+            Command::ReadLog(r) => Body::ReadLog(*r),
             Command::SetClock => Body::SetClock(SetClock {
                 utc_ms: crate::shared::archive::now_us() / 1000,
             }),
@@ -86,6 +90,8 @@ pub fn kind_name(kind: Kind) -> &'static str {
         Kind::Relearn => "relearn",
         Kind::DescribeRequest => "describe-request",
         Kind::SetClock => "set-clock",
+        Kind::ReadLog => "read-log",
+        Kind::LogChunk => "log-chunk",
         Kind::SetLevels => "set-levels",
         Kind::Ack => "ack",
         Kind::Nack => "nack",
