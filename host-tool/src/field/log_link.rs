@@ -30,7 +30,7 @@ pub const MAX_REGION_BYTES: u32 = 64 << 20;
 /// Read the whole field log region of the device on `port` (opened at `baud`).
 pub fn read_region(port: &str, baud: u32) -> Result<Vec<u8>, HostError> {
     let mut link = crate::live::watch::open_port(port, baud)
-        .map_err(|e| HostError::Usage(format!("{}", crate::live::watch::open_hint(port, &e))))?;
+        .map_err(|e| HostError::Usage(crate::live::watch::open_hint(port, &e)))?;
     read_from(&mut *link, port)
 }
 
