@@ -37,11 +37,11 @@
 //! device does not drop samples: it catches up, and the backlog shows in the health frame's
 //! buffer high-water mark.
 
-use crate::offline::transient::{self, StationChain, StationInfo};
 use crate::shared::error::HostError;
 use crate::shared::layout::Layout;
 use crate::shared::rig::FullRecord as ProbeWindow;
 use crate::shared::rig::{chain_config, Counts, HostChain, ToCounts, HOST_LAGS, MAX_PROBES};
+use crate::shared::stations::{self as transient, StationChain, StationInfo};
 use crate::shared::window_spec::WindowSpec;
 use frothline_core::wire::{
     quant, Body, CommandTarget, DeviceDescription, Health, NackReason, ProbeLayout, Reply,
@@ -134,7 +134,7 @@ impl SimCapture {
         let layout_doc = Layout::load(layout)?;
         let mut cap = crate::shared::capture::Capture::open(capture)?;
         layout_doc.check_channels(cap.channels(), layout)?;
-        crate::offline::replay::check_levels_fit(&layout_doc, &cap, layout)?;
+        crate::shared::rig::check_levels_fit(&layout_doc, &cap, layout)?;
         if layout_doc.probes.len() > MAX_PROBES {
             return Err(HostError::Usage(format!(
                 "{}: {} probes, the host handles at most {MAX_PROBES}",

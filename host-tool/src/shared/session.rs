@@ -35,7 +35,7 @@ use std::path::{Path, PathBuf};
 /// Columns of a live fronts.csv: the contract of DESIGN.md §3 (the replay's first columns;
 /// the wire carries no more).
 pub fn front_columns() -> Vec<&'static str> {
-    let mut c = crate::offline::transient::FRONT_COLUMNS[..3].to_vec();
+    let mut c = crate::shared::transient_columns::FRONT_COLUMNS[..3].to_vec();
     c.extend(crate::shared::runs::RUN_COLUMNS);
     c
 }
@@ -44,7 +44,7 @@ pub fn front_columns() -> Vec<&'static str> {
 /// columns), then `flags`, the estimate the contract columns hold and its standard errors
 /// (named as in the replay's profile.csv).
 pub fn profile_columns() -> Vec<&'static str> {
-    let mut c = crate::offline::transient::PROFILE_COLUMNS[..10].to_vec();
+    let mut c = crate::shared::transient_columns::PROFILE_COLUMNS[..10].to_vec();
     c.extend([
         "flags",
         "estimate",

@@ -119,6 +119,7 @@ pub mod output;
 pub mod render;
 pub mod scenario;
 pub mod transient;
+pub mod transient_spec;
 
 #[cfg(test)]
 mod tests;
@@ -138,7 +139,8 @@ pub use scenario::{
     DetectorSpec, DriftKind, DriftSpec, ProbeDefaults, ProbeSpec, Resolved, ResolvedProbe,
     Scenario, SignalSpec,
 };
-pub use transient::{TransientFlow, TransientSpec, TransientTruth};
+pub use transient::{TransientFlow, TransientTruth};
+pub use transient_spec::TransientSpec;
 
 /// Frames per block when streaming a capture to disk.
 pub const BLOCK_FRAMES: usize = 4096;
@@ -194,6 +196,14 @@ pub enum SynthError {
         #[source]
         source: csv::Error,
     },
+}
+
+impl From<SynthError> for crate::shared::error::HostError {
+    /// A bad scenario or a file the synthesiser cannot write: exit code 2, as for any bad
+    /// input.
+    fn from(e: SynthError) -> Self {
+        crate::shared::error::HostError::Job(Box::new(e), 2)
+    }
 }
 
 fn fmt_path(p: &Option<PathBuf>) -> String {
