@@ -38,8 +38,8 @@
 
 use crate::wire::codec::encode;
 use crate::wire::frame::{
-    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, RunStart,
-    SetLevels, StartRun, WindowResult, WindowSetting, Windows,
+    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, LogChunk, Nack, ProfileFit, ReadLog,
+    Relearn, RunStart, SetClock, SetLevels, StartRun, WindowResult, WindowSetting, Windows,
 };
 use crate::wire::tip_health::{TipBook, TipHealth, TipReport};
 use crate::wire::{MAX_FRAME_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME};
@@ -124,7 +124,10 @@ enum Urgent {
     SetWindow(WindowSetting),
     Relearn(Relearn),
     DescribeRequest,
+    SetClock(SetClock),
     SetLevels(SetLevels),
+    ReadLog(ReadLog),
+    LogChunk(LogChunk),
     Ack(Ack),
     Nack(Nack),
 }
@@ -140,7 +143,10 @@ impl Urgent {
             Urgent::SetWindow(b) => Body::SetWindow(b),
             Urgent::Relearn(b) => Body::Relearn(b),
             Urgent::DescribeRequest => Body::DescribeRequest,
+            Urgent::SetClock(b) => Body::SetClock(b),
             Urgent::SetLevels(b) => Body::SetLevels(b),
+            Urgent::ReadLog(b) => Body::ReadLog(b),
+            Urgent::LogChunk(b) => Body::LogChunk(b),
             Urgent::Ack(b) => Body::Ack(b),
             Urgent::Nack(b) => Body::Nack(b),
         }
@@ -221,7 +227,10 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             Body::SetWindow(b) => Urgent::SetWindow(b),
             Body::Relearn(b) => Urgent::Relearn(b),
             Body::DescribeRequest => Urgent::DescribeRequest,
+            Body::SetClock(b) => Urgent::SetClock(b),
             Body::SetLevels(b) => Urgent::SetLevels(b),
+            Body::ReadLog(b) => Urgent::ReadLog(b),
+            Body::LogChunk(b) => Urgent::LogChunk(b),
             Body::Ack(b) => Urgent::Ack(b),
             Body::Nack(b) => Urgent::Nack(b),
         };
