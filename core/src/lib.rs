@@ -16,6 +16,7 @@
 //! - [`window`]: analysis-window policies;
 //! - [`chain`]: the streaming pipeline that ties them together;
 //! - [`record`] and [`flags`]: what comes out;
+//! - [`derived`]: chord lengths, interfacial area, Sauter diameter, particle grouping;
 //! - transient flows: [`front`] (arrival of a surge front), [`station`] (a chain as one
 //!   station: front-relative windows, profile slices), [`profile`] (the void-fraction
 //!   profile fit), [`decay`] (the decay of the depth-averaged void fraction).
@@ -28,6 +29,7 @@ pub mod chord;
 pub mod config;
 pub mod correlation;
 pub mod decay;
+pub mod derived;
 pub mod flags;
 pub mod front;
 pub mod levels;
