@@ -9,6 +9,8 @@
 //! phase_before_front = "air"  # transient only, default "air"
 //! reference_depth_m = 0.08    # optional
 //! water_temperature_c = 18.5  # optional, default 20.0
+//! discharge_m2_s = 0.12       # optional: the rig's discharge per unit width (or
+//!                             # discharge_m3_s with width_m), for the continuity check
 //!
 //! [detector]                  # optional, every key optional
 //! threshold = 0.5
@@ -117,6 +119,10 @@ pub struct Flow {
     pub reference_depth_m: Option<f64>,
     /// `water_temperature_c`, degrees Celsius. Default 20.0.
     pub water_temperature_c: f64,
+    /// The discharge the rig delivered per unit width, m²/s: `discharge_m2_s`, or
+    /// `discharge_m3_s / width_m`. The continuity check compares the water discharge
+    /// integrated across the array with it ([`crate::discharge`]).
+    pub discharge_m2_s: Option<f64>,
 }
 
 /// The `[detector]` table: phase detector settings shared by all tips.
@@ -494,6 +500,9 @@ struct RawFlow {
     phase_before_front: Option<Spanned<String>>,
     reference_depth_m: Option<Spanned<f64>>,
     water_temperature_c: Option<Spanned<f64>>,
+    discharge_m2_s: Option<Spanned<f64>>,
+    discharge_m3_s: Option<Spanned<f64>>,
+    width_m: Option<Spanned<f64>>,
 }
 
 #[derive(Deserialize)]
@@ -1017,11 +1026,51 @@ fn build_flow(cx: &Ctx<'_>, f: RawFlow) -> Result<Flow, LayoutError> {
             )?
         }
     };
+    let positive =
+        |key: &str, v: &Option<Spanned<f64>>| v.as_ref().map(|v| cx.positive(key, v)).transpose();
+    let per_width = positive("flow.discharge_m2_s", &f.discharge_m2_s)?;
+    let total = positive("flow.discharge_m3_s", &f.discharge_m3_s)?;
+    let width = positive("flow.width_m", &f.width_m)?;
+    let discharge_m2_s = match (per_width, total, width) {
+        (q, None, None) => q,
+        (None, Some(q), Some(b)) => Some(q / b),
+        (Some(_), Some(_), _) => {
+            let span = f.discharge_m3_s.as_ref().map(|v| v.span()).unwrap_or(0..0);
+            return Err(cx.err(
+                "flow.discharge_m3_s",
+                span,
+                Problem::OutOfRange {
+                    detail: "give discharge_m2_s or discharge_m3_s, not both".into(),
+                },
+            ));
+        }
+        (None, Some(_), None) => {
+            let span = f.discharge_m3_s.as_ref().map(|v| v.span()).unwrap_or(0..0);
+            return Err(cx.err(
+                "flow.discharge_m3_s",
+                span,
+                Problem::OutOfRange {
+                    detail: "needs width_m, the channel width in metres".into(),
+                },
+            ));
+        }
+        (_, None, Some(_)) => {
+            let span = f.width_m.as_ref().map(|v| v.span()).unwrap_or(0..0);
+            return Err(cx.err(
+                "flow.width_m",
+                span,
+                Problem::OutOfRange {
+                    detail: "is only read with discharge_m3_s".into(),
+                },
+            ));
+        }
+    };
     Ok(Flow {
         kind,
         phase_before_front,
         reference_depth_m,
         water_temperature_c,
+        discharge_m2_s,
     })
 }
 
@@ -1490,7 +1539,8 @@ water_level = 0.6
                 kind: FlowKind::Steady,
                 phase_before_front: Phase::Air,
                 reference_depth_m: None,
-                water_temperature_c: 20.0
+                water_temperature_c: 20.0,
+                discharge_m2_s: None,
             }
         );
         assert_eq!(l.detector, DetectorSettings::default());

@@ -25,6 +25,7 @@ pub mod commands;
 pub mod dashboard;
 pub mod demo;
 pub mod device_sim;
+pub mod discharge;
 pub mod ensemble;
 pub mod error;
 pub mod flash_image;

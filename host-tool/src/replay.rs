@@ -112,6 +112,8 @@ pub struct ReplayReport {
     pub abrupt_end: Option<String>,
     /// What the run replaced in the output folder.
     pub committed: Committed,
+    /// Unit discharges per station and the continuity check ([`crate::discharge`]).
+    pub discharges: Vec<(f64, crate::discharge::Discharge)>,
 }
 
 /// Layout probes as CSV row metadata (where the levels come from not known).
@@ -668,8 +670,19 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     bar.finish_and_clear();
     let frames = result?;
     csv.finish().map_err(write_err(&staged))?;
+    let discharges = crate::discharge::station_discharges(&layout, &tallies);
+    let mut names = vec!["windows.csv"];
+    if !discharges.is_empty() {
+        let path = set.staged("discharge.csv");
+        let file = set.create("discharge.csv")?;
+        crate::discharge::write_csv(file, &discharges).map_err(|e| HostError::Write {
+            path,
+            source: e.into(),
+        })?;
+        names.push("discharge.csv");
+    }
     let committed = set.commit(
-        &["windows.csv"],
+        &names,
         &[("capture", &args.capture), ("layout", &args.layout)],
     )?;
     let abrupt_end = cap.abrupt_end_warning();
@@ -683,6 +696,7 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
         windows_csv: args.out.join("windows.csv"),
         abrupt_end,
         committed,
+        discharges,
     };
     if let Some(w) = &report.abrupt_end {
         eprintln!("warning: {w}");
@@ -755,6 +769,9 @@ pub fn summary_table(r: &ReplayReport) -> String {
         let _ = writeln!(s, "{note}");
     }
     s.push_str(&tally_table(&r.layout, &r.tallies));
+    for (x, d) in &r.discharges {
+        s.push_str(&crate::discharge::summary(*x, d));
+    }
     s
 }
 
