@@ -12,7 +12,7 @@ use crate::config::{FwRecord, BAUD, DEVICE_ID, STREAM_WINDOWS};
 use embedded_io::Write;
 use frothline_core::wire::{
     quant, Body, DeviceDescription, FrontArrival, Health, ProfileFit, Reply, RunStart, Streamer,
-    StreamerConfig, WindowResult, WindowSetting,
+    StreamerConfig, WindowResult, WindowSetting, DerivedResult,
 };
 
 /// Firmware version, as the device description carries it.
@@ -51,10 +51,21 @@ impl<W: Write> Link<W> {
         self.streamer.offer(Body::Describe(description()));
     }
 
-    /// Queue the window result of one record; returns it.
+    /// Queue the window result of one record and its derived figures (kind 0x08); returns
+    /// the window result.
     pub fn record(&mut self, rec: &FwRecord) -> WindowResult {
         let w = wire_result(rec, self.sample_rate_hz);
         self.streamer.offer_window(w);
+        let spacing_mm = capture::TIP_SPACING_MM
+            .get(rec.probe as usize)
+            .copied()
+            .flatten();
+        self.streamer
+            .offer_derived(DerivedResult::from_probe_window_with_spacing(
+                rec,
+                self.sample_rate_hz,
+                spacing_mm,
+            ));
         w
     }
 

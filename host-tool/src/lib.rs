@@ -24,6 +24,7 @@ pub mod cli;
 pub mod commands;
 pub mod dashboard;
 pub mod demo;
+pub mod derived_csv;
 pub mod device_sim;
 pub mod discharge;
 pub mod ensemble;

@@ -71,6 +71,8 @@ pub enum Kind {
     Health = 0x05,
     /// [`RunStart`]: a run began (its number, label, start on the device clock, host UTC).
     RunStart = 0x06,
+    /// [`DerivedBatch`](crate::wire::DerivedBatch): derived figures of window results.
+    Derived = 0x08,
     /// Command [`StartRun`].
     StartRun = 0x20,
     /// Command: stop the run (no body).
@@ -91,13 +93,14 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 14] = [
+    pub const ALL: [Kind; 15] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
         Kind::Profile,
         Kind::Health,
         Kind::RunStart,
+        Kind::Derived,
         Kind::StartRun,
         Kind::StopRun,
         Kind::SetWindow,
@@ -122,6 +125,7 @@ impl Kind {
             0x04 => Kind::Profile,
             0x05 => Kind::Health,
             0x06 => Kind::RunStart,
+            0x08 => Kind::Derived,
             0x20 => Kind::StartRun,
             0x21 => Kind::StopRun,
             0x22 => Kind::SetWindow,
@@ -197,6 +201,8 @@ pub enum Body {
     Health(Health),
     /// A run began.
     RunStart(RunStart),
+    /// Derived figures of window results (1 to [`MAX_WINDOWS_PER_FRAME`]).
+    Derived(crate::wire::DerivedBatch),
     /// Command: start a run.
     StartRun(StartRun),
     /// Command: stop the run.
@@ -225,6 +231,7 @@ impl Body {
             Body::Profile(_) => Kind::Profile,
             Body::Health(_) => Kind::Health,
             Body::RunStart(_) => Kind::RunStart,
+            Body::Derived(_) => Kind::Derived,
             Body::StartRun(_) => Kind::StartRun,
             Body::StopRun => Kind::StopRun,
             Body::SetWindow(_) => Kind::SetWindow,
@@ -409,7 +416,7 @@ pub struct Health {
     pub tips_stuck: u64,
     /// Highest fill of the acquisition buffer, samples.
     pub buffer_high_water: u32,
-    /// Window results (entries of kind 0x02, not frames) the streamer dropped, oldest
+    /// Window results (entries of kind 0x02 or 0x08, not frames) the streamer dropped, oldest
     /// first, because the link could not keep up (filled in by the
     /// [`Streamer`](crate::wire::Streamer) when it sends the frame).
     pub windows_dropped: u32,
