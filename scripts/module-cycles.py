@@ -10,7 +10,8 @@ exists. Parent modules that only declare their children (`mod x;`, `pub use`) do
 as depending on them: a `mod.rs` re-exporting its children is the layer's front door.
 
 Prints each strongly connected component of more than one module and exits 1 if there is
-any, 0 otherwise.
+any, 0 otherwise. `--self-test` first checks, on a small tree written to a temporary
+folder, that a circle is found and that a one-way tree passes.
 """
 import os
 import re
@@ -144,8 +145,45 @@ def cycles(edges):
     return out
 
 
+def self_test():
+    import tempfile
+
+    def tree(files):
+        d = tempfile.mkdtemp()
+        for name, text in files.items():
+            path = os.path.join(d, name)
+            os.makedirs(os.path.dirname(path), exist_ok=True)
+            with open(path, "w", encoding="utf-8") as f:
+                f.write(text)
+        return d
+
+    circle = tree({
+        "lib.rs": "mod a;\nmod b;\n",
+        "a.rs": "use crate::b::B;\npub struct A;\n",
+        "b/mod.rs": "pub struct B(crate::a::A);\n#[cfg(test)]\nmod tests {\n}\n",
+    })
+    one_way = tree({
+        "lib.rs": "mod a;\nmod b;\n",
+        "a.rs": "use crate::b::B;\npub struct A;\n",
+        "b/mod.rs": "pub struct B;\n#[cfg(test)]\nmod tests {\n    use crate::a::A;\n}\n",
+    })
+    found = cycles(graph(circle))
+    if found != [[("a",), ("b",)]]:
+        print(f"self-test: the circle a <-> b was not found (got {found})")
+        return False
+    if cycles(graph(one_way)):
+        print("self-test: a one-way tree (b -> a only in tests) was taken for a circle")
+        return False
+    return True
+
+
 def main():
-    roots = sys.argv[1:] or ["core/src", "host-tool/src"]
+    args = sys.argv[1:]
+    if args[:1] == ["--self-test"]:
+        if not self_test():
+            return 2
+        args = args[1:]
+    roots = args or ["core/src", "host-tool/src"]
     bad = 0
     for root in roots:
         edges = graph(root)

@@ -4,7 +4,7 @@
 //! error. Expected values are counted from the samples written (analytic: the void fraction
 //! of a square wave is its duty cycle).
 
-use frothline_host::replay::{run, Keep, ReplayArgs};
+use frothline_host::offline::replay::{run, Keep, ReplayArgs};
 use std::fs;
 use std::path::{Path, PathBuf};
 
@@ -86,7 +86,8 @@ fn big_stack<T: Send>(f: impl FnOnce() -> T + Send) -> T {
 
 fn replay(
     a: &ReplayArgs,
-) -> Result<frothline_host::replay::ReplayReport, frothline_host::error::HostError> {
+) -> Result<frothline_host::offline::replay::ReplayReport, frothline_host::shared::error::HostError>
+{
     big_stack(|| run(a))
 }
 
@@ -189,7 +190,8 @@ fn replay_totals_only_matches_the_records_it_no_longer_keeps() {
     let c = Case::new(&wav_bytes(2, 4000));
     let kept = replay(&c.args(false)).unwrap();
     let lean =
-        big_stack(|| frothline_host::replay::run_with(&c.args(false), Keep::TotalsOnly)).unwrap();
+        big_stack(|| frothline_host::offline::replay::run_with(&c.args(false), Keep::TotalsOnly))
+            .unwrap();
     assert!(lean.records.is_empty());
     assert_eq!(kept.records.len() as u64, lean.totals.records);
     assert_eq!(
@@ -198,10 +200,10 @@ fn replay_totals_only_matches_the_records_it_no_longer_keeps() {
     );
     // The second run into the same folder says it replaced the first one's file.
     let note = "an earlier run's output in this folder was replaced (windows.csv)\n";
-    let lean_text = frothline_host::replay::summary_table(&lean);
+    let lean_text = frothline_host::offline::replay::summary_table(&lean);
     assert!(lean_text.contains(note), "{lean_text}");
     assert_eq!(
-        frothline_host::replay::summary_table(&kept),
+        frothline_host::offline::replay::summary_table(&kept),
         lean_text.replace(note, "")
     );
 }
@@ -238,15 +240,15 @@ fn stations_in_the_wrong_order_are_flagged() {
         strict: false,
         levels: Default::default(),
     };
-    let (run, _) = big_stack(|| frothline_host::transient::run(&args)).unwrap();
+    let (run, _) = big_stack(|| frothline_host::offline::transient::run(&args)).unwrap();
     assert!(run.celerity_from_previous(1).unwrap() < 0.0);
     assert!(run.arrived_before_previous(1) && !run.arrived_before_previous(0));
     let stations = fs::read_to_string(dir.path().join("out/stations.csv")).unwrap();
     assert!(
-        stations.contains(frothline_host::transient::REVERSED_ARRIVAL),
+        stations.contains(frothline_host::offline::transient::REVERSED_ARRIVAL),
         "{stations}"
     );
-    let text = frothline_host::transient::summary(&run, None);
+    let text = frothline_host::offline::transient::summary(&run, None);
     assert!(text.contains("before the one upstream"), "{text}");
     // The fixture as committed raises no such flag.
     let args = ReplayArgs {
@@ -254,6 +256,6 @@ fn stations_in_the_wrong_order_are_flagged() {
         out: dir.path().join("good"),
         ..args
     };
-    let (run, _) = big_stack(|| frothline_host::transient::run(&args)).unwrap();
+    let (run, _) = big_stack(|| frothline_host::offline::transient::run(&args)).unwrap();
     assert!(!run.arrived_before_previous(1));
 }

@@ -10,8 +10,8 @@
 //! the two power laws, analytic case) plus, above it, the water of a void fraction rising
 //! linearly from 0.9 to 0.97 at `V90` (the scenario's definition of its spray layer).
 
-use frothline_host::record_levels::LevelRule;
-use frothline_host::replay::{run, ReplayArgs};
+use frothline_host::offline::record_levels::LevelRule;
+use frothline_host::offline::replay::{run, ReplayArgs};
 use frothline_host::synth::{Generator, Scenario};
 use std::collections::HashMap;
 use std::path::Path;

@@ -3,7 +3,7 @@
 //! `since_front_s` as the replay of each run writes; numbers are written with the digits of
 //! the core's f32 results.
 
-use frothline_host::ensemble::{run, EnsembleArgs};
+use frothline_host::offline::ensemble::{run, EnsembleArgs};
 use std::path::{Path, PathBuf};
 
 fn fixture(name: &str) -> PathBuf {
@@ -84,7 +84,7 @@ fn pre_front_rows_agree_with_the_replay_and_numbers_have_f32_digits() {
     big_stack(|| run(&args(vec![fixture("capture.wav"), cut.clone()], &out))).unwrap();
     let replay_out = dir.path().join("replay");
     big_stack(|| {
-        frothline_host::replay::run(&frothline_host::replay::ReplayArgs {
+        frothline_host::offline::replay::run(&frothline_host::offline::replay::ReplayArgs {
             capture: fixture("capture.wav"),
             layout: fixture("layout.toml"),
             out: replay_out.clone(),

@@ -8,8 +8,8 @@
 //! either an error that names the input or an output that agrees with the undamaged input
 //! up to the damage.
 
-use frothline_host::capture::Capture;
-use frothline_host::layout::{Layout, MAX_ABS_X_MM, MAX_ELEVATION_MM, MAX_TIP_SPACING_MM};
+use frothline_host::shared::capture::Capture;
+use frothline_host::shared::layout::{Layout, MAX_ABS_X_MM, MAX_ELEVATION_MM, MAX_TIP_SPACING_MM};
 use proptest::prelude::*;
 use std::path::Path;
 

@@ -7,12 +7,12 @@
 #![cfg(unix)]
 
 use frothline_core::wire::WindowResult;
-use frothline_host::commands::Command;
-use frothline_host::device_sim::{self, wire_result, SimCapture, SimOptions};
-use frothline_host::replay::{self, ReplayArgs};
-use frothline_host::session::Event;
-use frothline_host::watch::{self, Startup, Ui, WatchOptions};
-use frothline_host::window_spec::WindowSpec;
+use frothline_host::live::device_sim::{self, wire_result, SimCapture, SimOptions};
+use frothline_host::live::watch::{self, Startup, Ui, WatchOptions};
+use frothline_host::offline::replay::{self, ReplayArgs};
+use frothline_host::shared::commands::Command;
+use frothline_host::shared::session::Event;
+use frothline_host::shared::window_spec::WindowSpec;
 use serialport::SerialPort;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -42,7 +42,13 @@ fn window() -> WindowSpec {
 }
 
 /// Replay's records of the fixture, and their wire form as the device sends them.
-fn replay_wire(out: &Path) -> (Vec<frothline_host::rig::HostRecord>, Vec<WindowResult>, u32) {
+fn replay_wire(
+    out: &Path,
+) -> (
+    Vec<frothline_host::shared::rig::HostRecord>,
+    Vec<WindowResult>,
+    u32,
+) {
     let (capture, layout) = fixture();
     let r = replay::run(&ReplayArgs {
         capture,
@@ -50,7 +56,7 @@ fn replay_wire(out: &Path) -> (Vec<frothline_host::rig::HostRecord>, Vec<WindowR
         out: out.to_path_buf(),
         window: window(),
         quiet: true,
-        levels: frothline_host::record_levels::LevelRule::Device,
+        levels: frothline_host::offline::record_levels::LevelRule::Device,
         strict: false,
     })
     .unwrap();
@@ -175,14 +181,14 @@ fn equal_to_replay() {
     let (archive, _) = summary.report.archive.clone().unwrap();
     let mut again = Vec::new();
     let un = tmp.path().join("unpacked");
-    let rep = frothline_host::unpack::unpack_with(&archive, Some(&un), None, &mut |e| {
+    let rep = frothline_host::live::unpack::unpack_with(&archive, Some(&un), None, &mut |e| {
         if let Event::Window { result, .. } = e {
             again.push(*result);
         }
     })
     .unwrap();
     assert_eq!(again, got);
-    assert_eq!(rep.tail, frothline_host::archive::Tail::Clean);
+    assert_eq!(rep.tail, frothline_host::shared::archive::Tail::Clean);
     let a = std::fs::read_to_string(live.join("windows.csv")).unwrap();
     let b = std::fs::read_to_string(un.join("windows.csv")).unwrap();
     assert_eq!(
@@ -212,7 +218,7 @@ fn compare_with_replay_csv(live: &Path, replay: &Path) {
     let (h1, live) = read(live);
     let (h2, replay) = read(replay);
     // The live file has the replay's columns, then the run columns.
-    let runs = frothline_host::runs::RUN_COLUMNS;
+    let runs = frothline_host::shared::runs::RUN_COLUMNS;
     assert_eq!(h1[..h2.len()], h2[..], "same columns");
     assert_eq!(h1[h2.len()..], runs[..], "then the run columns");
     assert_eq!(live.len(), replay.len());
@@ -358,7 +364,7 @@ fn unplug_and_reopen() {
     );
     // The archive holds the gap and both connections.
     let (archive, _) = summary.report.archive.clone().unwrap();
-    let rep = frothline_host::unpack::unpack_with(&archive, None, None, &mut |_| {}).unwrap();
+    let rep = frothline_host::live::unpack::unpack_with(&archive, None, None, &mut |_| {}).unwrap();
     assert_eq!(rep.session.link_gaps.len(), 1);
     println!("{rep}");
 }
@@ -486,7 +492,7 @@ fn archive_at_4800() {
     assert!(received > 2500, "{received} bytes in 8 s at 480 B/s");
     assert!(ratio <= 2.0, "archive {size} bytes for {received} received");
     // The archive decodes to the frames the session decoded.
-    let rep = frothline_host::unpack::unpack_with(&archive, None, None, &mut |_| {}).unwrap();
+    let rep = frothline_host::live::unpack::unpack_with(&archive, None, None, &mut |_| {}).unwrap();
     assert_eq!(rep.session.frames(), summary.report.frames());
     assert!(rep.damage.is_empty());
 }

@@ -7,8 +7,8 @@
 //! text of windows.csv (report, f32 digits). The tolerances are those quantisation steps.
 
 use frothline_core::wire::WindowResult;
-use frothline_host::live::{LiveState, LiveWindow};
-use frothline_host::replay::{probe_tallies, ReplayArgs};
+use frothline_host::live::state::{LiveState, LiveWindow};
+use frothline_host::offline::replay::{probe_tallies, ReplayArgs};
 use frothline_host::report::ReportArgs;
 use std::path::PathBuf;
 
@@ -38,13 +38,13 @@ fn same_figures() {
         window: "100ms".parse().unwrap(),
         quiet: true,
         // The simulated device learns its levels by the causal rule: so does this replay.
-        levels: frothline_host::record_levels::LevelRule::Device,
+        levels: frothline_host::offline::record_levels::LevelRule::Device,
         strict: false,
     };
-    let replay = frothline_host::replay::run(&args).unwrap();
+    let replay = frothline_host::offline::replay::run(&args).unwrap();
     let layout = &replay.layout;
     let fs = replay.sample_rate;
-    let rule = frothline_host::probe_summary::SummaryRule::default();
+    let rule = frothline_host::shared::probe_summary::SummaryRule::default();
     let from_replay = probe_tallies(layout, fs, &replay.records, &rule);
 
     // The live path: each record as the wire frame a device sends, decoded by the view.
@@ -63,9 +63,9 @@ fn same_figures() {
         .collect();
 
     // A mark of a live session shows in the report.
-    let mut marks = frothline_host::marks::MarksCsv::new(dir.path());
+    let mut marks = frothline_host::shared::marks::MarksCsv::new(dir.path());
     marks
-        .write(&frothline_host::marks::Mark {
+        .write(&frothline_host::shared::marks::Mark {
             run_number: 1,
             run_label: "flume-b2".into(),
             host_utc: "2026-12-02T07:00:00.000Z".into(),
@@ -84,7 +84,7 @@ fn same_figures() {
         let (rp, lv) = (&from_replay[i], &from_live[i]);
         let (name, rs) = &report.probe_summaries[i];
         assert_eq!(name, &p.name);
-        let m = |e: Option<frothline_host::running_stats::Estimate>| e.map(|e| e.mean);
+        let m = |e: Option<frothline_host::shared::running_stats::Estimate>| e.map(|e| e.mean);
         let close = |what: &str, a: Option<f64>, b: Option<f64>, tol: f64| match (a, b) {
             (Some(a), Some(b)) => assert!((a - b).abs() <= tol, "{} {what}: {a} vs {b}", p.name),
             (None, None) => {}

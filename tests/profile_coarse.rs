@@ -13,13 +13,13 @@
 //!   grid over `Y90` with `n` solved at each: slow, simple, independent of the core's
 //!   minimiser), `Cmean = 0.9/(1 + n)`.
 
-use frothline_host::ensemble::Ensemble;
-use frothline_host::layout::Layout;
-use frothline_host::rig::FullRecord;
+use frothline_host::offline::ensemble::Ensemble;
+use frothline_host::offline::transient::{replay_samples, TransientRun};
+use frothline_host::shared::layout::Layout;
+use frothline_host::shared::rig::FullRecord;
+use frothline_host::shared::window_spec::WindowSpec;
 use frothline_host::synth::transient::SliceTruth;
 use frothline_host::synth::{output::layout_toml, Generator, Scenario};
-use frothline_host::transient::{replay_samples, TransientRun};
-use frothline_host::window_spec::WindowSpec;
 use std::path::Path;
 use std::sync::OnceLock;
 

@@ -8,8 +8,8 @@
 #![cfg(unix)]
 
 use frothline_core::wire::{ChordTimes, Correlation, WindowResult};
-use frothline_host::commands::{Command, CommandLog};
-use frothline_host::device_sim::{self, wire_result, SimCapture, SimOptions};
+use frothline_host::live::device_sim::{self, wire_result, SimCapture, SimOptions};
+use frothline_host::shared::commands::{Command, CommandLog};
 use serde_json::Value;
 use serialport::SerialPort;
 use std::io::{BufRead, BufReader, Write};
@@ -83,16 +83,17 @@ fn run() {
     let fixture = root.join("fixtures/steady-b2");
     let (capture, layout) = (fixture.join("capture.wav"), fixture.join("layout.toml"));
     let tmp = tempfile::tempdir().unwrap();
-    let replay = frothline_host::replay::run(&frothline_host::replay::ReplayArgs {
-        capture: capture.clone(),
-        layout: layout.clone(),
-        out: tmp.path().to_path_buf(),
-        window: "100ms".parse().unwrap(),
-        quiet: true,
-        levels: frothline_host::record_levels::LevelRule::Device,
-        strict: false,
-    })
-    .unwrap();
+    let replay =
+        frothline_host::offline::replay::run(&frothline_host::offline::replay::ReplayArgs {
+            capture: capture.clone(),
+            layout: layout.clone(),
+            out: tmp.path().to_path_buf(),
+            window: "100ms".parse().unwrap(),
+            quiet: true,
+            levels: frothline_host::offline::record_levels::LevelRule::Device,
+            strict: false,
+        })
+        .unwrap();
     let expected: Vec<WindowResult> = replay
         .records
         .iter()

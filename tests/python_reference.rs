@@ -10,7 +10,7 @@
 //! except under CI (`CI` set), where it fails.
 
 use frothline_core::wire::{self, Body, Decoder, FeedResult, WindowResult, MAX_FRAME_BYTES};
-use frothline_host::device_sim::{SimCapture, SimDevice, SimOptions, THREAD_STACK};
+use frothline_host::live::device_sim::{SimCapture, SimDevice, SimOptions, THREAD_STACK};
 use serde_json::{json, Value};
 use std::io::Write;
 use std::path::Path;

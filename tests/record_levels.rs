@@ -225,8 +225,8 @@ fn level_schedule_is_the_same_on_one_chain_and_on_workers() {
     std::thread::Builder::new()
         .stack_size(256 << 20)
         .spawn(|| {
-            use frothline_host::record_levels::{learn_with, learning_tips};
-            use frothline_host::replay::{
+            use frothline_host::offline::record_levels::{learn_with, learning_tips};
+            use frothline_host::offline::replay::{
                 drive_parallel_with, drive_with, open_rig, with_record_levels, LevelSchedule,
             };
             let tmp = tempfile::tempdir().unwrap();

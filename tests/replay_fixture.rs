@@ -77,8 +77,8 @@ fn parallel_replay_equals_one_chain() {
 }
 
 fn parallel_replay_body() {
-    use frothline_host::replay::{drive, drive_parallel, open_rig};
-    use frothline_host::window_spec::WindowSpec;
+    use frothline_host::offline::replay::{drive, drive_parallel, open_rig};
+    use frothline_host::shared::window_spec::WindowSpec;
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/steady-b2");
     for window in [WindowSpec::Whole, WindowSpec::Duration(0.07)] {
         let (mut cap, _, mut chain) = open_rig(

@@ -12,12 +12,12 @@
 
 use frothline_core::profile::{fit_profile, ProfileConfig, ProfilePoint};
 use frothline_core::Flags;
-use frothline_host::ensemble::Ensemble;
-use frothline_host::layout::Layout;
-use frothline_host::rig::FullRecord;
+use frothline_host::offline::ensemble::Ensemble;
+use frothline_host::offline::transient::{replay_capture, replay_samples, TransientRun};
+use frothline_host::shared::layout::Layout;
+use frothline_host::shared::rig::FullRecord;
+use frothline_host::shared::window_spec::WindowSpec;
 use frothline_host::synth::{output::layout_toml, Generator, Scenario, TransientTruth};
-use frothline_host::transient::{replay_capture, replay_samples, TransientRun};
-use frothline_host::window_spec::WindowSpec;
 use std::path::Path;
 use std::sync::OnceLock;
 
@@ -357,7 +357,7 @@ fn replay_and_a_streamed_device_path_give_identical_records() {
         &dir.path().join("capture.wav"),
         &dir.path().join("layout.toml"),
         &"50ms".parse::<WindowSpec>().unwrap(),
-        frothline_host::record_levels::LevelRule::Device,
+        frothline_host::offline::record_levels::LevelRule::Device,
         None,
     )
     .unwrap();
@@ -397,14 +397,14 @@ fn ensemble_command_writes_its_files() {
             .unwrap();
     }
     let out = tempfile::tempdir().unwrap();
-    let args = frothline_host::ensemble::EnsembleArgs {
+    let args = frothline_host::offline::ensemble::EnsembleArgs {
         captures: vec![runs.path().to_path_buf()],
         layout: runs.path().join("run3/layout.toml"),
         out: out.path().to_path_buf(),
         window: "50ms".parse().unwrap(),
         quiet: true,
     };
-    let rep = frothline_host::ensemble::run(&args).unwrap();
+    let rep = frothline_host::offline::ensemble::run(&args).unwrap();
     assert_eq!(rep.captures.len(), 2);
     let mut w = csv::Reader::from_path(out.path().join("windows.csv")).unwrap();
     let h: Vec<String> = w.headers().unwrap().iter().map(String::from).collect();

@@ -8,10 +8,10 @@
 //! and the generating power-law profile's Y90 per slice.
 
 use frothline_core::FrontRecord;
-use frothline_host::record_levels::LevelRule;
+use frothline_host::offline::record_levels::LevelRule;
+use frothline_host::offline::transient::{replay_capture, TransientRun};
+use frothline_host::shared::window_spec::WindowSpec;
 use frothline_host::synth::{Generator, Scenario};
-use frothline_host::transient::{replay_capture, TransientRun};
-use frothline_host::window_spec::WindowSpec;
 use std::path::Path;
 
 /// The built-in dam break (one station of ten probes, 5 to 95 mm) after `quiet_s` seconds

@@ -7,12 +7,12 @@
 
 use frothline_core::wire::{FrontArrival, ProfileFit};
 use frothline_core::FrontRecord;
-use frothline_host::commands::Command;
-use frothline_host::device_sim::{self, SimCapture, SimOptions};
-use frothline_host::session::Event;
-use frothline_host::transient;
-use frothline_host::watch::{self, Startup, Ui, WatchOptions};
-use frothline_host::window_spec::WindowSpec;
+use frothline_host::live::device_sim::{self, SimCapture, SimOptions};
+use frothline_host::live::watch::{self, Startup, Ui, WatchOptions};
+use frothline_host::offline::transient;
+use frothline_host::shared::commands::Command;
+use frothline_host::shared::session::Event;
+use frothline_host::shared::window_spec::WindowSpec;
 use serialport::SerialPort;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -41,7 +41,7 @@ fn replay_wire() -> (Vec<FrontArrival>, Vec<ProfileFit>) {
         &capture,
         &layout,
         &WindowSpec::Whole,
-        frothline_host::record_levels::LevelRule::Device,
+        frothline_host::offline::record_levels::LevelRule::Device,
         None,
     )
     .unwrap();

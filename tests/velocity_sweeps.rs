@@ -2,9 +2,9 @@
 //! `frothline synth` scenarios (Gaussian per-bubble velocities) -> layout -> the core chain.
 
 use frothline_core::WindowPolicy;
-use frothline_host::layout::Layout;
-use frothline_host::rig::FullRecord as ProbeWindow;
-use frothline_host::rig::{chain_config, Counts, HostChain};
+use frothline_host::shared::layout::Layout;
+use frothline_host::shared::rig::FullRecord as ProbeWindow;
+use frothline_host::shared::rig::{chain_config, Counts, HostChain};
 use frothline_host::synth::{output::layout_toml, Generator, Scenario};
 use std::path::Path;
 

@@ -1,4 +1,4 @@
-//! The host's water properties (`frothline_host::hydraulics`) against a reference library:
+//! The host's water properties (`frothline_host::shared::hydraulics`) against a reference library:
 //! the `iapws` package from PyPI, through tests/python/water_reference.py. Density is
 //! compared with IAPWS-95 and viscosity with the IAPWS 2008 release on the viscosity of
 //! ordinary water substance, both at 1 atm, from 0 to 40 °C in steps of 0.5 °C.
@@ -12,7 +12,7 @@
 //! Needs python3 with `iapws` (`python3 -m pip install iapws`). Without it the test is
 //! skipped with a message, except under CI (`CI` set), where it fails.
 
-use frothline_host::hydraulics::{water_density, water_viscosity};
+use frothline_host::shared::hydraulics::{water_density, water_viscosity};
 use std::path::Path;
 use std::process::{Command, Stdio};
 

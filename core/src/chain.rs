@@ -56,12 +56,13 @@
 //! then starts exactly at the front's arrival. Such a chain also gives front records
 //! ([`Chain::poll_front`]) and profile records ([`Chain::poll_profile`]).
 
-use crate::config::{ChainConfig, ConfigError, DetectorConfig, ProbeConfig, TipConfig};
+use crate::config::{ChainConfig, ConfigError};
 use crate::correlation::{
     CorrelationResult, CorrelationSums, Correlator, RunBuffer, DEFAULT_LAGS, MAX_RUN_FRAMES,
 };
 use crate::flags::Flags;
 use crate::phase::{run_lanes, Edge, EdgeSink, Lanes, PhaseDetector, RunCounts};
+use crate::probe_config::{DetectorConfig, ProbeConfig, TipConfig};
 use crate::record::{ProbeWindow, TipStats};
 use crate::station::{FrontRecord, ProfileRecord, Station, MAX_DECAY_POINTS};
 use crate::tip_stats::TipAccumulator;

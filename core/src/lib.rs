@@ -8,6 +8,8 @@
 //! poll loop of a small-device network stack works. All memory is sized by const generics.
 //!
 //! Stages, one module each:
+//! - [`probe_config`] and [`config`]: the settings of tips, probes and the detector (a leaf
+//!   module), gathered into a [`ChainConfig`] that is checked once;
 //! - [`phase`]: threshold with hysteresis, fixed or learnt air/water levels -> interface edges;
 //! - [`levels`]: learning the two levels from a histogram of the signal (Otsu split + modes);
 //! - [`tip_stats`]: per-window statistics of one tip (void fraction, counts, chords);
@@ -15,7 +17,8 @@
 //! - [`correlation`]: dual-tip cross-correlation (interfacial velocity, turbulence);
 //! - [`window`]: analysis-window policies;
 //! - [`chain`]: the streaming pipeline that ties them together;
-//! - [`record`] and [`flags`]: what comes out;
+//! - [`record`] and [`flags`]: what comes out; [`wire`]: records as frames (it depends on
+//!   the records, never the other way round); [`logbook`]: frames kept on NOR flash;
 //! - [`derived`]: chord lengths, interfacial area, Sauter diameter, particle grouping;
 //! - transient flows: [`front`] (arrival of a surge front), [`station`] (a chain as one
 //!   station: front-relative windows, profile slices), [`profile`] (the void-fraction
@@ -26,6 +29,7 @@
 
 pub mod chain;
 pub mod chord;
+pub mod cluster;
 pub mod config;
 pub mod correlation;
 pub mod decay;
@@ -35,6 +39,7 @@ pub mod front;
 pub mod levels;
 pub mod logbook;
 pub mod phase;
+pub mod probe_config;
 pub mod profile;
 pub mod record;
 pub mod station;

@@ -9,8 +9,8 @@
 //! polarity (the thresholds are mapped back to counts, so no multiplication per sample) and
 //! walks the tip's channel by index (one bounds check per sample, no iterator state).
 
-use crate::config::{DetectorConfig, LevelSource, TipConfig};
 use crate::levels::{Learnt, LevelLearner, Levels, Thresholds};
+use crate::probe_config::{DetectorConfig, LevelSource, TipConfig};
 use core::num::NonZeroUsize;
 
 /// An interface seen by a tip.

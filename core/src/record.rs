@@ -1,8 +1,8 @@
 //! The records the chain produces.
 
 use crate::chord::ChordStats;
+use crate::cluster::ClusterStats;
 use crate::correlation::{CorrelationResult, CorrelationSums, DEFAULT_LAGS};
-use crate::derived::ClusterStats;
 use crate::flags::Flags;
 use crate::levels::Levels;
 

@@ -83,13 +83,13 @@
 //! time since the front at the slice's middle, `Cmean` of the slice. It keeps the first
 //! [`MAX_DECAY_POINTS`] (the early ones carry the decay).
 
-use crate::config::{DetectorConfig, ProbeConfig};
 use crate::decay::{DecayFit, DecayTracker};
 use crate::flags::Flags;
 use crate::front::{
     FrontConfig, FrontDetector, FrontRule, StationFlags, StationFront, TipFront, MAX_STATION_PROBES,
 };
 use crate::phase::PhaseDetector;
+use crate::probe_config::{DetectorConfig, ProbeConfig};
 use crate::profile::{fit_profile_sized, ProfileConfig, ProfileFit, ProfilePoint};
 use heapless::{Deque, Vec};
 
@@ -293,49 +293,6 @@ pub struct ProfileRecord {
     /// The decay fit over the slices so far, when due at this slice
     /// ([`StationConfig::decay_fit_every`]).
     pub decay: Option<DecayFit>,
-}
-
-impl ProfileRecord {
-    /// The wire form (kind 0x04) of this record for station `station`.
-    pub fn to_wire(&self, station: u8) -> crate::wire::ProfileFit {
-        use crate::profile::ProfileModel;
-        use crate::wire::quant::{exponent, fraction, length_unsigned, spacing};
-        let fit = &self.fit;
-        let e = &fit.errors;
-        crate::wire::ProfileFit {
-            station,
-            slice_start: self.start,
-            slice_frames: u32::try_from(self.end.saturating_sub(self.start)).unwrap_or(u32::MAX),
-            probes_used: fit.points_used,
-            y90: fit.y90_mm.map(length_unsigned),
-            mean_void_fraction: fit.mean_void_fraction.map(fraction),
-            equivalent_depth: fit.equivalent_depth_mm.map(length_unsigned),
-            exponent: fit.power_law.map(|p| exponent(p.exponent)),
-            fit_rmse: fit.power_law.map(|p| fraction(p.rmse)),
-            flags: fit.flags.0 as u32,
-            estimate: match fit.estimate {
-                None => 0,
-                Some(ProfileModel::PowerLaw) => 1,
-                Some(ProfileModel::Exponential) => 2,
-                Some(ProfileModel::Trapezoid) => 3,
-            },
-            y90_se: e.y90_mm.map(spacing),
-            mean_void_fraction_se: e.mean_void_fraction.map(fraction),
-            exponent_se: e.shape.map(exponent),
-            equivalent_depth_se: e.equivalent_depth_mm.map(spacing),
-        }
-    }
-}
-
-impl ProbeArrival {
-    /// The wire form (kind 0x03) of this arrival for station `station`.
-    pub fn to_wire(&self, station: u8) -> crate::wire::FrontArrival {
-        crate::wire::FrontArrival {
-            probe: self.probe,
-            station,
-            frame: self.arrival,
-        }
-    }
 }
 
 /// The front path of one probe.

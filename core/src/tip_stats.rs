@@ -3,7 +3,7 @@
 //! See [`crate::record::TipStats`] for how chords that straddle a window edge are counted.
 
 use crate::chord::ChordStats;
-use crate::derived::ClusterTally;
+use crate::cluster::ClusterTally;
 use crate::flags::Flags;
 use crate::levels::Levels;
 use crate::phase::{Edge, EdgeSink, RunCounts};

@@ -5,7 +5,7 @@
 //! the documented bounds, and survives the station grouping and the channel check.
 #![no_main]
 
-use frothline_host::layout::{
+use frothline_host::shared::layout::{
     Layout, MAX_ABS_X_MM, MAX_ELEVATION_MM, MAX_LAYOUT_PROBES, MAX_TIP_SPACING_MM,
 };
 use libfuzzer_sys::fuzz_target;

@@ -6,7 +6,7 @@
 //! truncation) it hands back nothing more.
 #![no_main]
 
-use frothline_host::capture::Capture;
+use frothline_host::shared::capture::Capture;
 use libfuzzer_sys::fuzz_target;
 use std::path::Path;
 

@@ -1,6 +1,6 @@
 //! The `frothline` command line.
 
-use crate::error::HostError;
+use crate::shared::error::HostError;
 use clap::{Parser, Subcommand};
 use std::ffi::OsString;
 
@@ -23,29 +23,29 @@ pub struct Cli {
 #[derive(Subcommand, Debug)]
 pub enum Command {
     /// Run a capture (WAV + layout) through the core and write windows.csv.
-    Replay(crate::replay::ReplayArgs),
+    Replay(crate::offline::replay::ReplayArgs),
     /// Write a synthetic capture (WAV + layout + truth) from a scenario.
     Synth(crate::synth::SynthArgs),
     /// List the serial ports of this machine.
     Ports,
     /// Receive live results from devices on serial ports: dashboard, archive, CSV.
-    Watch(crate::watch::WatchArgs),
+    Watch(crate::live::watch::WatchArgs),
     /// The live link without hardware: a simulated device on a pseudo-terminal, watched.
-    Demo(crate::demo::DemoArgs),
+    Demo(crate::live::demo::DemoArgs),
     /// Run a simulated probe device on a pseudo-terminal or a serial port.
-    Simulate(crate::demo::SimulateArgs),
+    Simulate(crate::live::demo::SimulateArgs),
     /// Decode a session archive into CSV files and report link gaps and errors.
-    Unpack(crate::unpack::UnpackArgs),
+    Unpack(crate::live::unpack::UnpackArgs),
     /// Read a field logger's flash image back into CSV files.
-    Logbook(crate::logbook_cmd::LogbookArgs),
+    Logbook(crate::field::logbook::LogbookArgs),
     /// Figures (SVG, PNG) and a one-page HTML summary of a replay or archive folder.
     Report(crate::report::ReportArgs),
     /// Combine repeated transient runs of one rig, aligned on the front.
-    Ensemble(crate::ensemble::EnsembleArgs),
+    Ensemble(crate::offline::ensemble::EnsembleArgs),
     /// Check every tip on a segment of a capture (levels, noise, swing, interface times;
     /// flags small swing, high noise, moved levels) and optionally write the levels into
     /// the layout.
-    Tipcheck(crate::tipcheck::TipcheckArgs),
+    Tipcheck(crate::offline::tipcheck::TipcheckArgs),
 }
 
 /// Parse `args` (including the program name) and run the command.
@@ -90,31 +90,32 @@ pub const COMMAND_STACK: usize = 256 << 20;
 fn dispatch(command: Command) -> Result<(), HostError> {
     match command {
         Command::Replay(a) => {
-            crate::replay::run_with(&a, crate::replay::Keep::TotalsOnly).map(|_| ())
+            crate::offline::replay::run_with(&a, crate::offline::replay::Keep::TotalsOnly)
+                .map(|_| ())
         }
         Command::Synth(a) => {
             let s = crate::synth::run(&a)?;
-            crate::stdout::println(&s.to_string());
+            crate::shared::stdout::println(&s.to_string());
             Ok(())
         }
         Command::Ports => {
-            let ports = crate::ports::list()
+            let ports = crate::live::ports::list()
                 .map_err(|e| HostError::Usage(format!("cannot list serial ports: {e}")))?;
             if ports.is_empty() {
-                crate::stdout::println("no serial ports found");
+                crate::shared::stdout::println("no serial ports found");
             }
             for p in ports {
-                crate::stdout::println(&p.to_string());
+                crate::shared::stdout::println(&p.to_string());
             }
             Ok(())
         }
-        Command::Watch(a) => crate::watch::run(&a).map(|_| ()),
-        Command::Demo(a) => crate::demo::run(&a).map(|_| ()),
-        Command::Simulate(a) => crate::demo::simulate(&a).map(|_| ()),
-        Command::Unpack(a) => crate::unpack::run(&a).map(|_| ()),
-        Command::Logbook(a) => crate::logbook_cmd::run(&a).map(|_| ()),
+        Command::Watch(a) => crate::live::watch::run(&a).map(|_| ()),
+        Command::Demo(a) => crate::live::demo::run(&a).map(|_| ()),
+        Command::Simulate(a) => crate::live::demo::simulate(&a).map(|_| ()),
+        Command::Unpack(a) => crate::live::unpack::run(&a).map(|_| ()),
+        Command::Logbook(a) => crate::field::logbook::run(&a).map(|_| ()),
         Command::Report(a) => crate::report::run(&a).map(|_| ()).map_err(HostError::from),
-        Command::Ensemble(a) => crate::ensemble::run(&a).map(|_| ()),
-        Command::Tipcheck(a) => crate::tipcheck::run(&a).map(|_| ()),
+        Command::Ensemble(a) => crate::offline::ensemble::run(&a).map(|_| ()),
+        Command::Tipcheck(a) => crate::offline::tipcheck::run(&a).map(|_| ()),
     }
 }

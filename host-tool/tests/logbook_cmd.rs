@@ -8,7 +8,7 @@ use frothline_core::wire::{
     self, Body, ChordTimes, DeviceDescription, Frame, FrontArrival, Health, ProbeLayout,
     WindowResult, WindowSetting, Windows, MAX_FRAME_BYTES,
 };
-use frothline_host::logbook_cmd::{read_image, LogbookArgs, LogbookReport};
+use frothline_host::field::logbook::{read_image, LogbookArgs, LogbookReport};
 use rand::rngs::StdRng;
 use rand::{Rng, SeedableRng};
 use std::collections::VecDeque;
@@ -299,7 +299,11 @@ fn args(image: &Path, out: &Path) -> LogbookArgs {
 }
 
 /// `frothline logbook IMAGE --out OUT EXTRA...` through the CLI entry point.
-fn cli(image: &Path, out: &Path, extra: &[&str]) -> Result<(), frothline_host::error::HostError> {
+fn cli(
+    image: &Path,
+    out: &Path,
+    extra: &[&str],
+) -> Result<(), frothline_host::shared::error::HostError> {
     let mut a: Vec<String> = vec![
         "frothline".into(),
         "logbook".into(),
@@ -357,7 +361,10 @@ fn close(got: &str, want: f64, what: &str, i: usize) {
 /// the sample clock). `timed`: the device description is in the log.
 fn check_windows(csv: &Path, want: &[WindowResult], timed: bool) {
     let (header, rows) = csv_rows(csv);
-    assert_eq!(header[..12], frothline_host::windows_csv::COLUMNS[..12]);
+    assert_eq!(
+        header[..12],
+        frothline_host::shared::windows_csv::COLUMNS[..12]
+    );
     assert_eq!(rows.len(), want.len(), "rows of {}", csv.display());
     let col = |name: &str| header.iter().position(|h| h == name).unwrap();
     let (c_start, c_end) = (col("window_start_s"), col("window_end_s"));

@@ -7,8 +7,8 @@ use frothline_core::wire::{
     encode, Ack, Body, DeviceDescription, Frame, FrontArrival, ProbeLayout, RunStart, WindowResult,
     WindowSetting, MAX_FRAME_BYTES,
 };
-use frothline_host::commands::Command;
-use frothline_host::session::{Session, SessionOptions};
+use frothline_host::shared::commands::Command;
+use frothline_host::shared::session::{Session, SessionOptions};
 use std::collections::HashSet;
 
 fn enc(f: &Frame) -> Vec<u8> {
@@ -54,7 +54,7 @@ fn two_runs_are_told_apart_in_every_live_file_and_unpack_agrees() {
     let dir = tempfile::tempdir().unwrap();
     let archive = dir.path().join("session.frothwire");
     let t0 = 1_796_191_038_000_000u64;
-    let writer = frothline_host::archive::ArchiveWriter::create(&archive, t0).unwrap();
+    let writer = frothline_host::shared::archive::ArchiveWriter::create(&archive, t0).unwrap();
     let mut s = Session::with_archive(
         SessionOptions {
             ports: vec!["sim".into()],
@@ -149,7 +149,7 @@ fn two_runs_are_told_apart_in_every_live_file_and_unpack_agrees() {
 
     // The archive decoded again gives the same files.
     let again = dir.path().join("again");
-    frothline_host::unpack::unpack_with(&archive, Some(&again), None, &mut |_| {}).unwrap();
+    frothline_host::live::unpack::unpack_with(&archive, Some(&again), None, &mut |_| {}).unwrap();
     for f in ["windows.csv", "fronts.csv"] {
         assert_eq!(
             std::fs::read_to_string(live.join(f)).unwrap(),

@@ -5,8 +5,8 @@
 //! over `wetting_time_us` / `dewetting_time_us`, so the 10 %-90 % time of an interface is
 //! 0.8 of the ramp (analytic case).
 
+use frothline_host::offline::tipcheck::{check, write_levels, TipcheckArgs};
 use frothline_host::synth::{Generator, Scenario};
-use frothline_host::tipcheck::{check, write_levels, TipcheckArgs};
 use rand::{rngs::StdRng, SeedableRng};
 use rand_distr::{Distribution, Normal};
 use std::path::{Path, PathBuf};
@@ -133,7 +133,7 @@ fn writes_levels_keeping_comments_golden() {
     a.from = 0.5;
     a.to = Some(2.5);
     a.write = true;
-    frothline_host::tipcheck::run(&a).unwrap();
+    frothline_host::offline::tipcheck::run(&a).unwrap();
     let got = std::fs::read_to_string(&layout).unwrap();
     let want = std::fs::read_to_string(fixtures().join("layout.expected.toml")).unwrap();
     assert_eq!(got, want);

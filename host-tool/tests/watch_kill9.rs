@@ -5,9 +5,9 @@
 #![cfg(unix)]
 
 use frothline_core::wire::WindowResult;
-use frothline_host::archive::Tail;
-use frothline_host::device_sim::{self, wire_result, SimCapture, SimOptions};
-use frothline_host::session::Event;
+use frothline_host::live::device_sim::{self, wire_result, SimCapture, SimOptions};
+use frothline_host::shared::archive::Tail;
+use frothline_host::shared::session::Event;
 use serialport::SerialPort;
 use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
@@ -27,9 +27,14 @@ fn big_stack<F: FnOnce() + Send + 'static>(f: F) {
     }
 }
 
-fn decode(archive: &Path) -> (Vec<WindowResult>, frothline_host::unpack::UnpackReport) {
+fn decode(
+    archive: &Path,
+) -> (
+    Vec<WindowResult>,
+    frothline_host::live::unpack::UnpackReport,
+) {
     let mut got = Vec::new();
-    let rep = frothline_host::unpack::unpack_with(archive, None, None, &mut |e| {
+    let rep = frothline_host::live::unpack::unpack_with(archive, None, None, &mut |e| {
         if let Event::Window { result, .. } = e {
             got.push(*result);
         }
@@ -46,18 +51,19 @@ fn kill_9_leaves_an_archive_that_reads_back() {
 fn kill_9() {
     let fixture = Path::new(env!("CARGO_MANIFEST_DIR")).join("../fixtures/steady-b2");
     let (capture, layout) = (fixture.join("capture.wav"), fixture.join("layout.toml"));
-    let window: frothline_host::window_spec::WindowSpec = "100ms".parse().unwrap();
+    let window: frothline_host::shared::window_spec::WindowSpec = "100ms".parse().unwrap();
     let tmp = tempfile::tempdir().unwrap();
-    let replay = frothline_host::replay::run(&frothline_host::replay::ReplayArgs {
-        capture: capture.clone(),
-        layout: layout.clone(),
-        out: tmp.path().join("replay"),
-        window: window.clone(),
-        quiet: true,
-        levels: frothline_host::record_levels::LevelRule::Device,
-        strict: false,
-    })
-    .unwrap();
+    let replay =
+        frothline_host::offline::replay::run(&frothline_host::offline::replay::ReplayArgs {
+            capture: capture.clone(),
+            layout: layout.clone(),
+            out: tmp.path().join("replay"),
+            window: window.clone(),
+            quiet: true,
+            levels: frothline_host::offline::record_levels::LevelRule::Device,
+            strict: false,
+        })
+        .unwrap();
     let expected: Vec<WindowResult> = replay
         .records
         .iter()
@@ -148,7 +154,8 @@ fn kill_9() {
 
     // The CSV rows the killed process left are whole rows (flushed batch by batch).
     let csv = std::fs::read_to_string(dir.join("windows.csv")).unwrap();
-    let n = frothline_host::windows_csv::COLUMNS.len() + frothline_host::runs::RUN_COLUMNS.len();
+    let n = frothline_host::shared::windows_csv::COLUMNS.len()
+        + frothline_host::shared::runs::RUN_COLUMNS.len();
     let rows: Vec<&str> = csv.lines().collect();
     assert!(rows.len() > 1);
     for r in &rows {

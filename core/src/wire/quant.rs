@@ -16,6 +16,7 @@
 //! | profile exponent                  | 1e-3      | u16  |
 
 use crate::record::ProbeWindow;
+use crate::station::{ProbeArrival, ProfileRecord};
 use crate::wire::frame::{ChordTimes, Correlation, WindowResult};
 
 /// Steps per unit of a fraction.
@@ -218,6 +219,51 @@ impl WindowResult {
         self.correlation
             .and_then(|c| c.turbulence)
             .map(from_fraction)
+    }
+}
+
+// The station's records in wire form: the wire depends on the chain's records, never the
+// other way round.
+
+impl ProfileRecord {
+    /// The wire form (kind 0x04) of this record for station `station`.
+    pub fn to_wire(&self, station: u8) -> crate::wire::ProfileFit {
+        use crate::profile::ProfileModel;
+        let fit = &self.fit;
+        let e = &fit.errors;
+        crate::wire::ProfileFit {
+            station,
+            slice_start: self.start,
+            slice_frames: u32::try_from(self.end.saturating_sub(self.start)).unwrap_or(u32::MAX),
+            probes_used: fit.points_used,
+            y90: fit.y90_mm.map(length_unsigned),
+            mean_void_fraction: fit.mean_void_fraction.map(fraction),
+            equivalent_depth: fit.equivalent_depth_mm.map(length_unsigned),
+            exponent: fit.power_law.map(|p| exponent(p.exponent)),
+            fit_rmse: fit.power_law.map(|p| fraction(p.rmse)),
+            flags: fit.flags.0 as u32,
+            estimate: match fit.estimate {
+                None => 0,
+                Some(ProfileModel::PowerLaw) => 1,
+                Some(ProfileModel::Exponential) => 2,
+                Some(ProfileModel::Trapezoid) => 3,
+            },
+            y90_se: e.y90_mm.map(spacing),
+            mean_void_fraction_se: e.mean_void_fraction.map(fraction),
+            exponent_se: e.shape.map(exponent),
+            equivalent_depth_se: e.equivalent_depth_mm.map(spacing),
+        }
+    }
+}
+
+impl ProbeArrival {
+    /// The wire form (kind 0x03) of this arrival for station `station`.
+    pub fn to_wire(&self, station: u8) -> crate::wire::FrontArrival {
+        crate::wire::FrontArrival {
+            probe: self.probe,
+            station,
+            frame: self.arrival,
+        }
     }
 }
 

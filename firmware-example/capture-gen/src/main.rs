@@ -35,8 +35,8 @@ use frothline_core::{
     ChainConfig, DetectorConfig, LevelSource, Polarity, ProbeConfig, StationConfig, TipConfig,
     WindowPolicy,
 };
-use frothline_host::replay::{self, ReplayArgs};
-use frothline_host::window_spec::WindowSpec;
+use frothline_host::offline::replay::{self, ReplayArgs};
+use frothline_host::shared::window_spec::WindowSpec;
 use std::fmt::Write as _;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -81,7 +81,7 @@ fn run() -> Result<(), String> {
         replay::open_rig(&capture, &layout, window.clone()).map_err(|e| e.to_string())?;
     let sample_rate = cap.sample_rate();
     let frames = cap.frames();
-    let transient = frothline_host::transient::is_transient(&layout_doc);
+    let transient = frothline_host::offline::transient::is_transient(&layout_doc);
     let cfg = if transient {
         station_config(&layout_doc, &cap, &window)?
     } else {
@@ -96,7 +96,7 @@ fn run() -> Result<(), String> {
         out: tmp.clone(),
         window,
         quiet: true,
-        levels: frothline_host::record_levels::LevelRule::Device,
+        levels: frothline_host::offline::record_levels::LevelRule::Device,
         strict: false,
     })
     .map_err(|e| e.to_string())?;
@@ -320,11 +320,11 @@ fn emit_station<const P: usize>(
 /// The chain configuration of a transient capture's one station, as the host's transient
 /// replay builds it.
 fn station_config(
-    layout: &frothline_host::layout::Layout,
-    cap: &frothline_host::capture::Capture,
+    layout: &frothline_host::shared::layout::Layout,
+    cap: &frothline_host::shared::capture::Capture,
     window: &WindowSpec,
-) -> Result<ChainConfig<{ frothline_host::rig::MAX_PROBES }>, String> {
-    use frothline_host::transient;
+) -> Result<ChainConfig<{ frothline_host::shared::rig::MAX_PROBES }>, String> {
+    use frothline_host::offline::transient;
     let fs = cap.sample_rate();
     let policy = transient::transient_policy(window, fs, layout)?;
     let mut configs = transient::station_configs(layout, cap.channels(), fs, policy, cap)
@@ -361,7 +361,7 @@ fn tip(t: &TipConfig) -> String {
     format!("TipConfig {{ channel: {channel}, polarity: {polarity}, levels: {levels} }}")
 }
 
-fn emit_layout(w: &mut String, layout: &frothline_host::layout::Layout) -> Result<(), String> {
+fn emit_layout(w: &mut String, layout: &frothline_host::shared::layout::Layout) -> Result<(), String> {
     let stations = layout.stations();
     let station_of = |i: usize| {
         stations
@@ -514,7 +514,7 @@ fn host_results(
 ) -> Result<
     (
         Vec<frothline_core::wire::WindowResult>,
-        frothline_host::layout::Layout,
+        frothline_host::shared::layout::Layout,
     ),
     String,
 > {
@@ -527,7 +527,7 @@ fn host_results(
         out: tmp.clone(),
         window,
         quiet: true,
-        levels: frothline_host::record_levels::LevelRule::Device,
+        levels: frothline_host::offline::record_levels::LevelRule::Device,
         strict: false,
     })
     .map_err(|e| e.to_string())?;
@@ -556,7 +556,7 @@ fn host_results(
 /// at most the pre-trigger ring's frames precede it.
 fn verify_log(args: &[String]) -> Result<(), String> {
     use frothline_core::wire::{Body, Decoder, FeedResult};
-    use frothline_host::flash_image::{read_log, Geometry};
+    use frothline_host::field::flash_image::{read_log, Geometry};
     let [capture, layout, window, image, pre] = args else {
         return Err(
             "usage: frothline-capture-gen verify-log CAPTURE.wav LAYOUT.toml WINDOW IMAGE.bin PRE_TRIGGER"
@@ -698,7 +698,7 @@ fn device_shaped_check<const P: usize, const L: usize>(
             .map_err(|_| "more than 8 probes".to_string())?;
     }
     let mut chain = frothline_core::Chain::<8, 64>::new(small).map_err(|e| e.to_string())?;
-    let mut cap = frothline_host::capture::Capture::open(capture).map_err(|e| e.to_string())?;
+    let mut cap = frothline_host::shared::capture::Capture::open(capture).map_err(|e| e.to_string())?;
     let mut buf = Vec::new();
     let mut got = Vec::new();
     loop {
@@ -781,7 +781,7 @@ fn raw_frame(payload: &[u8]) -> Vec<u8> {
 /// and `None` for an Ack or the Nack code. Frames that must get no answer have none.
 fn command_script() -> Result<(Vec<u8>, Vec<(u16, Option<u8>)>), String> {
     use frothline_core::wire::{Body, Frame, WindowSetting};
-    use frothline_host::commands::{Command, CommandLog};
+    use frothline_host::shared::commands::{Command, CommandLog};
     let mut log = CommandLog::default();
     let mut bytes = Vec::new();
     let mut want = Vec::new();

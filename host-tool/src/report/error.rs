@@ -61,3 +61,10 @@ impl ReportError {
         }
     }
 }
+
+impl From<ReportError> for crate::shared::error::HostError {
+    fn from(e: ReportError) -> Self {
+        let code = e.exit_code();
+        crate::shared::error::HostError::Job(Box::new(e), code)
+    }
+}

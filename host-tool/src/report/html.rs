@@ -26,7 +26,7 @@ pub struct Page<'a> {
     pub notes: &'a [String],
     pub sel: Selection,
     /// marks.csv of a live session (empty when none).
-    pub marks: &'a [crate::marks::Mark],
+    pub marks: &'a [crate::shared::marks::Mark],
 }
 
 /// Escape text for HTML.

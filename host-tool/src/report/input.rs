@@ -148,7 +148,7 @@ pub struct ChordBin {
 
 /// Columns of windows.csv the report reads (the contract of DESIGN.md §3 and the extra
 /// columns written by `windows_csv`). Any other column is ignored with a note.
-const WINDOW_COLUMNS: &[&str] = crate::windows_csv::COLUMNS.split_at(17).0;
+const WINDOW_COLUMNS: &[&str] = crate::shared::windows_csv::COLUMNS.split_at(17).0;
 
 /// Most flag names a run may carry; names past this share the last bit.
 const MAX_FLAGS: usize = 64;
@@ -384,21 +384,21 @@ pub fn read_run(dir: &Path, progress: &ProgressBar) -> Result<Run, ReportError> 
     Ok(run)
 }
 
-/// A folder written by `replay` holds a manifest ([`crate::output_set`]): every run file
+/// A folder written by `replay` holds a manifest ([`crate::shared::output_set`]): every run file
 /// present must be the one it lists, so a folder that mixes the files of two runs is
 /// refused, naming the odd file. A folder without a manifest (written by hand or by another
 /// tool) is read as it is.
 fn check_manifest(dir: &Path) -> Result<(), ReportError> {
     let manifest =
-        crate::output_set::Manifest::read(dir).map_err(|message| ReportError::Parse {
-            path: dir.join(crate::output_set::MANIFEST),
+        crate::shared::output_set::Manifest::read(dir).map_err(|message| ReportError::Parse {
+            path: dir.join(crate::shared::output_set::MANIFEST),
             line: None,
             message,
         })?;
     let Some(m) = manifest else {
         return Ok(());
     };
-    for name in crate::output_set::RUN_FILES {
+    for name in crate::shared::output_set::RUN_FILES {
         if !dir.join(name).exists() {
             continue;
         }
@@ -454,7 +454,7 @@ fn read_windows(run: &mut Run, progress: &ProgressBar) -> Result<(), ReportError
         .map(|h| h.as_str())
         .filter(|h| {
             !WINDOW_COLUMNS.contains(h)
-                && !crate::windows_csv::COLUMNS.contains(h)
+                && !crate::shared::windows_csv::COLUMNS.contains(h)
                 && *h != ENSEMBLE_SPREAD
         })
         .collect();

@@ -295,8 +295,8 @@ fn progress_bar(args: &ReportArgs) -> ProgressBar {
 fn excluded_bits(
     run: &input::Run,
     names: &[String],
-) -> Result<(u64, crate::probe_summary::SummaryRule), ReportError> {
-    let core = crate::probe_summary::flag_bits(names)
+) -> Result<(u64, crate::shared::probe_summary::SummaryRule), ReportError> {
+    let core = crate::shared::probe_summary::flag_bits(names)
         .map_err(|e| ReportError::Usage(format!("--exclude-flags: {e}")))?;
     let mut bits = 0;
     for (i, f) in run.flag_names.iter().enumerate() {
@@ -304,7 +304,7 @@ fn excluded_bits(
             bits |= 1 << i;
         }
     }
-    let rule = crate::probe_summary::SummaryRule {
+    let rule = crate::shared::probe_summary::SummaryRule {
         excluded: core,
         ..Default::default()
     };
@@ -323,7 +323,7 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
             "--low-reynolds: give a Reynolds number, zero or more".into(),
         ));
     }
-    crate::probe_summary::flag_bits(&args.exclude_flags)
+    crate::shared::probe_summary::flag_bits(&args.exclude_flags)
         .map_err(|e| ReportError::Usage(format!("--exclude-flags: {e}")))?;
     let progress = progress_bar(args);
     let run = input::read_run(&args.dir, &progress)?;
@@ -622,7 +622,7 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
     }
     let reynolds = run.indicators.as_ref().and_then(|i| i.reynolds());
     let low_reynolds = reynolds.is_some_and(|re| re < args.low_reynolds);
-    let marks = crate::marks::read(&args.dir).map_err(ReportError::Usage)?;
+    let marks = crate::shared::marks::read(&args.dir).map_err(ReportError::Usage)?;
     let html_path = out_dir.join("report.html");
     let page = html::Page {
         args,
@@ -660,7 +660,7 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
             .collect(),
     };
     if !args.quiet {
-        crate::stdout::print(&summary.to_string());
+        crate::shared::stdout::print(&summary.to_string());
     }
     Ok(summary)
 }

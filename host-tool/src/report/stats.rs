@@ -13,7 +13,7 @@
 //! - Power-law profile C = 0.9 (y/Y90)^n, drawn from a slice's Y90 and n.
 
 use super::input::{Run, Slice, Window};
-use crate::probe_summary::{ProbeTally, SummaryRule, WindowFigures};
+use crate::shared::probe_summary::{ProbeTally, SummaryRule, WindowFigures};
 use frothline_core::Flags;
 
 /// Which windows enter means and fits.
@@ -82,7 +82,7 @@ pub struct ProbeSummary {
     pub chord_p10_s: Option<f64>,
     pub chord_p90_s: Option<f64>,
     pub chord_source: ChordSource,
-    /// Over the used windows whose velocity is trusted (see [`crate::probe_summary`]).
+    /// Over the used windows whose velocity is trusted (see [`crate::shared::probe_summary`]).
     pub velocity_m_s: Option<f64>,
     pub turbulence_intensity: Option<f64>,
     /// Used windows that entered V and Tu.
@@ -126,7 +126,7 @@ fn summarise_probe(run: &Run, sel: Selection, p: usize) -> ProbeSummary {
     for w in &all {
         tally.add(&window_figures(run, w), &sel.rule);
     }
-    let mean = |e: Option<crate::running_stats::Estimate>| e.map(|e| e.mean);
+    let mean = |e: Option<crate::shared::running_stats::Estimate>| e.map(|e| e.mean);
     let mut cs: Vec<f64> = used.iter().filter_map(|w| w.void_fraction).collect();
     cs.sort_by(f64::total_cmp);
     let hist: Vec<(f64, f64, f64)> = run

@@ -121,6 +121,7 @@ pub mod output;
 pub mod render;
 pub mod scenario;
 pub mod transient;
+pub mod transient_spec;
 
 #[cfg(test)]
 mod tests;
@@ -140,7 +141,8 @@ pub use scenario::{
     DetectorSpec, DriftKind, DriftSpec, ProbeDefaults, ProbeSpec, Resolved, ResolvedProbe,
     Scenario, SignalSpec,
 };
-pub use transient::{TransientFlow, TransientSpec, TransientTruth};
+pub use transient::{TransientFlow, TransientTruth};
+pub use transient_spec::TransientSpec;
 
 /// Frames per block when streaming a capture to disk.
 pub const BLOCK_FRAMES: usize = 4096;
@@ -196,6 +198,14 @@ pub enum SynthError {
         #[source]
         source: csv::Error,
     },
+}
+
+impl From<SynthError> for crate::shared::error::HostError {
+    /// A bad scenario or a file the synthesiser cannot write: exit code 2, as for any bad
+    /// input.
+    fn from(e: SynthError) -> Self {
+        crate::shared::error::HostError::Job(Box::new(e), 2)
+    }
 }
 
 fn fmt_path(p: &Option<PathBuf>) -> String {
@@ -643,12 +653,12 @@ pub fn scenario_from_args(args: &SynthArgs) -> Result<Scenario, SynthError> {
             });
         }
         // A capture replay cannot read is no test capture.
-        if n > crate::rig::MAX_PROBES {
+        if n > crate::shared::rig::MAX_PROBES {
             return Err(SynthError::Invalid {
                 key: "--probes".into(),
                 reason: format!(
                     "{n}: `replay` runs at most {} probes on one chain",
-                    crate::rig::MAX_PROBES
+                    crate::shared::rig::MAX_PROBES
                 ),
             });
         }

@@ -7,7 +7,7 @@ use serde::{Deserialize, Serialize};
 
 use super::flow::LocalParams;
 use super::intervals::TipPairSpec;
-use super::transient::TransientSpec;
+use super::transient_spec::TransientSpec;
 use super::SynthError;
 
 /// Default per-channel sample rate, Hz.
@@ -637,6 +637,35 @@ impl Scenario {
             channels: channels as u16,
             frames,
         })
+    }
+}
+
+impl TransientSpec {
+    /// The probes of the scenario: every station × every elevation.
+    pub fn probes(&self) -> Vec<ProbeSpec> {
+        let mut out = Vec::new();
+        for (s, &x) in self.stations_x_mm.iter().enumerate() {
+            let letter = (b'A' + s as u8) as char;
+            for (i, &y) in self.elevations_mm.iter().enumerate() {
+                // The steady targets of the probe format: the values long behind the front
+                // (the generator replaces them by the transient flow).
+                let late = self.at(10.0 * self.n_time_s.max(self.y90_time_s));
+                let c = late.void_fraction(y).clamp(0.0, 1.0);
+                let mut p = ProbeSpec::new(
+                    &format!("{letter}{}", i + 1),
+                    y,
+                    c,
+                    self.bubble_rate_hz(c),
+                    late.velocity_m_s,
+                );
+                p.x_mm = x;
+                p.turbulence_intensity = Some(self.turbulence_intensity);
+                let dual = self.dual_tip_elevations_mm.contains(&y);
+                p.tips = Some(if dual { 2 } else { 1 });
+                out.push(p);
+            }
+        }
+        out
     }
 }
 

@@ -10,7 +10,7 @@ use frothline_core::derived::RandomClusters;
 use frothline_core::wire::quant::from_fraction;
 use frothline_core::wire::DerivedResult;
 
-/// The header row (the run columns of [`crate::runs::RUN_COLUMNS`] follow).
+/// The header row (the run columns of [`crate::shared::runs::RUN_COLUMNS`] follow).
 pub const COLUMNS: &[&str] = &[
     "probe",
     "window_start_s",

@@ -21,7 +21,7 @@
 //! Space goes to the panels in proportion to what they hold; whatever does not fit is
 //! marked `+N more` (the probe table pages with PgUp/PgDn), nothing is dropped silently.
 
-use crate::live::{LinkHealth, LiveState, ProbeRow};
+use crate::live::state::{LinkHealth, LiveState, ProbeRow};
 use frothline_core::Flags;
 use ratatui::layout::{Constraint, Direction, Layout, Rect};
 use ratatui::style::{Color, Modifier, Style};
@@ -186,7 +186,7 @@ fn link_status(l: &LinkHealth, now: Instant) -> Span<'static> {
         Span::styled("DOWN   ", Style::default().fg(BAD).add_modifier(bold))
     } else if l
         .age_s(now)
-        .is_none_or(|a| a > crate::live::QUIET_AFTER.as_secs_f64())
+        .is_none_or(|a| a > crate::live::state::QUIET_AFTER.as_secs_f64())
     {
         Span::styled("QUIET  ", Style::default().fg(WARN).add_modifier(bold))
     } else {
@@ -396,14 +396,14 @@ pub fn probe_columns_that_fit(width: u16) -> Vec<usize> {
 }
 
 /// `0.446±0.055`, or the mean alone before an interval exists.
-fn running(e: Option<crate::running_stats::Estimate>, prec: usize) -> String {
-    crate::probe_summary::estimate_text(e, 1.0, prec)
+fn running(e: Option<crate::shared::running_stats::Estimate>, prec: usize) -> String {
+    crate::shared::probe_summary::estimate_text(e, 1.0, prec)
 }
 
 /// The convergence cell: `done 3%` once C, F (and V) met the target, else the worst
 /// relative half-width; `-` before any interval.
 fn convergence_text(p: &ProbeRow, target: f64) -> String {
-    use crate::running_stats::MIN_BATCHES_FOR_CONVERGENCE as MIN;
+    use crate::shared::running_stats::MIN_BATCHES_FOR_CONVERGENCE as MIN;
     let batches = p.tally.void_fraction().map_or(0, |e| e.batches);
     match p.convergence(target) {
         None if p.tally.used > 0 => format!("{}/{MIN} win", p.tally.used.min(MIN as u64)),
@@ -1042,7 +1042,7 @@ fn fit_and_points<'a>(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::session::Event;
+    use crate::shared::session::Event;
     use frothline_core::wire::{
         Ack, ChordTimes, Correlation, DeviceDescription, Health, Kind, ProbeLayout, TrailingTip,
         WindowResult, WindowSetting,
@@ -1398,7 +1398,7 @@ mod tests {
         let steady = state(now);
         let elevations: Vec<f32> = (0..10).map(|i| 5.0 + 10.0 * i as f32).collect();
         let mut surge = transient_state_with(now, &elevations);
-        surge.keys_help = crate::watch::KEYS_HELP.into();
+        surge.keys_help = crate::live::watch::KEYS_HELP.into();
         let steady_names = ["B2-1", "B2-2", "B2-3", "B2-4"];
         let surge_names: Vec<String> = (1..=10).map(|i| format!("A{i}")).collect();
         let cases: [(&LiveState, Vec<&str>, Vec<&str>); 2] = [
@@ -1501,9 +1501,9 @@ mod tests {
         assert_eq!(data[0].1.len(), 6);
         assert!((data[0].1[5].0 - 0.6).abs() < 1e-9 && (data[0].1[5].1 - 110.0).abs() < 1e-3);
         for (view, head) in [
-            (crate::live::StripView::VoidFraction, "strip: C"),
-            (crate::live::StripView::CountRate, "strip: F"),
-            (crate::live::StripView::Velocity, "strip: V"),
+            (crate::live::state::StripView::VoidFraction, "strip: C"),
+            (crate::live::state::StripView::CountRate, "strip: F"),
+            (crate::live::state::StripView::Velocity, "strip: V"),
         ] {
             s.strip_view = view;
             let text = render_text(&s, now, 160, 48).join("\n");
@@ -1515,6 +1515,6 @@ mod tests {
                 );
             }
         }
-        assert_eq!(s.strip_view.next(), crate::live::StripView::Table);
+        assert_eq!(s.strip_view.next(), crate::live::state::StripView::Table);
     }
 }

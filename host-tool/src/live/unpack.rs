@@ -8,10 +8,10 @@
 //! CSV files are the ones `frothline watch` wrote (up to the last complete chunk when the
 //! session was killed).
 
-use crate::archive::{utc_iso, ArchiveReader, ChunkKind, Damage, Tail};
-use crate::error::HostError;
-use crate::layout::Layout;
-use crate::session::{Event, Session, SessionOptions, SessionReport};
+use crate::shared::archive::{utc_iso, ArchiveReader, ChunkKind, Damage, Tail};
+use crate::shared::error::HostError;
+use crate::shared::layout::Layout;
+use crate::shared::session::{Event, Session, SessionOptions, SessionReport};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
@@ -304,7 +304,7 @@ pub fn run(args: &UnpackArgs) -> Result<UnpackReport, HostError> {
     let layout = args.layout.as_deref().map(Layout::load).transpose()?;
     let report = unpack_with(&args.archive, Some(&args.out), layout, &mut |_| {})?;
     if !args.quiet {
-        crate::stdout::print(&report.to_string());
+        crate::shared::stdout::print(&report.to_string());
     }
     Ok(report)
 }
@@ -317,9 +317,12 @@ mod iso_tests {
     #[test]
     fn dates_are_iso_8601() {
         assert_eq!(
-            crate::archive::utc_iso(1_796_191_038_293_000),
+            crate::shared::archive::utc_iso(1_796_191_038_293_000),
             "2026-12-02T05:57:18.293Z"
         );
-        assert_eq!(crate::archive::utc_iso(0), "1970-01-01T00:00:00.000Z");
+        assert_eq!(
+            crate::shared::archive::utc_iso(0),
+            "1970-01-01T00:00:00.000Z"
+        );
     }
 }

@@ -1,7 +1,7 @@
 //! `frothline ensemble`: repeated runs of one rig (transient flows), aligned on each
 //! station's front arrival, combined per window and per profile slice.
 //!
-//! Every capture goes through the transient replay ([`crate::transient`]) with the same
+//! Every capture goes through the transient replay ([`crate::offline::transient`]) with the same
 //! layout and front-relative windows; window `k` of a probe (the `k`-th window after its
 //! station's origin) is combined over the runs that have it:
 //! - **void fraction**: the mean over runs (spread: the sample standard deviation across
@@ -22,18 +22,18 @@
 //! `slice_start_s` are the mean over the runs of each run's start (runs are released at
 //! different times, so they differ).
 //!
-//! Output (`--out`): `windows.csv` (the columns of [`crate::windows_csv::COLUMNS`], then
+//! Output (`--out`): `windows.csv` (the columns of [`crate::shared::windows_csv::COLUMNS`], then
 //! `runs` and the spreads), `profile.csv` (the columns of
-//! [`crate::transient::PROFILE_COLUMNS`], then `runs` and the spreads), `fronts.csv`
+//! [`crate::offline::transient::PROFILE_COLUMNS`], then `runs` and the spreads), `fronts.csv`
 //! (mean arrival per probe over runs, spread, runs), `flow.json`.
 
-use crate::error::{write_err, HostError};
-use crate::layout::Layout;
-use crate::replay::probe_meta;
-use crate::rig::{FullRecord, HostRecord, HOST_LAGS};
-use crate::transient::{self, TransientRun, PROFILE_COLUMNS};
-use crate::window_spec::WindowSpec;
-use crate::windows_csv;
+use crate::offline::replay::probe_meta;
+use crate::offline::transient::{self, TransientRun, PROFILE_COLUMNS};
+use crate::shared::error::{write_err, HostError};
+use crate::shared::layout::Layout;
+use crate::shared::rig::{FullRecord, HostRecord, HOST_LAGS};
+use crate::shared::window_spec::WindowSpec;
+use crate::shared::windows_csv;
 use frothline_core::decay::DecayTracker;
 use frothline_core::profile::{fit_profile_sized, ProfileConfig, ProfilePoint};
 use frothline_core::station::{ProfileRecord, MAX_DECAY_POINTS};
@@ -683,7 +683,7 @@ pub fn refuse_repeated_captures(captures: &[PathBuf]) -> Result<(), HostError> {
     let mut seen: HashMap<(u64, u64), &PathBuf> = HashMap::new();
     for c in captures {
         let mut file = std::fs::File::open(c).map_err(|source| {
-            HostError::Capture(crate::capture::CaptureError::Io {
+            HostError::Capture(crate::shared::capture::CaptureError::Io {
                 path: c.clone(),
                 source,
             })
@@ -693,7 +693,7 @@ pub fn refuse_repeated_captures(captures: &[PathBuf]) -> Result<(), HostError> {
         let mut len = 0u64;
         loop {
             let n = std::io::Read::read(&mut file, &mut buf).map_err(|source| {
-                HostError::Capture(crate::capture::CaptureError::Io {
+                HostError::Capture(crate::shared::capture::CaptureError::Io {
                     path: c.clone(),
                     source,
                 })
@@ -743,7 +743,7 @@ pub fn run(args: &EnsembleArgs) -> Result<EnsembleReport, HostError> {
             c,
             &args.layout,
             &args.window,
-            crate::record_levels::LevelRule::Record,
+            crate::offline::record_levels::LevelRule::Record,
             Some(&mut keep),
         )?;
         let e = match &mut ensemble {

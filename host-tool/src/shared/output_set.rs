@@ -15,7 +15,7 @@
 //! named, not drawn. Files are created with `create_new` after removing any previous entry
 //! of that name, so a symlink planted in the folder is replaced, never followed.
 
-use crate::error::{write_err, HostError};
+use crate::shared::error::{write_err, HostError};
 use std::fs::{File, OpenOptions};
 use std::io;
 use std::path::{Path, PathBuf};

@@ -13,7 +13,7 @@
 //!
 //! A steady replay also learns every tip's levels in each [`DRIFT_SEGMENT_S`] segment
 //! (from histograms of 64-count bins kept in the same pass) and applies them segment by
-//! segment ([`crate::replay::LevelSchedule`]), so the levels follow a slow drift.
+//! segment ([`crate::offline::replay::LevelSchedule`]), so the levels follow a slow drift.
 //!
 //! The class-size rule of a learning period (each phase at least 0.5 % of the samples) is
 //! replaced by an absolute one ([`MIN_CLASS_SAMPLES`]), so a tip in air above the flow that
@@ -29,9 +29,9 @@
 //! record learnt both levels does a tip keep the device's causal rule (and its windows the
 //! `levels_not_learnt` flag), again with a message naming probe and tip.
 
-use crate::capture::Capture;
-use crate::error::HostError;
-use crate::rig::MAX_PROBES;
+use crate::shared::capture::Capture;
+use crate::shared::error::HostError;
+use crate::shared::rig::MAX_PROBES;
 use frothline_core::levels::{Learnt, LevelLearner, Levels, LEARN_STRIDE};
 use frothline_core::{ChainConfig, LevelSource, Polarity, TipConfig};
 use std::path::Path;

@@ -15,9 +15,9 @@
 //!   time); V, Tu and the chord median by the window's bubbles, so a `few_bubbles` window
 //!   weighs little instead of being dropped.
 //!
-//! Every figure carries a 95 % batch-means interval ([`crate::running_stats`]).
+//! Every figure carries a 95 % batch-means interval ([`crate::shared::running_stats`]).
 
-use crate::running_stats::{BatchMeans, Estimate};
+use crate::shared::running_stats::{BatchMeans, Estimate};
 use frothline_core::Flags;
 
 /// The rule in one paragraph, for help texts, the README and the outputs.

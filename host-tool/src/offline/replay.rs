@@ -1,8 +1,8 @@
 //! `frothline replay`: a recorded capture through the same core the device runs.
 //!
-//! Output files are written as one set ([`crate::output_set`]): staged, then renamed into
+//! Output files are written as one set ([`crate::shared::output_set`]): staged, then renamed into
 //! place with a manifest only when the whole capture went through, so a failed run leaves
-//! the folder as it was. The summary comes from running totals ([`crate::run_summary`]):
+//! the folder as it was. The summary comes from running totals ([`crate::offline::run_summary`]):
 //! memory does not grow with the number of windows.
 //!
 //! A capture that stopped abruptly (a truncated data chunk, an unfinished header) is read to
@@ -10,21 +10,27 @@
 //! `capture_cut`, a warning names the file and the frame, and `--strict` turns it into a
 //! failure (exit 2, after the files are written).
 
-use crate::capture::{Capture, CaptureError};
-use crate::error::{write_err, HostError};
-use crate::layout::Layout;
-use crate::output_set::{Committed, OutputSet};
-use crate::probe_summary::{ProbeTally, SummaryRow, SummaryRule, WindowFigures};
-use crate::record_levels::{self, LevelRule, RecordLevels};
-use crate::rig::HostRecord as ProbeWindow;
-use crate::rig::{chain_config, HostChain, MAX_PROBES};
-use crate::run_summary::RunTotals;
-use crate::window_spec::WindowSpec;
-use crate::windows_csv::{ProbeMeta, WindowsCsv};
+pub use crate::offline::replay_common::{
+    levels_sources, mark_cut, period_rule, probe_meta, probe_meta_with, probe_table, probe_tallies,
+    report_unlearnt, tally_table, window_figures, Keep, ReplayArgs, ReplayReport,
+};
+pub use crate::shared::rig::{check_learn_period, check_levels_fit, require_frames};
+
+use crate::offline::record_levels::{self, LevelRule, RecordLevels};
+use crate::offline::run_summary::RunTotals;
+use crate::shared::capture::Capture;
+use crate::shared::error::{write_err, HostError};
+use crate::shared::layout::Layout;
+use crate::shared::output_set::OutputSet;
+use crate::shared::probe_summary::{ProbeTally, SummaryRule};
+use crate::shared::rig::HostRecord as ProbeWindow;
+use crate::shared::rig::{chain_config, HostChain, MAX_PROBES};
+use crate::shared::window_spec::WindowSpec;
+use crate::shared::windows_csv::WindowsCsv;
 use frothline_core::levels::Levels;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::io::BufWriter;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 /// Frames read from the capture per block.
 const BLOCK_FRAMES: usize = 1 << 15;
@@ -42,174 +48,6 @@ fn block_frames(policy: &frothline_core::WindowPolicy) -> usize {
             .clamp(1024, BLOCK_FRAMES),
         _ => BLOCK_FRAMES,
     }
-}
-
-/// Arguments of `frothline replay`.
-#[derive(clap::Args, Debug, Clone)]
-pub struct ReplayArgs {
-    /// The capture: a WAV file, one channel per probe tip (16-bit PCM is usual; 8/24/32-bit
-    /// integer and 32-bit float are read too).
-    pub capture: PathBuf,
-    /// The rig layout (TOML): which channel is which tip, elevations, levels, detector settings.
-    #[arg(long, short)]
-    pub layout: PathBuf,
-    /// Folder for the output files (created if missing): windows.csv.
-    #[arg(long, short)]
-    pub out: PathBuf,
-    /// Analysis window: `whole` (one window over the capture); a duration with a unit such
-    /// as `50ms`, `0.5s`, `2s` (consecutive windows from the start of the capture); or
-    /// `bubbles:N[@PROBE][,max=DURATION]`, adaptive windows that each hold N bubbles of the
-    /// reference probe's leading tip (default: the first probe), e.g. `bubbles:200@B2-3,max=1s`
-    /// — for unsteady flows, where a fixed duration holds too few bubbles at times.
-    #[arg(long, short, default_value = "whole")]
-    pub window: WindowSpec,
-    /// No progress bar and no summary table.
-    #[arg(long, short)]
-    pub quiet: bool,
-    /// Levels of tips without fixed levels in the layout: `record` learns them from the
-    /// whole capture first, then processes it from its first frame; `device` learns them
-    /// as the device does, during the record (its first learning period runs without
-    /// levels), and reproduces a device's records exactly.
-    #[arg(long, value_enum, default_value_t = LevelRule::Record)]
-    pub levels: LevelRule,
-    /// Fail (exit 2) when the capture stopped abruptly (truncated, or a header its recorder
-    /// never finished). Without it, the results up to the cut are written with a warning and
-    /// the last window is flagged `capture_cut`. The files are written either way.
-    #[arg(long)]
-    pub strict: bool,
-}
-
-/// Whether a replay hands back every record ([`run`], for tests and tools that compare
-/// records) or only running totals ([`run_with`] with `TotalsOnly`, the command line: memory
-/// flat in the length of the capture).
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Keep {
-    /// Keep every record in [`ReplayReport::records`].
-    Records,
-    /// Keep only [`ReplayReport::totals`].
-    TotalsOnly,
-}
-
-/// What a replay produced, for the summary and for tests.
-#[derive(Debug)]
-pub struct ReplayReport {
-    /// The layout used.
-    pub layout: Layout,
-    /// Frames per second of the capture.
-    pub sample_rate: u32,
-    /// Frames read.
-    pub frames: u64,
-    /// Every record, in the order the chain gave them (empty under [`Keep::TotalsOnly`]).
-    pub records: Vec<ProbeWindow>,
-    /// Running totals per probe.
-    pub totals: RunTotals,
-    /// The per-probe summary of [`crate::probe_summary`] under its default rule, one per
-    /// layout probe.
-    pub tallies: Vec<ProbeTally>,
-    /// The windows.csv written.
-    pub windows_csv: PathBuf,
-    /// The warning about a capture that stopped abruptly, if it did.
-    pub abrupt_end: Option<String>,
-    /// What the run replaced in the output folder.
-    pub committed: Committed,
-    /// Unit discharges per station and the continuity check ([`crate::discharge`]).
-    pub discharges: Vec<(f64, crate::discharge::Discharge)>,
-}
-
-/// Layout probes as CSV row metadata (where the levels come from not known).
-pub fn probe_meta(layout: &Layout) -> Vec<ProbeMeta> {
-    probe_meta_with(layout, &[])
-}
-
-/// Layout probes as CSV row metadata, with where each probe's leading-tip levels come
-/// from (`sources`, per probe; see [`levels_sources`]).
-pub fn probe_meta_with(layout: &Layout, sources: &[Option<&'static str>]) -> Vec<ProbeMeta> {
-    layout
-        .probes
-        .iter()
-        .enumerate()
-        .map(|(i, p)| ProbeMeta {
-            name: p.name.clone(),
-            elevation_mm: p.elevation_mm,
-            x_mm: p.x_mm,
-            levels_from: sources.get(i).copied().flatten(),
-        })
-        .collect()
-}
-
-/// Where each probe's leading-tip levels come from: the layout, the record (`learnt`, when
-/// the record rule ran) or the device's causal rule.
-pub fn levels_sources(layout: &Layout, learnt: Option<&RecordLevels>) -> Vec<Option<&'static str>> {
-    layout
-        .probes
-        .iter()
-        .map(|p| {
-            if p.tip_levels(false).is_some() {
-                return Some("layout");
-            }
-            let ch = p.leading.min(255) as u8;
-            Some(
-                learnt
-                    .and_then(|l| l.tip(ch))
-                    .and_then(|t| t.outcome.source_name())
-                    .unwrap_or("device_rule"),
-            )
-        })
-        .collect()
-}
-
-/// Tips that learn their levels during the record (the device's rule, or the tips the
-/// record rule could not give levels) need a learning period of at least 64 frames to fill
-/// its histogram: a shorter one (`learn_period_s = 1e-9`, or a 1 Hz file) is refused,
-/// with the key, the value and the frames it makes at the capture's rate.
-pub fn check_learn_period(
-    cfg: &frothline_core::ChainConfig<{ crate::rig::MAX_PROBES }>,
-    layout: &Layout,
-    sample_rate: u32,
-    layout_path: &Path,
-) -> Result<(), HostError> {
-    let learning = cfg.probes.iter().any(|p| {
-        core::iter::once(&p.leading)
-            .chain(p.trailing.as_ref())
-            .any(|t| t.levels == frothline_core::LevelSource::Learnt)
-    });
-    let period = layout.detector.learn_period_s;
-    let frames = period * sample_rate as f64;
-    if learning && frames < 64.0 {
-        return Err(HostError::Usage(format!(
-            "{}: key `detector.learn_period_s`: {period} s is {frames:.3e} frames at \
-             {sample_rate} Hz, but a learning period must hold at least 64 frames ({:.4} s \
-             at this rate) to fill its histogram; give a longer period, or fix the tips' \
-             levels in the layout",
-            layout_path.display(),
-            64.0 / sample_rate.max(1) as f64
-        )));
-    }
-    Ok(())
-}
-
-/// A learning period too short is an error under the device's rule; under the record rule
-/// it concerns only the tips the record could not give levels (already named), so it is a
-/// warning there.
-pub fn period_rule(check: Result<(), HostError>, rule: LevelRule) -> Result<(), HostError> {
-    match (check, rule) {
-        (Err(e), LevelRule::Record) => {
-            eprintln!("warning: {e}");
-            Ok(())
-        }
-        (other, _) => other,
-    }
-}
-
-/// The layout's fixed levels must lie inside the capture's sample range.
-pub fn check_levels_fit(
-    layout: &Layout,
-    cap: &Capture,
-    layout_path: &Path,
-) -> Result<(), HostError> {
-    let format = cap.format();
-    layout.check_levels(format.full_scale(), &format.to_string(), layout_path)?;
-    Ok(())
 }
 
 /// Open a capture and its layout and build the chain for them.
@@ -268,14 +106,6 @@ pub fn with_record_levels(
     Ok(Box::new(chain))
 }
 
-/// Tell the user on stderr which tips learnt no levels from the record.
-pub fn report_unlearnt(learnt: &RecordLevels, layout: &Layout, min_swing: u16) {
-    let names: Vec<String> = layout.probes.iter().map(|p| p.name.clone()).collect();
-    for w in learnt.warnings(&names, min_swing) {
-        eprintln!("warning: {w}");
-    }
-}
-
 /// Levels that change during the record, segment by segment (drift tracking): every tip
 /// listed takes its segment's levels at the segment's first frame.
 #[derive(Clone, Debug, Default)]
@@ -322,38 +152,6 @@ impl LevelSchedule {
                 chain.set_tip_levels(p, *trailing, *l);
             }
         }
-    }
-}
-
-/// A capture with no complete frame is refused: there is nothing to replay, and a summary
-/// of no samples would be all NaN.
-///
-/// A capture wider than the core's [`MAX_CHANNELS`](frothline_core::MAX_CHANNELS) is
-/// refused here too, naming the capture and its true channel count.
-pub fn require_frames(cap: &Capture) -> Result<(), HostError> {
-    if cap.channels() > frothline_core::MAX_CHANNELS {
-        return Err(CaptureError::TooManyChannels {
-            path: cap.path().to_path_buf(),
-            channels: cap.channels(),
-            max: frothline_core::MAX_CHANNELS,
-        }
-        .into());
-    }
-    if cap.frames_in_file() == 0 {
-        return Err(CaptureError::NoFrames {
-            path: cap.path().to_path_buf(),
-            channels: cap.channels(),
-        }
-        .into());
-    }
-    Ok(())
-}
-
-/// Raises [`Flags::CAPTURE_CUT`](frothline_core::Flags::CAPTURE_CUT) on the records that
-/// reach the last frame of a capture that stopped abruptly.
-pub fn mark_cut(r: &mut ProbeWindow, abrupt: bool, last_frame: u64) {
-    if abrupt && r.end >= last_frame {
-        r.flags |= frothline_core::Flags::CAPTURE_CUT;
     }
 }
 
@@ -602,9 +400,9 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
 /// Run a replay and write its files.
 pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError> {
     // Transient layouts (surge fronts): one station chain per station, front-relative
-    // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::transient`).
-    if crate::transient::is_transient(&Layout::load(&args.layout)?) {
-        return crate::transient::run(args).map(|(_, report)| report);
+    // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::offline::transient`).
+    if crate::offline::transient::is_transient(&Layout::load(&args.layout)?) {
+        return crate::offline::transient::run(args).map(|(_, report)| report);
     }
     let (mut cap, layout, mut chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
     let mut learnt = None;
@@ -670,12 +468,12 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     bar.finish_and_clear();
     let frames = result?;
     csv.finish().map_err(write_err(&staged))?;
-    let discharges = crate::discharge::station_discharges(&layout, &tallies);
+    let discharges = crate::offline::discharge::station_discharges(&layout, &tallies);
     let mut names = vec!["windows.csv"];
     if !discharges.is_empty() {
         let path = set.staged("discharge.csv");
         let file = set.create("discharge.csv")?;
-        crate::discharge::write_csv(file, &discharges).map_err(|e| HostError::Write {
+        crate::offline::discharge::write_csv(file, &discharges).map_err(|e| HostError::Write {
             path,
             source: e.into(),
         })?;
@@ -702,7 +500,7 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
         eprintln!("warning: {w}");
     }
     if !args.quiet {
-        crate::stdout::print(&summary_table(&report));
+        crate::shared::stdout::print(&summary_table(&report));
     }
     if args.strict {
         if let Some(e) = cap.abrupt_end_error() {
@@ -712,47 +510,8 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     Ok(report)
 }
 
-/// The figures of a chain record for the per-probe summary (`spacing_mm`: the probe's tip
-/// spacing, for the velocity).
-pub fn window_figures(r: &ProbeWindow, sample_rate: u32, spacing_mm: Option<f64>) -> WindowFigures {
-    let fs = sample_rate.max(1) as f64;
-    let frames = r.end.saturating_sub(r.start);
-    let corr = r.correlation.as_ref();
-    WindowFigures {
-        duration_s: frames as f64 / fs,
-        void_fraction: r.lead.void_fraction().map(f64::from),
-        count_rate_hz: r.lead.bubble_count_rate(fs as f32).map(f64::from),
-        bubbles: Some(r.lead.bubbles as f64),
-        velocity_m_s: corr
-            .and_then(|c| c.velocity_m_s(spacing_mm? as f32, fs as f32))
-            .map(f64::from),
-        turbulence_intensity: corr.and_then(|c| c.turbulence_intensity).map(f64::from),
-        chord_median_s: r.lead.bubble_chords.median().map(|m| m as f64 / fs),
-        flags: r.flags,
-        before_front: r.since_front.is_some_and(|t| t < 0),
-    }
-}
-
-/// Per-probe tallies of `records` under `rule`, one per layout probe.
-pub fn probe_tallies(
-    layout: &Layout,
-    sample_rate: u32,
-    records: &[ProbeWindow],
-    rule: &SummaryRule,
-) -> Vec<ProbeTally> {
-    let mut t = vec![ProbeTally::new(); layout.probes.len()];
-    for r in records {
-        let p = r.probe as usize;
-        if let Some(tally) = t.get_mut(p) {
-            let spacing = layout.probes.get(p).and_then(|p| p.tip_spacing_mm);
-            tally.add(&window_figures(r, sample_rate, spacing), rule);
-        }
-    }
-    t
-}
-
 /// A short human summary: one line per probe over all its windows (see
-/// [`crate::probe_summary`] for the rule on flagged windows).
+/// [`crate::shared::probe_summary`] for the rule on flagged windows).
 pub fn summary_table(r: &ReplayReport) -> String {
     use std::fmt::Write;
     let mut s = String::new();
@@ -770,28 +529,7 @@ pub fn summary_table(r: &ReplayReport) -> String {
     }
     s.push_str(&tally_table(&r.layout, &r.tallies));
     for (x, d) in &r.discharges {
-        s.push_str(&crate::discharge::summary(*x, d));
+        s.push_str(&crate::offline::discharge::summary(*x, d));
     }
     s
-}
-
-/// The per-probe table of `records` under the default rule.
-pub fn probe_table(layout: &Layout, sample_rate: u32, records: &[ProbeWindow]) -> String {
-    let tallies = probe_tallies(layout, sample_rate, records, &SummaryRule::default());
-    tally_table(layout, &tallies)
-}
-
-/// The per-probe table of `tallies` (one per layout probe).
-pub fn tally_table(layout: &Layout, tallies: &[ProbeTally]) -> String {
-    let rows: Vec<SummaryRow> = layout
-        .probes
-        .iter()
-        .zip(tallies)
-        .map(|(p, tally)| SummaryRow {
-            name: &p.name,
-            elevation_mm: p.elevation_mm,
-            tally,
-        })
-        .collect();
-    crate::probe_summary::summary_table(&rows)
 }

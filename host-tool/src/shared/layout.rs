@@ -31,7 +31,7 @@
 //! and column.
 //!
 //! Level and rail values are in *file units* (the numbers stored in the WAV file: counts for
-//! integer files, -1.0..1.0 for float files); `crate::capture::Capture::to_counts` maps them
+//! integer files, -1.0..1.0 for float files); `crate::shared::capture::Capture::to_counts` maps them
 //! to the i16 counts the core works on.
 
 use std::collections::HashMap;
@@ -121,7 +121,7 @@ pub struct Flow {
     pub water_temperature_c: f64,
     /// The discharge the rig delivered per unit width, m²/s: `discharge_m2_s`, or
     /// `discharge_m3_s / width_m`. The continuity check compares the water discharge
-    /// integrated across the array with it ([`crate::discharge`]).
+    /// integrated across the array with it ([`crate::offline::discharge`]).
     pub discharge_m2_s: Option<f64>,
 }
 

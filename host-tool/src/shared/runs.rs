@@ -67,7 +67,11 @@ impl RunTracker {
     /// The run columns of a row received at host time `t_us`.
     pub fn columns(&self, port: usize, device: u16, t_us: u64) -> [String; 3] {
         let t = self.tag(port, device);
-        [t.number.to_string(), t.label, crate::archive::utc_iso(t_us)]
+        [
+            t.number.to_string(),
+            t.label,
+            crate::shared::archive::utc_iso(t_us),
+        ]
     }
 }
 

@@ -3,7 +3,7 @@
 //! The first twelve columns are the contract that scripts read; the extra columns after them
 //! may grow. Empty cells mean "could not be computed". Flags are their names joined by `|`.
 
-use crate::rig::HostRecord as ProbeWindow;
+use crate::shared::rig::HostRecord as ProbeWindow;
 use std::io::Write;
 
 /// The header row.
@@ -166,10 +166,14 @@ impl<W: Write> WindowsCsv<W> {
     }
 
     /// Start a live file: the header row with the run columns
-    /// ([`crate::runs::RUN_COLUMNS`]) after [`COLUMNS`].
+    /// ([`crate::shared::runs::RUN_COLUMNS`]) after [`COLUMNS`].
     pub fn new_live(sink: W) -> csv::Result<Self> {
         let mut out = csv::Writer::from_writer(sink);
-        out.write_record(COLUMNS.iter().chain(crate::runs::RUN_COLUMNS.iter()))?;
+        out.write_record(
+            COLUMNS
+                .iter()
+                .chain(crate::shared::runs::RUN_COLUMNS.iter()),
+        )?;
         Ok(WindowsCsv { out })
     }
 

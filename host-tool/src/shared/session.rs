@@ -15,13 +15,13 @@
 //! Probe names come from the layout given with `--layout` (by probe index) or are `p0`,
 //! `p1`, ...; with several ports they are prefixed by the device id (`d7.p0`) so rows of
 //! different devices stay apart. The CSV columns are those of `frothline replay`
-//! ([`crate::windows_csv::COLUMNS`]) and DESIGN.md §3 for fronts and profiles.
+//! ([`crate::shared::windows_csv::COLUMNS`]) and DESIGN.md §3 for fronts and profiles.
 
-use crate::archive::ArchiveWriter;
-use crate::commands::{kind_name, CommandLog, HOST_DEVICE_ID};
-use crate::error::{write_err, HostError};
-use crate::layout::Layout;
-use crate::windows_csv::{wire_row, ProbeMeta, WindowsCsv};
+use crate::shared::archive::ArchiveWriter;
+use crate::shared::commands::{kind_name, CommandLog, HOST_DEVICE_ID};
+use crate::shared::error::{write_err, HostError};
+use crate::shared::layout::Layout;
+use crate::shared::windows_csv::{wire_row, ProbeMeta, WindowsCsv};
 use frothline_core::wire::quant::{from_exponent, from_fraction, from_length, from_spacing};
 use frothline_core::wire::{
     Body, Decoder, DecoderStats, DeviceDescription, DeviceSeqStats, FeedResult, FrontArrival,
@@ -35,8 +35,8 @@ use std::path::{Path, PathBuf};
 /// Columns of a live fronts.csv: the contract of DESIGN.md §3 (the replay's first columns;
 /// the wire carries no more).
 pub fn front_columns() -> Vec<&'static str> {
-    let mut c = crate::transient::FRONT_COLUMNS[..3].to_vec();
-    c.extend(crate::runs::RUN_COLUMNS);
+    let mut c = crate::shared::transient_columns::FRONT_COLUMNS[..3].to_vec();
+    c.extend(crate::shared::runs::RUN_COLUMNS);
     c
 }
 
@@ -44,7 +44,7 @@ pub fn front_columns() -> Vec<&'static str> {
 /// columns), then `flags`, the estimate the contract columns hold and its standard errors
 /// (named as in the replay's profile.csv).
 pub fn profile_columns() -> Vec<&'static str> {
-    let mut c = crate::transient::PROFILE_COLUMNS[..10].to_vec();
+    let mut c = crate::shared::transient_columns::PROFILE_COLUMNS[..10].to_vec();
     c.extend([
         "flags",
         "estimate",
@@ -53,7 +53,7 @@ pub fn profile_columns() -> Vec<&'static str> {
         "exponent_se",
         "equivalent_depth_se_mm",
     ]);
-    c.extend(crate::runs::RUN_COLUMNS);
+    c.extend(crate::shared::runs::RUN_COLUMNS);
     c
 }
 
@@ -414,7 +414,7 @@ pub struct Session {
     archive: Option<ArchiveWriter>,
     report: SessionReport,
     /// The run of each device (run columns of the live CSV files).
-    runs: crate::runs::RunTracker,
+    runs: crate::shared::runs::RunTracker,
     /// Host time of the bytes being decoded, µs since the Unix epoch.
     now_us: u64,
 }
@@ -476,7 +476,7 @@ impl Session {
         let mut archive = archive;
         if let (Some(a), Some(text)) = (archive.as_mut(), &opts.layout_text) {
             let path = a.path().to_path_buf();
-            a.layout(crate::archive::now_us(), text)
+            a.layout(crate::shared::archive::now_us(), text)
                 .map_err(write_err(path))?;
         }
         let mut s = Session {
@@ -486,7 +486,7 @@ impl Session {
             out,
             archive,
             report,
-            runs: crate::runs::RunTracker::new(),
+            runs: crate::shared::runs::RunTracker::new(),
             now_us: 0,
         };
         s.flush()?;
@@ -513,7 +513,7 @@ impl Session {
     pub fn encode_command(
         &mut self,
         port: usize,
-        cmd: &crate::commands::Command,
+        cmd: &crate::shared::commands::Command,
     ) -> Result<(u16, Vec<u8>), String> {
         let p = self
             .ports
@@ -762,8 +762,8 @@ impl Session {
         });
     }
 
-    /// The current run of `device` on `port` (see [`crate::runs`]).
-    pub fn run_tag(&self, port: usize, device: u16) -> crate::runs::RunTag {
+    /// The current run of `device` on `port` (see [`crate::shared::runs`]).
+    pub fn run_tag(&self, port: usize, device: u16) -> crate::shared::runs::RunTag {
         self.runs.tag(port, device)
     }
 
@@ -889,7 +889,7 @@ impl Session {
         let mut row = wire_row(w, &meta, fs, since);
         if let (Some(t), Some(i)) = (
             transit_s,
-            crate::windows_csv::COLUMNS
+            crate::shared::windows_csv::COLUMNS
                 .iter()
                 .position(|c| *c == "transit_time_s"),
         ) {
@@ -956,15 +956,15 @@ impl Session {
         };
         let path = out.dir.join("derived.csv");
         if out.derived.is_none() {
-            let cols: Vec<&str> = crate::derived_csv::COLUMNS
+            let cols: Vec<&str> = crate::shared::derived_csv::COLUMNS
                 .iter()
-                .chain(crate::runs::RUN_COLUMNS.iter())
+                .chain(crate::shared::runs::RUN_COLUMNS.iter())
                 .copied()
                 .collect();
             out.derived = Some(csv_file(&path, &cols)?);
             self.report.files.push(path.clone());
         }
-        let mut row = crate::derived_csv::row(d, &name, fs);
+        let mut row = crate::shared::derived_csv::row(d, &name, fs);
         row.extend(self.runs.columns(port, device, self.now_us));
         if let Some(w) = out.derived.as_mut() {
             w.write_record(row)
@@ -1265,7 +1265,7 @@ pub fn describe_event(e: &Event, ports: &[String]) -> Option<String> {
             },
             run.utc_ms.map_or_else(String::new, |ms| format!(
                 " at {}",
-                crate::archive::utc_iso(ms.saturating_mul(1000))
+                crate::shared::archive::utc_iso(ms.saturating_mul(1000))
             ))
         ),
         Event::Stray {

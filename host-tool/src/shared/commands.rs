@@ -50,7 +50,7 @@ impl Command {
         Ok(match self {
             Command::StartRun(label) => {
                 let mut s = start_run(label)?;
-                s.utc_ms = Some(crate::archive::now_us() / 1000);
+                s.utc_ms = Some(crate::shared::archive::now_us() / 1000);
                 Body::StartRun(s)
             }
             Command::StopRun => Body::StopRun,

@@ -14,11 +14,11 @@
 //! printed) or on a given serial port, until Ctrl-C: point `frothline watch` at it from
 //! another terminal, or start several for a multi-port session.
 
-use crate::commands::Command;
-use crate::device_sim::{SimCapture, SimOptions, SimStats};
-use crate::error::HostError;
-use crate::watch::{interrupt_flag, run_with, Startup, Ui, WatchOptions, WatchSummary};
-use crate::window_spec::WindowSpec;
+use crate::live::device_sim::{SimCapture, SimOptions, SimStats};
+use crate::live::watch::{interrupt_flag, run_with, Startup, Ui, WatchOptions, WatchSummary};
+use crate::shared::commands::Command;
+use crate::shared::error::HostError;
+use crate::shared::window_spec::WindowSpec;
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
@@ -35,7 +35,7 @@ pub struct DemoArgs {
         long,
         value_name = "SECS",
         allow_hyphen_values = true,
-        value_parser = crate::session_time::parse_session_secs,
+        value_parser = crate::live::session_time::parse_session_secs,
         default_value_t = 20.0
     )]
     pub duration: f64,
@@ -89,7 +89,7 @@ pub struct SimulateArgs {
         long,
         value_name = "SECS",
         allow_hyphen_values = true,
-        value_parser = crate::session_time::parse_session_secs
+        value_parser = crate::live::session_time::parse_session_secs
     )]
     pub duration: Option<f64>,
 }
@@ -187,7 +187,7 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
     use serialport::SerialPort;
     let _ = master.set_timeout(Duration::from_millis(2));
     let stop = Arc::new(AtomicBool::new(false));
-    let sim = crate::device_sim::spawn(
+    let sim = crate::live::device_sim::spawn(
         cap,
         SimOptions {
             baud: args.baud,
@@ -223,7 +223,7 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
         device,
         out: args.out.clone(),
     };
-    crate::stdout::print(&summary.to_string());
+    crate::shared::stdout::print(&summary.to_string());
     Ok(summary)
 }
 
@@ -288,9 +288,9 @@ pub fn simulate(args: &SimulateArgs) -> Result<SimStats, HostError> {
             println!(
                 "simulated device {} on {p}; Ctrl-C to stop. {}",
                 args.device_id,
-                crate::dashboard::SAFETY_LINE
+                crate::live::dashboard::SAFETY_LINE
             );
-            join(crate::device_sim::spawn(
+            join(crate::live::device_sim::spawn(
                 cap,
                 opts,
                 port,
@@ -337,9 +337,9 @@ fn simulate_on_pty(
         "simulated device {} on {path} ({} Bd budget); watch it with: frothline watch --port {path}\nCtrl-C to stop. {}",
         args.device_id,
         args.baud,
-        crate::dashboard::SAFETY_LINE
+        crate::live::dashboard::SAFETY_LINE
     );
-    let stats = join(crate::device_sim::spawn(cap, opts, master, stop));
+    let stats = join(crate::live::device_sim::spawn(cap, opts, master, stop));
     drop(slave);
     stats
 }
@@ -359,16 +359,16 @@ fn simulate_on_pty(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::device_sim::SimDevice;
-    use crate::live::LiveState;
-    use crate::session::{Session, SessionOptions};
+    use crate::live::device_sim::SimDevice;
+    use crate::live::state::LiveState;
+    use crate::shared::session::{Session, SessionOptions};
 
     /// The transient demo without a terminal: the simulated device stepped in memory, its
     /// bytes through the session into the live state, the dashboard rendered to text.
     #[test]
     fn transient_demo_shows_front_profile_fit_and_decay() {
         let h = std::thread::Builder::new()
-            .stack_size(crate::device_sim::THREAD_STACK)
+            .stack_size(crate::live::device_sim::THREAD_STACK)
             .spawn(|| {
                 let cap = transient_demo_capture(WindowSpec::Whole).unwrap();
                 let opts = SimOptions {
@@ -404,8 +404,12 @@ mod tests {
                 let st = state.stations.values().next().expect("a station");
                 assert!(st.front_s.is_some(), "a front arrived");
                 assert!(st.profile.is_some() && st.series.len() >= 10);
-                let lines =
-                    crate::dashboard::render_text(&state, t0 + Duration::from_secs(2), 132, 44);
+                let lines = crate::live::dashboard::render_text(
+                    &state,
+                    t0 + Duration::from_secs(2),
+                    132,
+                    44,
+                );
                 println!("{}", lines.join("\n"));
                 let text = lines.join("\n");
                 assert!(text.contains("Y90") && text.contains("tau"), "{text}");

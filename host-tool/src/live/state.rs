@@ -1,11 +1,11 @@
 //! What the live view knows: the latest results per probe, a short history and link health.
 //!
 //! The state is fed session events (decoded frames and link events, see
-//! [`crate::session::Event`]); the dashboard only draws it. Keeping the two apart lets tests
+//! [`crate::shared::session::Event`]); the dashboard only draws it. Keeping the two apart lets tests
 //! drive the state without a terminal.
 
-use crate::probe_summary::{ProbeTally, SummaryRule, WindowFigures};
-use crate::session::{describe_event, setting_text, Event};
+use crate::shared::probe_summary::{ProbeTally, SummaryRule, WindowFigures};
+use crate::shared::session::{describe_event, setting_text, Event};
 use frothline_core::decay::{DecayFit, DecayTracker};
 use frothline_core::wire::quant::{
     from_exponent, from_fraction, from_length, from_micros, from_spacing,
@@ -189,7 +189,7 @@ pub struct ProbeRow {
     pub window_end_s: Option<f64>,
     /// Windows received for this probe.
     pub windows: u64,
-    /// Running figures of the current run (see [`crate::probe_summary`]).
+    /// Running figures of the current run (see [`crate::shared::probe_summary`]).
     pub tally: ProbeTally,
     /// The latest windows of the run for the strip chart: (end, s of device time; C, F, V).
     pub strip: VecDeque<(f64, [Option<f64>; 3])>,

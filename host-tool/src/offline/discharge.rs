@@ -275,8 +275,8 @@ pub fn summary(x_mm: f64, d: &Discharge) -> String {
 /// from the per-probe summary of a run (one tally per layout probe). A probe is dead when
 /// its tip was stuck in more than half of its windows.
 pub fn station_discharges(
-    layout: &crate::layout::Layout,
-    tallies: &[crate::probe_summary::ProbeTally],
+    layout: &crate::shared::layout::Layout,
+    tallies: &[crate::shared::probe_summary::ProbeTally],
 ) -> Vec<(f64, Discharge)> {
     let mut xs: Vec<f64> = layout.probes.iter().map(|p| p.x_mm).collect();
     xs.sort_by(f64::total_cmp);

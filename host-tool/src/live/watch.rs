@@ -15,14 +15,14 @@
 //! or `q` ends the session cleanly: readers stopped, the last bytes archived, the archive
 //! synced, the CSV files flushed, the terminal restored.
 
-use crate::archive::ArchiveWriter;
-use crate::commands::{parse_label, Command};
-use crate::dashboard::SAFETY_LINE;
-use crate::error::HostError;
-use crate::layout::Layout;
-use crate::live::{LiveState, LiveWindow, ViewOptions};
-use crate::session::{describe_event, Event, Session, SessionOptions, SessionReport};
-use crate::window_spec::WindowSpec;
+use crate::live::dashboard::SAFETY_LINE;
+use crate::live::state::{LiveState, LiveWindow, ViewOptions};
+use crate::shared::archive::ArchiveWriter;
+use crate::shared::commands::{parse_label, Command};
+use crate::shared::error::HostError;
+use crate::shared::layout::Layout;
+use crate::shared::session::{describe_event, Event, Session, SessionOptions, SessionReport};
+use crate::shared::window_spec::WindowSpec;
 use frothline_core::wire::WindowSetting;
 use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
@@ -68,7 +68,7 @@ pub struct WatchArgs {
         long,
         value_name = "SECS",
         allow_hyphen_values = true,
-        value_parser = crate::session_time::parse_session_secs
+        value_parser = crate::live::session_time::parse_session_secs
     )]
     pub duration: Option<f64>,
     /// Start a run with this label (at most 16 bytes) once each device has described itself.
@@ -261,7 +261,7 @@ struct Batch {
 impl Batch {
     fn add(&mut self, b: &[u8]) {
         if self.first.is_none() {
-            self.first = Some((Instant::now(), crate::archive::now_us()));
+            self.first = Some((Instant::now(), crate::shared::archive::now_us()));
         }
         self.bytes.extend_from_slice(b);
     }
@@ -354,7 +354,7 @@ fn reader(port: usize, path: String, baud: u32, tx: Sender<LinkMsg>, stop: Arc<A
                 if tx
                     .send(LinkMsg::Opened {
                         port,
-                        t_us: crate::archive::now_us(),
+                        t_us: crate::shared::archive::now_us(),
                         writer,
                     })
                     .is_err()
@@ -387,7 +387,7 @@ fn reader(port: usize, path: String, baud: u32, tx: Sender<LinkMsg>, stop: Arc<A
                     if let Some(reason) = lost {
                         let msg = LinkMsg::Lost {
                             port,
-                            t_us: crate::archive::now_us(),
+                            t_us: crate::shared::archive::now_us(),
                             reason,
                         };
                         if tx.send(msg).is_err() {
@@ -422,7 +422,7 @@ pub struct WatchSummary {
     pub baud: u32,
     /// Per probe of every device (highest first): name, elevation in mm, and the running
     /// figures of its latest run.
-    pub probes: Vec<(String, f64, crate::probe_summary::ProbeTally)>,
+    pub probes: Vec<(String, f64, crate::shared::probe_summary::ProbeTally)>,
 }
 
 impl std::fmt::Display for WatchSummary {
@@ -459,16 +459,18 @@ impl std::fmt::Display for WatchSummary {
         }
         if !self.probes.is_empty() {
             writeln!(f, "results of the latest run, per probe:")?;
-            let rows: Vec<crate::probe_summary::SummaryRow> = self
+            let rows: Vec<crate::shared::probe_summary::SummaryRow> = self
                 .probes
                 .iter()
-                .map(|(name, y, tally)| crate::probe_summary::SummaryRow {
-                    name,
-                    elevation_mm: *y,
-                    tally,
-                })
+                .map(
+                    |(name, y, tally)| crate::shared::probe_summary::SummaryRow {
+                        name,
+                        elevation_mm: *y,
+                        tally,
+                    },
+                )
                 .collect();
-            f.write_str(&crate::probe_summary::summary_table(&rows))?;
+            f.write_str(&crate::shared::probe_summary::summary_table(&rows))?;
         }
         writeln!(f, "{} window results; files written:", self.report.windows)?;
         for p in &self.report.files {
@@ -502,7 +504,7 @@ struct Watch<'a> {
     /// Standard output was closed (plain mode in a pipe whose reader went away).
     quit: bool,
     /// marks.csv (when the session writes files).
-    marks: Option<crate::marks::MarksCsv>,
+    marks: Option<crate::shared::marks::MarksCsv>,
     observer: &'a mut dyn FnMut(&Event),
 }
 
@@ -529,7 +531,7 @@ impl Watch<'_> {
                         let fs = dev.map(|d| d.sample_rate_hz as f64).filter(|f| *f > 0.0);
                         dev.and_then(|d| d.probes.get(result.probe as usize))
                             .map(|row| {
-                                crate::live::plain_line(
+                                crate::live::state::plain_line(
                                     row,
                                     &LiveWindow::from_wire(*device, result, fs),
                                 )
@@ -565,7 +567,7 @@ impl Watch<'_> {
                             let fs = self.session.sample_rate(port).unwrap_or(0.0).round() as u32;
                             let layout = self.opts.layout.as_ref();
                             let index = |name: &str| {
-                                layout.and_then(|l| crate::device_sim::probe_index(l, name))
+                                layout.and_then(|l| crate::live::device_sim::probe_index(l, name))
                             };
                             let setting = if fs == 0 && !matches!(w, WindowSpec::Whole) {
                                 Err("the device's sample rate is not known".to_string())
@@ -609,7 +611,10 @@ impl Watch<'_> {
         if let Command::StartRun(label) = &cmd {
             self.live.pending_labels.insert((port, seq), label.clone());
         }
-        match self.session.sent(port, crate::archive::now_us(), &bytes) {
+        match self
+            .session
+            .sent(port, crate::shared::archive::now_us(), &bytes)
+        {
             Ok(ev) => self.emit(ev),
             Err(e) => self.note(format!("archive: {e}")),
         }
@@ -625,10 +630,10 @@ impl Watch<'_> {
             ),
             None => (Default::default(), None),
         };
-        let mark = crate::marks::Mark {
+        let mark = crate::shared::marks::Mark {
             run_number: tag.number,
             run_label: tag.label,
-            host_utc: crate::archive::utc_iso(crate::archive::now_us()),
+            host_utc: crate::shared::archive::utc_iso(crate::shared::archive::now_us()),
             device_time_s,
             note: note.trim().to_string(),
         };
@@ -650,7 +655,7 @@ impl Watch<'_> {
 
     /// A key typed while a prompt is open: edit, confirm (Enter) or cancel (Esc).
     fn prompt_key(&mut self, code: ratatui::crossterm::event::KeyCode) {
-        use crate::live::PromptKind;
+        use crate::live::state::PromptKind;
         use ratatui::crossterm::event::KeyCode;
         let Some(p) = self.live.prompt.as_mut() else {
             return;
@@ -663,7 +668,7 @@ impl Watch<'_> {
             KeyCode::Char(c) => {
                 let limit = match p.kind {
                     PromptKind::RunLabel => frothline_core::wire::LABEL_BYTES,
-                    PromptKind::MarkNote => crate::marks::MAX_NOTE_CHARS,
+                    PromptKind::MarkNote => crate::shared::marks::MAX_NOTE_CHARS,
                 };
                 let mut t = p.text.clone();
                 t.push(c);
@@ -752,12 +757,12 @@ pub fn run_with(
     if ui == Ui::Dashboard && !std::io::stdout().is_terminal() {
         ui = Ui::Plain;
     }
-    let started_us = crate::archive::now_us();
+    let started_us = crate::shared::archive::now_us();
     let (archive, csv_dir, folder_lock) = match &opts.dir {
         Some(dir) => {
-            std::fs::create_dir_all(dir).map_err(crate::error::write_err(dir))?;
-            let a =
-                ArchiveWriter::create_in(dir, started_us).map_err(crate::error::write_err(dir))?;
+            std::fs::create_dir_all(dir).map_err(crate::shared::error::write_err(dir))?;
+            let a = ArchiveWriter::create_in(dir, started_us)
+                .map_err(crate::shared::error::write_err(dir))?;
             let (csv, lock) = FolderLock::claim(dir, a.path());
             (Some(a), Some(csv), lock)
         }
@@ -825,7 +830,7 @@ pub fn run_with(
             );
         }
     }
-    let w_marks = opts.dir.as_deref().map(crate::marks::MarksCsv::new);
+    let w_marks = opts.dir.as_deref().map(crate::shared::marks::MarksCsv::new);
     let mut w = Watch {
         opts,
         session,
@@ -862,7 +867,7 @@ pub fn run_with(
     drop(folder_lock);
     result?;
     drained?;
-    let probes = crate::dashboard::probe_rows(&w.live)
+    let probes = crate::live::dashboard::probe_rows(&w.live)
         .into_iter()
         .map(|(_, p)| (p.name.clone(), p.elevation_mm, p.tally.clone()))
         .collect();
@@ -912,7 +917,7 @@ fn main_loop(
         let now = Instant::now();
         if last_draw.is_none_or(|t| now.duration_since(t) >= REDRAW) {
             last_draw = Some(now);
-            term.draw(|f| crate::dashboard::draw(f, &w.live, now))
+            term.draw(|f| crate::live::dashboard::draw(f, &w.live, now))
                 .map_err(|e| HostError::Usage(format!("cannot draw: {e}")))?;
         }
         while event::poll(Duration::ZERO).unwrap_or(false) {
@@ -936,14 +941,14 @@ fn main_loop(
                     let next = w.live.devices.iter().next().map_or(w.runs, |(id, d)| {
                         w.session.run_tag(d.port, *id as u16).number
                     }) + 1;
-                    w.live.prompt = Some(crate::live::Prompt {
-                        kind: crate::live::PromptKind::RunLabel,
+                    w.live.prompt = Some(crate::live::state::Prompt {
+                        kind: crate::live::state::PromptKind::RunLabel,
                         text: format!("run-{next}"),
                     });
                 }
                 KeyCode::Char('m') => {
-                    w.live.prompt = Some(crate::live::Prompt {
-                        kind: crate::live::PromptKind::MarkNote,
+                    w.live.prompt = Some(crate::live::state::Prompt {
+                        kind: crate::live::state::PromptKind::MarkNote,
                         text: String::new(),
                     });
                 }
@@ -953,7 +958,7 @@ fn main_loop(
                 KeyCode::Char('c') => w.live.strip_view = w.live.strip_view.next(),
                 KeyCode::PageDown | KeyCode::Down => {
                     let step = if k.code == KeyCode::Down { 1 } else { 8 };
-                    let total = crate::dashboard::probe_rows(&w.live).len();
+                    let total = crate::live::dashboard::probe_rows(&w.live).len();
                     w.live.probe_scroll = (w.live.probe_scroll + step).min(total.saturating_sub(1));
                 }
                 KeyCode::PageUp | KeyCode::Up => {

@@ -8,16 +8,15 @@ use std::path::PathBuf;
 pub enum HostError {
     /// The layout file is wrong.
     #[error(transparent)]
-    Layout(#[from] crate::layout::LayoutError),
+    Layout(#[from] crate::shared::layout::LayoutError),
     /// The capture file is wrong.
     #[error(transparent)]
-    Capture(#[from] crate::capture::CaptureError),
-    /// The synthesiser could not run.
-    #[error(transparent)]
-    Synth(#[from] crate::synth::SynthError),
-    /// A report could not be made.
-    #[error(transparent)]
-    Report(#[from] crate::report::ReportError),
+    Capture(#[from] crate::shared::capture::CaptureError),
+    /// A job's own error (the synthesiser's, the report's), with the exit code it asks
+    /// for. Each job converts its error into this one (`impl From<...> for HostError`
+    /// beside the job's error type), so this module names no job.
+    #[error("{0}")]
+    Job(Box<dyn std::error::Error + Send + Sync>, u8),
     /// The layout and capture together make a chain the core cannot run.
     #[error("{}: {source}", file.display())]
     Config {
@@ -44,7 +43,7 @@ impl HostError {
     pub fn exit_code(&self) -> u8 {
         match self {
             HostError::Write { .. } => 1,
-            HostError::Report(e) => e.exit_code(),
+            HostError::Job(_, code) => *code,
             _ => 2,
         }
     }

@@ -11,7 +11,7 @@
 //! ```
 //!
 //! The chain is built from the same configuration `frothline replay` derives from the layout
-//! ([`crate::rig::chain_config`]), so a run over the whole capture gives exactly replay's
+//! ([`crate::shared::rig::chain_config`]), so a run over the whole capture gives exactly replay's
 //! records (compare after the wire's quantisation).
 //!
 //! A run plays the capture once from its first frame: [`SimOptions::autostart`] starts one
@@ -26,8 +26,8 @@
 //! `Relearn` re-learns every probe whatever the mask).
 //!
 //! A transient layout (`flow.kind = "transient"`) runs one station chain per station, as
-//! `frothline replay` does ([`crate::transient::station_configs`], a delay ring each,
-//! front-relative windows from [`crate::transient::transient_policy`]); every block goes to
+//! `frothline replay` does ([`crate::offline::transient::station_configs`], a delay ring each,
+//! front-relative windows from [`crate::offline::transient::transient_policy`]); every block goes to
 //! every station chain, and after each push the device drains its windows, its profile
 //! records (kind 0x04, [`frothline_core::ProfileRecord::to_wire`]) and its probe arrivals
 //! (kind 0x03, [`frothline_core::station::ProbeArrival::to_wire`]; probe indices mapped to
@@ -37,12 +37,12 @@
 //! device does not drop samples: it catches up, and the backlog shows in the health frame's
 //! buffer high-water mark.
 
-use crate::error::HostError;
-use crate::layout::Layout;
-use crate::rig::FullRecord as ProbeWindow;
-use crate::rig::{chain_config, Counts, HostChain, ToCounts, HOST_LAGS, MAX_PROBES};
-use crate::transient::{self, StationChain, StationInfo};
-use crate::window_spec::WindowSpec;
+use crate::shared::error::HostError;
+use crate::shared::layout::Layout;
+use crate::shared::rig::FullRecord as ProbeWindow;
+use crate::shared::rig::{chain_config, Counts, HostChain, ToCounts, HOST_LAGS, MAX_PROBES};
+use crate::shared::stations::{self as transient, StationChain, StationInfo};
+use crate::shared::window_spec::WindowSpec;
 use frothline_core::wire::{
     quant, Body, CommandTarget, DeviceDescription, Health, NackReason, ProbeLayout, Reply,
     Responder, RunStart, StartRun, Streamer, StreamerConfig, TrailingTip, WindowResult,
@@ -132,9 +132,9 @@ impl SimCapture {
     ) -> Result<Self, HostError> {
         let layout_text = std::fs::read_to_string(layout).unwrap_or_default();
         let layout_doc = Layout::load(layout)?;
-        let mut cap = crate::capture::Capture::open(capture)?;
+        let mut cap = crate::shared::capture::Capture::open(capture)?;
         layout_doc.check_channels(cap.channels(), layout)?;
-        crate::replay::check_levels_fit(&layout_doc, &cap, layout)?;
+        crate::shared::rig::check_levels_fit(&layout_doc, &cap, layout)?;
         if layout_doc.probes.len() > MAX_PROBES {
             return Err(HostError::Usage(format!(
                 "{}: {} probes, the host handles at most {MAX_PROBES}",
@@ -860,7 +860,7 @@ impl CommandTarget for SimTarget<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::commands::{Command, CommandLog};
+    use crate::shared::commands::{Command, CommandLog};
     use frothline_core::wire::{Decoder, FeedResult, Frame, Kind, MAX_FRAME_BYTES};
 
     fn big_stack<F: FnOnce() + Send + 'static>(f: F) {
@@ -1057,8 +1057,10 @@ mod tests {
     #[test]
     fn a_transient_device_describes_the_window_it_streams() {
         big_stack(|| {
-            let cap =
-                crate::demo::transient_demo_capture(crate::window_spec::WindowSpec::Whole).unwrap();
+            let cap = crate::live::demo::transient_demo_capture(
+                crate::shared::window_spec::WindowSpec::Whole,
+            )
+            .unwrap();
             let fs = cap.sample_rate;
             let t0 = Instant::now();
             let opts = SimOptions {

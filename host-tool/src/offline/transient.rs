@@ -10,7 +10,7 @@
 //! kinds pass through unchanged).
 //!
 //! Output, in the `--out` folder:
-//! - `windows.csv` ([`crate::windows_csv`]) with `since_front_s` filled in;
+//! - `windows.csv` ([`crate::shared::windows_csv`]) with `since_front_s` filled in;
 //! - `profile.csv`: one row per station per slice ([`PROFILE_COLUMNS`]);
 //! - `fronts.csv`: one row per probe ([`FRONT_COLUMNS`]);
 //! - `stations.csv`: one row per station, with the front celerity from the previous
@@ -19,38 +19,32 @@
 //!   velocity and Reynolds number, and the scale-effect caution (the format
 //!   `crate::report::indicators` reads).
 
-use crate::capture::Capture;
-use crate::error::{write_err, HostError};
-use crate::hydraulics;
-use crate::layout::{Layout, Phase};
-use crate::output_set::{Committed, OutputSet};
-use crate::record_levels::{self, LevelRule};
-use crate::replay::{ReplayArgs, ReplayReport};
-use crate::rig::{chain_config, Counts, FullRecord, HostRecord, ToCounts, HOST_LAGS, MAX_PROBES};
-use crate::window_spec::WindowSpec;
-use crate::windows_csv::WindowsCsv;
+use crate::offline::record_levels::{self, LevelRule};
+pub use crate::shared::stations::{
+    is_transient, station_configs, stations, transient_policy, StationChain, StationInfo,
+    DEFAULT_SLICE_S, RING_SAMPLES,
+};
+pub use crate::shared::transient_columns::{FRONT_COLUMNS, PROFILE_COLUMNS, STATION_COLUMNS};
+
+use crate::offline::replay_common::{self as common, ReplayArgs, ReplayReport};
+use crate::shared::capture::Capture;
+use crate::shared::error::{write_err, HostError};
+use crate::shared::hydraulics;
+use crate::shared::layout::Layout;
+use crate::shared::output_set::{Committed, OutputSet};
+use crate::shared::rig::{Counts, FullRecord, HostRecord, MAX_PROBES};
+use crate::shared::window_spec::WindowSpec;
+use crate::shared::windows_csv::WindowsCsv;
 use frothline_core::front::FrontRule;
 use frothline_core::profile::ProfileModel;
-use frothline_core::station::{default_delay_frames, StationArrival};
-use frothline_core::{
-    ChainConfig, ConfigError, FrontRecord, ProfileRecord, StationConfig, WindowPolicy,
-};
+use frothline_core::station::StationArrival;
+use frothline_core::{ChainConfig, ConfigError, FrontRecord, ProfileRecord, WindowPolicy};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
-
-/// Samples of each station chain's delay ring: 64 channels × 1024 frames, or 16 channels
-/// × 4096 frames (the default delay at 40 kHz is 1600 frames).
-pub const RING_SAMPLES: usize = 1 << 16;
-
-/// The chain type of one station.
-pub type StationChain = frothline_core::Chain<MAX_PROBES, HOST_LAGS, RING_SAMPLES>;
 
 /// Flag of stations.csv (and the summary) for a station the front reached before the one
 /// upstream of it.
 pub const REVERSED_ARRIVAL: &str = "arrived_before_upstream_station";
-
-/// Default window (slice) length after the front, s.
-pub const DEFAULT_SLICE_S: f64 = 0.05;
 
 /// Frames read from the capture per block.
 const BLOCK_FRAMES: usize = 1 << 14;
@@ -58,96 +52,6 @@ const BLOCK_FRAMES: usize = 1 << 14;
 /// Stack for the thread that runs the station chains (they are large values, and debug
 /// builds copy them on construction).
 const WORKER_STACK: usize = 64 << 20;
-
-/// Columns of `profile.csv`: the contract of DESIGN.md §3, then extras.
-pub const PROFILE_COLUMNS: &[&str] = &[
-    "station",
-    "slice_start_s",
-    "slice_end_s",
-    "since_front_s",
-    "y90_mm",
-    "depth_averaged_void_fraction",
-    "equivalent_depth_mm",
-    "profile_exponent",
-    "fit_rmse",
-    "probes_used",
-    // extra columns, after the contract
-    "slice",
-    "partial",
-    "power_law_void_fraction",
-    "power_law_diffusivity",
-    "exponential_diffusivity",
-    "exponential_rmse",
-    "exponential_void_fraction",
-    "better_model",
-    "flags",
-    "probes_left_out",
-    "decay_c0",
-    "decay_cf",
-    "decay_tau_s",
-    "decay_tau_star",
-    "decay_rmse",
-    "decay_points",
-    "decay_flags",
-    // the estimate in the contract columns, its standard errors (delta method), the
-    // model-free trapezoid and both joint fits
-    "estimate",
-    "y90_se_mm",
-    "void_fraction_se",
-    "exponent_se",
-    "equivalent_depth_se_mm",
-    "trapezoid_y90_mm",
-    "trapezoid_void_fraction",
-    "trapezoid_equivalent_depth_mm",
-    "trapezoid_void_fraction_se",
-    "power_law_y90_mm",
-    "power_law_chi2",
-    "exponential_y90_mm",
-    "exponential_chi2",
-    "exponential_diffusivity_se",
-    "fit_dof",
-];
-
-/// Columns of `fronts.csv`: the contract, then extras.
-pub const FRONT_COLUMNS: &[&str] = &[
-    "probe",
-    "station",
-    "arrival_s",
-    // extra columns
-    "station_arrival_s",
-    "after_station_s",
-    "confirmed_s",
-    "rule",
-    "false_starts",
-    "elevation_mm",
-    "flags",
-    "confirmed_arrival_s",
-    "first_contact_s",
-];
-
-/// Columns of `stations.csv`.
-pub const STATION_COLUMNS: &[&str] = &[
-    "station",
-    "x_mm",
-    "arrival_s",
-    "origin_s",
-    "first_probe",
-    "probes",
-    "probes_arrived",
-    "celerity_from_previous_m_s",
-    "flags",
-];
-
-/// One station of a layout.
-#[derive(Debug, Clone, PartialEq)]
-pub struct StationInfo {
-    /// Name: `S1`, `S2`, … in increasing `x_mm`.
-    pub name: String,
-    /// Streamwise position, mm.
-    pub x_mm: f64,
-    /// Layout probe indices, bottom up (the chain's probe order).
-    pub probes: Vec<usize>,
-}
 
 /// A front record with the probe index mapped to the layout's.
 #[derive(Debug, Clone, PartialEq)]
@@ -184,88 +88,6 @@ pub struct TransientRun {
     /// Where each layout probe's leading-tip levels came from (`windows.csv`
     /// `levels_from`; empty when not known).
     pub levels_from: Vec<Option<&'static str>>,
-}
-
-/// The front-relative policy for `spec` at `sample_rate`: fixed durations count from the
-/// front, `whole` becomes [`DEFAULT_SLICE_S`] windows from the front, other kinds pass.
-pub fn transient_policy(
-    spec: &WindowSpec,
-    sample_rate: u32,
-    layout: &Layout,
-) -> Result<WindowPolicy, String> {
-    let by_name = |name: &str| layout.probes.iter().position(|p| p.name == name);
-    Ok(match spec.policy(sample_rate, by_name)? {
-        WindowPolicy::Whole => WindowPolicy::AfterFront {
-            frames: ((DEFAULT_SLICE_S * sample_rate as f64).round() as u32).max(1),
-        },
-        WindowPolicy::Frames(frames) => WindowPolicy::AfterFront { frames },
-        other => other,
-    })
-}
-
-/// The stations of `layout`, named `S1`, `S2`, … in increasing `x_mm`.
-pub fn stations(layout: &Layout) -> Vec<StationInfo> {
-    layout
-        .stations()
-        .into_iter()
-        .enumerate()
-        .map(|(i, (x_mm, probes))| StationInfo {
-            name: format!("S{}", i + 1),
-            x_mm,
-            probes,
-        })
-        .collect()
-}
-
-/// The chain configuration of every station (same channels, detector and window for all).
-pub fn station_configs(
-    layout: &Layout,
-    channels: usize,
-    sample_rate: u32,
-    policy: WindowPolicy,
-    units: &dyn ToCounts,
-) -> Result<Vec<(StationInfo, ChainConfig<MAX_PROBES>)>, ConfigError> {
-    let fs = sample_rate as f32;
-    let before_air = layout.flow.phase_before_front == Phase::Air;
-    let mut out = Vec::new();
-    for st in stations(layout) {
-        if st.probes.len() > MAX_PROBES {
-            return Err(ConfigError::BadStation);
-        }
-        // The station's probes as a layout of their own: the one unit conversion of
-        // `rig::chain_config`, applied to them.
-        let mut sub = layout.clone();
-        sub.probes = st
-            .probes
-            .iter()
-            .map(|&i| layout.probes[i].clone())
-            .collect();
-        // (Validated there without the station, so with a whole-record window; the policy
-        // and the station are set below and checked again when the chain is built.)
-        let mut cfg = chain_config(&sub, channels, sample_rate, WindowPolicy::Whole, units)?;
-        cfg.window = policy;
-        let mut station = StationConfig::new(fs, before_air);
-        station.reference_depth_m = layout.flow.reference_depth_m.map_or(f32::NAN, |d| d as f32);
-        // The delay: the default, within what the ring holds for this channel count.
-        let room = (RING_SAMPLES / channels.max(1)).saturating_sub(1) as u32;
-        station.delay_frames = default_delay_frames(&station.front).min(room).max(1);
-        for &i in &st.probes {
-            let _ = station
-                .elevations_mm
-                .push(layout.probes[i].elevation_mm as f32);
-        }
-        if let WindowPolicy::Bubbles { probe, .. } = &mut cfg.window {
-            // The reference probe, if it is in this station; else the station's lowest.
-            *probe = st
-                .probes
-                .iter()
-                .position(|&i| i == *probe as usize)
-                .unwrap_or(0) as u8;
-        }
-        cfg.station = Some(station);
-        out.push((st, cfg));
-    }
-    Ok(out)
 }
 
 struct Running {
@@ -454,7 +276,7 @@ pub fn replay_samples(
 }
 
 /// A transient replay of a capture file.
-/// `rule` says how tips without fixed levels get them (see [`crate::record_levels`]).
+/// `rule` says how tips without fixed levels get them (see [`crate::offline::record_levels`]).
 pub fn replay_capture(
     capture: &Path,
     layout_path: &Path,
@@ -477,14 +299,14 @@ pub fn replay_capture_to_cut(
 ) -> Result<(TransientRun, Capture), HostError> {
     let layout = Layout::load(layout_path)?;
     let mut cap = Capture::open(capture)?;
-    crate::replay::require_frames(&cap)?;
+    crate::shared::rig::require_frames(&cap)?;
     cap.end_at_cut();
     layout.check_channels(cap.channels(), layout_path)?;
-    crate::replay::check_levels_fit(&layout, &cap, layout_path)?;
+    crate::shared::rig::check_levels_fit(&layout, &cap, layout_path)?;
     let mut run = replay_open(&mut cap, &layout, layout_path, window, rule, full)?;
     let (abrupt, last) = (cap.ends_abruptly(), cap.position());
     for w in &mut run.windows {
-        crate::replay::mark_cut(w, abrupt, last);
+        common::mark_cut(w, abrupt, last);
     }
     Ok((run, cap))
 }
@@ -526,15 +348,15 @@ fn replay_open(
             min_swing = cfg.detector.min_swing;
         }
         let l = record_levels::learn(cap.path(), &tips, min_swing)?;
-        crate::replay::report_unlearnt(&l, layout, min_swing);
+        common::report_unlearnt(&l, layout, min_swing);
         for (_, cfg) in configs.iter_mut() {
             l.apply(cfg);
         }
         learnt = Some(l);
     }
     for (_, cfg) in &configs {
-        crate::replay::period_rule(
-            crate::replay::check_learn_period(cfg, layout, fs, layout_path),
+        common::period_rule(
+            crate::shared::rig::check_learn_period(cfg, layout, fs, layout_path),
             rule,
         )?;
     }
@@ -544,7 +366,7 @@ fn replay_open(
         })
         .map_err(|e| e.into_host(layout_path))
     })?;
-    run.levels_from = crate::replay::levels_sources(layout, learnt.as_ref());
+    run.levels_from = common::levels_sources(layout, learnt.as_ref());
     Ok(run)
 }
 
@@ -997,7 +819,7 @@ pub fn write_output_set(
         source: e.into(),
     };
     let mut csv = WindowsCsv::new(std::io::BufWriter::new(file)).map_err(csv_err)?;
-    let meta = crate::replay::probe_meta_with(&run.layout, &run.levels_from);
+    let meta = common::probe_meta_with(&run.layout, &run.levels_from);
     for w in &run.windows {
         let since = w.since_front.map(|f| run.secs(f as f64));
         let p = w.probe as usize;
@@ -1177,11 +999,7 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
         let _ = writeln!(s, "caution: {c}");
     }
     let records: Vec<_> = run.windows.clone();
-    s.push_str(&crate::replay::probe_table(
-        &run.layout,
-        run.sample_rate,
-        &records,
-    ));
+    s.push_str(&common::probe_table(&run.layout, run.sample_rate, &records));
     if let Some(f) = files {
         let _ = writeln!(
             s,
@@ -1227,19 +1045,19 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
             text.push_str(&note);
             text.push('\n');
         }
-        crate::stdout::print(&text);
+        crate::shared::stdout::print(&text);
     }
     let report = ReplayReport {
         layout: run.layout.clone(),
         sample_rate: run.sample_rate,
         frames: run.frames,
         records: run.windows.clone(),
-        totals: crate::run_summary::RunTotals::of(run.layout.probes.len(), &run.windows),
-        tallies: crate::replay::probe_tallies(
+        totals: crate::offline::run_summary::RunTotals::of(run.layout.probes.len(), &run.windows),
+        tallies: common::probe_tallies(
             &run.layout,
             run.sample_rate,
             &run.windows,
-            &crate::probe_summary::SummaryRule::default(),
+            &crate::shared::probe_summary::SummaryRule::default(),
         ),
         windows_csv: files.windows.clone(),
         abrupt_end,
@@ -1252,9 +1070,4 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
         }
     }
     Ok((run, report))
-}
-
-/// True if `layout` is a transient layout (replayed by this module).
-pub fn is_transient(layout: &Layout) -> bool {
-    layout.flow.kind == crate::layout::FlowKind::Transient
 }

@@ -3,7 +3,7 @@
 //! into the layout.
 //!
 //! Per tip it measures the air and water levels (the record rule of
-//! [`crate::record_levels`] over the segment), the noise of each phase (the standard
+//! [`crate::offline::record_levels`] over the segment), the noise of each phase (the standard
 //! deviation of the samples within a quarter of the swing of its level), the swing, and
 //! the interface
 //! times: the median time from 10 % to 90 % of the swing for a tip that dries (water to
@@ -23,10 +23,10 @@
 //! and key order stay; a probe's shared pair (`air_level` / `water_level`) is replaced by
 //! the two tips' own pairs in its place.
 
-use crate::capture::Capture;
-use crate::error::{write_err, HostError};
-use crate::layout::Layout;
-use crate::record_levels::{from_histogram, TipOutcome};
+use crate::offline::record_levels::{from_histogram, TipOutcome};
+use crate::shared::capture::Capture;
+use crate::shared::error::{write_err, HostError};
+use crate::shared::layout::Layout;
 use frothline_core::levels::LEARN_STRIDE;
 use frothline_core::Polarity;
 use std::fmt::Write as _;
@@ -96,7 +96,7 @@ pub struct TipcheckReport {
 /// Run the check (and the write, if asked).
 pub fn run(args: &TipcheckArgs) -> Result<TipcheckReport, HostError> {
     let report = check(args)?;
-    crate::stdout::print(&table(&report));
+    crate::shared::stdout::print(&table(&report));
     if args.write {
         let text = std::fs::read_to_string(&args.layout).map_err(|e| {
             HostError::Usage(format!("{}: cannot read: {e}", args.layout.display()))
@@ -109,7 +109,7 @@ pub fn run(args: &TipcheckArgs) -> Result<TipcheckReport, HostError> {
         let tmp = args.layout.with_extension("toml.partial");
         std::fs::write(&tmp, &out).map_err(write_err(&tmp))?;
         std::fs::rename(&tmp, &args.layout).map_err(write_err(&args.layout))?;
-        crate::stdout::println(&format!("wrote the levels into {}", args.layout.display()));
+        crate::shared::stdout::println(&format!("wrote the levels into {}", args.layout.display()));
     }
     Ok(TipcheckReport {
         written: args.write,
@@ -237,7 +237,7 @@ pub fn check(args: &TipcheckArgs) -> Result<TipcheckReport, HostError> {
 /// A level in counts back in the file's units (the inverse of the capture's conversion,
 /// to the file's resolution).
 fn counts_to_file(cap: &Capture, counts: f64) -> f64 {
-    use crate::capture::SampleFormat;
+    use crate::shared::capture::SampleFormat;
     match cap.format() {
         SampleFormat::Int { bits: 8 } => counts / 256.0 + 128.0,
         SampleFormat::Int { bits: 16 } => counts,

@@ -4,7 +4,7 @@
 //! replay needs does not grow with the length of the capture or the number of windows: one
 //! fixed-size accumulator per probe (the chord statistics merge into a fixed histogram).
 
-use crate::rig::HostRecord;
+use crate::shared::rig::HostRecord;
 use frothline_core::chord::ChordStats;
 use frothline_core::Flags;
 

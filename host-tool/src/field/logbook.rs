@@ -2,7 +2,7 @@
 //! of what the log held.
 //!
 //! ```text
-//! image file -> geometry (given, or detected: crate::flash_image) -> Logbook records
+//! image file -> geometry (given, or detected: crate::field::flash_image) -> Logbook records
 //!            -> each record (a wire frame; 0x00 delimiter added when missing)
 //!            -> Session (one link) -> windows.csv, fronts.csv, profile.csv
 //! ```
@@ -10,11 +10,11 @@
 //! The records go through the same [`Session`] as `frothline watch` and `frothline unpack`,
 //! so the CSV files have the same columns and values as those of a live session.
 
-use crate::commands::kind_name;
-use crate::error::HostError;
-use crate::flash_image::{self, Candidate, Geometry, LogRead, PAGE_SIZES, WRITE_UNITS};
-use crate::layout::Layout;
-use crate::session::{Session, SessionOptions, SessionReport};
+use crate::field::flash_image::{self, Candidate, Geometry, LogRead, PAGE_SIZES, WRITE_UNITS};
+use crate::shared::commands::kind_name;
+use crate::shared::error::HostError;
+use crate::shared::layout::Layout;
+use crate::shared::session::{Session, SessionOptions, SessionReport};
 use frothline_core::logbook::{LogError, MAX_PAGES, MAX_RECORD_BYTES, MAX_WRITE_UNIT};
 use frothline_core::wire::{Decoder, FeedResult};
 use std::collections::BTreeMap;
@@ -404,7 +404,7 @@ impl std::fmt::Display for LogbookReport {
 pub fn run(args: &LogbookArgs) -> Result<LogbookReport, HostError> {
     let report = read_image(args)?;
     if !args.quiet {
-        crate::stdout::print(&report.to_string());
+        crate::shared::stdout::print(&report.to_string());
     }
     Ok(report)
 }

@@ -3,11 +3,14 @@
 //! The one place where physical units of the layout (seconds, file units) become the core's
 //! frames and i16 counts, so replay and the simulated device build identical chains.
 
-use crate::layout::{Layout, Phase};
+use crate::shared::capture::{Capture, CaptureError};
+use crate::shared::error::HostError;
+use crate::shared::layout::{Layout, Phase};
 use frothline_core::{
     ChainConfig, ConfigError, DetectorConfig, LevelSource, Polarity, ProbeConfig, TipConfig,
     WindowPolicy,
 };
+use std::path::Path;
 
 /// Most probes a host chain holds (a station array of 16 dual-tip probes is 32 channels).
 pub const MAX_PROBES: usize = 16;
@@ -33,9 +36,9 @@ pub trait ToCounts {
     fn to_counts(&self, file_units: f64) -> f64;
 }
 
-impl ToCounts for crate::capture::Capture {
+impl ToCounts for crate::shared::capture::Capture {
     fn to_counts(&self, v: f64) -> f64 {
-        crate::capture::Capture::to_counts(self, v)
+        crate::shared::capture::Capture::to_counts(self, v)
     }
 }
 
@@ -101,7 +104,7 @@ pub fn chain_config(
     let mut cfg = ChainConfig::new(channels as u8, window);
     cfg.detector = detector;
     cfg.initial_air = layout.flow.phase_before_front == Phase::Air
-        && layout.flow.kind == crate::layout::FlowKind::Transient;
+        && layout.flow.kind == crate::shared::layout::FlowKind::Transient;
     for p in &layout.probes {
         let polarity = if p.air_is_high {
             Polarity::AirHigh
@@ -130,4 +133,69 @@ pub fn chain_config(
     }
     cfg.validate()?;
     Ok(cfg)
+}
+
+/// Tips that learn their levels during the record (the device's rule, or the tips the
+/// record rule could not give levels) need a learning period of at least 64 frames to fill
+/// its histogram: a shorter one (`learn_period_s = 1e-9`, or a 1 Hz file) is refused,
+/// with the key, the value and the frames it makes at the capture's rate.
+pub fn check_learn_period(
+    cfg: &frothline_core::ChainConfig<{ crate::shared::rig::MAX_PROBES }>,
+    layout: &Layout,
+    sample_rate: u32,
+    layout_path: &Path,
+) -> Result<(), HostError> {
+    let learning = cfg.probes.iter().any(|p| {
+        core::iter::once(&p.leading)
+            .chain(p.trailing.as_ref())
+            .any(|t| t.levels == frothline_core::LevelSource::Learnt)
+    });
+    let period = layout.detector.learn_period_s;
+    let frames = period * sample_rate as f64;
+    if learning && frames < 64.0 {
+        return Err(HostError::Usage(format!(
+            "{}: key `detector.learn_period_s`: {period} s is {frames:.3e} frames at \
+             {sample_rate} Hz, but a learning period must hold at least 64 frames ({:.4} s \
+             at this rate) to fill its histogram; give a longer period, or fix the tips' \
+             levels in the layout",
+            layout_path.display(),
+            64.0 / sample_rate.max(1) as f64
+        )));
+    }
+    Ok(())
+}
+
+/// The layout's fixed levels must lie inside the capture's sample range.
+pub fn check_levels_fit(
+    layout: &Layout,
+    cap: &Capture,
+    layout_path: &Path,
+) -> Result<(), HostError> {
+    let format = cap.format();
+    layout.check_levels(format.full_scale(), &format.to_string(), layout_path)?;
+    Ok(())
+}
+
+/// A capture with no complete frame is refused: there is nothing to replay, and a summary
+/// of no samples would be all NaN.
+///
+/// A capture wider than the core's [`MAX_CHANNELS`](frothline_core::MAX_CHANNELS) is
+/// refused here too, naming the capture and its true channel count.
+pub fn require_frames(cap: &Capture) -> Result<(), HostError> {
+    if cap.channels() > frothline_core::MAX_CHANNELS {
+        return Err(CaptureError::TooManyChannels {
+            path: cap.path().to_path_buf(),
+            channels: cap.channels(),
+            max: frothline_core::MAX_CHANNELS,
+        }
+        .into());
+    }
+    if cap.frames_in_file() == 0 {
+        return Err(CaptureError::NoFrames {
+            path: cap.path().to_path_buf(),
+            channels: cap.channels(),
+        }
+        .into());
+    }
+    Ok(())
 }

@@ -4,7 +4,7 @@
 //! Columns: `run_number`, `run_label`, `host_utc` (ISO 8601), `device_time_s` (the end of
 //! the latest window received, empty before any), `note`.
 
-use crate::error::{write_err, HostError};
+use crate::shared::error::{write_err, HostError};
 use std::fs::File;
 use std::io::BufWriter;
 use std::path::{Path, PathBuf};

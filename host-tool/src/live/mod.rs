@@ -1,0 +1,20 @@
+//! The live link: framed results from probe devices over serial ports, on screen and on
+//! disk as they arrive.
+//!
+//! ```text
+//! serial ports (ports) -> watch: one reader thread per port -> shared::session
+//!   (archive first, then frames -> CSV files) -> events -> state (what the view knows)
+//!   -> dashboard (ratatui)
+//! commands (StartRun, SetWindow, ...) -> shared::commands -> ports
+//! device_sim: the core's chain on a capture in real time, framed like firmware; demo and
+//!   simulate run it on a pseudo-terminal (demo watches the other end)
+//! unpack: a session archive -> shared::session -> the same CSV files, with a link report
+//! ```
+pub mod dashboard;
+pub mod demo;
+pub mod device_sim;
+pub mod ports;
+pub mod session_time;
+pub mod state;
+pub mod unpack;
+pub mod watch;

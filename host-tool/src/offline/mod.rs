@@ -1,0 +1,23 @@
+//! The offline path: a recorded capture (WAV + layout) through the same core the devices
+//! run, into CSV files.
+//!
+//! ```text
+//! layout.toml + capture.wav (shared::layout, shared::capture)
+//!   -> record_levels: every tip's air and water levels learnt from the whole record
+//!   -> shared::rig: the core's chain configuration (frames, i16 counts)
+//!   -> replay: one core chain over the capture          (steady layouts)
+//!      transient: one core chain per station, windows from each station's front
+//!      (replay hands transient layouts to transient; both use replay_common)
+//!   -> windows.csv (+ profile.csv, fronts.csv, stations.csv, flow.json), written as one
+//!      output set (shared::output_set), summary table from running totals (run_summary)
+//! ensemble: repeated transient runs of one rig, aligned on the front, combined
+//! tipcheck: every tip's levels, noise and swing on a segment, written into the layout
+//! ```
+pub mod discharge;
+pub mod ensemble;
+pub mod record_levels;
+pub mod replay;
+pub mod replay_common;
+pub mod run_summary;
+pub mod tipcheck;
+pub mod transient;
