@@ -164,7 +164,7 @@ impl DerivedFigure<'_> {
         area: &DrawingArea<DB, Shift>,
         s: &Sizes,
         tag: &Tagger,
-        title: &str,
+        (key, title): (&str, &str),
         x_desc: &str,
         y_desc: &str,
         pts: &[(usize, f64, f64)],
@@ -203,7 +203,7 @@ impl DerivedFigure<'_> {
             .draw()?;
         let r = s.marker() + 1;
         for &(p, x, y) in pts {
-            tag.begin(area, &format!("{}-{}", title, self.data.probes[p].name))?;
+            tag.begin(area, &format!("{key}-{}", self.data.probes[p].name))?;
             chart.draw_series([marker_element(
                 (x, y),
                 probe_marker(p),
@@ -243,7 +243,7 @@ impl Figure for DerivedFigure<'_> {
             &panels[0],
             s,
             tag,
-            "a = 4F/V",
+            ("a", "a = 4F/V"),
             "specific interfacial area a (1/m)",
             elev,
             &a,
@@ -268,7 +268,7 @@ impl Figure for DerivedFigure<'_> {
             &panels[1],
             s,
             tag,
-            "d = 1.5CV/F; chord lengths",
+            ("d", "d = 1.5CV/F; chord lengths"),
             "d (markers), chord median to p90 (bars) (mm)",
             elev,
             &d,
@@ -294,7 +294,7 @@ impl Figure for DerivedFigure<'_> {
             &panels[2],
             s,
             tag,
-            &title,
+            ("q", &title),
             "(1 − C) V blue, C V orange (m/s)",
             elev,
             &[],
@@ -326,7 +326,7 @@ impl Figure for DerivedFigure<'_> {
             &panels[3],
             s,
             tag,
-            "Clusters; random (rings)",
+            ("clusters", "Clusters; random (rings)"),
             "void fraction C",
             "bubbles in clusters (fraction)",
             &cl.iter().map(|c| (c.0, c.1, c.2)).collect::<Vec<_>>(),
