@@ -62,6 +62,21 @@ fn window_json(w: &WindowResult) -> Value {
     })
 }
 
+fn tip_json(t: &frothline_core::wire::TipState) -> Value {
+    json!({
+        "levels": t.levels.map(|l| json!({"air": l.air, "water": l.water})),
+        "interfaces": t.interfaces, "bubbles": t.bubbles,
+        "void_fraction": t.void_fraction, "flags": t.flags,
+    })
+}
+
+fn tip_report_json(r: &frothline_core::wire::TipReport) -> Value {
+    json!({
+        "probe": r.probe, "start": r.start, "frames": r.frames,
+        "leading": tip_json(&r.leading), "trailing": r.trailing.as_ref().map(tip_json),
+    })
+}
+
 /// The Rust verdict on one frame (`frame` = its bytes with the delimiter).
 fn case(frame: &[u8]) -> Value {
     let mut dec: Decoder = Decoder::new();
@@ -75,6 +90,9 @@ fn case(frame: &[u8]) -> Value {
                                "seq": frame.seq});
             if let Body::Windows(ws) = &frame.body {
                 v["windows"] = Value::Array(ws.iter().map(window_json).collect());
+            }
+            if let Body::TipHealth(ts) = &frame.body {
+                v["tips"] = Value::Array(ts.iter().map(tip_report_json).collect());
             }
             v
         }

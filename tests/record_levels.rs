@@ -208,7 +208,7 @@ fn levels_follow_a_slow_drift() {
     let levels: Vec<f64> = r
         .records()
         .map(|x| x.unwrap())
-        .filter(|x| &x[p] == "A")
+        .filter(|x| &x[p] == "bed")
         .map(|x| x[air].parse().unwrap())
         .collect();
     assert_eq!(levels.len(), 6);

@@ -9,8 +9,9 @@ use frothline_core::wire::{
     self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, Decoder,
     DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, Nack, NackReason,
     ProbeLayout, ProfileFit, Relearn, RunStart, SeqCheck, SetLevels, StartRun, Streamer,
-    StreamerConfig, TrailingTip, WindowResult, WindowSetting, Windows, LABEL_BYTES,
-    MAX_FRAME_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME,
+    StreamerConfig, TipHealth, TipLevels, TipReport, TipState, TrailingTip, WindowResult,
+    WindowSetting, Windows, LABEL_BYTES, MAX_FRAME_BYTES, MAX_PROBES, MAX_TIPS_PER_FRAME,
+    MAX_WINDOWS_PER_FRAME,
 };
 use proptest::prelude::*;
 use rand::rngs::StdRng;
@@ -282,7 +283,57 @@ fn sample_frames() -> Vec<Frame> {
                 .collect(),
             ),
         ),
+        dev(308, Body::TipHealth(sample_tip_health())),
     ]
+}
+
+/// Tip health of two probes: a dual-tip probe switching (levels 25100 / -3000, 18
+/// interfaces, 9 bubbles, C 0.3 on the leading tip), and a single-tip probe that has not
+/// learnt its levels and sits in one phase (flags stuck | levels_not_learnt).
+fn sample_tip_health() -> TipHealth {
+    let tip = |levels, interfaces, bubbles, void_fraction, flags| TipState {
+        levels,
+        interfaces,
+        bubbles,
+        void_fraction,
+        flags,
+    };
+    let mut v = TipHealth::new();
+    v.push(TipReport {
+        probe: 0,
+        start: 40_000,
+        frames: 4_000,
+        leading: tip(
+            Some(TipLevels {
+                air: 25_100,
+                water: -3_000,
+            }),
+            18,
+            9,
+            3_000,
+            0,
+        ),
+        trailing: Some(tip(
+            Some(TipLevels {
+                air: 24_000,
+                water: -2_500,
+            }),
+            16,
+            8,
+            2_900,
+            0,
+        )),
+    })
+    .unwrap();
+    v.push(TipReport {
+        probe: 1,
+        start: 40_000,
+        frames: 4_000,
+        leading: tip(None, 0, 0, 0, 0b11),
+        trailing: None,
+    })
+    .unwrap();
+    v
 }
 
 /// The largest instance of every kind: every varint at its longest, every option set,
@@ -427,6 +478,30 @@ fn largest_frames() -> Vec<Frame> {
             )
             .collect(),
         )),
+        f(Body::TipHealth({
+            let tip = TipState {
+                levels: Some(TipLevels {
+                    air: i16::MIN,
+                    water: i16::MIN,
+                }),
+                interfaces: u32::MAX,
+                bubbles: u32::MAX,
+                void_fraction: u16::MAX,
+                flags: u32::MAX,
+            };
+            let r = TipReport {
+                probe: u8::MAX,
+                start: u64::MAX,
+                frames: u32::MAX,
+                leading: tip,
+                trailing: Some(tip),
+            };
+            let mut v = TipHealth::new();
+            for _ in 0..MAX_TIPS_PER_FRAME {
+                v.push(r).unwrap();
+            }
+            v
+        })),
     ]
 }
 

@@ -116,6 +116,10 @@ fn dispatch(command: Command) -> Result<(), HostError> {
         Command::Logbook(a) => crate::field::logbook::run(&a).map(|_| ()),
         Command::Report(a) => crate::report::run(&a).map(|_| ()).map_err(HostError::from),
         Command::Ensemble(a) => crate::offline::ensemble::run(&a).map(|_| ()),
-        Command::Tipcheck(a) => crate::offline::tipcheck::run(&a).map(|_| ()),
+        // A live device (`--port`) or a capture segment.
+        Command::Tipcheck(a) => match a.port.clone() {
+            Some(port) => crate::live::tipcheck_live::run(&a, &port).map(|_| ()),
+            None => crate::offline::tipcheck::run(&a).map(|_| ()),
+        },
     }
 }

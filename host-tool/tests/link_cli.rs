@@ -61,7 +61,7 @@ fn a_short_demo_writes_an_archive_that_unpacks_to_the_same_csv() {
     assert!(text.contains("Near fast water"), "the safety line");
     assert!(text.contains("ACK start-run"));
     assert!(text.contains("lost 0, CRC failures 0"));
-    assert!(text.contains(" probe A "));
+    assert!(text.contains(" probe bed "));
     let archive = std::fs::read_dir(&dir)
         .unwrap()
         .map(|e| e.unwrap().path())

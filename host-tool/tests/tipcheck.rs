@@ -40,7 +40,11 @@ fn capture(dir: &Path, scenario: &Scenario) -> Generator {
 
 fn args(dir: &Path, layout: &Path) -> TipcheckArgs {
     TipcheckArgs {
-        capture: dir.join("capture.wav"),
+        capture: Some(dir.join("capture.wav")),
+        port: None,
+        baud: 115_200,
+        listen: 5.0,
+        set_levels: false,
         layout: layout.to_path_buf(),
         from: 0.0,
         to: None,

@@ -8,11 +8,11 @@ what runs; the second decoder is decode_frames.py beside this file (the live-por
 Input, one JSON object per line on standard input:
 
     {"hex": "<the bytes between two delimiters>", "rust": "frame" | "unsupported" |
-     "rejected", "code": <kind code>, "seq": <n>, "windows": [<window results>]?}
+     "rejected", "code": <kind code>, "seq": <n>, "windows": [<window results>]?, "tips": [<tip reports>]?}
 
 For every line both decoders must reach the Rust verdict (accept as a frame of that kind
 and seq, skip as unsupported, or reject), and for a Windows frame decode the same window
-results (integers of the wire). Output: one JSON summary line; exit 1 on any mismatch.
+results (integers of the wire), for a TipHealth frame the same tip reports. Output: one JSON summary line; exit 1 on any mismatch.
 
     python3 check_decoders.py < cases.jsonl
 """
@@ -82,6 +82,8 @@ def main():
                 ok = got[1] == case["code"] and got[2] == case["seq"]
             if ok and want == "frame" and "windows" in case:
                 ok = got[3] == case["windows"]
+            if ok and want == "frame" and "tips" in case:
+                ok = got[3] == case["tips"]
             if not ok:
                 counts["mismatches"] += 1
                 if shown < 10:

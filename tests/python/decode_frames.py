@@ -195,6 +195,17 @@ def profile(c):
             "equivalent_depth_se": c.opt(lambda: u16(c))}
 
 
+def tip_state(c):
+    return {"levels": c.opt(lambda: {"air": c.svar(16), "water": c.svar(16)}),
+            "interfaces": u32(c), "bubbles": u32(c), "void_fraction": u16(c),
+            "flags": u32(c)}
+
+
+def tip_report(c):
+    return {"probe": c.byte(), "start": u64(c), "frames": u32(c),
+            "leading": tip_state(c), "trailing": c.opt(lambda: tip_state(c))}
+
+
 def empty(c):
     return None
 
@@ -216,6 +227,7 @@ KINDS = {
     0x05: ("health", health),
     0x06: ("run_start", run_start),
     0x08: ("derived", lambda c: c.seq(lambda: derived_result(c), 8)),
+    0x09: ("tip_health", lambda c: c.seq(lambda: tip_report(c), 6)),
     0x20: ("start_run", lambda c: {"label": c.text(16), "utc_ms": c.opt(lambda: u64(c))}),
     0x21: ("stop_run", empty),
     0x22: ("set_window", window_setting),

@@ -17,6 +17,7 @@
 //! postcard's variant index (a varint, in declaration order): their variants may only be
 //! appended.
 
+use crate::wire::tip_health::TipHealth;
 use crate::wire::{LABEL_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME, PROTOCOL_VERSION};
 use heapless::{String, Vec};
 use postcard::experimental::max_size::MaxSize;
@@ -73,6 +74,9 @@ pub enum Kind {
     RunStart = 0x06,
     /// [`DerivedBatch`](crate::wire::DerivedBatch): derived figures of window results.
     Derived = 0x08,
+    /// [`TipHealth`]: per tip, the levels in use, interfaces and void fraction of its
+    /// latest window.
+    TipHealth = 0x09,
     /// Command [`StartRun`].
     StartRun = 0x20,
     /// Command: stop the run (no body).
@@ -93,7 +97,7 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 15] = [
+    pub const ALL: [Kind; 16] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
@@ -101,6 +105,7 @@ impl Kind {
         Kind::Health,
         Kind::RunStart,
         Kind::Derived,
+        Kind::TipHealth,
         Kind::StartRun,
         Kind::StopRun,
         Kind::SetWindow,
@@ -126,6 +131,7 @@ impl Kind {
             0x05 => Kind::Health,
             0x06 => Kind::RunStart,
             0x08 => Kind::Derived,
+            0x09 => Kind::TipHealth,
             0x20 => Kind::StartRun,
             0x21 => Kind::StopRun,
             0x22 => Kind::SetWindow,
@@ -203,6 +209,8 @@ pub enum Body {
     RunStart(RunStart),
     /// Derived figures of window results (1 to [`MAX_WINDOWS_PER_FRAME`]).
     Derived(crate::wire::DerivedBatch),
+    /// Tip health of some probes.
+    TipHealth(TipHealth),
     /// Command: start a run.
     StartRun(StartRun),
     /// Command: stop the run.
@@ -232,6 +240,7 @@ impl Body {
             Body::Health(_) => Kind::Health,
             Body::RunStart(_) => Kind::RunStart,
             Body::Derived(_) => Kind::Derived,
+            Body::TipHealth(_) => Kind::TipHealth,
             Body::StartRun(_) => Kind::StartRun,
             Body::StopRun => Kind::StopRun,
             Body::SetWindow(_) => Kind::SetWindow,

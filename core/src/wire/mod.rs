@@ -32,6 +32,7 @@ pub mod frame;
 pub mod quant;
 pub mod responder;
 pub mod streamer;
+pub mod tip_health;
 
 pub use codec::{crc32, decode, decode_unstuffed, encode, WireError};
 pub use decoder::{Decoder, DecoderStats, DeviceSeqStats, FeedResult, SeqCheck};
@@ -43,6 +44,7 @@ pub use frame::{
 };
 pub use responder::{Command, CommandTarget, Reply, Responder, ResponderStats};
 pub use streamer::{Offer, Streamer, StreamerConfig, StreamerStats};
+pub use tip_health::{TipBook, TipHealth, TipLevels, TipReport, TipState, MAX_TIPS_PER_FRAME};
 
 use postcard::experimental::max_size::MaxSize;
 
@@ -85,6 +87,7 @@ pub const MAX_BODY_BYTES: usize = {
     m = max(m, Health::POSTCARD_MAX_SIZE);
     m = max(m, RunStart::POSTCARD_MAX_SIZE);
     m = max(m, DerivedBatch::POSTCARD_MAX_SIZE);
+    m = max(m, TipHealth::POSTCARD_MAX_SIZE);
     m = max(m, StartRun::POSTCARD_MAX_SIZE);
     m = max(m, WindowSetting::POSTCARD_MAX_SIZE);
     m = max(m, Relearn::POSTCARD_MAX_SIZE);

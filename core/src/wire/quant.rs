@@ -62,6 +62,11 @@ pub fn fraction(x: f32) -> u16 {
     unsigned(x, FRACTION_SCALE) as u16
 }
 
+/// A level in ADC counts -> whole counts (rounded half away from zero, saturating).
+pub fn counts(x: f32) -> i16 {
+    signed(x, 1.0) as i16
+}
+
 /// 1e-4 steps -> fraction.
 pub fn from_fraction(q: u16) -> f32 {
     q as f32 / FRACTION_SCALE
@@ -267,6 +272,42 @@ impl ProbeArrival {
     }
 }
 
+// ---------------------------------------------------------------------------------------
+// Tip health (kind 0x09) from window records
+// ---------------------------------------------------------------------------------------
+
+impl crate::wire::tip_health::TipState {
+    /// The state of a tip from its window statistics.
+    pub fn from_stats(t: &crate::record::TipStats) -> Self {
+        crate::wire::tip_health::TipState {
+            levels: t.levels.map(|l| crate::wire::tip_health::TipLevels {
+                air: counts(l.air),
+                water: counts(l.water),
+            }),
+            interfaces: t.bubbles.saturating_add(t.droplets),
+            bubbles: t.bubbles,
+            void_fraction: fraction(t.void_fraction().unwrap_or(0.0)),
+            flags: t.flags.0,
+        }
+    }
+}
+
+impl crate::wire::tip_health::TipReport {
+    /// The report of a window record.
+    pub fn from_probe_window<const L: usize>(r: &crate::record::ProbeWindow<L>) -> Self {
+        crate::wire::tip_health::TipReport {
+            probe: r.probe,
+            start: r.start,
+            frames: u32::try_from(r.end.saturating_sub(r.start)).unwrap_or(u32::MAX),
+            leading: crate::wire::tip_health::TipState::from_stats(&r.lead),
+            trailing: r
+                .trail
+                .as_ref()
+                .map(crate::wire::tip_health::TipState::from_stats),
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -291,5 +332,44 @@ mod tests {
         assert_eq!(spacing(6.0), 600);
         assert_eq!(sample_rate(20_000.0), 20_000_000);
         assert!((from_sample_rate(20_000_000) - 20_000.0).abs() < 1e-3);
+    }
+
+    #[test]
+    fn a_tip_state_counts_both_interfaces_and_rounds_its_levels() {
+        let t = crate::record::TipStats {
+            frames: 10_000,
+            air_frames: 3_000,
+            bubbles: 9,
+            droplets: 8,
+            levels: Some(crate::levels::Levels {
+                air: 25_100.4,
+                water: -2_999.5,
+            }),
+            flags: crate::Flags::SATURATED,
+            ..crate::record::TipStats::ZERO
+        };
+        let s = crate::wire::tip_health::TipState::from_stats(&t);
+        // Levels rounded to the nearest count, half away from zero (spec, TipLevels).
+        assert_eq!(
+            s.levels,
+            Some(crate::wire::tip_health::TipLevels {
+                air: 25_100,
+                water: -3_000
+            })
+        );
+        assert_eq!(s.levels.unwrap().swing(), 28_100);
+        // Air -> water (bubbles closed) plus water -> air (droplets closed).
+        assert_eq!((s.interfaces, s.bubbles), (17, 9));
+        assert_eq!(s.void_fraction, 3_000);
+        assert_eq!(s.flags, crate::Flags::SATURATED.0);
+        // 17 interfaces in 10 000 frames at 40 kHz (0.25 s): 68 per second.
+        assert_eq!(s.interfaces_per_s(10_000, 40_000.0), Some(68.0));
+        assert_eq!(s.interfaces_per_s(0, 40_000.0), None);
+        // A tip sitting in one phase: no interface, no levels yet, no division by zero.
+        let dead = crate::wire::tip_health::TipState::from_stats(&crate::record::TipStats::ZERO);
+        assert_eq!(
+            (dead.interfaces, dead.levels, dead.void_fraction),
+            (0, None, 0)
+        );
     }
 }

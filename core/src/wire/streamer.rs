@@ -4,6 +4,7 @@
 //! offer(body) -> urgent FIFO (fronts, profiles, replies, commands) ---+
 //!                description slot (latest wins)                     +-> encode (seq++) -> tx
 //!                health slot (latest wins; counters are cumulative)  |        |
+//!                tip book (latest report per probe; after health)    |        |
 //!                window queue (Q results; full -> drop the oldest)  -+        v
 //! poll(now, room) -> at most min(credit, room) bytes of the frame in tx
 //! ```
@@ -26,6 +27,12 @@
 //! gap: gaps at the host mean link loss, the health counters mean streamer drops, and the
 //! two never count the same frame.
 //!
+//! Tip-health reports (kind 0x09, [`crate::wire::tip_health`]) are kept per probe, the
+//! latest replacing the earlier, and go out only after a health frame has been sent: the
+//! book of up to `T` probes then leaves in frames of [`crate::wire::MAX_TIPS_PER_FRAME`] before any
+//! window result, so tip health costs a frame or two per health period, whatever the
+//! window length.
+//!
 //! Window results waiting together are packed into one frame (up to
 //! [`MAX_WINDOWS_PER_FRAME`]), which shares the header, CRC and COBS overhead: the results
 //! of one analysis window of all probes usually travel in one frame.
@@ -35,7 +42,10 @@ use crate::wire::frame::{
     Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, RunStart,
     SetLevels, StartRun, WindowResult, WindowSetting, Windows,
 };
-use crate::wire::{DerivedBatch, DerivedResult, MAX_FRAME_BYTES, MAX_WINDOWS_PER_FRAME};
+use crate::wire::tip_health::{TipBook, TipHealth, TipReport};
+use crate::wire::{
+    DerivedBatch, DerivedResult, MAX_FRAME_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME,
+};
 use heapless::Deque;
 
 /// How the streamer sees its link.
@@ -140,9 +150,10 @@ impl Urgent {
     }
 }
 
-/// A streamer with a queue of `Q` window results and `P` urgent frames.
+/// A streamer with a queue of `Q` window results, `P` urgent frames and the tip health of
+/// `T` probes.
 #[derive(Clone, Debug)]
-pub struct Streamer<const Q: usize, const P: usize = 8> {
+pub struct Streamer<const Q: usize, const P: usize = 8, const T: usize = MAX_PROBES> {
     cfg: StreamerConfig,
     seq: u16,
     windows: Deque<WindowResult, Q>,
@@ -150,6 +161,9 @@ pub struct Streamer<const Q: usize, const P: usize = 8> {
     urgent: Deque<Urgent, P>,
     describe: Option<DeviceDescription>,
     health: Option<Health>,
+    tips: TipBook<T>,
+    /// A health frame went out: send the tip book next.
+    tips_due: bool,
     tx: [u8; MAX_FRAME_BYTES],
     tx_len: usize,
     tx_pos: usize,
@@ -158,7 +172,7 @@ pub struct Streamer<const Q: usize, const P: usize = 8> {
     stats: StreamerStats,
 }
 
-impl<const Q: usize, const P: usize> Streamer<Q, P> {
+impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
     /// A streamer whose first frame has sequence number 0.
     pub fn new(cfg: StreamerConfig) -> Self {
         const { assert!(Q > 0, "the window queue needs room for one result") };
@@ -171,6 +185,8 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
             urgent: Deque::new(),
             describe: None,
             health: None,
+            tips: TipBook::default(),
+            tips_due: false,
             tx: [0; MAX_FRAME_BYTES],
             tx_len: 0,
             tx_pos: 0,
@@ -207,6 +223,12 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
             }
             Body::Describe(d) => return Self::replace(&mut self.describe, d, &mut self.stats),
             Body::Health(h) => return Self::replace(&mut self.health, h, &mut self.stats),
+            Body::TipHealth(v) => {
+                for r in v {
+                    self.offer_tips(r);
+                }
+                return Offer::Queued;
+            }
             Body::Front(b) => Urgent::Front(b),
             Body::RunStart(b) => Urgent::RunStart(b),
             Body::Profile(b) => Urgent::Profile(b),
@@ -234,6 +256,12 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
         Self::replace(&mut self.health, h, &mut self.stats)
     }
 
+    /// Keep `r` as its probe's latest tip-health report (sent after the next health frame;
+    /// a probe index of `T` or more is ignored).
+    pub fn offer_tips(&mut self, r: TipReport) {
+        self.tips.note(r);
+    }
+
     /// Queue one window result; returns true if the oldest queued one was dropped for it.
     pub fn offer_window(&mut self, w: WindowResult) -> bool {
         let dropped = self.windows.is_full();
@@ -259,7 +287,7 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
         dropped
     }
 
-    fn replace<T>(slot: &mut Option<T>, v: T, stats: &mut StreamerStats) -> Offer {
+    fn replace<V>(slot: &mut Option<V>, v: V, stats: &mut StreamerStats) -> Offer {
         if slot.replace(v).is_some() {
             stats.replaced += 1;
             Offer::Replaced
@@ -321,6 +349,7 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
             && self.urgent.is_empty()
             && self.describe.is_none()
             && self.health.is_none()
+            && (!self.tips_due || self.tips.is_empty())
     }
 
     /// The sequence number the next frame will carry.
@@ -341,6 +370,18 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
         self.credit = self.credit.saturating_add(gained).min(cap);
     }
 
+    /// The next frame of the tip book, while it is due (after a health frame).
+    fn next_tips(&mut self) -> Option<TipHealth> {
+        if !self.tips_due {
+            return None;
+        }
+        let v = self.tips.take_frame();
+        if v.is_none() {
+            self.tips_due = false;
+        }
+        v
+    }
+
     /// Encode the next frame into the transmit buffer; false if nothing waits.
     fn load(&mut self) -> bool {
         // A device's first frame is its description (the power-on marker of the sequence
@@ -358,7 +399,10 @@ impl<const Q: usize, const P: usize> Streamer<Q, P> {
         } else if let Some(mut h) = self.health.take() {
             h.windows_dropped = self.stats.windows_dropped;
             h.frames_dropped = self.stats.frames_dropped();
+            self.tips_due = true;
             Body::Health(h)
+        } else if let Some(v) = self.next_tips() {
+            Body::TipHealth(v)
         } else if !self.windows.is_empty() {
             let mut ws = Windows::new();
             while ws.len() < MAX_WINDOWS_PER_FRAME {

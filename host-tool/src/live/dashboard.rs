@@ -846,6 +846,9 @@ fn draw_history(f: &mut Frame, area: Rect, state: &LiveState) {
 }
 
 fn draw_recent_or_strip(f: &mut Frame, area: Rect, state: &LiveState) {
+    if state.strip_view == crate::live::state::StripView::Tips {
+        return crate::live::dashboard_tips::draw_tips(f, area, state);
+    }
     match state.strip_view.quantity() {
         None => draw_recent(f, area, state),
         Some((k, name)) => draw_strip(f, area, state, k, name),
@@ -1515,6 +1518,10 @@ mod tests {
                 );
             }
         }
-        assert_eq!(s.strip_view.next(), crate::live::state::StripView::Table);
+        assert_eq!(s.strip_view.next(), crate::live::state::StripView::Tips);
+        assert_eq!(
+            crate::live::state::StripView::Tips.next(),
+            crate::live::state::StripView::Table
+        );
     }
 }

@@ -7,7 +7,8 @@
 //! port -> the core's command Responder (repeats, already running, unknown kind, version,
 //!      malformed) -> StartRun / StopRun / SetWindow / Relearn / DescribeRequest -> Ack/Nack
 //! Describe at power-on, after SetWindow and on request; RunStart at every run start;
-//! Health every second (cumulative counters)
+//! Health every second (cumulative counters), then the tip health of every probe's latest
+//! window (kind 0x09)
 //! ```
 //!
 //! The chain is built from the same configuration `frothline replay` derives from the layout
@@ -20,10 +21,12 @@
 //! window is closed, flagged partial). At the end of the capture the run ends the same way,
 //! and with [`SimOptions::repeat`] a new run starts at once. Every run start sends a
 //! RunStart frame (run number, label, device time, the host's UTC from StartRun).
-//! `SetWindow` and `Relearn` rebuild the chain at the current position: the open window is
-//! closed (partial), and the new chain continues the run's sample clock; it learns its
-//! levels again unless the layout fixes them (the core has no per-probe re-learn yet, so
-//! `Relearn` re-learns every probe whatever the mask).
+//! `SetWindow` rebuilds the chain at the current position: the open window is closed
+//! (partial), and the new chain continues the run's sample clock. `Relearn` rebuilds it at
+//! the end of the open window when windows have a fixed length (window times stay on the
+//! run's grid, no partial window), else at once; the new chain learns its levels again
+//! unless the layout fixes them (the core has no per-probe re-learn yet, so `Relearn`
+//! re-learns every probe whatever the mask).
 //!
 //! A transient layout (`flow.kind = "transient"`) runs one station chain per station, as
 //! `frothline replay` does ([`crate::offline::transient::station_configs`], a delay ring each,
@@ -300,6 +303,9 @@ pub struct SimDevice {
     pos: usize,
     /// Sample-clock offset of the current chain within the run.
     offset: u64,
+    /// A re-learn asked for inside a fixed-length window: the run frame it takes effect at
+    /// (the end of that window, so the window grid does not move).
+    relearn_at: Option<usize>,
     running: bool,
     last_health: Option<Instant>,
     health: Health,
@@ -336,6 +342,7 @@ impl SimDevice {
             run_t0: now,
             pos: 0,
             offset: 0,
+            relearn_at: None,
             running: false,
             last_health: None,
             health: Health::default(),
@@ -506,6 +513,32 @@ impl SimDevice {
     fn end_run(&mut self) {
         self.close_chain();
         self.running = false;
+        self.relearn_at = None;
+    }
+
+    /// Relearn: every probe learns its levels again. With fixed-length windows of a steady
+    /// layout the chain is rebuilt at the end of the open window, so window times stay on
+    /// the run's grid (start + k x length) and no partial window is cut; otherwise (whole
+    /// run, bubble-count windows, front-relative slices, no run going) at once.
+    fn relearn(&mut self) -> Result<(), NackReason> {
+        // A chain must be buildable from the configuration before the command is acked.
+        if self.stations.is_none() {
+            HostChain::new(self.config.clone()).map_err(|_| NackReason::BadArgument)?;
+        }
+        let grid = match self.config.window {
+            WindowPolicy::Frames(n) if self.stations.is_none() && self.running => n as u64,
+            _ => 0,
+        };
+        if grid == 0 {
+            return self.rebuild(self.config.clone());
+        }
+        let into = (self.pos as u64).saturating_sub(self.offset);
+        let end = self.offset + into.div_ceil(grid) * grid;
+        if end <= self.pos as u64 {
+            return self.rebuild(self.config.clone());
+        }
+        self.relearn_at = Some(usize::try_from(end).unwrap_or(usize::MAX));
+        Ok(())
     }
 
     /// For a transient layout, `policy` as `frothline replay` takes it
@@ -562,6 +595,7 @@ impl SimDevice {
     fn rebuild(&mut self, config: ChainConfig<MAX_PROBES>) -> Result<(), NackReason> {
         let chain = self.new_chain(config.clone())?;
         self.config = config;
+        self.relearn_at = None;
         if self.running {
             self.close_chain();
             self.offset = self.pos as u64;
@@ -603,6 +637,11 @@ impl SimDevice {
                     spacing.map(|mm| mm as f32),
                 ),
             );
+            // A window cut short (a command, the end of a run) says little of its tips.
+            if !r.flags.contains(Flags::PARTIAL_WINDOW) {
+                self.streamer
+                    .offer_tips(frothline_core::wire::TipReport::from_probe_window(&r));
+            }
         }
         let Some((idx, _)) = station else {
             return;
@@ -674,7 +713,10 @@ impl SimDevice {
                 .max(u32::try_from(samples).unwrap_or(u32::MAX));
             // Bounded work per step: at most about a tenth of a second of samples.
             let step = ((fs * self.opts.speed.max(1.0)) as usize / 10).max(1024);
-            let upto = due.min(self.pos + step);
+            let mut upto = due.min(self.pos + step);
+            if let Some(at) = self.relearn_at {
+                upto = upto.min(at);
+            }
             if upto > self.pos {
                 let ch = self.cap.channels;
                 let samples = Arc::clone(&self.cap.samples);
@@ -684,6 +726,9 @@ impl SimDevice {
                     self.chain = Some(chains);
                 }
                 self.pos = upto;
+            }
+            if self.relearn_at.is_some_and(|at| self.pos >= at) && self.pos < self.cap.frames() {
+                let _ = self.rebuild(self.config.clone());
             }
             if self.pos >= self.cap.frames() {
                 self.end_run();
@@ -843,7 +888,7 @@ impl CommandTarget for SimTarget<'_> {
             return Err(NackReason::BadArgument);
         }
         // The core has no per-probe re-learn yet: every probe re-learns.
-        d.rebuild(d.config.clone())
+        d.relearn()
     }
 
     fn describe(&mut self) -> Result<(), NackReason> {

@@ -9,12 +9,17 @@
 //! device_sim: the core's chain on a capture in real time, framed like firmware; demo and
 //!   simulate run it on a pseudo-terminal (demo watches the other end)
 //! unpack: a session archive -> shared::session -> the same CSV files, with a link report
+//! watch_control: the keys' actions from a channel (tests, scripts); tipcheck_live: a
+//!   device's tips from its tip-health frames, SetLevels back; dashboard_tips: the view
 //! ```
 pub mod dashboard;
+pub mod dashboard_tips;
 pub mod demo;
 pub mod device_sim;
 pub mod ports;
 pub mod session_time;
 pub mod state;
+pub mod tipcheck_live;
 pub mod unpack;
 pub mod watch;
+pub mod watch_control;

@@ -193,6 +193,8 @@ pub struct ProbeRow {
     pub tally: ProbeTally,
     /// The latest windows of the run for the strip chart: (end, s of device time; C, F, V).
     pub strip: VecDeque<(f64, [Option<f64>; 3])>,
+    /// The latest tip-health report of this probe (wire kind 0x09).
+    pub tips: Option<frothline_core::wire::TipReport>,
 }
 
 /// Windows per probe kept for the strip chart.
@@ -210,6 +212,8 @@ pub enum StripView {
     CountRate,
     /// V against device time.
     Velocity,
+    /// Every tip's levels, swing and interfaces per second ([`crate::dashboard_tips`]).
+    Tips,
 }
 
 impl StripView {
@@ -219,14 +223,15 @@ impl StripView {
             StripView::Table => StripView::VoidFraction,
             StripView::VoidFraction => StripView::CountRate,
             StripView::CountRate => StripView::Velocity,
-            StripView::Velocity => StripView::Table,
+            StripView::Velocity => StripView::Tips,
+            StripView::Tips => StripView::Table,
         }
     }
 
     /// Index into the strip values and a name with unit (none for the table).
     pub fn quantity(self) -> Option<(usize, &'static str)> {
         match self {
-            StripView::Table => None,
+            StripView::Table | StripView::Tips => None,
             StripView::VoidFraction => Some((0, "C [-]")),
             StripView::CountRate => Some((1, "F [Hz]")),
             StripView::Velocity => Some((2, "V [m/s]")),
@@ -770,6 +775,14 @@ impl LiveState {
                 let d = self.device(*device as u32);
                 d.health = DeviceHealth::from(health);
                 d.health_at = Some(now);
+            }
+            Event::TipHealth { device, tips, .. } => {
+                let d = self.device(*device as u32);
+                for r in tips {
+                    if let Some(p) = d.probes.get_mut(r.probe as usize) {
+                        p.tips = Some(*r);
+                    }
+                }
             }
             Event::Reply {
                 port,

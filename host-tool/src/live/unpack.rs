@@ -48,6 +48,9 @@ pub struct UnpackReport {
     pub damage: Vec<Damage>,
     /// The file header's CRC failed: chunk times are relative to an unknown start.
     pub header_damaged: bool,
+    /// Mark chunks whose payload could not be read (time and why); their CRC held, so the
+    /// writer made them so.
+    pub bad_marks: Vec<String>,
     /// The decoded session.
     pub session: SessionReport,
 }
@@ -114,6 +117,7 @@ pub fn unpack_with(
     })?;
     let mut r = ArchiveReader::open(archive).map_err(|e| read_err(archive, e))?;
     let mut chunks = 0u64;
+    let mut bad_marks = Vec::new();
     let mut span: Option<(u64, u64)> = None;
     while let Some(c) = r.next_chunk().map_err(|e| read_err(archive, e))? {
         chunks += 1;
@@ -126,6 +130,15 @@ pub fn unpack_with(
             ChunkKind::Opened => session.opened(port, t)?,
             ChunkKind::Sent => session.sent(port, t, &c.bytes)?,
             ChunkKind::Layout => Vec::new(),
+            ChunkKind::Mark => {
+                match crate::shared::marks::from_payload(&c.bytes, utc_iso(t)) {
+                    Ok(m) => {
+                        session.mark(port, t, &m)?;
+                    }
+                    Err(e) => bad_marks.push(format!("at {}: {e}", utc_iso(t))),
+                }
+                Vec::new()
+            }
         };
         for e in &events {
             observer(e);
@@ -140,6 +153,7 @@ pub fn unpack_with(
         tail,
         damage: r.damage().to_vec(),
         header_damaged: r.header_damaged(),
+        bad_marks,
         session: session.finish()?,
     })
 }
@@ -175,6 +189,9 @@ impl std::fmt::Display for UnpackReport {
         }
         for w in s.version_warnings() {
             let _ = writeln!(o, "{w}");
+        }
+        for m in &self.bad_marks {
+            let _ = writeln!(o, "mark chunk not read {m}");
         }
         for (i, p) in s.ports.iter().enumerate() {
             let d = &p.decoder;

@@ -503,8 +503,6 @@ struct Watch<'a> {
     out: Option<std::io::Stdout>,
     /// Standard output was closed (plain mode in a pipe whose reader went away).
     quit: bool,
-    /// marks.csv (when the session writes files).
-    marks: Option<crate::shared::marks::MarksCsv>,
     observer: &'a mut dyn FnMut(&Event),
 }
 
@@ -630,16 +628,23 @@ impl Watch<'_> {
             ),
             None => (Default::default(), None),
         };
+        let t_us = crate::shared::archive::now_us();
         let mark = crate::shared::marks::Mark {
             run_number: tag.number,
             run_label: tag.label,
-            host_utc: crate::shared::archive::utc_iso(crate::shared::archive::now_us()),
+            host_utc: crate::shared::archive::utc_iso(t_us),
             device_time_s,
-            note: note.trim().to_string(),
+            note: note
+                .trim()
+                .chars()
+                .take(crate::shared::marks::MAX_NOTE_CHARS)
+                .collect(),
         };
-        let result = match self.marks.as_mut() {
-            Some(m) => m.write(&mark).map(|_| m.path().display().to_string()),
-            None => Ok("no file (the session writes none)".into()),
+        let port = device.map_or(0, |(_, p)| p);
+        let result = match self.session.mark(port, t_us, &mark) {
+            Ok(Some(path)) => Ok(path.display().to_string()),
+            Ok(None) => Ok("the archive only (the session writes no CSV files)".into()),
+            Err(e) => Err(e),
         };
         match result {
             Ok(to) => self.note(format!(
@@ -697,6 +702,24 @@ impl Watch<'_> {
         }
     }
 
+    /// An action from outside the keyboard, taken as its key would take it.
+    fn control(&mut self, c: crate::live::watch_control::Control) {
+        use crate::live::watch_control::Control;
+        match c {
+            Control::StartRun(label) => match parse_label(label.trim()) {
+                Ok(label) => {
+                    self.runs += 1;
+                    self.broadcast(Command::StartRun(label));
+                }
+                Err(e) => self.note(format!("run not started: {e}")),
+            },
+            Control::StopRun => self.broadcast(Command::StopRun),
+            Control::Mark(note) => self.mark(&note),
+            Control::Relearn => self.broadcast(Command::Relearn(u32::MAX)),
+            Control::Command(c) => self.broadcast(c),
+        }
+    }
+
     fn broadcast(&mut self, cmd: Command) {
         for port in 0..self.opts.ports.len() {
             self.send(port, cmd.clone());
@@ -742,6 +765,18 @@ pub fn run_with(
     opts: WatchOptions,
     stop: Arc<AtomicBool>,
     observer: &mut dyn FnMut(&Event),
+) -> Result<WatchSummary, HostError> {
+    let (_keep, none) = mpsc::channel();
+    run_controlled(opts, stop, observer, none)
+}
+
+/// [`run_with`], also taking the actions sent on `control` (those of the dashboard's keys)
+/// as they come.
+pub fn run_controlled(
+    opts: WatchOptions,
+    stop: Arc<AtomicBool>,
+    observer: &mut dyn FnMut(&Event),
+    control: Receiver<crate::live::watch_control::Control>,
 ) -> Result<WatchSummary, HostError> {
     if opts.ports.is_empty() {
         return Err(HostError::Usage("give at least one --port".into()));
@@ -830,7 +865,6 @@ pub fn run_with(
             );
         }
     }
-    let w_marks = opts.dir.as_deref().map(crate::shared::marks::MarksCsv::new);
     let mut w = Watch {
         opts,
         session,
@@ -840,10 +874,9 @@ pub fn run_with(
         runs: 0,
         out,
         quit: false,
-        marks: w_marks,
         observer,
     };
-    let result = main_loop(&mut w, &rx, &stop, t0, term.as_mut());
+    let result = main_loop(&mut w, &rx, &control, &stop, t0, term.as_mut());
     if term.is_some() {
         ratatui::restore();
     }
@@ -860,10 +893,7 @@ pub fn run_with(
         }
     }
     w.writers.clear();
-    let mut report = w.session.finish()?;
-    if let Some(m) = w.marks.as_ref().filter(|m| m.written > 0) {
-        report.files.push(m.path().to_path_buf());
-    }
+    let report = w.session.finish()?;
     drop(folder_lock);
     result?;
     drained?;
@@ -882,6 +912,7 @@ pub fn run_with(
 fn main_loop(
     w: &mut Watch<'_>,
     rx: &Receiver<LinkMsg>,
+    control: &Receiver<crate::live::watch_control::Control>,
     stop: &AtomicBool,
     t0: Instant,
     mut term: Option<&mut ratatui::DefaultTerminal>,
@@ -910,6 +941,9 @@ fn main_loop(
             }
             Err(RecvTimeoutError::Timeout) => {}
             Err(RecvTimeoutError::Disconnected) => return Ok(()),
+        }
+        while let Ok(c) = control.try_recv() {
+            w.control(c);
         }
         let Some(term) = term.as_deref_mut() else {
             continue;

@@ -35,8 +35,22 @@ use std::path::PathBuf;
 /// Arguments of `frothline tipcheck`.
 #[derive(clap::Args, Debug, Clone)]
 pub struct TipcheckArgs {
-    /// The capture: a WAV file, one channel per probe tip.
-    pub capture: PathBuf,
+    /// The capture: a WAV file, one channel per probe tip (or `--port` for a live device).
+    #[arg(required_unless_present = "port")]
+    pub capture: Option<PathBuf>,
+    /// Check a live device on this serial port instead of a capture, from the tip-health
+    /// frames it sends (levels in use, swing, interfaces per second).
+    #[arg(long, short, conflicts_with_all = ["capture", "write", "from", "to"])]
+    pub port: Option<String>,
+    /// Baud rate of `--port`.
+    #[arg(long, default_value_t = 115_200)]
+    pub baud: u32,
+    /// Seconds to listen to a live device before the table (and the SetLevels).
+    #[arg(long, default_value_t = 5.0)]
+    pub listen: f64,
+    /// With `--port`: fix the levels the device has learnt, one SetLevels command per tip.
+    #[arg(long, requires = "port")]
+    pub set_levels: bool,
     /// The rig layout (TOML).
     #[arg(long, short)]
     pub layout: PathBuf,
@@ -120,7 +134,12 @@ pub fn run(args: &TipcheckArgs) -> Result<TipcheckReport, HostError> {
 /// Measure every tip of the layout on the segment.
 pub fn check(args: &TipcheckArgs) -> Result<TipcheckReport, HostError> {
     let layout = Layout::load(&args.layout)?;
-    let mut cap = Capture::open(&args.capture)?;
+    let Some(capture) = &args.capture else {
+        return Err(HostError::Usage(
+            "give a capture (WAV) to check, or --port for a live device".into(),
+        ));
+    };
+    let mut cap = Capture::open(capture)?;
     layout.check_channels(cap.channels(), &args.layout)?;
     let fs = cap.sample_rate().max(1) as f64;
     let total = cap.frames();

@@ -67,6 +67,8 @@ pub enum ChunkKind {
     Sent,
     /// The layout text (TOML) of the session.
     Layout,
+    /// A mark the user made (a short note on a moment of a run; [`crate::marks`]).
+    Mark,
 }
 
 impl ChunkKind {
@@ -78,6 +80,7 @@ impl ChunkKind {
             ChunkKind::Opened => 2,
             ChunkKind::Sent => 3,
             ChunkKind::Layout => 4,
+            ChunkKind::Mark => 5,
         }
     }
 
@@ -89,6 +92,7 @@ impl ChunkKind {
             2 => Some(ChunkKind::Opened),
             3 => Some(ChunkKind::Sent),
             4 => Some(ChunkKind::Layout),
+            5 => Some(ChunkKind::Mark),
             _ => None,
         }
     }
@@ -291,6 +295,13 @@ impl ArchiveWriter {
             ChunkKind::Layout,
             &b[..b.len().min(MAX_PAYLOAD)],
         )
+    }
+
+    /// Record a mark made at `host_time_us` for the device on `port`; `payload` is
+    /// [`crate::shared::marks::to_payload`]'s (at most a few hundred bytes).
+    pub fn mark(&mut self, port: u16, host_time_us: u64, payload: &[u8]) -> io::Result<()> {
+        let p = &payload[..payload.len().min(MAX_PAYLOAD)];
+        self.write_chunk(port, host_time_us, ChunkKind::Mark, p)
     }
 
     fn write_chunk(

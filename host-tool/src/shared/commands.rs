@@ -128,6 +128,18 @@ impl CommandLog {
         }
     }
 
+    /// A log whose first sequence number is `seq`. A host starts each session somewhere
+    /// else (from its clock): a device answers a command with the sequence number and CRC
+    /// of the last one it answered as a repeat, without carrying it out (docs/wire-protocol.md
+    /// section 8), so a new session that began at 0 again would have its first
+    /// DescribeRequest taken for the previous session's and get no description.
+    pub fn starting_at(device: u16, seq: u16) -> Self {
+        CommandLog {
+            seq,
+            ..Self::new(device)
+        }
+    }
+
     /// Encode `cmd` as the next frame of this link: its sequence number and its bytes
     /// (0x00 delimiter included).
     pub fn encode(&mut self, cmd: &Command) -> Result<(u16, Vec<u8>), String> {

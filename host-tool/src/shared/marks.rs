@@ -3,6 +3,10 @@
 //!
 //! Columns: `run_number`, `run_label`, `host_utc` (ISO 8601), `device_time_s` (the end of
 //! the latest window received, empty before any), `note`.
+//!
+//! Each mark is also a `mark` chunk of the session archive (docs/archive-format.md), whose
+//! payload is [`to_payload`]'s; the chunk's time is the mark's host time, so `frothline
+//! unpack` writes the same marks.csv again ([`from_payload`]).
 
 use crate::shared::error::{write_err, HostError};
 use std::fs::File;
@@ -85,6 +89,54 @@ impl MarksCsv {
     }
 }
 
+/// The payload of a `mark` archive chunk: run number (u32 LE), device time in seconds
+/// (f64 LE, NaN when none), the label's length in bytes (u8) and the label (UTF-8), then
+/// the note (UTF-8, the rest of the payload). The host time is the chunk's.
+pub fn to_payload(m: &Mark) -> Vec<u8> {
+    let label = cut_utf8(&m.run_label, u8::MAX as usize);
+    let note: String = m.note.chars().take(MAX_NOTE_CHARS).collect();
+    let mut b = Vec::with_capacity(13 + label.len() + note.len());
+    b.extend_from_slice(&m.run_number.to_le_bytes());
+    b.extend_from_slice(&m.device_time_s.unwrap_or(f64::NAN).to_le_bytes());
+    b.push(label.len() as u8);
+    b.extend_from_slice(label.as_bytes());
+    b.extend_from_slice(note.as_bytes());
+    b
+}
+
+/// A mark back from a `mark` chunk's payload and the chunk's host time (ISO 8601). A
+/// payload too short for its fields is an error; text that is not UTF-8 is read lossily.
+pub fn from_payload(b: &[u8], host_utc: String) -> Result<Mark, String> {
+    let short = || {
+        format!(
+            "a mark chunk of {} bytes is too short for its fields",
+            b.len()
+        )
+    };
+    let run = b.get(0..4).ok_or_else(short)?;
+    let time = b.get(4..12).ok_or_else(short)?;
+    let n = *b.get(12).ok_or_else(short)? as usize;
+    let label = b.get(13..13 + n).ok_or_else(short)?;
+    let note = &b[13 + n..];
+    let t = f64::from_le_bytes(time.try_into().map_err(|_| short())?);
+    Ok(Mark {
+        run_number: u32::from_le_bytes(run.try_into().map_err(|_| short())?),
+        run_label: String::from_utf8_lossy(label).into_owned(),
+        host_utc,
+        device_time_s: t.is_finite().then_some(t),
+        note: String::from_utf8_lossy(note).into_owned(),
+    })
+}
+
+/// The longest prefix of `s` of at most `max` bytes that ends on a character boundary.
+fn cut_utf8(s: &str, max: usize) -> &str {
+    let mut end = s.len().min(max);
+    while !s.is_char_boundary(end) {
+        end -= 1;
+    }
+    &s[..end]
+}
+
 /// Read `dir/marks.csv` (none when the file is missing). A row that does not parse is an
 /// error naming the file and line.
 pub fn read(dir: &Path) -> Result<Vec<Mark>, String> {
@@ -159,5 +211,30 @@ mod tests {
         .unwrap();
         let e = read(dir.path()).unwrap_err();
         assert!(e.contains("line 2") && e.contains("run_number"), "{e}");
+    }
+
+    #[test]
+    fn archive_payloads_round_trip() {
+        let m = Mark {
+            run_number: 7,
+            run_label: "gate é".into(),
+            host_utc: "2026-12-02T07:00:00.000Z".into(),
+            device_time_s: Some(3.25),
+            note: "probe moved".into(),
+        };
+        let b = to_payload(&m);
+        assert_eq!(from_payload(&b, m.host_utc.clone()).unwrap(), m);
+        let none = Mark {
+            device_time_s: None,
+            ..m.clone()
+        };
+        let back = from_payload(&to_payload(&none), m.host_utc.clone()).unwrap();
+        assert_eq!(back, none);
+        // Cut payloads are refused with their length, never read out of range.
+        for n in 0..13 + 6 {
+            let e = from_payload(&b[..n], String::new()).unwrap_err();
+            assert!(e.contains(&format!("{n} bytes")), "{e}");
+        }
+        assert_eq!(cut_utf8("aé", 2), "a");
     }
 }

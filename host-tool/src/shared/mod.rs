@@ -6,7 +6,7 @@
 //!          checks that they fit); stations: one chain per station of a transient layout
 //! frames   session: bytes from links or an archive -> frames -> CSV files + archive;
 //!          archive (.frothwire), commands (host -> device), runs (run numbers, labels),
-//!          marks (operator notes)
+//!          marks (operator notes), tips_csv (the tip-health rows of a live session)
 //! results  windows_csv, transient_columns (profile.csv, fronts.csv, stations.csv), output_set (a run's files written as one set), probe_summary,
 //!          running_stats (means with intervals), hydraulics (water properties, flow
 //!          relations)
@@ -28,6 +28,7 @@ pub mod runs;
 pub mod session;
 pub mod stations;
 pub mod stdout;
+pub mod tips_csv;
 pub mod transient_columns;
 pub mod window_spec;
 pub mod windows_csv;

@@ -163,6 +163,15 @@ pub enum Event {
         /// The counters.
         health: Health,
     },
+    /// Tip health of some probes (their latest windows).
+    TipHealth {
+        /// Port number.
+        port: usize,
+        /// Device id.
+        device: u16,
+        /// The reports.
+        tips: frothline_core::wire::TipHealth,
+    },
     /// A reply to a command: `nack` is `None` for an Ack.
     Reply {
         /// Port number.
@@ -417,6 +426,10 @@ pub struct Session {
     runs: crate::shared::runs::RunTracker,
     /// Host time of the bytes being decoded, µs since the Unix epoch.
     now_us: u64,
+    /// marks.csv beside the CSV files (created at the first mark).
+    marks: Option<crate::shared::marks::MarksCsv>,
+    /// tips.csv beside them (created at the first tip-health report).
+    tips: Option<crate::shared::tips_csv::TipsCsv>,
 }
 
 fn csv_file(path: &Path, header: &[&str]) -> Result<csv::Writer<BufWriter<File>>, HostError> {
@@ -464,7 +477,12 @@ impl Session {
             .map(|_| PortState {
                 decoder: Box::new(Decoder::new()),
                 sent_decoder: Box::new(Decoder::new()),
-                commands: CommandLog::new(HOST_DEVICE_ID),
+                // A new session's commands start where no earlier session's did (the
+                // device would take a repeat of the last one for a repeat).
+                commands: CommandLog::starting_at(
+                    HOST_DEVICE_ID,
+                    (crate::shared::archive::now_us() / 1_000) as u16,
+                ),
                 bytes: 0,
                 commands_sent: 0,
             })
@@ -479,10 +497,18 @@ impl Session {
             a.layout(crate::shared::archive::now_us(), text)
                 .map_err(write_err(path))?;
         }
+        let marks = out
+            .as_ref()
+            .map(|o| crate::shared::marks::MarksCsv::new(&o.dir));
+        let tips = out
+            .as_ref()
+            .map(|o| crate::shared::tips_csv::TipsCsv::new(&o.dir));
         let mut s = Session {
             opts,
             ports,
             devices: BTreeMap::new(),
+            marks,
+            tips,
             out,
             archive,
             report,
@@ -737,6 +763,10 @@ impl Session {
                     self.derived(port, device, d)?;
                 }
             }
+            Body::TipHealth(tips) => {
+                self.tip_health(port, device, &tips)?;
+                events.push(Event::TipHealth { port, device, tips });
+            }
             Body::Ack(a) => self.reply(port, device, a.seq, None, events),
             Body::Nack(n) => self.reply(port, device, n.seq, Some(n.reason), events),
             _ => events.push(Event::Stray { port, device, kind }),
@@ -974,6 +1004,43 @@ impl Session {
         Ok(())
     }
 
+    fn tip_health(
+        &mut self,
+        port: usize,
+        device: u16,
+        tips: &frothline_core::wire::TipHealth,
+    ) -> Result<(), HostError> {
+        if self.tips.is_none() {
+            return Ok(());
+        }
+        let fs = self
+            .devices
+            .get(&(port, device))
+            .and_then(|d| d.sample_rate_hz);
+        let run = self.runs.columns(port, device, self.now_us);
+        let mut rows = Vec::new();
+        for r in tips {
+            let name = self.meta(port, device, r.probe as usize).name;
+            let tips = [
+                ("leading", Some(&r.leading)),
+                ("trailing", r.trailing.as_ref()),
+            ];
+            for (which, t) in tips {
+                if let Some(t) = t {
+                    let mut row = crate::shared::tips_csv::tip_cells(&name, which, r, t, fs);
+                    row.extend(run.iter().cloned());
+                    rows.push(row);
+                }
+            }
+        }
+        if let Some(t) = self.tips.as_mut() {
+            if t.write(&rows)? {
+                self.report.files.push(t.path().to_path_buf());
+            }
+        }
+        Ok(())
+    }
+
     fn profile(&mut self, port: usize, device: u16, p: &ProfileFit) -> Result<(), HostError> {
         let station = self.station_name(device, p.station);
         let info = self.devices.entry((port, device)).or_default();
@@ -1052,6 +1119,31 @@ impl Session {
             w.flush().map_err(write_err(dir.join("derived.csv")))?;
         }
         Ok(())
+    }
+
+    /// A mark made at `t_us` for the device on `port`: a `mark` chunk in the archive (when
+    /// the session writes one), then a row of marks.csv (when it writes files). Returns
+    /// where the row went. `frothline unpack` calls it for every mark chunk it reads.
+    pub fn mark(
+        &mut self,
+        port: usize,
+        t_us: u64,
+        mark: &crate::shared::marks::Mark,
+    ) -> Result<Option<PathBuf>, HostError> {
+        if let Some(a) = self.archive.as_mut() {
+            let path = a.path().to_path_buf();
+            a.mark(port as u16, t_us, &crate::shared::marks::to_payload(mark))
+                .map_err(write_err(path))?;
+        }
+        let Some(m) = self.marks.as_mut() else {
+            return Ok(None);
+        };
+        let first = m.written == 0;
+        m.write(mark)?;
+        if first {
+            self.report.files.push(m.path().to_path_buf());
+        }
+        Ok(Some(m.path().to_path_buf()))
     }
 
     /// Close the session: write held windows (without times), flush the CSV files, sync the
@@ -1160,7 +1252,7 @@ pub fn describe_event(e: &Event, ports: &[String]) -> Option<String> {
             desc.channels,
             desc.firmware.as_str()
         ),
-        Event::Window { .. } | Event::Health { .. } => return None,
+        Event::Window { .. } | Event::Health { .. } | Event::TipHealth { .. } => return None,
         Event::Front {
             port: p,
             device,

@@ -367,11 +367,12 @@ impl Scenario {
     /// 2.9 m/s, 6 mm dual tips, 40 kHz, 10 s.
     pub fn builtin_default() -> Self {
         // F peaks near C = 0.5, roughly F = Fmax 4 C (1 - C); Tu falls with elevation.
+        // Probe names are words, not letters, so that none reads as a symbol (C, F, V).
         let rows = [
-            ("A", 10.0, 0.05, 30.0, 2.0, 0.30),
-            ("B", 30.0, 0.20, 85.0, 2.4, 0.22),
-            ("C", 55.0, 0.50, 120.0, 2.7, 0.16),
-            ("D", 85.0, 0.80, 75.0, 2.9, 0.12),
+            ("bed", 10.0, 0.05, 30.0, 2.0, 0.30),
+            ("low", 30.0, 0.20, 85.0, 2.4, 0.22),
+            ("mid", 55.0, 0.50, 120.0, 2.7, 0.16),
+            ("top", 85.0, 0.80, 75.0, 2.9, 0.12),
         ];
         let probes = rows
             .iter()
@@ -697,7 +698,7 @@ mod tests {
         s.probes[2].void_fraction = 1.5;
         let e = s.resolve().unwrap_err().to_string();
         assert!(
-            e.contains("probe[2].void_fraction") && e.contains("\"C\""),
+            e.contains("probe[2].void_fraction") && e.contains("\"mid\""),
             "{e}"
         );
     }
@@ -707,7 +708,7 @@ mod tests {
         let mut s = Scenario::builtin_default();
         s.replicate(6);
         let names: Vec<_> = s.probes.iter().map(|p| p.name.as_str()).collect();
-        assert_eq!(names, ["A", "B", "C", "D", "A2", "B2"]);
+        assert_eq!(names, ["bed", "low", "mid", "top", "bed2", "low2"]);
         assert_eq!(s.probes[5].x_mm, REPLICA_X_STEP_MM);
         assert_eq!(s.resolve().unwrap().channels, 12);
     }

@@ -412,7 +412,7 @@ fn written_files_read_back() {
     let b = &lay.probe[1];
     assert_eq!(
         (b.name.as_str(), b.leading, b.trailing, b.tip_spacing_mm),
-        ("B", 2, None, None)
+        ("low", 2, None, None)
     );
     let c = &lay.probe[2];
     assert_eq!(

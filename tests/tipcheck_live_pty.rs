@@ -1,0 +1,96 @@
+//! `frothline tipcheck --port` against the simulated device over a pseudo-terminal pair:
+//! the levels the device reports for every tip match the generator's nominal levels of
+//! the synthetic capture (its truth), and `--set-levels` fixes each tip with a SetLevels
+//! command that the device acknowledges.
+#![cfg(unix)]
+
+use frothline_host::live::device_sim::{self, SimCapture, SimOptions};
+use frothline_host::offline::tipcheck::TipcheckArgs;
+use frothline_host::synth::{Generator, Scenario};
+use serialport::SerialPort;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+use std::time::Duration;
+
+fn big_stack<F: FnOnce() + Send + 'static>(f: F) {
+    let h = std::thread::Builder::new()
+        .stack_size(device_sim::THREAD_STACK)
+        .spawn(f)
+        .unwrap();
+    if let Err(e) = h.join() {
+        std::panic::resume_unwind(e);
+    }
+}
+
+#[test]
+fn a_live_tipcheck_reads_every_tip_and_sets_its_levels() {
+    big_stack(live_tipcheck);
+}
+
+fn live_tipcheck() {
+    let tmp = tempfile::tempdir().unwrap();
+    let mut s = Scenario::builtin_default();
+    s.duration_s = 2.0;
+    s.sample_rate_hz = 20_000;
+    let nominal = Generator::new(s.clone(), s.seed).unwrap().tip_levels();
+    let cap = SimCapture::from_scenario(&s, "100ms".parse().unwrap()).unwrap();
+    let layout_path = tmp.path().join("layout.toml");
+    std::fs::write(&layout_path, &cap.layout_text).unwrap();
+    let layout = cap.layout.clone();
+    let (mut master, slave) = serialport::TTYPort::pair().expect("a pseudo-terminal pair");
+    master.set_timeout(Duration::from_millis(2)).unwrap();
+    let path = slave.name().unwrap();
+    let stop = Arc::new(AtomicBool::new(false));
+    let opts = SimOptions {
+        baud: 0,
+        repeat: true,
+        ..SimOptions::default()
+    };
+    let sim = device_sim::spawn(cap, opts, master, stop.clone()).unwrap();
+    let args = TipcheckArgs {
+        capture: None,
+        port: Some(path.clone()),
+        baud: 115_200,
+        listen: 2.5,
+        set_levels: true,
+        layout: layout_path,
+        from: 0.0,
+        to: None,
+        tolerance: 0.05,
+        write: false,
+    };
+    let report = frothline_host::live::tipcheck_live::run(&args, &path).unwrap();
+    stop.store(true, Ordering::Relaxed);
+    let stats = sim.join().unwrap().unwrap();
+    drop(slave);
+
+    // Every tip of every probe (4 dual-tip probes).
+    assert_eq!(report.tips.len(), 8, "{report:?}");
+    for t in &report.tips {
+        let p = &layout.probes[t.probe_index as usize];
+        let ch = if t.trailing {
+            p.trailing.unwrap()
+        } else {
+            p.leading
+        };
+        let (water, air) = nominal[ch];
+        let (a, w) = t.levels.expect("levels learnt");
+        let swing = (air - water).abs();
+        // The device learns the drifting signal's levels (drift 300 counts, sine): within
+        // 5 % of the swing of the generator's nominal ones.
+        assert!(
+            (a as f64 - air).abs() < 0.05 * swing && (w as f64 - water).abs() < 0.05 * swing,
+            "{} {}: device ({a}, {w}) vs nominal ({air}, {water})",
+            t.probe,
+            t.trailing
+        );
+        assert!(t.interfaces_per_s.is_some_and(|x| x > 0.0), "{t:?}");
+        assert!(
+            !t.flags.contains(&"stuck") && !t.flags.contains(&"small_swing"),
+            "{t:?}"
+        );
+        assert_eq!(t.set, Some(None), "SetLevels acknowledged: {t:?}");
+    }
+    assert!(stats.acks >= 8, "{stats:?}");
+    assert_eq!(stats.nacks, 0, "{stats:?}");
+}
