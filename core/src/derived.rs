@@ -18,8 +18,8 @@
 //!   `V_air / V_mix = C`). Same assumptions as `a`.
 //! - **particle grouping**: a bubble and the next one form a pair when the water chord
 //!   between them is shorter than the leading bubble's own chord: the trailing bubble is in
-//!   the near wake of the leading one (the near-wake criterion, Chanson & Toombes 2002;
-//!   from memory). Runs of such pairs are clusters. The reference is random arrivals: bubbles
+//!   the near wake of the leading one (the near-wake criterion of the particle-grouping
+//!   literature for air-water flows; from memory). Runs of such pairs are clusters. The reference is random arrivals: bubbles
 //!   arriving as a Poisson process, so the water chord after a bubble is exponential with
 //!   the window's mean water chord, the bubble chords keeping the window's distribution.
 //!   Each bubble then pairs with the next with probability `p = P(W < B)`, independently of

@@ -6,8 +6,7 @@
 //!   model, whichever fits better), which gives `Y90`;
 //! - the velocity with a power law `V = V90 (y/Y90)^(1/N)`, least squares on `ln V` against
 //!   `ln y` over the probes from the bed to `Y90` (the velocity law of self-aerated and
-//!   skimming flows; Chanson 1997, Air Bubble Entrainment in Free-Surface Turbulent Shear
-//!   Flows; from memory);
+//!   skimming flows; common practice, no source);
 //! - `q_w = ∫_0^Y90 (1 − C) V dy` and `q_a = ∫_0^Y90 C V dy` through the fitted models with
 //!   the core's depth integral ([`frothline_core::profile::depth_integral`], the profile
 //!   estimator's unbiased integration);
