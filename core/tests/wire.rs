@@ -9,9 +9,9 @@ use frothline_core::wire::{
     self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, Decoder,
     DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, LogChunk, Nack, NackReason,
     ProbeLayout, ProfileFit, ReadLog, Relearn, RunStart, SeqCheck, SetClock, SetLevels, StartRun,
-    Streamer, StreamerConfig, TipHealth, TipLevels, TipReport, TipState, TrailingTip,
-    WindowResult, WindowSetting, Windows, LABEL_BYTES, MAX_FRAME_BYTES, MAX_PROBES,
-    MAX_TIPS_PER_FRAME, MAX_WINDOWS_PER_FRAME,
+    Streamer, StreamerConfig, TipHealth, TipLevels, TipReport, TipState, TrailingTip, WindowResult,
+    WindowSetting, Windows, LABEL_BYTES, MAX_FRAME_BYTES, MAX_PROBES, MAX_TIPS_PER_FRAME,
+    MAX_WINDOWS_PER_FRAME,
 };
 use proptest::prelude::*;
 use rand::rngs::StdRng;
