@@ -269,6 +269,36 @@ fn sample_frames() -> Vec<Frame> {
                     .unwrap(),
             }),
         ),
+        dev(
+            308,
+            Body::Derived(
+                [
+                    frothline_core::wire::DerivedResult {
+                        probe: 1,
+                        start: 4000,
+                        chord_lengths: Some(frothline_core::wire::ChordLengths {
+                            mean: 412,
+                            median: 305,
+                            p90: 890,
+                        }),
+                        interfacial_area: Some(1725),
+                        sauter_diameter: Some(3480),
+                        judged: 60,
+                        pairs: 9,
+                        clusters: 7,
+                        clustered: 16,
+                        random_pair_probability: Some(1420),
+                    },
+                    frothline_core::wire::DerivedResult {
+                        probe: 2,
+                        start: 4000,
+                        ..Default::default()
+                    },
+                ]
+                .into_iter()
+                .collect(),
+            ),
+        ),
         dev(308, Body::TipHealth(sample_tip_health())),
     ]
 }
@@ -449,6 +479,28 @@ fn largest_frames() -> Vec<Frame> {
             total: u32::MAX,
             data: heapless::Vec::from_slice(&[0xFF; wire::LOG_CHUNK_BYTES]).unwrap(),
         })),
+        f(Body::Derived(
+            std::iter::repeat_n(
+                frothline_core::wire::DerivedResult {
+                    probe: u8::MAX,
+                    start: u64::MAX,
+                    chord_lengths: Some(frothline_core::wire::ChordLengths {
+                        mean: u32::MAX,
+                        median: u32::MAX,
+                        p90: u32::MAX,
+                    }),
+                    interfacial_area: Some(u32::MAX),
+                    sauter_diameter: Some(u32::MAX),
+                    judged: u32::MAX,
+                    pairs: u32::MAX,
+                    clusters: u32::MAX,
+                    clustered: u32::MAX,
+                    random_pair_probability: Some(u16::MAX),
+                },
+                8,
+            )
+            .collect(),
+        )),
         f(Body::TipHealth({
             let tip = TipState {
                 levels: Some(TipLevels {

@@ -11,8 +11,8 @@ use crate::capture;
 use crate::config::{FwRecord, BAUD, DEVICE_ID, STREAM_WINDOWS};
 use embedded_io::Write;
 use frothline_core::wire::{
-    quant, Body, DeviceDescription, FrontArrival, Health, ProfileFit, Reply, RunStart, Streamer,
-    StreamerConfig, WindowResult, WindowSetting,
+    quant, Body, DerivedResult, DeviceDescription, FrontArrival, Health, ProfileFit, Reply,
+    RunStart, Streamer, StreamerConfig, WindowResult, WindowSetting,
 };
 
 /// Firmware version, as the device description carries it.
@@ -72,12 +72,21 @@ impl<W: Write> Link<W> {
             .offer(Body::Describe(description(self.window)));
     }
 
-    /// Queue the window result of one record, its start `offset` frames later (the
-    /// frame of the run where the chain began); returns it.
+    /// Queue the window result of one record and its derived figures (kind 0x08), its
+    /// start `offset` frames later (the frame of the run where the chain began); returns
+    /// the window result.
     pub fn record(&mut self, rec: &FwRecord, offset: u64) -> WindowResult {
         let mut w = wire_result(rec, self.sample_rate_hz);
         w.start = w.start.saturating_add(offset);
         self.streamer.offer_window(w);
+        let spacing_mm = capture::TIP_SPACING_MM
+            .get(rec.probe as usize)
+            .copied()
+            .flatten();
+        let mut derived =
+            DerivedResult::from_probe_window_with_spacing(rec, self.sample_rate_hz, spacing_mm);
+        derived.start = derived.start.saturating_add(offset);
+        self.streamer.offer_derived(derived);
         w
     }
 

@@ -513,7 +513,10 @@ fn measure_learning<C: Clock>(clock: &C) {
     for (k, fixed) in [false, true].into_iter().enumerate() {
         let mut tip = capture::PROBE_CONFIGS[0].leading;
         if fixed {
-            tip.levels = frothline_core::LevelSource::Fixed { air: 26000, water: 3000 };
+            tip.levels = frothline_core::LevelSource::Fixed {
+                air: 26000,
+                water: 3000,
+            };
         }
         let mut d = frothline_core::PhaseDetector::new(&tip, &capture::DETECTOR, false);
         let mut src = ReplaySource::new(capture::SAMPLES, ch);
@@ -533,7 +536,7 @@ fn measure_learning<C: Clock>(clock: &C) {
     // a 1000-frame window of 20 bubbles of 12 frames, the trailing tip 5 frames behind.
     let (mut close, mut sums_t, mut analyse_t) = (0u32, 0u32, 0u32);
     {
-        use frothline_core::{EdgeSink, Correlator, Edge, Flags};
+        use frothline_core::{Correlator, Edge, EdgeSink, Flags};
         let mut c = Correlator::<{ crate::config::LAGS }>::new(60, 0, false, false);
         for rep in 0..REPS as u64 {
             let base = rep * 1000;
@@ -541,7 +544,10 @@ fn measure_learning<C: Clock>(clock: &C) {
                 let t = base + b * 50 + 3;
                 for (at, to_air) in [(t, true), (t + 12, false)] {
                     c.lead_in_order().edge(Edge { frame: at, to_air });
-                    c.trail_in_order().edge(Edge { frame: at + 5, to_air });
+                    c.trail_in_order().edge(Edge {
+                        frame: at + 5,
+                        to_air,
+                    });
                 }
             }
             let mut flags = Flags::NONE;
@@ -560,7 +566,13 @@ fn measure_learning<C: Clock>(clock: &C) {
             }
         }
     }
-    report!("fw.lag_analysis closes={} ticks={} close_ticks={} analyse_ticks={}", REPS / 2, close, sums_t, analyse_t);
+    report!(
+        "fw.lag_analysis closes={} ticks={} close_ticks={} analyse_ticks={}",
+        REPS / 2,
+        close,
+        sums_t,
+        analyse_t
+    );
     report!(
         "fw.learning frames={} reps={} observe_ticks={} decide_ticks={} modes={} detect_learnt_ticks={} detect_fixed_ticks={}",
         n,

@@ -136,6 +136,21 @@ def window_result(c):
     }
 
 
+def derived_result(c):
+    return {
+        "probe": c.byte(),
+        "start": u64(c),
+        "chord_lengths": c.opt(lambda: [u32(c), u32(c), u32(c)]),
+        "interfacial_area": c.opt(lambda: u32(c)),
+        "sauter_diameter": c.opt(lambda: u32(c)),
+        "judged": u32(c),
+        "pairs": u32(c),
+        "clusters": u32(c),
+        "clustered": u32(c),
+        "random_pair_probability": c.opt(lambda: u16(c)),
+    }
+
+
 def probe_layout(c):
     return {
         "station": c.byte(),
@@ -213,6 +228,7 @@ KINDS = {
     0x06: ("run_start", run_start),
     0x07: ("log_chunk", lambda c: {"offset": u32(c), "total": u32(c),
                                    "data": bytes(c.seq(c.byte, 64)).hex()}),
+    0x08: ("derived", lambda c: c.seq(lambda: derived_result(c), 8)),
     0x09: ("tip_health", lambda c: c.seq(lambda: tip_report(c), 6)),
     0x20: ("start_run", lambda c: {"label": c.text(16), "utc_ms": c.opt(lambda: u64(c))}),
     0x21: ("stop_run", empty),

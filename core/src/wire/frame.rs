@@ -74,6 +74,8 @@ pub enum Kind {
     RunStart = 0x06,
     /// [`LogChunk`]: bytes of the device's field log region, answering a ReadLog.
     LogChunk = 0x07,
+    /// [`DerivedBatch`](crate::wire::DerivedBatch): derived figures of window results.
+    Derived = 0x08,
     /// [`TipHealth`]: per tip, the levels in use, interfaces and void fraction of its
     /// latest window.
     TipHealth = 0x09,
@@ -101,7 +103,7 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 18] = [
+    pub const ALL: [Kind; 19] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
@@ -109,6 +111,7 @@ impl Kind {
         Kind::Health,
         Kind::RunStart,
         Kind::LogChunk,
+        Kind::Derived,
         Kind::TipHealth,
         Kind::StartRun,
         Kind::StopRun,
@@ -137,6 +140,7 @@ impl Kind {
             0x05 => Kind::Health,
             0x06 => Kind::RunStart,
             0x07 => Kind::LogChunk,
+            0x08 => Kind::Derived,
             0x09 => Kind::TipHealth,
             0x20 => Kind::StartRun,
             0x21 => Kind::StopRun,
@@ -219,6 +223,8 @@ pub enum Body {
     RunStart(RunStart),
     /// A chunk of the field log region.
     LogChunk(LogChunk),
+    /// Derived figures of window results (1 to [`MAX_WINDOWS_PER_FRAME`]).
+    Derived(crate::wire::DerivedBatch),
     /// Tip health of some probes.
     TipHealth(TipHealth),
     /// Command: start a run.
@@ -254,6 +260,7 @@ impl Body {
             Body::Health(_) => Kind::Health,
             Body::RunStart(_) => Kind::RunStart,
             Body::LogChunk(_) => Kind::LogChunk,
+            Body::Derived(_) => Kind::Derived,
             Body::TipHealth(_) => Kind::TipHealth,
             Body::StartRun(_) => Kind::StartRun,
             Body::StopRun => Kind::StopRun,
@@ -441,7 +448,7 @@ pub struct Health {
     pub tips_stuck: u64,
     /// Highest fill of the acquisition buffer, samples.
     pub buffer_high_water: u32,
-    /// Window results (entries of kind 0x02, not frames) the streamer dropped, oldest
+    /// Window results (entries of kind 0x02 or 0x08, not frames) the streamer dropped, oldest
     /// first, because the link could not keep up (filled in by the
     /// [`Streamer`](crate::wire::Streamer) when it sends the frame).
     pub windows_dropped: u32,

@@ -27,6 +27,7 @@
 
 pub mod codec;
 pub mod decoder;
+pub mod derived_frame;
 pub mod frame;
 pub mod quant;
 pub mod responder;
@@ -35,6 +36,7 @@ pub mod tip_health;
 
 pub use codec::{crc32, decode, decode_unstuffed, encode, WireError};
 pub use decoder::{Decoder, DecoderStats, DeviceSeqStats, FeedResult, SeqCheck};
+pub use derived_frame::{ChordLengths, DerivedBatch, DerivedResult};
 pub use frame::{
     Ack, Body, ChordTimes, Correlation, DeviceDescription, Frame, FrontArrival, Header, Health,
     Kind, LogChunk, Nack, NackReason, ProbeLayout, ProfileFit, ReadLog, Relearn, RunStart,
@@ -85,6 +87,7 @@ pub const MAX_BODY_BYTES: usize = {
     m = max(m, ProfileFit::POSTCARD_MAX_SIZE);
     m = max(m, Health::POSTCARD_MAX_SIZE);
     m = max(m, RunStart::POSTCARD_MAX_SIZE);
+    m = max(m, DerivedBatch::POSTCARD_MAX_SIZE);
     m = max(m, TipHealth::POSTCARD_MAX_SIZE);
     m = max(m, StartRun::POSTCARD_MAX_SIZE);
     m = max(m, WindowSetting::POSTCARD_MAX_SIZE);

@@ -637,6 +637,13 @@ impl SimDevice {
                 .get(r.probe as usize)
                 .and_then(|p| p.tip_spacing_mm);
             self.streamer.offer_window(wire_result(&r, fs, spacing));
+            self.streamer.offer_derived(
+                frothline_core::wire::DerivedResult::from_probe_window_with_spacing(
+                    &r,
+                    fs as f32,
+                    spacing.map(|mm| mm as f32),
+                ),
+            );
             // A window cut short (a command, the end of a run) says little of its tips.
             if !r.flags.contains(Flags::PARTIAL_WINDOW) {
                 self.streamer
