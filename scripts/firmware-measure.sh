@@ -1,7 +1,9 @@
 #!/usr/bin/env bash
 # Measure the firmware example against its budget (docs/firmware.md) for 8 dual-tip probes
-# (16 channels at 20 kHz): <= 20 instructions per channel-sample, RAM <= 64 KiB,
-# flash <= 96 KiB.
+# (16 channels at 20 kHz): <= 20 instructions per channel-sample for the full pipeline at
+# practical settings (50 ms windows, levels learnt and tracked), <= 40 at the example's
+# short-window settings, RAM <= 48 KiB, flash <= 96 KiB; and the fraction of time awake
+# (the main loop sleeps in WFI between blocks).
 #
 # - Instructions: QEMU with `-icount shift=0` (one instruction = 1 ns of virtual time; the
 #   DWT cycle counter reads 0 under QEMU), the firmware times its own stages with the
@@ -145,6 +147,50 @@ for name, v in [
 cpu = pipeline * samples / frames * 20000 / 1e6
 print("  -> at 20 kHz x 16 channels the pipeline needs %.0f million instructions per second" % (cpu))
 
+# The parts at practical settings: the streaming of fixed levels, the per-window work at one
+# window per 1000 frames, and what the learner adds (the rest of the measured push).
+pw_frames = 1000
+practical_windows = per_window * (ch // 2) / (pw_frames * ch)
+practical_learning = practical - fixed - practical_windows
+practical_full = practical + practical_records + isr
+print("  parts at practical settings (per channel-sample):")
+for name, v in [
+    ("    streaming, fixed levels (phase detection, tip statistics, pair correlation)", fixed),
+    ("    per-window work (%.0f instructions per probe-window, one per %d frames)" % (per_window, pw_frames), practical_windows),
+    ("    level learner (tracking the levels it learnt; the rest of the push)", practical_learning),
+    ("    records scaled to 50 ms windows", practical_records),
+    ("    acquisition interrupt", isr),
+    ("    full pipeline at practical settings", practical_full),
+]:
+    print("  %-82s %8.1f" % (name, v))
+
+def line_of(tag):
+    for l in open(f"{out}/measure-measure.txt"):
+        if l.startswith("fw." + tag + " "):
+            return {a: int(b) for a, b in (p.split("=", 1) for p in l.split()[1:])}
+    return None
+la, le = line_of("lag_analysis"), line_of("learning")
+if la and le:
+    print("\n# costs of single parts (instructions)")
+    closes = max(la["closes"], 1)
+    print("  %-82s %8.0f" % ("one probe's window close with its lag analysis (61 lags, 1000 frames, 20 bubbles)", la["ticks"] * ipt / closes))
+    print("  %-82s %8.0f" % ("  closing the sums alone (clip, prefix sums, a copy of the sums, restart)", la["close_ticks"] * ipt / closes))
+    print("  %-82s %8.0f" % ("  analysing such a copy (the coefficients and the derived results)", la["analyse_ticks"] * ipt / closes))
+    fed = le["reps"] * ((le["frames"] + 3) // 4)
+    print("  %-82s %8.1f" % ("level learner: one fed sample (histogram bin, offset, min/max)", le["observe_ticks"] * ipt / fed))
+    print("  %-82s %8.0f" % ("level learner: one period's decision (Otsu split, modes)", le["decide_ticks"] * ipt / le["reps"]))
+    print("  %-82s %8.1f" % ("one tip's detector over the capture, per sample: learning (400-frame period)",
+                             le["detect_learnt_ticks"] * ipt / cap_frames))
+    print("  %-82s %8.1f" % ("  ... with fixed levels", le["detect_fixed_ticks"] * ipt / cap_frames))
+
+total_run = int(r["timing.total_ticks"])
+awake = busy_ticks / total_run if total_run else 0.0
+mips_practical = practical_full * samples / frames * 20000 / 1e6
+print("\n# sleep (WFI between blocks), paced run of the capture at 20 kHz x 16 channels")
+print("  awake %.1f %% of the run (the emulated core runs 1000 million instructions per second)" % (100 * awake))
+print("  on a 100 MHz Cortex-M4 at one instruction per cycle: awake %.0f %% at the example's settings, %.0f %% at practical settings"
+      % (cpu, mips_practical))
+
 pf = m.get("profile_fit", {})
 if pf:
     print("\n# profile fit, once per slice of a station chain (instructions per fit)")
@@ -169,15 +215,16 @@ print("  board build (no capture, no self-check digest): %d" % flash(b))
 
 ram = static(e) + stack_run
 targets = [
-    ("<= 20 instructions per channel-sample (full pipeline)", pipeline <= 20, "%.1f" % pipeline),
-    ("RAM <= 64 KiB (static + running stack)", ram <= 64 * KiB, "%d" % ram),
+    ("<= 20 instructions per channel-sample (full pipeline, practical)", practical_full <= 20, "%.1f" % practical_full),
+    ("<= 40 instructions per channel-sample (full pipeline, example)", pipeline <= 40, "%.1f" % pipeline),
+    ("RAM <= 48 KiB (static + running stack)", ram <= 48 * KiB, "%d" % ram),
     ("flash <= 96 KiB without the capture", flash(e) - capture_bytes <= 96 * KiB, "%d" % (flash(e) - capture_bytes)),
     ("flash <= 96 KiB with the capture", flash(e) <= 96 * KiB, "%d" % flash(e)),
 ]
 print("\n# targets")
 missed = 0
 for name, ok, val in targets:
-    print("  %-58s %-6s %s" % (name, "met" if ok else "MISSED", val))
+    print("  %-66s %-6s %s" % (name, "met" if ok else "MISSED", val))
     missed += not ok
 if missed:
     print("\n  largest costs: per-window work %.0f, streaming %.0f (learning %.0f) instructions per"

@@ -384,6 +384,14 @@ impl SumsView<'_> {
         // The overlap of the next lag in the 32-bit stage: `frames - windows * tau`,
         // saturating, one lag after the other (the same values as `overlap`).
         let mut n32 = self.frames as u32;
+        // A 32-bit core has no vector unit for the chunked stages below, and spills their
+        // state: one lag at a time instead (the same coefficients, bit for bit).
+        if cfg!(target_pointer_width = "32") {
+            if let Some(small) = small {
+                self.fill_lag_by_lag(out, small, second_total, stop_at_zero);
+                return;
+            }
+        }
         // Stopping at the first zero, short chunks: R_aa usually falls to 0 within a few
         // lags, and the lags after it are not needed.
         let chunk_len = if stop_at_zero { STOP_CHUNK } else { CHUNK };
@@ -442,6 +450,38 @@ impl SumsView<'_> {
                 return;
             }
             first += len;
+        }
+    }
+}
+
+impl SumsView<'_> {
+    /// The 32-bit stage of [`fill`](Self::fill), one lag at a time: for each lag the same
+    /// operations in the same order as the chunked stages, so the same coefficients bit
+    /// for bit; with `stop_at_zero`, stop at the first lag at or below 0 (the lags after
+    /// it are left as they are, which the chunked form fills to the end of its chunk:
+    /// nothing reads them).
+    fn fill_lag_by_lag(
+        &self,
+        out: &mut [f32],
+        (tail, head, prod): (&[u32], &[u32], &[u64]),
+        second_total: u64,
+        stop_at_zero: bool,
+    ) {
+        let mut n32 = self.frames as u32;
+        let (lead_air, second_total) = (self.lead_air as u32, second_total as u32);
+        let ins = tail.iter().zip(head).zip(prod);
+        for (((&t, &h), &sab), o) in ins.zip(out.iter_mut()) {
+            let (num, va, vb) = pearson_parts_masked(
+                n32,
+                lead_air.saturating_sub(t),
+                second_total.saturating_sub(h),
+                sab.min(u32::MAX as u64) as u32,
+            );
+            n32 = n32.saturating_sub(self.windows);
+            *o = pearson_finish(num, va, vb);
+            if stop_at_zero && *o <= 0.0 {
+                return;
+            }
         }
     }
 }
@@ -792,14 +832,30 @@ fn double_prefix_wide(d: &mut [u64]) {
     }
 }
 
-/// The double prefix sum of the second differences `d` (two's-complement `i32` values), in
-/// place, clamped to `u32` (0 when out of range: exact sums are never negative and fit).
-fn double_prefix_narrow(d: &mut [u32]) {
-    let (mut slope, mut value) = (0i64, 0i64);
+/// [`double_prefix_wide`] for a window of fewer than 2^31 frames, in 32-bit arithmetic:
+/// the low 32 bits of a wrapping sum are the wrapping sum of the low 32 bits, and every
+/// exact sum of such a window (a count of frame pairs) lies in `0..2^31`, so the 32-bit
+/// sums are the sums. Where the 64-bit value would be negative or past 2^31 (only for
+/// inconsistent input), this gives another clamped value; no window of the chain does.
+/// Half the instructions on a 32-bit core.
+fn double_prefix_short(d: &mut [u64]) {
+    let (mut slope, mut value) = (0i32, 0i32);
     for x in d.iter_mut() {
-        slope = slope.wrapping_add(*x as i32 as i64);
+        slope = slope.wrapping_add(*x as u32 as i32);
         value = value.wrapping_add(slope);
-        *x = u32::try_from(value.max(0)).unwrap_or(0);
+        *x = value.max(0) as u64;
+    }
+}
+
+/// The double prefix sum of the second differences `d` (two's-complement `i32` values), in
+/// place, clamped at 0 (exact sums are never negative: they count air frames among at
+/// most `L <= 2^16` frames, so they fit an `i32` throughout).
+fn double_prefix_narrow(d: &mut [u32]) {
+    let (mut slope, mut value) = (0i32, 0i32);
+    for x in d.iter_mut() {
+        slope = slope.wrapping_add(*x as i32);
+        value = value.wrapping_add(slope);
+        *x = value.max(0) as u32;
     }
 }
 
@@ -1073,7 +1129,12 @@ impl<const L: usize> Correlator<L> {
         let lead_air = self.lead_q.wrapping_neg().max(0) as u64;
         let trail_air = self.trail_q.wrapping_neg().max(0) as u64;
         for d in [&mut self.cross, &mut self.auto] {
-            double_prefix_wide(d.get_mut(..lags).unwrap_or(&mut []));
+            let d = d.get_mut(..lags).unwrap_or(&mut []);
+            if frames < 1 << 31 {
+                double_prefix_short(d);
+            } else {
+                double_prefix_wide(d);
+            }
         }
         for d in [&mut self.lead_head, &mut self.trail_head] {
             double_prefix_narrow(d.get_mut(..lags).unwrap_or(&mut []));
@@ -1227,12 +1288,26 @@ impl<const L: usize> Correlator<L> {
 #[inline]
 fn add_line(d: &mut [u64], t: i64, e: i64, se: i64, sq: i64) {
     // D[0] += sum -c p = e (sq - t se);  D[1] += sum c (1 + p) = -e (se (1 - t) + sq).
+    // A tip's edges alternate, so `se` is 0 or 1 and `e` is +1 or -1: those products are
+    // a choice or a negation (64-bit multiplications are several instructions on a 32-bit
+    // core); any other value takes the multiplication. The same wrapping sums either way.
+    let ts = match se {
+        0 => 0,
+        1 => t,
+        _ => t.wrapping_mul(se),
+    };
+    let times_e = |v: i64| match e {
+        1 => v,
+        -1 => v.wrapping_neg(),
+        _ => e.wrapping_mul(v),
+    };
     if let Some(x) = d.first_mut() {
-        *x = x.wrapping_add(e.wrapping_mul(sq.wrapping_sub(t.wrapping_mul(se))) as u64);
+        *x = x.wrapping_add(times_e(sq.wrapping_sub(ts)) as u64);
     }
     if let Some(x) = d.get_mut(1) {
-        let s = se.wrapping_mul(1i64.wrapping_sub(t)).wrapping_add(sq);
-        *x = x.wrapping_sub(e.wrapping_mul(s) as u64);
+        // se (1 - t) = se - t se.
+        let s = se.wrapping_sub(ts).wrapping_add(sq);
+        *x = x.wrapping_sub(times_e(s) as u64);
     }
 }
 
@@ -1325,6 +1400,81 @@ mod tests {
     }
 
     extern crate std;
+
+    /// The lag-by-lag stage a 32-bit core runs gives the chunked stage's coefficients, bit
+    /// for bit (up to the first lag at or below 0 when stopping there): random binary
+    /// signals of several void fractions and lengths, both functions.
+    #[test]
+    fn lag_by_lag_fill_equals_chunked_fill() {
+        let mut x: u64 = 0x853C_49E6_748F_EA9B;
+        let mut next = move || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        };
+        for case in 0..60u64 {
+            let n = 50 + (next() % 3000) as usize;
+            let p_flip = 1 + next() % 40;
+            let (mut a, mut b) = (std::vec::Vec::new(), std::vec::Vec::new());
+            let (mut sa, mut sb) = (false, false);
+            for _ in 0..n {
+                sa ^= next() % 100 < p_flip;
+                sb ^= next() % 100 < p_flip;
+                a.push(sa);
+                b.push(sb);
+            }
+            let mut c = Correlator::<64>::new((20 + case % 44) as u16, 0, false, false);
+            let (ea, eb) = (edges(&a, 0, false), edges(&b, 0, false));
+            let (mut i, mut j) = (0, 0);
+            while i < ea.len() || j < eb.len() {
+                if j >= eb.len() || (i < ea.len() && ea[i].frame <= eb[j].frame) {
+                    c.lead_in_order().edge(ea[i]);
+                    i += 1;
+                } else {
+                    c.trail_in_order().edge(eb[j]);
+                    j += 1;
+                }
+            }
+            let mut flags = Flags::NONE;
+            let sums = c.close(n as u64, &mut flags);
+            let v = sums.view();
+            let lags = v.lags();
+            for auto in [false, true] {
+                for stop in [false, true] {
+                    let (prod, second, total) = if auto {
+                        (v.auto, v.lead_head, v.lead_air)
+                    } else {
+                        (v.cross, v.trail_head, v.trail_air)
+                    };
+                    let mut chunked = [f32::NAN; 64];
+                    let mut single = [f32::NAN; 64];
+                    v.fill(&mut chunked, auto, stop);
+                    v.fill_lag_by_lag(
+                        &mut single,
+                        (&v.lead_tail[..lags], &second[..lags], &prod[..lags]),
+                        total,
+                        stop,
+                    );
+                    let upto = if stop {
+                        chunked[..lags]
+                            .iter()
+                            .position(|&r| r <= 0.0)
+                            .map_or(lags, |k| k + 1)
+                    } else {
+                        lags
+                    };
+                    for k in 0..upto {
+                        assert_eq!(
+                            chunked[k].to_bits(),
+                            single[k].to_bits(),
+                            "case {case} auto {auto} stop {stop} lag {k}"
+                        );
+                    }
+                }
+            }
+        }
+    }
 
     #[test]
     fn sums_equal_direct_sums_on_a_small_case() {

@@ -1,6 +1,9 @@
 //! Air and water levels: thresholds from levels, and levels learnt from the signal.
 //!
-//! Learning keeps a fixed 64-bin histogram of every 4th sample over one learning period.
+//! Learning keeps a fixed 64-bin histogram of every 4th sample over one learning period;
+//! once the tip has levels it tracks them on every 8th or 16th sample when the period is
+//! long enough to leave 128 of them ([`tracking_stride`]), which is most of the learner's
+//! cost spared on a device.
 //! At the end of the period the histogram is split in two classes by Otsu's method (Otsu,
 //! 1979, "A threshold selection method from gray-level histograms"), each class's level is
 //! the mode refined by the mean of the samples in the mode bin and its neighbours, and the
@@ -18,6 +21,26 @@ use micromath::F32Ext;
 pub const LEARN_BINS: usize = 64;
 /// Only every `LEARN_STRIDE`-th frame (by absolute frame index) feeds the histogram.
 pub const LEARN_STRIDE: u64 = 4;
+/// Once a tip has levels, its learner keeps tracking them on fewer frames: every
+/// [`tracking_stride`]-th, at most this many. A learning period then still holds at least
+/// [`TRACK_MIN_SAMPLES`] of them.
+pub const MAX_TRACK_STRIDE: u64 = 16;
+/// Fewest samples per learning period that a tracking stride leaves.
+pub const TRACK_MIN_SAMPLES: u64 = 128;
+
+/// The stride of a learner that tracks levels it already has, for `learn_period` frames: the
+/// largest power of two, from [`LEARN_STRIDE`] to [`MAX_TRACK_STRIDE`], that leaves at least
+/// [`TRACK_MIN_SAMPLES`] samples per period (so [`LEARN_STRIDE`] for periods below
+/// `8 * TRACK_MIN_SAMPLES` frames). A multiple of [`LEARN_STRIDE`], so the tracked frames
+/// are a subset of the learning ones, fixed by absolute frame index.
+pub const fn tracking_stride(learn_period: u64) -> u64 {
+    let mut s = MAX_TRACK_STRIDE;
+    while s > LEARN_STRIDE && learn_period / s < TRACK_MIN_SAMPLES {
+        s /= 2;
+    }
+    s
+}
+
 /// Smallest accepted Otsu separability (between-class over total variance). A single
 /// Gaussian mode gives 2/pi = 0.64; two well-separated modes give close to 1.
 pub const MIN_SEPARABILITY: f32 = 0.75;
@@ -122,29 +145,58 @@ impl LevelLearner {
     /// Feed every `LEARN_STRIDE`-th frame of `frames` (interleaved, `channels` wide) whose
     /// absolute index is a multiple of the stride; `first` is the index of the first frame.
     pub fn observe(&mut self, frames: &[i16], channels: usize, channel: usize, first: u64) {
-        let skip = ((LEARN_STRIDE - first % LEARN_STRIDE) % LEARN_STRIDE) as usize;
+        self.observe_strided(frames, channels, channel, first, LEARN_STRIDE);
+    }
+
+    /// [`observe`](Self::observe) with another stride (a power of two, at least 1): feed
+    /// the frames whose absolute index is a multiple of `stride`.
+    pub fn observe_strided(
+        &mut self,
+        frames: &[i16],
+        channels: usize,
+        channel: usize,
+        first: u64,
+        stride: u64,
+    ) {
+        let stride = stride.max(1);
+        // Powers of two: the remainder is a mask (no 64-bit division on a 32-bit core).
+        let skip = (first.wrapping_neg() & (stride - 1)) as usize;
         let start = skip * channels + channel;
         if start >= frames.len() {
             return;
         }
-        let step = LEARN_STRIDE as usize * channels;
+        let step = stride as usize * channels;
         let (mut lo, mut hi) = (self.min, self.max);
+        let mut i = start;
         if self.ranged {
-            let width = 1i32 << self.shift;
-            for &x in frames[start..].iter().step_by(step) {
+            let (origin, shift) = (self.origin, self.shift);
+            let mask = (1i32 << shift) - 1;
+            while let Some(&x) = frames.get(i) {
                 lo = lo.min(x);
                 hi = hi.max(x);
-                let rel = x as i32 - self.origin;
-                let bin = (rel >> self.shift).clamp(0, LEARN_BINS as i32 - 1);
-                let off = (rel - (bin << self.shift)).clamp(0, width - 1);
-                let b = bin as usize;
-                self.counts[b] = self.counts[b].saturating_add(1);
-                self.offsets[b] = self.offsets[b].saturating_add(off as u32);
+                let rel = x as i32 - origin;
+                let bin = rel >> shift;
+                // Inside the range (the usual case) the sample's offset in its bin is its
+                // low bits; outside it, the end bins take it with the offset clamped to the
+                // bin (0 below the range, the bin width less one above it).
+                let (b, off) = if (bin as u32) < LEARN_BINS as u32 {
+                    (bin as usize, (rel & mask) as u32)
+                } else if rel < 0 {
+                    (0, 0)
+                } else {
+                    (LEARN_BINS - 1, mask as u32)
+                };
+                if let (Some(c), Some(o)) = (self.counts.get_mut(b), self.offsets.get_mut(b)) {
+                    *c = c.saturating_add(1);
+                    *o = o.saturating_add(off);
+                }
+                i += step;
             }
         } else {
-            for &x in frames[start..].iter().step_by(step) {
+            while let Some(&x) = frames.get(i) {
                 lo = lo.min(x);
                 hi = hi.max(x);
+                i += step;
             }
         }
         self.min = lo;
@@ -338,6 +390,73 @@ mod tests {
             let a = s as f32 / n as f32;
             let b = (s as f64 / n as f64) as f32;
             assert_eq!(a.to_bits(), b.to_bits(), "{s} / {n}");
+        }
+    }
+
+    /// The tracking stride: the largest power of two from 4 to 16 with `period / stride >=
+    /// 128` (worked by hand: 400 / 4 = 100, 1024 / 8 = 128, 2047 / 8 = 255 but 2047 / 16
+    /// = 127, 4000 / 16 = 250).
+    #[test]
+    fn tracking_stride_leaves_enough_samples() {
+        for (period, want) in [
+            (64, 4),
+            (400, 4),
+            (1023, 4),
+            (1024, 8),
+            (2047, 8),
+            (2048, 16),
+            (4000, 16),
+            (u64::MAX, 16),
+        ] {
+            assert_eq!(tracking_stride(period), want, "period {period}");
+        }
+    }
+
+    /// The histogram of [`LevelLearner::observe`] is the module's rule, written out per
+    /// sample (the bin of `x - origin` shifted, clamped to the end bins; the offset in the
+    /// bin clamped to the bin): samples inside, below and above the range, any phase of
+    /// the stride, several channels.
+    #[test]
+    fn observe_follows_the_binning_rule() {
+        let mut x: u64 = 0x2545_F491_4F6C_DD1D;
+        let mut next = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        };
+        for case in 0..200 {
+            let channels = 1 + (case % 5) as usize;
+            let channel = case as usize % channels;
+            let first = next() % 9;
+            let frames: std::vec::Vec<i16> = (0..channels * (50 + case as usize * 7))
+                .map(|_| next() as i16)
+                .collect();
+            let mut l = LevelLearner::new();
+            // A narrow range learnt from part of the record, so that many samples fall
+            // outside it.
+            let part = frames.len() / 8;
+            l.observe(&frames[..part - part % channels], channels, channel, first);
+            l.range_from_seen();
+            let mut want = l.clone();
+            l.observe(&frames, channels, channel, first);
+            let width = 1i32 << want.shift;
+            for (i, f) in frames.chunks_exact(channels).enumerate() {
+                if !(first + i as u64).is_multiple_of(LEARN_STRIDE) {
+                    continue;
+                }
+                let v = f[channel];
+                want.min = want.min.min(v);
+                want.max = want.max.max(v);
+                let rel = v as i32 - want.origin;
+                let bin = (rel >> want.shift).clamp(0, LEARN_BINS as i32 - 1);
+                let off = (rel - (bin << want.shift)).clamp(0, width - 1);
+                want.counts[bin as usize] += 1;
+                want.offsets[bin as usize] += off as u32;
+            }
+            assert_eq!(l.counts, want.counts, "case {case}");
+            assert_eq!(l.offsets, want.offsets, "case {case}");
+            assert_eq!((l.min, l.max), (want.min, want.max), "case {case}");
         }
     }
 

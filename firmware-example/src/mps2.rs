@@ -402,8 +402,99 @@ fn end_of_run(
             measure_streaming(chain, &clock, v);
         }
         measure_profile_fit(&clock);
+        measure_learning(&clock);
     }
     pass
+}
+
+/// The level learner's two costs on the capture's first channel: feeding it (every
+/// `LEARN_STRIDE`-th frame of the capture, ten times) and deciding a period (ten times).
+#[inline(never)]
+fn measure_learning<C: Clock>(clock: &C) {
+    use frothline_core::levels::LevelLearner;
+    let ch = capture::CHANNELS as usize;
+    let mut block = [0i16; BLOCK_SAMPLES];
+    let mut l = LevelLearner::new();
+    let mut src = ReplaySource::new(capture::SAMPLES, ch);
+    let n = src.fill(&mut block[..BLOCK_FRAMES * ch]).unwrap_or(0);
+    l.observe(&block[..n * ch], ch, 0, 0);
+    l.range_from_seen();
+    const REPS: u32 = 10;
+    let t0 = clock.now();
+    for _ in 0..REPS {
+        l.observe(core::hint::black_box(&block[..n * ch]), ch, 0, 0);
+    }
+    let observe = clock.now().wrapping_sub(t0);
+    let t0 = clock.now();
+    let mut modes = 0;
+    for _ in 0..REPS {
+        let d = core::hint::black_box(&l).decide_with_min_class(64, 2);
+        modes += matches!(d, frothline_core::levels::Learnt::Modes { .. }) as u32;
+    }
+    let decide = clock.now().wrapping_sub(t0);
+    // One tip's detector over the whole capture, learning and with fixed levels.
+    let mut detect = [0u32; 2];
+    for (k, fixed) in [false, true].into_iter().enumerate() {
+        let mut tip = capture::PROBE_CONFIGS[0].leading;
+        if fixed {
+            tip.levels = frothline_core::LevelSource::Fixed { air: 26000, water: 3000 };
+        }
+        let mut d = frothline_core::PhaseDetector::new(&tip, &capture::DETECTOR, false);
+        let mut src = ReplaySource::new(capture::SAMPLES, ch);
+        let mut at = 0u64;
+        loop {
+            let n = src.fill(&mut block[..BLOCK_FRAMES * ch]).unwrap_or(0);
+            if n == 0 {
+                break;
+            }
+            let t0 = clock.now();
+            d.process(&block[..n * ch], ch, at, &mut ());
+            detect[k] += clock.now().wrapping_sub(t0);
+            at += n as u64;
+        }
+    }
+    // One probe's lag analysis at a window close: a correlator of the firmware's lags over
+    // a 1000-frame window of 20 bubbles of 12 frames, the trailing tip 5 frames behind.
+    let (mut close, mut sums_t, mut analyse_t) = (0u32, 0u32, 0u32);
+    {
+        use frothline_core::{EdgeSink, Correlator, Edge, Flags};
+        let mut c = Correlator::<{ crate::config::LAGS }>::new(60, 0, false, false);
+        for rep in 0..REPS as u64 {
+            let base = rep * 1000;
+            for b in 0..20u64 {
+                let t = base + b * 50 + 3;
+                for (at, to_air) in [(t, true), (t + 12, false)] {
+                    c.lead_in_order().edge(Edge { frame: at, to_air });
+                    c.trail_in_order().edge(Edge { frame: at + 5, to_air });
+                }
+            }
+            let mut flags = Flags::NONE;
+            let t0 = clock.now();
+            if rep % 2 == 0 {
+                let r = c.close_analysed(base + 1000, 0.3, &mut flags);
+                close += clock.now().wrapping_sub(t0);
+                core::hint::black_box(r);
+            } else {
+                let sums = c.close(base + 1000, &mut flags);
+                let t1 = clock.now();
+                sums_t += t1.wrapping_sub(t0);
+                let r = sums.analyse(0.3);
+                analyse_t += clock.now().wrapping_sub(t1);
+                core::hint::black_box(r);
+            }
+        }
+    }
+    report!("fw.lag_analysis closes={} ticks={} close_ticks={} analyse_ticks={}", REPS / 2, close, sums_t, analyse_t);
+    report!(
+        "fw.learning frames={} reps={} observe_ticks={} decide_ticks={} modes={} detect_learnt_ticks={} detect_fixed_ticks={}",
+        n,
+        REPS,
+        observe,
+        decide,
+        modes,
+        detect[0],
+        detect[1]
+    );
 }
 
 /// Fits timed by [`measure_profile_fit`].
