@@ -41,7 +41,7 @@ pub const ONE_PHASE_SHARE: f64 = 0.99;
 /// segment's samples (and at least [`MIN_CLASS_SAMPLES`]) lie within it; else `None`.
 pub fn one_phase_level(coarse: &[u32], bin: usize, swing: f32) -> Option<f32> {
     let total: f64 = coarse.iter().map(|&c| c as f64).sum();
-    if total < MIN_CLASS_SAMPLES as f64 || !(swing > 0.0) || bin == 0 {
+    if total < MIN_CLASS_SAMPLES as f64 || swing.is_nan() || swing <= 0.0 || bin == 0 {
         return None;
     }
     let centre_of = |b: usize| (b * bin + bin / 2) as f64 - 32768.0;
@@ -134,7 +134,7 @@ pub fn apply_due(chain: &mut StationChain, schedule: &LevelSchedule, probes: &[u
     }
     let at = chain.processed_frames();
     let pending = chain.pending_samples();
-    if at % seg == 0 && pending == 0 {
+    if at.is_multiple_of(seg) && pending == 0 {
         let k = (at / seg) as usize;
         for (probe, trailing, levels) in &schedule.tips {
             let local = probes.iter().position(|p| p == probe);
