@@ -5,40 +5,54 @@
 # when the run hits the time limit.
 #
 # Usage: bash scripts/firmware-run.sh [MODE] [options]
-#   MODE            run (default) | adc | overrun | measure | logger | commands (see firmware-example/src/mps2.rs);
+#   MODE            run (default) | adc | overrun | measure | logger | commands | boot | instrument | field (see firmware-example/src/mps2.rs);
 #                   logger builds the field-logger firmware (surge capture, station chain) and
 #                   writes the field log's flash image, sent out of UART1, to --log
-#   --uart PATH     UART0 to PATH (default target/firmware/uart-MODE.bin); `stdio` for stdout
+#   --uart PATH     UART0 to PATH (default target/firmware/uart-MODE.bin); `stdio` for stdout;
+#                   `pty` for a pseudo-terminal a host tool opens (QEMU prints its path)
 #   --uart-in PATH  UART0's receiver reads PATH (host commands; mode `commands`)
 #   --icount SHIFT  QEMU -icount shift: one instruction = 2^SHIFT ns (default 0: 1000 MIPS;
-#                   4 = 62.5 MIPS, a Cortex-M4F at 60-100 MHz, where this pipeline overruns)
+#                   4 = 62.5 MIPS, a Cortex-M4F at 60-100 MHz, where this pipeline overruns);
+#                   `off`: no instruction counting, the board's clock runs in host time
+#                   (mode instrument, talking to a host tool in real time)
 #   --timeout SEC   wall-clock limit (default 60)
 #   --features F    extra cargo features (e.g. defmt-semihosting: decode stdout with defmt-print)
 #   --log PATH      logger mode: the flash image (default target/firmware/fieldlog-image.bin)
+#   --settings PATH the settings flash (3 x 4 KiB NOR, kept in a file) survives the run in
+#                   PATH: loaded from it when it exists, written back after (a reboot of the
+#                   emulated board keeps its settings); without it every run starts from a
+#                   factory-fresh store
 #   --verify        after the run, decode the UART file and check every window result
 #                   against a host replay of the same capture (needs the host tool to build);
 #                   logger mode: the flash image too (frothline-capture-gen verify-log)
 set -uo pipefail
 cd "$(dirname "$0")/.."
-mode=run uart="" uart_in="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
+mode=run uart="" uart_in="" settings="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
 while [ $# -gt 0 ]; do
     case "$1" in
-        run|adc|overrun|measure|logger|commands) mode=$1 ;;
+        run|adc|overrun|measure|logger|commands|boot|instrument|field) mode=$1 ;;
         --uart) uart=$2; shift ;;
         --uart-in) uart_in=$2; shift ;;
         --icount) shift_=$2; shift ;;
         --timeout) secs=$2; shift ;;
         --features) features=$2; shift ;;
         --log) log=$2; shift ;;
+        --settings) settings=$2; shift ;;
         --verify) verify=1 ;;
-        -h|--help) sed -n '2,23p' "$0"; exit 0 ;;
+        -h|--help) sed -n '2,28p' "$0"; exit 0 ;;
         *) echo "firmware-run: unknown argument $1" >&2; exit 2 ;;
     esac
     shift
 done
 mkdir -p target/firmware
 [ -n "$uart" ] || uart=target/firmware/uart-$mode.bin
-if [ "$uart" = stdio ]; then serial=(-serial stdio); else serial=(-serial "file:$uart"); fi
+case "$uart" in
+    stdio) serial=(-serial stdio) ;;
+    pty) serial=(-serial pty) ;;
+    *) serial=(-serial "file:$uart") ;;
+esac
+icount=(-icount "shift=$shift_,sleep=off")
+[ "$shift_" = off ] && icount=()
 fifo_dir=""
 if [ -n "$uart_in" ] && [ "$uart" != stdio ]; then
     # A pipe chardev (QEMU 7 has no input file for a file chardev): QEMU reads UART0's
@@ -55,6 +69,11 @@ fi
 
 capture=firmware-example/capture
 second_serial=()
+if [ "$mode" = field ]; then
+    # The field-logger build; its log is read over UART0 (ReadLog), UART1 unused.
+    features="field-logger${features:+,$features}"
+    capture=firmware-example/capture-surge
+fi
 if [ "$mode" = logger ]; then
     features="field-logger${features:+,$features}"
     capture=firmware-example/capture-surge
@@ -67,11 +86,17 @@ qemu=$(bash scripts/fetch-qemu.sh) || { echo "firmware-run: no QEMU" >&2; exit 2
     || { echo "firmware-run: build failed" >&2; exit 2; }
 elf=firmware-example/target/thumbv7em-none-eabihf/release/frothline-firmware-example
 
+# The firmware opens target/firmware/settings.nor (relative to QEMU's working directory).
+rm -f target/firmware/settings.nor
+[ -n "$settings" ] && [ -f "$settings" ] && cp "$settings" target/firmware/settings.nor
 timeout "$secs" "$qemu" -machine mps2-an386 -nographic -monitor none \
     -semihosting-config "enable=on,target=native,arg=$mode" \
-    -icount "shift=$shift_,sleep=off" \
+    "${icount[@]}" \
     "${serial[@]}" "${second_serial[@]}" -kernel "$elf"
 rc=$?
+if [ -n "$settings" ] && [ -f target/firmware/settings.nor ]; then
+    cp target/firmware/settings.nor "$settings"
+fi
 if [ -n "$fifo_dir" ]; then
     # The copier of the output ends at QEMU's end of file; give it 5 s at most (it would
     # wait for ever if QEMU never opened the pipe).

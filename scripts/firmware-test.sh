@@ -17,7 +17,14 @@
 #   commands host commands fed to UART0's receiver from a file (one of every answer of
 #            docs/wire-protocol.md section 8: repeats, already running, unknown kind,
 #            version, malformed, bad argument, busy, not running, an echo and line noise
-#            unanswered); every answer checked in order on the host (skipped with --no-host)
+#            unanswered) and every command carried out; every answer checked in order on the
+#            host (skipped with --no-host); the settings store kept in a file
+#   watch    the firmware as an instrument on a pty (real time), driven by `frothline watch
+#            --start-run bench1 --set-window 100ms`, powered off and booted again: labelled
+#            0.1 s windows, a dated run, the window stored and reported after the reboot
+#            (scripts/firmware-watch.sh; skipped with --no-host)
+#   reboot   the firmware booted again on that store: the window and levels the commands
+#            set are loaded, reported (Describe, fw.settings) and used (skipped with --no-host)
 # Prints "N passed, N failed" and exits non-zero on any failure.
 set -uo pipefail
 cd "$(dirname "$0")/.."
@@ -58,12 +65,27 @@ if [ $host -eq 1 ]; then
     check logbook logbook
     commands() {
         local gen=(cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml --)
+        rm -f target/firmware/settings-kept.nor
         "${gen[@]}" commands-in target/firmware/commands-in.bin \
-            && bash scripts/firmware-run.sh commands --icount 0 \
+            && bash scripts/firmware-run.sh commands --icount 0 --settings target/firmware/settings-kept.nor \
                 --uart target/firmware/uart-commands.bin --uart-in target/firmware/commands-in.bin \
             && "${gen[@]}" verify-commands target/firmware/uart-commands.bin
     }
     check commands commands
+    # Reboot on the settings the commands left in flash: they are loaded, reported, used.
+    reboot() {
+        local gen=(cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml --)
+        local out=target/firmware/boot-console.txt
+        bash scripts/firmware-run.sh boot --icount 0 --settings target/firmware/settings-kept.nor \
+                --uart target/firmware/uart-boot.bin > "$out" 2>&1
+        local rc=$?
+        cat "$out"
+        [ $rc -eq 0 ] \
+            && grep -q "fw.settings loaded store=true records=2 device_id=0x0f1e window=frames window_frames=1000 fixed_tips=1 probe0_leading_air=26000 probe0_leading_water=3000" "$out" \
+            && "${gen[@]}" verify-boot target/firmware/uart-boot.bin
+    }
+    check reboot reboot
+    check watch bash scripts/firmware-watch.sh
 else
     check logger bash scripts/firmware-run.sh logger --icount 0
 fi

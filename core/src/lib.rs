@@ -19,6 +19,7 @@
 //! - [`chain`]: the streaming pipeline that ties them together;
 //! - [`record`] and [`flags`]: what comes out; [`wire`]: records as frames (it depends on
 //!   the records, never the other way round); [`logbook`]: frames kept on NOR flash;
+//! - [`derived`]: chord lengths, interfacial area, Sauter diameter, particle grouping;
 //! - transient flows: [`front`] (arrival of a surge front), [`station`] (a chain as one
 //!   station: front-relative windows, profile slices), [`profile`] (the void-fraction
 //!   profile fit), [`decay`] (the decay of the depth-averaged void fraction).
@@ -28,9 +29,11 @@
 
 pub mod chain;
 pub mod chord;
+pub mod cluster;
 pub mod config;
 pub mod correlation;
 pub mod decay;
+pub mod derived;
 pub mod flags;
 pub mod front;
 pub mod levels;

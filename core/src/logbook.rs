@@ -440,6 +440,17 @@ impl<F: NorFlash> Logbook<F> {
         (self.page_bytes - Self::header_len(self.unit)) / r
     }
 
+    /// Read raw bytes of the region at `offset` (a dump of the flash, for a host that reads
+    /// the log over a link as it would read an image): no record is interpreted.
+    pub fn read_raw(&mut self, offset: u32, buf: &mut [u8]) -> Result<(), LogError> {
+        self.flash.read(offset, buf).map_err(|_| LogError::Flash)
+    }
+
+    /// Bytes of the region.
+    pub fn capacity(&self) -> usize {
+        self.flash.capacity()
+    }
+
     /// Give the flash back.
     pub fn into_inner(self) -> F {
         self.flash

@@ -1,6 +1,7 @@
 //! The records the chain produces.
 
 use crate::chord::ChordStats;
+use crate::cluster::ClusterStats;
 use crate::correlation::{CorrelationResult, CorrelationSums, DEFAULT_LAGS};
 use crate::flags::Flags;
 use crate::levels::Levels;
@@ -35,6 +36,9 @@ pub struct TipStats {
     pub bubble_chords: ChordStats,
     /// Chords of the droplets (water between bubbles) with a known start, samples.
     pub droplet_chords: ChordStats,
+    /// Particle grouping: bubbles followed by a water chord shorter than their own chord
+    /// (see [`crate::derived`]).
+    pub clusters: ClusterStats,
     /// The levels in use when the window closed.
     pub levels: Option<Levels>,
     /// Quality flags of this tip.
@@ -52,6 +56,7 @@ impl TipStats {
         droplets: 0,
         bubble_chords: ChordStats::ZERO,
         droplet_chords: ChordStats::ZERO,
+        clusters: ClusterStats::ZERO,
         levels: None,
         flags: Flags::NONE,
     };

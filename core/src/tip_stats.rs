@@ -3,6 +3,7 @@
 //! See [`crate::record::TipStats`] for how chords that straddle a window edge are counted.
 
 use crate::chord::ChordStats;
+use crate::cluster::ClusterTally;
 use crate::flags::Flags;
 use crate::levels::Levels;
 use crate::phase::{Edge, EdgeSink, RunCounts};
@@ -21,6 +22,7 @@ pub struct TipAccumulator {
     droplets: u32,
     bubble_chords: ChordStats,
     droplet_chords: ChordStats,
+    clusters: ClusterTally,
 }
 
 impl Default for TipAccumulator {
@@ -41,6 +43,7 @@ impl TipAccumulator {
         droplets: 0,
         bubble_chords: ChordStats::ZERO,
         droplet_chords: ChordStats::ZERO,
+        clusters: ClusterTally::ZERO,
     };
 
     /// An empty accumulator at the start of a record.
@@ -55,6 +58,7 @@ impl TipAccumulator {
             droplets: 0,
             bubble_chords: ChordStats::new(),
             droplet_chords: ChordStats::new(),
+            clusters: ClusterTally::ZERO,
         }
     }
 
@@ -94,6 +98,7 @@ impl TipAccumulator {
         stats.droplets = self.droplets;
         stats.bubble_chords.clone_from(&self.bubble_chords);
         stats.droplet_chords.clone_from(&self.droplet_chords);
+        stats.clusters = self.clusters.stats;
         stats.levels = levels;
         stats.flags = flags;
         // Start the next window (as `new()`, keeping `since`), field by field: no
@@ -106,6 +111,7 @@ impl TipAccumulator {
         self.droplets = 0;
         self.bubble_chords.clear();
         self.droplet_chords.clear();
+        self.clusters.clear();
     }
 }
 
@@ -120,11 +126,13 @@ impl EdgeSink for TipAccumulator {
             if let Some(c) = chord {
                 self.droplet_chords.add(c);
             }
+            self.clusters.water_closed(chord);
         } else {
             self.bubbles = self.bubbles.saturating_add(1);
             if let Some(c) = chord {
                 self.bubble_chords.add(c);
             }
+            self.clusters.bubble_closed(chord);
         }
         self.since = Some(e.frame);
     }

@@ -7,9 +7,9 @@
 
 use frothline_core::wire::{
     self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, Decoder,
-    DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, Nack, NackReason,
-    ProbeLayout, ProfileFit, Relearn, RunStart, SeqCheck, SetLevels, StartRun, Streamer,
-    StreamerConfig, TipHealth, TipLevels, TipReport, TipState, TrailingTip, WindowResult,
+    DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, LogChunk, Nack, NackReason,
+    ProbeLayout, ProfileFit, ReadLog, Relearn, RunStart, SeqCheck, SetClock, SetLevels, StartRun,
+    Streamer, StreamerConfig, TipHealth, TipLevels, TipReport, TipState, TrailingTip, WindowResult,
     WindowSetting, Windows, LABEL_BYTES, MAX_FRAME_BYTES, MAX_PROBES, MAX_TIPS_PER_FRAME,
     MAX_WINDOWS_PER_FRAME,
 };
@@ -253,6 +253,52 @@ fn sample_frames() -> Vec<Frame> {
                 water: -3_000,
             }),
         ),
+        host(
+            7,
+            Body::SetClock(SetClock {
+                utc_ms: 1_700_000_000_123,
+            }),
+        ),
+        host(8, Body::ReadLog(ReadLog { offset: 4096 })),
+        dev(
+            308,
+            Body::LogChunk(LogChunk {
+                offset: 4096,
+                total: 65536,
+                data: heapless::Vec::from_slice(&[0x47, 0x4C, 0x4C, 0x46, 0x01, 0x00, 0xFF])
+                    .unwrap(),
+            }),
+        ),
+        dev(
+            308,
+            Body::Derived(
+                [
+                    frothline_core::wire::DerivedResult {
+                        probe: 1,
+                        start: 4000,
+                        chord_lengths: Some(frothline_core::wire::ChordLengths {
+                            mean: 412,
+                            median: 305,
+                            p90: 890,
+                        }),
+                        interfacial_area: Some(1725),
+                        sauter_diameter: Some(3480),
+                        judged: 60,
+                        pairs: 9,
+                        clusters: 7,
+                        clustered: 16,
+                        random_pair_probability: Some(1420),
+                    },
+                    frothline_core::wire::DerivedResult {
+                        probe: 2,
+                        start: 4000,
+                        ..Default::default()
+                    },
+                ]
+                .into_iter()
+                .collect(),
+            ),
+        ),
         dev(308, Body::TipHealth(sample_tip_health())),
     ]
 }
@@ -426,6 +472,35 @@ fn largest_frames() -> Vec<Frame> {
             seq: u16::MAX,
             reason: NackReason::Other(u8::MAX),
         })),
+        f(Body::SetClock(SetClock { utc_ms: u64::MAX })),
+        f(Body::ReadLog(ReadLog { offset: u32::MAX })),
+        f(Body::LogChunk(LogChunk {
+            offset: u32::MAX,
+            total: u32::MAX,
+            data: heapless::Vec::from_slice(&[0xFF; wire::LOG_CHUNK_BYTES]).unwrap(),
+        })),
+        f(Body::Derived(
+            std::iter::repeat_n(
+                frothline_core::wire::DerivedResult {
+                    probe: u8::MAX,
+                    start: u64::MAX,
+                    chord_lengths: Some(frothline_core::wire::ChordLengths {
+                        mean: u32::MAX,
+                        median: u32::MAX,
+                        p90: u32::MAX,
+                    }),
+                    interfacial_area: Some(u32::MAX),
+                    sauter_diameter: Some(u32::MAX),
+                    judged: u32::MAX,
+                    pairs: u32::MAX,
+                    clusters: u32::MAX,
+                    clustered: u32::MAX,
+                    random_pair_probability: Some(u16::MAX),
+                },
+                8,
+            )
+            .collect(),
+        )),
         f(Body::TipHealth({
             let tip = TipState {
                 levels: Some(TipLevels {
@@ -596,6 +671,17 @@ fn golden_set_levels_by_hand() {
     let (version, device, kind, seq, body) = ref_parse(&enc(f));
     assert_eq!((version, device, kind, seq), (2, 0xFFFF, 0x26, 6));
     assert_eq!(body, [0x02, 0x01, 0x98, 0x88, 0x03, 0xEF, 0x2E]);
+}
+
+/// SetClock { utc_ms 1 700 000 000 123 } from the host, seq 7, worked by hand from
+/// docs/wire-protocol.md: the body is the LEB128 varint of the milliseconds, 7 bits at a
+/// time from the lowest: fb d0 95 ff bc 31.
+#[test]
+fn golden_set_clock_by_hand() {
+    let f = &sample_frames()[14];
+    let (version, device, kind, seq, body) = ref_parse(&enc(f));
+    assert_eq!((version, device, kind, seq), (2, 0xFFFF, 0x25, 7));
+    assert_eq!(body, [0xFB, 0xD0, 0x95, 0xFF, 0xBC, 0x31]);
 }
 
 #[test]
@@ -1227,6 +1313,18 @@ fn arb_body() -> impl Strategy<Value = Body> {
                 water
             })
         ),
+        any::<u64>().prop_map(|utc_ms| Body::SetClock(SetClock { utc_ms })),
+        any::<u32>().prop_map(|offset| Body::ReadLog(ReadLog { offset })),
+        (
+            any::<u32>(),
+            any::<u32>(),
+            proptest::collection::vec(any::<u8>(), 0..=wire::LOG_CHUNK_BYTES)
+        )
+            .prop_map(|(offset, total, d)| Body::LogChunk(LogChunk {
+                offset,
+                total,
+                data: heapless::Vec::from_slice(&d).unwrap(),
+            })),
         any::<u16>().prop_map(|seq| Body::Ack(Ack { seq })),
         (any::<u16>(), any::<u8>()).prop_map(|(seq, r)| Body::Nack(Nack {
             seq,

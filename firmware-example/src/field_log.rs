@@ -104,7 +104,10 @@ impl<F: NorFlash> FieldLog<F> {
     fn emit(&mut self, body: Body, route: Route) {
         // Each capture opens with the device description, straight into the log.
         if route == Route::Front && self.logger.state() == LoggerState::Armed {
-            self.emit(Body::Describe(crate::link::description()), Route::Log);
+            self.emit(
+                Body::Describe(crate::link::description(crate::link::default_window())),
+                Route::Log,
+            );
         }
         let frame = Frame {
             device: DEVICE_ID,
@@ -178,6 +181,12 @@ impl<F: NorFlash> ResultTap for FieldLog<F> {
     fn health(&mut self, h: Health) {
         self.flush();
         self.emit(Body::Health(h), Route::Logger);
+    }
+
+    fn read_region(&mut self, offset: u32, buf: &mut [u8]) -> Option<u32> {
+        let total = self.book.capacity() as u32;
+        self.book.read_raw(offset, buf).ok()?;
+        Some(total)
     }
 
     fn flush(&mut self) {

@@ -11,8 +11,8 @@ use crate::capture;
 use crate::config::{FwRecord, BAUD, DEVICE_ID, STREAM_WINDOWS};
 use embedded_io::Write;
 use frothline_core::wire::{
-    quant, Body, DeviceDescription, FrontArrival, Health, ProfileFit, Reply, RunStart, Streamer,
-    StreamerConfig, WindowResult, WindowSetting,
+    quant, Body, DerivedResult, DeviceDescription, FrontArrival, Health, ProfileFit, Reply,
+    RunStart, Streamer, StreamerConfig, WindowResult, WindowSetting,
 };
 
 /// Firmware version, as the device description carries it.
@@ -29,6 +29,8 @@ pub struct Link<W> {
     streamer: Streamer<STREAM_WINDOWS>,
     sample_rate_hz: f32,
     write_errors: u32,
+    /// The window policy in use, as the description reports it.
+    window: WindowSetting,
 }
 
 impl<W: Write> Link<W> {
@@ -43,18 +45,48 @@ impl<W: Write> Link<W> {
             }),
             sample_rate_hz: sample_rate_hz as f32,
             write_errors: 0,
+            window: default_window(),
+        }
+    }
+
+    /// A link whose frames carry `device_id` (the stored settings' id).
+    pub fn with_device_id(tx: W, sample_rate_hz: u32, device_id: u16) -> Self {
+        let mut l = Self::new(tx, sample_rate_hz);
+        l.streamer = Streamer::new(StreamerConfig {
+            burst_bytes: TX_BURST_BYTES,
+            ..StreamerConfig::uart_8n1(device_id, BAUD, sample_rate_hz)
+        });
+        l
+    }
+
+    /// The window policy the description reports from now on.
+    pub fn set_window(&mut self, policy: frothline_core::WindowPolicy) {
+        if let Some(w) = WindowSetting::from_policy(&policy) {
+            self.window = w;
         }
     }
 
     /// Queue the device description (sent first).
     pub fn describe(&mut self) {
-        self.streamer.offer(Body::Describe(description()));
+        self.streamer
+            .offer(Body::Describe(description(self.window)));
     }
 
-    /// Queue the window result of one record; returns it.
-    pub fn record(&mut self, rec: &FwRecord) -> WindowResult {
-        let w = wire_result(rec, self.sample_rate_hz);
+    /// Queue the window result of one record and its derived figures (kind 0x08), its
+    /// start `offset` frames later (the frame of the run where the chain began); returns
+    /// the window result.
+    pub fn record(&mut self, rec: &FwRecord, offset: u64) -> WindowResult {
+        let mut w = wire_result(rec, self.sample_rate_hz);
+        w.start = w.start.saturating_add(offset);
         self.streamer.offer_window(w);
+        let spacing_mm = capture::TIP_SPACING_MM
+            .get(rec.probe as usize)
+            .copied()
+            .flatten();
+        let mut derived =
+            DerivedResult::from_probe_window_with_spacing(rec, self.sample_rate_hz, spacing_mm);
+        derived.start = derived.start.saturating_add(offset);
+        self.streamer.offer_derived(derived);
         w
     }
 
@@ -72,6 +104,11 @@ impl<W: Write> Link<W> {
     /// command that started it).
     pub fn run_start(&mut self, r: RunStart) {
         self.streamer.offer(Body::RunStart(r));
+    }
+
+    /// Queue a chunk of the field log region (urgent: it precedes the ReadLog's Ack).
+    pub fn log_chunk(&mut self, c: frothline_core::wire::LogChunk) {
+        self.streamer.offer(Body::LogChunk(c));
     }
 
     /// Queue the answer to a host command (urgent).
@@ -137,13 +174,18 @@ pub fn wire_result(rec: &FwRecord, sample_rate_hz: f32) -> WindowResult {
     WindowResult::from_probe_window_with_spacing(rec, sample_rate_hz, spacing_mm)
 }
 
-/// The device description: the capture's rate, channels, window and probe layout.
-pub fn description() -> DeviceDescription {
+/// The capture's window policy as the wire writes it.
+pub fn default_window() -> WindowSetting {
+    WindowSetting::from_policy(&capture::WINDOW).unwrap_or(WindowSetting::Whole)
+}
+
+/// The device description: the capture's rate, channels and probe layout, the window in use.
+pub fn description(window: WindowSetting) -> DeviceDescription {
     let mut d = DeviceDescription {
         firmware: heapless::String::new(),
         sample_rate_millihz: quant::sample_rate(capture::SAMPLE_RATE_HZ as f32),
         channels: capture::CHANNELS,
-        window: WindowSetting::from_policy(&capture::WINDOW).unwrap_or(WindowSetting::Whole),
+        window,
         probes: heapless::Vec::new(),
     };
     let _ = d.firmware.push_str(FIRMWARE);

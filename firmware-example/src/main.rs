@@ -42,6 +42,7 @@ pub mod field_log;
 pub mod link;
 pub mod pipeline;
 pub mod replay;
+pub mod settings;
 pub mod source;
 #[allow(unsafe_code)]
 pub mod sys;
@@ -50,6 +51,8 @@ pub mod sys;
 pub mod cmsdk_timer;
 #[cfg(feature = "emulated-mps2")]
 pub mod cmsdk_uart;
+#[cfg(feature = "emulated-mps2")]
+pub mod host_nor;
 #[cfg(feature = "emulated-mps2")]
 mod mps2;
 #[cfg(feature = "field-logger")]

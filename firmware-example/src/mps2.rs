@@ -20,8 +20,14 @@
 //!   StopRun ended the run and the link dropped nothing; `scripts/firmware-test.sh` feeds
 //!   the commands from a file and checks every answer on the host
 //!   (`frothline-capture-gen commands-in` / `verify-commands`).
-//! - Every mode answers host commands the same way while it runs (none arrive in the
-//!   other checks).
+//! - `boot`: `run` after a reboot that must find stored settings (the settings store,
+//!   [`crate::settings`], kept in a host file between QEMU runs: see `stored`): the chain
+//!   runs with them, so its records differ from the host replay's. Passes when stored
+//!   settings were loaded and the link dropped nothing; `scripts/firmware-test.sh` checks
+//!   the settings reported and the UART frames (`frothline-capture-gen verify-boot`).
+//! - Every mode loads its settings from the store at power-on (a factory-fresh store, the
+//!   capture's defaults, unless the runner keeps one), and answers host commands the
+//!   same way while it runs (none arrive in the other checks).
 //!
 //! - `logger` (field-logger build only, `--features field-logger`: the surge capture and a
 //!   station chain): `run`, and every result also goes to the field logger
@@ -31,6 +37,10 @@
 //!   and its records counted, and the region's image goes out of UART1 (QEMU's second
 //!   `-serial`) for `frothline logbook`. Passes as `run` does, and when a front triggered
 //!   the capture, nothing was dropped and the fresh mount finds every logged record.
+//!
+//! - `field` (field-logger build): `logger`, then the board stays up answering commands
+//!   until QEMU is stopped, so a host reads the log over the link with ReadLog
+//!   (`frothline logbook --port`), as from a board left powered after a deployment.
 //!
 //! Every mode ends with `key=value` summary lines on the semihosting console and exits
 //! QEMU with status 0 (pass) or 1 (fail).
@@ -79,6 +89,9 @@ enum Mode {
     Measure,
     Logger,
     Commands,
+    Boot,
+    Instrument,
+    Field,
 }
 
 impl Mode {
@@ -94,6 +107,9 @@ impl Mode {
             Some("measure") => Some(Mode::Measure),
             Some("logger") => Some(Mode::Logger),
             Some("commands") => Some(Mode::Commands),
+            Some("boot") => Some(Mode::Boot),
+            Some("instrument") => Some(Mode::Instrument),
+            Some("field") => Some(Mode::Field),
             Some(_) if words == 1 => Some(Mode::Run),
             Some(_) => None,
         }
@@ -107,6 +123,9 @@ impl Mode {
             Mode::Measure => "measure",
             Mode::Logger => "logger",
             Mode::Commands => "commands",
+            Mode::Boot => "boot",
+            Mode::Instrument => "instrument",
+            Mode::Field => "field",
         }
     }
 }
@@ -183,7 +202,7 @@ fn main() -> ! {
         Some(mode) => run(mode),
         None => {
             report!(
-                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands",
+                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands | boot | instrument | field",
                 arg
             );
             false
@@ -232,7 +251,7 @@ fn run(mode: Mode) -> bool {
     let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
     #[cfg(feature = "field-logger")]
     let mut log = match mode {
-        Mode::Logger => match logger::mount() {
+        Mode::Logger | Mode::Field => match logger::mount() {
             Some(l) => Some(l),
             None => {
                 report!("fw.error the field log did not mount");
@@ -242,7 +261,7 @@ fn run(mode: Mode) -> bool {
         _ => None,
     };
     #[cfg(not(feature = "field-logger"))]
-    if mode == Mode::Logger {
+    if matches!(mode, Mode::Logger | Mode::Field) {
         report!("fw.error mode `logger` needs the field-logger build (--features field-logger)");
         return false;
     }
@@ -250,6 +269,10 @@ fn run(mode: Mode) -> bool {
     #[cfg(feature = "field-logger")]
     if let Some(l) = log.as_mut() {
         pipe.set_tap(l);
+    }
+    let loaded = stored::load(&mut pipe);
+    if mode == Mode::Instrument {
+        pipe.idle_at_power_on();
     }
     pipe.start();
     let block_ticks =
@@ -276,8 +299,11 @@ fn run(mode: Mode) -> bool {
         syst.clear_current();
         syst.enable_interrupt();
         syst.enable_counter();
-        while !pipe.done() && !pipe.stopped() {
-            pipe.serve_commands(COMMAND_BYTES_PER_LOOP);
+        let mut seen = (pipe.run_state().run, pipe.saves());
+        while !pipe.done() {
+            if pipe.serve_commands(COMMAND_BYTES_PER_LOOP) > 0 && mode == Mode::Instrument {
+                seen = instrument_news(&pipe, seen);
+            }
             if pipe.step() {
                 continue;
             }
@@ -295,16 +321,23 @@ fn run(mode: Mode) -> bool {
         syst.disable_interrupt();
         syst.disable_counter();
     }
-    if !pipe.stopped() {
+    if pipe.running() {
         pipe.run_over();
     }
     pipe.finish();
     if mode == Mode::Commands {
         answer_until_quiet(&mut pipe);
     }
+    if mode == Mode::Field {
+        report!(
+            "fw.field the run is over: the log is read over the link (ReadLog) until power-off"
+        );
+        answer_for_ever(&mut pipe);
+    }
     let total = pipe.clock().now().wrapping_sub(t_start) as u64;
     let stack_run = sys::stack_high_water();
     let pass = end_of_run(mode, pipe, total, stack_init, stack_run);
+    let pass = pass && (mode != Mode::Boot || matches!(loaded, crate::settings::Loaded::Stored(_)));
     #[cfg(feature = "field-logger")]
     let pass = match log {
         Some(l) => logger::finish(l) && pass,
@@ -312,6 +345,36 @@ fn run(mode: Mode) -> bool {
     };
     report!("fw.verdict {}", if pass { "pass" } else { "FAIL" });
     pass
+}
+
+/// Mode `instrument`: a console line for each run started and each settings record
+/// stored since `seen` (run number, saves); returns what is seen now.
+#[inline(never)]
+fn instrument_news<W: embedded_io::Write, C: Clock>(
+    pipe: &Pipeline<'_, W, C>,
+    seen: (u32, u32),
+) -> (u32, u32) {
+    let r = pipe.run_state();
+    if r.run != seen.0 && r.running {
+        report!(
+            "fw.run run={} uptime_frames={} utc_set={} utc_ms={}",
+            r.run,
+            pipe.sample_clock(),
+            r.clock.is_some(),
+            r.clock
+                .map(|c| c.at(pipe.sample_clock(), capture::SAMPLE_RATE_HZ))
+                .unwrap_or(0)
+        );
+    }
+    if pipe.saves() != seen.1 {
+        stored::report_settings(
+            "stored",
+            pipe.settings(),
+            crate::settings::Loaded::Defaults,
+            pipe.has_store(),
+        );
+    }
+    (r.run, pipe.saves())
 }
 
 /// Command bytes read per pass of the main loop (bounded work: a pass also runs at every
@@ -337,6 +400,18 @@ fn answer_until_quiet(pipe: &mut Pipeline<'_, CmsdkUart, CmsdkTimer>) {
     pipe.drain_link(now);
 }
 
+/// Mode `field`, after the run: answer commands (a host reading the log back with
+/// ReadLog) until QEMU is stopped: the board left powered for its log to be read.
+#[inline(never)]
+fn answer_for_ever(pipe: &mut Pipeline<'_, CmsdkUart, CmsdkTimer>) -> ! {
+    let mut now = pipe.sample_clock();
+    loop {
+        if pipe.serve_commands(COMMAND_BYTES_PER_LOOP) > 0 {
+            now = pipe.drain_link(now);
+        }
+    }
+}
+
 /// The acquisition of `mode`, built in place in a static (not on the stack of [`run`],
 /// which stays below the main loop for the whole run). `None` if the ADC does not start.
 #[inline(never)]
@@ -356,6 +431,7 @@ fn acquisition(
                 Err(_) => return None,
             }
         }
+        Mode::Instrument => Source::Replay(ReplaySource::looping(capture::SAMPLES, channels)),
         _ => Source::Replay(ReplaySource::new(capture::SAMPLES, channels)),
     };
     let per_tick = if mode == Mode::Measure {
@@ -437,7 +513,10 @@ fn measure_learning<C: Clock>(clock: &C) {
     for (k, fixed) in [false, true].into_iter().enumerate() {
         let mut tip = capture::PROBE_CONFIGS[0].leading;
         if fixed {
-            tip.levels = frothline_core::LevelSource::Fixed { air: 26000, water: 3000 };
+            tip.levels = frothline_core::LevelSource::Fixed {
+                air: 26000,
+                water: 3000,
+            };
         }
         let mut d = frothline_core::PhaseDetector::new(&tip, &capture::DETECTOR, false);
         let mut src = ReplaySource::new(capture::SAMPLES, ch);
@@ -457,7 +536,7 @@ fn measure_learning<C: Clock>(clock: &C) {
     // a 1000-frame window of 20 bubbles of 12 frames, the trailing tip 5 frames behind.
     let (mut close, mut sums_t, mut analyse_t) = (0u32, 0u32, 0u32);
     {
-        use frothline_core::{EdgeSink, Correlator, Edge, Flags};
+        use frothline_core::{Correlator, Edge, EdgeSink, Flags};
         let mut c = Correlator::<{ crate::config::LAGS }>::new(60, 0, false, false);
         for rep in 0..REPS as u64 {
             let base = rep * 1000;
@@ -465,7 +544,10 @@ fn measure_learning<C: Clock>(clock: &C) {
                 let t = base + b * 50 + 3;
                 for (at, to_air) in [(t, true), (t + 12, false)] {
                     c.lead_in_order().edge(Edge { frame: at, to_air });
-                    c.trail_in_order().edge(Edge { frame: at + 5, to_air });
+                    c.trail_in_order().edge(Edge {
+                        frame: at + 5,
+                        to_air,
+                    });
                 }
             }
             let mut flags = Flags::NONE;
@@ -484,7 +566,13 @@ fn measure_learning<C: Clock>(clock: &C) {
             }
         }
     }
-    report!("fw.lag_analysis closes={} ticks={} close_ticks={} analyse_ticks={}", REPS / 2, close, sums_t, analyse_t);
+    report!(
+        "fw.lag_analysis closes={} ticks={} close_ticks={} analyse_ticks={}",
+        REPS / 2,
+        close,
+        sums_t,
+        analyse_t
+    );
     report!(
         "fw.learning frames={} reps={} observe_ticks={} decide_ticks={} modes={} detect_learnt_ticks={} detect_fixed_ticks={}",
         n,
@@ -532,6 +620,75 @@ fn measure_profile_fit<C: Clock>(clock: &C) {
             name,
             PROFILE_FITS,
             dt
+        );
+    }
+}
+
+/// The settings store of the emulated board: three 4 KiB sectors of NOR flash kept in a
+/// file on the host (`target/firmware/settings.nor`, relative to QEMU's working directory;
+/// `scripts/firmware-run.sh` keeps or clears it), so settings survive a reboot of the
+/// emulated board. Without the file (QEMU started elsewhere) the board runs on defaults.
+mod stored {
+    use crate::acquire::Clock;
+    use crate::host_nor::{HostNor, SECTOR_BYTES};
+    use crate::pipeline::Pipeline;
+    use crate::settings::{Loaded, Settings, SettingsStore};
+    use crate::{capture, config};
+    use static_cell::StaticCell;
+
+    /// The store's region.
+    pub const SETTINGS_BYTES: usize = 3 * SECTOR_BYTES;
+    type Store = SettingsStore<HostNor<SETTINGS_BYTES>>;
+    static STORE: StaticCell<Store> = StaticCell::new();
+
+    /// Mount the store, load the newest settings into the pipeline, and report them.
+    #[inline(never)]
+    pub fn load<W: embedded_io::Write, C: Clock>(pipe: &mut Pipeline<'_, W, C>) -> Loaded {
+        let defaults = Settings::defaults(config::DEVICE_ID, capture::WINDOW);
+        let store = HostNor::open(b"target/firmware/settings.nor\0")
+            .and_then(|f| SettingsStore::mount(f).ok())
+            .map(|s| STORE.init(s));
+        let (settings, loaded) = match store {
+            Some(s) => {
+                let (settings, loaded) = s.load(defaults);
+                pipe.set_settings(settings, Some(s));
+                (settings, loaded)
+            }
+            None => {
+                pipe.set_settings(defaults, None);
+                (defaults, Loaded::Defaults)
+            }
+        };
+        report_settings("loaded", &settings, loaded, pipe.has_store());
+        loaded
+    }
+
+    /// One `fw.settings` line.
+    pub fn report_settings(when: &str, s: &Settings, loaded: Loaded, store: bool) {
+        let fixed = s.levels.iter().flatten().filter(|l| l.is_some()).count();
+        let (kind, frames) = match s.window {
+            frothline_core::WindowPolicy::Whole => ("whole", 0),
+            frothline_core::WindowPolicy::Frames(f) => ("frames", f),
+            frothline_core::WindowPolicy::Bubbles { count, .. } => ("bubbles", count),
+            frothline_core::WindowPolicy::AfterFront { frames } => ("after_front", frames),
+            _ => ("other", 0),
+        };
+        let first = s.levels.first().and_then(|l| l[0]).unwrap_or((0, 0));
+        report!(
+            "fw.settings {} store={} records={} device_id={:#06x} window={} window_frames={} fixed_tips={} probe0_leading_air={} probe0_leading_water={} logger_armed={}",
+            when,
+            store,
+            match loaded {
+                Loaded::Stored(n) => n,
+                Loaded::Defaults => 0,
+            },
+            s.device_id,
+            kind,
+            frames,
+            fixed,
+            first.0,
+            first.1,
+            s.logger_armed
         );
     }
 }
@@ -769,20 +926,42 @@ fn summary<W: embedded_io::Write, C: Clock>(
         h.samples_dropped
     );
     let c = pipe.commands();
+    let r = pipe.run_state();
     report!(
-        "fw.commands executed={} repeats={} acks={} nacks={} unreadable={} not_from_host={} stopped={}",
+        "fw.commands executed={} repeats={} acks={} nacks={} unreadable={} not_from_host={} stopped={} starts={} stops={} run={} utc_set={}",
         c.executed,
         c.repeats,
         c.acks,
         c.nacks,
         c.unreadable,
         c.not_from_host,
-        pipe.stopped()
+        pipe.stopped(),
+        r.starts,
+        r.stops,
+        r.run,
+        r.clock.is_some()
     );
-    let clean = pipe.link().write_errors() == 0 && st.windows_dropped == 0;
+    let (save_errors, config_errors) = pipe.errors();
+    report!(
+        "fw.store saves={} save_errors={} config_errors={}",
+        pipe.saves(),
+        save_errors,
+        config_errors
+    );
+    stored::report_settings(
+        "end",
+        pipe.settings(),
+        crate::settings::Loaded::Defaults,
+        pipe.has_store(),
+    );
+    let clean = pipe.link().write_errors() == 0
+        && st.windows_dropped == 0
+        && save_errors == 0
+        && config_errors == 0;
     match mode {
         Mode::Overrun => dropped > 0 && h.samples_dropped > 0 && clean,
         Mode::Commands => pipe.stopped() && clean,
+        Mode::Boot => clean,
         _ => matches && dropped == 0 && clean,
     }
 }

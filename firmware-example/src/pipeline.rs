@@ -4,11 +4,13 @@
 //! UART and a clock, and call [`Pipeline::step`] from their main loop.
 
 use crate::acquire::{Block, Clock, Filled, HEALTH};
+use crate::capture;
 use crate::commands::{FwTarget, RunState};
 use crate::config::{FwChain, FwRecord, BLOCK_FRAMES, PROBES};
 #[cfg(feature = "self-check")]
 use crate::digest::Digest;
 use crate::link::Link;
+use crate::settings::{Settings, SettingsSink};
 use core::sync::atomic::Ordering;
 use embedded_io::{Read, ReadReady, Write};
 use frothline_core::wire::{FrontArrival, Health, ProfileFit, Responder, RunStart, WindowResult};
@@ -31,6 +33,12 @@ pub trait ResultTap {
     fn health(&mut self, h: Health);
     /// The run ended: write out what is pending.
     fn flush(&mut self);
+    /// Raw bytes of the log region at `offset` (a host reading the log over the link);
+    /// the region's size, or `None` when there is no log to read.
+    fn read_region(&mut self, offset: u32, buf: &mut [u8]) -> Option<u32> {
+        let _ = (offset, buf);
+        None
+    }
 }
 
 /// Where the main loop's time went, in clock ticks.
@@ -73,6 +81,17 @@ pub struct Pipeline<'t, W: 'static, C> {
     /// Host commands: the core's responder, and the run they act on.
     responder: Responder,
     run: RunState,
+    /// The settings the chain runs with, and where they are stored.
+    settings: Settings,
+    store: Option<&'t mut dyn SettingsSink>,
+    /// Settings that could not be stored, chain configurations refused.
+    saves: u32,
+    save_errors: u32,
+    config_errors: u32,
+    /// Frames pushed in the current run, and the frame of the run where the current
+    /// chain began (added to the frame numbers of its results).
+    run_frames: u64,
+    chain_base: u64,
 }
 
 impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
@@ -110,6 +129,110 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             tip_channels,
             responder: Responder::new(),
             run: RunState::started(),
+            settings: Settings::defaults(crate::config::DEVICE_ID, capture::WINDOW),
+            store: None,
+            saves: 0,
+            save_errors: 0,
+            config_errors: 0,
+            run_frames: 0,
+            chain_base: 0,
+        }
+    }
+
+    /// Run with `settings` (loaded from the store at power-on) and store changes in
+    /// `store`; the chain is configured afresh with them. Call before [`start`](Self::start).
+    pub fn set_settings(&mut self, settings: Settings, store: Option<&'t mut dyn SettingsSink>) {
+        self.settings = settings;
+        self.store = store;
+        self.link.set_window(self.applied_window());
+        self.rebuild();
+    }
+
+    /// The settings in force.
+    pub fn settings(&self) -> &Settings {
+        &self.settings
+    }
+
+    /// True when changed settings are stored.
+    pub fn has_store(&self) -> bool {
+        self.store.is_some()
+    }
+
+    /// Settings records stored since power-on.
+    pub fn saves(&self) -> u32 {
+        self.saves
+    }
+
+    /// Settings stores that failed, and chain configurations refused.
+    pub fn errors(&self) -> (u32, u32) {
+        (self.save_errors, self.config_errors)
+    }
+
+    /// The run state (run number, starts and stops carried out, the UTC clock).
+    pub fn run_state(&self) -> &RunState {
+        &self.run
+    }
+
+    fn applied_window(&self) -> frothline_core::WindowPolicy {
+        crate::settings::front_relative(
+            self.settings.window,
+            self.chain.config().station.is_some(),
+            capture::WINDOW,
+        )
+    }
+
+    /// Configure the chain afresh from the capture's configuration and the settings
+    /// (in place: nothing chain-sized on the stack). Falls back to the capture's own
+    /// configuration if the chain refuses the settings.
+    #[inline(never)]
+    fn rebuild(&mut self) {
+        let Ok(mut cfg) = capture::chain_config() else {
+            self.config_errors = self.config_errors.saturating_add(1);
+            return;
+        };
+        self.settings.apply(&mut cfg);
+        if self.chain.configure(cfg).is_err() {
+            self.config_errors = self.config_errors.saturating_add(1);
+            if let Ok(cfg) = capture::chain_config() {
+                let _ = self.chain.configure(cfg);
+            }
+        }
+    }
+
+    /// Close the open window: the chain's last results go to the link.
+    #[inline(never)]
+    fn close_chain(&mut self) {
+        for _ in 0..1000 {
+            let done = self.chain.finish().is_ok();
+            self.drain_records();
+            let now = self.sample_clock();
+            self.link.pump(now);
+            if done {
+                break;
+            }
+        }
+    }
+
+    /// What the commands just carried out left to do (between two blocks).
+    fn carry_out(&mut self) {
+        let p = core::mem::take(&mut self.run.pending);
+        if p.close {
+            self.close_chain();
+        }
+        if p.rebuild {
+            if p.new_run {
+                self.run_frames = 0;
+            }
+            self.chain_base = self.run_frames;
+            self.rebuild();
+        }
+        if p.save {
+            // Without a store (a board that has none) the settings hold until power-off.
+            match self.store.as_mut().map(|s| s.save(&self.settings)) {
+                Some(true) => self.saves = self.saves.saturating_add(1),
+                Some(false) => self.save_errors = self.save_errors.saturating_add(1),
+                None => {}
+            }
         }
     }
 
@@ -128,6 +251,10 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
     #[inline(never)]
     pub fn start(&mut self) {
         self.link.describe();
+        if !self.run.running {
+            self.link.pump(0);
+            return;
+        }
         self.link.run_start(RunStart {
             run: 1,
             label: heapless::String::new(),
@@ -137,9 +264,21 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         self.link.pump(0);
     }
 
-    /// True once a StopRun command ended the run.
+    /// Start without a run (an instrument waiting for a host's StartRun). Call before
+    /// [`start`](Self::start).
+    pub fn idle_at_power_on(&mut self) {
+        self.run.running = false;
+        self.run.run = 0;
+    }
+
+    /// True once a StopRun command was carried out.
     pub fn stopped(&self) -> bool {
-        self.run.stop
+        self.run.stops > 0
+    }
+
+    /// True while a run is going (blocks outside a run are read and discarded).
+    pub fn running(&self) -> bool {
+        self.run.running
     }
 
     /// The run ended by itself (the capture is over): StopRun is `not_running` from here.
@@ -173,6 +312,8 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             return false;
         };
         let n = (filled.frames as usize).min(BLOCK_FRAMES) * self.channels;
+        // Outside a run the block is read and given back unused.
+        let n = if self.run.running { n } else { 0 };
         let mut rest = &filled.block[..n];
         while !rest.is_empty() {
             let t0 = self.clock.now();
@@ -182,7 +323,10 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             rest = &rest[used..];
             self.drain_records();
         }
-        self.frames_pushed += filled.frames as u64;
+        if n > 0 {
+            self.frames_pushed += filled.frames as u64;
+            self.run_frames += filled.frames as u64;
+        }
         self.blocks += 1;
         if self.stall_ticks > 0 {
             let t0 = self.clock.now();
@@ -245,11 +389,13 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             saturated: &mut self.saturated,
             stuck: &mut self.stuck,
             tip_channels: &self.tip_channels,
+            offset: self.chain_base,
         };
         while self.chain.poll_lean_with(|rec| sink.record(rec)).is_some() {}
         // Station chains (the field-logger build): the one station is station 0.
         while let Some(p) = self.chain.poll_profile() {
-            let fit = p.to_wire(0);
+            let mut fit = p.to_wire(0);
+            fit.slice_start = fit.slice_start.saturating_add(self.chain_base);
             self.link.profile(fit);
             if let Some(t) = self.tap.as_mut() {
                 t.profile(fit);
@@ -257,7 +403,8 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         }
         while let Some(f) = self.chain.poll_front() {
             if let FrontRecord::Probe(a) = f {
-                let arrival = a.to_wire(0);
+                let mut arrival = a.to_wire(0);
+                arrival.frame = arrival.frame.saturating_add(self.chain_base);
                 self.link.front(arrival);
                 if let Some(t) = self.tap.as_mut() {
                     t.front(arrival);
@@ -329,9 +476,18 @@ impl<W: Write + Read + ReadReady + 'static, C: Clock> Pipeline<'_, W, C> {
             let mut target = FwTarget {
                 link: &mut *self.link,
                 run: &mut self.run,
+                settings: &mut self.settings,
+                config: self.chain.config(),
+                now_frames: HEALTH.frames_in.load(Ordering::Relaxed) as u64,
+                rate_hz: capture::SAMPLE_RATE_HZ,
+                log: match self.tap.as_mut() {
+                    Some(t) => Some(&mut **t),
+                    None => None,
+                },
             };
             if let Some(reply) = self.responder.feed(b[0], &mut target) {
                 self.link.reply(reply);
+                self.carry_out();
                 let now = self.sample_clock();
                 self.link.pump(now);
             }
@@ -350,6 +506,8 @@ struct RecordSink<'a, 't, W> {
     saturated: &'a mut u64,
     stuck: &'a mut u64,
     tip_channels: &'a [Option<(u8, Option<u8>)>; PROBES],
+    /// The frame of the run where the chain began.
+    offset: u64,
 }
 
 impl<W: Write> RecordSink<'_, '_, W> {
@@ -359,7 +517,7 @@ impl<W: Write> RecordSink<'_, '_, W> {
         // go on the wire either): the digest covers the same.
         #[cfg(feature = "self-check")]
         self.digest.add(rec);
-        let w = self.link.record(rec);
+        let w = self.link.record(rec, self.offset);
         if let Some(t) = self.tap.as_mut() {
             t.window(w);
         }

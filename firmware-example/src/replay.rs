@@ -9,12 +9,14 @@
 use crate::source::SampleSource;
 use core::convert::Infallible;
 
-/// Replays `bytes` (interleaved little-endian i16 frames of `channels` channels) once.
+/// Replays `bytes` (interleaved little-endian i16 frames of `channels` channels) once, or
+/// in a loop.
 #[derive(Debug)]
 pub struct ReplaySource {
     bytes: &'static [u8],
     channels: usize,
     pos: usize,
+    looping: bool,
 }
 
 impl ReplaySource {
@@ -24,7 +26,16 @@ impl ReplaySource {
             bytes,
             channels: if channels == 0 { 1 } else { channels },
             pos: 0,
+            looping: false,
         }
+    }
+
+    /// A replay that starts again from its first frame when it reaches the end (never
+    /// exhausted): an instrument left running on the bench.
+    pub const fn looping(bytes: &'static [u8], channels: usize) -> Self {
+        let mut r = Self::new(bytes, channels);
+        r.looping = !bytes.is_empty();
+        r
     }
 
     /// Frames not yet played.
@@ -41,6 +52,9 @@ impl SampleSource for ReplaySource {
     }
 
     fn fill(&mut self, block: &mut [i16]) -> Result<usize, Infallible> {
+        if self.looping && self.frames_left() == 0 {
+            self.pos = 0;
+        }
         let frames = (block.len() / self.channels).min(self.frames_left());
         let n = frames * self.channels;
         let src = &self.bytes[self.pos..self.pos + 2 * n];
@@ -52,6 +66,6 @@ impl SampleSource for ReplaySource {
     }
 
     fn exhausted(&self) -> bool {
-        self.frames_left() == 0
+        !self.looping && self.frames_left() == 0
     }
 }

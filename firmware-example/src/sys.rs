@@ -219,6 +219,60 @@ pub fn semihosting_cmdline(buf: &mut [u8]) -> Option<&str> {
     Some(s.trim_end_matches('\0').trim())
 }
 
+/// A file on the semihosting host (the emulated board's stand-in for flash that survives
+/// a power cycle: see `host_nor.rs`).
+#[cfg(feature = "emulated-mps2")]
+pub mod host_file {
+    use cortex_m_semihosting::{nr, syscall};
+
+    /// Open `path` (a NUL-terminated byte string) in binary read-write mode, created
+    /// empty when `create`; the host's handle.
+    pub fn open(path: &[u8], create: bool) -> Option<usize> {
+        if path.last() != Some(&0) {
+            return None;
+        }
+        let mode = if create {
+            nr::open::RW_TRUNC_BINARY
+        } else {
+            nr::open::RW_BINARY
+        };
+        let args = [path.as_ptr() as usize, mode, path.len() - 1];
+        // SAFETY: SYS_OPEN reads `len` bytes of the path, which lives for the call.
+        let r = unsafe { syscall(nr::OPEN, &args) };
+        (r as isize >= 0).then_some(r)
+    }
+
+    /// Move to byte `pos` of the file; true on success.
+    pub fn seek(fd: usize, pos: usize) -> bool {
+        let args = [fd, pos];
+        // SAFETY: SYS_SEEK takes two words by value.
+        unsafe { syscall(nr::SEEK, &args) == 0 }
+    }
+
+    /// Read `buf.len()` bytes at the file position; true when all were read.
+    pub fn read(fd: usize, buf: &mut [u8]) -> bool {
+        let args = [fd, buf.as_mut_ptr() as usize, buf.len()];
+        // SAFETY: SYS_READ writes at most `len` bytes into `buf`, which lives for the
+        // call; it returns the bytes *not* read.
+        unsafe { syscall(nr::READ, &args) == 0 }
+    }
+
+    /// Write `buf` at the file position; true when all was written.
+    pub fn write(fd: usize, buf: &[u8]) -> bool {
+        let args = [fd, buf.as_ptr() as usize, buf.len()];
+        // SAFETY: SYS_WRITE reads `len` bytes of `buf`, which lives for the call; it
+        // returns the bytes *not* written.
+        unsafe { syscall(nr::WRITE, &args) == 0 }
+    }
+
+    /// The file's length in bytes.
+    pub fn len(fd: usize) -> Option<usize> {
+        // SAFETY: SYS_FLEN takes the handle.
+        let r = unsafe { syscall(nr::FLEN, &fd) };
+        (r as isize >= 0).then_some(r)
+    }
+}
+
 /// A hard fault on the emulated board: say where, and exit QEMU with failure.
 #[cfg(feature = "emulated-mps2")]
 #[cortex_m_rt::exception]

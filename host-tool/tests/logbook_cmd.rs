@@ -289,7 +289,9 @@ fn write_image(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
 
 fn args(image: &Path, out: &Path) -> LogbookArgs {
     LogbookArgs {
-        image: image.to_path_buf(),
+        port: None,
+        baud: 921_600,
+        image: Some(image.to_path_buf()),
         out: out.to_path_buf(),
         layout: None,
         page_bytes: None,

@@ -195,6 +195,7 @@ fn steady_fixture_skips_what_it_lacks_and_says_why() {
         [
             "chord_times",
             "count_rate_void_fraction",
+            "derived_figures",
             "velocity_turbulence",
             "void_fraction_profile"
         ]
@@ -208,6 +209,8 @@ fn steady_fixture_skips_what_it_lacks_and_says_why() {
             "void_fraction_profile" | "chord_times" => 6,
             // V and Tu panels, one series each per dual-tip probe (five of the six)
             "velocity_turbulence" => 10,
+            // a and d per dual-tip probe (five), q_w and q_a, clusters per probe (six)
+            "derived_figures" => 18,
             // one per probe and the envelope
             _ => 7,
         };
@@ -405,7 +408,7 @@ fn a_header_only_windows_csv_gives_a_page_that_says_why_nothing_is_drawn() {
 fn check_page_without_figures(s: &ReportSummary) {
     let html = std::fs::read_to_string(&s.html).unwrap();
     assert!(!html.contains("<img"));
-    assert_eq!(html.matches("class=\"skipped\"").count(), 5);
+    assert_eq!(html.matches("class=\"skipped\"").count(), 6);
 }
 
 #[test]

@@ -136,6 +136,21 @@ def window_result(c):
     }
 
 
+def derived_result(c):
+    return {
+        "probe": c.byte(),
+        "start": u64(c),
+        "chord_lengths": c.opt(lambda: [u32(c), u32(c), u32(c)]),
+        "interfacial_area": c.opt(lambda: u32(c)),
+        "sauter_diameter": c.opt(lambda: u32(c)),
+        "judged": u32(c),
+        "pairs": u32(c),
+        "clusters": u32(c),
+        "clustered": u32(c),
+        "random_pair_probability": c.opt(lambda: u16(c)),
+    }
+
+
 def probe_layout(c):
     return {
         "station": c.byte(),
@@ -211,13 +226,18 @@ KINDS = {
     0x04: ("profile", profile),
     0x05: ("health", health),
     0x06: ("run_start", run_start),
+    0x07: ("log_chunk", lambda c: {"offset": u32(c), "total": u32(c),
+                                   "data": bytes(c.seq(c.byte, 64)).hex()}),
+    0x08: ("derived", lambda c: c.seq(lambda: derived_result(c), 8)),
     0x09: ("tip_health", lambda c: c.seq(lambda: tip_report(c), 6)),
     0x20: ("start_run", lambda c: {"label": c.text(16), "utc_ms": c.opt(lambda: u64(c))}),
     0x21: ("stop_run", empty),
     0x22: ("set_window", window_setting),
     0x23: ("relearn", lambda c: {"probes": u32(c)}),
     0x24: ("describe_request", empty),
+    0x25: ("set_clock", lambda c: {"utc_ms": u64(c)}),
     0x26: ("set_levels", set_levels),
+    0x27: ("read_log", lambda c: {"offset": u32(c)}),
     0x30: ("ack", lambda c: {"seq": u16(c)}),
     0x31: ("nack", lambda c: {"seq": u16(c), "reason": c.byte()}),
 }

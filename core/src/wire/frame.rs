@@ -72,6 +72,10 @@ pub enum Kind {
     Health = 0x05,
     /// [`RunStart`]: a run began (its number, label, start on the device clock, host UTC).
     RunStart = 0x06,
+    /// [`LogChunk`]: bytes of the device's field log region, answering a ReadLog.
+    LogChunk = 0x07,
+    /// [`DerivedBatch`](crate::wire::DerivedBatch): derived figures of window results.
+    Derived = 0x08,
     /// [`TipHealth`]: per tip, the levels in use, interfaces and void fraction of its
     /// latest window.
     TipHealth = 0x09,
@@ -85,8 +89,12 @@ pub enum Kind {
     Relearn = 0x23,
     /// Command: send a [`DeviceDescription`] (no body).
     DescribeRequest = 0x24,
+    /// Command [`SetClock`]: set the device's UTC clock.
+    SetClock = 0x25,
     /// Command [`SetLevels`]: fix the air and water levels of one tip.
     SetLevels = 0x26,
+    /// Command [`ReadLog`]: send a chunk of the field log region.
+    ReadLog = 0x27,
     /// Reply [`Ack`]: a command was carried out.
     Ack = 0x30,
     /// Reply [`Nack`]: a command was refused.
@@ -95,20 +103,24 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 15] = [
+    pub const ALL: [Kind; 19] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
         Kind::Profile,
         Kind::Health,
         Kind::RunStart,
+        Kind::LogChunk,
+        Kind::Derived,
         Kind::TipHealth,
         Kind::StartRun,
         Kind::StopRun,
         Kind::SetWindow,
         Kind::Relearn,
         Kind::DescribeRequest,
+        Kind::SetClock,
         Kind::SetLevels,
+        Kind::ReadLog,
         Kind::Ack,
         Kind::Nack,
     ];
@@ -127,13 +139,17 @@ impl Kind {
             0x04 => Kind::Profile,
             0x05 => Kind::Health,
             0x06 => Kind::RunStart,
+            0x07 => Kind::LogChunk,
+            0x08 => Kind::Derived,
             0x09 => Kind::TipHealth,
             0x20 => Kind::StartRun,
             0x21 => Kind::StopRun,
             0x22 => Kind::SetWindow,
             0x23 => Kind::Relearn,
             0x24 => Kind::DescribeRequest,
+            0x25 => Kind::SetClock,
             0x26 => Kind::SetLevels,
+            0x27 => Kind::ReadLog,
             0x30 => Kind::Ack,
             0x31 => Kind::Nack,
             _ => return None,
@@ -141,9 +157,9 @@ impl Kind {
     }
 
     /// Codes set aside for kinds that are specified but not implemented by this build:
-    /// 0x07 log-chunk reply, 0x25 set-clock, 0x26 set-levels, 0x27 read-log. A device
-    /// answers the command codes among them with Nack `UnknownCommand`; a host skips 0x07.
-    pub const RESERVED: [u8; 4] = [0x07, 0x25, 0x26, 0x27];
+    /// None in this build (0x07, 0x25, 0x26 and 0x27, set aside by the first version-2
+    /// specification, are all implemented).
+    pub const RESERVED: [u8; 0] = [];
 
     /// True for the kinds a device sends (results and replies).
     pub const fn is_from_device(self) -> bool {
@@ -154,7 +170,9 @@ impl Kind {
                 | Kind::SetWindow
                 | Kind::Relearn
                 | Kind::DescribeRequest
+                | Kind::SetClock
                 | Kind::SetLevels
+                | Kind::ReadLog
         )
     }
 }
@@ -203,6 +221,10 @@ pub enum Body {
     Health(Health),
     /// A run began.
     RunStart(RunStart),
+    /// A chunk of the field log region.
+    LogChunk(LogChunk),
+    /// Derived figures of window results (1 to [`MAX_WINDOWS_PER_FRAME`]).
+    Derived(crate::wire::DerivedBatch),
     /// Tip health of some probes.
     TipHealth(TipHealth),
     /// Command: start a run.
@@ -215,8 +237,12 @@ pub enum Body {
     Relearn(Relearn),
     /// Command: describe yourself.
     DescribeRequest,
+    /// Command: set the device's UTC clock.
+    SetClock(SetClock),
     /// Command: fix one tip's levels.
     SetLevels(SetLevels),
+    /// Command: read a chunk of the field log region.
+    ReadLog(ReadLog),
     /// Reply: command done.
     Ack(Ack),
     /// Reply: command refused.
@@ -233,13 +259,17 @@ impl Body {
             Body::Profile(_) => Kind::Profile,
             Body::Health(_) => Kind::Health,
             Body::RunStart(_) => Kind::RunStart,
+            Body::LogChunk(_) => Kind::LogChunk,
+            Body::Derived(_) => Kind::Derived,
             Body::TipHealth(_) => Kind::TipHealth,
             Body::StartRun(_) => Kind::StartRun,
             Body::StopRun => Kind::StopRun,
             Body::SetWindow(_) => Kind::SetWindow,
             Body::Relearn(_) => Kind::Relearn,
             Body::DescribeRequest => Kind::DescribeRequest,
+            Body::SetClock(_) => Kind::SetClock,
             Body::SetLevels(_) => Kind::SetLevels,
+            Body::ReadLog(_) => Kind::ReadLog,
             Body::Ack(_) => Kind::Ack,
             Body::Nack(_) => Kind::Nack,
         }
@@ -418,7 +448,7 @@ pub struct Health {
     pub tips_stuck: u64,
     /// Highest fill of the acquisition buffer, samples.
     pub buffer_high_water: u32,
-    /// Window results (entries of kind 0x02, not frames) the streamer dropped, oldest
+    /// Window results (entries of kind 0x02 or 0x08, not frames) the streamer dropped, oldest
     /// first, because the link could not keep up (filled in by the
     /// [`Streamer`](crate::wire::Streamer) when it sends the frame).
     pub windows_dropped: u32,
@@ -544,6 +574,42 @@ pub struct Relearn {
 impl Relearn {
     /// Every probe.
     pub const ALL: Relearn = Relearn { probes: u32::MAX };
+}
+
+/// Bytes of the field log region one [`LogChunk`] carries at most.
+pub const LOG_CHUNK_BYTES: usize = 64;
+
+/// Kind 0x27: send the field log region's bytes from `offset` on, as one [`LogChunk`]
+/// (before the Ack). A host reads the whole region by asking again at the next offset
+/// until it reaches the chunk's `total`.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ReadLog {
+    /// First byte wanted, from the start of the region.
+    pub offset: u32,
+}
+
+/// Kind 0x07: raw bytes of the device's field log region (its flash image), answering a
+/// [`ReadLog`]: the region as it is on flash, read by the host as it would read a dump.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LogChunk {
+    /// Where `data` starts in the region.
+    pub offset: u32,
+    /// Bytes of the whole region.
+    pub total: u32,
+    /// The bytes from `offset` on: [`LOG_CHUNK_BYTES`], fewer at the region's end.
+    pub data: Vec<u8, LOG_CHUNK_BYTES>,
+}
+
+/// Kind 0x25: set the device's UTC clock. A host sends it when it connects and before a
+/// StartRun; the device keeps the time on its own clock from the frame it took effect, and
+/// dates the runs it starts with it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct SetClock {
+    /// The host's UTC now, ms since 1970-01-01T00:00:00Z.
+    pub utc_ms: u64,
 }
 
 /// Kind 0x26: fix the air and water levels of one tip, in ADC counts, from the next frame

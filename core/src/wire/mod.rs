@@ -27,6 +27,7 @@
 
 pub mod codec;
 pub mod decoder;
+pub mod derived_frame;
 pub mod frame;
 pub mod quant;
 pub mod responder;
@@ -35,10 +36,12 @@ pub mod tip_health;
 
 pub use codec::{crc32, decode, decode_unstuffed, encode, WireError};
 pub use decoder::{Decoder, DecoderStats, DeviceSeqStats, FeedResult, SeqCheck};
+pub use derived_frame::{ChordLengths, DerivedBatch, DerivedResult};
 pub use frame::{
     Ack, Body, ChordTimes, Correlation, DeviceDescription, Frame, FrontArrival, Header, Health,
-    Kind, Nack, NackReason, ProbeLayout, ProfileFit, Relearn, RunStart, SetLevels, StartRun,
-    TrailingTip, WindowResult, WindowSetting, Windows, PROFILE_ESTIMATES,
+    Kind, LogChunk, Nack, NackReason, ProbeLayout, ProfileFit, ReadLog, Relearn, RunStart,
+    SetClock, SetLevels, StartRun, TrailingTip, WindowResult, WindowSetting, Windows,
+    LOG_CHUNK_BYTES, PROFILE_ESTIMATES,
 };
 pub use responder::{Command, CommandTarget, Reply, Responder, ResponderStats};
 pub use streamer::{Offer, Streamer, StreamerConfig, StreamerStats};
@@ -84,10 +87,14 @@ pub const MAX_BODY_BYTES: usize = {
     m = max(m, ProfileFit::POSTCARD_MAX_SIZE);
     m = max(m, Health::POSTCARD_MAX_SIZE);
     m = max(m, RunStart::POSTCARD_MAX_SIZE);
+    m = max(m, DerivedBatch::POSTCARD_MAX_SIZE);
     m = max(m, TipHealth::POSTCARD_MAX_SIZE);
     m = max(m, StartRun::POSTCARD_MAX_SIZE);
     m = max(m, WindowSetting::POSTCARD_MAX_SIZE);
     m = max(m, Relearn::POSTCARD_MAX_SIZE);
+    m = max(m, SetClock::POSTCARD_MAX_SIZE);
+    m = max(m, ReadLog::POSTCARD_MAX_SIZE);
+    m = max(m, LogChunk::POSTCARD_MAX_SIZE);
     m = max(m, SetLevels::POSTCARD_MAX_SIZE);
     m = max(m, Ack::POSTCARD_MAX_SIZE);
     m = max(m, Nack::POSTCARD_MAX_SIZE);

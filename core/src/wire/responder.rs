@@ -20,7 +20,9 @@
 
 use crate::wire::codec::{crc32, exact};
 use crate::wire::frame::WindowSetting;
-use crate::wire::frame::{Ack, Body, Header, Kind, Nack, NackReason, Relearn, SetLevels, StartRun};
+use crate::wire::frame::{
+    Ack, Body, Header, Kind, Nack, NackReason, ReadLog, Relearn, SetClock, SetLevels, StartRun,
+};
 use crate::wire::{cobs_max_encoded, CRC_BYTES, HOST_ID, PROTOCOL_VERSION};
 use postcard::experimental::max_size::MaxSize;
 
@@ -37,6 +39,9 @@ pub const COMMAND_FRAME_BYTES: usize = {
     let mut body = StartRun::POSTCARD_MAX_SIZE;
     body = max(body, WindowSetting::POSTCARD_MAX_SIZE);
     body = max(body, Relearn::POSTCARD_MAX_SIZE);
+    body = max(body, SetClock::POSTCARD_MAX_SIZE);
+    body = max(body, SetLevels::POSTCARD_MAX_SIZE);
+    body = max(body, ReadLog::POSTCARD_MAX_SIZE);
     cobs_max_encoded(Header::POSTCARD_MAX_SIZE + body + CRC_BYTES) + 1
 };
 
@@ -54,8 +59,12 @@ pub enum Command {
     Relearn(Relearn),
     /// 0x24: send the device description.
     DescribeRequest,
+    /// 0x25: set the device's UTC clock.
+    SetClock(SetClock),
     /// 0x26: fix the air and water levels of one tip.
     SetLevels(SetLevels),
+    /// 0x27: send a chunk of the field log region.
+    ReadLog(ReadLog),
 }
 
 /// What a device does for each command. The [`Responder`] has already applied the rules
@@ -79,6 +88,20 @@ pub trait CommandTarget {
     /// no settings of its own refuses it as a command it does not carry out.
     fn set_levels(&mut self, levels: &SetLevels) -> Result<(), NackReason> {
         let _ = levels;
+        Err(NackReason::UnknownCommand)
+    }
+    /// Set the device's UTC clock to `utc_ms` (ms since the Unix epoch) as of now. A
+    /// device without a clock refuses it as a command it does not carry out.
+    fn set_clock(&mut self, utc_ms: u64) -> Result<(), NackReason> {
+        let _ = utc_ms;
+        Err(NackReason::UnknownCommand)
+    }
+    /// Queue a [`LogChunk`](crate::wire::LogChunk) of the field log region from `offset`
+    /// (before returning, so it precedes the Ack); an offset at or beyond the region's end
+    /// is a bad argument. A device without a field log refuses it as a command it does not
+    /// carry out.
+    fn read_log(&mut self, offset: u32) -> Result<(), NackReason> {
+        let _ = offset;
         Err(NackReason::UnknownCommand)
     }
 }
@@ -275,8 +298,14 @@ impl Responder {
                 Command::Relearn(exact(body).map_err(|_| NackReason::Malformed)?)
             }
             Some(Kind::DescribeRequest) => empty(body, Command::DescribeRequest)?,
+            Some(Kind::SetClock) => {
+                Command::SetClock(exact(body).map_err(|_| NackReason::Malformed)?)
+            }
             Some(Kind::SetLevels) => {
                 Command::SetLevels(exact(body).map_err(|_| NackReason::Malformed)?)
+            }
+            Some(Kind::ReadLog) => {
+                Command::ReadLog(exact(body).map_err(|_| NackReason::Malformed)?)
             }
             _ => return Err(NackReason::UnknownCommand),
         };
@@ -292,7 +321,9 @@ impl Responder {
             Command::SetWindow(w) => target.set_window(w),
             Command::Relearn(r) => target.relearn(r.probes),
             Command::DescribeRequest => target.describe(),
+            Command::SetClock(c) => target.set_clock(c.utc_ms),
             Command::SetLevels(l) => target.set_levels(&l),
+            Command::ReadLog(r) => target.read_log(r.offset),
         }
     }
 }

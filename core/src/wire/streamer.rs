@@ -16,7 +16,8 @@
 //!
 //! Policy when the link cannot keep up: the very first frame is the description if one is
 //! queued (a device's power-on marker); after it urgent frames go first, then the
-//! description, then health, then window results. Window results wait in a queue of `Q`; when it is full the
+//! description, then health, then window results, then their derived figures (kind 0x08,
+//! a queue of its own of `Q`, dropped and counted like window results). Window results wait in a queue of `Q`; when it is full the
 //! **oldest** result is dropped. A new description or health frame replaces a queued one
 //! (nothing is lost: health counters are cumulative). An urgent frame offered to a full
 //! urgent queue is dropped. Every drop is counted, and the totals go out in the
@@ -38,11 +39,13 @@
 
 use crate::wire::codec::encode;
 use crate::wire::frame::{
-    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, Nack, ProfileFit, Relearn, RunStart,
-    SetLevels, StartRun, WindowResult, WindowSetting, Windows,
+    Ack, Body, DeviceDescription, Frame, FrontArrival, Health, LogChunk, Nack, ProfileFit, ReadLog,
+    Relearn, RunStart, SetClock, SetLevels, StartRun, WindowResult, WindowSetting, Windows,
 };
 use crate::wire::tip_health::{TipBook, TipHealth, TipReport};
-use crate::wire::{MAX_FRAME_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME};
+use crate::wire::{
+    DerivedBatch, DerivedResult, MAX_FRAME_BYTES, MAX_PROBES, MAX_WINDOWS_PER_FRAME,
+};
 use heapless::Deque;
 
 /// How the streamer sees its link.
@@ -124,7 +127,10 @@ enum Urgent {
     SetWindow(WindowSetting),
     Relearn(Relearn),
     DescribeRequest,
+    SetClock(SetClock),
     SetLevels(SetLevels),
+    ReadLog(ReadLog),
+    LogChunk(LogChunk),
     Ack(Ack),
     Nack(Nack),
 }
@@ -140,7 +146,10 @@ impl Urgent {
             Urgent::SetWindow(b) => Body::SetWindow(b),
             Urgent::Relearn(b) => Body::Relearn(b),
             Urgent::DescribeRequest => Body::DescribeRequest,
+            Urgent::SetClock(b) => Body::SetClock(b),
             Urgent::SetLevels(b) => Body::SetLevels(b),
+            Urgent::ReadLog(b) => Body::ReadLog(b),
+            Urgent::LogChunk(b) => Body::LogChunk(b),
             Urgent::Ack(b) => Body::Ack(b),
             Urgent::Nack(b) => Body::Nack(b),
         }
@@ -154,6 +163,7 @@ pub struct Streamer<const Q: usize, const P: usize = 8, const T: usize = MAX_PRO
     cfg: StreamerConfig,
     seq: u16,
     windows: Deque<WindowResult, Q>,
+    derived: Deque<DerivedResult, Q>,
     urgent: Deque<Urgent, P>,
     describe: Option<DeviceDescription>,
     health: Option<Health>,
@@ -177,6 +187,7 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             cfg,
             seq: 0,
             windows: Deque::new(),
+            derived: Deque::new(),
             urgent: Deque::new(),
             describe: None,
             health: None,
@@ -205,6 +216,17 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
                     Offer::Queued
                 };
             }
+            Body::Derived(ds) => {
+                let mut dropped = 0u16;
+                for d in ds {
+                    dropped = dropped.saturating_add(self.offer_derived(d) as u16);
+                }
+                return if dropped > 0 {
+                    Offer::DroppedOldest(dropped)
+                } else {
+                    Offer::Queued
+                };
+            }
             Body::Describe(d) => return Self::replace(&mut self.describe, d, &mut self.stats),
             Body::Health(h) => return Self::replace(&mut self.health, h, &mut self.stats),
             Body::TipHealth(v) => {
@@ -221,7 +243,10 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             Body::SetWindow(b) => Urgent::SetWindow(b),
             Body::Relearn(b) => Urgent::Relearn(b),
             Body::DescribeRequest => Urgent::DescribeRequest,
+            Body::SetClock(b) => Urgent::SetClock(b),
             Body::SetLevels(b) => Urgent::SetLevels(b),
+            Body::ReadLog(b) => Urgent::ReadLog(b),
+            Body::LogChunk(b) => Urgent::LogChunk(b),
             Body::Ack(b) => Urgent::Ack(b),
             Body::Nack(b) => Urgent::Nack(b),
         };
@@ -255,6 +280,19 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
         }
         // Cannot fail: room was made.
         let _ = self.windows.push_back(w);
+        dropped
+    }
+
+    /// Queue the derived figures of one window result (kind 0x08, sent after the window
+    /// results); returns true if the oldest queued one was dropped for it (counted with the
+    /// dropped window results).
+    pub fn offer_derived(&mut self, d: DerivedResult) -> bool {
+        let dropped = self.derived.is_full();
+        if dropped {
+            self.derived.pop_front();
+            self.stats.windows_dropped = self.stats.windows_dropped.saturating_add(1);
+        }
+        let _ = self.derived.push_back(d);
         dropped
     }
 
@@ -316,6 +354,7 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
     pub fn is_idle(&self) -> bool {
         self.tx_pos >= self.tx_len
             && self.windows.is_empty()
+            && self.derived.is_empty()
             && self.urgent.is_empty()
             && self.describe.is_none()
             && self.health.is_none()
@@ -385,6 +424,17 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             }
             self.stats.windows_sent = self.stats.windows_sent.saturating_add(ws.len() as u64);
             Body::Windows(ws)
+        } else if !self.derived.is_empty() {
+            let mut ds = DerivedBatch::new();
+            while ds.len() < MAX_WINDOWS_PER_FRAME {
+                match self.derived.pop_front() {
+                    Some(d) => {
+                        let _ = ds.push(d);
+                    }
+                    None => break,
+                }
+            }
+            Body::Derived(ds)
         } else {
             return false;
         };

@@ -65,6 +65,9 @@ fn run() -> Result<(), String> {
     if args.first().map(String::as_str) == Some("verify-commands") {
         return verify_commands(&args[1..]);
     }
+    if args.first().map(String::as_str) == Some("verify-boot") {
+        return verify_boot(&args[1..]);
+    }
     let [capture, layout, window, lags, out] = args.as_slice() else {
         return Err(
             "usage: frothline-capture-gen CAPTURE.wav LAYOUT.toml WINDOW LAGS OUT.rs".into(),
@@ -361,7 +364,10 @@ fn tip(t: &TipConfig) -> String {
     format!("TipConfig {{ channel: {channel}, polarity: {polarity}, levels: {levels} }}")
 }
 
-fn emit_layout(w: &mut String, layout: &frothline_host::shared::layout::Layout) -> Result<(), String> {
+fn emit_layout(
+    w: &mut String,
+    layout: &frothline_host::shared::layout::Layout,
+) -> Result<(), String> {
     let stations = layout.stations();
     let station_of = |i: usize| {
         stations
@@ -698,7 +704,8 @@ fn device_shaped_check<const P: usize, const L: usize>(
             .map_err(|_| "more than 8 probes".to_string())?;
     }
     let mut chain = frothline_core::Chain::<8, 64>::new(small).map_err(|e| e.to_string())?;
-    let mut cap = frothline_host::shared::capture::Capture::open(capture).map_err(|e| e.to_string())?;
+    let mut cap =
+        frothline_host::shared::capture::Capture::open(capture).map_err(|e| e.to_string())?;
     let mut buf = Vec::new();
     let mut got = Vec::new();
     loop {
@@ -811,16 +818,35 @@ fn command_script() -> Result<(Vec<u8>, Vec<(u16, Option<u8>)>), String> {
     long.push(0);
     bytes.extend(raw_frame(&long));
     want.push((0x23, Some(7)));
-    // A zero window and a mask of no probe: bad_argument; valid ones: busy (this firmware
-    // does not rebuild its chain during a run).
+    // A zero window and a mask of no probe: bad_argument; valid ones are carried out (the
+    // chain is configured afresh, the run's clock going on).
     let (s, _) = send(&mut bytes, Command::SetWindow(WindowSetting::Frames(0)))?;
     want.push((s, Some(2)));
     let (s, _) = send(&mut bytes, Command::SetWindow(WindowSetting::Frames(1000)))?;
-    want.push((s, Some(3)));
+    want.push((s, None));
     let (s, _) = send(&mut bytes, Command::Relearn(1 << 20))?;
     want.push((s, Some(2)));
     let (s, _) = send(&mut bytes, Command::Relearn(u32::MAX))?;
-    want.push((s, Some(3)));
+    want.push((s, None));
+    // SetLevels: a probe the device does not have, levels against the tip's polarity
+    // (air above water on these tips), then valid levels, twice (the same levels again
+    // change nothing, and are Acked).
+    let lv = |probe, air, water| {
+        Command::SetLevels(frothline_core::wire::SetLevels {
+            probe,
+            trailing: false,
+            air,
+            water,
+        })
+    };
+    let (s, _) = send(&mut bytes, lv(9, 26000, 3000))?;
+    want.push((s, Some(2)));
+    let (s, _) = send(&mut bytes, lv(0, 3000, 26000))?;
+    want.push((s, Some(2)));
+    let (s, _) = send(&mut bytes, lv(0, 26000, 3000))?;
+    want.push((s, None));
+    let (s, _) = send(&mut bytes, lv(0, 26000, 3000))?;
+    want.push((s, None));
     // The device's own frame echoed back, and line noise: no answer.
     let mut buf = [0u8; frothline_core::wire::MAX_FRAME_BYTES];
     let echo = Frame {
@@ -831,13 +857,13 @@ fn command_script() -> Result<(Vec<u8>, Vec<(u16, Option<u8>)>), String> {
     let echo = frothline_core::wire::encode(&echo, &mut buf).map_err(|e| e.to_string())?;
     bytes.extend_from_slice(echo);
     bytes.extend_from_slice(&[0x55, 0x13, 0x00, 0xFF, 0x00]);
-    // StopRun ends the run; a second one is not_running; StartRun then is busy.
+    // StopRun ends the run; a second one is not_running; StartRun then starts run 2.
     let (s, _) = send(&mut bytes, Command::StopRun)?;
     want.push((s, None));
     let (s, _) = send(&mut bytes, Command::StopRun)?;
     want.push((s, Some(4)));
     let (s, _) = send(&mut bytes, Command::StartRun("next".into()))?;
-    want.push((s, Some(3)));
+    want.push((s, None));
     Ok((bytes, want))
 }
 
@@ -856,10 +882,45 @@ fn commands_in(args: &[String]) -> Result<(), String> {
     Ok(())
 }
 
-/// Check the firmware's answers to the `commands` check, in order; one RunStart (the run
-/// of power-on) and two descriptions (power-on and the one DescribeRequest carried out).
+/// Check the UART output of the firmware rebooted after the `commands` check (mode `boot`
+/// on the settings store it left): the power-on description reports the stored window of
+/// 1000 frames, and the run is streamed in such windows from its frame 0.
+fn verify_boot(args: &[String]) -> Result<(), String> {
+    use frothline_core::wire::{Body, Decoder, FeedResult, WindowSetting};
+    let [uart] = args else {
+        return Err("usage: frothline-capture-gen verify-boot UART.bin".into());
+    };
+    let bytes = std::fs::read(uart).map_err(|e| format!("{uart}: {e}"))?;
+    let mut dec: Decoder = Decoder::new();
+    let (mut first_window, mut starts) = (None, Vec::new());
+    let mut rest: &[u8] = &bytes;
+    while !rest.is_empty() {
+        let r = dec.feed(rest);
+        rest = r.remaining();
+        if let FeedResult::Frame { frame, .. } = r {
+            match frame.body {
+                Body::Describe(d) if first_window.is_none() => first_window = Some(d.window),
+                Body::Windows(ws) => starts.extend(ws.iter().map(|w| (w.start, w.frames))),
+                _ => {}
+            }
+        }
+    }
+    eprintln!("verify-boot: described window {first_window:?}, windows (start, frames) {starts:?}");
+    if first_window != Some(WindowSetting::Frames(1000)) {
+        return Err("the power-on description does not report the stored window".into());
+    }
+    if !starts.iter().any(|&(s, f)| s == 0 && f == 1000) {
+        return Err("no window of 1000 frames from frame 0".into());
+    }
+    Ok(())
+}
+
+/// Check the firmware's answers to the `commands` check, in order; two RunStarts (the run
+/// of power-on, unlabelled, and run 2 labelled `next`), three descriptions (power-on, the
+/// DescribeRequest carried out, the SetWindow, which reports 1000-frame windows), and run
+/// 2 streamed in windows of 1000 frames counted from its frame 0.
 fn verify_commands(args: &[String]) -> Result<(), String> {
-    use frothline_core::wire::{Body, Decoder, FeedResult};
+    use frothline_core::wire::{Body, Decoder, FeedResult, WindowSetting};
     let [uart] = args else {
         return Err("usage: frothline-capture-gen verify-commands UART.bin".into());
     };
@@ -867,6 +928,9 @@ fn verify_commands(args: &[String]) -> Result<(), String> {
     let bytes = std::fs::read(uart).map_err(|e| format!("{uart}: {e}"))?;
     let mut dec: Decoder = Decoder::new();
     let (mut got, mut describes, mut runs) = (Vec::new(), 0, 0);
+    let (mut labels, mut run) = (Vec::new(), 0u32);
+    let (mut long_windows, mut run2_starts) = (0i64, Vec::new());
+    let mut last_window = None;
     let mut rest: &[u8] = &bytes;
     while !rest.is_empty() {
         let r = dec.feed(rest);
@@ -875,8 +939,30 @@ fn verify_commands(args: &[String]) -> Result<(), String> {
             match frame.body {
                 Body::Ack(a) => got.push((a.seq, None)),
                 Body::Nack(n) => got.push((n.seq, Some(n.reason.code()))),
-                Body::Describe(_) => describes += 1,
-                Body::RunStart(_) => runs += 1,
+                Body::Describe(d) => {
+                    describes += 1;
+                    last_window = Some(d.window);
+                }
+                Body::RunStart(r) => {
+                    runs += 1;
+                    run = r.run;
+                    labels.push(r.label.to_string());
+                }
+                Body::Windows(ws) => {
+                    for w in ws {
+                        // Run 2's windows: 1000 frames, or shorter and flagged
+                        // partial_window (0x10) where the capture ended first (how much
+                        // of the capture is left for run 2 depends on when the commands
+                        // arrived).
+                        if run == 2 {
+                            if w.frames > 1000 || (w.frames < 1000 && w.flags & 0x10 == 0) {
+                                long_windows = -1_000_000;
+                            }
+                            long_windows += 1;
+                            run2_starts.push((w.start, w.frames));
+                        }
+                    }
+                }
                 _ => {}
             }
         }
@@ -899,8 +985,19 @@ fn verify_commands(args: &[String]) -> Result<(), String> {
     if got != want {
         return Err(format!("answers {got:?}, expected {want:?}"));
     }
-    if describes != 2 || runs != 1 || st.lost + st.crc_failures + st.malformed > 0 {
+    eprintln!(
+        "verify-commands: run labels {labels:?}, last described window {last_window:?}, run 2 windows (start, frames) {run2_starts:?}"
+    );
+    if describes != 3 || runs != 2 || st.lost + st.crc_failures + st.malformed > 0 {
         return Err("descriptions, run starts or frame counts differ".into());
+    }
+    if labels != ["", "next"] || last_window != Some(WindowSetting::Frames(1000)) {
+        return Err("run labels or the described window differ".into());
+    }
+    // Run 2 starts at its frame 0 with the stored window: its windows are 1000 frames
+    // from frame 0 (the last one cut short by the end of the capture).
+    if long_windows <= 0 || run2_starts.first().map(|w| w.0) != Some(0) {
+        return Err("run 2 did not stream 1000-frame windows from its frame 0".into());
     }
     Ok(())
 }

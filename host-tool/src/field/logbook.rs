@@ -25,8 +25,16 @@ use std::path::{Path, PathBuf};
 #[derive(clap::Args, Debug, Clone)]
 pub struct LogbookArgs {
     /// The flash image: a raw dump of the field logger's whole log region, from its first
-    /// page.
-    pub image: PathBuf,
+    /// page. Not needed with --port.
+    #[arg(required_unless_present = "port", conflicts_with = "port")]
+    pub image: Option<PathBuf>,
+    /// Read the log from the device on this serial port instead (the device sends its log
+    /// region over the link); the image is kept as OUT/fieldlog-image.bin.
+    #[arg(long, value_name = "PORT")]
+    pub port: Option<String>,
+    /// Baud rate of --port (8N1).
+    #[arg(long, default_value_t = 921_600)]
+    pub baud: u32,
     /// Folder for windows.csv (and fronts.csv, profile.csv when the log holds them).
     #[arg(long, short)]
     pub out: PathBuf,
@@ -280,7 +288,10 @@ pub fn decode_log(
 /// Read the flash image of `args` and write its CSV files.
 pub fn read_image(args: &LogbookArgs) -> Result<LogbookReport, HostError> {
     let layout = args.layout.as_deref().map(Layout::load).transpose()?;
-    let path = &args.image;
+    let path = args
+        .image
+        .as_ref()
+        .ok_or_else(|| HostError::Usage("logbook: give an image file or --port".into()))?;
     let image = load_image(path)?;
     let (log, candidates, same_records_pages) = find_log(path, &image, args)?;
     let name = path
@@ -288,7 +299,7 @@ pub fn read_image(args: &LogbookArgs) -> Result<LogbookReport, HostError> {
         .map_or_else(|| "flash".to_string(), |n| n.to_string_lossy().into_owned());
     let (session, kinds, without) = decode_log(&log, Some(&args.out), layout, &name)?;
     Ok(LogbookReport {
-        image: path.clone(),
+        image: path.to_path_buf(),
         size: image.len() as u64,
         geometry: log.geometry,
         detected: args.page_bytes.is_none() || args.write_unit.is_none(),
@@ -402,7 +413,32 @@ impl std::fmt::Display for LogbookReport {
 
 /// `frothline logbook`.
 pub fn run(args: &LogbookArgs) -> Result<LogbookReport, HostError> {
-    let report = read_image(args)?;
+    let report = match &args.port {
+        Some(port) => {
+            let image = crate::field::log_link::read_region(port, args.baud)?;
+            std::fs::create_dir_all(&args.out).map_err(|source| HostError::Write {
+                path: args.out.clone(),
+                source,
+            })?;
+            let path = args.out.join("fieldlog-image.bin");
+            std::fs::write(&path, &image).map_err(|source| HostError::Write {
+                path: path.clone(),
+                source,
+            })?;
+            if !args.quiet {
+                crate::shared::stdout::print(&format!(
+                    "{port}: read {} bytes of field log into {}\n",
+                    image.len(),
+                    path.display()
+                ));
+            }
+            let mut a = args.clone();
+            a.image = Some(path);
+            a.port = None;
+            read_image(&a)?
+        }
+        None => read_image(args)?,
+    };
     if !args.quiet {
         crate::shared::stdout::print(&report.to_string());
     }

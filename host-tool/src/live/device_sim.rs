@@ -303,6 +303,8 @@ pub struct SimDevice {
     pos: usize,
     /// Sample-clock offset of the current chain within the run.
     offset: u64,
+    /// The UTC clock a host set (SetClock): its UTC, ms, at that instant.
+    clock: Option<(u64, Instant)>,
     /// A re-learn asked for inside a fixed-length window: the run frame it takes effect at
     /// (the end of that window, so the window grid does not move).
     relearn_at: Option<usize>,
@@ -342,6 +344,7 @@ impl SimDevice {
             run_t0: now,
             pos: 0,
             offset: 0,
+            clock: None,
             relearn_at: None,
             running: false,
             last_health: None,
@@ -482,7 +485,11 @@ impl SimDevice {
             run: self.run,
             label: cmd.label.clone(),
             uptime_frames: self.uptime_frames(now),
-            utc_ms: cmd.utc_ms,
+            // The command's UTC, else the device's clock (SetClock) if it was set.
+            utc_ms: cmd.utc_ms.or_else(|| {
+                self.clock
+                    .map(|(utc, at)| utc + now.saturating_duration_since(at).as_millis() as u64)
+            }),
         };
         self.streamer.offer(Body::RunStart(run));
         Ok(())
@@ -630,6 +637,13 @@ impl SimDevice {
                 .get(r.probe as usize)
                 .and_then(|p| p.tip_spacing_mm);
             self.streamer.offer_window(wire_result(&r, fs, spacing));
+            self.streamer.offer_derived(
+                frothline_core::wire::DerivedResult::from_probe_window_with_spacing(
+                    &r,
+                    fs as f32,
+                    spacing.map(|mm| mm as f32),
+                ),
+            );
             // A window cut short (a command, the end of a run) says little of its tips.
             if !r.flags.contains(Flags::PARTIAL_WINDOW) {
                 self.streamer
@@ -892,6 +906,11 @@ impl CommandTarget for SimTarget<'_> {
 
     fn set_levels(&mut self, levels: &frothline_core::wire::SetLevels) -> Result<(), NackReason> {
         self.dev.set_levels(*levels)
+    }
+
+    fn set_clock(&mut self, utc_ms: u64) -> Result<(), NackReason> {
+        self.dev.clock = Some((utc_ms, self.now));
+        Ok(())
     }
 }
 

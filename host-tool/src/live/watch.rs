@@ -733,6 +733,8 @@ impl Watch<'_> {
                 let ev = self.session.opened(port, t_us)?;
                 self.emit(ev);
                 self.send(port, Command::DescribeRequest);
+                // The device's clock, so the runs it starts by itself are dated too.
+                self.send(port, Command::SetClock);
             }
             LinkMsg::OpenFailed { port, reason } => {
                 let name = self.opts.ports[port].clone();

@@ -283,6 +283,7 @@ impl Ensemble {
                     droplets: 0,
                     bubble_chords: Default::default(),
                     droplet_chords: Default::default(),
+                    clusters: Default::default(),
                     levels: None,
                     flags: frothline_core::Flags::NONE,
                 },

@@ -14,6 +14,7 @@
 //! ensemble: repeated transient runs of one rig, aligned on the front, combined
 //! tipcheck: every tip's levels, noise and swing on a segment, written into the layout
 //! ```
+pub mod discharge;
 pub mod ensemble;
 pub mod level_drift;
 pub mod record_levels;

@@ -468,8 +468,19 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     bar.finish_and_clear();
     let frames = result?;
     csv.finish().map_err(write_err(&staged))?;
+    let discharges = crate::offline::discharge::station_discharges(&layout, &tallies);
+    let mut names = vec!["windows.csv"];
+    if !discharges.is_empty() {
+        let path = set.staged("discharge.csv");
+        let file = set.create("discharge.csv")?;
+        crate::offline::discharge::write_csv(file, &discharges).map_err(|e| HostError::Write {
+            path,
+            source: e.into(),
+        })?;
+        names.push("discharge.csv");
+    }
     let committed = set.commit(
-        &["windows.csv"],
+        &names,
         &[("capture", &args.capture), ("layout", &args.layout)],
     )?;
     let abrupt_end = cap.abrupt_end_warning();
@@ -483,6 +494,7 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
         windows_csv: args.out.join("windows.csv"),
         abrupt_end,
         committed,
+        discharges,
     };
     if let Some(w) = &report.abrupt_end {
         eprintln!("warning: {w}");
@@ -516,5 +528,8 @@ pub fn summary_table(r: &ReplayReport) -> String {
         let _ = writeln!(s, "{note}");
     }
     s.push_str(&tally_table(&r.layout, &r.tallies));
+    for (x, d) in &r.discharges {
+        s.push_str(&crate::offline::discharge::summary(*x, d));
+    }
     s
 }

@@ -129,6 +129,7 @@ mod tests {
                 droplets: 0,
                 bubble_chords: ChordStats::new(),
                 droplet_chords: ChordStats::new(),
+                clusters: Default::default(),
                 levels: None,
                 flags: Flags::NONE,
             },

@@ -1074,6 +1074,7 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
         windows_csv: files.windows.clone(),
         abrupt_end,
         committed,
+        discharges: Vec::new(),
     };
     if args.strict {
         if let Some(e) = cap.abrupt_end_error() {

@@ -480,6 +480,13 @@ fn caption(stem: &str) -> &'static str {
             "Markers: windows; thin lines: envelope F = 4 Fmax C (1 − C) fitted to each \
              probe's windows (least squares); dashed: fitted to every probe together."
         }
+        "derived_figures" => {
+            "Probe means over their windows. Top: a = 4F/V; Sauter diameter d = 1.5 C V / F \
+             (markers) and the median-to-p90 chord lengths (bars). Bottom left: (1 − C) V and \
+             C V against elevation, the shaded areas being q_w and q_a. Bottom right: \
+             fraction of bubbles in near-wake clusters (filled) against what Poisson \
+             arrivals with the same chords give (rings): filled above ring is real grouping."
+        }
         _ => "",
     }
 }

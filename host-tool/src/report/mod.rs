@@ -19,12 +19,14 @@
 //! | `velocity_turbulence` | V and Tu against elevation, window values and probe means | those columns |
 //! | `chord_times` | chord-time histograms per probe (chords.csv), or 10th–90th percentile bars with median and mean | chord columns |
 //! | `count_rate_void_fraction` | F against C per window, envelope F = 4 Fmax C (1 − C) per probe and for all | C and F |
+//! | `derived_figures` | interfacial area, Sauter diameter and chord lengths against elevation; `(1 − C) V` and `C V` against elevation with the areas under them (q_w, q_a, continuity error from discharge.csv); clustered fraction against C with the random-arrival reference | the derived columns |
 //! | `report.html` | the page: figures, per-probe table, flow indicators, every flag raised and its meaning, notes | — |
 //!
 //! A figure whose data are missing is skipped, and the page says why. Means and fits use
 //! the windows after the front (transient) that carry none of the excluded flags
 //! (`--exclude-flags`, default `levels_not_learnt`); flag counts cover every window.
 
+mod derived_fig;
 pub mod error;
 mod figures;
 pub mod flags;
@@ -246,7 +248,7 @@ impl fmt::Display for ReportSummary {
 }
 
 /// Titles of the figures, by stem, in page order.
-const TITLES: [(&str, &str); 5] = [
+const TITLES: [(&str, &str); 6] = [
     ("void_fraction_profile", "Void fraction against elevation"),
     (
         "void_fraction_decay",
@@ -261,6 +263,7 @@ const TITLES: [(&str, &str); 5] = [
         "count_rate_void_fraction",
         "Bubble count rate against void fraction",
     ),
+    ("derived_figures", "Derived figures"),
 ];
 
 fn title(stem: &str) -> &'static str {
@@ -561,6 +564,20 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
         skip("no window has both a void fraction and a bubble count rate")
     };
     push("count_rate_void_fraction", count_rate);
+
+    // 6. derived figures: a, d, chord lengths, discharge integrands, clusters
+    let derived = match derived_fig::read(&args.dir) {
+        Some(d) => written(render(
+            &derived_fig::DerivedFigure { data: &d },
+            out,
+            sizes,
+        )?),
+        None => skip(
+            "windows.csv has no derived figures (interfacial area, clusters): replayed by an \
+             older frothline, or no bubbles",
+        ),
+    };
+    push("derived_figures", derived);
     progress.finish_and_clear();
 
     let thin: Vec<&str> = (0..run.probes.len())

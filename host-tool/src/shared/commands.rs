@@ -1,14 +1,17 @@
-//! Host -> device commands: StartRun, StopRun, SetWindow, Relearn, DescribeRequest and
-//! SetLevels as wire frames.
+//! Host -> device commands: StartRun, StopRun, SetWindow, Relearn, DescribeRequest,
+//! SetClock and SetLevels as wire frames.
 //!
 //! The host writes its commands with the host id ([`HOST_DEVICE_ID`], the protocol's
 //! [`wire::HOST_ID`]: devices ignore frames with any other id) and its own sequence
 //! numbers, one counter per link; the device answers each command with an `Ack` or a
 //! `Nack` that quotes the command's sequence number, so [`CommandLog`] can tell which
 //! command a reply is about. A StartRun carries the host's UTC, which the device quotes
-//! in the run's RunStart frame.
+//! in the run's RunStart frame; SetClock (sent when the host connects) sets the device's
+//! clock, so the runs a device starts by itself are dated too.
 
-use frothline_core::wire::{self, Body, Frame, Kind, Relearn, SetLevels, StartRun, WindowSetting};
+use frothline_core::wire::{
+    self, Body, Frame, Kind, ReadLog, Relearn, SetClock, SetLevels, StartRun, WindowSetting,
+};
 use std::collections::VecDeque;
 
 /// The device id the host writes into its command frames (no device uses it).
@@ -30,6 +33,10 @@ pub enum Command {
     DescribeRequest,
     /// Fix one tip's air and water levels (counts): a calibration's result.
     SetLevels(SetLevels),
+    /// Set the device's UTC clock to the host's UTC now (taken when the frame is built).
+    SetClock,
+    /// Ask for a chunk of the device's field log region.
+    ReadLog(ReadLog),
 }
 
 impl Command {
@@ -42,6 +49,8 @@ impl Command {
             Command::Relearn(_) => Kind::Relearn,
             Command::DescribeRequest => Kind::DescribeRequest,
             Command::SetLevels(_) => Kind::SetLevels,
+            Command::SetClock => Kind::SetClock,
+            Command::ReadLog(_) => Kind::ReadLog,
         }
     }
 
@@ -58,6 +67,10 @@ impl Command {
             Command::Relearn(mask) => Body::Relearn(Relearn { probes: *mask }),
             Command::DescribeRequest => Body::DescribeRequest,
             Command::SetLevels(l) => Body::SetLevels(*l),
+            Command::ReadLog(r) => Body::ReadLog(*r),
+            Command::SetClock => Body::SetClock(SetClock {
+                utc_ms: crate::shared::archive::now_us() / 1000,
+            }),
         })
     }
 }
@@ -76,6 +89,9 @@ pub fn kind_name(kind: Kind) -> &'static str {
         Kind::SetWindow => "set-window",
         Kind::Relearn => "relearn",
         Kind::DescribeRequest => "describe-request",
+        Kind::SetClock => "set-clock",
+        Kind::ReadLog => "read-log",
+        Kind::LogChunk => "log-chunk",
         Kind::SetLevels => "set-levels",
         Kind::Ack => "ack",
         Kind::Nack => "nack",

@@ -9,6 +9,8 @@
 //! phase_before_front = "air"  # transient only, default "air"
 //! reference_depth_m = 0.08    # optional
 //! water_temperature_c = 18.5  # optional, default 20.0
+//! discharge_m2_s = 0.12       # optional: the rig's discharge per unit width (or
+//!                             # discharge_m3_s with width_m), for the continuity check
 //!
 //! [detector]                  # optional, every key optional
 //! threshold = 0.5
@@ -120,6 +122,10 @@ pub struct Flow {
     pub reference_depth_m: Option<f64>,
     /// `water_temperature_c`, degrees Celsius. Default 20.0.
     pub water_temperature_c: f64,
+    /// The discharge the rig delivered per unit width, m²/s: `discharge_m2_s`, or
+    /// `discharge_m3_s / width_m`. The continuity check compares the water discharge
+    /// integrated across the array with it ([`crate::offline::discharge`]).
+    pub discharge_m2_s: Option<f64>,
 }
 
 /// The `[detector]` table: phase detector settings shared by all tips.

@@ -15,6 +15,7 @@
 pub mod archive;
 pub mod capture;
 pub mod commands;
+pub mod derived_csv;
 pub mod error;
 pub mod hydraulics;
 pub mod layout;

@@ -410,6 +410,7 @@ struct Outputs {
     windows: WindowsCsv<BufWriter<File>>,
     fronts: Option<csv::Writer<BufWriter<File>>>,
     profile: Option<csv::Writer<BufWriter<File>>>,
+    derived: Option<csv::Writer<BufWriter<File>>>,
     dirty: bool,
 }
 
@@ -464,6 +465,7 @@ impl Session {
                     windows,
                     fronts: None,
                     profile: None,
+                    derived: None,
                     dirty: true,
                 })
             }
@@ -756,6 +758,11 @@ impl Session {
                 device,
                 health,
             }),
+            Body::Derived(ds) => {
+                for d in &ds {
+                    self.derived(port, device, d)?;
+                }
+            }
             Body::TipHealth(tips) => {
                 self.tip_health(port, device, &tips)?;
                 events.push(Event::TipHealth { port, device, tips });
@@ -963,6 +970,40 @@ impl Session {
         Ok(())
     }
 
+    fn derived(
+        &mut self,
+        port: usize,
+        device: u16,
+        d: &frothline_core::wire::DerivedResult,
+    ) -> Result<(), HostError> {
+        let name = self.meta(port, device, d.probe as usize).name;
+        let fs = self
+            .devices
+            .get(&(port, device))
+            .and_then(|i| i.sample_rate_hz);
+        let Some(out) = self.out.as_mut() else {
+            return Ok(());
+        };
+        let path = out.dir.join("derived.csv");
+        if out.derived.is_none() {
+            let cols: Vec<&str> = crate::shared::derived_csv::COLUMNS
+                .iter()
+                .chain(crate::shared::runs::RUN_COLUMNS.iter())
+                .copied()
+                .collect();
+            out.derived = Some(csv_file(&path, &cols)?);
+            self.report.files.push(path.clone());
+        }
+        let mut row = crate::shared::derived_csv::row(d, &name, fs);
+        row.extend(self.runs.columns(port, device, self.now_us));
+        if let Some(w) = out.derived.as_mut() {
+            w.write_record(row)
+                .map_err(|e| write_err(&path)(e.into()))?;
+        }
+        out.dirty = true;
+        Ok(())
+    }
+
     fn tip_health(
         &mut self,
         port: usize,
@@ -1073,6 +1114,9 @@ impl Session {
         }
         if let Some(w) = out.profile.as_mut() {
             w.flush().map_err(write_err(dir.join("profile.csv")))?;
+        }
+        if let Some(w) = out.derived.as_mut() {
+            w.flush().map_err(write_err(dir.join("derived.csv")))?;
         }
         Ok(())
     }

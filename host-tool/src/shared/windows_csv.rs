@@ -41,6 +41,21 @@ pub const COLUMNS: &[&str] = &[
     "trailing_air_level_counts",
     "trailing_water_level_counts",
     "levels_from",
+    // derived figures (frothline_core::derived): chord lengths at the window's velocity,
+    // specific interfacial area 4F/V, Sauter diameter 1.5CV/F, near-wake clusters and what
+    // Poisson arrivals would give
+    "bubble_chord_length_mean_mm",
+    "bubble_chord_length_median_mm",
+    "bubble_chord_length_p90_mm",
+    "interfacial_area_per_m",
+    "sauter_diameter_mm",
+    "cluster_rate_hz",
+    "bubbles_per_cluster",
+    "clustered_fraction",
+    "random_cluster_rate_hz",
+    "random_bubbles_per_cluster",
+    "random_clustered_fraction",
+    "grouping_z",
 ];
 
 /// What a row needs to know about its probe besides the record.
@@ -82,6 +97,8 @@ pub fn row(
     let corr = rec.correlation.as_ref();
     let fs32 = sample_rate as f32;
     let velocity = corr.and_then(|c| c.velocity_m_s(tip_spacing_mm? as f32, fs32));
+    let d = frothline_core::derived::Derived::of_tip(lead, fs32, velocity);
+    let r = d.random;
     vec![
         meta.name.clone(),
         (rec.start as f64 / fs).to_string(),
@@ -120,6 +137,18 @@ pub fn row(
         opt(rec.trail.as_ref().and_then(|t| t.levels).map(|l| l.air)),
         opt(rec.trail.as_ref().and_then(|t| t.levels).map(|l| l.water)),
         opt(lead.levels.and(meta.levels_from)),
+        opt(d.chord_length_mean_mm),
+        opt(d.chord_length_median_mm),
+        opt(d.chord_length_p90_mm),
+        opt(d.interfacial_area_per_m),
+        opt(d.sauter_diameter_mm),
+        opt(d.cluster_rate_hz),
+        opt(d.bubbles_per_cluster),
+        opt(d.clustered_fraction),
+        opt(r.map(|r| r.cluster_rate_hz)),
+        opt(r.and_then(|r| r.bubbles_per_cluster)),
+        opt(r.map(|r| r.clustered_fraction)),
+        opt(d.grouping_z),
     ]
 }
 

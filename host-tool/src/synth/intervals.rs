@@ -54,6 +54,9 @@ pub struct TipPairSpec {
     pub p_miss: f64,
     /// Rate of extra trailing-only bubbles as a fraction of F.
     pub extra_rate_ratio: f64,
+    /// Particle grouping: the fraction of bubbles followed by a water chord in their near
+    /// wake (see [`generate_leading_grouped`]); 0 for none.
+    pub grouping: f64,
 }
 
 /// Ground truth of one probe.
@@ -121,6 +124,34 @@ pub fn generate_leading<R: Rng + ?Sized>(
     end_s: f64,
     rng: &mut R,
 ) -> Vec<Interval> {
+    generate_leading_grouped(flow, chord_shape, 0.0, start_s, end_s, rng)
+}
+
+/// Mean of the near-wake water chord as a fraction of the bubble chord before it: uniform
+/// on `GROUPED_GAP`.
+const GROUPED_GAP: std::ops::Range<f64> = 0.05..0.5;
+
+/// [`generate_leading`] with particle grouping: after each bubble, with probability
+/// `grouping`, the water chord is drawn uniformly between 5 % and 50 % of that bubble's
+/// chord (the next bubble rides in its near wake); the other water chords keep the gamma
+/// shape with their mean raised so that the mean water chord stays `(1 − C)/F` (C and F are
+/// kept). With `grouping = 0` no extra random number is drawn (the same stream as
+/// [`generate_leading`] always gave).
+pub fn generate_leading_grouped<R: Rng + ?Sized>(
+    flow: &dyn FlowModel,
+    chord_shape: f64,
+    grouping: f64,
+    start_s: f64,
+    end_s: f64,
+    rng: &mut R,
+) -> Vec<Interval> {
+    let grouping = if grouping.is_finite() {
+        grouping.clamp(0.0, 0.95)
+    } else {
+        0.0
+    };
+    let short_mean = 0.5 * (GROUPED_GAP.start + GROUPED_GAP.end);
+    let mut last_air = 0.0f64;
     let unit = unit_gamma(chord_shape);
     let mut out = Vec::new();
     let mut t = start_s;
@@ -176,8 +207,18 @@ pub fn generate_leading<R: Rng + ?Sized>(
             continue;
         }
         let mean = if in_air { c / f } else { (1.0 - c) / f };
-        t += mean * unit.sample(rng);
+        if !in_air && grouping > 0.0 && last_air > 0.0 {
+            if rng.random_bool(grouping) {
+                t += last_air * rng.random_range(GROUPED_GAP);
+            } else {
+                let rest = (mean - grouping * short_mean * c / f) / (1.0 - grouping);
+                t += rest.max(0.1 * mean) * unit.sample(rng);
+            }
+        } else {
+            t += mean * unit.sample(rng);
+        }
         if in_air {
+            last_air = t - air_start;
             out.push(Interval {
                 start_s: air_start,
                 end_s: t,
@@ -254,7 +295,8 @@ pub fn generate_probe<R: Rng + ?Sized>(
     end_s: f64,
     rng: &mut R,
 ) -> (Vec<Bubble>, Option<Vec<Interval>>) {
-    let leading = generate_leading(flow, spec.chord_shape, start_s, end_s, rng);
+    let leading =
+        generate_leading_grouped(flow, spec.chord_shape, spec.grouping, start_s, end_s, rng);
     let mut bubbles = Vec::with_capacity(leading.len());
     let mut trailing = spec
         .tip_spacing_m

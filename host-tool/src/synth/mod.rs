@@ -57,6 +57,7 @@
 //! sample_rate_hz = 40000       # per-channel rate, Hz                      (40000)
 //! seed = 14                    # 0 ..= 2^63-1                               (0)
 //! water_temperature_c = 20.0   # copied to the layout                      (20)
+//! discharge_m2_s = 0.15        # copied to the layout's [flow]             (none)
 //!
 //! [signal]
 //! low_counts = 3000            # lower phase level, counts (water if air_is_high)  (3000)
@@ -86,6 +87,7 @@
 //! p_miss = 0.1                 # trailing tip misses a bubble                      (0.1)
 //! extra_rate_ratio = 0.1       # trailing-only bubbles, fraction of F              (0.1)
 //! air_is_high = true           # polarity                                          (true)
+//! grouping = 0.0               # bubbles followed by a near-wake water chord        (0)
 //!
 //! [[probe]]
 //! name = "A"                   # unique
@@ -95,7 +97,7 @@
 //! bubble_rate_hz = 30.0        # F, required
 //! velocity_m_s = 2.0           # V, required
 //! # optional overrides: turbulence_intensity, tips, tip_spacing_mm, chord_shape, p_miss,
-//! # extra_rate_ratio, air_is_high, low_counts, high_counts,
+//! # extra_rate_ratio, air_is_high, grouping, low_counts, high_counts,
 //! # leading, trailing (channels: give them for all probes or none; automatic assignment
 //! # packs probes in order, a dual-tip probe taking the next two channels, so probe i gets
 //! # 2i, 2i+1 when all are dual-tip; channels must end up 0..N without gaps)

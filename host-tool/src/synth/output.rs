@@ -83,6 +83,9 @@ pub fn layout_toml(scenario: &Scenario, resolved: &Resolved, tip_levels: &[(f64,
         "water_temperature_c = {}",
         tv_f(scenario.water_temperature_c)
     );
+    if let Some(q) = scenario.discharge_m2_s {
+        let _ = writeln!(s, "discharge_m2_s = {}", tv_f(q));
+    }
     if let Some(d) = &scenario.detector {
         let _ = writeln!(s, "\n[detector]");
         let _ = writeln!(s, "threshold = {}", tv_f(d.threshold));

@@ -45,6 +45,11 @@ pub struct Scenario {
     /// Water temperature written to the layout, deg C.
     #[serde(default = "d_temperature")]
     pub water_temperature_c: f64,
+    /// The discharge per unit width the generated flow carries, m²/s, written to the
+    /// layout's `[flow] discharge_m2_s` for the continuity check (give the closed-form
+    /// integral of the probes' profiles).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub discharge_m2_s: Option<f64>,
     /// Signal shape: levels, ramps, noise, drift, rails.
     #[serde(default)]
     pub signal: SignalSpec,
@@ -162,6 +167,8 @@ pub struct ProbeDefaults {
     pub extra_rate_ratio: f64,
     /// Polarity: air reads the higher level.
     pub air_is_high: bool,
+    /// Fraction of bubbles followed by a near-wake water chord (particle grouping).
+    pub grouping: f64,
 }
 
 impl Default for ProbeDefaults {
@@ -174,6 +181,7 @@ impl Default for ProbeDefaults {
             p_miss: 0.1,
             extra_rate_ratio: 0.1,
             air_is_high: true,
+            grouping: 0.0,
         }
     }
 }
@@ -216,6 +224,9 @@ pub struct ProbeSpec {
     /// Polarity: air reads the higher level.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub air_is_high: Option<bool>,
+    /// Fraction of bubbles followed by a near-wake water chord (particle grouping).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub grouping: Option<f64>,
     /// This probe's lower level, counts.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub low_counts: Option<i32>,
@@ -247,6 +258,7 @@ impl ProbeSpec {
             p_miss: None,
             extra_rate_ratio: None,
             air_is_high: None,
+            grouping: None,
             low_counts: None,
             high_counts: None,
             leading: None,
@@ -374,6 +386,7 @@ impl Scenario {
             sample_rate_hz: DEFAULT_SAMPLE_RATE_HZ,
             seed: 1,
             water_temperature_c: 20.0,
+            discharge_m2_s: None,
             signal: SignalSpec {
                 drift: DriftSpec {
                     kind: DriftKind::Sine,
@@ -447,6 +460,9 @@ impl Scenario {
         check(self.seed <= MAX_SEED, "seed", || {
             format!("must be at most {MAX_SEED}")
         })?;
+        if let Some(q) = self.discharge_m2_s {
+            positive("discharge_m2_s", q)?;
+        }
         finite_in("water_temperature_c", self.water_temperature_c, -5.0, 100.0)?;
         let s = &self.signal;
         non_negative("signal.noise_sigma_counts", s.noise_sigma_counts)?;
@@ -530,6 +546,8 @@ impl Scenario {
             finite_in(&k("p_miss"), p_miss, 0.0, 1.0)?;
             let extra = p.extra_rate_ratio.unwrap_or(d.extra_rate_ratio);
             finite_in(&k("extra_rate_ratio"), extra, 0.0, 100.0)?;
+            let grouping = p.grouping.unwrap_or(d.grouping);
+            finite_in(&k("grouping"), grouping, 0.0, 0.95)?;
             let air_is_high = p.air_is_high.unwrap_or(d.air_is_high);
             let low = p.low_counts.unwrap_or(s.low_counts);
             let high = p.high_counts.unwrap_or(s.high_counts);
@@ -593,6 +611,7 @@ impl Scenario {
                     chord_shape: shape,
                     p_miss,
                     extra_rate_ratio: extra,
+                    grouping,
                 },
                 air_is_high,
                 water_counts,

@@ -25,6 +25,9 @@ pub(super) struct RawFlow {
     pub(super) phase_before_front: Option<Spanned<String>>,
     pub(super) reference_depth_m: Option<Spanned<f64>>,
     pub(super) water_temperature_c: Option<Spanned<f64>>,
+    pub(super) discharge_m2_s: Option<Spanned<f64>>,
+    pub(super) discharge_m3_s: Option<Spanned<f64>>,
+    pub(super) width_m: Option<Spanned<f64>>,
 }
 
 #[derive(Deserialize)]
@@ -375,11 +378,52 @@ pub(super) fn build_flow(cx: &Ctx<'_>, f: RawFlow) -> Result<Flow, LayoutError> 
             )?
         }
     };
+    let positive =
+        |key: &str, v: &Option<Spanned<f64>>| v.as_ref().map(|v| cx.positive(key, v)).transpose();
+    let per_width = positive("flow.discharge_m2_s", &f.discharge_m2_s)?;
+    let total = positive("flow.discharge_m3_s", &f.discharge_m3_s)?;
+    let width = positive("flow.width_m", &f.width_m)?;
+    let refuse = |key: &str, v: &Option<Spanned<f64>>, detail: &str| {
+        let span = v.as_ref().map(|v| v.span()).unwrap_or(0..0);
+        Err(cx.err(
+            key,
+            span,
+            Problem::OutOfRange {
+                detail: detail.into(),
+            },
+        ))
+    };
+    let discharge_m2_s = match (per_width, total, width) {
+        (q, None, None) => q,
+        (None, Some(q), Some(b)) => Some(q / b),
+        (Some(_), Some(_), _) => {
+            return refuse(
+                "flow.discharge_m3_s",
+                &f.discharge_m3_s,
+                "give discharge_m2_s or discharge_m3_s, not both",
+            )
+        }
+        (None, Some(_), None) => {
+            return refuse(
+                "flow.discharge_m3_s",
+                &f.discharge_m3_s,
+                "needs width_m, the channel width in metres",
+            )
+        }
+        (_, None, Some(_)) => {
+            return refuse(
+                "flow.width_m",
+                &f.width_m,
+                "is only read with discharge_m3_s",
+            )
+        }
+    };
     Ok(Flow {
         kind,
         phase_before_front,
         reference_depth_m,
         water_temperature_c,
+        discharge_m2_s,
     })
 }
 

@@ -136,7 +136,8 @@ fn minimal_layout_defaults() {
             kind: FlowKind::Steady,
             phase_before_front: Phase::Air,
             reference_depth_m: None,
-            water_temperature_c: 20.0
+            water_temperature_c: 20.0,
+            discharge_m2_s: None,
         }
     );
     assert_eq!(l.detector, DetectorSettings::default());
