@@ -6,6 +6,10 @@
 use std::path::Path;
 
 fn replay(out: &Path) {
+    replay_with(out, "50ms");
+}
+
+fn replay_with(out: &Path, window: &str) {
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/surge-b2");
     let args = [
         "frothline".to_string(),
@@ -16,10 +20,49 @@ fn replay(out: &Path) {
         "--out".into(),
         out.display().to_string(),
         "--window".into(),
-        "50ms".into(),
+        window.into(),
         "--quiet".into(),
     ];
     frothline_host::cli::run(args).unwrap();
+}
+
+/// `--window bubbles:N` on a transient layout counts from each station's front, as fixed
+/// windows do (the front-relative windows of `frothline_core::window`): every probe's first
+/// row is the pre-front record, flagged `pre_front` and ending where its next row starts
+/// at since_front 0; no later row is before the front. (Before, the first bubble window
+/// ran from 0 across the front, since_front -0.252, unflagged.)
+#[test]
+fn bubble_windows_on_a_transient_layout_start_at_the_front() {
+    let out = tempfile::tempdir().unwrap();
+    replay_with(out.path(), "bubbles:40");
+    let mut r = csv::Reader::from_path(out.path().join("windows.csv")).unwrap();
+    let h = r.headers().unwrap().clone();
+    let col = |name: &str| h.iter().position(|c| c == name).unwrap();
+    let (probe, start, end, since, flags) = (
+        col("probe"),
+        col("window_start_s"),
+        col("window_end_s"),
+        col("since_front_s"),
+        col("flags"),
+    );
+    let mut rows: std::collections::BTreeMap<String, Vec<csv::StringRecord>> = Default::default();
+    for rec in r.records() {
+        let rec = rec.unwrap();
+        rows.entry(rec[probe].to_string()).or_default().push(rec);
+    }
+    assert!(rows.len() >= 4, "{} probes", rows.len());
+    for (name, rs) in &rows {
+        assert!(rs.len() >= 3, "{name}: {} rows", rs.len());
+        assert!(rs[0][flags].contains("pre_front"), "{name}: {:?}", &rs[0]);
+        assert_eq!(&rs[0][start], "0", "{name}");
+        assert_eq!(rs[0][end], rs[1][start], "{name}");
+        let s1: f64 = rs[1][since].parse().unwrap();
+        assert_eq!(s1, 0.0, "{name}: second row since_front {s1}");
+        for r in &rs[1..] {
+            assert!(!r[flags].contains("pre_front"), "{name}: {r:?}");
+            assert!(r[since].parse::<f64>().unwrap() >= 0.0, "{name}: {r:?}");
+        }
+    }
 }
 
 #[test]

@@ -173,6 +173,12 @@ fn turbulence_intensity_within_fifteen_percent_from_point_one_to_point_four() {
             seed: 5,
         };
         let (rec, _) = run(&case);
+        // Chords short next to the transit-time spread: Tu is a measure, not an index.
+        assert!(
+            !rec.flags.contains(frothline_core::Flags::TU_INDEX),
+            "Tu {tu}: flagged tu_index, {:?}",
+            rec.correlation
+        );
         let c = rec.correlation.unwrap();
         let published = c.turbulence_intensity.expect("Tu defined") as f64;
         let corrected =
@@ -194,4 +200,40 @@ fn turbulence_intensity_within_fifteen_percent_from_point_one_to_point_four() {
         );
     }
     println!("{}", report.join("\n"));
+}
+
+/// Chords long next to the transit-time spread (C 0.5 at 120 Hz: chords of about 4 ms
+/// against a transit-time half-width of about 0.5 ms at V = 2.7 m/s, Tu = 0.16 over 6 mm)
+/// make the published formula read high, as the convolution of an exponential
+/// auto-correlation with a Gaussian transit-time density predicts (module documentation of
+/// `frothline_core::correlation`: 50 % and more once T05 reaches the half-width), and the
+/// window says that its Tu is only an index (`tu_index`: tau05 < 4 T05). The reference is
+/// the generator's true Tu.
+#[test]
+fn long_chords_next_to_the_transit_spread_flag_tu_as_an_index() {
+    let case = Case {
+        c: 0.5,
+        f: 120.0,
+        v: 2.7,
+        tu: 0.16,
+        rate: 40_000,
+        seconds: 30.0,
+        shape: 1.0,
+        seed: 7,
+    };
+    let (rec, _) = run(&case);
+    let c = rec.correlation.unwrap();
+    let (w, t05) = (c.tau05_frames.unwrap(), c.t05_frames.unwrap());
+    assert!(w < 4.0 * t05, "tau05 {w} T05 {t05}");
+    assert!(
+        rec.flags.contains(frothline_core::Flags::TU_INDEX),
+        "{:?}",
+        rec.flags
+    );
+    let published = c.turbulence_intensity.expect("Tu defined") as f64;
+    assert!(
+        published > 1.15 * case.tu,
+        "Tu {published} for a true {}",
+        case.tu
+    );
 }

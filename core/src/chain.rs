@@ -585,7 +585,7 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
         stats.frame = 0;
         stats.window_start = 0;
         stats.window_bubbles = 0;
-        stats.pre_front_open = matches!(config.window, WindowPolicy::AfterFront { .. });
+        stats.pre_front_open = config.window.counts_from_front(config.station.is_some());
         stats.station.on = false;
         if let (Some(st), Some(slot)) = (&config.station, stats.station.slot.first_mut()) {
             slot.configure(st, &config.probes, &config.detector, config.initial_air);
@@ -901,10 +901,9 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
 
     /// The end (exclusive) of the open window, when known.
     fn window_end(&self) -> Option<u64> {
-        if let WindowPolicy::AfterFront { .. } = self.config.window {
-            if self.pre_front_open {
-                return self.station.as_ref().and_then(Station::cut);
-            }
+        // (Only front-relative policies open a pre-front record.)
+        if self.pre_front_open {
+            return self.station.as_ref().and_then(Station::cut);
         }
         self.config.window.end_of_window_from(self.window_start)
     }
@@ -939,7 +938,11 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
             }
             let mut closes = len as u64 == to_end;
             let mut bubbles = 0;
-            if let WindowPolicy::Bubbles { count, probe, .. } = self.config.window {
+            // The pre-front record ends at the arrival, never by a bubble count.
+            let counting = !self.pre_front_open;
+            if let (true, WindowPolicy::Bubbles { count, probe, .. }) =
+                (counting, self.config.window)
+            {
                 // Look ahead with a copy of the reference tip's detector.
                 let need = count.saturating_sub(self.window_bubbles).max(1);
                 let run = data.get(done * n..(done + len) * n).unwrap_or(&[]);
@@ -1111,7 +1114,7 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
             .station
             .as_ref()
             .and_then(|s| s.since_front(self.window_start));
-        let after_front = matches!(self.config.window, WindowPolicy::AfterFront { .. });
+        let after_front = self.config.window.counts_from_front(self.station.is_some());
         let late_start =
             after_front && !pre && locked.is_some_and(|(a, w)| self.window_start == w && w > a);
         let det = &self.config.detector;

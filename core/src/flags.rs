@@ -61,9 +61,15 @@ impl Flags {
     /// flow gave, and nothing after it was recorded. Raised by the reader of the capture,
     /// never by the chain.
     pub const CAPTURE_CUT: Flags = Flags(1 << 13);
+    /// Dual-tip correlation: Tu is defined but only an index of the turbulence, not a
+    /// measure of it: the chord time scale (the auto-correlation half-time T05) is not short
+    /// next to the transit-time spread, i.e. the cross-correlation half-width tau05 is below
+    /// [`TU_WIDTH_RATIO`](crate::correlation::TU_WIDTH_RATIO) times T05 (see
+    /// [`crate::correlation`], where the rule is derived).
+    pub const TU_INDEX: Flags = Flags(1 << 14);
 
     /// Names of the flags, in bit order, as written into CSV files.
-    pub const NAMES: [(Flags, &'static str); 14] = [
+    pub const NAMES: [(Flags, &'static str); 15] = [
         (Flags::STUCK, "stuck"),
         (Flags::LEVELS_NOT_LEARNT, "levels_not_learnt"),
         (Flags::SATURATED, "saturated"),
@@ -78,6 +84,7 @@ impl Flags {
         (Flags::PRE_FRONT, "pre_front"),
         (Flags::LATE_FRONT_START, "late_front_start"),
         (Flags::CAPTURE_CUT, "capture_cut"),
+        (Flags::TU_INDEX, "tu_index"),
     ];
 
     /// True if every bit of `other` is set in `self`.

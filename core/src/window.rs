@@ -21,6 +21,10 @@
 //!   frames, the first one starting exactly at the arrival frame. The arrival is confirmed
 //!   some frames after it happened; the chain's delay line (see [`crate::station`]) lets
 //!   the statistics start at the arrival all the same.
+//! - [`WindowPolicy::Bubbles`] in a chain with a station is front-relative as well: the same
+//!   pre-front record, then bubble-count windows, the first one starting at the arrival
+//!   frame (a bubble-count window straddling the front would mix the dry tips with the most
+//!   aerated part of the flow).
 
 /// How the chain cuts the stream into analysis windows.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -80,6 +84,18 @@ impl WindowPolicy {
                 ..
             } => Some(start.saturating_add(n as u64)),
             WindowPolicy::Bubbles { .. } => None,
+        }
+    }
+
+    /// True if a chain with a station (`station`: [`crate::ChainConfig::station`] is set)
+    /// counts this policy's windows from the front arrival, after one pre-front record:
+    /// [`WindowPolicy::AfterFront`], and [`WindowPolicy::Bubbles`] with a station (the
+    /// first bubble-count window starts at the arrival, as the first fixed one does).
+    pub const fn counts_from_front(&self, station: bool) -> bool {
+        match self {
+            WindowPolicy::AfterFront { .. } => true,
+            WindowPolicy::Bubbles { .. } => station,
+            _ => false,
         }
     }
 

@@ -203,6 +203,60 @@ fn first_window_starts_exactly_at_the_arrival() {
     }));
 }
 
+/// Bubble-count windows in a station chain count from the front as fixed ones do: one
+/// pre-front record ending at the arrival, then windows from the arrival frame on, each
+/// holding exactly `count` bubbles of the reference tip (the window ends at the frame of
+/// its last bubble's closing interface, the definition in `frothline_core::window`), the
+/// same for any split of the samples into pushes. (Before, the first bubble window ran
+/// from frame 0 across the front.) The synthetic tip closes one air chord per cycle, at
+/// the end of each cycle's air part; the dry tip's air before the front closes at the
+/// arrival frame itself and counts in the first window, as in a fixed window.
+#[test]
+fn bubble_count_windows_start_at_the_arrival() {
+    let t0 = ms(300.0) + 17;
+    let (ys, samples) = power_law_case(0.6, 50.0, t0, ms(800.0));
+    let count = 20;
+    let policy = WindowPolicy::Bubbles {
+        count,
+        probe: 0,
+        max_frames: None,
+    };
+    let out = run(
+        station_config(&ys, policy, true),
+        &samples,
+        &[samples.len()],
+    );
+    let split = run(
+        station_config(&ys, policy, true),
+        &samples,
+        &[777, 3001, 64],
+    );
+    assert_eq!(out, split);
+    let first: Vec<&ProbeWindow<LAGS>> = out.windows.iter().filter(|r| r.probe == 0).collect();
+    assert_eq!(first[0].start, 0);
+    assert_eq!(first[0].end, t0 as u64);
+    assert!(first[0].flags.contains(Flags::PRE_FRONT));
+    assert_eq!(first[1].start, t0 as u64);
+    assert_eq!(first[1].since_front, Some(0));
+    assert!(!first[1].flags.contains(Flags::PRE_FRONT));
+    let full = &first[1..first.len() - 1];
+    assert!(full.len() >= 5, "{} full windows", full.len());
+    for (k, w) in full.iter().enumerate() {
+        assert_eq!(w.lead.bubbles, count, "window {k}");
+        // The n-th chord after the arrival closes at the first frame of cycle n, and the
+        // window's last frame is that interface frame.
+        let closes = (k + 1) * count as usize - 1;
+        let end = t0 + closes * CYCLE + 1;
+        assert_eq!(w.end, end as u64, "window {k}");
+    }
+    for pair in first[1..].windows(2) {
+        assert_eq!(pair[0].end, pair[1].start);
+    }
+    // One profile slice per window after the front, the first one at the arrival.
+    assert_eq!(out.profiles.len(), first.len() - 1);
+    assert_eq!(out.profiles[0].since_front, 0);
+}
+
 /// Analytic profile (DESIGN.md §1): the power law C = 0.9 (y/Y90)^n integrates to
 /// Cmean = 0.9/(1+n). Points 10 mm apart, exact void fractions: Y90 within one probe
 /// spacing, Cmean within 0.02 (trapezoidal rule over 10 mm steps, linear bed band), n

@@ -334,6 +334,20 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
         self.tx.get(start..start + n)
     }
 
+    /// The bytes of the frame on the wire that are not sent yet, whatever the link budget
+    /// (a device that stops streaming finishes the frame it started, so that the receiver
+    /// gets every frame counted as sent). `None` between frames. They count as sent.
+    pub fn rest_of_frame(&mut self) -> Option<&[u8]> {
+        if self.tx_pos >= self.tx_len {
+            return None;
+        }
+        let start = self.tx_pos;
+        self.tx_pos = self.tx_len;
+        let n = self.tx_len - start;
+        self.stats.bytes_sent = self.stats.bytes_sent.saturating_add(n as u64);
+        self.tx.get(start..start + n)
+    }
+
     /// The counters.
     pub fn stats(&self) -> &StreamerStats {
         &self.stats

@@ -15,7 +15,7 @@
 //! another terminal, or start several for a multi-port session.
 
 use crate::live::device_sim::{SimCapture, SimOptions, SimStats};
-use crate::live::watch::{interrupt_flag, run_with, Startup, Ui, WatchOptions, WatchSummary};
+use crate::live::watch::{interrupt_flag, run_session, Startup, Ui, WatchOptions, WatchSummary};
 use crate::shared::commands::Command;
 use crate::shared::error::HostError;
 use crate::shared::window_spec::WindowSpec;
@@ -186,6 +186,9 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
         .ok_or_else(|| HostError::Usage("the pseudo-terminal has no name".into()))?;
     use serialport::SerialPort;
     let _ = master.set_timeout(Duration::from_millis(2));
+    // A second handle on the device's end keeps the link up while the session drains it
+    // after the device stopped (the device's own handle closes when it stops).
+    let keep_open = master.try_clone_native().ok();
     let stop = Arc::new(AtomicBool::new(false));
     let sim = crate::live::device_sim::spawn(
         cap,
@@ -211,13 +214,23 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
         view: Default::default(),
         wait_for_port: false,
     };
-    let watch = run_with(opts, interrupt_flag(), &mut |_| {});
+    // The device stops sending when the session ends; the session then reads what it sent.
+    let stop_device = stop.clone();
+    let (_keep, no_control) = std::sync::mpsc::channel();
+    let watch = run_session(
+        opts,
+        interrupt_flag(),
+        &mut || stop_device.store(true, Ordering::Relaxed),
+        &mut |_| {},
+        no_control,
+    );
     stop.store(true, Ordering::Relaxed);
     let device = match sim.join() {
         Ok(r) => r?,
         Err(_) => return Err(HostError::Usage("the simulated device failed".into())),
     };
     drop(slave);
+    drop(keep_open);
     let summary = DemoSummary {
         watch: watch?,
         device,

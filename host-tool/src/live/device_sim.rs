@@ -791,6 +791,16 @@ impl SimDevice {
                 }
             }
         }
+        // Stopped: the frame on the wire is finished, not cut.
+        out.clear();
+        if let Some(rest) = self.streamer.rest_of_frame() {
+            out.extend_from_slice(rest);
+        }
+        if !out.is_empty() {
+            if let Err(left) = write_all_within(port, &out, Duration::from_millis(500)) {
+                self.stats.bytes_not_written += left as u64;
+            }
+        }
         self.stats()
     }
 }

@@ -780,6 +780,19 @@ pub fn run_controlled(
     observer: &mut dyn FnMut(&Event),
     control: Receiver<crate::live::watch_control::Control>,
 ) -> Result<WatchSummary, HostError> {
+    run_session(opts, stop, &mut || {}, observer, control)
+}
+
+/// [`run_controlled`], calling `on_end` when the session ends and before the link is
+/// drained ([`crate::live::link_drain`]): the demo stops its simulated device there, so
+/// that every frame it sent is read.
+pub fn run_session(
+    opts: WatchOptions,
+    stop: Arc<AtomicBool>,
+    on_end: &mut dyn FnMut(),
+    observer: &mut dyn FnMut(&Event),
+    control: Receiver<crate::live::watch_control::Control>,
+) -> Result<WatchSummary, HostError> {
     if opts.ports.is_empty() {
         return Err(HostError::Usage("give at least one --port".into()));
     }
@@ -882,13 +895,29 @@ pub fn run_controlled(
     if term.is_some() {
         ratatui::restore();
     }
+    // Frames already on their way are read before the link is closed.
+    on_end();
+    let mut drained = Ok(());
+    if result.is_ok() {
+        let d = crate::live::link_drain::drain(
+            &rx,
+            crate::live::link_drain::QUIET,
+            crate::live::link_drain::DRAIN_MAX,
+            |m| w.handle(m),
+        );
+        if let Err(e) = d {
+            drained = Err(e);
+        }
+    }
     reader_stop.store(true, Ordering::Relaxed);
     for r in readers {
         let _ = r.join();
     }
     // The readers are gone: archive and decode whatever they sent last.
-    let mut drained = Ok(());
     while let Ok(msg) = rx.try_recv() {
+        if drained.is_err() {
+            break;
+        }
         if let Err(e) = w.handle(msg) {
             drained = Err(e);
             break;

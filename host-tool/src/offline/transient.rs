@@ -6,8 +6,8 @@
 //! arrival (see `frothline_core::station`). Every chain is fed the same blocks of the
 //! capture. Windows are front-relative ([`WindowPolicy::AfterFront`]): `--window 20ms`
 //! gives 20 ms windows from the arrival, the default (`whole`) 50 ms ones (a whole-record
-//! average across a surge mixes dry tips, the roller and the flow behind it; other window
-//! kinds pass through unchanged).
+//! average across a surge mixes dry tips, the roller and the flow behind it); `bubbles:N`
+//! windows count from the front too (the station chain's front-relative bubble windows).
 //!
 //! Output, in the `--out` folder:
 //! - `windows.csv` ([`crate::shared::windows_csv`]) with `since_front_s` filled in;

@@ -88,6 +88,11 @@ fn window(name: &str) -> Option<&'static str> {
              confirmed only after the chain's delay line had passed it (a flickering front); \
              since_front_s says by how much."
         }
+        "tu_index" => {
+            "Turbulence intensity is only an index here: the chords are not short next to the \
+             transit-time spread (tau05 below 4 T05), so the correlation widths reflect the \
+             bubble train as much as the velocity fluctuations."
+        }
         "capture_cut" => {
             "The capture stopped abruptly in this window (a truncated file, or a header its \
              recorder never finished): the window may be shorter than the flow, and nothing \

@@ -39,7 +39,8 @@ pub struct StationInfo {
 }
 
 /// The front-relative policy for `spec` at `sample_rate`: fixed durations count from the
-/// front, `whole` becomes [`DEFAULT_SLICE_S`] windows from the front, other kinds pass.
+/// front, `whole` becomes [`DEFAULT_SLICE_S`] windows from the front, bubble-count windows
+/// pass (a station chain starts them at the front).
 pub fn transient_policy(
     spec: &WindowSpec,
     sample_rate: u32,
