@@ -29,6 +29,7 @@
 //! record learnt both levels does a tip keep the device's causal rule (and its windows the
 //! `levels_not_learnt` flag), again with a message naming probe and tip.
 
+use crate::offline::level_drift;
 use crate::shared::capture::Capture;
 use crate::shared::error::HostError;
 use crate::shared::rig::MAX_PROBES;
@@ -162,6 +163,10 @@ pub struct RecordLevels {
     pub segments: Vec<Vec<Option<Levels>>>,
     /// Frames per segment (0 when not tracked).
     pub segment_frames: u64,
+    /// Per tip and segment, the level of a segment that shows one phase only
+    /// ([`crate::offline::level_drift::one_phase_level`]; a tip dry before a front), for
+    /// the transient replay's drift check. Empty when not tracked.
+    pub segment_one_phase: Vec<Vec<Option<f32>>>,
 }
 
 /// Length of the segments in which a steady replay re-learns every tip's levels, to
@@ -491,9 +496,23 @@ pub fn learn_with(
         tips: out,
         segments,
         segment_frames,
+        segment_one_phase: Vec::new(),
     };
     let polarities: Vec<Polarity> = tips.iter().map(|t| t.2.polarity).collect();
     levels.borrow_swing(&hist, &polarities);
+    levels.segment_one_phase = levels
+        .tips
+        .iter()
+        .zip(&seg_hist)
+        .map(|(t, sh)| {
+            let swing = t.outcome.levels().map(|l| (l.air - l.water).abs());
+            sh.iter()
+                .map(|coarse| {
+                    swing.and_then(|w| level_drift::one_phase_level(coarse, SEGMENT_BIN, w))
+                })
+                .collect()
+        })
+        .collect();
     Ok(levels)
 }
 
