@@ -655,18 +655,21 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
     }
 
     /// Give the leading (`trailing` false) or trailing tip of probe `probe` new levels,
-    /// used from the next frame pushed ([`frames`](Self::frames)): a host that learnt a
-    /// record's levels segment by segment applies each segment's at its first frame (push
-    /// whole frames up to it first). Refused (false) for a tip that does not exist, while a
-    /// partial frame is pending, and for station chains, whose front path runs ahead of
-    /// the statistics.
+    /// used by the statistics from the next frame they process
+    /// ([`processed_frames`](Self::processed_frames), which is [`frames`](Self::frames)
+    /// but for a station chain): a host that learnt a record's levels segment by segment
+    /// applies each segment's at its first frame (push whole frames up to it first). In a
+    /// station chain only the statistics path takes them: its front path, which runs ahead
+    /// by the delay, keeps the levels it started with (the front is found against the
+    /// levels before it). Refused (false) for a tip that does not exist and while a partial
+    /// frame is pending.
     pub fn set_tip_levels(
         &mut self,
         probe: usize,
         trailing: bool,
         levels: crate::levels::Levels,
     ) -> bool {
-        if self.stats.station.is_some() || self.partial_len > 0 {
+        if self.partial_len > 0 {
             return false;
         }
         let Some(p) = self.stats.probes.get_mut(probe) else {

@@ -7,7 +7,8 @@
 //!   -> shared::rig: the core's chain configuration (frames, i16 counts)
 //!   -> replay: one core chain over the capture          (steady layouts)
 //!      transient: one core chain per station, windows from each station's front
-//!      (replay hands transient layouts to transient; both use replay_common)
+//!      (replay hands transient layouts to transient; both use replay_common;
+//!      level_drift: a transient record's levels checked segment by segment)
 //!   -> windows.csv (+ profile.csv, fronts.csv, stations.csv, flow.json), written as one
 //!      output set (shared::output_set), summary table from running totals (run_summary)
 //! ensemble: repeated transient runs of one rig, aligned on the front, combined
@@ -15,6 +16,7 @@
 //! ```
 pub mod discharge;
 pub mod ensemble;
+pub mod level_drift;
 pub mod record_levels;
 pub mod replay;
 pub mod replay_common;

@@ -19,7 +19,9 @@
 //!   velocity and Reynolds number, and the scale-effect caution (the format
 //!   `crate::report::indicators` reads).
 
+use crate::offline::level_drift;
 use crate::offline::record_levels::{self, LevelRule};
+use crate::offline::replay::LevelSchedule;
 pub use crate::shared::stations::{
     is_transient, station_configs, stations, transient_policy, StationChain, StationInfo,
     DEFAULT_SLICE_S, RING_SAMPLES,
@@ -136,12 +138,14 @@ fn drain(idx: usize, r: &mut Running, out: &mut Sinks<'_>) {
 /// frames; an empty block ends the record). Each block is pushed to every chain in pieces
 /// of `sizes` samples (cycled; `&[]` for whole blocks), as a device-like stream would.
 /// `configs` come from [`station_configs`]; `full` sees every record with its correlation
-/// sums (for ensembles) before the run keeps it without them.
+/// sums (for ensembles) before the run keeps it without them. With a `schedule`
+/// ([`level_drift`]), the statistics take each segment's levels at its first frame.
 pub fn run_blocks(
     layout: &Layout,
     configs: Vec<(StationInfo, ChainConfig<MAX_PROBES>)>,
     sample_rate: u32,
     sizes: &[usize],
+    schedule: Option<&LevelSchedule>,
     full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
     mut next_block: impl FnMut(&mut Vec<i16>) -> Result<usize, HostError>,
 ) -> Result<TransientRun, ConfigErrorOrHost> {
@@ -183,7 +187,14 @@ pub fn run_blocks(
                 kk += 1;
                 let mut piece = &rest[..take];
                 while !piece.is_empty() {
-                    let used = r.chain.push(piece);
+                    let part = match schedule {
+                        Some(s) => {
+                            let room = level_drift::apply_due(&mut r.chain, s, &r.info.probes);
+                            &piece[..room.min(piece.len())]
+                        }
+                        None => piece,
+                    };
+                    let used = r.chain.push(part);
                     piece = &piece[used..];
                     drain(idx, r, &mut out);
                 }
@@ -263,7 +274,7 @@ pub fn replay_samples(
     let mut at = 0usize;
     let block = BLOCK_FRAMES * channels.max(1);
     with_big_stack(|| {
-        run_blocks(layout, configs, sample_rate, sizes, full, |buf| {
+        run_blocks(layout, configs, sample_rate, sizes, None, full, |buf| {
             let end = (at + block).min(samples.len());
             buf.clear();
             buf.extend_from_slice(&samples[at..end]);
@@ -347,7 +358,7 @@ fn replay_open(
             tips.extend(record_levels::learning_tips(cfg, |i| st.probes[i]));
             min_swing = cfg.detector.min_swing;
         }
-        let l = record_levels::learn(cap.path(), &tips, min_swing)?;
+        let l = record_levels::learn_with(cap.path(), &tips, min_swing, true)?;
         common::report_unlearnt(&l, layout, min_swing);
         for (_, cfg) in configs.iter_mut() {
             l.apply(cfg);
@@ -360,8 +371,9 @@ fn replay_open(
             rule,
         )?;
     }
+    let schedule = learnt.as_ref().and_then(level_drift::transient_schedule);
     let mut run = with_big_stack(|| {
-        run_blocks(layout, configs, fs, &[], full, |buf| {
+        run_blocks(layout, configs, fs, &[], schedule.as_ref(), full, |buf| {
             Ok(cap.read_frames(buf, BLOCK_FRAMES)?)
         })
         .map_err(|e| e.into_host(layout_path))

@@ -5,6 +5,7 @@ use super::histogram::{from_histogram, segment_levels, SEGMENT_BIN};
 use super::outcome::TipLevels;
 use super::record::RecordLevels;
 use super::DRIFT_SEGMENT_S;
+use crate::offline::level_drift;
 use crate::shared::capture::Capture;
 use crate::shared::error::HostError;
 use crate::shared::rig::MAX_PROBES;
@@ -137,8 +138,22 @@ pub fn learn_with(
         tips: out,
         segments,
         segment_frames,
+        segment_one_phase: Vec::new(),
     };
     let polarities: Vec<Polarity> = tips.iter().map(|t| t.2.polarity).collect();
     levels.borrow_swing(&hist, &polarities);
+    levels.segment_one_phase = levels
+        .tips
+        .iter()
+        .zip(&seg_hist)
+        .map(|(t, sh)| {
+            let swing = t.outcome.levels().map(|l| (l.air - l.water).abs());
+            sh.iter()
+                .map(|coarse| {
+                    swing.and_then(|w| level_drift::one_phase_level(coarse, SEGMENT_BIN, w))
+                })
+                .collect()
+        })
+        .collect();
     Ok(levels)
 }

@@ -18,6 +18,10 @@ pub struct RecordLevels {
     pub segments: Vec<Vec<Option<Levels>>>,
     /// Frames per segment (0 when not tracked).
     pub segment_frames: u64,
+    /// Per tip and segment, the level of a segment that shows one phase only
+    /// ([`crate::offline::level_drift::one_phase_level`]; a tip dry before a front), for
+    /// the transient replay's drift check. Empty when not tracked.
+    pub segment_one_phase: Vec<Vec<Option<f32>>>,
 }
 
 impl RecordLevels {
