@@ -13,7 +13,7 @@
 //!
 //! A steady replay also learns every tip's levels in each [`DRIFT_SEGMENT_S`] segment
 //! (from histograms of 64-count bins kept in the same pass) and applies them segment by
-//! segment ([`crate::offline::replay::LevelSchedule`]), so the levels follow a slow drift.
+//! segment ([`crate::offline::replay_common::LevelSchedule`]), so the levels follow a slow drift.
 //!
 //! The class-size rule of a learning period (each phase at least 0.5 % of the samples) is
 //! replaced by an absolute one ([`MIN_CLASS_SAMPLES`]), so a tip in air above the flow that

@@ -21,7 +21,7 @@
 
 use crate::offline::level_drift;
 use crate::offline::record_levels::{self, LevelRule};
-use crate::offline::replay::LevelSchedule;
+use crate::offline::replay_common::LevelSchedule;
 pub use crate::shared::stations::{
     is_transient, station_configs, stations, transient_policy, StationChain, StationInfo,
     DEFAULT_SLICE_S, RING_SAMPLES,
