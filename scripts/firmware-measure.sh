@@ -45,6 +45,9 @@ sections() { # ELF -> "name size" lines (decimal)
 sections "$emu" > "$out/sections-emulated.txt"
 sections "$board" > "$out/sections-board.txt"
 
+# The firmware opens target/firmware/settings.nor when it exists: measure on a
+# factory-fresh store (no fixed levels or window left by another check).
+rm -f target/firmware/settings.nor
 for m in measure run; do
     timeout 120 "$qemu" -machine mps2-an386 -nographic -monitor none \
         -semihosting-config "enable=on,target=native,arg=$m" -icount shift=0,sleep=off \

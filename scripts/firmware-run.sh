@@ -94,9 +94,12 @@ timeout "$secs" "$qemu" -machine mps2-an386 -nographic -monitor none \
     "${icount[@]}" \
     "${serial[@]}" "${second_serial[@]}" -kernel "$elf"
 rc=$?
+# Moved back, not copied: a later run without --settings (or firmware-measure.sh, which
+# starts QEMU itself) must not find this store and boot on its levels.
 if [ -n "$settings" ] && [ -f target/firmware/settings.nor ]; then
-    cp target/firmware/settings.nor "$settings"
+    mv target/firmware/settings.nor "$settings"
 fi
+rm -f target/firmware/settings.nor
 if [ -n "$fifo_dir" ]; then
     # The copier of the output ends at QEMU's end of file; give it 5 s at most (it would
     # wait for ever if QEMU never opened the pipe).

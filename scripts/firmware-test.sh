@@ -25,6 +25,10 @@
 #            (scripts/firmware-watch.sh; skipped with --no-host)
 #   reboot   the firmware booted again on that store: the window and levels the commands
 #            set are loaded, reported (Describe, fw.settings) and used (skipped with --no-host)
+#   levels   the instrument on a pty: `frothline tipcheck --port --set-levels` fixes the
+#            levels the tip-health frames report, every SetLevels acked; booted again on the
+#            same store, `frothline tipcheck --port` reads the same levels back from the
+#            tip-health frames (scripts/firmware-levels.sh; skipped with --no-host)
 # Prints "N passed, N failed" and exits non-zero on any failure.
 set -uo pipefail
 cd "$(dirname "$0")/.."
@@ -86,6 +90,7 @@ if [ $host -eq 1 ]; then
     }
     check reboot reboot
     check watch bash scripts/firmware-watch.sh
+    check levels bash scripts/firmware-levels.sh
 else
     check logger bash scripts/firmware-run.sh logger --icount 0
 fi

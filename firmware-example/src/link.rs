@@ -4,7 +4,7 @@
 //! COBS and CRC encoding, sequence numbers, and the [`Streamer`] that fits frames into the link's
 //! byte budget and drops the oldest window results, counted, when the link cannot keep up).
 //! This module only builds the bodies: the device description from the capture's layout, a
-//! window result per record, health counters from the acquisition; and pumps the
+//! window result, derived figures and a tip-health report per record, health counters from the acquisition; and pumps the
 //! streamer's bytes into any `embedded_io::Write`.
 
 use crate::capture;
@@ -12,7 +12,7 @@ use crate::config::{FwRecord, BAUD, DEVICE_ID, STREAM_WINDOWS};
 use embedded_io::Write;
 use frothline_core::wire::{
     quant, Body, DerivedResult, DeviceDescription, FrontArrival, Health, ProfileFit, Reply,
-    RunStart, Streamer, StreamerConfig, WindowResult, WindowSetting,
+    RunStart, Streamer, StreamerConfig, TipReport, WindowResult, WindowSetting,
 };
 
 /// Firmware version, as the device description carries it.
@@ -73,12 +73,17 @@ impl<W: Write> Link<W> {
     }
 
     /// Queue the window result of one record and its derived figures (kind 0x08), its
-    /// start `offset` frames later (the frame of the run where the chain began); returns
-    /// the window result.
+    /// start `offset` frames later (the frame of the run where the chain began), and keep
+    /// its tips' state (levels in use, interfaces, bubbles, void fraction, flags) as the
+    /// probe's latest tip-health report (kind 0x09, sent after each health frame);
+    /// returns the window result.
     pub fn record(&mut self, rec: &FwRecord, offset: u64) -> WindowResult {
         let mut w = wire_result(rec, self.sample_rate_hz);
         w.start = w.start.saturating_add(offset);
         self.streamer.offer_window(w);
+        let mut tips = TipReport::from_probe_window(rec);
+        tips.start = tips.start.saturating_add(offset);
+        self.streamer.offer_tips(tips);
         let spacing_mm = capture::TIP_SPACING_MM
             .get(rec.probe as usize)
             .copied()

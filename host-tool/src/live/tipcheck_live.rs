@@ -289,7 +289,7 @@ pub fn table(r: &LiveReport, port: &str, set: bool) -> String {
     if r.tips.is_empty() {
         let _ = writeln!(
             o,
-            "no tip-health report came: a device sends one after each health frame (about once a second); listen longer (--listen), or the device's firmware may not send kind 0x09"
+            "no tip-health report came: a device sends one after each health frame (about once a second), from the windows of a run; start a run (`frothline watch --port P --start-run LABEL`), listen longer (--listen), or the device's firmware may not send kind 0x09"
         );
     }
     for d in &r.undescribed {
