@@ -104,8 +104,11 @@ fn undamaged(path: &Path) -> (Vec<u8>, u64) {
     (std::fs::read(path).unwrap(), chunks)
 }
 
-/// (port, device, window) of every window result `unpack` decodes from `path`.
-fn windows(path: &Path, out: &Path) -> Result<(Vec<(usize, u16, WindowResult)>, u64), String> {
+/// A window result decoded: (port, device, window).
+type Seen = (usize, u16, WindowResult);
+
+/// Every window result `unpack` decodes from `path`, and the chunks it read.
+fn windows(path: &Path, out: &Path) -> Result<(Vec<Seen>, u64), String> {
     let mut seen = Vec::new();
     let r = unpack_with(path, Some(out), None, &mut |e| {
         if let Event::Window {
@@ -114,7 +117,7 @@ fn windows(path: &Path, out: &Path) -> Result<(Vec<(usize, u16, WindowResult)>, 
             result,
         } = e
         {
-            seen.push((*port, *device, result.clone()));
+            seen.push((*port, *device, *result));
         }
     })
     .map_err(|e| e.to_string())?;
