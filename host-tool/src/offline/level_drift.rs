@@ -25,7 +25,7 @@
 //! `water_level_counts` (`trailing_…`) say which levels each window ended with.
 
 use crate::offline::record_levels::{RecordLevels, MIN_CLASS_SAMPLES};
-use crate::offline::replay::LevelSchedule;
+use crate::offline::replay_common::LevelSchedule;
 use crate::shared::stations::StationChain;
 use frothline_core::levels::Levels;
 

@@ -12,7 +12,7 @@
 
 pub use crate::offline::replay_common::{
     levels_sources, mark_cut, period_rule, probe_meta, probe_meta_with, probe_table, probe_tallies,
-    report_unlearnt, tally_table, window_figures, Keep, ReplayArgs, ReplayReport,
+    report_unlearnt, tally_table, window_figures, Keep, LevelSchedule, ReplayArgs, ReplayReport,
 };
 pub use crate::shared::rig::{check_learn_period, check_levels_fit, require_frames};
 
@@ -27,7 +27,6 @@ use crate::shared::rig::HostRecord as ProbeWindow;
 use crate::shared::rig::{chain_config, HostChain, MAX_PROBES};
 use crate::shared::window_spec::WindowSpec;
 use crate::shared::windows_csv::WindowsCsv;
-use frothline_core::levels::Levels;
 use indicatif::{ProgressBar, ProgressStyle};
 use std::io::BufWriter;
 use std::path::Path;
@@ -104,55 +103,6 @@ pub fn with_record_levels(
         source,
     })?;
     Ok(Box::new(chain))
-}
-
-/// Levels that change during the record, segment by segment (drift tracking): every tip
-/// listed takes its segment's levels at the segment's first frame.
-#[derive(Clone, Debug, Default)]
-pub struct LevelSchedule {
-    /// Frames per segment (> 0).
-    pub segment_frames: u64,
-    /// (layout probe index, trailing tip, levels per segment).
-    pub tips: Vec<(usize, bool, Vec<Levels>)>,
-}
-
-impl LevelSchedule {
-    /// The schedule of a record's per-segment levels (tips without levels left out);
-    /// `None` when the record was not learnt segment by segment.
-    pub fn from_record(learnt: &RecordLevels) -> Option<LevelSchedule> {
-        if learnt.segment_frames == 0 {
-            return None;
-        }
-        let n = learnt.segment_count();
-        let tips = learnt
-            .tips
-            .iter()
-            .enumerate()
-            .filter_map(|(i, t)| {
-                let levels: Option<Vec<Levels>> =
-                    (0..n).map(|k| learnt.levels_in_segment(i, k)).collect();
-                levels.map(|l| (t.probe, t.trailing, l))
-            })
-            .collect();
-        Some(LevelSchedule {
-            segment_frames: learnt.segment_frames,
-            tips,
-        })
-    }
-
-    /// Apply the levels of the segment that starts at `frame`, if one does, to the tips of
-    /// `chain` (`local` maps a layout probe index to the chain's).
-    fn apply(&self, chain: &mut HostChain, frame: u64, local: &dyn Fn(usize) -> Option<usize>) {
-        if self.segment_frames == 0 || !frame.is_multiple_of(self.segment_frames) {
-            return;
-        }
-        let k = (frame / self.segment_frames) as usize;
-        for (probe, trailing, levels) in &self.tips {
-            if let (Some(p), Some(l)) = (local(*probe), levels.get(k)) {
-                chain.set_tip_levels(p, *trailing, *l);
-            }
-        }
-    }
 }
 
 /// Push every frame of `cap` through `chain`, handing each record to `sink`.

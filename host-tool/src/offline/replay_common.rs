@@ -9,9 +9,11 @@ use crate::shared::error::HostError;
 use crate::shared::layout::Layout;
 use crate::shared::output_set::Committed;
 use crate::shared::probe_summary::{ProbeTally, SummaryRow, SummaryRule, WindowFigures};
+use crate::shared::rig::HostChain;
 use crate::shared::rig::HostRecord as ProbeWindow;
 use crate::shared::window_spec::WindowSpec;
 use crate::shared::windows_csv::ProbeMeta;
+use frothline_core::levels::Levels;
 use std::path::PathBuf;
 
 /// Arguments of `frothline replay`.
@@ -215,4 +217,58 @@ pub fn tally_table(layout: &Layout, tallies: &[ProbeTally]) -> String {
         })
         .collect();
     crate::shared::probe_summary::summary_table(&rows)
+}
+
+/// Levels that change during the record, segment by segment (drift tracking): every tip
+/// listed takes its segment's levels at the segment's first frame.
+#[derive(Clone, Debug, Default)]
+pub struct LevelSchedule {
+    /// Frames per segment (> 0).
+    pub segment_frames: u64,
+    /// (layout probe index, trailing tip, levels per segment).
+    pub tips: Vec<(usize, bool, Vec<Levels>)>,
+}
+
+impl LevelSchedule {
+    /// The schedule of a record's per-segment levels (tips without levels left out);
+    /// `None` when the record was not learnt segment by segment.
+    pub fn from_record(learnt: &RecordLevels) -> Option<LevelSchedule> {
+        if learnt.segment_frames == 0 {
+            return None;
+        }
+        let n = learnt.segment_count();
+        let tips = learnt
+            .tips
+            .iter()
+            .enumerate()
+            .filter_map(|(i, t)| {
+                let levels: Option<Vec<Levels>> =
+                    (0..n).map(|k| learnt.levels_in_segment(i, k)).collect();
+                levels.map(|l| (t.probe, t.trailing, l))
+            })
+            .collect();
+        Some(LevelSchedule {
+            segment_frames: learnt.segment_frames,
+            tips,
+        })
+    }
+
+    /// Apply the levels of the segment that starts at `frame`, if one does, to the tips of
+    /// `chain` (`local` maps a layout probe index to the chain's).
+    pub(crate) fn apply(
+        &self,
+        chain: &mut HostChain,
+        frame: u64,
+        local: &dyn Fn(usize) -> Option<usize>,
+    ) {
+        if self.segment_frames == 0 || !frame.is_multiple_of(self.segment_frames) {
+            return;
+        }
+        let k = (frame / self.segment_frames) as usize;
+        for (probe, trailing, levels) in &self.tips {
+            if let (Some(p), Some(l)) = (local(*probe), levels.get(k)) {
+                chain.set_tip_levels(p, *trailing, *l);
+            }
+        }
+    }
 }

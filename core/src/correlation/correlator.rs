@@ -1,0 +1,577 @@
+//! The streaming [`Correlator`]: the window's sums kept as second differences over the lags,
+//! its run buffer ([`RunBuffer`]) and the edge sinks that feed it.
+
+use super::analysis::CorrelationResult;
+use super::{CorrelationSums, SumsView, MAX_RUN_FRAMES};
+use crate::flags::Flags;
+use crate::phase::{Edge, EdgeSink};
+
+/// Bit of a pending entry that marks a rising (water -> air) edge.
+const RISING_BIT: u16 = 1 << 15;
+
+/// Add the ramp `c * ramp(tau - p)` to the second-difference array `d` over lags
+/// `0..=max_lag` (see the module documentation).
+/// (`d` holds two's-complement `i64` values in `u64` slots: the wrapping operations are
+/// the same bit for bit.)
+#[inline]
+fn add_ramp(d: &mut [u64], max_lag: usize, p: i64, c: i64) {
+    if p >= 0 {
+        if p < max_lag as i64 {
+            if let Some(x) = d.get_mut(p as usize + 1) {
+                *x = x.wrapping_add(c as u64);
+            }
+        }
+    } else {
+        if let Some(x) = d.first_mut() {
+            *x = x.wrapping_sub(c.wrapping_mul(p) as u64);
+        }
+        if let Some(x) = d.get_mut(1) {
+            *x = x.wrapping_add(c.wrapping_mul(p.wrapping_add(1)) as u64);
+        }
+    }
+}
+
+/// The double prefix sum of the second differences `d` (two's-complement `i64` values),
+/// in place, clamped at 0 (exact sums are never negative).
+fn double_prefix_wide(d: &mut [u64]) {
+    let (mut slope, mut value) = (0i64, 0i64);
+    for x in d.iter_mut() {
+        slope = slope.wrapping_add(*x as i64);
+        value = value.wrapping_add(slope);
+        *x = value.max(0) as u64;
+    }
+}
+
+/// [`double_prefix_wide`] for a window of fewer than 2^31 frames, in 32-bit arithmetic:
+/// the low 32 bits of a wrapping sum are the wrapping sum of the low 32 bits, and every
+/// exact sum of such a window (a count of frame pairs) lies in `0..2^31`, so the 32-bit
+/// sums are the sums. Where the 64-bit value would be negative or past 2^31 (only for
+/// inconsistent input), this gives another clamped value; no window of the chain does.
+/// Half the instructions on a 32-bit core.
+fn double_prefix_short(d: &mut [u64]) {
+    let (mut slope, mut value) = (0i32, 0i32);
+    for x in d.iter_mut() {
+        slope = slope.wrapping_add(*x as u32 as i32);
+        value = value.wrapping_add(slope);
+        *x = value.max(0) as u64;
+    }
+}
+
+/// The double prefix sum of the second differences `d` (two's-complement `i32` values), in
+/// place, clamped at 0 (exact sums are never negative: they count air frames among at
+/// most `L <= 2^16` frames, so they fit an `i32` throughout).
+fn double_prefix_narrow(d: &mut [u32]) {
+    let (mut slope, mut value) = (0i32, 0i32);
+    for x in d.iter_mut() {
+        slope = slope.wrapping_add(*x as i32);
+        value = value.wrapping_add(slope);
+        *x = value.max(0) as u32;
+    }
+}
+
+/// The last `L` edges of the leading tip, oldest first: `(t << 1) | rising`, `t` from the
+/// window start.
+#[derive(Clone, Debug)]
+struct Ring<const L: usize> {
+    edges: [u64; L],
+    next: usize,
+    len: usize,
+}
+
+impl<const L: usize> Ring<L> {
+    fn clear(&mut self) {
+        self.next = 0;
+        self.len = 0;
+    }
+
+    fn push(&mut self, t: i64, rising: bool) {
+        if let Some(slot) = self.edges.get_mut(self.next) {
+            *slot = ((t.max(0) as u64) << 1) | rising as u64;
+        }
+        self.next = if self.next + 1 >= L { 0 } else { self.next + 1 };
+        self.len = (self.len + 1).min(L);
+    }
+
+    /// Visit the edges `(t, e)`, newest first, until `f` returns false.
+    #[inline]
+    fn for_each_recent(&self, mut f: impl FnMut(i64, i64) -> bool) {
+        let mut idx = self.next;
+        for _ in 0..self.len {
+            idx = if idx == 0 { L - 1 } else { idx - 1 };
+            let Some(&v) = self.edges.get(idx) else { break };
+            let e = if v & 1 == 1 { 1 } else { -1 };
+            if !f((v >> 1) as i64, e) {
+                break;
+            }
+        }
+    }
+}
+
+/// The leading tip's edges of one run, waiting for the trailing tip's edges of the same
+/// frames (see the [module documentation](self)): at most one per frame of a run of at
+/// most [`MAX_RUN_FRAMES`] frames.
+///
+/// Only one correlator uses it at a time, from [`Correlator::begin_run`] to
+/// [`Correlator::end_run`] (which merges what is left), so one buffer serves every
+/// correlator of a chain: the chain lends it to each probe's correlator in turn, instead of
+/// keeping 2 KiB per probe.
+#[derive(Clone, Debug)]
+pub struct RunBuffer {
+    /// Offset from the run start, with [`RISING_BIT`].
+    edges: [u16; MAX_RUN_FRAMES],
+    len: usize,
+    pos: usize,
+    run_start: u64,
+}
+
+impl Default for RunBuffer {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl RunBuffer {
+    /// An empty buffer (all zero bytes: a `static` of it lands in `.bss`).
+    pub const fn new() -> Self {
+        RunBuffer {
+            edges: [0; MAX_RUN_FRAMES],
+            len: 0,
+            pos: 0,
+            run_start: 0,
+        }
+    }
+
+    /// Start a run at absolute frame `first` (anything held is forgotten).
+    fn begin(&mut self, first: u64) {
+        self.len = 0;
+        self.pos = 0;
+        self.run_start = first;
+    }
+
+    /// Hold an edge of the current run; false if it does not fit (beyond the buffer, before
+    /// the run, or too far into it).
+    #[inline]
+    fn hold(&mut self, edge: Edge) -> bool {
+        let off = edge.frame.wrapping_sub(self.run_start);
+        match self.edges.get_mut(self.len) {
+            Some(s) if edge.frame >= self.run_start && off < RISING_BIT as u64 => {
+                *s = off as u16 | if edge.to_air { RISING_BIT } else { 0 };
+                self.len += 1;
+                true
+            }
+            _ => false,
+        }
+    }
+
+    /// The oldest held edge at or before absolute frame `upto`, taken out of the buffer.
+    #[inline]
+    fn take_upto(&mut self, upto: u64) -> Option<(u64, bool)> {
+        let &v = self.edges.get(self.pos).filter(|_| self.pos < self.len)?;
+        let frame = self.run_start.saturating_add((v & !RISING_BIT) as u64);
+        if frame > upto {
+            return None;
+        }
+        self.pos += 1;
+        Some((frame, v & RISING_BIT != 0))
+    }
+}
+
+/// Streaming correlation of one dual-tip probe, fed with the tips' interfaces.
+///
+/// Drive it as the chain does, either
+/// - tip by tip: for each run of at most [`MAX_RUN_FRAMES`] frames,
+///   [`begin_run`](Self::begin_run), the leading tip's edges through
+///   [`lead`](Self::lead), the trailing tip's edges of the same frames through
+///   [`trail`](Self::trail), then [`end_run`](Self::end_run), all with the same
+///   [`RunBuffer`] (which may serve other correlators between runs); or
+/// - in time order: the edges of both tips as they happen, through
+///   [`lead_in_order`](Self::lead_in_order) and [`trail_in_order`](Self::trail_in_order)
+///   (edges of the two tips at the same frame in either order), no buffer;
+///
+/// and [`close`](Self::close) at a window end (after `end_run`). `L` is the number of lag
+/// slots (the largest lag is `L - 1`).
+#[derive(Clone, Debug)]
+pub struct Correlator<const L: usize> {
+    max_lag: usize,
+    start: u64,
+    /// Second differences of the cross and auto sums over the lags (two's-complement
+    /// `i64` values; at a window close, in place, the sums themselves).
+    cross: [u64; L],
+    auto: [u64; L],
+    /// Second differences of the air counts among the first frames of the window
+    /// (two's-complement `i32` values; at a window close, the counts).
+    lead_head: [u32; L],
+    trail_head: [u32; L],
+    ring: Ring<L>,
+    lead_air: bool,
+    trail_air: bool,
+    /// Running `sum e` and `sum e t` over the merged edges of each tip.
+    lead_e: i64,
+    lead_q: i64,
+    trail_e: i64,
+    trail_q: i64,
+    overflow: bool,
+}
+
+impl<const L: usize> Correlator<L> {
+    /// All zero bytes: the placeholder in an unused probe slot of a chain (lag 0, frame 0,
+    /// both tips in water).
+    pub(crate) const ZERO: Self = Correlator {
+        max_lag: 0,
+        start: 0,
+        cross: [0; L],
+        auto: [0; L],
+        lead_head: [0; L],
+        trail_head: [0; L],
+        ring: Ring {
+            edges: [0; L],
+            next: 0,
+            len: 0,
+        },
+        lead_air: false,
+        trail_air: false,
+        lead_e: 0,
+        lead_q: 0,
+        trail_e: 0,
+        trail_q: 0,
+        overflow: false,
+    };
+
+    /// Start afresh, in place: the state of [`new`](Self::new) with the same arguments.
+    pub fn restart(&mut self, max_lag: u16, start: u64, lead_air: bool, trail_air: bool) {
+        self.max_lag = (max_lag as usize).min(L - 1);
+        self.reset(start);
+        self.open(start, lead_air, trail_air);
+    }
+
+    /// A correlator over lags `0..=max_lag` (capped at `L - 1`), starting at frame `start`
+    /// with the given phases of the two tips.
+    pub fn new(max_lag: u16, start: u64, lead_air: bool, trail_air: bool) -> Self {
+        const { assert!(L >= 2 && L <= 1 << 16, "L must lie in 2..=65536") };
+        let mut c = Self::ZERO;
+        c.restart(max_lag, start, lead_air, trail_air);
+        c
+    }
+
+    /// The largest lag, frames.
+    pub fn max_lag(&self) -> u16 {
+        self.max_lag as u16
+    }
+
+    /// Start a run of frames at absolute frame `first`, with `buf` for the leading tip's
+    /// edges (what it held is forgotten: end every run with [`end_run`](Self::end_run)).
+    pub fn begin_run(&mut self, first: u64, buf: &mut RunBuffer) {
+        buf.begin(first);
+    }
+
+    /// The sink for the leading tip's edges of the current run.
+    pub fn lead<'a>(&'a mut self, buf: &'a mut RunBuffer) -> LeadEdges<'a, L> {
+        LeadEdges(self, buf)
+    }
+
+    /// The sink for the trailing tip's edges of the current run.
+    pub fn trail<'a>(&'a mut self, buf: &'a mut RunBuffer) -> TrailEdges<'a, L> {
+        TrailEdges(self, buf)
+    }
+
+    /// End the run: merge the leading tip's remaining edges.
+    pub fn end_run(&mut self, buf: &mut RunBuffer) {
+        self.drain(buf, u64::MAX);
+    }
+
+    /// The sink for the leading tip's edges when both tips' edges come in time order.
+    pub fn lead_in_order(&mut self) -> LeadInOrder<'_, L> {
+        LeadInOrder(self)
+    }
+
+    /// The sink for the trailing tip's edges when both tips' edges come in time order.
+    pub fn trail_in_order(&mut self) -> TrailInOrder<'_, L> {
+        TrailInOrder(self)
+    }
+
+    /// Close the window at absolute frame `end` (exclusive): return its sums and start the
+    /// next window there. Raises [`Flags::CORRELATION_OVERFLOW`] in `flags` if edges were
+    /// lost. Call it between runs (after [`end_run`](Self::end_run)).
+    pub fn close(&mut self, end: u64, flags: &mut Flags) -> CorrelationSums<L> {
+        let (lead_air, trail_air) = (self.lead_air, self.trail_air);
+        let mut tail = [0u32; L];
+        let totals = self.settle(end, &mut tail);
+        let sums = self.view(totals, &tail).to_sums();
+        self.reopen(end, lead_air, trail_air, flags);
+        sums
+    }
+
+    /// Close the window at absolute frame `end` as [`close`](Self::close) does, and return
+    /// the derived results of its sums (as [`CorrelationSums::analyse`] gives them, bit for
+    /// bit) instead of the sums: they are analysed where they are, in the correlator, so
+    /// no copy of them is made. The analysis flags and [`Flags::CORRELATION_OVERFLOW`] go
+    /// into `flags`.
+    pub fn close_analysed(
+        &mut self,
+        end: u64,
+        min_peak: f32,
+        flags: &mut Flags,
+    ) -> CorrelationResult {
+        let (lead_air, trail_air) = (self.lead_air, self.trail_air);
+        let mut tail = [0u32; L];
+        let totals = self.settle(end, &mut tail);
+        let (result, f) = self.view(totals, &tail).analyse::<L>(min_peak);
+        *flags |= f;
+        self.reopen(end, lead_air, trail_air, flags);
+        result
+    }
+
+    /// The first half of a close: clip the intervals open at `end`, turn the second
+    /// differences into the sums in place, and the leading tip's tail counts into `tail`.
+    /// Returns `(frames, lead_air, trail_air, lags)`.
+    fn settle(&mut self, end: u64, tail: &mut [u32; L]) -> (u64, u64, u64, usize) {
+        let t_end = self.rel(end);
+        // Clip intervals open at the window end.
+        if self.lead_air {
+            self.lead_edge(t_end, false);
+        }
+        if self.trail_air {
+            self.trail_edge(t_end, false);
+        }
+        let lags = (self.max_lag + 1).min(L);
+        let frames = end.saturating_sub(self.start);
+        // sum e t over a tip's edges is minus its air time.
+        let lead_air = self.lead_q.wrapping_neg().max(0) as u64;
+        let trail_air = self.trail_q.wrapping_neg().max(0) as u64;
+        for d in [&mut self.cross, &mut self.auto] {
+            let d = d.get_mut(..lags).unwrap_or(&mut []);
+            if frames < 1 << 31 {
+                double_prefix_short(d);
+            } else {
+                double_prefix_wide(d);
+            }
+        }
+        for d in [&mut self.lead_head, &mut self.trail_head] {
+            double_prefix_narrow(d.get_mut(..lags).unwrap_or(&mut []));
+        }
+        // Tail counts: an edge at t adds -e ramp(tau - (N - t)); the ring holds every edge
+        // of the last max_lag frames (only ramps that start inside the lags: 0 <= p < m).
+        let m = self.max_lag;
+        self.ring.for_each_recent(|t, e| {
+            let p = t_end.wrapping_sub(t);
+            if p < 0 || p >= m as i64 {
+                return p < 0;
+            }
+            if let Some(x) = tail.get_mut(p as usize + 1) {
+                *x = x.wrapping_add((-e) as i32 as u32);
+            }
+            true
+        });
+        double_prefix_narrow(tail.get_mut(..lags).unwrap_or(&mut []));
+        (frames, lead_air, trail_air, lags)
+    }
+
+    /// The sums of a settled window.
+    fn view<'a>(&'a self, totals: (u64, u64, u64, usize), tail: &'a [u32]) -> SumsView<'a> {
+        let (frames, lead_air, trail_air, lags) = totals;
+        SumsView {
+            frames,
+            windows: 1,
+            lead_air,
+            trail_air,
+            cross: self.cross.get(..lags).unwrap_or(&[]),
+            auto: self.auto.get(..lags).unwrap_or(&[]),
+            lead_head: self.lead_head.get(..lags).unwrap_or(&[]),
+            lead_tail: tail.get(..lags).unwrap_or(&[]),
+            trail_head: self.trail_head.get(..lags).unwrap_or(&[]),
+        }
+    }
+
+    /// The second half of a close: flag lost edges and open the next window at `end`.
+    fn reopen(&mut self, end: u64, lead_air: bool, trail_air: bool, flags: &mut Flags) {
+        if self.overflow {
+            *flags |= Flags::CORRELATION_OVERFLOW;
+        }
+        self.reset(end);
+        self.open(end, lead_air, trail_air);
+    }
+
+    fn reset(&mut self, start: u64) {
+        self.start = start;
+        self.cross = [0; L];
+        self.auto = [0; L];
+        self.lead_head = [0; L];
+        self.trail_head = [0; L];
+        self.ring.clear();
+        self.lead_air = false;
+        self.trail_air = false;
+        self.lead_e = 0;
+        self.lead_q = 0;
+        self.trail_e = 0;
+        self.trail_q = 0;
+        self.overflow = false;
+    }
+
+    /// Open a window at `start`: clip intervals already open there.
+    fn open(&mut self, start: u64, lead_air: bool, trail_air: bool) {
+        self.start = start;
+        if lead_air {
+            self.lead_edge(0, true);
+        }
+        if trail_air {
+            self.trail_edge(0, true);
+        }
+    }
+
+    fn rel(&self, frame: u64) -> i64 {
+        frame.saturating_sub(self.start).min(i64::MAX as u64 >> 1) as i64
+    }
+
+    fn lead_pending(&mut self, buf: &mut RunBuffer, edge: Edge) {
+        if !buf.hold(edge) {
+            // Cannot happen through the chain: merge out of order, flagged.
+            self.overflow = true;
+            self.drain(buf, u64::MAX);
+            let t = self.rel(edge.frame);
+            self.lead_edge(t, edge.to_air);
+        }
+    }
+
+    /// Merge the held leading-tip edges at or before absolute frame `upto`.
+    #[inline]
+    fn drain(&mut self, buf: &mut RunBuffer, upto: u64) {
+        while let Some((frame, rising)) = buf.take_upto(upto) {
+            let t = self.rel(frame);
+            self.lead_edge(t, rising);
+        }
+        if buf.pos >= buf.len {
+            // Everything merged: the whole buffer is free again.
+            buf.len = 0;
+            buf.pos = 0;
+        }
+    }
+
+    /// A merged edge of the leading tip at window time `t`.
+    fn lead_edge(&mut self, t: i64, rising: bool) {
+        let e: i64 = if rising { 1 } else { -1 };
+        let m = self.max_lag;
+        // Auto, this edge second: earlier edges of the last max_lag frames, and itself.
+        let auto = &mut self.auto;
+        add_ramp(auto, m, 0, -1);
+        self.ring.for_each_recent(|ti, ei| {
+            let p = t.wrapping_sub(ti);
+            if p >= m as i64 {
+                return false;
+            }
+            add_ramp(auto, m, p, -ei * e);
+            true
+        });
+        // Auto, this edge first, every earlier edge second (p < 0): a straight line.
+        add_line(auto, t, e, self.lead_e, self.lead_q);
+        // Cross, this edge first, every earlier trailing edge second.
+        add_line(&mut self.cross, t, e, self.trail_e, self.trail_q);
+        add_head(&mut self.lead_head, m, t, e);
+        self.lead_e = self.lead_e.wrapping_add(e);
+        self.lead_q = self.lead_q.wrapping_add(e.wrapping_mul(t));
+        self.lead_air = rising;
+        self.ring.push(t, rising);
+    }
+
+    /// An edge of the trailing tip at window time `t` (every leading edge up to `t` merged).
+    fn trail_edge(&mut self, t: i64, rising: bool) {
+        let e: i64 = if rising { 1 } else { -1 };
+        let m = self.max_lag;
+        let cross = &mut self.cross;
+        self.ring.for_each_recent(|ti, ei| {
+            let p = t.wrapping_sub(ti);
+            if p >= m as i64 {
+                return false;
+            }
+            add_ramp(cross, m, p, -ei * e);
+            true
+        });
+        add_head(&mut self.trail_head, m, t, e);
+        self.trail_e = self.trail_e.wrapping_add(e);
+        self.trail_q = self.trail_q.wrapping_add(e.wrapping_mul(t));
+        self.trail_air = rising;
+    }
+}
+
+/// The pairs of an edge `(t, e)` (first factor) with all earlier edges of the other factor
+/// (running sums `se = sum e_j`, `sq = sum e_j t_j`): `p = t_j - t < 0`, so each adds the
+/// line `c (tau - p)`, `c = -e e_j`.
+#[inline]
+fn add_line(d: &mut [u64], t: i64, e: i64, se: i64, sq: i64) {
+    // D[0] += sum -c p = e (sq - t se);  D[1] += sum c (1 + p) = -e (se (1 - t) + sq).
+    // A tip's edges alternate, so `se` is 0 or 1 and `e` is +1 or -1: those products are
+    // a choice or a negation (64-bit multiplications are several instructions on a 32-bit
+    // core); any other value takes the multiplication. The same wrapping sums either way.
+    let ts = match se {
+        0 => 0,
+        1 => t,
+        _ => t.wrapping_mul(se),
+    };
+    let times_e = |v: i64| match e {
+        1 => v,
+        -1 => v.wrapping_neg(),
+        _ => e.wrapping_mul(v),
+    };
+    if let Some(x) = d.first_mut() {
+        *x = x.wrapping_add(times_e(sq.wrapping_sub(ts)) as u64);
+    }
+    if let Some(x) = d.get_mut(1) {
+        // se (1 - t) = se - t se.
+        let s = se.wrapping_sub(ts).wrapping_add(sq);
+        *x = x.wrapping_sub(times_e(s) as u64);
+    }
+}
+
+/// An edge `(t, e)` adds `e ramp(tau - t)` to the air count of the first `tau` frames.
+#[inline]
+fn add_head(d: &mut [u32], max_lag: usize, t: i64, e: i64) {
+    if (0..max_lag as i64).contains(&t) {
+        if let Some(x) = d.get_mut(t as usize + 1) {
+            *x = x.wrapping_add(e as i32 as u32);
+        }
+    }
+}
+
+/// The leading tip's edge sink of a [`Correlator`] (tip-by-tip runs).
+pub struct LeadEdges<'a, const L: usize>(&'a mut Correlator<L>, &'a mut RunBuffer);
+
+impl<const L: usize> EdgeSink for LeadEdges<'_, L> {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        self.0.lead_pending(self.1, edge);
+    }
+}
+
+/// The trailing tip's edge sink of a [`Correlator`] (tip-by-tip runs).
+pub struct TrailEdges<'a, const L: usize>(&'a mut Correlator<L>, &'a mut RunBuffer);
+
+impl<const L: usize> EdgeSink for TrailEdges<'_, L> {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        let c = &mut *self.0;
+        c.drain(self.1, edge.frame);
+        let t = c.rel(edge.frame);
+        c.trail_edge(t, edge.to_air);
+    }
+}
+
+/// The leading tip's edge sink of a [`Correlator`] fed in time order.
+pub struct LeadInOrder<'a, const L: usize>(&'a mut Correlator<L>);
+
+impl<const L: usize> EdgeSink for LeadInOrder<'_, L> {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        let t = self.0.rel(edge.frame);
+        self.0.lead_edge(t, edge.to_air);
+    }
+}
+
+/// The trailing tip's edge sink of a [`Correlator`] fed in time order.
+pub struct TrailInOrder<'a, const L: usize>(&'a mut Correlator<L>);
+
+impl<const L: usize> EdgeSink for TrailInOrder<'_, L> {
+    #[inline]
+    fn edge(&mut self, edge: Edge) {
+        let t = self.0.rel(edge.frame);
+        self.0.trail_edge(t, edge.to_air);
+    }
+}

@@ -1,0 +1,162 @@
+//! Checks of the correlation sums, the correlator and the analysis against direct sums and
+//! analytic cases.
+
+use super::analysis::sqrt;
+use super::*;
+use crate::phase::{Edge, EdgeSink};
+
+/// Direct sums over samples (definition in the module documentation).
+fn direct(a: &[bool], b: &[bool], lags: usize) -> (std::vec::Vec<u64>, std::vec::Vec<u64>) {
+    let n = a.len();
+    let mut cross = std::vec![0u64; lags];
+    let mut auto = std::vec![0u64; lags];
+    for tau in 0..lags {
+        for t in 0..n.saturating_sub(tau) {
+            cross[tau] += (a[t] & b[t + tau]) as u64;
+            auto[tau] += (a[t] & a[t + tau]) as u64;
+        }
+    }
+    (cross, auto)
+}
+
+fn edges(x: &[bool], first: u64, start_air: bool) -> std::vec::Vec<Edge> {
+    let mut out = std::vec::Vec::new();
+    let mut prev = start_air;
+    for (i, &v) in x.iter().enumerate() {
+        if v != prev {
+            out.push(Edge {
+                frame: first + i as u64,
+                to_air: v,
+            });
+        }
+        prev = v;
+    }
+    out
+}
+
+extern crate std;
+
+/// The lag-by-lag stage a 32-bit core runs gives the chunked stage's coefficients, bit
+/// for bit (up to the first lag at or below 0 when stopping there): random binary
+/// signals of several void fractions and lengths, both functions.
+#[test]
+fn lag_by_lag_fill_equals_chunked_fill() {
+    let mut x: u64 = 0x853C_49E6_748F_EA9B;
+    let mut next = move || {
+        x ^= x << 13;
+        x ^= x >> 7;
+        x ^= x << 17;
+        x
+    };
+    for case in 0..60u64 {
+        let n = 50 + (next() % 3000) as usize;
+        let p_flip = 1 + next() % 40;
+        let (mut a, mut b) = (std::vec::Vec::new(), std::vec::Vec::new());
+        let (mut sa, mut sb) = (false, false);
+        for _ in 0..n {
+            sa ^= next() % 100 < p_flip;
+            sb ^= next() % 100 < p_flip;
+            a.push(sa);
+            b.push(sb);
+        }
+        let mut c = Correlator::<64>::new((20 + case % 44) as u16, 0, false, false);
+        let (ea, eb) = (edges(&a, 0, false), edges(&b, 0, false));
+        let (mut i, mut j) = (0, 0);
+        while i < ea.len() || j < eb.len() {
+            if j >= eb.len() || (i < ea.len() && ea[i].frame <= eb[j].frame) {
+                c.lead_in_order().edge(ea[i]);
+                i += 1;
+            } else {
+                c.trail_in_order().edge(eb[j]);
+                j += 1;
+            }
+        }
+        let mut flags = Flags::NONE;
+        let sums = c.close(n as u64, &mut flags);
+        let v = sums.view();
+        let lags = v.lags();
+        for auto in [false, true] {
+            for stop in [false, true] {
+                let (prod, second, total) = if auto {
+                    (v.auto, v.lead_head, v.lead_air)
+                } else {
+                    (v.cross, v.trail_head, v.trail_air)
+                };
+                let mut chunked = [f32::NAN; 64];
+                let mut single = [f32::NAN; 64];
+                v.fill(&mut chunked, auto, stop);
+                v.fill_lag_by_lag(
+                    &mut single,
+                    (&v.lead_tail[..lags], &second[..lags], &prod[..lags]),
+                    total,
+                    stop,
+                );
+                let upto = if stop {
+                    chunked[..lags]
+                        .iter()
+                        .position(|&r| r <= 0.0)
+                        .map_or(lags, |k| k + 1)
+                } else {
+                    lags
+                };
+                for k in 0..upto {
+                    assert_eq!(
+                        chunked[k].to_bits(),
+                        single[k].to_bits(),
+                        "case {case} auto {auto} stop {stop} lag {k}"
+                    );
+                }
+            }
+        }
+    }
+}
+
+#[test]
+fn sums_equal_direct_sums_on_a_small_case() {
+    // A hand-made case with intervals open at both window edges.
+    let a: std::vec::Vec<bool> = "1110011000111100000111011"
+        .bytes()
+        .map(|c| c == b'1')
+        .collect();
+    let b: std::vec::Vec<bool> = "1011100110001111000001110"
+        .bytes()
+        .map(|c| c == b'1')
+        .collect();
+    let mut c = Correlator::<8>::new(7, 100, true, true);
+    let mut buf = RunBuffer::new();
+    c.begin_run(100, &mut buf);
+    for e in edges(&a, 100, true) {
+        c.lead(&mut buf).edge(e);
+    }
+    for e in edges(&b, 100, true) {
+        c.trail(&mut buf).edge(e);
+    }
+    c.end_run(&mut buf);
+    let mut flags = Flags::NONE;
+    let s = c.close(100 + a.len() as u64, &mut flags);
+    let (cross, auto) = direct(&a, &b, 8);
+    assert_eq!(s.cross.as_slice(), cross.as_slice());
+    assert_eq!(s.auto.as_slice(), auto.as_slice());
+    assert_eq!(s.lead_air, a.iter().filter(|&&x| x).count() as u64);
+    assert_eq!(s.trail_air, b.iter().filter(|&&x| x).count() as u64);
+    for tau in 0..8 {
+        let n = a.len() - tau;
+        let sa: u64 = a[..n].iter().map(|&x| x as u64).sum();
+        let sb: u64 = b[tau..].iter().map(|&x| x as u64).sum();
+        let sa2: u64 = a[tau..].iter().map(|&x| x as u64).sum();
+        assert_eq!(s.lead_sum(tau), Some(sa), "tau {tau}");
+        assert_eq!(s.trail_sum(tau), Some(sb), "tau {tau}");
+        assert_eq!(s.lead_lagged_sum(tau), Some(sa2), "tau {tau}");
+    }
+    assert!(flags.is_empty());
+}
+
+#[test]
+fn sqrt_is_accurate() {
+    for x in [1e-6f32, 0.5, 2.0, 3.0, 1e6, 1.234e20, 7.7e30] {
+        let r = sqrt(x);
+        assert!(((r * r - x) / x).abs() < 3e-7, "{x}: {r}");
+    }
+    assert_eq!(sqrt(0.0), 0.0);
+    assert_eq!(sqrt(-1.0), 0.0);
+}

@@ -1,0 +1,115 @@
+//! Writing the output files of a transient replay as one set (committed together).
+
+use super::indicators::flow_indicators;
+use super::TransientRun;
+use crate::offline::replay_common as common;
+use crate::shared::error::{write_err, HostError};
+use crate::shared::output_set::{Committed, OutputSet};
+use crate::shared::transient_columns::{FRONT_COLUMNS, PROFILE_COLUMNS, STATION_COLUMNS};
+use crate::shared::windows_csv::WindowsCsv;
+use std::path::{Path, PathBuf};
+
+/// What [`write_outputs`] wrote.
+#[derive(Debug, Clone)]
+pub struct TransientFiles {
+    /// windows.csv.
+    pub windows: PathBuf,
+    /// profile.csv.
+    pub profile: PathBuf,
+    /// fronts.csv.
+    pub fronts: PathBuf,
+    /// stations.csv.
+    pub stations: PathBuf,
+    /// flow.json.
+    pub flow: PathBuf,
+}
+
+fn write_csv(
+    set: &OutputSet,
+    name: &str,
+    header: &[&str],
+    rows: &[Vec<String>],
+) -> Result<(), HostError> {
+    let staged = set.staged(name);
+    let err = |e: csv::Error| HostError::Write {
+        path: staged.clone(),
+        source: e.into(),
+    };
+    let mut w = csv::Writer::from_writer(set.create(name)?);
+    w.write_record(header).map_err(err)?;
+    for r in rows {
+        w.write_record(r).map_err(err)?;
+    }
+    w.flush().map_err(write_err(&staged))
+}
+
+/// Write windows.csv, profile.csv, fronts.csv, stations.csv and flow.json into `dir`, as one
+/// set ([`OutputSet`]): all of them, or the folder as it was.
+pub fn write_outputs(
+    run: &TransientRun,
+    dir: &Path,
+    description: &str,
+) -> Result<TransientFiles, HostError> {
+    write_output_set(run, dir, description, &[]).map(|(files, _)| files)
+}
+
+/// [`write_outputs`], recording `inputs` (role, path) in the manifest, and telling what the
+/// set replaced.
+pub fn write_output_set(
+    run: &TransientRun,
+    dir: &Path,
+    description: &str,
+    inputs: &[(&str, &Path)],
+) -> Result<(TransientFiles, Committed), HostError> {
+    let set = OutputSet::begin(dir)?;
+    let staged = set.staged("windows.csv");
+    let file = set.create("windows.csv")?;
+    let csv_err = |e: csv::Error| HostError::Write {
+        path: staged.clone(),
+        source: e.into(),
+    };
+    let mut csv = WindowsCsv::new(std::io::BufWriter::new(file)).map_err(csv_err)?;
+    let meta = common::probe_meta_with(&run.layout, &run.levels_from);
+    for w in &run.windows {
+        let since = w.since_front.map(|f| run.secs(f as f64));
+        let p = w.probe as usize;
+        csv.write(
+            w,
+            &meta[p],
+            run.sample_rate,
+            since,
+            run.layout.probes[p].tip_spacing_mm,
+        )
+        .map_err(csv_err)?;
+    }
+    csv.finish().map_err(write_err(&staged))?;
+
+    let rows: Vec<Vec<String>> = run
+        .profiles
+        .iter()
+        .map(|(s, p)| run.profile_row(*s, p))
+        .collect();
+    write_csv(&set, "profile.csv", PROFILE_COLUMNS, &rows)?;
+    write_csv(&set, "fronts.csv", FRONT_COLUMNS, &run.front_rows())?;
+    write_csv(&set, "stations.csv", STATION_COLUMNS, &run.station_rows())?;
+    let flow = set.staged("flow.json");
+    std::fs::write(&flow, flow_indicators(run).to_json(description)).map_err(write_err(&flow))?;
+    let names = [
+        "windows.csv",
+        "profile.csv",
+        "fronts.csv",
+        "stations.csv",
+        "flow.json",
+    ];
+    let committed = set.commit(&names, inputs)?;
+    Ok((
+        TransientFiles {
+            windows: dir.join("windows.csv"),
+            profile: dir.join("profile.csv"),
+            fronts: dir.join("fronts.csv"),
+            stations: dir.join("stations.csv"),
+            flow: dir.join("flow.json"),
+        },
+        committed,
+    ))
+}
