@@ -124,3 +124,89 @@ fn pre_front_rows_agree_with_the_replay_and_numbers_have_f32_digits() {
         assert!(digits.len() <= 9, "void fraction written as {c}");
     }
 }
+
+/// The ensemble's files are one output set: a `run.json` manifest names the run, its layout
+/// and captures, and lists every file with its size; an earlier run's file that the ensemble
+/// does not write (stations.csv) is removed; a symlink in the folder is replaced, not
+/// followed; a failing ensemble leaves the folder as it was. (Checks against the manifest
+/// format the project defines, and the file system itself.)
+#[test]
+fn the_files_are_written_as_one_set_with_a_manifest() {
+    use frothline_host::shared::output_set::Manifest;
+    let dir = tempfile::tempdir().unwrap();
+    let bytes = std::fs::read(fixture("capture.wav")).unwrap();
+    let cut = dir.path().join("cut.wav");
+    std::fs::write(&cut, &bytes[..bytes.len() * 9 / 10]).unwrap();
+    let out = dir.path().join("ens");
+    std::fs::create_dir(&out).unwrap();
+    std::fs::write(out.join("stations.csv"), "an earlier transient run\n").unwrap();
+    let victim = dir.path().join("victim.txt");
+    std::fs::write(&victim, "keep me").unwrap();
+    #[cfg(unix)]
+    std::os::unix::fs::symlink(&victim, out.join("windows.csv")).unwrap();
+    let rep = big_stack(|| run(&args(vec![fixture("capture.wav"), cut.clone()], &out))).unwrap();
+    assert_eq!(std::fs::read_to_string(&victim).unwrap(), "keep me");
+    assert!(!out.join("stations.csv").exists());
+    assert!(rep.committed.removed.contains(&"stations.csv".to_string()));
+    let m = Manifest::read(&out).unwrap().expect("run.json");
+    assert_eq!(m.run_id, rep.committed.run_id);
+    let names: Vec<&str> = m.files.iter().map(|(n, _)| n.as_str()).collect();
+    assert_eq!(
+        names,
+        ["windows.csv", "profile.csv", "fronts.csv", "flow.json"]
+    );
+    for n in names {
+        m.check(&out, n).unwrap();
+        assert!(!std::fs::symlink_metadata(out.join(n))
+            .unwrap()
+            .file_type()
+            .is_symlink());
+    }
+    let role = |k: &str| {
+        m.inputs
+            .iter()
+            .find(|(r, _)| r == k)
+            .map(|(_, p)| p.clone())
+    };
+    assert_eq!(
+        role("layout"),
+        Some(fixture("layout.toml").display().to_string())
+    );
+    assert_eq!(
+        role("capture 1"),
+        Some(fixture("capture.wav").display().to_string())
+    );
+    assert_eq!(role("capture 2"), Some(cut.display().to_string()));
+    // No staging folder is left behind.
+    let left: Vec<String> = std::fs::read_dir(&out)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.starts_with('.'))
+        .collect();
+    assert!(left.is_empty(), "{left:?}");
+
+    // A failing ensemble (a run without frames) leaves the folder as it was.
+    let before: Vec<(String, Vec<u8>)> = snapshot(&out);
+    let start = bytes.windows(4).position(|w| w == b"data").unwrap() + 8;
+    let mut empty = bytes[..start].to_vec();
+    empty[start - 4..start].copy_from_slice(&0u32.to_le_bytes());
+    let p = dir.path().join("empty.wav");
+    std::fs::write(&p, empty).unwrap();
+    assert!(big_stack(|| run(&args(vec![fixture("capture.wav"), p.clone()], &out))).is_err());
+    assert_eq!(snapshot(&out), before);
+}
+
+fn snapshot(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| {
+            let e = e.unwrap();
+            (
+                e.file_name().to_string_lossy().into_owned(),
+                std::fs::read(e.path()).unwrap(),
+            )
+        })
+        .collect();
+    v.sort();
+    v
+}

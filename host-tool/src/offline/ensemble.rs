@@ -27,10 +27,12 @@
 //! [`crate::offline::transient::PROFILE_COLUMNS`], then `runs` and the spreads), `fronts.csv`
 //! (mean arrival per probe over runs, spread, runs), `flow.json`.
 
+pub use crate::offline::ensemble_inputs::{capture_list, refuse_repeated_captures};
 use crate::offline::replay::probe_meta;
 use crate::offline::transient::{self, TransientRun, PROFILE_COLUMNS};
 use crate::shared::error::{write_err, HostError};
 use crate::shared::layout::Layout;
+use crate::shared::output_set::{Committed, OutputSet};
 use crate::shared::rig::{FullRecord, HostRecord, HOST_LAGS};
 use crate::shared::window_spec::WindowSpec;
 use crate::shared::windows_csv;
@@ -38,7 +40,7 @@ use frothline_core::decay::DecayTracker;
 use frothline_core::profile::{fit_profile_sized, ProfileConfig, ProfilePoint};
 use frothline_core::station::{ProfileRecord, MAX_DECAY_POINTS};
 use frothline_core::{CorrelationSums, FrontRecord, TipStats, WindowPolicy};
-use std::collections::{BTreeMap, HashMap};
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
 /// Arguments of `frothline ensemble`.
@@ -512,9 +514,16 @@ impl Ensemble {
             .collect()
     }
 
-    /// Write windows.csv, profile.csv, fronts.csv and flow.json into `dir`.
-    pub fn write(&self, dir: &Path, description: &str) -> Result<(), HostError> {
-        std::fs::create_dir_all(dir).map_err(write_err(dir))?;
+    /// Write windows.csv, profile.csv, fronts.csv and flow.json into `dir` as one set
+    /// ([`OutputSet`]: all of them and a `run.json` manifest, or the folder as it was);
+    /// `inputs` (role, path) are recorded in the manifest.
+    pub fn write(
+        &self,
+        dir: &Path,
+        description: &str,
+        inputs: &[(&str, &Path)],
+    ) -> Result<Committed, HostError> {
+        let set = OutputSet::begin(dir)?;
         let meta = probe_meta(&self.layout);
         let mut header: Vec<&str> = windows_csv::COLUMNS.to_vec();
         header.extend([
@@ -548,7 +557,7 @@ impl Ensemble {
                 row
             })
             .collect();
-        write_rows(&dir.join("windows.csv"), &header, &rows)?;
+        write_rows(&set, "windows.csv", &header, &rows)?;
 
         let mut header: Vec<&str> = PROFILE_COLUMNS.to_vec();
         header.extend([
@@ -591,7 +600,7 @@ impl Ensemble {
                 row
             })
             .collect();
-        write_rows(&dir.join("profile.csv"), &header, &rows)?;
+        write_rows(&set, "profile.csv", &header, &rows)?;
 
         let rows: Vec<Vec<String>> = self
             .stations
@@ -616,7 +625,8 @@ impl Ensemble {
             })
             .collect();
         write_rows(
-            &dir.join("fronts.csv"),
+            &set,
+            "fronts.csv",
             &[
                 "probe",
                 "station",
@@ -628,91 +638,31 @@ impl Ensemble {
             &rows,
         )?;
         let flow = transient::flow_indicators(&fake);
-        std::fs::write(dir.join("flow.json"), flow.to_json(description))
-            .map_err(write_err(dir.join("flow.json")))?;
-        Ok(())
+        let path = set.staged("flow.json");
+        std::fs::write(&path, flow.to_json(description)).map_err(write_err(&path))?;
+        let names = ["windows.csv", "profile.csv", "fronts.csv", "flow.json"];
+        set.commit(&names, inputs)
     }
 }
 
-fn write_rows(path: &Path, header: &[&str], rows: &[Vec<String>]) -> Result<(), HostError> {
+/// Writes the staged CSV file `name` of `set`.
+fn write_rows(
+    set: &OutputSet,
+    name: &str,
+    header: &[&str],
+    rows: &[Vec<String>],
+) -> Result<(), HostError> {
+    let path = set.staged(name);
     let err = |e: csv::Error| HostError::Write {
-        path: path.to_path_buf(),
+        path: path.clone(),
         source: e.into(),
     };
-    let mut w = csv::Writer::from_path(path).map_err(err)?;
+    let mut w = csv::Writer::from_writer(set.create(name)?);
     w.write_record(header).map_err(err)?;
     for r in rows {
         w.write_record(r).map_err(err)?;
     }
-    w.flush().map_err(write_err(path))
-}
-
-/// The capture files named by `paths` (files as given; folders: their `*.wav` and their
-/// sub-folders' `capture.wav`, in name order).
-pub fn capture_list(paths: &[PathBuf]) -> Result<Vec<PathBuf>, HostError> {
-    let mut out = Vec::new();
-    for p in paths {
-        if p.is_dir() {
-            let mut entries: Vec<PathBuf> = std::fs::read_dir(p)
-                .map_err(|e| HostError::Usage(format!("{}: {e}", p.display())))?
-                .filter_map(|e| e.ok().map(|e| e.path()))
-                .collect();
-            entries.sort();
-            for e in entries {
-                if e.is_dir() && e.join("capture.wav").is_file() {
-                    out.push(e.join("capture.wav"));
-                } else if e.extension().is_some_and(|x| x.eq_ignore_ascii_case("wav")) {
-                    out.push(e);
-                }
-            }
-        } else {
-            out.push(p.clone());
-        }
-    }
-    if out.is_empty() {
-        return Err(HostError::Usage("ensemble: no capture found".into()));
-    }
-    Ok(out)
-}
-
-/// An ensemble averages independent runs: a capture given twice (the same file by two
-/// paths, or two files with the same bytes) would count one run twice, so it is refused,
-/// naming both.
-pub fn refuse_repeated_captures(captures: &[PathBuf]) -> Result<(), HostError> {
-    use std::hash::Hasher;
-    let mut seen: HashMap<(u64, u64), &PathBuf> = HashMap::new();
-    for c in captures {
-        let mut file = std::fs::File::open(c).map_err(|source| {
-            HostError::Capture(crate::shared::capture::CaptureError::Io {
-                path: c.clone(),
-                source,
-            })
-        })?;
-        let mut h = std::collections::hash_map::DefaultHasher::new();
-        let mut buf = vec![0u8; 1 << 16];
-        let mut len = 0u64;
-        loop {
-            let n = std::io::Read::read(&mut file, &mut buf).map_err(|source| {
-                HostError::Capture(crate::shared::capture::CaptureError::Io {
-                    path: c.clone(),
-                    source,
-                })
-            })?;
-            if n == 0 {
-                break;
-            }
-            h.write(&buf[..n]);
-            len += n as u64;
-        }
-        if let Some(first) = seen.insert((len, h.finish()), c) {
-            return Err(HostError::Usage(format!(
-                "ensemble: {} and {} hold the same capture: each run must be given once",
-                first.display(),
-                c.display()
-            )));
-        }
-    }
-    Ok(())
+    w.flush().map_err(write_err(&path))
 }
 
 /// What `frothline ensemble` did.
@@ -722,6 +672,8 @@ pub struct EnsembleReport {
     pub captures: Vec<PathBuf>,
     /// The combined runs.
     pub ensemble: Ensemble,
+    /// What writing the output set replaced, and the run's id.
+    pub committed: Committed,
 }
 
 /// `frothline ensemble`: replay every capture, combine, write the files.
@@ -756,14 +708,27 @@ pub fn run(args: &EnsembleArgs) -> Result<EnsembleReport, HostError> {
             .map_err(|m| HostError::Usage(format!("{}: {m}", c.display())))?;
     }
     let ensemble = ensemble.ok_or_else(|| HostError::Usage("ensemble: no run".into()))?;
-    ensemble.write(
+    // Manifest inputs: the layout, then "capture 1", "capture 2", ... in replay order.
+    let roles: Vec<String> = (1..=captures.len())
+        .map(|i| format!("capture {i}"))
+        .collect();
+    let mut inputs: Vec<(&str, &Path)> = vec![("layout", args.layout.as_path())];
+    inputs.extend(
+        roles
+            .iter()
+            .map(String::as_str)
+            .zip(captures.iter().map(|c| c.as_path())),
+    );
+    let committed = ensemble.write(
         &args.out,
         &format!(
             "ensemble of {} runs ({})",
             captures.len(),
             args.layout.display()
         ),
+        &inputs,
     )?;
+
     if !args.quiet {
         println!(
             "{} runs -> {} windows, {} profile slices in {}",
@@ -772,6 +737,13 @@ pub fn run(args: &EnsembleArgs) -> Result<EnsembleReport, HostError> {
             ensemble.slices.len(),
             args.out.display()
         );
+        if let Some(note) = committed.note() {
+            println!("{note}");
+        }
     }
-    Ok(EnsembleReport { captures, ensemble })
+    Ok(EnsembleReport {
+        captures,
+        ensemble,
+        committed,
+    })
 }

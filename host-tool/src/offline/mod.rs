@@ -11,11 +11,13 @@
 //!      level_drift: a transient record's levels checked segment by segment)
 //!   -> windows.csv (+ profile.csv, fronts.csv, stations.csv, flow.json), written as one
 //!      output set (shared::output_set), summary table from running totals (run_summary)
-//! ensemble: repeated transient runs of one rig, aligned on the front, combined
+//! ensemble: repeated transient runs of one rig, aligned on the front, combined, written as
+//!   one output set (ensemble_inputs: the captures it reads)
 //! tipcheck: every tip's levels, noise and swing on a segment, written into the layout
 //! ```
 pub mod discharge;
 pub mod ensemble;
+pub mod ensemble_inputs;
 pub mod level_drift;
 pub mod record_levels;
 pub mod replay;
