@@ -10,7 +10,9 @@ exists. Parent modules that only declare their children (`mod x;`, `pub use`) do
 as depending on them: a `mod.rs` re-exporting its children is the layer's front door.
 
 Prints each strongly connected component of more than one module and exits 1 if there is
-any, 0 otherwise. `--self-test` first checks, on a small tree written to a temporary
+any, 0 otherwise. In the host tool it also checks the layers: the job folders (`offline`,
+`live`, `field`, `report`, `synth`) use `shared` and never each other, and `shared` names
+no job; a crossing is printed, and fails the run only with `--layers`. `--self-test` first checks, on a small tree written to a temporary
 folder, that a circle is found and that a one-way tree passes.
 """
 import os
@@ -145,6 +147,21 @@ def cycles(edges):
     return out
 
 
+HOST_JOBS = ("offline", "live", "field", "report", "synth")
+
+
+def layer_crossings(edges, jobs=HOST_JOBS):
+    """Imports from one job folder into another, or from `shared` into a job."""
+    out = []
+    for m, targets in sorted(edges.items()):
+        if not m or m[0] not in jobs + ("shared",):
+            continue
+        for t in sorted(targets):
+            if t and t[0] in jobs and t[0] != m[0]:
+                out.append((m, t))
+    return out
+
+
 def self_test():
     import tempfile
 
@@ -174,6 +191,17 @@ def self_test():
     if cycles(graph(one_way)):
         print("self-test: a one-way tree (b -> a only in tests) was taken for a circle")
         return False
+    layered = tree({
+        "lib.rs": "mod live;\nmod synth;\nmod shared;\n",
+        "shared/mod.rs": "pub mod gen;\n",
+        "shared/gen.rs": "pub struct G;\n",
+        "synth/mod.rs": "use crate::shared::gen::G;\n",
+        "live/mod.rs": "use crate::synth::X;\nuse crate::shared::gen::G;\n",
+    })
+    crossing = layer_crossings(graph(layered))
+    if crossing != [(("live",), ("synth",))]:
+        print(f"self-test: the crossing live -> synth was not found (got {crossing})")
+        return False
     return True
 
 
@@ -183,6 +211,8 @@ def main():
         if not self_test():
             return 2
         args = args[1:]
+    strict_layers = 1 if args[:1] == ["--layers"] else 0
+    args = args[strict_layers:]
     roots = args or ["core/src", "host-tool/src"]
     bad = 0
     for root in roots:
@@ -194,6 +224,10 @@ def main():
             for c in comp:
                 inside = sorted("::".join(t) for t in edges[c] if t in comp)
                 print(f"    {'::'.join(c) or '(crate root)'} -> {', '.join(inside)}")
+        if root.rstrip("/").endswith("host-tool/src"):
+            for m, t in layer_crossings(edges):
+                bad += strict_layers
+                print(f"{root}: {'::'.join(m)} imports {'::'.join(t)}: jobs use shared/, never each other")
     if bad == 0:
         print(f"no circles between modules in {', '.join(roots)}")
     return 1 if bad else 0

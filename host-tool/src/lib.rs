@@ -28,7 +28,8 @@
 //!   `unpack`, `ports`);
 //! - [`field`]: a field logger's flash image read back into the same CSV files (`logbook`);
 //! - [`report`]: figures and a summary page of an output folder (`report`);
-//! - [`synth`]: synthetic captures with known truth (`synth`);
+//! - [`synth`]: synthetic captures with known truth written to a folder (`synth`; the
+//!   generator is the shared part [`shared::synthetic`], which `demo` also renders from);
 //! - [`shared`]: what every job uses: layout, captures, the rig's chain configuration, the
 //!   receiving session, CSV writers, summaries, errors;
 //! - [`cli`]: the `frothline` command line on top.

@@ -141,14 +141,17 @@ fn positive_secs(s: f64, what: &str) -> Result<Duration, HostError> {
 /// The demo's capture: the built-in scenario, as long as the demo (10 s to 60 s; runs
 /// repeat beyond that).
 pub fn demo_capture(duration_s: f64, window: WindowSpec) -> Result<SimCapture, HostError> {
-    let mut scenario = crate::synth::Scenario::builtin_default();
+    let mut scenario = crate::shared::synthetic::Scenario::builtin_default();
     scenario.duration_s = (duration_s + 1.0).clamp(10.0, 60.0);
     SimCapture::from_scenario(&scenario, window)
 }
 
 /// The transient demo's capture: the built-in dam-break scenario (runs repeat).
 pub fn transient_demo_capture(window: WindowSpec) -> Result<SimCapture, HostError> {
-    SimCapture::from_scenario(&crate::synth::Scenario::builtin_transient(), window)
+    SimCapture::from_scenario(
+        &crate::shared::synthetic::Scenario::builtin_transient(),
+        window,
+    )
 }
 
 /// `frothline demo`.
@@ -256,7 +259,7 @@ pub fn simulate(args: &SimulateArgs) -> Result<SimStats, HostError> {
             return Err(HostError::Usage("a capture needs its --layout".into()));
         }
         (None, _) => {
-            let mut s = crate::synth::Scenario::builtin_default();
+            let mut s = crate::shared::synthetic::Scenario::builtin_default();
             s.duration_s = 10.0;
             SimCapture::from_scenario(&s, args.window.clone())?
         }

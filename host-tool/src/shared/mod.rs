@@ -10,6 +10,8 @@
 //! results  windows_csv, transient_columns (profile.csv, fronts.csv, stations.csv), output_set (a run's files written as one set), probe_summary,
 //!          running_stats (means with intervals), hydraulics (water properties, flow
 //!          relations)
+//! synthesis synthetic (scenarios rendered into captures with known truth: `synth` writes
+//!          them, `demo` and `simulate` play them)
 //! plumbing error (HostError), stdout (summaries that survive a closed pipe)
 //! ```
 pub mod archive;
@@ -28,6 +30,7 @@ pub mod runs;
 pub mod session;
 pub mod stations;
 pub mod stdout;
+pub mod synthetic;
 pub mod tips_csv;
 pub mod transient_columns;
 pub mod window_spec;

@@ -122,11 +122,11 @@ impl SimCapture {
     /// A synthetic capture of `scenario` (rendered in memory), with the layout `frothline
     /// synth` would write for it.
     pub fn from_scenario(
-        scenario: &crate::synth::Scenario,
+        scenario: &crate::shared::synthetic::Scenario,
         window: WindowSpec,
     ) -> Result<Self, HostError> {
-        let generator = crate::synth::Generator::new(scenario.clone(), scenario.seed)?;
-        let text = crate::synth::output::layout_toml(
+        let generator = crate::shared::synthetic::Generator::new(scenario.clone(), scenario.seed)?;
+        let text = crate::shared::synthetic::output::layout_toml(
             scenario,
             generator.resolved(),
             &generator.tip_levels(),

@@ -13,7 +13,7 @@ fn big_stack<F: FnOnce() + Send + 'static>(f: F) {
 }
 
 fn capture() -> SimCapture {
-    let mut s = crate::synth::Scenario::builtin_default();
+    let mut s = crate::shared::synthetic::Scenario::builtin_default();
     s.duration_s = 0.5;
     s.sample_rate_hz = 20_000;
     s.replicate(2);

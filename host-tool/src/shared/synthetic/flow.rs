@@ -66,7 +66,7 @@ impl FlowModel for LocalParams {
 /// Wraps a closure `Fn(t_s) -> LocalParams` as a [`FlowModel`].
 ///
 /// ```
-/// use frothline_host::synth::{FnFlow, FlowModel, LocalParams};
+/// use frothline_host::shared::synthetic::{FnFlow, FlowModel, LocalParams};
 /// let front = FnFlow(|t: f64| LocalParams {
 ///     void_fraction: if t < 1.0 { 1.0 } else { 0.3 },
 ///     bubble_rate_hz: 80.0,

@@ -448,33 +448,6 @@ fn written_files_read_back() {
 }
 
 #[test]
-fn run_uses_the_builtin_scenario_and_overrides() {
-    let dir = tempfile::tempdir().unwrap();
-    let args = SynthArgs {
-        out: dir.path().join("cap"),
-        duration: Some(0.25),
-        rate: Some(20_000),
-        seed: Some(5),
-        probes: Some(2),
-        ..SynthArgs::default()
-    };
-    let sum = run(&args).unwrap();
-    assert_eq!(
-        (sum.channels, sum.frames, sum.sample_rate_hz, sum.seed),
-        (4, 5000, 20_000, 5)
-    );
-    // Re-running the written scenario reproduces the capture.
-    let wav1 = std::fs::read(&sum.wav).unwrap();
-    let args2 = SynthArgs {
-        scenario: Some(sum.scenario.clone()),
-        out: dir.path().join("again"),
-        ..SynthArgs::default()
-    };
-    let sum2 = run(&args2).unwrap();
-    assert_eq!(wav1, std::fs::read(&sum2.wav).unwrap());
-}
-
-#[test]
 fn example_scenario_fixture_parses_and_resolves() {
     let path = concat!(
         env!("CARGO_MANIFEST_DIR"),
@@ -487,7 +460,7 @@ fn example_scenario_fixture_parses_and_resolves() {
 
 /// Throughput of the full path (intervals, rendering, WAV streaming) for a 16-channel,
 /// 45 s, 40 kHz capture. Prints the timing; run with
-/// `cargo test --release -p frothline-host --lib synth::tests::throughput -- --ignored --nocapture`.
+/// `cargo test --release -p frothline-host --lib shared::synthetic::tests::throughput -- --ignored --nocapture`.
 #[test]
 #[ignore = "timing run, prints only"]
 fn throughput_16_channels_45_s() {
