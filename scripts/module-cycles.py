@@ -12,7 +12,8 @@ as depending on them: a `mod.rs` re-exporting its children is the layer's front 
 Prints each strongly connected component of more than one module and exits 1 if there is
 any, 0 otherwise. In the host tool it also checks the layers: the job folders (`offline`,
 `live`, `field`, `report`, `synth`) use `shared` and never each other, and `shared` names
-no job; a crossing is printed, and fails the run only with `--layers`. `--self-test` first checks, on a small tree written to a temporary
+no job; a crossing is printed, and fails the run only with `--layers` (given after
+`--self-test`, if both). `--self-test` first checks, on a small tree written to a temporary
 folder, that a circle is found and that a one-way tree passes.
 """
 import os
