@@ -5,7 +5,7 @@
 #![cfg(unix)]
 
 use frothline_host::live::device_sim::{self, SimCapture, SimOptions};
-use frothline_host::offline::tipcheck::TipcheckArgs;
+use frothline_host::live::tipcheck_live::LiveCheck;
 use frothline_host::synth::{Generator, Scenario};
 use serialport::SerialPort;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -47,17 +47,12 @@ fn live_tipcheck() {
         ..SimOptions::default()
     };
     let sim = device_sim::spawn(cap, opts, master, stop.clone()).unwrap();
-    let args = TipcheckArgs {
-        capture: None,
-        port: Some(path.clone()),
+    let args = LiveCheck {
         baud: 115_200,
         listen: 2.5,
         set_levels: true,
         layout: layout_path,
-        from: 0.0,
-        to: None,
         tolerance: 0.05,
-        write: false,
     };
     let report = frothline_host::live::tipcheck_live::run(&args, &path).unwrap();
     stop.store(true, Ordering::Relaxed);

@@ -118,7 +118,16 @@ fn dispatch(command: Command) -> Result<(), HostError> {
         Command::Ensemble(a) => crate::offline::ensemble::run(&a).map(|_| ()),
         // A live device (`--port`) or a capture segment.
         Command::Tipcheck(a) => match a.port.clone() {
-            Some(port) => crate::live::tipcheck_live::run(&a, &port).map(|_| ()),
+            Some(port) => {
+                let live = crate::live::tipcheck_live::LiveCheck {
+                    layout: a.layout.clone(),
+                    baud: a.baud,
+                    listen: a.listen,
+                    set_levels: a.set_levels,
+                    tolerance: a.tolerance,
+                };
+                crate::live::tipcheck_live::run(&live, &port).map(|_| ())
+            }
             None => crate::offline::tipcheck::run(&a).map(|_| ()),
         },
     }

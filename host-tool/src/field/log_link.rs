@@ -29,8 +29,8 @@ pub const MAX_REGION_BYTES: u32 = 64 << 20;
 
 /// Read the whole field log region of the device on `port` (opened at `baud`).
 pub fn read_region(port: &str, baud: u32) -> Result<Vec<u8>, HostError> {
-    let mut link = crate::live::watch::open_port(port, baud)
-        .map_err(|e| HostError::Usage(crate::live::watch::open_hint(port, &e)))?;
+    let mut link = crate::shared::serial_port::open_port(port, baud)
+        .map_err(|e| HostError::Usage(crate::shared::serial_port::open_hint(port, &e)))?;
     read_from(&mut *link, port)
 }
 

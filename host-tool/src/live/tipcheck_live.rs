@@ -15,7 +15,6 @@
 
 use crate::live::watch::{Ui, WatchOptions};
 use crate::live::watch_control::Control;
-use crate::offline::tipcheck::TipcheckArgs;
 use crate::shared::commands::Command;
 use crate::shared::error::HostError;
 use crate::shared::layout::Layout;
@@ -128,8 +127,24 @@ pub fn rows(
     out
 }
 
-/// Listen to the device on `args.port`, print the table, and set the levels if asked.
-pub fn run(args: &TipcheckArgs, port: &str) -> Result<LiveReport, HostError> {
+/// What a check of a live device needs (the `tipcheck --port` options).
+#[derive(Clone, Debug)]
+pub struct LiveCheck {
+    /// The rig layout (TOML), for probe names and the levels to compare against.
+    pub layout: std::path::PathBuf,
+    /// Baud rate of the port.
+    pub baud: u32,
+    /// Seconds to listen before the table (and the SetLevels).
+    pub listen: f64,
+    /// Fix the levels the device has learnt, one SetLevels command per tip.
+    pub set_levels: bool,
+    /// A level that moved from the layout's by more than this fraction of the swing is
+    /// flagged `moved`.
+    pub tolerance: f64,
+}
+
+/// Listen to the device on `port`, print the table, and set the levels if asked.
+pub fn run(args: &LiveCheck, port: &str) -> Result<LiveReport, HostError> {
     let layout = Layout::load(&args.layout)?;
     if !(args.listen.is_finite() && args.listen > 0.0) {
         return Err(HostError::Usage(format!(

@@ -20,6 +20,7 @@ mod options;
 mod reader;
 mod summary;
 
+pub use crate::shared::serial_port::open_hint;
 pub use lock::{FolderLock, LOCK_FILE};
 pub use options::{Startup, Ui, WatchArgs, WatchOptions};
 pub use reader::{open_port, GATHER, READ_TIMEOUT, REOPEN_EVERY};
@@ -590,29 +591,6 @@ fn main_loop(
             }
         }
     }
-}
-
-/// Why `port` could not be opened, and what to try.
-pub fn open_hint(port: &str, e: &serialport::Error) -> String {
-    let denied = matches!(
-        e.kind(),
-        serialport::ErrorKind::Io(std::io::ErrorKind::PermissionDenied)
-    ) || e.to_string().to_lowercase().contains("permission");
-    let mut s = format!("cannot open port {port}: {e}\n");
-    if denied {
-        s.push_str(&format!(
-            "hint: the port exists but this user may not open it: check `ls -l {port}` and \
-             join the group that owns it (often `dialout` or `uucp`: \
-             `sudo usermod -aG dialout $USER`, then log in again)\n"
-        ));
-    } else {
-        s.push_str(
-            "hint: `frothline ports` lists the serial ports of this machine; check the cable \
-             and that the device is powered\n",
-        );
-    }
-    s.push_str("hint: give --wait-for-port to wait until the port can be opened");
-    s
 }
 
 /// The process-wide Ctrl-C flag (set by the handler `frothline` installs once).

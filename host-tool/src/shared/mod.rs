@@ -12,7 +12,8 @@
 //!          relations)
 //! synthesis synthetic (scenarios rendered into captures with known truth: `synth` writes
 //!          them, `demo` and `simulate` play them)
-//! plumbing error (HostError), stdout (summaries that survive a closed pipe)
+//! plumbing error (HostError), stdout (summaries that survive a closed pipe), serial_port
+//!          (opening a port, and what to try when it will not open)
 //! ```
 pub mod archive;
 pub mod capture;
@@ -27,6 +28,7 @@ pub mod probe_summary;
 pub mod rig;
 pub mod running_stats;
 pub mod runs;
+pub mod serial_port;
 pub mod session;
 pub mod stations;
 pub mod stdout;

@@ -6,8 +6,8 @@ use std::sync::mpsc::Sender;
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
-/// Read timeout of a port: how long a reader waits for bytes before it looks at the stop flag.
-pub const READ_TIMEOUT: Duration = Duration::from_millis(50);
+pub use crate::shared::serial_port::{open_port, READ_TIMEOUT};
+
 /// Pause between attempts to reopen a lost port.
 pub const REOPEN_EVERY: Duration = Duration::from_secs(1);
 
@@ -43,17 +43,6 @@ fn sleep_unless(stop: &AtomicBool, d: Duration) {
         }
         std::thread::sleep((end - now).min(Duration::from_millis(25)));
     }
-}
-
-/// Open `path` raw at `baud`, 8N1, with the read timeout.
-pub fn open_port(path: &str, baud: u32) -> serialport::Result<Box<dyn serialport::SerialPort>> {
-    serialport::new(path, baud)
-        .data_bits(serialport::DataBits::Eight)
-        .parity(serialport::Parity::None)
-        .stop_bits(serialport::StopBits::One)
-        .flow_control(serialport::FlowControl::None)
-        .timeout(READ_TIMEOUT)
-        .open()
 }
 
 /// Reads of one port are gathered for this long (from the first byte) before they go to the
