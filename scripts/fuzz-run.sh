@@ -4,13 +4,13 @@
 # see fuzz/README.md), and print the inputs each ran. New inputs go to a scratch folder, so
 # the committed seed corpus stays as it is.
 # Usage: bash scripts/fuzz-run.sh [SECONDS_PER_TARGET] [TARGET...]
-#        (default 60 s; targets: decoder wav_reader layout)
+#        (default 60 s; targets: decoder wav_reader layout archive)
 set -euo pipefail
 cd "$(dirname "$0")/../fuzz"
 secs=${1:-60}
 shift || true
 targets=("$@")
-[ ${#targets[@]} -gt 0 ] || targets=(decoder wav_reader layout)
+[ ${#targets[@]} -gt 0 ] || targets=(decoder wav_reader layout archive)
 export RUSTFLAGS="--cfg fuzzing -Cpasses=sancov-module -Cllvm-args=-sanitizer-coverage-level=4 \
 -Cllvm-args=-sanitizer-coverage-inline-8bit-counters \
 -Cllvm-args=-sanitizer-coverage-pc-table -Cllvm-args=-sanitizer-coverage-trace-compares \

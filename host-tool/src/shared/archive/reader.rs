@@ -55,7 +55,8 @@ fn not_an_archive(path: &Path, first: &[u8]) -> io::Error {
 
 /// Reads an archive chunk by chunk, skipping damage.
 pub struct ArchiveReader {
-    input: File,
+    /// The archive's bytes after those read into `buf` (a file, or bytes in memory).
+    input: Box<dyn Read + Send>,
     /// Bytes of the file from offset `base`.
     buf: Vec<u8>,
     base: u64,
@@ -83,8 +84,19 @@ impl ArchiveReader {
     /// Open an archive; an error naming the file if it is no archive (empty, a WAV, an
     /// old-format archive, other bytes).
     pub fn open(path: &Path) -> io::Result<Self> {
-        let mut input = File::open(path)?;
+        let input = File::open(path)?;
         let size = input.metadata()?.len();
+        Self::from_reader(path, Box::new(input), size)
+    }
+
+    /// Read an archive held in memory (`path` names it in errors), as [`open`](Self::open)
+    /// reads a file.
+    pub fn from_bytes(path: &Path, bytes: Vec<u8>) -> io::Result<Self> {
+        let size = bytes.len() as u64;
+        Self::from_reader(path, Box::new(io::Cursor::new(bytes)), size)
+    }
+
+    fn from_reader(path: &Path, mut input: Box<dyn Read + Send>, size: u64) -> io::Result<Self> {
         let mut head = Vec::with_capacity(FILE_HEADER_BYTES);
         (&mut input)
             .take(FILE_HEADER_BYTES as u64)
