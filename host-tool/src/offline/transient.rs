@@ -39,11 +39,13 @@ use std::path::{Path, PathBuf};
 
 mod indicators;
 mod outputs;
+mod record_store;
 mod rows;
 mod summary;
 pub use indicators::{flow_indicators, FlowIndicators};
-pub use outputs::{write_output_set, write_outputs, TransientFiles};
-pub use summary::summary;
+pub use outputs::{write_output_set, write_output_set_from, write_outputs, TransientFiles};
+pub use record_store::{ProfileStore, RecordStore, WindowStore};
+pub use summary::{summary, summary_with, RecordCounts, StationSlices};
 
 /// Flag of stations.csv (and the summary) for a station the front reached before the one
 /// upstream of it.
@@ -100,17 +102,15 @@ struct Running {
 
 /// What the drivers collect.
 struct Sinks<'a> {
-    windows: Vec<HostRecord>,
-    profiles: Vec<(usize, ProfileRecord)>,
+    records: StoredRecords,
     fronts: Vec<StationFront>,
     /// Sees every full record (with its correlation sums) before it is reduced.
     full: Option<&'a mut (dyn FnMut(&FullRecord) + Send)>,
 }
 
-fn drain(idx: usize, r: &mut Running, out: &mut Sinks<'_>) {
+fn drain(idx: usize, r: &mut Running, out: &mut Sinks<'_>) -> Result<(), HostError> {
     let Sinks {
-        windows,
-        profiles,
+        records,
         fronts,
         full,
     } = out;
@@ -119,10 +119,13 @@ fn drain(idx: usize, r: &mut Running, out: &mut Sinks<'_>) {
         if let Some(f) = full.as_mut() {
             f(&w);
         }
-        windows.push(w.without_sums());
+        records
+            .windows
+            .push(w.without_sums())
+            .map_err(spill_error)?;
     }
     while let Some(p) = r.chain.poll_profile() {
-        profiles.push((idx, p));
+        records.profiles.push((idx, p)).map_err(spill_error)?;
     }
     while let Some(mut f) = r.chain.poll_front() {
         if let FrontRecord::Probe(p) = &mut f {
@@ -133,6 +136,7 @@ fn drain(idx: usize, r: &mut Running, out: &mut Sinks<'_>) {
             record: f,
         });
     }
+    Ok(())
 }
 
 /// Run the station chains of `layout` over the blocks `next_block` hands out (interleaved
@@ -148,8 +152,56 @@ pub fn run_blocks(
     sizes: &[usize],
     schedule: Option<&LevelSchedule>,
     full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
-    mut next_block: impl FnMut(&mut Vec<i16>) -> Result<usize, HostError>,
+    next_block: impl FnMut(&mut Vec<i16>) -> Result<usize, HostError>,
 ) -> Result<TransientRun, ConfigErrorOrHost> {
+    let (mut run, stored) = run_blocks_stored(
+        layout,
+        configs,
+        sample_rate,
+        sizes,
+        schedule,
+        full,
+        next_block,
+    )?;
+    stored.into_run(&mut run).map_err(ConfigErrorOrHost::Host)?;
+    Ok(run)
+}
+
+/// The window records and profile slices of a run, kept out of memory
+/// ([`RecordStore`]).
+#[derive(Debug, Default)]
+pub struct StoredRecords {
+    /// Window records (`probe` = layout index, without their correlation sums).
+    pub windows: WindowStore,
+    /// Profile slices with their station index.
+    pub profiles: ProfileStore,
+}
+
+impl StoredRecords {
+    /// Move the records into `run` ([`TransientRun::windows`], [`TransientRun::profiles`]).
+    pub fn into_run(self, run: &mut TransientRun) -> Result<(), HostError> {
+        run.windows = self.windows.into_vec().map_err(spill_error)?;
+        run.profiles = self.profiles.into_vec().map_err(spill_error)?;
+        Ok(())
+    }
+}
+
+fn spill_error(e: std::io::Error) -> HostError {
+    HostError::Usage(format!("cannot keep the window records: {e}"))
+}
+
+/// [`run_blocks`], keeping the window records and profile slices in [`StoredRecords`]
+/// (memory flat in the record's length): [`TransientRun::windows`] and
+/// [`TransientRun::profiles`] stay empty.
+pub fn run_blocks_stored(
+    layout: &Layout,
+    configs: Vec<(StationInfo, ChainConfig<MAX_PROBES>)>,
+    sample_rate: u32,
+    sizes: &[usize],
+    schedule: Option<&LevelSchedule>,
+    full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
+    mut next_block: impl FnMut(&mut Vec<i16>) -> Result<usize, HostError>,
+) -> Result<(TransientRun, StoredRecords), ConfigErrorOrHost> {
     let policy = configs
         .first()
         .map_or(WindowPolicy::Whole, |(_, c)| c.window);
@@ -162,8 +214,7 @@ pub fn run_blocks(
         running.push(Running { info, chain });
     }
     let mut out = Sinks {
-        windows: Vec::new(),
-        profiles: Vec::new(),
+        records: StoredRecords::default(),
         fronts: Vec::new(),
         full,
     };
@@ -197,7 +248,7 @@ pub fn run_blocks(
                     };
                     let used = r.chain.push(part);
                     piece = &piece[used..];
-                    drain(idx, r, &mut out);
+                    drain(idx, r, &mut out).map_err(ConfigErrorOrHost::Host)?;
                 }
                 rest = &rest[take..];
             }
@@ -207,29 +258,26 @@ pub fn run_blocks(
     }
     for (idx, r) in running.iter_mut().enumerate() {
         while r.chain.finish().is_err() {
-            drain(idx, r, &mut out);
+            drain(idx, r, &mut out).map_err(ConfigErrorOrHost::Host)?;
         }
-        drain(idx, r, &mut out);
+        drain(idx, r, &mut out).map_err(ConfigErrorOrHost::Host)?;
     }
     let Sinks {
-        mut windows,
-        profiles,
-        fronts,
-        ..
+        records, fronts, ..
     } = out;
-    windows.sort_by_key(|w| (w.start, w.probe));
-    Ok(TransientRun {
+    let run = TransientRun {
         layout: layout.clone(),
         sample_rate,
         frames,
         stations: running.into_iter().map(|r| r.info).collect(),
-        windows,
-        profiles,
+        windows: Vec::new(),
+        profiles: Vec::new(),
         fronts,
         policy,
         delay_frames,
         levels_from: Vec::new(),
-    })
+    };
+    Ok((run, records))
 }
 
 /// A configuration error of the core, or a host error (reading the capture).
@@ -315,12 +363,33 @@ pub fn replay_capture_to_cut(
     cap.end_at_cut();
     layout.check_channels(cap.channels(), layout_path)?;
     crate::shared::rig::check_levels_fit(&layout, &cap, layout_path)?;
-    let mut run = replay_open(&mut cap, &layout, layout_path, window, rule, full)?;
+    let (mut run, stored) = replay_open(&mut cap, &layout, layout_path, window, rule, full)?;
+    stored.into_run(&mut run)?;
     let (abrupt, last) = (cap.ends_abruptly(), cap.position());
     for w in &mut run.windows {
         common::mark_cut(w, abrupt, last);
     }
     Ok((run, cap))
+}
+
+/// [`replay_capture_to_cut`] with the window records and profile slices left in
+/// [`StoredRecords`] (memory flat in the capture's length; [`TransientRun::windows`] and
+/// [`TransientRun::profiles`] stay empty). Apply [`common::mark_cut`] with the capture's end
+/// as the window records are read back.
+pub fn replay_capture_stored(
+    capture: &Path,
+    layout_path: &Path,
+    window: &WindowSpec,
+    rule: LevelRule,
+) -> Result<(TransientRun, StoredRecords, Capture), HostError> {
+    let layout = Layout::load(layout_path)?;
+    let mut cap = Capture::open(capture)?;
+    crate::shared::rig::require_frames(&cap)?;
+    cap.end_at_cut();
+    layout.check_channels(cap.channels(), layout_path)?;
+    crate::shared::rig::check_levels_fit(&layout, &cap, layout_path)?;
+    let (run, stored) = replay_open(&mut cap, &layout, layout_path, window, rule, None)?;
+    Ok((run, stored, cap))
 }
 
 fn replay_open(
@@ -330,7 +399,7 @@ fn replay_open(
     window: &WindowSpec,
     rule: LevelRule,
     full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
-) -> Result<TransientRun, HostError> {
+) -> Result<(TransientRun, StoredRecords), HostError> {
     if let Some(st) = stations(layout)
         .iter()
         .find(|s| s.probes.len() > MAX_PROBES)
@@ -373,14 +442,14 @@ fn replay_open(
         )?;
     }
     let schedule = learnt.as_ref().and_then(level_drift::transient_schedule);
-    let mut run = with_big_stack(|| {
-        run_blocks(layout, configs, fs, &[], schedule.as_ref(), full, |buf| {
+    let (mut run, stored) = with_big_stack(|| {
+        run_blocks_stored(layout, configs, fs, &[], schedule.as_ref(), full, |buf| {
             Ok(cap.read_frames(buf, BLOCK_FRAMES)?)
         })
         .map_err(|e| e.into_host(layout_path))
     })?;
     run.levels_from = common::levels_sources(layout, learnt.as_ref());
-    Ok(run)
+    Ok((run, stored))
 }
 
 /// Run `f` on a thread with a large stack (the station chains are large values).
@@ -401,8 +470,20 @@ fn with_big_stack<T: Send>(f: impl FnOnce() -> T + Send) -> T {
 
 /// `frothline replay` of a transient layout: replay, write the files, print the summary.
 pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError> {
-    let (run, cap) =
-        replay_capture_to_cut(&args.capture, &args.layout, &args.window, args.levels, None)?;
+    let (run, mut stored, cap) =
+        replay_capture_stored(&args.capture, &args.layout, &args.window, args.levels)?;
+    let (abrupt, last) = (cap.ends_abruptly(), cap.position());
+    let mut profiles = stored
+        .profiles
+        .sorted()
+        .map_err(spill_error)?
+        .map(|p| p.map_err(spill_error));
+    let mut windows = stored.windows.sorted().map_err(spill_error)?.map(|w| {
+        w.map_err(spill_error).map(|mut w| {
+            common::mark_cut(&mut w, abrupt, last);
+            w
+        })
+    });
     let name = |p: &Path| {
         p.file_name().map_or_else(
             || p.display().to_string(),
@@ -414,18 +495,21 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
         name(&args.capture),
         name(&args.layout)
     );
-    let (files, committed) = write_output_set(
+    let (files, committed, counts) = write_output_set_from(
         &run,
+        &mut windows,
+        &mut profiles,
         &args.out,
         &description,
         &[("capture", &args.capture), ("layout", &args.layout)],
     )?;
+    drop((windows, profiles));
     let abrupt_end = cap.abrupt_end_warning();
     if let Some(w) = &abrupt_end {
         eprintln!("warning: {w}");
     }
     if !args.quiet {
-        let mut text = summary(&run, Some(&files));
+        let mut text = summary_with(&run, &counts, Some(&files));
         if let Some(note) = committed.note() {
             text.push_str(&note);
             text.push('\n');
@@ -436,14 +520,11 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
         layout: run.layout.clone(),
         sample_rate: run.sample_rate,
         frames: run.frames,
-        records: run.windows.clone(),
-        totals: crate::offline::run_summary::RunTotals::of(run.layout.probes.len(), &run.windows),
-        tallies: common::probe_tallies(
-            &run.layout,
-            run.sample_rate,
-            &run.windows,
-            &crate::shared::probe_summary::SummaryRule::default(),
-        ),
+        // The records stayed in the store (the command line keeps totals only, as a steady
+        // replay does).
+        records: Vec::new(),
+        totals: counts.totals,
+        tallies: counts.tallies,
         windows_csv: files.windows.clone(),
         abrupt_end,
         committed,

@@ -1,12 +1,15 @@
 //! Writing the output files of a transient replay as one set (committed together).
 
 use super::indicators::flow_indicators;
+use super::summary::RecordCounts;
 use super::TransientRun;
 use crate::offline::replay_common as common;
 use crate::shared::error::{write_err, HostError};
 use crate::shared::output_set::{Committed, OutputSet};
+use crate::shared::rig::HostRecord;
 use crate::shared::transient_columns::{FRONT_COLUMNS, PROFILE_COLUMNS, STATION_COLUMNS};
 use crate::shared::windows_csv::WindowsCsv;
+use frothline_core::ProfileRecord;
 use std::path::{Path, PathBuf};
 
 /// What [`write_outputs`] wrote.
@@ -24,11 +27,12 @@ pub struct TransientFiles {
     pub flow: PathBuf,
 }
 
+/// Write `name` with `header`; `rows` hands each row to the writer it is given.
 fn write_csv(
     set: &OutputSet,
     name: &str,
     header: &[&str],
-    rows: &[Vec<String>],
+    rows: impl FnOnce(&mut dyn FnMut(Vec<String>) -> Result<(), HostError>) -> Result<(), HostError>,
 ) -> Result<(), HostError> {
     let staged = set.staged(name);
     let err = |e: csv::Error| HostError::Write {
@@ -37,9 +41,7 @@ fn write_csv(
     };
     let mut w = csv::Writer::from_writer(set.create(name)?);
     w.write_record(header).map_err(err)?;
-    for r in rows {
-        w.write_record(r).map_err(err)?;
-    }
+    rows(&mut |r| w.write_record(&r).map_err(err))?;
     w.flush().map_err(write_err(&staged))
 }
 
@@ -61,6 +63,23 @@ pub fn write_output_set(
     description: &str,
     inputs: &[(&str, &Path)],
 ) -> Result<(TransientFiles, Committed), HostError> {
+    let mut windows = run.windows.iter().cloned().map(Ok);
+    let mut profiles = run.profiles.iter().cloned().map(Ok);
+    write_output_set_from(run, &mut windows, &mut profiles, dir, description, inputs)
+        .map(|(files, committed, _)| (files, committed))
+}
+
+/// [`write_output_set`] with the window records from `windows` (in window-start order) and
+/// the profile slices from `profiles` rather than [`TransientRun::windows`] and
+/// [`TransientRun::profiles`], counting them for the summary as they go.
+pub fn write_output_set_from(
+    run: &TransientRun,
+    windows: &mut dyn Iterator<Item = Result<HostRecord, HostError>>,
+    profiles: &mut dyn Iterator<Item = Result<(usize, ProfileRecord), HostError>>,
+    dir: &Path,
+    description: &str,
+    inputs: &[(&str, &Path)],
+) -> Result<(TransientFiles, Committed, RecordCounts), HostError> {
     let set = OutputSet::begin(dir)?;
     let staged = set.staged("windows.csv");
     let file = set.create("windows.csv")?;
@@ -70,11 +89,14 @@ pub fn write_output_set(
     };
     let mut csv = WindowsCsv::new(std::io::BufWriter::new(file)).map_err(csv_err)?;
     let meta = common::probe_meta_with(&run.layout, &run.levels_from);
-    for w in &run.windows {
+    let mut counts = RecordCounts::new(run);
+    for w in windows {
+        let w = w?;
+        counts.add(&w, &run.layout, run.sample_rate);
         let since = w.since_front.map(|f| run.secs(f as f64));
         let p = w.probe as usize;
         csv.write(
-            w,
+            &w,
             &meta[p],
             run.sample_rate,
             since,
@@ -84,14 +106,21 @@ pub fn write_output_set(
     }
     csv.finish().map_err(write_err(&staged))?;
 
-    let rows: Vec<Vec<String>> = run
-        .profiles
-        .iter()
-        .map(|(s, p)| run.profile_row(*s, p))
-        .collect();
-    write_csv(&set, "profile.csv", PROFILE_COLUMNS, &rows)?;
-    write_csv(&set, "fronts.csv", FRONT_COLUMNS, &run.front_rows())?;
-    write_csv(&set, "stations.csv", STATION_COLUMNS, &run.station_rows())?;
+    // Row by row: a long record at short windows has many slices.
+    write_csv(&set, "profile.csv", PROFILE_COLUMNS, |w| {
+        for sp in profiles {
+            let (s, p) = sp?;
+            counts.add_slice(s, &p);
+            w(run.profile_row(s, &p))?;
+        }
+        Ok(())
+    })?;
+    write_csv(&set, "fronts.csv", FRONT_COLUMNS, |w| {
+        run.front_rows().into_iter().try_for_each(w)
+    })?;
+    write_csv(&set, "stations.csv", STATION_COLUMNS, |w| {
+        run.station_rows().into_iter().try_for_each(w)
+    })?;
     let flow = set.staged("flow.json");
     std::fs::write(&flow, flow_indicators(run).to_json(description)).map_err(write_err(&flow))?;
     let names = [
@@ -111,5 +140,6 @@ pub fn write_output_set(
             flow: dir.join("flow.json"),
         },
         committed,
+        counts,
     ))
 }

@@ -4,11 +4,107 @@ use super::indicators::flow_indicators;
 use super::outputs::TransientFiles;
 use super::{TransientRun, REVERSED_ARRIVAL};
 use crate::offline::replay_common as common;
+use crate::offline::run_summary::RunTotals;
+use crate::shared::layout::Layout;
+use crate::shared::probe_summary::{ProbeTally, SummaryRule};
+use crate::shared::rig::HostRecord;
+use frothline_core::decay::DecayModel;
 use frothline_core::{ProfileRecord, WindowPolicy};
 use std::fmt::Write as _;
 
-/// The replay summary of a transient run.
+/// What the summary says of a run's window records and profile slices, gathered as they
+/// are written (the command line keeps no list of them).
+#[derive(Clone, Debug)]
+pub struct RecordCounts {
+    /// Window records.
+    pub windows: u64,
+    /// Running totals per probe.
+    pub totals: RunTotals,
+    /// Per-probe tallies under the default rule.
+    pub tallies: Vec<ProbeTally>,
+    /// Per station: the slices.
+    pub slices: Vec<StationSlices>,
+}
+
+/// The profile slices of one station, as the summary shows them.
+#[derive(Clone, Debug, Default)]
+pub struct StationSlices {
+    /// Slices.
+    pub count: u64,
+    /// The first few, in time order.
+    pub first: Vec<ProfileRecord>,
+    /// The last decay model of Cmean.
+    pub decay: Option<DecayModel>,
+}
+
+/// Slices the summary lists per station.
+const LISTED_SLICES: usize = 6;
+
+impl RecordCounts {
+    /// Nothing counted yet, for the probes and stations of `run`.
+    pub fn new(run: &TransientRun) -> RecordCounts {
+        let probes = run.layout.probes.len();
+        RecordCounts {
+            windows: 0,
+            totals: RunTotals::new(probes),
+            tallies: vec![ProbeTally::new(); probes],
+            slices: vec![StationSlices::default(); run.stations.len()],
+        }
+    }
+
+    /// Count one profile slice of station `station`.
+    pub fn add_slice(&mut self, station: usize, p: &ProfileRecord) {
+        if let Some(st) = self.slices.get_mut(station) {
+            st.count += 1;
+            if st.first.len() < LISTED_SLICES {
+                st.first.push(*p);
+            }
+            if let Some(m) = p.decay.and_then(|d| d.model) {
+                st.decay = Some(m);
+            }
+        }
+    }
+
+    /// Count one record (`probe` = layout index).
+    pub fn add(&mut self, r: &HostRecord, layout: &Layout, sample_rate: u32) {
+        self.windows += 1;
+        self.totals.add(r);
+        let p = r.probe as usize;
+        if let Some(tally) = self.tallies.get_mut(p) {
+            let spacing = layout.probes.get(p).and_then(|p| p.tip_spacing_mm);
+            tally.add(
+                &common::window_figures(r, sample_rate, spacing),
+                &SummaryRule::default(),
+            );
+        }
+    }
+
+    /// The counts of the records a run keeps in [`TransientRun::windows`] and
+    /// [`TransientRun::profiles`].
+    pub fn of(run: &TransientRun) -> RecordCounts {
+        let mut c = RecordCounts::new(run);
+        for w in &run.windows {
+            c.add(w, &run.layout, run.sample_rate);
+        }
+        for (st, p) in &run.profiles {
+            c.add_slice(*st, p);
+        }
+        c
+    }
+}
+
+/// The replay summary of a transient run (its records in [`TransientRun::windows`] and
+/// [`TransientRun::profiles`]).
 pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
+    summary_with(run, &RecordCounts::of(run), files)
+}
+
+/// The replay summary of a transient run whose records were counted in `counts`.
+pub fn summary_with(
+    run: &TransientRun,
+    counts: &RecordCounts,
+    files: Option<&TransientFiles>,
+) -> String {
     let mut s = String::new();
     let secs = run.secs(run.frames as f64);
     let _ = writeln!(
@@ -17,8 +113,8 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
         run.frames,
         run.sample_rate,
         run.stations.len(),
-        run.windows.len(),
-        run.profiles.len()
+        counts.windows,
+        counts.slices.iter().map(|s| s.count).sum::<u64>()
     );
     if let WindowPolicy::AfterFront { frames } = run.policy {
         let _ = writeln!(
@@ -70,12 +166,8 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
                  check the x_mm of the stations (or swapped probes)"
             );
         }
-        let slices: Vec<&ProfileRecord> = run
-            .profiles
-            .iter()
-            .filter(|(k, _)| *k == i)
-            .map(|(_, p)| p)
-            .collect();
+        let no_slices = StationSlices::default();
+        let slices = counts.slices.get(i).unwrap_or(&no_slices);
         let _ = writeln!(
             s,
             "  {:>10} {:>9} {:>7} {:>7} {:>9}",
@@ -84,7 +176,7 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
         let f4 = |v: Option<f32>, w: usize, p: usize| {
             v.map_or(format!("{:>w$}", "-"), |v| format!("{v:>w$.p$}"))
         };
-        for p in slices.iter().take(6) {
+        for p in &slices.first {
             let _ = writeln!(
                 s,
                 "  {:>10.3} {} {} {} {}",
@@ -95,14 +187,11 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
                 f4(p.fit.equivalent_depth_mm, 9, 1),
             );
         }
-        if slices.len() > 6 {
-            let _ = writeln!(s, "  … {} more slices", slices.len() - 6);
+        let listed = slices.first.len() as u64;
+        if slices.count > listed {
+            let _ = writeln!(s, "  … {} more slices", slices.count - listed);
         }
-        if let Some(m) = slices
-            .iter()
-            .rev()
-            .find_map(|p| p.decay.and_then(|d| d.model))
-        {
+        if let Some(m) = slices.decay {
             let _ = writeln!(
                 s,
                 "  decay of Cmean: C0 {:.3} -> Cf {:.3}, tau {:.3} s{}",
@@ -141,8 +230,7 @@ pub fn summary(run: &TransientRun, files: Option<&TransientFiles>) -> String {
     if let Some(c) = &ind.caution {
         let _ = writeln!(s, "caution: {c}");
     }
-    let records: Vec<_> = run.windows.clone();
-    s.push_str(&common::probe_table(&run.layout, run.sample_rate, &records));
+    s.push_str(&common::tally_table(&run.layout, &counts.tallies));
     if let Some(f) = files {
         let _ = writeln!(
             s,
