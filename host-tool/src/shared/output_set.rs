@@ -30,6 +30,7 @@ pub const RUN_FILES: &[&str] = &[
     "fronts.csv",
     "stations.csv",
     "flow.json",
+    "discharge.csv",
 ];
 
 /// Creates `path` as a new file, removing a previous file or symlink of that name first, so
@@ -315,7 +316,13 @@ mod tests {
     fn a_new_set_removes_files_the_earlier_run_wrote_and_this_one_does_not() {
         let dir = tempfile::tempdir().unwrap();
         let d = dir.path();
-        for n in ["windows.csv", "profile.csv", "fronts.csv", "flow.json"] {
+        for n in [
+            "windows.csv",
+            "profile.csv",
+            "fronts.csv",
+            "flow.json",
+            "discharge.csv",
+        ] {
             std::fs::write(d.join(n), "old").unwrap();
         }
         std::fs::write(d.join("notes.txt"), "mine").unwrap();
@@ -325,7 +332,11 @@ mod tests {
             .commit(&["windows.csv"], &[("capture", Path::new("a.wav"))])
             .unwrap();
         assert_eq!(done.replaced, vec!["windows.csv"]);
-        assert_eq!(done.removed, vec!["profile.csv", "fronts.csv", "flow.json"]);
+        assert_eq!(
+            done.removed,
+            vec!["profile.csv", "fronts.csv", "flow.json", "discharge.csv"]
+        );
+        assert!(!d.join("discharge.csv").exists());
         assert!(done.note().unwrap().contains("profile.csv"));
         assert_eq!(
             std::fs::read_to_string(d.join("windows.csv")).unwrap(),
