@@ -52,9 +52,11 @@ pub const MAX_PORTS: usize = 64;
 /// The longest chunk: sync, kind, port, a 10-byte time, a 3-byte length, payload, CRC.
 pub const MAX_CHUNK_BYTES: usize = 2 + 1 + 1 + 10 + 3 + MAX_PAYLOAD + 4;
 
-/// The CRC of headers and chunks: CRC-32/ISO-HDLC, the frames' CRC.
+/// The CRC of headers and chunks: CRC-32/ISO-HDLC, the frames' CRC
+/// ([`frothline_core::wire::crc32`]), computed with `crc32fast`: a reader resynchronising
+/// over hostile bytes may test a CRC over up to 64 KiB at every sync pair.
 fn crc32(bytes: &[u8]) -> u32 {
-    frothline_core::wire::crc32(bytes)
+    crc32fast::hash(bytes)
 }
 
 /// What a chunk holds.

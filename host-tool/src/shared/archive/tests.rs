@@ -239,3 +239,47 @@ fn garbage_after_the_last_chunk_is_reported_as_damage() {
         }]
     );
 }
+
+/// The archive's CRC (crc32fast) is the frames' CRC-32/ISO-HDLC: the standard check value
+/// 0xCBF43926 of "123456789" (the CRC catalogue's parameter set for CRC-32/ISO-HDLC), and
+/// equal to the core's CRC over assorted lengths.
+#[test]
+fn the_archive_crc_is_the_frame_crc() {
+    assert_eq!(super::crc32(b"123456789"), 0xCBF4_3926);
+    let mut x = 7u32;
+    let bytes: Vec<u8> = (0..70_000)
+        .map(|_| {
+            x = x.wrapping_mul(1_103_515_245).wrapping_add(12_345);
+            (x >> 16) as u8
+        })
+        .collect();
+    for len in [0, 1, 3, 15, 16, 17, 63, 64, 65, 1000, 65_536, 70_000] {
+        assert_eq!(
+            super::crc32(&bytes[..len]),
+            frothline_core::wire::crc32(&bytes[..len]),
+            "length {len}"
+        );
+    }
+}
+
+/// A stretch full of sync pairs that each claim a long chunk is skipped in time linear in
+/// its length: every candidate costs a CRC over at most 64 KiB. (Correctness only here; the
+/// time is in the fuzz figures.) The chunk after it is read.
+#[test]
+fn a_stretch_of_false_sync_pairs_is_skipped() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("s.frothwire");
+    let mut w = ArchiveWriter::create(&path, 1_000).unwrap();
+    w.append(0, 1_000, b"before").unwrap();
+    drop(w);
+    let mut f = OpenOptions::new().append(true).open(&path).unwrap();
+    for _ in 0..2_000 {
+        f.write_all(&[0xC5, 0x57, 0x00, 0x00, 0x00, 0xFF, 0xFF, 0x03])
+            .unwrap();
+    }
+    drop(f);
+    let (chunks, r) = read_all(&path);
+    assert_eq!(chunks.len(), 1);
+    assert_eq!(chunks[0].bytes, b"before");
+    assert!(!r.damage().is_empty() || r.tail().is_some());
+}
