@@ -77,6 +77,20 @@ fn tip_report_json(r: &frothline_core::wire::TipReport) -> Value {
     })
 }
 
+fn tip_setting_json(t: &frothline_core::wire::TipSetting) -> Value {
+    json!({
+        "levels": t.levels.map(|l| json!({"air": l.air, "water": l.water})),
+        "fixed": t.fixed,
+    })
+}
+
+fn probe_levels_json(p: &frothline_core::wire::ProbeLevels) -> Value {
+    json!({
+        "leading": tip_setting_json(&p.leading),
+        "trailing": p.trailing.as_ref().map(tip_setting_json),
+    })
+}
+
 /// The Rust verdict on one frame (`frame` = its bytes with the delimiter).
 fn case(frame: &[u8]) -> Value {
     let mut dec: Decoder = Decoder::new();
@@ -93,6 +107,9 @@ fn case(frame: &[u8]) -> Value {
             }
             if let Body::TipHealth(ts) = &frame.body {
                 v["tips"] = Value::Array(ts.iter().map(tip_report_json).collect());
+            }
+            if let Body::Levels(ls) = &frame.body {
+                v["levels"] = Value::Array(ls.iter().map(probe_levels_json).collect());
             }
             v
         }

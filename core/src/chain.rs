@@ -317,6 +317,24 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
         }
     }
 
+    /// The levels the statistics use on a tip of probe `probe` (the leading tip, or the
+    /// trailing one), with true if they are fixed rather than learnt; `None` for a tip that
+    /// does not exist. The levels are `None` while a learning tip has learnt none.
+    pub fn tip_levels(
+        &self,
+        probe: usize,
+        trailing: bool,
+    ) -> Option<(Option<crate::levels::Levels>, bool)> {
+        let p = self.stats.probes.in_use().get(probe)?;
+        let tip = if trailing { p.trail()? } else { &p.lead };
+        Some((tip.detector.levels(), tip.detector.levels_fixed()))
+    }
+
+    /// Probes in use.
+    pub fn probe_count(&self) -> usize {
+        self.stats.probes.in_use().len()
+    }
+
     /// What the front detector of probe `probe` knows so far (station chains only).
     pub fn tip_front(&self, probe: usize) -> Option<crate::front::TipFront> {
         self.stats.station.as_ref()?.tip(probe)

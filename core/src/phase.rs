@@ -348,6 +348,11 @@ impl PhaseDetector {
         self.levels
     }
 
+    /// True if the levels are fixed (given, not learnt and tracked from the signal).
+    pub fn levels_fixed(&self) -> bool {
+        self.learner.is_none()
+    }
+
     /// Use `levels` from the next frame on (thresholds recomputed). A learning detector
     /// keeps learning and replaces them at its next learning event.
     pub fn set_levels(&mut self, levels: Levels) {

@@ -7,11 +7,11 @@
 
 use frothline_core::wire::{
     self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, Decoder,
-    DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, LogChunk, Nack, NackReason,
-    ProbeLayout, ProfileFit, ReadLog, Relearn, RunStart, SeqCheck, SetClock, SetLevels, StartRun,
-    Streamer, StreamerConfig, TipHealth, TipLevels, TipReport, TipState, TrailingTip, WindowResult,
-    WindowSetting, Windows, LABEL_BYTES, MAX_FRAME_BYTES, MAX_PROBES, MAX_TIPS_PER_FRAME,
-    MAX_WINDOWS_PER_FRAME,
+    DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, LevelsInUse, LogChunk, Nack,
+    NackReason, ProbeLayout, ProbeLevels, ProfileFit, ReadLog, Relearn, RunStart, SeqCheck,
+    SetClock, SetLevels, StartRun, Streamer, StreamerConfig, TipHealth, TipLevels, TipReport,
+    TipSetting, TipState, TrailingTip, WindowResult, WindowSetting, Windows, LABEL_BYTES,
+    MAX_FRAME_BYTES, MAX_PROBES, MAX_TIPS_PER_FRAME, MAX_WINDOWS_PER_FRAME,
 };
 use proptest::prelude::*;
 use rand::rngs::StdRng;
@@ -300,7 +300,41 @@ fn sample_frames() -> Vec<Frame> {
             ),
         ),
         dev(308, Body::TipHealth(sample_tip_health())),
+        dev(309, Body::Levels(sample_levels())),
     ]
+}
+
+/// Levels in use of two probes: a dual-tip probe whose leading tip has fixed levels
+/// (25100 / -3000) and whose trailing tip learnt 24000 / -2500, and a single-tip probe that
+/// has learnt none.
+fn sample_levels() -> LevelsInUse {
+    let mut v = LevelsInUse::new();
+    v.push(ProbeLevels {
+        leading: TipSetting {
+            levels: Some(TipLevels {
+                air: 25_100,
+                water: -3_000,
+            }),
+            fixed: true,
+        },
+        trailing: Some(TipSetting {
+            levels: Some(TipLevels {
+                air: 24_000,
+                water: -2_500,
+            }),
+            fixed: false,
+        }),
+    })
+    .unwrap();
+    v.push(ProbeLevels {
+        leading: TipSetting {
+            levels: None,
+            fixed: false,
+        },
+        trailing: None,
+    })
+    .unwrap();
+    v
 }
 
 /// Tip health of two probes: a dual-tip probe switching (levels 25100 / -3000, 18
@@ -501,6 +535,21 @@ fn largest_frames() -> Vec<Frame> {
             )
             .collect(),
         )),
+        f(Body::Levels({
+            let tip = TipSetting {
+                levels: Some(TipLevels {
+                    air: i16::MIN,
+                    water: i16::MIN,
+                }),
+                fixed: true,
+            };
+            (0..MAX_PROBES)
+                .map(|_| ProbeLevels {
+                    leading: tip,
+                    trailing: Some(tip),
+                })
+                .collect()
+        })),
         f(Body::TipHealth({
             let tip = TipState {
                 levels: Some(TipLevels {
@@ -671,6 +720,28 @@ fn golden_set_levels_by_hand() {
     let (version, device, kind, seq, body) = ref_parse(&enc(f));
     assert_eq!((version, device, kind, seq), (2, 0xFFFF, 0x26, 6));
     assert_eq!(body, [0x02, 0x01, 0x98, 0x88, 0x03, 0xEF, 0x2E]);
+}
+
+/// The levels in use of `sample_levels()` from device 7, seq 309, worked by hand from
+/// docs/wire-protocol.md: count 02 | probe 0: leading Some 01, air zigzag 50200 -> 98 88 03,
+/// water zigzag 5999 -> ef 2e, fixed 01; trailing Some 01, Some 01, air zigzag 48000 ->
+/// 80 f7 02, water zigzag 4999 -> 87 27, fixed 00 | probe 1: levels None 00, fixed 00,
+/// trailing None 00.
+#[test]
+fn golden_levels_by_hand() {
+    let f = sample_frames()
+        .into_iter()
+        .find(|f| f.body.kind() == Kind::Levels)
+        .unwrap();
+    let (version, device, kind, seq, body) = ref_parse(&enc(&f));
+    assert_eq!((version, device, kind, seq), (2, 7, 0x0A, 309));
+    assert_eq!(
+        body,
+        [
+            0x02, 0x01, 0x98, 0x88, 0x03, 0xEF, 0x2E, 0x01, 0x01, 0x01, 0x80, 0xF7, 0x02, 0x87,
+            0x27, 0x00, 0x00, 0x00, 0x00
+        ]
+    );
 }
 
 /// SetClock { utc_ms 1 700 000 000 123 } from the host, seq 7, worked by hand from

@@ -8,11 +8,12 @@ what runs; the second decoder is decode_frames.py beside this file (the live-por
 Input, one JSON object per line on standard input:
 
     {"hex": "<the bytes between two delimiters>", "rust": "frame" | "unsupported" |
-     "rejected", "code": <kind code>, "seq": <n>, "windows": [<window results>]?, "tips": [<tip reports>]?}
+     "rejected", "code": <kind code>, "seq": <n>, "windows": [<window results>]?, "tips": [<tip reports>]?,
+     "levels": [<probe levels>]?}
 
 For every line both decoders must reach the Rust verdict (accept as a frame of that kind
 and seq, skip as unsupported, or reject), and for a Windows frame decode the same window
-results (integers of the wire), for a TipHealth frame the same tip reports. Output: one JSON summary line; exit 1 on any mismatch.
+results (integers of the wire), for a TipHealth frame the same tip reports, for a Levels frame the same levels. Output: one JSON summary line; exit 1 on any mismatch.
 
     python3 check_decoders.py < cases.jsonl
 """
@@ -84,6 +85,8 @@ def main():
                 ok = got[3] == case["windows"]
             if ok and want == "frame" and "tips" in case:
                 ok = got[3] == case["tips"]
+            if ok and want == "frame" and "levels" in case:
+                ok = got[3] == case["levels"]
             if not ok:
                 counts["mismatches"] += 1
                 if shown < 10:

@@ -206,6 +206,18 @@ def tip_report(c):
             "leading": tip_state(c), "trailing": c.opt(lambda: tip_state(c))}
 
 
+def tip_setting(c):
+    levels = c.opt(lambda: {"air": c.svar(16), "water": c.svar(16)})
+    fixed = c.byte()
+    if fixed > 1:
+        raise ValueError("bad bool")
+    return {"levels": levels, "fixed": fixed == 1}
+
+
+def probe_levels(c):
+    return {"leading": tip_setting(c), "trailing": c.opt(lambda: tip_setting(c))}
+
+
 def empty(c):
     return None
 
@@ -230,6 +242,7 @@ KINDS = {
                                    "data": bytes(c.seq(c.byte, 64)).hex()}),
     0x08: ("derived", lambda c: c.seq(lambda: derived_result(c), 8)),
     0x09: ("tip_health", lambda c: c.seq(lambda: tip_report(c), 6)),
+    0x0A: ("levels", lambda c: c.seq(lambda: probe_levels(c), 16)),
     0x20: ("start_run", lambda c: {"label": c.text(16), "utc_ms": c.opt(lambda: u64(c))}),
     0x21: ("stop_run", empty),
     0x22: ("set_window", window_setting),

@@ -79,6 +79,9 @@ pub enum Kind {
     /// [`TipHealth`]: per tip, the levels in use, interfaces and void fraction of its
     /// latest window.
     TipHealth = 0x09,
+    /// [`LevelsInUse`](crate::wire::LevelsInUse): every tip's levels now, fixed or learnt
+    /// (after each description, SetLevels and Relearn).
+    Levels = 0x0A,
     /// Command [`StartRun`].
     StartRun = 0x20,
     /// Command: stop the run (no body).
@@ -103,7 +106,7 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 19] = [
+    pub const ALL: [Kind; 20] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
@@ -113,6 +116,7 @@ impl Kind {
         Kind::LogChunk,
         Kind::Derived,
         Kind::TipHealth,
+        Kind::Levels,
         Kind::StartRun,
         Kind::StopRun,
         Kind::SetWindow,
@@ -142,6 +146,7 @@ impl Kind {
             0x07 => Kind::LogChunk,
             0x08 => Kind::Derived,
             0x09 => Kind::TipHealth,
+            0x0A => Kind::Levels,
             0x20 => Kind::StartRun,
             0x21 => Kind::StopRun,
             0x22 => Kind::SetWindow,
@@ -227,6 +232,8 @@ pub enum Body {
     Derived(crate::wire::DerivedBatch),
     /// Tip health of some probes.
     TipHealth(TipHealth),
+    /// The levels every tip uses now.
+    Levels(crate::wire::LevelsInUse),
     /// Command: start a run.
     StartRun(StartRun),
     /// Command: stop the run.
@@ -262,6 +269,7 @@ impl Body {
             Body::LogChunk(_) => Kind::LogChunk,
             Body::Derived(_) => Kind::Derived,
             Body::TipHealth(_) => Kind::TipHealth,
+            Body::Levels(_) => Kind::Levels,
             Body::StartRun(_) => Kind::StartRun,
             Body::StopRun => Kind::StopRun,
             Body::SetWindow(_) => Kind::SetWindow,

@@ -29,6 +29,7 @@ pub mod codec;
 pub mod decoder;
 pub mod derived_frame;
 pub mod frame;
+pub mod levels_in_use;
 pub mod quant;
 pub mod responder;
 pub mod streamer;
@@ -43,6 +44,7 @@ pub use frame::{
     SetClock, SetLevels, StartRun, TrailingTip, WindowResult, WindowSetting, Windows,
     LOG_CHUNK_BYTES, PROFILE_ESTIMATES,
 };
+pub use levels_in_use::{levels_in_use, LevelsInUse, ProbeLevels, TipSetting};
 pub use responder::{Command, CommandTarget, Reply, Responder, ResponderStats};
 pub use streamer::{Offer, Streamer, StreamerConfig, StreamerStats};
 pub use tip_health::{TipBook, TipHealth, TipLevels, TipReport, TipState, MAX_TIPS_PER_FRAME};
@@ -89,6 +91,7 @@ pub const MAX_BODY_BYTES: usize = {
     m = max(m, RunStart::POSTCARD_MAX_SIZE);
     m = max(m, DerivedBatch::POSTCARD_MAX_SIZE);
     m = max(m, TipHealth::POSTCARD_MAX_SIZE);
+    m = max(m, LevelsInUse::POSTCARD_MAX_SIZE);
     m = max(m, StartRun::POSTCARD_MAX_SIZE);
     m = max(m, WindowSetting::POSTCARD_MAX_SIZE);
     m = max(m, Relearn::POSTCARD_MAX_SIZE);

@@ -3,6 +3,7 @@
 //! ```text
 //! offer(body) -> urgent FIFO (fronts, profiles, replies, commands) ---+
 //!                description slot (latest wins)                     +-> encode (seq++) -> tx
+//!                levels slot (latest wins; after the description)   |
 //!                health slot (latest wins; counters are cumulative)  |        |
 //!                tip book (latest report per probe; after health)    |        |
 //!                window queue (Q results; full -> drop the oldest)  -+        v
@@ -16,7 +17,7 @@
 //!
 //! Policy when the link cannot keep up: the very first frame is the description if one is
 //! queued (a device's power-on marker); after it urgent frames go first, then the
-//! description, then health, then window results, then their derived figures (kind 0x08,
+//! description, then the levels in use, then health, then window results, then their derived figures (kind 0x08,
 //! a queue of its own of `Q`, dropped and counted like window results). Window results wait in a queue of `Q`; when it is full the
 //! **oldest** result is dropped. A new description or health frame replaces a queued one
 //! (nothing is lost: health counters are cumulative). An urgent frame offered to a full
@@ -166,6 +167,7 @@ pub struct Streamer<const Q: usize, const P: usize = 8, const T: usize = MAX_PRO
     derived: Deque<DerivedResult, Q>,
     urgent: Deque<Urgent, P>,
     describe: Option<DeviceDescription>,
+    levels: Option<crate::wire::LevelsInUse>,
     health: Option<Health>,
     tips: TipBook<T>,
     /// A health frame went out: send the tip book next.
@@ -190,6 +192,7 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             derived: Deque::new(),
             urgent: Deque::new(),
             describe: None,
+            levels: None,
             health: None,
             tips: TipBook::default(),
             tips_due: false,
@@ -228,6 +231,7 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
                 };
             }
             Body::Describe(d) => return Self::replace(&mut self.describe, d, &mut self.stats),
+            Body::Levels(l) => return Self::replace(&mut self.levels, l, &mut self.stats),
             Body::Health(h) => return Self::replace(&mut self.health, h, &mut self.stats),
             Body::TipHealth(v) => {
                 for r in v {
@@ -371,6 +375,7 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             && self.derived.is_empty()
             && self.urgent.is_empty()
             && self.describe.is_none()
+            && self.levels.is_none()
             && self.health.is_none()
             && (!self.tips_due || self.tips.is_empty())
     }
@@ -419,6 +424,8 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             u.into_body()
         } else if let Some(d) = self.describe.take() {
             Body::Describe(d)
+        } else if let Some(l) = self.levels.take() {
+            Body::Levels(l)
         } else if let Some(mut h) = self.health.take() {
             h.windows_dropped = self.stats.windows_dropped;
             h.frames_dropped = self.stats.frames_dropped();

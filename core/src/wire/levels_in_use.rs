@@ -1,0 +1,70 @@
+//! Kind 0x0A, levels in use: the air and water levels every tip of the device uses now,
+//! and whether each is fixed (stored in the device's settings, set by a calibration) or
+//! learnt from the signal.
+//!
+//! A device sends it right after every description (power-on, a window change, a
+//! DescribeRequest) and after every SetLevels or Relearn it carries out, so a host reads a
+//! device's levels without waiting for a window to close: a calibration reads back what it
+//! set, before a run and after a power cycle. Tip-health frames (kind 0x09) give the levels
+//! of each closed window besides.
+
+use crate::wire::tip_health::TipLevels;
+use crate::wire::MAX_PROBES;
+use heapless::Vec;
+use postcard::experimental::max_size::MaxSize;
+use serde::{Deserialize, Serialize};
+
+/// One tip's levels.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct TipSetting {
+    /// The air and water levels in use, counts rounded to the nearest count; None while a
+    /// learning tip has learnt none.
+    pub levels: Option<TipLevels>,
+    /// True if the levels are fixed (from the settings), false if learnt and tracked.
+    pub fixed: bool,
+}
+
+/// The tips of one probe.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ProbeLevels {
+    /// The leading tip.
+    pub leading: TipSetting,
+    /// The trailing tip of a dual-tip probe.
+    pub trailing: Option<TipSetting>,
+}
+
+/// Kind 0x0A body: every probe of the description, in its order (the index is the probe).
+pub type LevelsInUse = Vec<ProbeLevels, MAX_PROBES>;
+
+fn tip(levels: Option<crate::levels::Levels>, fixed: bool) -> TipSetting {
+    TipSetting {
+        levels: levels.map(|l| TipLevels {
+            air: crate::wire::quant::counts(l.air),
+            water: crate::wire::quant::counts(l.water),
+        }),
+        fixed,
+    }
+}
+
+/// The levels every probe of `chain` uses now (at most [`MAX_PROBES`] probes).
+pub fn levels_in_use<const P: usize, const L: usize>(
+    chain: &crate::chain::Chain<P, L>,
+) -> LevelsInUse {
+    let mut v = LevelsInUse::new();
+    for probe in 0..chain.probe_count().min(MAX_PROBES) {
+        let Some((lead, lead_fixed)) = chain.tip_levels(probe, false) else {
+            break;
+        };
+        let trailing = chain
+            .tip_levels(probe, true)
+            .map(|(l, fixed)| tip(l, fixed));
+        // Cannot fail: at most MAX_PROBES probes.
+        let _ = v.push(ProbeLevels {
+            leading: tip(lead, lead_fixed),
+            trailing,
+        });
+    }
+    v
+}
