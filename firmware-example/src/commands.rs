@@ -16,6 +16,9 @@
 //!   where the command took effect); SetWindow and SetLevels are stored in flash;
 //! - SetClock: the device's UTC clock set (kept on the sample clock from then on);
 //! - DescribeRequest: a description queued.
+//!
+//! After a description and after SetLevels, Relearn and SetWindow, the levels every tip
+//! uses (kind 0x0A) follow, read from the chain once it has been configured afresh.
 
 use crate::config::PROBES;
 use crate::link::Link;
@@ -39,6 +42,9 @@ pub struct Pending {
     pub new_run: bool,
     /// The settings changed: store them.
     pub save: bool,
+    /// Send the levels every tip uses (kind 0x0A) once the rest is done: after a
+    /// description, and after the levels changed.
+    pub levels: bool,
 }
 
 /// The device's UTC clock: the host's UTC at a frame of the sample clock.
@@ -91,6 +97,7 @@ impl RunState {
                 rebuild: false,
                 new_run: false,
                 save: false,
+                levels: false,
             },
             clock: None,
         }
@@ -145,9 +152,11 @@ impl<W: Write, const P: usize> FwTarget<'_, W, P> {
         let p = &mut self.run.pending;
         if self.run.running {
             p.close = true;
-            p.rebuild = true;
         }
+        // Outside a run too, so that the levels reported are the ones the next run uses.
+        p.rebuild = true;
         p.save |= save;
+        p.levels = true;
     }
 }
 
@@ -210,6 +219,7 @@ impl<W: Write, const P: usize> CommandTarget for FwTarget<'_, W, P> {
 
     fn describe(&mut self) -> Result<(), NackReason> {
         self.link.describe();
+        self.run.pending.levels = true;
         Ok(())
     }
 

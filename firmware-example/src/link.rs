@@ -95,6 +95,11 @@ impl<W: Write> Link<W> {
         w
     }
 
+    /// Queue the levels every tip uses (after the description; a newer one replaces it).
+    pub fn levels(&mut self, l: frothline_core::wire::LevelsInUse) {
+        self.streamer.offer(Body::Levels(l));
+    }
+
     /// Queue a front arrival (station chains).
     pub fn front(&mut self, f: FrontArrival) {
         self.streamer.offer(Body::Front(f));

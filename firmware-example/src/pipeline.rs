@@ -226,6 +226,9 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             self.chain_base = self.run_frames;
             self.rebuild();
         }
+        if p.levels {
+            self.send_levels();
+        }
         if p.save {
             // Without a store (a board that has none) the settings hold until power-off.
             match self.store.as_mut().map(|s| s.save(&self.settings)) {
@@ -246,11 +249,20 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         &self.clock
     }
 
-    /// Send the device description. (Not inlined: the description is built on the stack,
-    /// which would otherwise stay reserved below the main loop.)
+    /// Queue the levels every tip uses now (kind 0x0A). (Not inlined: the body is built on
+    /// the stack.)
+    #[inline(never)]
+    fn send_levels(&mut self) {
+        self.link
+            .levels(frothline_core::wire::levels_in_use(self.chain));
+    }
+
+    /// Send the device description and the levels in use. (Not inlined: the description is
+    /// built on the stack, which would otherwise stay reserved below the main loop.)
     #[inline(never)]
     pub fn start(&mut self) {
         self.link.describe();
+        self.send_levels();
         if !self.run.running {
             self.link.pump(0);
             return;

@@ -49,8 +49,14 @@ fn tip(levels: Option<crate::levels::Levels>, fixed: bool) -> TipSetting {
 }
 
 /// The levels every probe of `chain` uses now (at most [`MAX_PROBES`] probes).
-pub fn levels_in_use<const P: usize, const L: usize>(
-    chain: &crate::chain::Chain<P, L>,
+pub fn levels_in_use<
+    const P: usize,
+    const L: usize,
+    const D: usize,
+    const S: usize,
+    const T: usize,
+>(
+    chain: &crate::chain::GenericChain<P, L, D, S, T>,
 ) -> LevelsInUse {
     let mut v = LevelsInUse::new();
     for probe in 0..chain.probe_count().min(MAX_PROBES) {
@@ -67,4 +73,32 @@ pub fn levels_in_use<const P: usize, const L: usize>(
         });
     }
     v
+}
+
+/// A tip as its configuration sets it: fixed levels, or none yet for a learning tip.
+fn from_config(t: &crate::probe_config::TipConfig) -> TipSetting {
+    match t.levels {
+        crate::probe_config::LevelSource::Fixed { air, water } => TipSetting {
+            levels: Some(TipLevels { air, water }),
+            fixed: true,
+        },
+        crate::probe_config::LevelSource::Learnt => TipSetting {
+            levels: None,
+            fixed: false,
+        },
+    }
+}
+
+/// The levels a chain configured with `config` starts with (a device outside a run, whose
+/// chain is not running): fixed tips with their levels, learning tips with none.
+pub fn levels_of_config<const P: usize>(config: &crate::config::ChainConfig<P>) -> LevelsInUse {
+    config
+        .probes
+        .iter()
+        .take(MAX_PROBES)
+        .map(|p| ProbeLevels {
+            leading: from_config(&p.leading),
+            trailing: p.trailing.as_ref().map(from_config),
+        })
+        .collect()
 }

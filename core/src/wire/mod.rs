@@ -44,7 +44,7 @@ pub use frame::{
     SetClock, SetLevels, StartRun, TrailingTip, WindowResult, WindowSetting, Windows,
     LOG_CHUNK_BYTES, PROFILE_ESTIMATES,
 };
-pub use levels_in_use::{levels_in_use, LevelsInUse, ProbeLevels, TipSetting};
+pub use levels_in_use::{levels_in_use, levels_of_config, LevelsInUse, ProbeLevels, TipSetting};
 pub use responder::{Command, CommandTarget, Reply, Responder, ResponderStats};
 pub use streamer::{Offer, Streamer, StreamerConfig, StreamerStats};
 pub use tip_health::{TipBook, TipHealth, TipLevels, TipReport, TipState, MAX_TIPS_PER_FRAME};

@@ -147,6 +147,7 @@ impl SimDevice {
         };
         let desc = d.description();
         d.streamer.offer(Body::Describe(desc));
+        d.offer_levels();
         if d.opts.autostart {
             let _ = d.start_run(now, &StartRun::default());
         }
@@ -286,6 +287,33 @@ impl SimDevice {
         };
         self.streamer.offer(Body::RunStart(run));
         Ok(())
+    }
+
+    /// The levels every tip uses now: the running chain's (learnt or fixed), or outside a
+    /// run the configuration's (fixed tips; learning tips have none yet).
+    fn levels(&self) -> frothline_core::wire::LevelsInUse {
+        use frothline_core::wire::{levels_in_use, levels_of_config};
+        match &self.chain {
+            Some(Chains::Steady(chain)) => levels_in_use(chain),
+            Some(Chains::Transient(stations)) => {
+                let mut all = levels_of_config(&self.config);
+                for (info, chain) in stations {
+                    for (local, p) in levels_in_use(chain).into_iter().enumerate() {
+                        if let Some(slot) = info.probes.get(local).and_then(|&g| all.get_mut(g)) {
+                            *slot = p;
+                        }
+                    }
+                }
+                all
+            }
+            None => levels_of_config(&self.config),
+        }
+    }
+
+    /// Queue the levels in use (kind 0x0A; a newer one replaces a queued one).
+    fn offer_levels(&mut self) {
+        let l = self.levels();
+        self.streamer.offer(Body::Levels(l));
     }
 
     /// Close the current chain: its open window comes out (flagged partial).
@@ -687,6 +715,7 @@ impl CommandTarget for SimTarget<'_> {
         d.rebuild(cfg)?;
         let desc = d.description();
         d.streamer.offer(Body::Describe(desc));
+        d.offer_levels();
         Ok(())
     }
 
@@ -698,17 +727,22 @@ impl CommandTarget for SimTarget<'_> {
             return Err(NackReason::BadArgument);
         }
         // The core has no per-probe re-learn yet: every probe re-learns.
-        d.relearn()
+        d.relearn()?;
+        d.offer_levels();
+        Ok(())
     }
 
     fn describe(&mut self) -> Result<(), NackReason> {
         let desc = self.dev.description();
         self.dev.streamer.offer(Body::Describe(desc));
+        self.dev.offer_levels();
         Ok(())
     }
 
     fn set_levels(&mut self, levels: &frothline_core::wire::SetLevels) -> Result<(), NackReason> {
-        self.dev.set_levels(*levels)
+        self.dev.set_levels(*levels)?;
+        self.dev.offer_levels();
+        Ok(())
     }
 
     fn set_clock(&mut self, utc_ms: u64) -> Result<(), NackReason> {

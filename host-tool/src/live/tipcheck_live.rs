@@ -19,7 +19,7 @@ use crate::shared::commands::Command;
 use crate::shared::error::HostError;
 use crate::shared::layout::Layout;
 use crate::shared::session::Event;
-use frothline_core::wire::{Kind, NackReason, SetLevels, TipReport, TipState};
+use frothline_core::wire::{Kind, LevelsInUse, NackReason, SetLevels, TipReport, TipState};
 use frothline_core::Flags;
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
@@ -49,6 +49,9 @@ pub struct LiveTip {
     /// The device's answer to SetLevels for this tip: None when not sent, Some(None) for
     /// an Ack, Some(Some(reason)) for a Nack.
     pub set: Option<Option<NackReason>>,
+    /// From the device's latest levels-in-use frame (kind 0x0A): true if the tip's levels
+    /// are fixed (kept in the device's settings), false if learnt; None if none came.
+    pub fixed: Option<bool>,
 }
 
 /// What a live check found.
@@ -96,8 +99,69 @@ fn flags_of(
     v
 }
 
-/// The rows of the latest reports, against `layout`.
+/// The rows of the latest reports, against `layout`; then the tips that only the
+/// levels-in-use frames (`in_use`, per device) named (a device outside a run closes no
+/// window, so it sends no tip-health report), with the levels they carry. Every row takes
+/// its `fixed` from `in_use`.
 pub fn rows(
+    reports: &BTreeMap<(u16, u8), TipReport>,
+    rates: &BTreeMap<u16, f32>,
+    in_use: &BTreeMap<u16, LevelsInUse>,
+    layout: &Layout,
+    tolerance: f64,
+) -> Vec<LiveTip> {
+    let mut out = report_rows(reports, rates, layout, tolerance);
+    for (&device, levels) in in_use {
+        for (probe, p) in levels.iter().enumerate() {
+            let probe = probe as u8;
+            if reports.contains_key(&(device, probe)) {
+                continue;
+            }
+            let lp = layout.probes.get(probe as usize);
+            let name = lp.map_or_else(|| format!("p{probe}"), |p| p.name.clone());
+            for (trailing, t) in [(false, Some(&p.leading)), (true, p.trailing.as_ref())] {
+                let Some(t) = t else { continue };
+                let state = TipState {
+                    levels: t.levels,
+                    interfaces: 0,
+                    bubbles: 0,
+                    void_fraction: 0,
+                    flags: 0,
+                };
+                let fixed = lp.and_then(|p| p.tip_levels(trailing));
+                out.push(LiveTip {
+                    device,
+                    probe: name.clone(),
+                    probe_index: probe,
+                    trailing,
+                    levels: t.levels.map(|l| (l.air, l.water)),
+                    swing: t.levels.map(|l| l.swing()),
+                    interfaces_per_s: None,
+                    // No window: nothing to say of switching.
+                    flags: flags_of(&state, 0, fixed, tolerance),
+                    set: None,
+                    fixed: None,
+                });
+            }
+        }
+    }
+    out.sort_by_key(|t| (t.device, t.probe_index, t.trailing));
+    for t in &mut out {
+        t.fixed = in_use
+            .get(&t.device)
+            .and_then(|l| l.get(t.probe_index as usize))
+            .and_then(|p| {
+                if t.trailing {
+                    p.trailing.map(|s| s.fixed)
+                } else {
+                    Some(p.leading.fixed)
+                }
+            });
+    }
+    out
+}
+
+fn report_rows(
     reports: &BTreeMap<(u16, u8), TipReport>,
     rates: &BTreeMap<u16, f32>,
     layout: &Layout,
@@ -121,6 +185,7 @@ pub fn rows(
                 interfaces_per_s: t.interfaces_per_s(r.frames, fs),
                 flags: flags_of(t, r.frames, fixed, tolerance),
                 set: None,
+                fixed: None,
             });
         }
     }
@@ -170,6 +235,10 @@ pub fn run(args: &LiveCheck, port: &str) -> Result<LiveReport, HostError> {
     let stop = Arc::new(AtomicBool::new(false));
     let mut reports: BTreeMap<(u16, u8), TipReport> = BTreeMap::new();
     let mut rates: BTreeMap<u16, f32> = BTreeMap::new();
+    // The latest levels-in-use frame of each device, and whether one came after every
+    // SetLevels was answered (the read-back).
+    let mut in_use: BTreeMap<u16, LevelsInUse> = BTreeMap::new();
+    let mut read_back = false;
     // SetLevels sent: (device, probe, trailing) in order, and their answers in order.
     let mut sent: Vec<(u16, u8, bool)> = Vec::new();
     let mut answers: Vec<Option<NackReason>> = Vec::new();
@@ -191,6 +260,10 @@ pub fn run(args: &LiveCheck, port: &str) -> Result<LiveReport, HostError> {
                         for r in tips {
                             reports.insert((*device, r.probe), *r);
                         }
+                    }
+                    Event::Levels { device, levels, .. } => {
+                        in_use.insert(*device, levels.clone());
+                        read_back |= asked && answers.len() >= sent.len();
                     }
                     Event::Reply {
                         command: Some(Kind::SetLevels),
@@ -221,14 +294,16 @@ pub fn run(args: &LiveCheck, port: &str) -> Result<LiveReport, HostError> {
                         }
                     }
                 }
-                if !args.set_levels || answers.len() >= sent.len() {
+                // With --set-levels, on until the levels in use come back after the last
+                // answer (the device sends them once a SetLevels has taken effect).
+                if !args.set_levels || (answers.len() >= sent.len() && (read_back || sent.is_empty())) {
                     stop2.store(true, Ordering::Relaxed);
                 }
             },
             rx,
         )?;
     }
-    let mut tips = rows(&reports, &rates, &layout, args.tolerance);
+    let mut tips = rows(&reports, &rates, &in_use, &layout, args.tolerance);
     for (k, key) in sent.iter().enumerate() {
         if let Some(t) = tips
             .iter_mut()
@@ -240,6 +315,20 @@ pub fn run(args: &LiveCheck, port: &str) -> Result<LiveReport, HostError> {
                     .copied()
                     .unwrap_or(Some(NackReason::Other(0))),
             );
+            // Read back: an acknowledged SetLevels must show in the levels the device
+            // reported after it, fixed and equal.
+            if t.set == Some(None) {
+                let kept = in_use
+                    .get(&t.device)
+                    .and_then(|l| l.get(t.probe_index as usize))
+                    .and_then(|p| if t.trailing { p.trailing } else { Some(p.leading) });
+                let same = kept.is_some_and(|k| {
+                    k.fixed && k.levels.map(|l| (l.air, l.water)) == t.levels
+                });
+                if !same {
+                    t.flags.push("not_kept");
+                }
+            }
         }
     }
     let undescribed = reports
@@ -268,13 +357,14 @@ pub fn table(r: &LiveReport, port: &str, set: bool) -> String {
     );
     let _ = writeln!(
         o,
-        "{:<12} {:<8} {:>7} {:>7} {:>6} {:>7}  {:<10} flags",
+        "{:<12} {:<8} {:>7} {:>7} {:>6} {:>7} {:<6}  {:<10} flags",
         "probe",
         "tip",
         "air",
         "water",
         "swing",
         "if/s",
+        "levels",
         if set { "set" } else { "" }
     );
     let num = |v: Option<String>| v.unwrap_or_else(|| "-".into());
@@ -286,13 +376,18 @@ pub fn table(r: &LiveReport, port: &str, set: bool) -> String {
         };
         let _ = writeln!(
             o,
-            "{:<12} {:<8} {:>7} {:>7} {:>6} {:>7}  {:<10} {}",
+            "{:<12} {:<8} {:>7} {:>7} {:>6} {:>7} {:<6}  {:<10} {}",
             t.probe,
             if t.trailing { "trailing" } else { "leading" },
             num(t.levels.map(|l| l.0.to_string())),
             num(t.levels.map(|l| l.1.to_string())),
             num(t.swing.map(|s| s.to_string())),
             num(t.interfaces_per_s.map(|x| format!("{x:.0}"))),
+            match t.fixed {
+                Some(true) => "fixed",
+                Some(false) => "learnt",
+                None => "-",
+            },
             set_word,
             if t.flags.is_empty() {
                 "-".to_string()
@@ -304,7 +399,7 @@ pub fn table(r: &LiveReport, port: &str, set: bool) -> String {
     if r.tips.is_empty() {
         let _ = writeln!(
             o,
-            "no tip-health report came: a device sends one after each health frame (about once a second), from the windows of a run; start a run (`frothline watch --port P --start-run LABEL`), listen longer (--listen), or the device's firmware may not send kind 0x09"
+            "no tip-health report and no levels-in-use frame came: a device sends its levels after each description and tip-health reports after each health frame (about once a second) from the windows of a run; start a run (`frothline watch --port P --start-run LABEL`), listen longer (--listen), or the device's firmware may not send kinds 0x09 and 0x0A"
         );
     }
     for d in &r.undescribed {

@@ -27,6 +27,28 @@ pub fn describe_event(e: &Event, ports: &[String]) -> Option<String> {
             desc.firmware.as_str()
         ),
         Event::Window { .. } | Event::Health { .. } | Event::TipHealth { .. } => return None,
+        Event::Levels {
+            port: p,
+            device,
+            levels,
+        } => {
+            let tips = levels
+                .iter()
+                .flat_map(|p| core::iter::once(p.leading).chain(p.trailing));
+            let (mut fixed, mut learnt, mut none) = (0, 0, 0);
+            for t in tips {
+                match (t.levels.is_some(), t.fixed) {
+                    (true, true) => fixed += 1,
+                    (true, false) => learnt += 1,
+                    (false, _) => none += 1,
+                }
+            }
+            format!(
+                "{}: device {device} levels in use: {fixed} tips fixed, {learnt} learnt, \
+                 {none} not learnt yet",
+                port(p)
+            )
+        }
         Event::Front {
             port: p,
             device,

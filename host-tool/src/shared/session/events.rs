@@ -98,6 +98,15 @@ pub enum Event {
         /// The reports.
         tips: frothline_core::wire::TipHealth,
     },
+    /// The levels every tip of a device uses now (kind 0x0A).
+    Levels {
+        /// Port number.
+        port: usize,
+        /// Device id.
+        device: u16,
+        /// Per probe, in the description's order.
+        levels: frothline_core::wire::LevelsInUse,
+    },
     /// A reply to a command: `nack` is `None` for an Ack.
     Reply {
         /// Port number.

@@ -161,6 +161,11 @@ impl Session {
                 self.tip_health(port, device, &tips)?;
                 events.push(Event::TipHealth { port, device, tips });
             }
+            Body::Levels(levels) => events.push(Event::Levels {
+                port,
+                device,
+                levels,
+            }),
             Body::Ack(a) => self.reply(port, device, a.seq, None, events),
             Body::Nack(n) => self.reply(port, device, n.seq, Some(n.reason), events),
             _ => events.push(Event::Stray { port, device, kind }),
