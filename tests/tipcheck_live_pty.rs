@@ -157,7 +157,11 @@ fn outside_a_run() {
             .tip_levels(t.trailing)
             .expect("written by tipcheck --write");
         let (a, w) = t.levels.expect("levels in use");
-        assert_eq!((a, w), (fx.air.round() as i16, fx.water.round() as i16), "{t:?}");
+        assert_eq!(
+            (a, w),
+            (fx.air.round() as i16, fx.water.round() as i16),
+            "{t:?}"
+        );
         assert_eq!(t.fixed, Some(true), "{t:?}");
         assert_eq!(t.interfaces_per_s, None, "no window outside a run: {t:?}");
         assert!(t.flags.is_empty(), "{t:?}");

@@ -296,7 +296,9 @@ pub fn run(args: &LiveCheck, port: &str) -> Result<LiveReport, HostError> {
                 }
                 // With --set-levels, on until the levels in use come back after the last
                 // answer (the device sends them once a SetLevels has taken effect).
-                if !args.set_levels || (answers.len() >= sent.len() && (read_back || sent.is_empty())) {
+                if !args.set_levels
+                    || (answers.len() >= sent.len() && (read_back || sent.is_empty()))
+                {
                     stop2.store(true, Ordering::Relaxed);
                 }
             },
@@ -321,10 +323,15 @@ pub fn run(args: &LiveCheck, port: &str) -> Result<LiveReport, HostError> {
                 let kept = in_use
                     .get(&t.device)
                     .and_then(|l| l.get(t.probe_index as usize))
-                    .and_then(|p| if t.trailing { p.trailing } else { Some(p.leading) });
-                let same = kept.is_some_and(|k| {
-                    k.fixed && k.levels.map(|l| (l.air, l.water)) == t.levels
-                });
+                    .and_then(|p| {
+                        if t.trailing {
+                            p.trailing
+                        } else {
+                            Some(p.leading)
+                        }
+                    });
+                let same =
+                    kept.is_some_and(|k| k.fixed && k.levels.map(|l| (l.air, l.water)) == t.levels);
                 if !same {
                     t.flags.push("not_kept");
                 }
