@@ -135,3 +135,34 @@ fn transient_fixture_matches_its_truth_and_the_contract() {
     assert!(!run.profile.is_empty() && !run.fronts.is_empty());
     assert!(run.indicators.as_ref().and_then(|i| i.reynolds()).is_some());
 }
+
+/// The library's `replay::run` keeps every window record of a transient replay in its report
+/// (the firmware's expected digest is made from them), one per row of the windows.csv it
+/// writes; the command line keeps none (memory flat in the capture's length).
+#[test]
+fn a_library_transient_replay_keeps_its_records() {
+    use frothline_host::offline::replay::{self, Keep};
+    use frothline_host::offline::replay_common::ReplayArgs;
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/surge-b2");
+    let dir = tempfile::tempdir().unwrap();
+    let args = ReplayArgs {
+        capture: root.join("capture.wav"),
+        layout: root.join("layout.toml"),
+        out: dir.path().join("out"),
+        window: "50ms".parse().unwrap(),
+        quiet: true,
+        strict: false,
+        levels: Default::default(),
+    };
+    let report = replay::run(&args).unwrap();
+    let rows = std::fs::read_to_string(dir.path().join("out/windows.csv"))
+        .unwrap()
+        .lines()
+        .count()
+        - 1;
+    assert!(rows > 0);
+    assert_eq!(report.records.len(), rows);
+    let totals_only = replay::run_with(&args, Keep::TotalsOnly).unwrap();
+    assert!(totals_only.records.is_empty());
+    assert_eq!(totals_only.totals.records, rows as u64);
+}

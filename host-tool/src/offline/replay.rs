@@ -352,7 +352,7 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     // Transient layouts (surge fronts): one station chain per station, front-relative
     // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::offline::transient`).
     if crate::offline::transient::is_transient(&Layout::load(&args.layout)?) {
-        return crate::offline::transient::run(args).map(|(_, report)| report);
+        return crate::offline::transient::run_with(args, keep).map(|(_, report)| report);
     }
     let (mut cap, layout, mut chain) = open_rig(&args.capture, &args.layout, args.window.clone())?;
     let mut learnt = None;

@@ -28,7 +28,7 @@ pub use crate::shared::stations::{
 };
 pub use crate::shared::transient_columns::{FRONT_COLUMNS, PROFILE_COLUMNS, STATION_COLUMNS};
 
-use crate::offline::replay_common::{self as common, ReplayArgs, ReplayReport};
+use crate::offline::replay_common::{self as common, Keep, ReplayArgs, ReplayReport};
 use crate::shared::capture::Capture;
 use crate::shared::error::HostError;
 use crate::shared::layout::Layout;
@@ -468,11 +468,20 @@ fn with_big_stack<T: Send>(f: impl FnOnce() -> T + Send) -> T {
     })
 }
 
-/// `frothline replay` of a transient layout: replay, write the files, print the summary.
+/// `frothline replay` of a transient layout: replay, write the files, print the summary;
+/// the report keeps every window record ([`run_with`] with [`Keep::TotalsOnly`] keeps
+/// none, so memory stays flat).
 pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError> {
+    run_with(args, Keep::Records)
+}
+
+/// [`run`], keeping the window records in the report or not (`keep`).
+pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<(TransientRun, ReplayReport), HostError> {
     let (run, mut stored, cap) =
         replay_capture_stored(&args.capture, &args.layout, &args.window, args.levels)?;
     let (abrupt, last) = (cap.ends_abruptly(), cap.position());
+    let mut records = Vec::new();
+    let kept = &mut records;
     let mut profiles = stored
         .profiles
         .sorted()
@@ -481,6 +490,9 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
     let mut windows = stored.windows.sorted().map_err(spill_error)?.map(|w| {
         w.map_err(spill_error).map(|mut w| {
             common::mark_cut(&mut w, abrupt, last);
+            if keep == Keep::Records {
+                kept.push(w.clone());
+            }
             w
         })
     });
@@ -520,9 +532,9 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
         layout: run.layout.clone(),
         sample_rate: run.sample_rate,
         frames: run.frames,
-        // The records stayed in the store (the command line keeps totals only, as a steady
-        // replay does).
-        records: Vec::new(),
+        // Empty unless asked for (the command line keeps totals only, as a steady replay
+        // does).
+        records,
         totals: counts.totals,
         tallies: counts.tallies,
         windows_csv: files.windows.clone(),
