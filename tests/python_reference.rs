@@ -91,6 +91,25 @@ fn probe_levels_json(p: &frothline_core::wire::ProbeLevels) -> Value {
     })
 }
 
+fn extras_json(x: &frothline_core::wire::WindowExtras) -> Value {
+    let levels = |l: Option<frothline_core::wire::TipLevels>| {
+        l.map(|l| json!({"air": l.air, "water": l.water}))
+    };
+    json!({
+        "droplet_chord_mean": x.droplet_chord_mean,
+        "trailing": x.trailing.map(|t| json!({
+            "void_fraction": t.void_fraction, "bubble_rate": t.bubble_rate,
+        })),
+        "levels": levels(x.levels),
+        "trailing_levels": levels(x.trailing_levels),
+        "correlation": x.correlation.map(|c| json!({
+            "transit": c.transit, "secondary_peak_ratio": c.secondary_peak_ratio,
+            "t05": c.t05, "tau05": c.tau05,
+            "auto_integral": c.auto_integral, "cross_integral": c.cross_integral,
+        })),
+    })
+}
+
 /// The Rust verdict on one frame (`frame` = its bytes with the delimiter).
 fn case(frame: &[u8]) -> Value {
     let mut dec: Decoder = Decoder::new();
@@ -107,6 +126,13 @@ fn case(frame: &[u8]) -> Value {
             }
             if let Body::TipHealth(ts) = &frame.body {
                 v["tips"] = Value::Array(ts.iter().map(tip_report_json).collect());
+            }
+            if let Body::FullWindows(fs) = &frame.body {
+                v["full"] = Value::Array(
+                    fs.iter()
+                        .map(|f| json!({"result": window_json(&f.result), "extras": extras_json(&f.extras)}))
+                        .collect(),
+                );
             }
             if let Body::Levels(ls) = &frame.body {
                 v["levels"] = Value::Array(ls.iter().map(probe_levels_json).collect());

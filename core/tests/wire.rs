@@ -6,12 +6,14 @@
 //! (`WIRE_SOAK_INPUTS` sets the number of inputs, default 1 000 000).
 
 use frothline_core::wire::{
-    self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, Decoder,
-    DeviceDescription, FeedResult, Frame, FrontArrival, Health, Kind, LevelsInUse, LogChunk, Nack,
-    NackReason, ProbeLayout, ProbeLevels, ProfileFit, ReadLog, Relearn, RunStart, SeqCheck,
-    SetClock, SetLevels, StartRun, Streamer, StreamerConfig, TipHealth, TipLevels, TipReport,
-    TipSetting, TipState, TrailingTip, WindowResult, WindowSetting, Windows, LABEL_BYTES,
-    MAX_FRAME_BYTES, MAX_PROBES, MAX_TIPS_PER_FRAME, MAX_WINDOWS_PER_FRAME,
+    self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, CorrelationTimes,
+    Decoder, DeviceDescription, FeedResult, Frame, FrontArrival, FullWindow, FullWindows, Health,
+    Kind, LevelsInUse, LogChunk, Nack, NackReason, ProbeLayout, ProbeLevels, ProfileFit, ReadLog,
+    Relearn, RunStart, SeqCheck, SetClock, SetExtras, SetLevels, StartRun, Streamer,
+    StreamerConfig, TipHealth, TipLevels, TipReport, TipSetting, TipState, TrailingTip,
+    TrailingWindow, WindowExtras, WindowResult, WindowSetting, Windows, LABEL_BYTES,
+    MAX_FRAME_BYTES, MAX_FULL_WINDOWS_PER_FRAME, MAX_PROBES, MAX_TIPS_PER_FRAME,
+    MAX_WINDOWS_PER_FRAME,
 };
 use proptest::prelude::*;
 use rand::rngs::StdRng;
@@ -174,7 +176,7 @@ fn sample_frames() -> Vec<Frame> {
                 probes,
             }),
         ),
-        dev(301, Body::Windows(one)),
+        dev(301, Body::Windows(one.clone())),
         dev(
             302,
             Body::Front(FrontArrival {
@@ -301,7 +303,56 @@ fn sample_frames() -> Vec<Frame> {
         ),
         dev(308, Body::TipHealth(sample_tip_health())),
         dev(309, Body::Levels(sample_levels())),
+        dev(310, Body::FullWindows(sample_full_windows(&one))),
+        host(9, Body::SetExtras(SetExtras { on: true })),
     ]
+}
+
+/// The two results of the sample Windows frame with their extras: the dual-tip probe's
+/// droplet chord 900 µs, trailing C 0.24 and F 98 Hz, both tips' levels, and its
+/// correlation's time scales (T 2400 µs, secondary peak 0.31, T0.5 300 µs, τ0.5 700 µs,
+/// integral times 650 and 280 µs); the single-tip probe's learnt levels only.
+fn sample_full_windows(ws: &Windows) -> FullWindows {
+    let mut v = FullWindows::new();
+    v.push(FullWindow {
+        result: ws[0],
+        extras: WindowExtras {
+            droplet_chord_mean: Some(900),
+            trailing: Some(TrailingWindow {
+                void_fraction: 2400,
+                bubble_rate: 9_800,
+            }),
+            levels: Some(TipLevels {
+                air: 25_100,
+                water: -3_000,
+            }),
+            trailing_levels: Some(TipLevels {
+                air: 24_000,
+                water: -2_500,
+            }),
+            correlation: Some(CorrelationTimes {
+                transit: Some(2_400),
+                secondary_peak_ratio: Some(3_100),
+                t05: Some(300),
+                tau05: Some(700),
+                auto_integral: Some(650),
+                cross_integral: Some(280),
+            }),
+        },
+    })
+    .unwrap();
+    v.push(FullWindow {
+        result: ws[1],
+        extras: WindowExtras {
+            levels: Some(TipLevels {
+                air: 30_000,
+                water: 1_000,
+            }),
+            ..Default::default()
+        },
+    })
+    .unwrap();
+    v
 }
 
 /// Levels in use of two probes: a dual-tip probe whose leading tip has fixed levels
@@ -507,6 +558,36 @@ fn largest_frames() -> Vec<Frame> {
             reason: NackReason::Other(u8::MAX),
         })),
         f(Body::SetClock(SetClock { utc_ms: u64::MAX })),
+        f(Body::SetExtras(SetExtras { on: true })),
+        f(Body::FullWindows({
+            let levels = Some(TipLevels {
+                air: i16::MIN,
+                water: i16::MIN,
+            });
+            let extras = WindowExtras {
+                droplet_chord_mean: Some(u32::MAX),
+                trailing: Some(TrailingWindow {
+                    void_fraction: u16::MAX,
+                    bubble_rate: u32::MAX,
+                }),
+                levels,
+                trailing_levels: levels,
+                correlation: Some(CorrelationTimes {
+                    transit: Some(u32::MAX),
+                    secondary_peak_ratio: Some(u16::MAX),
+                    t05: Some(u32::MAX),
+                    tau05: Some(u32::MAX),
+                    auto_integral: Some(u32::MAX),
+                    cross_integral: Some(u32::MAX),
+                }),
+            };
+            (0..MAX_FULL_WINDOWS_PER_FRAME)
+                .map(|_| FullWindow {
+                    result: win,
+                    extras,
+                })
+                .collect()
+        })),
         f(Body::ReadLog(ReadLog { offset: u32::MAX })),
         f(Body::LogChunk(LogChunk {
             offset: u32::MAX,
@@ -742,6 +823,19 @@ fn golden_levels_by_hand() {
             0x27, 0x00, 0x00, 0x00, 0x00
         ]
     );
+}
+
+/// SetExtras { on } from the host, seq 9, worked by hand from docs/wire-protocol.md: the
+/// body is one bool byte, 01.
+#[test]
+fn golden_set_extras_by_hand() {
+    let f = sample_frames()
+        .into_iter()
+        .find(|f| f.body.kind() == Kind::SetExtras)
+        .unwrap();
+    let (version, device, kind, seq, body) = ref_parse(&enc(&f));
+    assert_eq!((version, device, kind, seq), (2, 0xFFFF, 0x28, 9));
+    assert_eq!(body, [0x01]);
 }
 
 /// SetClock { utc_ms 1 700 000 000 123 } from the host, seq 7, worked by hand from

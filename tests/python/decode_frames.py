@@ -206,6 +206,24 @@ def tip_report(c):
             "leading": tip_state(c), "trailing": c.opt(lambda: tip_state(c))}
 
 
+def window_extras(c):
+    levels = lambda: c.opt(lambda: {"air": c.svar(16), "water": c.svar(16)})
+    return {
+        "droplet_chord_mean": c.opt(lambda: u32(c)),
+        "trailing": c.opt(lambda: {"void_fraction": u16(c), "bubble_rate": u32(c)}),
+        "levels": levels(),
+        "trailing_levels": levels(),
+        "correlation": c.opt(lambda: {
+            "transit": c.opt(lambda: u32(c)),
+            "secondary_peak_ratio": c.opt(lambda: u16(c)),
+            "t05": c.opt(lambda: u32(c)),
+            "tau05": c.opt(lambda: u32(c)),
+            "auto_integral": c.opt(lambda: u32(c)),
+            "cross_integral": c.opt(lambda: u32(c)),
+        }),
+    }
+
+
 def tip_setting(c):
     levels = c.opt(lambda: {"air": c.svar(16), "water": c.svar(16)})
     fixed = c.byte()
@@ -220,6 +238,13 @@ def probe_levels(c):
 
 def empty(c):
     return None
+
+
+def set_extras(c):
+    on = c.byte()
+    if on > 1:
+        raise ValueError("bad bool")
+    return {"on": on == 1}
 
 
 def set_levels(c):
@@ -243,6 +268,8 @@ KINDS = {
     0x08: ("derived", lambda c: c.seq(lambda: derived_result(c), 8)),
     0x09: ("tip_health", lambda c: c.seq(lambda: tip_report(c), 6)),
     0x0A: ("levels", lambda c: c.seq(lambda: probe_levels(c), 16)),
+    0x0B: ("full_windows", lambda c: c.seq(
+        lambda: {"result": window_result(c), "extras": window_extras(c)}, 4)),
     0x20: ("start_run", lambda c: {"label": c.text(16), "utc_ms": c.opt(lambda: u64(c))}),
     0x21: ("stop_run", empty),
     0x22: ("set_window", window_setting),
@@ -251,6 +278,7 @@ KINDS = {
     0x25: ("set_clock", lambda c: {"utc_ms": u64(c)}),
     0x26: ("set_levels", set_levels),
     0x27: ("read_log", lambda c: {"offset": u32(c)}),
+    0x28: ("set_extras", set_extras),
     0x30: ("ack", lambda c: {"seq": u16(c)}),
     0x31: ("nack", lambda c: {"seq": u16(c), "reason": c.byte()}),
 }

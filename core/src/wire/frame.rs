@@ -82,6 +82,9 @@ pub enum Kind {
     /// [`LevelsInUse`](crate::wire::LevelsInUse): every tip's levels now, fixed or learnt
     /// (after each description, SetLevels and Relearn).
     Levels = 0x0A,
+    /// [`FullWindows`](crate::wire::FullWindows): window results with the figures kind
+    /// 0x02 leaves out (after a SetExtras).
+    FullWindows = 0x0B,
     /// Command [`StartRun`].
     StartRun = 0x20,
     /// Command: stop the run (no body).
@@ -98,6 +101,8 @@ pub enum Kind {
     SetLevels = 0x26,
     /// Command [`ReadLog`]: send a chunk of the field log region.
     ReadLog = 0x27,
+    /// Command [`SetExtras`]: send window results as full windows (kind 0x0B), or not.
+    SetExtras = 0x28,
     /// Reply [`Ack`]: a command was carried out.
     Ack = 0x30,
     /// Reply [`Nack`]: a command was refused.
@@ -106,7 +111,7 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 20] = [
+    pub const ALL: [Kind; 22] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
@@ -117,6 +122,7 @@ impl Kind {
         Kind::Derived,
         Kind::TipHealth,
         Kind::Levels,
+        Kind::FullWindows,
         Kind::StartRun,
         Kind::StopRun,
         Kind::SetWindow,
@@ -125,6 +131,7 @@ impl Kind {
         Kind::SetClock,
         Kind::SetLevels,
         Kind::ReadLog,
+        Kind::SetExtras,
         Kind::Ack,
         Kind::Nack,
     ];
@@ -147,6 +154,7 @@ impl Kind {
             0x08 => Kind::Derived,
             0x09 => Kind::TipHealth,
             0x0A => Kind::Levels,
+            0x0B => Kind::FullWindows,
             0x20 => Kind::StartRun,
             0x21 => Kind::StopRun,
             0x22 => Kind::SetWindow,
@@ -155,6 +163,7 @@ impl Kind {
             0x25 => Kind::SetClock,
             0x26 => Kind::SetLevels,
             0x27 => Kind::ReadLog,
+            0x28 => Kind::SetExtras,
             0x30 => Kind::Ack,
             0x31 => Kind::Nack,
             _ => return None,
@@ -234,6 +243,9 @@ pub enum Body {
     TipHealth(TipHealth),
     /// The levels every tip uses now.
     Levels(crate::wire::LevelsInUse),
+    /// Window results with their extras (1 to
+    /// [`MAX_FULL_WINDOWS_PER_FRAME`](crate::wire::MAX_FULL_WINDOWS_PER_FRAME)).
+    FullWindows(crate::wire::FullWindows),
     /// Command: start a run.
     StartRun(StartRun),
     /// Command: stop the run.
@@ -250,6 +262,8 @@ pub enum Body {
     SetLevels(SetLevels),
     /// Command: read a chunk of the field log region.
     ReadLog(ReadLog),
+    /// Command: full windows on or off.
+    SetExtras(SetExtras),
     /// Reply: command done.
     Ack(Ack),
     /// Reply: command refused.
@@ -270,6 +284,7 @@ impl Body {
             Body::Derived(_) => Kind::Derived,
             Body::TipHealth(_) => Kind::TipHealth,
             Body::Levels(_) => Kind::Levels,
+            Body::FullWindows(_) => Kind::FullWindows,
             Body::StartRun(_) => Kind::StartRun,
             Body::StopRun => Kind::StopRun,
             Body::SetWindow(_) => Kind::SetWindow,
@@ -278,6 +293,7 @@ impl Body {
             Body::SetClock(_) => Kind::SetClock,
             Body::SetLevels(_) => Kind::SetLevels,
             Body::ReadLog(_) => Kind::ReadLog,
+            Body::SetExtras(_) => Kind::SetExtras,
             Body::Ack(_) => Kind::Ack,
             Body::Nack(_) => Kind::Nack,
         }
@@ -618,6 +634,16 @@ pub struct LogChunk {
 pub struct SetClock {
     /// The host's UTC now, ms since 1970-01-01T00:00:00Z.
     pub utc_ms: u64,
+}
+
+/// Kind 0x28: send window results as full windows (kind 0x0B, with the figures kind 0x02
+/// leaves out) from the next window result on, or (`on` false) as kind 0x02 again. Not
+/// stored: a device starts without them at power-on.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct SetExtras {
+    /// Full windows on.
+    pub on: bool,
 }
 
 /// Kind 0x26: fix the air and water levels of one tip, in ADC counts, from the next frame

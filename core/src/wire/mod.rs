@@ -29,6 +29,7 @@ pub mod codec;
 pub mod decoder;
 pub mod derived_frame;
 pub mod frame;
+pub mod full_windows;
 pub mod levels_in_use;
 pub mod quant;
 pub mod responder;
@@ -41,8 +42,12 @@ pub use derived_frame::{ChordLengths, DerivedBatch, DerivedResult};
 pub use frame::{
     Ack, Body, ChordTimes, Correlation, DeviceDescription, Frame, FrontArrival, Header, Health,
     Kind, LogChunk, Nack, NackReason, ProbeLayout, ProfileFit, ReadLog, Relearn, RunStart,
-    SetClock, SetLevels, StartRun, TrailingTip, WindowResult, WindowSetting, Windows,
+    SetClock, SetExtras, SetLevels, StartRun, TrailingTip, WindowResult, WindowSetting, Windows,
     LOG_CHUNK_BYTES, PROFILE_ESTIMATES,
+};
+pub use full_windows::{
+    CorrelationTimes, FullWindow, FullWindows, TrailingWindow, WindowExtras,
+    MAX_FULL_WINDOWS_PER_FRAME,
 };
 pub use levels_in_use::{levels_in_use, levels_of_config, LevelsInUse, ProbeLevels, TipSetting};
 pub use responder::{Command, CommandTarget, Reply, Responder, ResponderStats};
@@ -92,6 +97,8 @@ pub const MAX_BODY_BYTES: usize = {
     m = max(m, DerivedBatch::POSTCARD_MAX_SIZE);
     m = max(m, TipHealth::POSTCARD_MAX_SIZE);
     m = max(m, LevelsInUse::POSTCARD_MAX_SIZE);
+    m = max(m, FullWindows::POSTCARD_MAX_SIZE);
+    m = max(m, SetExtras::POSTCARD_MAX_SIZE);
     m = max(m, StartRun::POSTCARD_MAX_SIZE);
     m = max(m, WindowSetting::POSTCARD_MAX_SIZE);
     m = max(m, Relearn::POSTCARD_MAX_SIZE);

@@ -40,6 +40,7 @@ pub const COMMAND_FRAME_BYTES: usize = {
     body = max(body, WindowSetting::POSTCARD_MAX_SIZE);
     body = max(body, Relearn::POSTCARD_MAX_SIZE);
     body = max(body, SetClock::POSTCARD_MAX_SIZE);
+    body = max(body, crate::wire::SetExtras::POSTCARD_MAX_SIZE);
     body = max(body, SetLevels::POSTCARD_MAX_SIZE);
     body = max(body, ReadLog::POSTCARD_MAX_SIZE);
     cobs_max_encoded(Header::POSTCARD_MAX_SIZE + body + CRC_BYTES) + 1
@@ -65,6 +66,8 @@ pub enum Command {
     SetLevels(SetLevels),
     /// 0x27: send a chunk of the field log region.
     ReadLog(ReadLog),
+    /// 0x28: full windows (kind 0x0B) on or off.
+    SetExtras(bool),
 }
 
 /// What a device does for each command. The [`Responder`] has already applied the rules
@@ -102,6 +105,13 @@ pub trait CommandTarget {
     /// carry out.
     fn read_log(&mut self, offset: u32) -> Result<(), NackReason> {
         let _ = offset;
+        Err(NackReason::UnknownCommand)
+    }
+    /// Send window results as full windows (kind 0x0B) from the next one on, or (`on`
+    /// false) as kind 0x02 again. A device that cannot refuses it as a command it does not
+    /// carry out (the host keeps reading kind 0x02).
+    fn set_extras(&mut self, on: bool) -> Result<(), NackReason> {
+        let _ = on;
         Err(NackReason::UnknownCommand)
     }
 }
@@ -298,6 +308,10 @@ impl Responder {
                 Command::Relearn(exact(body).map_err(|_| NackReason::Malformed)?)
             }
             Some(Kind::DescribeRequest) => empty(body, Command::DescribeRequest)?,
+            Some(Kind::SetExtras) => {
+                let e: crate::wire::SetExtras = exact(body).map_err(|_| NackReason::Malformed)?;
+                Command::SetExtras(e.on)
+            }
             Some(Kind::SetClock) => {
                 Command::SetClock(exact(body).map_err(|_| NackReason::Malformed)?)
             }
@@ -322,6 +336,7 @@ impl Responder {
             Command::Relearn(r) => target.relearn(r.probes),
             Command::DescribeRequest => target.describe(),
             Command::SetClock(c) => target.set_clock(c.utc_ms),
+            Command::SetExtras(on) => target.set_extras(on),
             Command::SetLevels(l) => target.set_levels(&l),
             Command::ReadLog(r) => target.read_log(r.offset),
         }

@@ -7,6 +7,7 @@
 //!                health slot (latest wins; counters are cumulative)  |        |
 //!                tip book (latest report per probe; after health)    |        |
 //!                window queue (Q results; full -> drop the oldest)  -+        v
+//!                (with X >= Q: their extras, for full windows, kind 0x0B)
 //! poll(now, room) -> at most min(credit, room) bytes of the frame in tx
 //! ```
 //!
@@ -131,6 +132,7 @@ enum Urgent {
     SetClock(SetClock),
     SetLevels(SetLevels),
     ReadLog(ReadLog),
+    SetExtras(crate::wire::SetExtras),
     LogChunk(LogChunk),
     Ack(Ack),
     Nack(Nack),
@@ -150,6 +152,7 @@ impl Urgent {
             Urgent::SetClock(b) => Body::SetClock(b),
             Urgent::SetLevels(b) => Body::SetLevels(b),
             Urgent::ReadLog(b) => Body::ReadLog(b),
+            Urgent::SetExtras(b) => Body::SetExtras(b),
             Urgent::LogChunk(b) => Body::LogChunk(b),
             Urgent::Ack(b) => Body::Ack(b),
             Urgent::Nack(b) => Body::Nack(b),
@@ -160,10 +163,19 @@ impl Urgent {
 /// A streamer with a queue of `Q` window results, `P` urgent frames and the tip health of
 /// `T` probes.
 #[derive(Clone, Debug)]
-pub struct Streamer<const Q: usize, const P: usize = 8, const T: usize = MAX_PROBES> {
+pub struct Streamer<
+    const Q: usize,
+    const P: usize = 8,
+    const T: usize = MAX_PROBES,
+    const X: usize = 1,
+> {
     cfg: StreamerConfig,
     seq: u16,
     windows: Deque<WindowResult, Q>,
+    /// The extras of the newest `extras.len()` queued window results (full windows on).
+    extras: Deque<crate::wire::WindowExtras, X>,
+    /// Full windows (kind 0x0B) on: window results are offered with their extras.
+    extras_on: bool,
     derived: Deque<DerivedResult, Q>,
     urgent: Deque<Urgent, P>,
     describe: Option<DeviceDescription>,
@@ -180,7 +192,7 @@ pub struct Streamer<const Q: usize, const P: usize = 8, const T: usize = MAX_PRO
     stats: StreamerStats,
 }
 
-impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
+impl<const Q: usize, const P: usize, const T: usize, const X: usize> Streamer<Q, P, T, X> {
     /// A streamer whose first frame has sequence number 0.
     pub fn new(cfg: StreamerConfig) -> Self {
         const { assert!(Q > 0, "the window queue needs room for one result") };
@@ -189,6 +201,8 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             cfg,
             seq: 0,
             windows: Deque::new(),
+            extras: Deque::new(),
+            extras_on: false,
             derived: Deque::new(),
             urgent: Deque::new(),
             describe: None,
@@ -212,6 +226,17 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
                 let mut dropped = 0u16;
                 for w in ws {
                     dropped = dropped.saturating_add(self.offer_window(w) as u16);
+                }
+                return if dropped > 0 {
+                    Offer::DroppedOldest(dropped)
+                } else {
+                    Offer::Queued
+                };
+            }
+            Body::FullWindows(fs) => {
+                let mut dropped = 0u16;
+                for f in fs {
+                    dropped = dropped.saturating_add(self.offer_full(f.result, f.extras) as u16);
                 }
                 return if dropped > 0 {
                     Offer::DroppedOldest(dropped)
@@ -250,6 +275,7 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             Body::SetClock(b) => Urgent::SetClock(b),
             Body::SetLevels(b) => Urgent::SetLevels(b),
             Body::ReadLog(b) => Urgent::ReadLog(b),
+            Body::SetExtras(b) => Urgent::SetExtras(b),
             Body::LogChunk(b) => Urgent::LogChunk(b),
             Body::Ack(b) => Urgent::Ack(b),
             Body::Nack(b) => Urgent::Nack(b),
@@ -279,11 +305,45 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
     pub fn offer_window(&mut self, w: WindowResult) -> bool {
         let dropped = self.windows.is_full();
         if dropped {
+            // The oldest result has extras only if every queued one has.
+            if self.extras.len() >= self.windows.len() {
+                self.extras.pop_front();
+            }
             self.windows.pop_front();
             self.stats.windows_dropped = self.stats.windows_dropped.saturating_add(1);
         }
         // Cannot fail: room was made.
         let _ = self.windows.push_back(w);
+        dropped
+    }
+
+    /// Turn full windows (kind 0x0B) on or off; false (and off) if this streamer keeps no
+    /// extras (`X` below `Q`: then every queued result could not keep its extras). Results
+    /// queued before it was turned on go out as kind 0x02 first; turning it off sends the
+    /// queued ones as kind 0x02.
+    pub fn set_extras(&mut self, on: bool) -> bool {
+        self.extras_on = on && X >= Q;
+        if !self.extras_on {
+            self.extras.clear();
+        }
+        self.extras_on == on
+    }
+
+    /// True while full windows are on.
+    pub fn extras_on(&self) -> bool {
+        self.extras_on
+    }
+
+    /// Queue a window result with its extras (sent as a full window while full windows are
+    /// on, else as a plain result); returns true if the oldest queued result was dropped.
+    pub fn offer_full(&mut self, w: WindowResult, x: crate::wire::WindowExtras) -> bool {
+        let dropped = self.offer_window(w);
+        if self.extras_on {
+            if self.extras.is_full() {
+                self.extras.pop_front();
+            }
+            let _ = self.extras.push_back(x);
+        }
         dropped
     }
 
@@ -433,9 +493,24 @@ impl<const Q: usize, const P: usize, const T: usize> Streamer<Q, P, T> {
             Body::Health(h)
         } else if let Some(v) = self.next_tips() {
             Body::TipHealth(v)
+        } else if !self.extras.is_empty() && self.extras.len() >= self.windows.len() {
+            // Every queued result has its extras: full windows.
+            let mut fs = crate::wire::FullWindows::new();
+            while !fs.is_full() {
+                match (self.windows.pop_front(), self.extras.pop_front()) {
+                    (Some(result), Some(extras)) => {
+                        let _ = fs.push(crate::wire::FullWindow { result, extras });
+                    }
+                    _ => break,
+                }
+            }
+            self.stats.windows_sent = self.stats.windows_sent.saturating_add(fs.len() as u64);
+            Body::FullWindows(fs)
         } else if !self.windows.is_empty() {
+            // The oldest results, queued before full windows were on, go as kind 0x02.
+            let plain = self.windows.len() - self.extras.len().min(self.windows.len());
             let mut ws = Windows::new();
-            while ws.len() < MAX_WINDOWS_PER_FRAME {
+            while ws.len() < MAX_WINDOWS_PER_FRAME.min(plain.max(1)) {
                 match self.windows.pop_front() {
                     Some(w) => {
                         let _ = ws.push(w);
