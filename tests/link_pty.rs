@@ -94,10 +94,17 @@ fn sim_opts(speed: f64) -> SimOptions {
 
 #[test]
 fn device_to_host_over_a_pty_equals_replay_record_for_record() {
-    big_stack(equal_to_replay);
+    big_stack(|| equal_to_replay(false));
 }
 
-fn equal_to_replay() {
+/// With `--extras` (SetExtras, kind 0x0B full windows) the live windows.csv also holds the
+/// columns a window result leaves out, equal to replay's to the wire's resolution.
+#[test]
+fn full_windows_fill_the_columns_replay_writes() {
+    big_stack(|| equal_to_replay(true));
+}
+
+fn equal_to_replay(extras: bool) {
     let tmp = tempfile::tempdir().unwrap();
     let (records, expected, fs) = replay_wire(&tmp.path().join("replay"));
     let (capture, layout) = fixture();
@@ -120,7 +127,14 @@ fn equal_to_replay() {
         layout_text: std::fs::read_to_string(&layout).ok(),
         ui: Ui::Silent,
         duration: Some(Duration::from_secs(60)),
-        startup: vec![Startup::Now(Command::StartRun("e2e".into()))],
+        startup: if extras {
+            vec![
+                Startup::Now(Command::SetExtras(true)),
+                Startup::Now(Command::StartRun("e2e".into())),
+            ]
+        } else {
+            vec![Startup::Now(Command::StartRun("e2e".into()))]
+        },
         view: Default::default(),
         wait_for_port: false,
     };
@@ -200,12 +214,13 @@ fn equal_to_replay() {
     compare_with_replay_csv(
         &live.join("windows.csv"),
         &tmp.path().join("replay/windows.csv"),
+        extras,
     );
 }
 
 /// The live windows.csv against replay's, column by column, to the wire's resolution (half
 /// a step of its unit); cells the wire does not carry are empty in the live file.
-fn compare_with_replay_csv(live: &Path, replay: &Path) {
+fn compare_with_replay_csv(live: &Path, replay: &Path, extras: bool) {
     let read = |p: &Path| {
         let mut r = csv::Reader::from_path(p).unwrap();
         let head: Vec<String> = r.headers().unwrap().iter().map(String::from).collect();
@@ -232,7 +247,7 @@ fn compare_with_replay_csv(live: &Path, replay: &Path) {
         "elevation_mm",
         "x_mm",
     ];
-    let close = [
+    let mut close = vec![
         ("void_fraction", 0.5e-4),
         ("bubble_count_rate_hz", 0.5e-2),
         ("bubble_chord_mean_s", 0.5e-6),
@@ -240,12 +255,31 @@ fn compare_with_replay_csv(live: &Path, replay: &Path) {
         ("interfacial_velocity_m_s", 0.5e-3),
         ("correlation_peak", 0.5e-4),
         ("turbulence_intensity", 0.5e-4),
+        // From the quantised Tu: the correction's slope (about 1) times half a step.
+        ("turbulence_intensity_skew_corrected", 1.5e-4),
     ];
+    if extras {
+        close.extend([
+            ("droplet_chord_mean_s", 0.5e-6),
+            ("trailing_void_fraction", 0.5e-4),
+            ("trailing_bubble_count_rate_hz", 0.5e-2),
+            ("air_level_counts", 0.5),
+            ("water_level_counts", 0.5),
+            ("trailing_air_level_counts", 0.5),
+            ("trailing_water_level_counts", 0.5),
+            ("transit_time_s", 0.5e-6),
+            ("secondary_peak_ratio", 0.5e-4),
+            ("t05_s", 0.5e-6),
+            ("tau05_s", 0.5e-6),
+            ("auto_integral_time_s", 0.5e-6),
+            ("cross_integral_time_s", 0.5e-6),
+        ]);
+    }
     // The live transit time is s / V from the sent velocity: relative to V's resolution.
     let transit = col("transit_time_s");
     for (i, (l, r)) in live.iter().zip(&replay).enumerate() {
         let v = &r[col("interfacial_velocity_m_s")];
-        if !v.is_empty() {
+        if !v.is_empty() && !extras {
             let (a, b): (f64, f64) = (l[transit].parse().unwrap(), r[transit].parse().unwrap());
             let v: f64 = v.parse().unwrap();
             // dT/T = dV/V, with dV half a step of 1 mm/s.
@@ -257,7 +291,7 @@ fn compare_with_replay_csv(live: &Path, replay: &Path) {
         for name in exact {
             assert_eq!(l[col(name)], r[col(name)], "row {i} {name}");
         }
-        for (name, tol) in close {
+        for &(name, tol) in &close {
             let (a, b) = (&l[col(name)], &r[col(name)]);
             assert_eq!(a.is_empty(), b.is_empty(), "row {i} {name}: {a:?} vs {b:?}");
             if !a.is_empty() {

@@ -10,6 +10,9 @@
 //! formats:
 //! - [`frame`]: the header, the frame kinds and every body type, defined once here and shared
 //!   by firmware and host;
+//! - [`tip_health`], [`levels_in_use`], [`full_windows`], `derived_frame`: the bodies of the
+//!   kinds added within version 2 (tip health, levels in use, full windows, derived
+//!   figures), each with what builds it from the chain's records;
 //! - [`quant`]: the fixed-point units of the quantised fields, and records -> bodies;
 //! - [`codec`]: [`encode`] and [`decode`] of one frame into and out of caller buffers;
 //! - [`decoder`]: the streaming [`Decoder`] a serial read loop feeds, with resynchronisation

@@ -53,6 +53,10 @@ pub struct DemoArgs {
     /// Baud rate of the simulated link (the device keeps to its byte budget).
     #[arg(long, default_value_t = 115_200)]
     pub baud: u32,
+    /// Ask the simulated device for full windows (every column of windows.csv; about twice
+    /// the bytes of plain results on the link).
+    #[arg(long)]
+    pub extras: bool,
 }
 
 /// Arguments of `frothline simulate`.
@@ -213,7 +217,14 @@ pub fn run(args: &DemoArgs) -> Result<DemoSummary, HostError> {
         layout_text: Some(layout_text),
         ui,
         duration: Some(duration),
-        startup: vec![Startup::Now(Command::StartRun("demo".into()))],
+        startup: {
+            let mut v = Vec::new();
+            if args.extras {
+                v.push(Startup::Now(Command::SetExtras(true)));
+            }
+            v.push(Startup::Now(Command::StartRun("demo".into())));
+            v
+        },
         view: Default::default(),
         wait_for_port: false,
     };

@@ -3,7 +3,8 @@
 //!
 //! ```text
 //! wall clock x speed -> sample clock -> push the capture's frames due -> Chain -> records
-//!   -> WindowResult::from_probe_window -> Streamer (link byte budget: baud / 10 B/s) -> port
+//!   -> WindowResult::from_probe_window (and its extras, sent as full windows after a
+//!      SetExtras) -> Streamer (link byte budget: baud / 10 B/s) -> port
 //! port -> the core's command Responder (repeats, already running, unknown kind, version,
 //!      malformed) -> StartRun / StopRun / SetWindow / Relearn / DescribeRequest -> Ack/Nack
 //! Describe at power-on, after SetWindow and on request; RunStart at every run start;
@@ -85,7 +86,10 @@ pub struct SimDevice {
     /// The station chains' configurations (transient layouts).
     stations: Option<StationConfigs>,
     chain: Option<Chains>,
-    streamer: Box<Streamer<WINDOW_QUEUE, URGENT_QUEUE>>,
+    /// Keeps the extras of every queued result (full windows, after a SetExtras).
+    streamer: Box<
+        Streamer<WINDOW_QUEUE, URGENT_QUEUE, { frothline_core::wire::MAX_PROBES }, WINDOW_QUEUE>,
+    >,
     /// The command handler (the one every device uses).
     responder: Responder,
     power_on: Instant,
@@ -457,7 +461,10 @@ impl SimDevice {
                 .probes
                 .get(r.probe as usize)
                 .and_then(|p| p.tip_spacing_mm);
-            self.streamer.offer_window(wire_result(&r, fs, spacing));
+            self.streamer.offer_full(
+                wire_result(&r, fs, spacing),
+                frothline_core::wire::WindowExtras::from_probe_window(&r, fs as f32),
+            );
             self.streamer.offer_derived(
                 frothline_core::wire::DerivedResult::from_probe_window_with_spacing(
                     &r,
@@ -748,5 +755,13 @@ impl CommandTarget for SimTarget<'_> {
     fn set_clock(&mut self, utc_ms: u64) -> Result<(), NackReason> {
         self.dev.clock = Some((utc_ms, self.now));
         Ok(())
+    }
+
+    fn set_extras(&mut self, on: bool) -> Result<(), NackReason> {
+        if self.dev.streamer.set_extras(on) {
+            Ok(())
+        } else {
+            Err(NackReason::UnknownCommand)
+        }
     }
 }

@@ -37,6 +37,8 @@ pub enum Command {
     SetClock,
     /// Ask for a chunk of the device's field log region.
     ReadLog(ReadLog),
+    /// Window results as full windows (kind 0x0B, every column of windows.csv), or not.
+    SetExtras(bool),
 }
 
 impl Command {
@@ -51,6 +53,7 @@ impl Command {
             Command::SetLevels(_) => Kind::SetLevels,
             Command::SetClock => Kind::SetClock,
             Command::ReadLog(_) => Kind::ReadLog,
+            Command::SetExtras(_) => Kind::SetExtras,
         }
     }
 
@@ -68,6 +71,7 @@ impl Command {
             Command::DescribeRequest => Body::DescribeRequest,
             Command::SetLevels(l) => Body::SetLevels(*l),
             Command::ReadLog(r) => Body::ReadLog(*r),
+            Command::SetExtras(on) => Body::SetExtras(frothline_core::wire::SetExtras { on: *on }),
             Command::SetClock => Body::SetClock(SetClock {
                 utc_ms: crate::shared::archive::now_us() / 1000,
             }),
@@ -93,6 +97,9 @@ pub fn kind_name(kind: Kind) -> &'static str {
         Kind::ReadLog => "read-log",
         Kind::LogChunk => "log-chunk",
         Kind::SetLevels => "set-levels",
+        Kind::SetExtras => "set-extras",
+        Kind::FullWindows => "full-windows",
+        Kind::Levels => "levels",
         Kind::Ack => "ack",
         Kind::Nack => "nack",
         _ => "unknown",

@@ -7,6 +7,7 @@
 //! received(port, t, bytes) -> archive (raw, first) -> Decoder of the port -> frames
 //!     Describe  -> probe names/elevations, sample rate (held windows are written now)
 //!     Windows   -> windows.csv (held until the device's sample rate is known)
+//!     FullWindows -> the same, with the columns a window result leaves out filled in
 //!     Front     -> fronts.csv          Profile -> profile.csv
 //!     RunStart  -> a new run: its number, label and UTC (earlier fronts no longer apply)
 //!     Health, Ack/Nack, sequence gaps, CRC failures -> events for the live view
@@ -71,7 +72,7 @@ struct DeviceInfo {
     meta: Vec<ProbeMeta>,
     /// Latest front arrival frame per station.
     fronts: BTreeMap<u8, u64>,
-    held: Vec<WindowResult>,
+    held: Vec<(WindowResult, Option<frothline_core::wire::WindowExtras>)>,
 }
 
 struct PortState {
@@ -360,8 +361,8 @@ impl Session {
         info.sample_rate_hz = (fs > 0.0).then_some(fs);
         if info.sample_rate_hz.is_some() {
             let held = std::mem::take(&mut info.held);
-            for w in held {
-                self.write_window(port, device, &w)?;
+            for (w, x) in held {
+                self.write_window(port, device, &w, x.as_ref())?;
             }
         }
         Ok(())
@@ -420,14 +421,15 @@ impl Session {
     /// Close the session: write held windows (without times), flush the CSV files, sync the
     /// archive, and report.
     pub fn finish(mut self) -> Result<SessionReport, HostError> {
-        let held: Vec<(usize, u16, Vec<WindowResult>)> = self
+        type Held = Vec<(WindowResult, Option<frothline_core::wire::WindowExtras>)>;
+        let held: Vec<(usize, u16, Held)> = self
             .devices
             .iter_mut()
             .map(|(&(p, d), info)| (p, d, std::mem::take(&mut info.held)))
             .collect();
         for (port, device, ws) in held {
-            for w in ws {
-                self.write_window(port, device, &w)?;
+            for (w, x) in ws {
+                self.write_window(port, device, &w, x.as_ref())?;
             }
         }
         if let Some(o) = self.out.as_mut() {

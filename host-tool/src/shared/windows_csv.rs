@@ -200,8 +200,9 @@ impl<W: Write> WindowsCsv<W> {
 ///
 /// The row matches [`row`] of the record the device quantised, to the wire's resolution:
 /// times from the sample clock and `sample_rate_hz` (cells empty while the rate is unknown),
-/// fractions to 1e-4, rates to 0.01 Hz, chords to 1 µs, velocity to 1 mm/s. Columns the wire
-/// does not carry (droplet chords, trailing-tip C and F, levels) are empty, and so are
+/// fractions to 1e-4, rates to 0.01 Hz, chords to 1 µs, velocity to 1 mm/s. Columns a window
+/// result does not carry (droplet chords, trailing-tip C and F, levels, correlation time
+/// scales: see [`fill_extras`] for a full window) are empty, and so are
 /// the elevation and position of a probe the device did not describe (NaN in `meta`).
 pub fn wire_row(
     w: &frothline_core::wire::WindowResult,
@@ -244,7 +245,77 @@ pub fn wire_row(
     ];
     // Columns the wire does not carry stay empty.
     fields.resize(COLUMNS.len(), String::new());
+    // Tu corrected as replay corrects it, from the Tu on the wire.
+    set(
+        &mut fields,
+        "turbulence_intensity_skew_corrected",
+        w.turbulence_intensity()
+            .and_then(frothline_core::correlation::tu_for_gaussian_velocity),
+    );
     fields
+}
+
+fn set<T: std::fmt::Display>(fields: &mut [String], column: &str, v: Option<T>) {
+    if let (Some(v), Some(i)) = (v, COLUMNS.iter().position(|c| *c == column)) {
+        fields[i] = v.to_string();
+    }
+}
+
+/// Fill the columns a window result leaves out from the extras of a full window (kind
+/// 0x0B): the droplet chord, the trailing tip's C and F, both tips' levels and the
+/// correlation's time scales, at the wire's resolution (times to 1 µs, fractions to 1e-4).
+pub fn fill_extras(fields: &mut [String], x: &frothline_core::wire::WindowExtras) {
+    use frothline_core::wire::quant::{from_fraction, from_micros, from_rate};
+    set(
+        fields,
+        "droplet_chord_mean_s",
+        x.droplet_chord_mean.map(from_micros),
+    );
+    set(
+        fields,
+        "trailing_void_fraction",
+        x.trailing.map(|t| from_fraction(t.void_fraction)),
+    );
+    set(
+        fields,
+        "trailing_bubble_count_rate_hz",
+        x.trailing.map(|t| from_rate(t.bubble_rate)),
+    );
+    set(fields, "air_level_counts", x.levels.map(|l| l.air));
+    set(fields, "water_level_counts", x.levels.map(|l| l.water));
+    set(
+        fields,
+        "trailing_air_level_counts",
+        x.trailing_levels.map(|l| l.air),
+    );
+    set(
+        fields,
+        "trailing_water_level_counts",
+        x.trailing_levels.map(|l| l.water),
+    );
+    let c = x.correlation.as_ref();
+    set(
+        fields,
+        "transit_time_s",
+        c.and_then(|c| c.transit).map(from_micros),
+    );
+    set(
+        fields,
+        "secondary_peak_ratio",
+        c.and_then(|c| c.secondary_peak_ratio).map(from_fraction),
+    );
+    set(fields, "t05_s", c.and_then(|c| c.t05).map(from_micros));
+    set(fields, "tau05_s", c.and_then(|c| c.tau05).map(from_micros));
+    set(
+        fields,
+        "auto_integral_time_s",
+        c.and_then(|c| c.auto_integral).map(from_micros),
+    );
+    set(
+        fields,
+        "cross_integral_time_s",
+        c.and_then(|c| c.cross_integral).map(from_micros),
+    );
 }
 
 impl<W: Write> WindowsCsv<W> {

@@ -53,6 +53,11 @@ pub struct WatchArgs {
     /// Ask each device to re-learn the air/water levels of all its probes.
     #[arg(long)]
     pub relearn: bool,
+    /// Ask each device for full windows: every column of windows.csv (droplet chord,
+    /// trailing tip, levels, correlation time scales), about twice the bytes of plain
+    /// results. A device that cannot refuses, and its results stay plain.
+    #[arg(long)]
+    pub extras: bool,
     /// Convergence target of the running figures, in percent: a probe is done when the
     /// 95 % intervals of its C, F (and V) are within this share of their means.
     #[arg(long, value_name = "PERCENT", default_value_t = 5.0)]
@@ -145,6 +150,9 @@ impl WatchOptions {
         }
         if a.relearn {
             startup.push(Startup::Now(Command::Relearn(u32::MAX)));
+        }
+        if a.extras {
+            startup.push(Startup::Now(Command::SetExtras(true)));
         }
         if a.stop_run {
             startup.push(Startup::Now(Command::StopRun));

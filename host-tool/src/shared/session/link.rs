@@ -111,11 +111,21 @@ impl Session {
             }
             Body::Windows(ws) => {
                 for w in ws {
-                    self.window(port, device, w)?;
+                    self.window(port, device, w, None)?;
                     events.push(Event::Window {
                         port,
                         device,
                         result: w,
+                    });
+                }
+            }
+            Body::FullWindows(fs) => {
+                for f in fs {
+                    self.window(port, device, f.result, Some(f.extras))?;
+                    events.push(Event::Window {
+                        port,
+                        device,
+                        result: f.result,
                     });
                 }
             }

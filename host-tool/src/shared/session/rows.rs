@@ -53,13 +53,14 @@ impl Session {
         port: usize,
         device: u16,
         w: WindowResult,
+        extras: Option<frothline_core::wire::WindowExtras>,
     ) -> Result<(), HostError> {
         let info = self.devices.entry((port, device)).or_default();
         if info.sample_rate_hz.is_none() && info.held.len() < MAX_HELD {
-            info.held.push(w);
+            info.held.push((w, extras));
             return Ok(());
         }
-        self.write_window(port, device, &w)
+        self.write_window(port, device, &w, extras.as_ref())
     }
 
     pub(super) fn write_window(
@@ -67,6 +68,7 @@ impl Session {
         port: usize,
         device: u16,
         w: &WindowResult,
+        extras: Option<&frothline_core::wire::WindowExtras>,
     ) -> Result<(), HostError> {
         let meta = self.meta(port, device, w.probe as usize);
         let info = self.devices.get(&(port, device));
@@ -100,6 +102,10 @@ impl Session {
                 .position(|c| *c == "transit_time_s"),
         ) {
             row[i] = (t as f32).to_string();
+        }
+        if let Some(x) = extras {
+            // The device's own figures (full windows), transit time included.
+            crate::shared::windows_csv::fill_extras(&mut row, x);
         }
         row.extend(self.runs.columns(port, device, self.now_us));
         let path = out.dir.join("windows.csv");
