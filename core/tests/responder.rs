@@ -278,3 +278,23 @@ fn golden_vectors_of_every_command_answer() {
         }
     }
 }
+
+/// SetExtras (kind 0x28): a device that cannot send full windows (this target implements no
+/// `set_extras`) refuses it as a command it does not carry out; a body that is no bool is
+/// malformed (docs/wire-protocol.md, section 8).
+#[test]
+fn set_extras_is_refused_by_a_device_without_full_windows() {
+    let (mut r, mut t) = (Responder::new(), Target::default());
+    assert_eq!(
+        feed(
+            &mut r,
+            &mut t,
+            &frame(1, Body::SetExtras(frothline_core::wire::SetExtras { on: true }))
+        ),
+        [nack(1, NackReason::UnknownCommand)]
+    );
+    assert_eq!(
+        feed(&mut r, &mut t, &raw(&[2, 0xFF, 0xFF, 0x03, 0x28, 2, 2])),
+        [nack(2, NackReason::Malformed)]
+    );
+}
