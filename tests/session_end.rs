@@ -17,6 +17,7 @@ fn a_demo_session_reads_every_result_the_device_sent() {
         window: Some("20ms".parse().unwrap()),
         transient: false,
         baud: 115_200,
+        extras: false,
     };
     let s = frothline_host::live::demo::run(&args).unwrap();
     assert!(s.device.windows_sent > 0);
