@@ -289,7 +289,10 @@ fn set_extras_is_refused_by_a_device_without_full_windows() {
         feed(
             &mut r,
             &mut t,
-            &frame(1, Body::SetExtras(frothline_core::wire::SetExtras { on: true }))
+            &frame(
+                1,
+                Body::SetExtras(frothline_core::wire::SetExtras { on: true })
+            )
         ),
         [nack(1, NackReason::UnknownCommand)]
     );

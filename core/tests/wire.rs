@@ -1636,6 +1636,61 @@ fn describe() -> Body {
 /// front now and then; the streamer feeds a link of `link` bytes/s polled every 100 µs with
 /// a 64-byte FIFO. Returns the host's frames, the streamer and the decoder.
 fn run_link(seconds: u64, rate: u64, baud: u32) -> (Vec<Frame>, Streamer<64>, Decoder, u64) {
+    run_link_with(seconds, rate, baud, false)
+}
+
+/// A typical window's derived figures (C 0.25, F 100 Hz, V 2.5 m/s: chord lengths of about
+/// 3 mm, a = 160 1/m, d = 9.4 mm, 5 bubbles judged), as a device sends them beside the
+/// window result.
+fn typical_derived(probe: u8, start: u64) -> frothline_core::wire::DerivedResult {
+    frothline_core::wire::DerivedResult {
+        probe,
+        start,
+        chord_lengths: Some(frothline_core::wire::ChordLengths {
+            mean: 3_000,
+            median: 2_750,
+            p90: 5_250,
+        }),
+        interfacial_area: Some(1_600),
+        sauter_diameter: Some(9_375),
+        judged: 5,
+        pairs: 1,
+        clusters: 1,
+        clustered: 2,
+        random_pair_probability: Some(1_800),
+    }
+}
+
+/// A typical tip-health report of a dual-tip probe (levels ±25000 counts, 10 interfaces).
+fn typical_tips(probe: u8, start: u64) -> TipReport {
+    let tip = TipState {
+        levels: Some(TipLevels {
+            air: 25_000,
+            water: 3_000,
+        }),
+        interfaces: 10,
+        bubbles: 5,
+        void_fraction: 2_500,
+        flags: 0,
+    };
+    TipReport {
+        probe,
+        start,
+        frames: 1_000,
+        leading: tip,
+        trailing: Some(tip),
+    }
+}
+
+/// [`run_link`]; with `device_stream` every window result also brings its derived figures
+/// (kind 0x08) and its probe's tip-health report (kind 0x09, sent after each health frame),
+/// as the firmware and the simulated device send them.
+fn run_link_with(
+    seconds: u64,
+    rate: u64,
+    baud: u32,
+    device_stream: bool,
+) -> (Vec<Frame>, Streamer<64>, Decoder, u64) {
     let mut s = Streamer::<64>::new(StreamerConfig::uart_8n1(9, baud, 1_000_000));
     let mut dec: Decoder = Decoder::new();
     let mut host = Vec::new();
@@ -1654,6 +1709,10 @@ fn run_link(seconds: u64, rate: u64, baud: u32) -> (Vec<Frame>, Streamer<64>, De
                 let mut w = typical_window(p);
                 w.start = k * 1000;
                 s.offer(Body::window(w));
+                if device_stream {
+                    s.offer_derived(typical_derived(p, w.start));
+                    s.offer_tips(typical_tips(p, w.start));
+                }
             }
             k += 1;
             next_window += window_us;
@@ -1718,6 +1777,31 @@ fn streamer_keeps_up_with_8_probes_at_20_windows_per_second_on_115200() {
         .filter(|f| matches!(f.body, Body::Health(_)))
         .count();
     assert!(healths >= 29);
+}
+
+/// The whole stream of a device at 8 probes x 20 windows/s: window results, their derived
+/// figures and the tip health, on 115200 baud (the figures of docs/wire-protocol.md,
+/// section 12).
+#[test]
+fn a_device_stream_with_derived_figures_fits_115200() {
+    let (host, s, dec, bytes) = run_link_with(30, 20, 115_200, true);
+    let load = bytes as f64 / 30.0 / LINK_8N1_115200;
+    let count = |k: Kind| host.iter().filter(|f| f.body.kind() == k).count();
+    println!(
+        "device stream at 115200: {} frames ({} Windows, {} Derived, {} TipHealth), {bytes} \
+         bytes in 30 s = {:.0} B/s = {:.1} % of the link; {:?}",
+        host.len(),
+        count(Kind::Windows),
+        count(Kind::Derived),
+        count(Kind::TipHealth),
+        bytes as f64 / 30.0,
+        100.0 * load,
+        s.stats()
+    );
+    assert_eq!(s.stats().windows_dropped, 0);
+    assert_eq!(dec.stats().lost, 0);
+    assert!(count(Kind::Derived) > 0 && count(Kind::TipHealth) > 0);
+    assert!(load <= 1.0, "load {load}");
 }
 
 #[test]
