@@ -6,7 +6,9 @@
 //!   model, whichever fits better), which gives `Y90`;
 //! - the velocity with a power law `V = V90 (y/Y90)^(1/N)`, least squares on `ln V` against
 //!   `ln y` over the probes from the bed to `Y90` (the velocity law of self-aerated and
-//!   skimming flows; common practice, no source);
+//!   skimming flows; common practice, no source); a fitted slope below zero is taken as a
+//!   uniform velocity, and a velocity more than twice or less than half the array's median
+//!   is left out as a false correlation peak;
 //! - `q_w = ∫_0^Y90 (1 − C) V dy` and `q_a = ∫_0^Y90 C V dy` through the fitted models with
 //!   the core's depth integral ([`frothline_core::profile::depth_integral`], the profile
 //!   estimator's unbiased integration);
@@ -25,6 +27,10 @@ use frothline_core::profile::{depth_integral, fit_profile_sized, ProfileConfig, 
 /// The relative gap between the integrated and the delivered water discharge beyond which
 /// the continuity check warns (5 %).
 pub const CONTINUITY_TOLERANCE: f64 = 0.05;
+
+/// A probe's velocity more than this factor above or below the array's median is left out of
+/// the velocity law as an outlier.
+pub const VELOCITY_OUTLIER: f64 = 2.0;
 
 /// One probe of the array.
 #[derive(Clone, Debug, PartialEq)]
@@ -127,9 +133,12 @@ fn velocity_law(points: &[(f64, f64)], y90: f64) -> Option<(f64, f64)> {
     if sxx <= 0.0 {
         return None;
     }
-    let b = sxy / sxx;
+    // A velocity falling with height, which the law cannot describe, is taken as uniform
+    // (the geometric mean of the probes' V): behind a surge front the velocity is close to
+    // uniform over the depth, and noise tips the fitted slope either way.
+    let b = (sxy / sxx).max(0.0);
     let a = my - b * mx;
-    (a.is_finite() && b.is_finite() && b >= 0.0).then_some((a, b))
+    (a.is_finite() && b.is_finite()).then_some((a, b))
 }
 
 /// The unit discharges of one array (`None` when fewer than three probes with C, or fewer
@@ -158,7 +167,7 @@ pub fn discharge(points: &[ArrayPoint], expected_m2_s: Option<f64>) -> Option<Di
     let fit = fit_profile_sized::<64>(&cps, &ProfileConfig::default());
     let model = fit.fitted_profile()?;
     let y90 = model.y90_mm() as f64;
-    let vel: Vec<(f64, f64)> = used
+    let mut vel: Vec<(f64, f64)> = used
         .iter()
         .filter_map(|p| Some((p.y_mm, p.v_m_s?.abs())))
         .collect();
@@ -166,6 +175,22 @@ pub fn discharge(points: &[ArrayPoint], expected_m2_s: Option<f64>) -> Option<Di
         if p.v_m_s.is_none() {
             left_out.push(format!("{}:no_velocity", p.name));
         }
+    }
+    // A velocity more than a factor VELOCITY_OUTLIER from the array's median is a false
+    // correlation peak (a secondary peak taken for the main one), not the flow: left out of
+    // the velocity law (common practice, no source).
+    if vel.len() >= 3 {
+        let mut logs: Vec<f64> = vel.iter().map(|v| v.1.ln()).collect();
+        logs.sort_by(f64::total_cmp);
+        let median = logs[logs.len() / 2];
+        for p in &used {
+            if let Some(v) = p.v_m_s {
+                if (v.abs().ln() - median).abs() > VELOCITY_OUTLIER.ln() {
+                    left_out.push(format!("{}:velocity_outlier", p.name));
+                }
+            }
+        }
+        vel.retain(|v| (v.1.ln() - median).abs() <= VELOCITY_OUTLIER.ln());
     }
     let (ln_v90, inv_n) = velocity_law(&vel, y90)?;
     let v90 = ln_v90.exp();
@@ -383,5 +408,50 @@ mod tests {
         let d = discharge(&points, Some(q)).unwrap();
         assert_eq!(d.left_out, vec!["P3:dead".to_string()]);
         assert!(d.warnings().iter().any(|w| w.contains("P3")));
+    }
+
+    /// A uniform velocity (a surge behind its front) whose noise tips the fitted slope below
+    /// zero, and one false correlation peak at a quarter of the flow's velocity: the law is
+    /// uniform at the others' velocity, the outlier is named and left out, and `q_w` is the
+    /// closed form of the power-law C with a uniform V, `V Y90 (1 − 0.9/(1 + n))` (analytic
+    /// case).
+    #[test]
+    fn a_falling_fit_is_uniform_and_an_outlier_velocity_is_left_out() {
+        let (y90, n, v) = (60.0f64, 1.0f64, 2.0f64);
+        let points: Vec<ArrayPoint> = (1..=6)
+            .map(|i| {
+                let y = y90 * i as f64 / 6.0;
+                // Falling slightly with height, and P4 a false peak.
+                let vi = if i == 4 {
+                    v / 4.0
+                } else {
+                    v * (1.0 - 0.002 * i as f64)
+                };
+                ArrayPoint {
+                    name: format!("P{i}"),
+                    y_mm: y,
+                    c: Some(0.9 * (y / y90).powf(n)),
+                    v_m_s: Some(vi),
+                    dead: false,
+                }
+            })
+            .collect();
+        let d = discharge(&points, None).expect("a discharge");
+        assert!(
+            d.left_out.contains(&"P4:velocity_outlier".to_string()),
+            "{:?}",
+            d.left_out
+        );
+        assert!(
+            d.velocity_exponent_n.is_infinite(),
+            "{}",
+            d.velocity_exponent_n
+        );
+        let qw = v * y90 * 1e-3 * (1.0 - 0.9 / (1.0 + n));
+        assert!(
+            (d.q_water_m2_s / qw - 1.0).abs() < 0.01,
+            "{} {qw}",
+            d.q_water_m2_s
+        );
     }
 }

@@ -575,6 +575,7 @@ impl Ensemble {
             stations: self.stations.clone(),
             windows: Vec::new(),
             profiles: Vec::new(),
+            slice_discharges: Vec::new(),
             fronts: Vec::new(),
             policy: WindowPolicy::AfterFront {
                 frames: self.window_frames as u32,

@@ -41,10 +41,12 @@ mod indicators;
 mod outputs;
 mod record_store;
 mod rows;
+mod slice_discharge;
 mod summary;
 pub use indicators::{flow_indicators, FlowIndicators};
 pub use outputs::{write_output_set, write_output_set_from, write_outputs, TransientFiles};
-pub use record_store::{ProfileStore, RecordStore, WindowStore};
+pub use record_store::{DischargeStore, ProfileStore, RecordStore, WindowStore};
+pub use slice_discharge::{SliceDischarge, SLICE_DISCHARGE_COLUMNS};
 pub use summary::{summary, summary_with, RecordCounts, StationSlices};
 
 /// Flag of stations.csv (and the summary) for a station the front reached before the one
@@ -84,6 +86,9 @@ pub struct TransientRun {
     pub windows: Vec<HostRecord>,
     /// Profile records: (station index, record), per station in time order.
     pub profiles: Vec<(usize, ProfileRecord)>,
+    /// The unit discharges of each profile slice, in the order of `profiles` (empty when
+    /// not computed, as in an ensemble).
+    pub slice_discharges: Vec<SliceDischarge>,
     /// Front records.
     pub fronts: Vec<StationFront>,
     /// The window policy used.
@@ -101,16 +106,23 @@ struct Running {
 }
 
 /// What the drivers collect.
-struct Sinks<'a> {
+struct Sinks<'a, 'l> {
     records: StoredRecords,
+    /// Window records waiting for their slice's discharge.
+    slices: slice_discharge::SliceDischarges,
+    layout: &'l Layout,
+    sample_rate: u32,
     fronts: Vec<StationFront>,
     /// Sees every full record (with its correlation sums) before it is reduced.
     full: Option<&'a mut (dyn FnMut(&FullRecord) + Send)>,
 }
 
-fn drain(idx: usize, r: &mut Running, out: &mut Sinks<'_>) -> Result<(), HostError> {
+fn drain(idx: usize, r: &mut Running, out: &mut Sinks<'_, '_>) -> Result<(), HostError> {
     let Sinks {
         records,
+        slices,
+        layout,
+        sample_rate,
         fronts,
         full,
     } = out;
@@ -119,12 +131,22 @@ fn drain(idx: usize, r: &mut Running, out: &mut Sinks<'_>) -> Result<(), HostErr
         if let Some(f) = full.as_mut() {
             f(&w);
         }
-        records
-            .windows
-            .push(w.without_sums())
-            .map_err(spill_error)?;
+        let lean = w.without_sums();
+        slices.window(idx, &lean, layout, *sample_rate);
+        records.windows.push(lean).map_err(spill_error)?;
     }
     while let Some(p) = r.chain.poll_profile() {
+        let probes = &r.info.probes;
+        let dead = |g: usize| {
+            probes
+                .iter()
+                .position(|&l| l == g)
+                .is_some_and(|local| p.dead & (1 << local) != 0)
+        };
+        records
+            .discharges
+            .push(slices.slice(idx, p.start, dead))
+            .map_err(spill_error)?;
         records.profiles.push((idx, p)).map_err(spill_error)?;
     }
     while let Some(mut f) = r.chain.poll_front() {
@@ -175,6 +197,8 @@ pub struct StoredRecords {
     pub windows: WindowStore,
     /// Profile slices with their station index.
     pub profiles: ProfileStore,
+    /// Their discharges, one per slice in the same order.
+    pub discharges: DischargeStore,
 }
 
 impl StoredRecords {
@@ -182,6 +206,7 @@ impl StoredRecords {
     pub fn into_run(self, run: &mut TransientRun) -> Result<(), HostError> {
         run.windows = self.windows.into_vec().map_err(spill_error)?;
         run.profiles = self.profiles.into_vec().map_err(spill_error)?;
+        run.slice_discharges = self.discharges.into_vec().map_err(spill_error)?;
         Ok(())
     }
 }
@@ -215,6 +240,9 @@ pub fn run_blocks_stored(
     }
     let mut out = Sinks {
         records: StoredRecords::default(),
+        slices: Default::default(),
+        layout,
+        sample_rate,
         fronts: Vec::new(),
         full,
     };
@@ -272,6 +300,7 @@ pub fn run_blocks_stored(
         stations: running.into_iter().map(|r| r.info).collect(),
         windows: Vec::new(),
         profiles: Vec::new(),
+        slice_discharges: Vec::new(),
         fronts,
         policy,
         delay_frames,
@@ -482,11 +511,16 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<(TransientRun, ReplayRe
     let (abrupt, last) = (cap.ends_abruptly(), cap.position());
     let mut records = Vec::new();
     let kept = &mut records;
+    let discharges = stored.discharges.sorted().map_err(spill_error)?;
     let mut profiles = stored
         .profiles
         .sorted()
         .map_err(spill_error)?
-        .map(|p| p.map_err(spill_error));
+        .zip(discharges)
+        .map(|(p, d)| match (p, d) {
+            (Ok((s, p)), Ok(d)) => Ok((s, p, d)),
+            (Err(e), _) | (_, Err(e)) => Err(spill_error(e)),
+        });
     let mut windows = stored.windows.sorted().map_err(spill_error)?.map(|w| {
         w.map_err(spill_error).map(|mut w| {
             common::mark_cut(&mut w, abrupt, last);

@@ -1,6 +1,7 @@
 //! Writing the output files of a transient replay as one set (committed together).
 
 use super::indicators::flow_indicators;
+use super::slice_discharge::{SliceDischarge, SLICE_DISCHARGE_COLUMNS};
 use super::summary::RecordCounts;
 use super::TransientRun;
 use crate::offline::replay_common as common;
@@ -64,7 +65,13 @@ pub fn write_output_set(
     inputs: &[(&str, &Path)],
 ) -> Result<(TransientFiles, Committed), HostError> {
     let mut windows = run.windows.iter().cloned().map(Ok);
-    let mut profiles = run.profiles.iter().cloned().map(Ok);
+    let mut profiles = run.profiles.iter().enumerate().map(|(i, &(s, p))| {
+        Ok((
+            s,
+            p,
+            run.slice_discharges.get(i).copied().unwrap_or_default(),
+        ))
+    });
     write_output_set_from(run, &mut windows, &mut profiles, dir, description, inputs)
         .map(|(files, committed, _)| (files, committed))
 }
@@ -75,7 +82,7 @@ pub fn write_output_set(
 pub fn write_output_set_from(
     run: &TransientRun,
     windows: &mut dyn Iterator<Item = Result<HostRecord, HostError>>,
-    profiles: &mut dyn Iterator<Item = Result<(usize, ProfileRecord), HostError>>,
+    profiles: &mut dyn Iterator<Item = Result<(usize, ProfileRecord, SliceDischarge), HostError>>,
     dir: &Path,
     description: &str,
     inputs: &[(&str, &Path)],
@@ -107,11 +114,18 @@ pub fn write_output_set_from(
     csv.finish().map_err(write_err(&staged))?;
 
     // Row by row: a long record at short windows has many slices.
-    write_csv(&set, "profile.csv", PROFILE_COLUMNS, |w| {
+    let header: Vec<&str> = PROFILE_COLUMNS
+        .iter()
+        .chain(SLICE_DISCHARGE_COLUMNS)
+        .copied()
+        .collect();
+    write_csv(&set, "profile.csv", &header, |w| {
         for sp in profiles {
-            let (s, p) = sp?;
+            let (s, p, d) = sp?;
             counts.add_slice(s, &p);
-            w(run.profile_row(s, &p))?;
+            let mut row = run.profile_row(s, &p);
+            row.extend(d.cells());
+            w(row)?;
         }
         Ok(())
     })?;

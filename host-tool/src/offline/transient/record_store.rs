@@ -49,6 +49,12 @@ impl Keyed for (usize, ProfileRecord) {
     fn key(&self) {}
 }
 
+/// Slice discharges: in arrival order (beside their profile slices).
+impl Keyed for super::slice_discharge::SliceDischarge {
+    type Key = ();
+    fn key(&self) {}
+}
+
 fn key<T: Keyed>(seq: u64, r: &T) -> Key<T::Key> {
     (r.key(), seq)
 }
@@ -57,6 +63,8 @@ fn key<T: Keyed>(seq: u64, r: &T) -> Key<T::Key> {
 pub type WindowStore = RecordStore<HostRecord>;
 /// The profile slices of a run, with their station index.
 pub type ProfileStore = RecordStore<(usize, ProfileRecord)>;
+/// The discharges of a run's profile slices, one per slice in the same order.
+pub type DischargeStore = RecordStore<super::slice_discharge::SliceDischarge>;
 
 /// Records in arrival order in, key order out.
 pub struct RecordStore<T> {
