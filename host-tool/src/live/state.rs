@@ -105,6 +105,9 @@ pub struct LiveState {
     pub prompt: Option<Prompt>,
     /// What the bottom-right panel shows.
     pub strip_view: StripView,
+    /// The rig's discharge per unit width from the layout (`[flow] discharge_m2_s`), for the
+    /// continuity check of the running figures.
+    pub discharge_m2_s: Option<f64>,
 }
 
 /// What a text prompt asks for.
@@ -244,6 +247,29 @@ impl LiveState {
             .map(|d| d.sample_rate_hz as f64)
             .filter(|f| *f > 0.0)
             .unwrap_or(1.0)
+    }
+
+    /// The unit discharges of each device's stations (probes sharing `x_mm`, at least three)
+    /// from the running C and V of the run so far, with the continuity check against
+    /// [`discharge_m2_s`](Self::discharge_m2_s) (steady flows: a device that reported a
+    /// front has none).
+    pub fn continuity(&self) -> Vec<(u32, f64, crate::shared::discharge::Discharge)> {
+        let mut out = Vec::new();
+        for (&id, dev) in &self.devices {
+            if self.stations.keys().any(|(d, _)| *d == id) {
+                continue;
+            }
+            let points = dev.probes.iter().map(|p| {
+                (
+                    p.x_mm,
+                    crate::shared::discharge::point_of_tally(&p.name, p.elevation_mm, &p.tally),
+                )
+            });
+            for (x, d) in crate::shared::discharge::by_station(points, self.discharge_m2_s) {
+                out.push((id, x, d));
+            }
+        }
+        out
     }
 
     /// The station to show: the one with the latest profile fit, else the latest front.

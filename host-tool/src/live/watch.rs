@@ -390,6 +390,7 @@ pub fn run_session(
     live.started = Some(t0);
     live.keys_help = KEYS_HELP.into();
     live.view = opts.view;
+    live.discharge_m2_s = opts.layout.as_ref().and_then(|l| l.flow.discharge_m2_s);
     for l in &mut live.links {
         l.baud = opts.baud;
     }
@@ -489,11 +490,18 @@ pub fn run_session(
         .into_iter()
         .map(|(_, p)| (p.name.clone(), p.elevation_mm, p.tally.clone()))
         .collect();
+    let discharges = w
+        .live
+        .continuity()
+        .into_iter()
+        .map(|(_, x, d)| (x, d))
+        .collect();
     Ok(WatchSummary {
         report,
         elapsed: t0.elapsed(),
         baud: w.opts.baud,
         probes,
+        discharges,
     })
 }
 

@@ -15,7 +15,6 @@
 //!   one output set (ensemble_inputs: the captures it reads)
 //! tipcheck: every tip's levels, noise and swing on a segment, written into the layout
 //! ```
-pub mod discharge;
 pub mod ensemble;
 pub mod ensemble_inputs;
 pub mod level_drift;

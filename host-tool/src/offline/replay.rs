@@ -418,12 +418,12 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     bar.finish_and_clear();
     let frames = result?;
     csv.finish().map_err(write_err(&staged))?;
-    let discharges = crate::offline::discharge::station_discharges(&layout, &tallies);
+    let discharges = crate::shared::discharge::station_discharges(&layout, &tallies);
     let mut names = vec!["windows.csv"];
     if !discharges.is_empty() {
         let path = set.staged("discharge.csv");
         let file = set.create("discharge.csv")?;
-        crate::offline::discharge::write_csv(file, &discharges).map_err(|e| HostError::Write {
+        crate::shared::discharge::write_csv(file, &discharges).map_err(|e| HostError::Write {
             path,
             source: e.into(),
         })?;
@@ -479,7 +479,7 @@ pub fn summary_table(r: &ReplayReport) -> String {
     }
     s.push_str(&tally_table(&r.layout, &r.tallies));
     for (x, d) in &r.discharges {
-        s.push_str(&crate::offline::discharge::summary(*x, d));
+        s.push_str(&crate::shared::discharge::summary(*x, d));
     }
     s
 }

@@ -84,8 +84,8 @@ pub struct ReplayReport {
     pub abrupt_end: Option<String>,
     /// What the run replaced in the output folder.
     pub committed: Committed,
-    /// Unit discharges per station and the continuity check ([`crate::offline::discharge`]).
-    pub discharges: Vec<(f64, crate::offline::discharge::Discharge)>,
+    /// Unit discharges per station and the continuity check ([`crate::shared::discharge`]).
+    pub discharges: Vec<(f64, crate::shared::discharge::Discharge)>,
 }
 
 /// Layout probes as CSV row metadata (where the levels come from not known).

@@ -124,7 +124,7 @@ pub struct Flow {
     pub water_temperature_c: f64,
     /// The discharge the rig delivered per unit width, m²/s: `discharge_m2_s`, or
     /// `discharge_m3_s / width_m`. The continuity check compares the water discharge
-    /// integrated across the array with it ([`crate::offline::discharge`]).
+    /// integrated across the array with it ([`crate::shared::discharge`]).
     pub discharge_m2_s: Option<f64>,
 }
 

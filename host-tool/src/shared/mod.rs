@@ -9,7 +9,7 @@
 //!          marks (operator notes), tips_csv (the tip-health rows of a live session)
 //! results  windows_csv, transient_columns (profile.csv, fronts.csv, stations.csv), output_set (a run's files written as one set), probe_summary,
 //!          running_stats (means with intervals), hydraulics (water properties, flow
-//!          relations)
+//!          relations), discharge (unit discharges across an array, the continuity check)
 //! synthesis synthetic (scenarios rendered into captures with known truth: `synth` writes
 //!          them, `demo` and `simulate` play them)
 //! plumbing error (HostError), stdout (summaries that survive a closed pipe), serial_port
@@ -19,6 +19,7 @@ pub mod archive;
 pub mod capture;
 pub mod commands;
 pub mod derived_csv;
+pub mod discharge;
 pub mod error;
 pub mod hydraulics;
 pub mod layout;

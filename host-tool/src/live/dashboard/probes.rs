@@ -222,9 +222,45 @@ pub(super) fn draw_probes(f: &mut Frame, area: Rect, state: &LiveState) {
             Style::default().fg(WARN).add_modifier(Modifier::BOLD),
         ));
     }
+    if let Some(text) = continuity_text(state, area.width) {
+        let warn = text.contains("CHECK");
+        block = block.title_bottom(
+            ratatui::text::Line::from(Span::styled(
+                text,
+                if warn {
+                    Style::default().fg(BAD).add_modifier(Modifier::BOLD)
+                } else {
+                    Style::default()
+                },
+            ))
+            .right_aligned(),
+        );
+    }
     let t = Table::new(rows, widths)
         .header(header)
         .column_spacing(1)
         .block(block);
     f.render_widget(t, area);
+}
+
+/// The continuity line of the first station with a discharge, for the probe table's lower
+/// edge: `q_w` of the run so far and, with the layout's discharge, the gap to it, with the
+/// word `CHECK` (not colour alone) beyond the tolerance. `None` without a station of three
+/// probes with C and V, or when the table is too narrow for it.
+pub(super) fn continuity_text(state: &LiveState, width: u16) -> Option<String> {
+    let (_, _, d) = state.continuity().into_iter().next()?;
+    let q = d.q_water_total_m2_s();
+    let text = match (d.expected_m2_s, d.continuity_error()) {
+        (Some(e), Some(err)) => format!(
+            " q_w {q:.4} m²/s, layout {e:.4}: {:+.1} %{} ",
+            100.0 * err,
+            if err.abs() > crate::shared::discharge::CONTINUITY_TOLERANCE {
+                " CHECK"
+            } else {
+                ""
+            }
+        ),
+        _ => format!(" q_w {q:.4} m²/s "),
+    };
+    ((text.chars().count() as u16) + 4 <= width).then_some(text)
 }

@@ -7,6 +7,10 @@ use frothline_core::wire::{
 use std::time::Duration;
 
 fn state(now: Instant) -> LiveState {
+    state_with(now, [0.05, 0.2, 0.5, 0.8])
+}
+
+fn state_with(now: Instant, cs: [f64; 4]) -> LiveState {
     let ports = vec!["/dev/ttyUSB0".to_string()];
     let mut s = LiveState::new(&ports);
     s.started = Some(now - Duration::from_secs(12));
@@ -65,7 +69,6 @@ fn state(now: Instant) -> LiveState {
         now,
         &name,
     );
-    let cs = [0.05, 0.2, 0.5, 0.8];
     for k in 0..6u64 {
         for (i, c) in cs.iter().enumerate() {
             let w = WindowResult {
@@ -176,6 +179,29 @@ fn dashboard_shows_probe_rows_and_link_health() {
         l.find(v).unwrap()
     };
     assert_eq!(col("B2-4", "0.800") + 1, col("B2-1", "0.050") + 1);
+}
+
+/// The continuity line on the probe table's lower edge: q_w of the run so far from the
+/// running C and V of an array that spans Y90, the layout's discharge beside it, and the word
+/// CHECK (not colour alone) beyond the 5 % tolerance.
+#[test]
+fn the_continuity_check_is_on_the_probe_table() {
+    let now = Instant::now();
+    let mut s = state_with(now, [0.05, 0.3, 0.7, 0.97]);
+    let found = s.continuity();
+    assert_eq!(found.len(), 1, "one station of four probes");
+    let q = found[0].2.q_water_total_m2_s();
+    assert!(q > 0.0);
+    let text = render_text(&s, now, 100, 30).join("\n");
+    assert!(text.contains(&format!("q_w {q:.4} m²/s")), "{text}");
+    s.discharge_m2_s = Some(q * 1.02);
+    let text = render_text(&s, now, 100, 30).join("\n");
+    assert!(text.contains("-2.0 %") && !text.contains("CHECK"), "{text}");
+    s.discharge_m2_s = Some(q * 1.25);
+    let lines = render_text(&s, now, 80, 24);
+    let text = lines.join("\n");
+    println!("{text}");
+    assert!(text.contains("-20.0 % CHECK"), "{text}");
 }
 
 #[test]

@@ -15,6 +15,9 @@ pub struct WatchSummary {
     /// Per probe of every device (highest first): name, elevation in mm, and the running
     /// figures of its latest run.
     pub probes: Vec<(String, f64, crate::shared::probe_summary::ProbeTally)>,
+    /// Unit discharges of the stations (streamwise position in mm) from those figures, with
+    /// the continuity check against the layout's discharge.
+    pub discharges: Vec<(f64, crate::shared::discharge::Discharge)>,
 }
 
 impl std::fmt::Display for WatchSummary {
@@ -63,6 +66,9 @@ impl std::fmt::Display for WatchSummary {
                 )
                 .collect();
             f.write_str(&crate::shared::probe_summary::summary_table(&rows))?;
+        }
+        for (x, d) in &self.discharges {
+            f.write_str(&crate::shared::discharge::summary(*x, d))?;
         }
         writeln!(f, "{} window results; files written:", self.report.windows)?;
         for p in &self.report.files {

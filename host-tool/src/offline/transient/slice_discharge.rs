@@ -1,13 +1,13 @@
 //! The unit discharges of each profile slice behind a front: `q_w = ∫ (1 − C) V dy` and
 //! `q_a = ∫ C V dy` across a station's probes, from the window records of the slice (the
 //! windows that start where the slice starts), with the same fits and depth integral as a
-//! steady run's discharge.csv ([`crate::offline::discharge`]).
+//! steady run's discharge.csv ([`crate::shared::discharge`]).
 //!
 //! A station chain hands out a slice's window records and its profile together (the same
 //! drain), so the records wait here only until their slice's profile comes: a few slices at
 //! most, whatever the capture's length.
 
-use crate::offline::discharge::{discharge, ArrayPoint};
+use crate::shared::discharge::{discharge, ArrayPoint};
 use crate::shared::layout::Layout;
 use crate::shared::probe_summary::SummaryRule;
 use crate::shared::rig::HostRecord;

@@ -302,36 +302,52 @@ pub fn station_discharges(
     layout: &crate::shared::layout::Layout,
     tallies: &[crate::shared::probe_summary::ProbeTally],
 ) -> Vec<(f64, Discharge)> {
-    let mut xs: Vec<f64> = layout.probes.iter().map(|p| p.x_mm).collect();
-    xs.sort_by(f64::total_cmp);
-    xs.dedup();
+    let points = layout
+        .probes
+        .iter()
+        .zip(tallies)
+        .map(|(p, t)| (p.x_mm, point_of_tally(&p.name, p.elevation_mm, t)));
+    by_station(points, layout.flow.discharge_m2_s)
+}
+
+/// A probe of the array from its per-probe summary (the run's mean C and V); dead when its
+/// tip was stuck in more than half of its windows.
+pub fn point_of_tally(
+    name: &str,
+    y_mm: f64,
+    t: &crate::shared::probe_summary::ProbeTally,
+) -> ArrayPoint {
+    let stuck = t
+        .flag_counts()
+        .into_iter()
+        .find(|(n, _)| n == "stuck")
+        .map_or(0, |(_, n)| n as u64);
+    ArrayPoint {
+        name: name.to_string(),
+        y_mm,
+        c: t.void_fraction().map(|e| e.mean),
+        v_m_s: t.velocity_m_s().map(|e| e.mean),
+        dead: t.windows > 0 && stuck * 2 > t.windows,
+    }
+}
+
+/// The discharges of the stations among `points` (streamwise position, probe): probes of
+/// one `x_mm` form a station, which needs at least three.
+pub fn by_station(
+    points: impl IntoIterator<Item = (f64, ArrayPoint)>,
+    expected_m2_s: Option<f64>,
+) -> Vec<(f64, Discharge)> {
+    let mut points: Vec<(f64, ArrayPoint)> =
+        points.into_iter().filter(|(x, _)| x.is_finite()).collect();
+    points.sort_by(|a, b| a.0.total_cmp(&b.0));
     let mut out = Vec::new();
-    for x in xs {
-        let points: Vec<ArrayPoint> = layout
-            .probes
-            .iter()
-            .zip(tallies)
-            .filter(|(p, _)| p.x_mm == x)
-            .map(|(p, t)| {
-                let stuck = t
-                    .flag_counts()
-                    .into_iter()
-                    .find(|(n, _)| n == "stuck")
-                    .map_or(0, |(_, n)| n as u64);
-                ArrayPoint {
-                    name: p.name.clone(),
-                    y_mm: p.elevation_mm,
-                    c: t.void_fraction().map(|e| e.mean),
-                    v_m_s: t.velocity_m_s().map(|e| e.mean),
-                    dead: t.windows > 0 && stuck * 2 > t.windows,
-                }
-            })
-            .collect();
-        if points.len() < 3 {
+    for group in points.chunk_by(|a, b| a.0 == b.0) {
+        if group.len() < 3 {
             continue;
         }
-        if let Some(d) = discharge(&points, layout.flow.discharge_m2_s) {
-            out.push((x, d));
+        let array: Vec<ArrayPoint> = group.iter().map(|(_, p)| p.clone()).collect();
+        if let Some(d) = discharge(&array, expected_m2_s) {
+            out.push((group[0].0, d));
         }
     }
     out
