@@ -37,17 +37,19 @@ use crate::shared::window_spec::WindowSpec;
 use frothline_core::{ChainConfig, ConfigError, FrontRecord, ProfileRecord, WindowPolicy};
 use std::path::{Path, PathBuf};
 
+mod counts;
 mod indicators;
 mod outputs;
 mod record_store;
 mod rows;
 mod slice_discharge;
 mod summary;
+pub use counts::{RecordCounts, StationSlices};
 pub use indicators::{flow_indicators, FlowIndicators};
 pub use outputs::{write_output_set, write_output_set_from, write_outputs, TransientFiles};
 pub use record_store::{DischargeStore, ProfileStore, RecordStore, WindowStore};
 pub use slice_discharge::{SliceDischarge, SLICE_DISCHARGE_COLUMNS};
-pub use summary::{summary, summary_with, RecordCounts, StationSlices};
+pub use summary::{summary, summary_with};
 
 /// Flag of stations.csv (and the summary) for a station the front reached before the one
 /// upstream of it.

@@ -1,8 +1,8 @@
 //! Writing the output files of a transient replay as one set (committed together).
 
+use super::counts::RecordCounts;
 use super::indicators::flow_indicators;
 use super::slice_discharge::{SliceDischarge, SLICE_DISCHARGE_COLUMNS};
-use super::summary::RecordCounts;
 use super::TransientRun;
 use crate::offline::replay_common as common;
 use crate::shared::error::{write_err, HostError};
