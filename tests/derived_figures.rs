@@ -109,10 +109,32 @@ struct Run {
 
 /// Synthesise, optionally silence probe `dead` (its leading tip held in water), replay.
 fn run_case(shape: f64, grouping: f64, seed: u64, dead: Option<usize>, duration: f64) -> Run {
+    run_case_with(shape, grouping, seed, dead, duration, None)
+}
+
+/// [`run_case`] with `[detector]` keys added to the layout (`detector`: TOML lines).
+fn run_case_with(
+    shape: f64,
+    grouping: f64,
+    seed: u64,
+    dead: Option<usize>,
+    duration: f64,
+    detector: Option<&str>,
+) -> Run {
     let dir = tempfile::tempdir().unwrap();
     let g = Generator::new(scenario(shape, grouping, seed, duration), seed).unwrap();
     let synth = dir.path().join("synth");
     g.write_dir(&synth, false).unwrap();
+    if let Some(keys) = detector {
+        let path = synth.join("layout.toml");
+        let text = std::fs::read_to_string(&path).unwrap();
+        let text = if text.contains("[detector]") {
+            text.replacen("[detector]", &format!("[detector]\n{keys}"), 1)
+        } else {
+            format!("{text}\n[detector]\n{keys}\n")
+        };
+        std::fs::write(&path, text).unwrap();
+    }
     let truth = g.truth();
     let wav = synth.join("capture.wav");
     if let Some(p) = dead {
@@ -275,4 +297,30 @@ fn no_grouping_stays_within_its_random_reference() {
             w["probe"]
         );
     }
+}
+
+/// The near-wake criterion as a fixed time (`near_wake_ms` in the layout): Poisson arrivals
+/// stay within the random-arrival reference under that rule too (which the reference
+/// follows: `p = 1 − exp(−T / mean water chord)`), and the counts differ from the default
+/// rule's.
+#[test]
+fn a_fixed_time_near_wake_follows_its_reference() {
+    let by_chord = run_case(1.0, 0.0, 18, None, 12.0);
+    let by_time = run_case_with(1.0, 0.0, 18, None, 12.0, Some("near_wake_ms = 0.5"));
+    let mut differ = 0;
+    for (a, w) in by_chord.windows.iter().zip(&by_time.windows) {
+        let z = num(w, "grouping_z");
+        let f = num(w, "clustered_fraction");
+        let f0 = num(w, "random_clustered_fraction");
+        assert!(z.abs() < 3.5, "{}: z = {z} without grouping", w["probe"]);
+        assert!(
+            (f - f0).abs() < 0.05,
+            "{}: clustered {f} against random {f0}",
+            w["probe"]
+        );
+        if (f - num(a, "clustered_fraction")).abs() > 1e-6 {
+            differ += 1;
+        }
+    }
+    assert!(differ > 0, "the criterion changed no count");
 }

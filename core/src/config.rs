@@ -182,6 +182,7 @@ impl<const P: usize> ChainConfig<P> {
                 min_swing: 0,
                 min_peak_coefficient: 0.0,
                 min_bubbles: 0,
+                near_wake: crate::cluster::NearWake::CHORD,
             },
             probes: Vec::new(),
             window: WindowPolicy::Bubbles {

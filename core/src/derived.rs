@@ -19,7 +19,9 @@
 //! - **particle grouping**: a bubble and the next one form a pair when the water chord
 //!   between them is shorter than the leading bubble's own chord: the trailing bubble is in
 //!   the near wake of the leading one (the near-wake criterion of the particle-grouping
-//!   literature for air-water flows; from memory). Runs of such pairs are clusters. The reference is random arrivals: bubbles
+//!   literature for air-water flows; from memory). The criterion can also be a fraction of
+//!   that chord or a fixed time ([`crate::cluster::NearWake`], the layout's
+//!   `near_wake_chord_fraction` / `near_wake_ms`), the reference following it. Runs of such pairs are clusters. The reference is random arrivals: bubbles
 //!   arriving as a Poisson process, so the water chord after a bubble is exponential with
 //!   the window's mean water chord, the bubble chords keeping the window's distribution.
 //!   Each bubble then pairs with the next with probability `p = P(W < B)`, independently of
@@ -49,6 +51,32 @@ pub use crate::cluster::ClusterStats;
 /// holds one, its geometric middle otherwise. `None` without bubble chords or without a
 /// positive mean water chord. O(bins).
 pub fn pair_probability(bubbles: &ChordStats, mean_water: f32) -> Option<f32> {
+    pair_probability_by(bubbles, mean_water, crate::cluster::NearWake::CHORD)
+}
+
+/// [`pair_probability`] under the criterion `wake`: with a fixed time `T` (frames) the
+/// exponential water chord gives `p = 1 − exp(−T / mean_water)` whatever the bubbles; with a
+/// fraction `k` of the bubble's chord, `p = E[1 − exp(−k B / mean_water)]`. `None` without
+/// bubble chords or without a positive mean water chord.
+pub fn pair_probability_by(
+    bubbles: &ChordStats,
+    mean_water: f32,
+    wake: crate::cluster::NearWake,
+) -> Option<f32> {
+    let nb: u32 = bubbles.bins.iter().fold(0u32, |a, &c| a.saturating_add(c));
+    if nb == 0 || !(mean_water > 0.0 && mean_water.is_finite()) {
+        return None;
+    }
+    if wake.frames > 0 {
+        let p = 1.0 - F32Ext::exp(-(wake.frames as f32) / mean_water);
+        return p.is_finite().then_some(p.clamp(0.0, 1.0));
+    }
+    let k = wake.chord_fraction();
+    pair_probability_scaled(bubbles, mean_water / k)
+}
+
+/// `E[1 − exp(−B / mean_water)]` over the bubble chord histogram.
+fn pair_probability_scaled(bubbles: &ChordStats, mean_water: f32) -> Option<f32> {
     let nb: u32 = bubbles.bins.iter().fold(0u32, |a, &c| a.saturating_add(c));
     if nb == 0 || !(mean_water > 0.0 && mean_water.is_finite()) {
         return None;
@@ -254,9 +282,10 @@ impl Derived {
         let cl = &tip.clusters;
         let secs = (fs > 0.0 && tip.frames > 0).then(|| tip.frames as f32 / fs);
         let random = f
-            .zip(pair_probability(
+            .zip(pair_probability_by(
                 chords,
                 tip.droplet_chords.mean().unwrap_or(0.0),
+                cl.wake,
             ))
             .map(|(f, p)| RandomClusters::new(p, f));
         let grouping_z = random.and_then(|r| {

@@ -68,6 +68,9 @@ pub struct DetectorConfig {
     /// Dual-tip correlation: a window in which either tip closed fewer bubbles than this is
     /// flagged [`Flags::FEW_BUBBLES`](crate::Flags::FEW_BUBBLES) (10 by default).
     pub min_bubbles: u32,
+    /// The near-wake criterion of the cluster tally (by default the water chord shorter than
+    /// the leading bubble's chord).
+    pub near_wake: crate::cluster::NearWake,
 }
 
 impl Default for DetectorConfig {
@@ -81,6 +84,7 @@ impl Default for DetectorConfig {
             min_swing: 64,
             min_peak_coefficient: 0.3,
             min_bubbles: 10,
+            near_wake: crate::cluster::NearWake::CHORD,
         }
     }
 }

@@ -62,6 +62,11 @@ impl TipAccumulator {
         }
     }
 
+    /// Count clusters by `wake` from now on.
+    pub fn set_near_wake(&mut self, wake: crate::cluster::NearWake) {
+        self.clusters.set_wake(wake);
+    }
+
     /// Add the sample counts of a run of `frames` frames.
     pub fn add_run(&mut self, frames: u32, c: RunCounts) {
         self.frames += frames as u64;

@@ -3,8 +3,10 @@
 //! against a direct Monte Carlo with a general-purpose RNG (`rand`'s `StdRng`).
 
 use frothline_core::chord::ChordStats;
+use frothline_core::cluster::NearWake;
 use frothline_core::derived::{
-    interfacial_area, pair_probability, sauter_diameter, Derived, RandomClusters,
+    interfacial_area, pair_probability, pair_probability_by, sauter_diameter, Derived,
+    RandomClusters,
 };
 use frothline_core::tip_stats::TipAccumulator;
 use frothline_core::{Edge, EdgeSink};
@@ -87,7 +89,13 @@ fn direct_count(chords: &[(u32, u32)]) -> (u32, u32, u32) {
 
 /// Feed the chords to a tip accumulator as edges, starting in water at frame 0.
 fn tally(chords: &[(u32, u32)]) -> frothline_core::TipStats {
+    tally_by(chords, NearWake::CHORD)
+}
+
+/// [`tally`] with the near-wake criterion `wake`.
+fn tally_by(chords: &[(u32, u32)], wake: NearWake) -> frothline_core::TipStats {
     let mut acc = TipAccumulator::new();
+    acc.set_near_wake(wake);
     let mut t = 1000u64;
     acc.edge(Edge {
         frame: 0,
@@ -266,5 +274,67 @@ fn chord_quantiles_follow_the_sample() {
                 "shape {shape} mean {mean} q {q}: {got} against {exact}"
             );
         }
+    }
+}
+
+/// The near-wake criterion as a fixed time or as a fraction of the bubble's chord: the tally
+/// counts what a direct count by the same rule gives, and under Poisson arrivals
+/// (exponential water chords drawn with `rand`) the pair fraction is `1 − exp(−T/W̄)` for a
+/// time `T` (the exponential distribution's CDF at `T`; analytic case) and the reference
+/// `pair_probability_by` agrees with the Monte Carlo for both forms.
+#[test]
+fn fixed_time_and_fractional_near_wake() {
+    let mut rng = StdRng::seed_from_u64(41);
+    let chords = renewal(&mut rng, 20_000, 100.0, 250.0, 1.0);
+    let n = (chords.len() - 1) as f64;
+    // The last chord's water closes the record: judged, and counted by the tally too.
+    let count = |rule: &dyn Fn(u32, u32) -> bool| {
+        chords.iter().filter(|&&(b, w)| rule(w, b)).count() as u32
+    };
+    let mut bubbles = ChordStats::new();
+    let mut water = ChordStats::new();
+    for &(b, w) in &chords {
+        bubbles.add(b);
+        water.add(w);
+    }
+    let w_mean = water.mean().unwrap();
+    for (wake, rule) in [
+        (
+            NearWake {
+                frames: 60,
+                chord_permille: 0,
+            },
+            Box::new(|w: u32, _b: u32| w < 60) as Box<dyn Fn(u32, u32) -> bool>,
+        ),
+        (
+            NearWake {
+                frames: 0,
+                chord_permille: 500,
+            },
+            Box::new(|w: u32, b: u32| 2 * w < b),
+        ),
+    ] {
+        let stats = tally_by(&chords, wake);
+        assert_eq!(stats.clusters.wake, wake, "the record names its criterion");
+        assert_eq!(stats.clusters.pairs, count(&*rule), "{wake:?}");
+        let p_mc = stats.clusters.pairs as f64 / n;
+        let p_ref = pair_probability_by(&bubbles, w_mean, wake).unwrap() as f64;
+        if wake.frames > 0 {
+            let exact = 1.0 - (-(wake.frames as f64) / w_mean as f64).exp();
+            // f32 arithmetic and micromath's exp: a few parts in a million.
+            assert!((p_ref - exact).abs() < 1e-4, "{p_ref} vs {exact}");
+        }
+        // 20 000 draws: a standard error of about 0.003 on p.
+        assert!(
+            (p_ref - p_mc).abs() < 0.012 + 0.03 * p_mc,
+            "{wake:?}: reference {p_ref} against Monte Carlo {p_mc}"
+        );
+        // The window's derived figures use the criterion the record carries.
+        let d = Derived::of_tip(&stats, 40_000.0, None);
+        let r = d.random.unwrap();
+        assert!(
+            (r.pair_probability as f64 - p_ref).abs() < 0.02,
+            "{r:?} vs {p_ref}"
+        );
     }
 }

@@ -78,6 +78,7 @@ impl Tip {
     pub(super) fn configure(&mut self, cfg: &TipConfig, det: &DetectorConfig, initial_air: bool) {
         self.detector = PhaseDetector::new(cfg, det, initial_air);
         self.stats = TipAccumulator::new();
+        self.stats.set_near_wake(det.near_wake);
     }
 
     #[inline]

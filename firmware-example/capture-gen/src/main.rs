@@ -188,6 +188,7 @@ fn emit_chain<const P: usize>(w: &mut String, cfg: &ChainConfig<P>) -> Result<()
         min_swing,
         min_peak_coefficient,
         min_bubbles,
+        near_wake,
     } = detector;
     let _ = writeln!(w, "/// Interleaved channels per frame.");
     let _ = writeln!(w, "pub const CHANNELS: u8 = {channels};");
@@ -218,7 +219,9 @@ fn emit_chain<const P: usize>(w: &mut String, cfg: &ChainConfig<P>) -> Result<()
         "pub const DETECTOR: DetectorConfig = DetectorConfig {{\n    threshold: {threshold:?},\n    \
          hysteresis: {hysteresis:?},\n    learn_period: {learn_period},\n    rail_low: {rail_low},\n    \
          rail_high: {rail_high},\n    min_swing: {min_swing},\n    \
-         min_peak_coefficient: {min_peak_coefficient:?},\n    min_bubbles: {min_bubbles},\n}};"
+         min_peak_coefficient: {min_peak_coefficient:?},\n    min_bubbles: {min_bubbles},\n    \
+         near_wake: frothline_core::cluster::NearWake {{ frames: {}, chord_permille: {} }},\n}};",
+        near_wake.frames, near_wake.chord_permille
     );
     let _ = writeln!(w, "/// The probes, in layout order.");
     let _ = writeln!(w, "pub const PROBE_CONFIGS: [ProbeConfig; PROBES] = [");

@@ -15,6 +15,9 @@
 //! [detector]                  # optional, every key optional
 //! threshold = 0.5
 //! hysteresis = 0.2
+//! near_wake_ms = 1.5          # cluster pairs: water chord shorter than this (or
+//!                             # near_wake_chord_fraction = 0.5 of the bubble's chord;
+//!                             # default: the bubble's own chord)
 //!
 //! [[probe]]                   # one or more
 //! name = "A"
@@ -146,6 +149,12 @@ pub struct DetectorSettings {
     pub rail_high: Option<f64>,
     /// Smallest air-water swing accepted when learning levels, file units (> 0).
     pub min_swing: Option<f64>,
+    /// Near-wake criterion of the cluster tally: a bubble and the next pair when the water
+    /// chord between them is shorter than this time, ms (0 < t <= 1000).
+    pub near_wake_ms: Option<f64>,
+    /// ... or shorter than this fraction of the leading bubble's chord (0.001 to 60; default:
+    /// the bubble's own chord, 1). At most one of the two.
+    pub near_wake_chord_fraction: Option<f64>,
 }
 
 impl Default for DetectorSettings {
@@ -157,6 +166,8 @@ impl Default for DetectorSettings {
             rail_low: None,
             rail_high: None,
             min_swing: None,
+            near_wake_ms: None,
+            near_wake_chord_fraction: None,
         }
     }
 }

@@ -99,6 +99,14 @@ pub fn chain_config(
                 .round()
                 .clamp(1.0, u16::MAX as f64) as u16
         }),
+        near_wake: frothline_core::cluster::NearWake {
+            frames: d.near_wake_ms.map_or(0, |ms| {
+                (ms * 1e-3 * fs).round().clamp(1.0, u32::MAX as f64) as u32
+            }),
+            chord_permille: d.near_wake_chord_fraction.map_or(0, |k| {
+                (k * 1000.0).round().clamp(1.0, u16::MAX as f64) as u16
+            }),
+        },
         ..DetectorConfig::default()
     };
     let mut cfg = ChainConfig::new(channels as u8, window);

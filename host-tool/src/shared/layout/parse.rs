@@ -39,6 +39,8 @@ pub(super) struct RawDetector {
     pub(super) rail_low: Option<Spanned<f64>>,
     pub(super) rail_high: Option<Spanned<f64>>,
     pub(super) min_swing: Option<Spanned<f64>>,
+    pub(super) near_wake_ms: Option<Spanned<f64>>,
+    pub(super) near_wake_chord_fraction: Option<Spanned<f64>>,
 }
 
 #[derive(Deserialize)]
@@ -489,6 +491,33 @@ pub(super) fn build_detector(
         .as_ref()
         .map(|v| cx.positive("detector.min_swing", v))
         .transpose()?;
+    if let (Some(_), Some(v)) = (&d.near_wake_ms, &d.near_wake_chord_fraction) {
+        return Err(cx.err(
+            "detector.near_wake_chord_fraction",
+            v.span(),
+            Problem::Inconsistent {
+                detail: "give near_wake_ms or near_wake_chord_fraction, not both".into(),
+            },
+        ));
+    }
+    if let Some(v) = &d.near_wake_ms {
+        let x = *v.get_ref();
+        s.near_wake_ms = Some(cx.range(
+            "detector.near_wake_ms",
+            v,
+            x > 0.0 && x <= 1000.0,
+            "> 0 and <= 1000",
+        )?);
+    }
+    if let Some(v) = &d.near_wake_chord_fraction {
+        let x = *v.get_ref();
+        s.near_wake_chord_fraction = Some(cx.range(
+            "detector.near_wake_chord_fraction",
+            v,
+            (0.001..=60.0).contains(&x),
+            ">= 0.001 and <= 60",
+        )?);
+    }
     Ok(s)
 }
 

@@ -675,3 +675,27 @@ fn location_counts_characters() {
     assert_eq!(Location::of_offset(text, 1000).line, 3);
     assert_eq!(Location::of_offset("", 0), Location { line: 1, column: 1 });
 }
+
+/// The near-wake keys: one or the other, in range, each error naming its key and line.
+#[test]
+fn near_wake_keys() {
+    let with = |keys: &str| format!("{MIN}\n[detector]\n{keys}\n");
+    let l = parse(&with("near_wake_ms = 1.5")).unwrap();
+    assert_eq!(l.detector.near_wake_ms, Some(1.5));
+    assert_eq!(l.detector.near_wake_chord_fraction, None);
+    let l = parse(&with("near_wake_chord_fraction = 0.5")).unwrap();
+    assert_eq!(l.detector.near_wake_chord_fraction, Some(0.5));
+    // MIN has 7 lines, a blank one, then [detector] on line 9.
+    fails(&with("near_wake_ms = 0"), "detector.near_wake_ms", 10);
+    fails(
+        &with("near_wake_chord_fraction = 1e9"),
+        "detector.near_wake_chord_fraction",
+        10,
+    );
+    let m = fails(
+        &with("near_wake_ms = 1\nnear_wake_chord_fraction = 0.5"),
+        "detector.near_wake_chord_fraction",
+        11,
+    );
+    assert!(m.contains("not both"), "{m}");
+}
