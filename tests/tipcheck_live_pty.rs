@@ -22,6 +22,37 @@ fn big_stack<F: FnOnce() + Send + 'static>(f: F) {
     }
 }
 
+/// `tipcheck --port` (listening `listen` s, with `--set-levels` if `set`) against the
+/// simulated device playing `cap` on a pseudo-terminal; the report and the device's counters.
+fn check_on_sim(
+    cap: SimCapture,
+    opts: SimOptions,
+    layout: &std::path::Path,
+    listen: f64,
+    set: bool,
+) -> (
+    frothline_host::live::tipcheck_live::LiveReport,
+    device_sim::SimStats,
+) {
+    let (mut master, slave) = serialport::TTYPort::pair().expect("a pseudo-terminal pair");
+    master.set_timeout(Duration::from_millis(2)).unwrap();
+    let path = slave.name().unwrap();
+    let stop = Arc::new(AtomicBool::new(false));
+    let sim = device_sim::spawn(cap, opts, master, stop.clone()).unwrap();
+    let args = LiveCheck {
+        baud: 115_200,
+        listen,
+        set_levels: set,
+        layout: layout.to_path_buf(),
+        tolerance: 0.05,
+    };
+    let report = frothline_host::live::tipcheck_live::run(&args, &path).unwrap();
+    stop.store(true, Ordering::Relaxed);
+    let stats = sim.join().unwrap().unwrap();
+    drop(slave);
+    (report, stats)
+}
+
 #[test]
 fn a_live_tipcheck_reads_every_tip_and_sets_its_levels() {
     big_stack(live_tipcheck);
@@ -37,27 +68,12 @@ fn live_tipcheck() {
     let layout_path = tmp.path().join("layout.toml");
     std::fs::write(&layout_path, &cap.layout_text).unwrap();
     let layout = cap.layout.clone();
-    let (mut master, slave) = serialport::TTYPort::pair().expect("a pseudo-terminal pair");
-    master.set_timeout(Duration::from_millis(2)).unwrap();
-    let path = slave.name().unwrap();
-    let stop = Arc::new(AtomicBool::new(false));
     let opts = SimOptions {
         baud: 0,
         repeat: true,
         ..SimOptions::default()
     };
-    let sim = device_sim::spawn(cap, opts, master, stop.clone()).unwrap();
-    let args = LiveCheck {
-        baud: 115_200,
-        listen: 2.5,
-        set_levels: true,
-        layout: layout_path,
-        tolerance: 0.05,
-    };
-    let report = frothline_host::live::tipcheck_live::run(&args, &path).unwrap();
-    stop.store(true, Ordering::Relaxed);
-    let stats = sim.join().unwrap().unwrap();
-    drop(slave);
+    let (report, stats) = check_on_sim(cap, opts, &layout_path, 2.5, true);
 
     // Every tip of every probe (4 dual-tip probes).
     assert_eq!(report.tips.len(), 8, "{report:?}");
@@ -130,27 +146,12 @@ fn outside_a_run() {
     .unwrap();
     let cap = SimCapture::from_files(&capture, &layout_path, "100ms".parse().unwrap()).unwrap();
     let layout = cap.layout.clone();
-    let (mut master, slave) = serialport::TTYPort::pair().expect("a pseudo-terminal pair");
-    master.set_timeout(Duration::from_millis(2)).unwrap();
-    let path = slave.name().unwrap();
-    let stop = Arc::new(AtomicBool::new(false));
     let opts = SimOptions {
         baud: 0,
         autostart: false,
         ..SimOptions::default()
     };
-    let sim = device_sim::spawn(cap, opts, master, stop.clone()).unwrap();
-    let args = LiveCheck {
-        baud: 115_200,
-        listen: 1.0,
-        set_levels: false,
-        layout: layout_path,
-        tolerance: 0.05,
-    };
-    let report = frothline_host::live::tipcheck_live::run(&args, &path).unwrap();
-    stop.store(true, Ordering::Relaxed);
-    sim.join().unwrap().unwrap();
-    drop(slave);
+    let (report, _) = check_on_sim(cap, opts, &layout_path, 1.0, false);
     assert_eq!(report.tips.len(), 8, "{report:?}");
     for t in &report.tips {
         let fx = layout.probes[t.probe_index as usize]

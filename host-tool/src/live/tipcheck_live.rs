@@ -99,10 +99,38 @@ fn flags_of(
     v
 }
 
+/// One tip's row: `t` over a window of `frames` frames (0: no window, the levels only) at
+/// `fs` Hz, flagged against `layout`'s levels for probe `probe`.
+#[allow(clippy::too_many_arguments)]
+fn tip_row(
+    device: u16,
+    probe: u8,
+    trailing: bool,
+    t: &TipState,
+    frames: u32,
+    fs: f32,
+    layout: &Layout,
+    tolerance: f64,
+) -> LiveTip {
+    let p = layout.probes.get(probe as usize);
+    LiveTip {
+        device,
+        probe: p.map_or_else(|| format!("p{probe}"), |p| p.name.clone()),
+        probe_index: probe,
+        trailing,
+        levels: t.levels.map(|l| (l.air, l.water)),
+        swing: t.levels.map(|l| l.swing()),
+        interfaces_per_s: t.interfaces_per_s(frames, fs),
+        flags: flags_of(t, frames, p.and_then(|p| p.tip_levels(trailing)), tolerance),
+        set: None,
+        fixed: None,
+    }
+}
+
 /// The rows of the latest reports, against `layout`; then the tips that only the
 /// levels-in-use frames (`in_use`, per device) named (a device outside a run closes no
-/// window, so it sends no tip-health report), with the levels they carry. Every row takes
-/// its `fixed` from `in_use`.
+/// window, so it sends no tip-health report), with the levels they carry and nothing of
+/// switching. Every row takes its `fixed` from `in_use`.
 pub fn rows(
     reports: &BTreeMap<(u16, u8), TipReport>,
     rates: &BTreeMap<u16, f32>,
@@ -110,38 +138,35 @@ pub fn rows(
     layout: &Layout,
     tolerance: f64,
 ) -> Vec<LiveTip> {
-    let mut out = report_rows(reports, rates, layout, tolerance);
+    let mut out = Vec::new();
+    for (&(device, probe), r) in reports {
+        let fs = rates.get(&device).copied().unwrap_or(0.0);
+        for (trailing, t) in [(false, Some(&r.leading)), (true, r.trailing.as_ref())] {
+            if let Some(t) = t {
+                out.push(tip_row(
+                    device, probe, trailing, t, r.frames, fs, layout, tolerance,
+                ));
+            }
+        }
+    }
     for (&device, levels) in in_use {
         for (probe, p) in levels.iter().enumerate() {
             let probe = probe as u8;
             if reports.contains_key(&(device, probe)) {
                 continue;
             }
-            let lp = layout.probes.get(probe as usize);
-            let name = lp.map_or_else(|| format!("p{probe}"), |p| p.name.clone());
-            for (trailing, t) in [(false, Some(&p.leading)), (true, p.trailing.as_ref())] {
-                let Some(t) = t else { continue };
+            for (trailing, s) in [(false, Some(&p.leading)), (true, p.trailing.as_ref())] {
+                let Some(s) = s else { continue };
                 let state = TipState {
-                    levels: t.levels,
+                    levels: s.levels,
                     interfaces: 0,
                     bubbles: 0,
                     void_fraction: 0,
                     flags: 0,
                 };
-                let fixed = lp.and_then(|p| p.tip_levels(trailing));
-                out.push(LiveTip {
-                    device,
-                    probe: name.clone(),
-                    probe_index: probe,
-                    trailing,
-                    levels: t.levels.map(|l| (l.air, l.water)),
-                    swing: t.levels.map(|l| l.swing()),
-                    interfaces_per_s: None,
-                    // No window: nothing to say of switching.
-                    flags: flags_of(&state, 0, fixed, tolerance),
-                    set: None,
-                    fixed: None,
-                });
+                out.push(tip_row(
+                    device, probe, trailing, &state, 0, 0.0, layout, tolerance,
+                ));
             }
         }
     }
@@ -157,37 +182,6 @@ pub fn rows(
                     Some(p.leading.fixed)
                 }
             });
-    }
-    out
-}
-
-fn report_rows(
-    reports: &BTreeMap<(u16, u8), TipReport>,
-    rates: &BTreeMap<u16, f32>,
-    layout: &Layout,
-    tolerance: f64,
-) -> Vec<LiveTip> {
-    let mut out = Vec::new();
-    for (&(device, probe), r) in reports {
-        let fs = rates.get(&device).copied().unwrap_or(0.0);
-        let p = layout.probes.get(probe as usize);
-        let name = p.map_or_else(|| format!("p{probe}"), |p| p.name.clone());
-        for (trailing, t) in [(false, Some(&r.leading)), (true, r.trailing.as_ref())] {
-            let Some(t) = t else { continue };
-            let fixed = p.and_then(|p| p.tip_levels(trailing));
-            out.push(LiveTip {
-                device,
-                probe: name.clone(),
-                probe_index: probe,
-                trailing,
-                levels: t.levels.map(|l| (l.air, l.water)),
-                swing: t.levels.map(|l| l.swing()),
-                interfaces_per_s: t.interfaces_per_s(r.frames, fs),
-                flags: flags_of(t, r.frames, fixed, tolerance),
-                set: None,
-                fixed: None,
-            });
-        }
     }
     out
 }

@@ -115,29 +115,7 @@ mod tests {
     use super::*;
 
     fn record(probe: u8, frames: u64, air_frames: u64, bubbles: u32) -> HostRecord {
-        HostRecord {
-            probe,
-            start: 0,
-            end: frames,
-            since_front: None,
-            lead: frothline_core::TipStats {
-                frames,
-                air_frames,
-                rail_frames: 0,
-                unlearnt_frames: 0,
-                bubbles,
-                droplets: 0,
-                bubble_chords: ChordStats::new(),
-                droplet_chords: ChordStats::new(),
-                clusters: Default::default(),
-                levels: None,
-                flags: Flags::NONE,
-            },
-            trail: None,
-            flags: Flags::NONE,
-            correlation: None,
-            correlation_sums: None,
-        }
+        crate::shared::rig::test_record(probe, 0, frames, air_frames, bubbles)
     }
 
     /// Totals equal the sums over the records (void fraction as the frame-weighted mean,

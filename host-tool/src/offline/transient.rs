@@ -213,8 +213,13 @@ impl StoredRecords {
     }
 }
 
+/// The records' temporary file failed (its folder: the system's temporary folder, TMPDIR):
+/// a write failure, exit 1.
 fn spill_error(e: std::io::Error) -> HostError {
-    HostError::Usage(format!("cannot keep the window records: {e}"))
+    HostError::Write {
+        path: std::env::temp_dir(),
+        source: e,
+    }
 }
 
 /// [`run_blocks`], keeping the window records and profile slices in [`StoredRecords`]
@@ -388,13 +393,7 @@ pub fn replay_capture_to_cut(
     rule: LevelRule,
     full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
 ) -> Result<(TransientRun, Capture), HostError> {
-    let layout = Layout::load(layout_path)?;
-    let mut cap = Capture::open(capture)?;
-    crate::shared::rig::require_frames(&cap)?;
-    cap.end_at_cut();
-    layout.check_channels(cap.channels(), layout_path)?;
-    crate::shared::rig::check_levels_fit(&layout, &cap, layout_path)?;
-    let (mut run, stored) = replay_open(&mut cap, &layout, layout_path, window, rule, full)?;
+    let (mut run, stored, cap) = replay_capture_stored(capture, layout_path, window, rule, full)?;
     stored.into_run(&mut run)?;
     let (abrupt, last) = (cap.ends_abruptly(), cap.position());
     for w in &mut run.windows {
@@ -412,6 +411,7 @@ pub fn replay_capture_stored(
     layout_path: &Path,
     window: &WindowSpec,
     rule: LevelRule,
+    full: Option<&mut (dyn FnMut(&FullRecord) + Send)>,
 ) -> Result<(TransientRun, StoredRecords, Capture), HostError> {
     let layout = Layout::load(layout_path)?;
     let mut cap = Capture::open(capture)?;
@@ -419,7 +419,7 @@ pub fn replay_capture_stored(
     cap.end_at_cut();
     layout.check_channels(cap.channels(), layout_path)?;
     crate::shared::rig::check_levels_fit(&layout, &cap, layout_path)?;
-    let (run, stored) = replay_open(&mut cap, &layout, layout_path, window, rule, None)?;
+    let (run, stored) = replay_open(&mut cap, &layout, layout_path, window, rule, full)?;
     Ok((run, stored, cap))
 }
 
@@ -509,7 +509,7 @@ pub fn run(args: &ReplayArgs) -> Result<(TransientRun, ReplayReport), HostError>
 /// [`run`], keeping the window records in the report or not (`keep`).
 pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<(TransientRun, ReplayReport), HostError> {
     let (run, mut stored, cap) =
-        replay_capture_stored(&args.capture, &args.layout, &args.window, args.levels)?;
+        replay_capture_stored(&args.capture, &args.layout, &args.window, args.levels, None)?;
     let (abrupt, last) = (cap.ends_abruptly(), cap.position());
     let mut records = Vec::new();
     let kept = &mut records;

@@ -30,6 +30,42 @@ pub type FullRecord = frothline_core::ProbeWindow<HOST_LAGS>;
 /// correlation sums ([`FullRecord::without_sums`]), so storing thousands stays cheap.
 pub type HostRecord = frothline_core::ProbeWindow<4>;
 
+/// A single-tip record for unit tests: `frames` frames from `start`, `air_frames` of them in
+/// air, `bubbles` bubbles, no chords, no flags.
+#[cfg(test)]
+pub(crate) fn test_record(
+    probe: u8,
+    start: u64,
+    frames: u64,
+    air_frames: u64,
+    bubbles: u32,
+) -> HostRecord {
+    use frothline_core::{chord::ChordStats, Flags};
+    HostRecord {
+        probe,
+        start,
+        end: start + frames,
+        since_front: None,
+        lead: frothline_core::TipStats {
+            frames,
+            air_frames,
+            rail_frames: 0,
+            unlearnt_frames: 0,
+            bubbles,
+            droplets: 0,
+            bubble_chords: ChordStats::new(),
+            droplet_chords: ChordStats::new(),
+            clusters: Default::default(),
+            levels: None,
+            flags: Flags::NONE,
+        },
+        trail: None,
+        flags: Flags::NONE,
+        correlation: None,
+        correlation_sums: None,
+    }
+}
+
 /// How the host maps file units to counts (the capture's conversion).
 pub trait ToCounts {
     /// A level or rail in file units, as i16 counts.

@@ -54,8 +54,9 @@ pub struct WatchArgs {
     #[arg(long)]
     pub relearn: bool,
     /// Ask each device for full windows: every column of windows.csv (droplet chord,
-    /// trailing tip, levels, correlation time scales), about twice the bytes of plain
-    /// results. A device that cannot refuses, and its results stay plain.
+    /// trailing tip, levels, correlation time scales). They cost link capacity (1.6 times
+    /// the bytes in a measured demo run). A device that cannot refuses, and its results stay
+    /// plain.
     #[arg(long)]
     pub extras: bool,
     /// Convergence target of the running figures, in percent: a probe is done when the

@@ -317,33 +317,10 @@ impl<T: Keyed> Iterator for Sorted<'_, T> {
 mod tests {
     use super::*;
 
-    use frothline_core::chord::ChordStats;
-    use frothline_core::Flags;
-
     fn rec(start: u64, probe: u8, bubbles: u32) -> HostRecord {
-        HostRecord {
-            probe,
-            start,
-            end: start + 10,
-            since_front: Some(start as i64 - 7),
-            lead: frothline_core::TipStats {
-                frames: 10,
-                air_frames: 3,
-                rail_frames: 0,
-                unlearnt_frames: 0,
-                bubbles,
-                droplets: 0,
-                bubble_chords: ChordStats::new(),
-                droplet_chords: ChordStats::new(),
-                clusters: Default::default(),
-                levels: None,
-                flags: Flags::NONE,
-            },
-            trail: None,
-            flags: Flags::NONE,
-            correlation: None,
-            correlation_sums: None,
-        }
+        let mut r = crate::shared::rig::test_record(probe, start, 10, 3, bubbles);
+        r.since_front = Some(start as i64 - 7);
+        r
     }
 
     /// The store gives what a stable in-memory sort by (start, probe) gives, spilled or not.
