@@ -233,3 +233,49 @@ fn a_misspelt_exclude_flag_is_refused() {
     assert!(text.contains("few_bubbles"), "{text}");
     assert_eq!(e.exit_code(), 2);
 }
+
+/// A chord_lengths.csv edited by hand (no manifest): a bin with a negative edge is refused
+/// naming the file and the line (as the last row it is taken for a cut and dropped with a
+/// note); one with a probe windows.csv does not have is left out with a note; no panic.
+#[test]
+fn a_broken_chord_lengths_file_names_itself() {
+    let src = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/steady-b2/expected");
+    let dir = tempfile::tempdir().unwrap();
+    for name in ["windows.csv", "chords.csv"] {
+        std::fs::copy(src.join(name), dir.path().join(name)).unwrap();
+    }
+    let lengths = "probe,elevation_mm,bin_lower_mm,bin_upper_mm,count\n\
+                   B2-1,8,0.5,0.6,3\nB2-1,8,-0.6,0.7,2\nB2-1,8,0.7,0.8,1\n";
+    std::fs::write(dir.path().join("chord_lengths.csv"), lengths).unwrap();
+    let out = dir.path().join("report");
+    let args = |out: &std::path::Path| {
+        [
+            "frothline".to_string(),
+            "report".into(),
+            dir.path().display().to_string(),
+            "--out".into(),
+            out.display().to_string(),
+        ]
+    };
+    let e = frothline_host::cli::run(args(&out)).unwrap_err();
+    let text = e.to_string();
+    assert!(
+        text.contains("chord_lengths.csv") && text.contains("line 3"),
+        "{text}"
+    );
+    let lengths = "probe,elevation_mm,bin_lower_mm,bin_upper_mm,count\n\
+                   B2-1,8,0.5,0.6,3\nX9,8,0.5,0.6,2\n";
+    std::fs::write(dir.path().join("chord_lengths.csv"), lengths).unwrap();
+    let hidden = indicatif::ProgressBar::hidden();
+    let run = frothline_host::report::input::read_run(dir.path(), &hidden).unwrap();
+    assert_eq!(run.chord_lengths.len(), 1);
+    assert!(
+        run.notes
+            .iter()
+            .any(|n| n.contains("chord_lengths.csv") && n.contains("X9")),
+        "{:?}",
+        run.notes
+    );
+    frothline_host::cli::run(args(&out)).unwrap();
+    assert!(out.join("chord_lengths.png").is_file());
+}

@@ -101,6 +101,9 @@ fn num(row: &HashMap<String, String>, key: &str) -> f64 {
 struct Run {
     windows: Rows,
     discharge: Rows,
+    /// chords.csv (pooled chord times) and chord_lengths.csv (pooled chord lengths).
+    chord_times: Rows,
+    chord_lengths: Rows,
     /// Per probe: generating chord lengths (chord time x V), mm, sorted.
     chord_mm: Vec<Vec<f64>>,
     /// Per probe: realised (C, F) of the leading tip.
@@ -109,7 +112,7 @@ struct Run {
 
 /// Synthesise, optionally silence probe `dead` (its leading tip held in water), replay.
 fn run_case(shape: f64, grouping: f64, seed: u64, dead: Option<usize>, duration: f64) -> Run {
-    run_case_with(shape, grouping, seed, dead, duration, None)
+    run_case_with(shape, grouping, seed, dead, duration, None, "whole")
 }
 
 /// [`run_case`] with `[detector]` keys added to the layout (`detector`: TOML lines).
@@ -120,6 +123,7 @@ fn run_case_with(
     dead: Option<usize>,
     duration: f64,
     detector: Option<&str>,
+    window: &str,
 ) -> Run {
     let dir = tempfile::tempdir().unwrap();
     let g = Generator::new(scenario(shape, grouping, seed, duration), seed).unwrap();
@@ -157,7 +161,7 @@ fn run_case_with(
         capture: wav,
         layout: synth.join("layout.toml"),
         out: out.clone(),
-        window: "whole".parse().unwrap(),
+        window: window.parse().unwrap(),
         quiet: true,
         levels: LevelRule::Record,
         strict: false,
@@ -194,6 +198,8 @@ fn run_case_with(
     Run {
         windows: read_csv(&out.join("windows.csv")),
         discharge: read_csv(&out.join("discharge.csv")),
+        chord_times: read_csv(&out.join("chords.csv")),
+        chord_lengths: read_csv(&out.join("chord_lengths.csv")),
         chord_mm,
         realised,
     }
@@ -255,6 +261,79 @@ fn steady_array_gives_its_generating_figures() {
     assert_eq!(d["probes_used"], "10");
 }
 
+/// Quantile `q` of a histogram given as (lower, upper, count) rows, interpolated
+/// geometrically inside the bin that holds it (bins spread evenly in log size, the rule the
+/// files are written by).
+fn histogram_quantile(bins: &[(f64, f64, f64)], q: f64) -> f64 {
+    let total: f64 = bins.iter().map(|b| b.2).sum();
+    let target = q * total;
+    let mut below = 0.0;
+    for &(lo, hi, n) in bins {
+        if below + n >= target && n > 0.0 {
+            let f = (target - below) / n;
+            return lo * (hi / lo).powf(f);
+        }
+        below += n;
+    }
+    bins.last().map_or(f64::NAN, |b| b.1)
+}
+
+/// The rows of `probe` in a pooled-histogram file, sorted by lower edge.
+fn bins_of(rows: &Rows, probe: &str, lower: &str, upper: &str) -> Vec<(f64, f64, f64)> {
+    let mut b: Vec<(f64, f64, f64)> = rows
+        .iter()
+        .filter(|r| r["probe"] == probe)
+        .map(|r| (num(r, lower), num(r, upper), num(r, "count")))
+        .collect();
+    b.sort_by(|x, y| x.0.total_cmp(&y.0));
+    b
+}
+
+/// The pooled chord-length histograms of chord_lengths.csv, over 4 s windows each with its
+/// own measured velocity, give the generating chord lengths (median and p90 within 2 %);
+/// every bubble of a window with a trusted velocity is in them once (counts add up to the
+/// windows' bubbles), and chords.csv holds every bubble of the used windows. Each row names
+/// the probe's elevation.
+#[test]
+fn pooled_chord_lengths_follow_the_generating_ones() {
+    let r = run_case_with(2.0, 0.0, 18, None, 40.0, None, "4s");
+    for i in 0..10 {
+        let name = format!("R{}", i + 1);
+        let windows: Vec<_> = r.windows.iter().filter(|w| w["probe"] == name).collect();
+        assert!(windows.len() >= 10, "{name}: {} windows", windows.len());
+        let bubbles: f64 = windows.iter().map(|w| num(w, "bubbles")).sum();
+        let times = bins_of(&r.chord_times, &name, "bin_lower_s", "bin_upper_s");
+        let n_times: f64 = times.iter().map(|b| b.2).sum();
+        assert_eq!(n_times, bubbles, "{name}: chords.csv against windows.csv");
+        let trusted: f64 = windows
+            .iter()
+            .filter(|w| !w["interfacial_velocity_m_s"].is_empty())
+            .filter(|w| {
+                !w["flags"].contains("no_correlation_peak")
+                    && !w["flags"].contains("peak_at_lag_boundary")
+            })
+            .map(|w| num(w, "bubbles"))
+            .sum();
+        let lengths = bins_of(&r.chord_lengths, &name, "bin_lower_mm", "bin_upper_mm");
+        let n_lengths: f64 = lengths.iter().map(|b| b.2).sum();
+        assert!(
+            (n_lengths - trusted).abs() < 0.01 * trusted.max(1.0) && trusted > 0.8 * bubbles,
+            "{name}: {n_lengths} chord lengths for {trusted} bubbles with a velocity ({bubbles} in all)"
+        );
+        for row in r.chord_lengths.iter().filter(|row| row["probe"] == name) {
+            assert_eq!(num(row, "elevation_mm"), elevation(i), "{name}");
+        }
+        for q in [0.5, 0.9] {
+            let want = quantile(&r.chord_mm[i], q);
+            let got = histogram_quantile(&lengths, q);
+            assert!(
+                (got / want - 1.0).abs() < 0.02,
+                "{name} pooled chord length q{q}: {got} mm against the generating {want} mm"
+            );
+        }
+    }
+}
+
 /// A dead probe (its leading tip held in water) is left out of the discharge and flagged.
 #[test]
 fn a_dead_probe_is_flagged_in_the_continuity_check() {
@@ -306,7 +385,15 @@ fn no_grouping_stays_within_its_random_reference() {
 #[test]
 fn a_fixed_time_near_wake_follows_its_reference() {
     let by_chord = run_case(1.0, 0.0, 18, None, 12.0);
-    let by_time = run_case_with(1.0, 0.0, 18, None, 12.0, Some("near_wake_ms = 0.5"));
+    let by_time = run_case_with(
+        1.0,
+        0.0,
+        18,
+        None,
+        12.0,
+        Some("near_wake_ms = 0.5"),
+        "whole",
+    );
     let mut differ = 0;
     for (a, w) in by_chord.windows.iter().zip(&by_time.windows) {
         let z = num(w, "grouping_z");

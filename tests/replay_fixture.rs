@@ -5,7 +5,7 @@
 use std::path::Path;
 
 #[test]
-fn steady_fixture_reproduces_its_expected_windows_csv() {
+fn steady_fixture_reproduces_its_expected_files() {
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/steady-b2");
     let out = tempfile::tempdir().unwrap();
     let args = [
@@ -21,11 +21,13 @@ fn steady_fixture_reproduces_its_expected_windows_csv() {
         "--quiet".into(),
     ];
     frothline_host::cli::run(args).unwrap();
-    let got = std::fs::read_to_string(out.path().join("windows.csv")).unwrap();
-    let want = std::fs::read_to_string(root.join("expected/windows.csv")).unwrap();
-    assert_eq!(got.lines().count(), want.lines().count());
-    for (i, (g, w)) in got.lines().zip(want.lines()).enumerate() {
-        assert_eq!(g, w, "windows.csv line {} differs", i + 1);
+    for name in ["windows.csv", "chords.csv", "chord_lengths.csv"] {
+        let got = std::fs::read_to_string(out.path().join(name)).unwrap();
+        let want = std::fs::read_to_string(root.join("expected").join(name)).unwrap();
+        assert_eq!(got.lines().count(), want.lines().count(), "{name}");
+        for (i, (g, w)) in got.lines().zip(want.lines()).enumerate() {
+            assert_eq!(g, w, "{name} line {} differs", i + 1);
+        }
     }
 }
 

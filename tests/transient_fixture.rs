@@ -76,6 +76,8 @@ fn transient_fixture_reproduces_its_expected_files() {
         "fronts.csv",
         "stations.csv",
         "flow.json",
+        "chords.csv",
+        "chord_lengths.csv",
     ] {
         let got = std::fs::read_to_string(out.path().join(name)).unwrap();
         let want = std::fs::read_to_string(root.join(name)).unwrap();

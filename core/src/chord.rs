@@ -47,6 +47,20 @@ pub fn bin_upper(b: usize) -> f32 {
     F32Ext::powi(2.0f32, octave) * (1.0 + quarter / BINS_PER_OCTAVE as f32)
 }
 
+/// The continuous chords bin `b` stands for, samples: a chord of `n` frames is a continuous
+/// chord about `n` rounded to the frame (a continuity correction), so a bin holding the
+/// integers `lo..hi` spans `lo − ½ .. hi − ½`. The last bin holds everything up to
+/// `longest`, the longest chord counted. A bin that holds no integer spans nothing
+/// (`lo == hi`).
+pub fn continuous_span(b: usize, longest: u32) -> (f32, f32) {
+    let hi = if b + 1 >= CHORD_BINS {
+        longest as f32 + 1.0
+    } else {
+        F32Ext::ceil(bin_upper(b))
+    };
+    (F32Ext::ceil(bin_lower(b)) - 0.5, hi - 0.5)
+}
+
 /// Statistics of the chords of one phase over one window.
 #[derive(Clone, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]

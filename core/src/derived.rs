@@ -39,7 +39,7 @@
 
 use micromath::F32Ext;
 
-use crate::chord::{bin_lower, bin_upper, ChordStats, CHORD_BINS};
+use crate::chord::{bin_lower, bin_upper, continuous_span, ChordStats, CHORD_BINS};
 use crate::record::TipStats;
 
 pub use crate::cluster::ClusterStats;
@@ -163,14 +163,7 @@ pub fn chord_quantile(s: &ChordStats, q: f32) -> Option<f32> {
     if total == 0 || !(0.0..=1.0).contains(&q) {
         return None;
     }
-    let span = |b: usize| -> (f32, f32) {
-        let hi = if b + 1 >= CHORD_BINS {
-            s.max as f32 + 1.0
-        } else {
-            F32Ext::ceil(bin_upper(b))
-        };
-        (F32Ext::ceil(bin_lower(b)) - 0.5, hi - 0.5)
-    };
+    let span = |b: usize| continuous_span(b, s.max);
     let density = |b: usize| -> Option<(f32, f32)> {
         let c = *s.bins.get(b)?;
         let (lo, hi) = span(b);

@@ -10,11 +10,13 @@
 //!      (replay hands transient layouts to transient; both use replay_common;
 //!      level_drift: a transient record's levels checked segment by segment)
 //!   -> windows.csv (+ profile.csv, fronts.csv, stations.csv, flow.json), written as one
-//!      output set (shared::output_set), summary table from running totals (run_summary)
+//!      output set (shared::output_set), summary table from running totals (run_summary),
+//!      chords.csv and chord_lengths.csv from the pooled chords (chord_files)
 //! ensemble: repeated transient runs of one rig, aligned on the front, combined, written as
 //!   one output set (ensemble_inputs: the captures it reads)
 //! tipcheck: every tip's levels, noise and swing on a segment, written into the layout
 //! ```
+pub mod chord_files;
 pub mod ensemble;
 pub mod ensemble_inputs;
 pub mod level_drift;

@@ -16,6 +16,7 @@ pub use crate::offline::replay_common::{
 };
 pub use crate::shared::rig::{check_learn_period, check_levels_fit, require_frames};
 
+use crate::offline::chord_files::ChordPool;
 use crate::offline::record_levels::{self, LevelRule, RecordLevels};
 use crate::offline::run_summary::RunTotals;
 use crate::shared::capture::Capture;
@@ -381,6 +382,7 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     let bar = progress_bar(cap.frames_in_file(), args.quiet);
     let mut records = Vec::new();
     let mut totals = RunTotals::new(layout.probes.len());
+    let mut chords = ChordPool::new(layout.probes.len());
     // The per-probe summary, streaming (memory flat in the record length).
     let rule = SummaryRule::default();
     let mut tallies = vec![ProbeTally::new(); layout.probes.len()];
@@ -406,6 +408,7 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
             )
             .map_err(csv_err)?;
             totals.add(&r);
+            chords.add(&r, fs, spacing[r.probe as usize]);
             if let Some(t) = tallies.get_mut(r.probe as usize) {
                 t.add(&window_figures(&r, fs, spacing[r.probe as usize]), &rule);
             }
@@ -429,6 +432,7 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
         })?;
         names.push("discharge.csv");
     }
+    names.extend(chords.write(&set, &layout, fs)?);
     let committed = set.commit(
         &names,
         &[("capture", &args.capture), ("layout", &args.layout)],

@@ -15,7 +15,7 @@ mod profile;
 mod velocity;
 
 pub use chart::fmt_num;
-pub use chord::ChordFigure;
+pub use chord::{ChordFigure, ChordQuantity};
 pub use count_rate::CountRateFigure;
 pub use ctx::{fmax_all, thinned, Ctx, MAX_POINTS};
 pub use decay::{DecayFigure, DecayStation};

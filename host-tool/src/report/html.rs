@@ -430,6 +430,7 @@ impl Page<'_> {
             "profile.csv",
             "fronts.csv",
             "chords.csv",
+            "chord_lengths.csv",
             "flow.json",
             "indicators.csv",
         ];
@@ -475,6 +476,11 @@ fn caption(stem: &str) -> &'static str {
         "velocity_turbulence" => "Small dots: windows; large markers: bubble-weighted probe means.",
         "chord_times" => {
             "Chord times of the leading tips on a logarithmic axis, one colour per probe."
+        }
+        "chord_lengths" => {
+            "Chord lengths (chord time × the window's interfacial velocity) of the leading \
+             tips, pooled over the windows with a trusted velocity, one colour per probe, \
+             listed from the bed up."
         }
         "count_rate_void_fraction" => {
             "Markers: windows; thin lines: envelope F = 4 Fmax C (1 − C) fitted to each \

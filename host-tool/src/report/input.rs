@@ -1,5 +1,5 @@
 //! Reading a run folder: `windows.csv` (required), `profile.csv`, `fronts.csv`, `chords.csv`,
-//! `flow.json` and `indicators.csv` (each optional).
+//! `chord_lengths.csv`, `flow.json` and `indicators.csv` (each optional).
 //!
 //! Columns are found by name, so extra columns (DESIGN.md §3 allows them at the end) and
 //! columns in another order are fine; a missing column reads as empty cells. Numbers that do
@@ -33,6 +33,8 @@ pub struct Run {
     pub fronts: Vec<Front>,
     /// Rows of `chords.csv` (empty when the file is missing).
     pub chords: Vec<ChordBin>,
+    /// Rows of `chord_lengths.csv` (empty when the file is missing).
+    pub chord_lengths: Vec<ChordBin>,
     /// `flow.json` and `indicators.csv` merged (None when neither exists).
     pub indicators: Option<Indicators>,
     /// Which optional files were found (by file name).
@@ -132,16 +134,16 @@ pub struct Front {
     pub arrival_s: Option<f64>,
 }
 
-/// One row of chords.csv (`probe,bin_lower_s,bin_upper_s,count`): a pooled chord-time
-/// histogram bin.
+/// One row of chords.csv (`probe,bin_lower_s,bin_upper_s,count`) or chord_lengths.csv
+/// (`probe,...,bin_lower_mm,bin_upper_mm,count`): a bin of a pooled histogram.
 #[derive(Debug, Clone)]
 pub struct ChordBin {
     /// Index into [`Run::probes`].
     pub probe: usize,
-    /// Bin lower edge, s.
-    pub lower_s: f64,
-    /// Bin upper edge, s.
-    pub upper_s: f64,
+    /// Bin lower edge: s in chords.csv, mm in chord_lengths.csv.
+    pub lower: f64,
+    /// Bin upper edge, in the unit of `lower`.
+    pub upper: f64,
     /// Bubbles in the bin.
     pub count: f64,
 }
@@ -379,7 +381,13 @@ pub fn read_run(dir: &Path, progress: &ProgressBar) -> Result<Run, ReportError> 
     read_windows(&mut run, progress)?;
     read_fronts(&mut run)?;
     read_profile(&mut run)?;
-    read_chords(&mut run)?;
+    run.chords = read_bins(&mut run, "chords.csv", ("bin_lower_s", "bin_upper_s"), "s")?;
+    run.chord_lengths = read_bins(
+        &mut run,
+        "chord_lengths.csv",
+        ("bin_lower_mm", "bin_upper_mm"),
+        "mm",
+    )?;
     run.indicators = super::indicators::read(dir, &mut run.files_found)?;
     Ok(run)
 }
@@ -666,16 +674,23 @@ fn read_profile(run: &mut Run) -> Result<(), ReportError> {
     Ok(())
 }
 
-fn read_chords(run: &mut Run) -> Result<(), ReportError> {
-    let path = run.dir.join("chords.csv");
+/// The rows of a pooled-histogram file (`file`, with edge columns `edges` in `unit`), for
+/// the probes of windows.csv; empty when the file is missing.
+fn read_bins(
+    run: &mut Run,
+    file: &'static str,
+    edges: (&str, &str),
+    unit: &str,
+) -> Result<Vec<ChordBin>, ReportError> {
+    let path = run.dir.join(file);
     let Some(mut t) = Table::open(&path)? else {
-        return Ok(());
+        return Ok(Vec::new());
     };
-    run.files_found.push("chords.csv");
+    run.files_found.push(file);
     let pc = t.require("probe")?;
     let (lc, uc, cc) = (
-        Some(t.require("bin_lower_s")?),
-        Some(t.require("bin_upper_s")?),
+        Some(t.require(edges.0)?),
+        Some(t.require(edges.1)?),
         Some(t.require("count")?),
     );
     let headers = t.headers.clone();
@@ -684,24 +699,24 @@ fn read_chords(run: &mut Run) -> Result<(), ReportError> {
     let probes = &run.probes;
     let note = t.rows(None, |rec| {
         let name = text(rec, Some(pc));
-        let (Some(lower_s), Some(upper_s), Some(count)) = (
+        let (Some(lower), Some(upper), Some(count)) = (
             num(rec, lc, &headers)?,
             num(rec, uc, &headers)?,
             num(rec, cc, &headers)?,
         ) else {
             return Ok(());
         };
-        if !(lower_s > 0.0 && upper_s > lower_s && count >= 0.0) {
+        if !(lower > 0.0 && upper > lower && count >= 0.0) {
             return Err(format!(
-                "bin [{lower_s}, {upper_s}) s with count {count}: edges must be positive and \
+                "bin [{lower}, {upper}) {unit} with count {count}: edges must be positive and \
                  increasing, counts non-negative"
             ));
         }
         match probes.iter().position(|p| p.name == name) {
             Some(probe) => bins.push(ChordBin {
                 probe,
-                lower_s,
-                upper_s,
+                lower,
+                upper,
                 count,
             }),
             None => {
@@ -715,12 +730,11 @@ fn read_chords(run: &mut Run) -> Result<(), ReportError> {
     run.notes.extend(note);
     if !unknown.is_empty() {
         run.notes.push(format!(
-            "chords.csv: probes with no rows in windows.csv were left out: {}",
+            "{file}: probes with no rows in windows.csv were left out: {}",
             unknown.join(", ")
         ));
     }
-    run.chords = bins;
-    Ok(())
+    Ok(bins)
 }
 
 impl Run {

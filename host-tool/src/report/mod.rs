@@ -6,6 +6,9 @@
 //! when present:
 //! - `chords.csv` — pooled chord-time histograms, `probe,bin_lower_s,bin_upper_s,count`
 //!   (seconds; any bins, logarithmic ones read best);
+//! - `chord_lengths.csv` — pooled chord-length histograms,
+//!   `probe,elevation_mm,bin_lower_mm,bin_upper_mm,count` (only `probe`, the edges and
+//!   `count` are read);
 //! - `flow.json` or `indicators.csv` — flow indicators (format in [`indicators`]);
 //! - extra columns of `profile.csv`: `decay_c0`, `decay_cf`, `decay_tau_s` (a decay fit made
 //!   by the writer), `flags` and `decay_flags` (fit flags, `|`-separated).
@@ -18,6 +21,7 @@
 //! | `void_fraction_decay` | depth-averaged C against time since the front, with C(t) = Cf + (C0 − Cf) exp(−t/τ) | profile.csv |
 //! | `velocity_turbulence` | V and Tu against elevation, window values and probe means | those columns |
 //! | `chord_times` | chord-time histograms per probe (chords.csv), or 10th–90th percentile bars with median and mean | chord columns |
+//! | `chord_lengths` | chord-length histograms per probe, labelled with its elevation, bottom to top | chord_lengths.csv |
 //! | `count_rate_void_fraction` | F against C per window, envelope F = 4 Fmax C (1 − C) per probe and for all | C and F |
 //! | `derived_figures` | interfacial area, Sauter diameter and chord lengths against elevation; `(1 − C) V` and `C V` against elevation with the areas under them (q_w, q_a, continuity error from discharge.csv); clustered fraction against C with the random-arrival reference | the derived columns |
 //! | `report.html` | the page: figures, per-probe table, flow indicators, every flag raised and its meaning, notes | — |
@@ -40,8 +44,8 @@ mod style;
 pub use error::ReportError;
 
 use figures::{
-    fmax_all, thinned, ChordFigure, CountRateFigure, Ctx, DecayFigure, DecayStation, ProfileFigure,
-    VelocityFigure, MAX_POINTS,
+    fmax_all, thinned, ChordFigure, ChordQuantity, CountRateFigure, Ctx, DecayFigure, DecayStation,
+    ProfileFigure, VelocityFigure, MAX_POINTS,
 };
 use indicatif::{ProgressBar, ProgressStyle};
 use render::render;
@@ -248,7 +252,7 @@ impl fmt::Display for ReportSummary {
 }
 
 /// Titles of the figures, by stem, in page order.
-const TITLES: [(&str, &str); 6] = [
+const TITLES: [(&str, &str); 7] = [
     ("void_fraction_profile", "Void fraction against elevation"),
     (
         "void_fraction_decay",
@@ -259,6 +263,7 @@ const TITLES: [(&str, &str); 6] = [
         "Interfacial velocity and turbulence intensity",
     ),
     ("chord_times", "Bubble chord times"),
+    ("chord_lengths", "Bubble chord lengths per elevation"),
     (
         "count_rate_void_fraction",
         "Bubble count rate against void fraction",
@@ -540,13 +545,29 @@ pub fn run(args: &ReportArgs) -> Result<ReportSummary, ReportError> {
     let chords = if has_hist || has_chords {
         let fig = ChordFigure {
             ctx,
-            histograms: has_hist,
+            quantity: ChordQuantity::Times {
+                histograms: has_hist,
+            },
         };
         written(render(&fig, out, sizes)?)
     } else {
         skip("no bubble chord times in windows.csv (no bubbles closed?)")
     };
     push("chord_times", chords);
+
+    // 4b. chord lengths per elevation
+    let lengths = if run.chord_lengths.iter().any(|b| b.count > 0.0) {
+        let fig = ChordFigure {
+            ctx,
+            quantity: ChordQuantity::Lengths,
+        };
+        written(render(&fig, out, sizes)?)
+    } else if run.files_found.contains(&"chord_lengths.csv") {
+        skip("chord_lengths.csv holds no chord (no window with a trusted velocity)")
+    } else {
+        skip("no chord_lengths.csv in the folder (written by `frothline replay`)")
+    };
+    push("chord_lengths", lengths);
 
     // 5. bubble count rate against void fraction
     let all_fmax = fmax_all(&ctx);

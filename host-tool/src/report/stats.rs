@@ -12,7 +12,7 @@
 //!   grid, then refined by golden-section search.
 //! - Power-law profile C = 0.9 (y/Y90)^n, drawn from a slice's Y90 and n.
 
-use super::input::{Run, Slice, Window};
+use super::input::{ChordBin, Run, Slice, Window};
 use crate::shared::probe_summary::{ProbeTally, SummaryRule, WindowFigures};
 use frothline_core::Flags;
 
@@ -133,7 +133,7 @@ fn summarise_probe(run: &Run, sel: Selection, p: usize) -> ProbeSummary {
         .chords
         .iter()
         .filter(|b| b.probe == p)
-        .map(|b| (b.lower_s, b.upper_s, b.count))
+        .map(|b| (b.lower, b.upper, b.count))
         .collect();
     let (chord_source, chord_median_s, chord_p10_s, chord_p90_s) =
         if hist.iter().map(|b| b.2).sum::<f64>() > 0.0 {
@@ -461,11 +461,21 @@ pub fn slice_void_fraction_spread(run: &Run, sel: Selection, p: usize, s: &Slice
 
 /// Normalised histogram of chord times of probe `p`: (lower, upper, fraction of bubbles).
 pub fn chord_histogram(run: &Run, p: usize) -> Vec<(f64, f64, f64)> {
-    let mut bins: Vec<(f64, f64, f64)> = run
-        .chords
+    normalised_bins(&run.chords, p)
+}
+
+/// The pooled chord-length histogram of probe `p` (chord_lengths.csv), mm, each bin's count
+/// as a fraction of the probe's chords.
+pub fn chord_length_histogram(run: &Run, p: usize) -> Vec<(f64, f64, f64)> {
+    normalised_bins(&run.chord_lengths, p)
+}
+
+/// The bins of probe `p`, sorted, each count as a fraction of the probe's total.
+fn normalised_bins(bins: &[ChordBin], p: usize) -> Vec<(f64, f64, f64)> {
+    let mut bins: Vec<(f64, f64, f64)> = bins
         .iter()
         .filter(|b| b.probe == p)
-        .map(|b| (b.lower_s, b.upper_s, b.count))
+        .map(|b| (b.lower, b.upper, b.count))
         .collect();
     bins.sort_by(|a, b| a.0.total_cmp(&b.0));
     let total: f64 = bins.iter().map(|b| b.2).sum();

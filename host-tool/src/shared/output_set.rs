@@ -31,6 +31,8 @@ pub const RUN_FILES: &[&str] = &[
     "stations.csv",
     "flow.json",
     "discharge.csv",
+    "chords.csv",
+    "chord_lengths.csv",
 ];
 
 /// Creates `path` as a new file, removing a previous file or symlink of that name first, so

@@ -4,6 +4,7 @@ use super::counts::RecordCounts;
 use super::indicators::flow_indicators;
 use super::slice_discharge::{SliceDischarge, SLICE_DISCHARGE_COLUMNS};
 use super::TransientRun;
+use crate::offline::chord_files::ChordPool;
 use crate::offline::replay_common as common;
 use crate::shared::error::{write_err, HostError};
 use crate::shared::output_set::{Committed, OutputSet};
@@ -97,11 +98,13 @@ pub fn write_output_set_from(
     let mut csv = WindowsCsv::new(std::io::BufWriter::new(file)).map_err(csv_err)?;
     let meta = common::probe_meta_with(&run.layout, &run.levels_from);
     let mut counts = RecordCounts::new(run);
+    let mut chords = ChordPool::new(run.layout.probes.len());
     for w in windows {
         let w = w?;
         counts.add(&w, &run.layout, run.sample_rate);
         let since = w.since_front.map(|f| run.secs(f as f64));
         let p = w.probe as usize;
+        chords.add(&w, run.sample_rate, run.layout.probes[p].tip_spacing_mm);
         csv.write(
             &w,
             &meta[p],
@@ -137,13 +140,14 @@ pub fn write_output_set_from(
     })?;
     let flow = set.staged("flow.json");
     std::fs::write(&flow, flow_indicators(run).to_json(description)).map_err(write_err(&flow))?;
-    let names = [
+    let mut names = vec![
         "windows.csv",
         "profile.csv",
         "fronts.csv",
         "stations.csv",
         "flow.json",
     ];
+    names.extend(chords.write(&set, &run.layout, run.sample_rate)?);
     let committed = set.commit(&names, inputs)?;
     Ok((
         TransientFiles {

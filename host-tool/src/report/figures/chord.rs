@@ -1,8 +1,10 @@
-//! Bubble chord times per probe: pooled histograms on a logarithmic axis, or percentile
-//! bars.
+//! Bubble chords per probe: pooled histograms of chord times or chord lengths on a
+//! logarithmic axis, or chord-time percentile bars.
 
 use super::super::render::{DrawError, Figure, Tagger};
-use super::super::stats::{chord_histogram, ProbeSummary};
+use super::super::stats::{
+    chord_histogram, chord_length_histogram, histogram_quantile, ProbeSummary,
+};
 use super::super::style::{
     legend_line, marker_element, probe_colour, Marker, Sizes, GRID, INK, MUTED,
 };
@@ -13,17 +15,32 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-/// Bubble chord times per probe: pooled histograms (chords.csv) or percentile bars.
+/// Which chord figure.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ChordQuantity {
+    /// Chord times: pooled histograms (chords.csv), else percentile bars from the windows.
+    Times {
+        /// True: histograms from chords.csv; false: bars from the window statistics.
+        histograms: bool,
+    },
+    /// Chord lengths per elevation: pooled histograms (chord_lengths.csv).
+    Lengths,
+}
+
+/// Bubble chords per probe.
 pub struct ChordFigure<'r> {
     /// Data.
     pub ctx: Ctx<'r>,
-    /// True: histograms from chords.csv; false: bars from the window statistics.
-    pub histograms: bool,
+    /// What is drawn.
+    pub quantity: ChordQuantity,
 }
 
 impl Figure for ChordFigure<'_> {
     fn stem(&self) -> &'static str {
-        "chord_times"
+        match self.quantity {
+            ChordQuantity::Times { .. } => "chord_times",
+            ChordQuantity::Lengths => "chord_lengths",
+        }
     }
 
     fn draw<DB: DrawingBackend>(
@@ -32,10 +49,9 @@ impl Figure for ChordFigure<'_> {
         s: &Sizes,
         tag: &Tagger,
     ) -> Result<(), DrawError> {
-        if self.histograms {
-            self.draw_histograms(root, s, tag)
-        } else {
-            self.draw_bars(root, s, tag)
+        match self.quantity {
+            ChordQuantity::Times { histograms: false } => self.draw_bars(root, s, tag),
+            _ => self.draw_histograms(root, s, tag),
         }
     }
 }
@@ -101,10 +117,31 @@ impl ChordFigure<'_> {
         tag: &Tagger,
     ) -> Result<(), DrawError> {
         let run = self.ctx.run;
+        let lengths = self.quantity == ChordQuantity::Lengths;
+        // drawn unit per file unit: ms per s for times, mm as they are for lengths
+        let (scale, unit) = if lengths { (1.0, "mm") } else { (1e3, "ms") };
+        let source = if lengths {
+            &run.chord_lengths
+        } else {
+            &run.chords
+        };
+        // Lengths: one line per elevation, bottom to top.
+        let mut order: Vec<usize> = (0..run.probes.len()).collect();
+        if lengths {
+            order.sort_by(|&a, &b| {
+                let y = |p: usize| run.probes[p].elevation_mm.unwrap_or(f64::INFINITY);
+                y(a).total_cmp(&y(b))
+            });
+        }
         // leading and trailing empty bins are left out: they would only draw along the axis
-        let hists: Vec<(usize, Vec<Bin>)> = (0..run.probes.len())
+        let hists: Vec<(usize, Vec<Bin>)> = order
+            .into_iter()
             .map(|p| {
-                let bins = chord_histogram(run, p);
+                let bins = if lengths {
+                    chord_length_histogram(run, p)
+                } else {
+                    chord_histogram(run, p)
+                };
                 let first = bins.iter().position(|b| b.2 > 0.0).unwrap_or(bins.len());
                 let last = bins.iter().rposition(|b| b.2 > 0.0).map_or(0, |i| i + 1);
                 (p, bins[first..last.max(first)].to_vec())
@@ -112,13 +149,8 @@ impl ChordFigure<'_> {
             .filter(|h| !h.1.is_empty())
             .collect();
         let nonzero = hists.iter().flat_map(|h| h.1.iter()).filter(|b| b.2 > 0.0);
-        let lo = nonzero.clone().map(|b| b.0).fold(f64::INFINITY, f64::min) * 1e3;
-        let hi = nonzero.map(|b| b.1).fold(0.0, f64::max) * 1e3;
-        let f_max = hists
-            .iter()
-            .flat_map(|h| h.1.iter())
-            .map(|b| b.2)
-            .fold(0.0, f64::max);
+        let lo = nonzero.clone().map(|b| b.0).fold(f64::INFINITY, f64::min) * scale;
+        let hi = nonzero.map(|b| b.1).fold(0.0, f64::max) * scale;
         let (lo, hi) = (lo / 1.5, hi * 1.5);
         let (lo, hi) = if lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo {
             (lo, hi)
@@ -128,28 +160,46 @@ impl ChordFigure<'_> {
         let frac = |v: f64| (v / lo).ln() / (hi / lo).ln();
         let labels: Vec<String> = hists
             .iter()
-            .map(|(p, _)| {
-                let n: f64 = run
-                    .chords
+            .map(|(p, bins)| {
+                let n: f64 = source
                     .iter()
                     .filter(|b| b.probe == *p)
                     .map(|b| b.count)
                     .sum();
-                match self.ctx.summaries[*p].chord_median_s {
+                let name = match (lengths, run.probes[*p].elevation_mm) {
+                    (true, Some(y)) => {
+                        let probe = &run.probes[*p];
+                        match (self.ctx.several_x(), probe.x_mm) {
+                            (true, Some(x)) => format!(
+                                "{} (x = {} mm, y = {} mm)",
+                                probe.name,
+                                fmt_num(x),
+                                fmt_num(y)
+                            ),
+                            _ => format!("{} (y = {} mm)", probe.name, fmt_num(y)),
+                        }
+                    }
+                    _ => self.ctx.probe_label(*p),
+                };
+                let median = if lengths {
+                    histogram_quantile(bins, 0.5)
+                } else {
+                    self.ctx.summaries[*p].chord_median_s
+                };
+                match median {
                     Some(m) => format!(
-                        "{}: median {} ms, {} bubbles",
-                        self.ctx.probe_label(*p),
-                        fmt_num(m * 1e3),
-                        n
+                        "{name}: median {} {unit}, {} bubbles",
+                        fmt_num(m * scale),
+                        fmt_num(n.round())
                     ),
-                    None => self.ctx.probe_label(*p),
+                    None => name,
                 }
             })
             .collect();
         let extent: Vec<(f64, f64)> = hists
             .iter()
             .flat_map(|h| h.1.iter())
-            .flat_map(|&(l, u, f)| [(frac(l * 1e3), f), (frac(u * 1e3), f)])
+            .flat_map(|&(l, u, f)| [(frac(l * scale), f), (frac(u * scale), f)])
             .collect();
         let (pos, f_top) = place_legend(
             s,
@@ -161,32 +211,48 @@ impl ChordFigure<'_> {
                 SeriesLabelPosition::UpperLeft,
             ],
         );
-        let _ = f_max;
-        let mut chart = builder(root, s, "Bubble chord times, pooled after the front", 72.0)
-            .build_cartesian_2d((lo..hi).log_scale(), 0.0..f_top)?;
-        mesh!(
-            chart,
-            s,
-            "bubble chord time (ms, logarithmic)",
-            "fraction of bubbles per bin (–)"
-        )
-        .disable_x_mesh()
-        .x_labels(0)
-        .x_label_formatter(&no_label)
-        .set_tick_mark_size(LabelAreaPosition::Bottom, 0)
-        .draw()?;
+        let (what, x_label) = if lengths {
+            (
+                "Bubble chord lengths per elevation",
+                "bubble chord length (mm, logarithmic)",
+            )
+        } else {
+            ("Bubble chord times", "bubble chord time (ms, logarithmic)")
+        };
+        let when = if run.is_transient() {
+            "after the front"
+        } else {
+            "over the run"
+        };
+        let title = format!("{what}, pooled {when}");
+        let mut chart =
+            builder(root, s, &title, 72.0).build_cartesian_2d((lo..hi).log_scale(), 0.0..f_top)?;
+        mesh!(chart, s, x_label, "fraction of bubbles per bin (–)")
+            .disable_x_mesh()
+            .x_labels(0)
+            .x_label_formatter(&no_label)
+            .set_tick_mark_size(LabelAreaPosition::Bottom, 0)
+            .draw()?;
         log_x_axis(&mut chart, root, s, (lo, hi), (0.0, f_top))?;
         let width = s.line();
+        let tag_stem = if lengths { "chord-lengths" } else { "chords" };
         for (k, (p, bins)) in hists.iter().enumerate() {
             let colour = probe_colour(*p);
-            let mut path = vec![(bins[0].0 * 1e3, 0.0)];
+            let mut path = vec![(bins[0].0 * scale, 0.0)];
+            let mut last_upper = bins[0].0;
             for &(l, u, f) in bins {
-                path.push((l * 1e3, f));
-                path.push((u * 1e3, f));
+                // a run of empty bins (not in the file) drops to zero between its neighbours
+                if l > last_upper * (1.0 + 1e-9) {
+                    path.push((last_upper * scale, 0.0));
+                    path.push((l * scale, 0.0));
+                }
+                path.push((l * scale, f));
+                path.push((u * scale, f));
+                last_upper = u;
             }
-            path.push((bins[bins.len() - 1].1 * 1e3, 0.0));
+            path.push((bins[bins.len() - 1].1 * scale, 0.0));
             let label = labels[k].clone();
-            tag.begin(root, &format!("chords-{}", run.probes[*p].name))?;
+            tag.begin(root, &format!("{tag_stem}-{}", run.probes[*p].name))?;
             chart
                 .draw_series(LineSeries::new(path, colour.stroke_width(width)))?
                 .label(label)
