@@ -1,12 +1,13 @@
 //! The emulated board: QEMU's mps2-an386 (Cortex-M4F, 25 MHz, CMSDK UART0 and TIMER0).
 //!
 //! Modes, chosen by the semihosting command line (`qemu ... -append MODE`):
-//! - `run` (default): replay the embedded capture at the sample rate (SysTick, one frame
-//!   per tick), one block filled by the interrupt while the main loop processes the
-//!   other; results out of UART0 as wire frames. Passes when the records equal those of
+//! - `run` (default): replay the embedded capture at the sample rate (SysTick, 32 frames
+//!   per tick as the board's DMA hands them over), one block filled by the interrupt while
+//!   the main loop processes the other; results out of UART0 as wire frames. Passes when the records equal those of
 //!   a host replay (count and digest, see `capture/config.rs`) and nothing was dropped.
 //! - `adc`: the same, read through the SPI ADC driver ([`crate::adc::Adc`]) from a
-//!   simulated device serving the capture; passes on the same condition.
+//!   simulated device serving the capture, one frame per tick; passes on the same
+//!   condition.
 //! - `overrun`: `run` with a main loop that stalls after every block for longer than a
 //!   block lasts; passes when the acquisition counted dropped samples and the last health
 //!   frame reports them.
@@ -295,7 +296,8 @@ fn run(mode: Mode) -> bool {
         };
         let mut syst = cp.SYST;
         syst.set_clock_source(SystClkSource::Core);
-        syst.set_reload(PCLK_HZ / capture::SAMPLE_RATE_HZ - 1);
+        let tick = PCLK_HZ as u64 * frames_per_tick(mode) as u64 / capture::SAMPLE_RATE_HZ as u64;
+        syst.set_reload(tick as u32 - 1);
         syst.clear_current();
         syst.enable_interrupt();
         syst.enable_counter();
@@ -434,12 +436,26 @@ fn acquisition(
         Mode::Instrument => Source::Replay(ReplaySource::looping(capture::SAMPLES, channels)),
         _ => Source::Replay(ReplaySource::new(capture::SAMPLES, channels)),
     };
-    let per_tick = if mode == Mode::Measure {
-        BLOCK_FRAMES
-    } else {
-        1
-    };
+    let per_tick = frames_per_tick(mode);
     Some(ACQUISITION.init_with(|| Acquisition::new(source, clock, per_tick, full_tx, free_rx)))
+}
+
+/// Frames a replayed capture moves per acquisition interrupt: the board's DMA hands over
+/// 32 frames per transfer-complete interrupt (`board_stm32f4`'s `DMA_FRAMES`), and the
+/// emulated machine, which has no DMA to its modelled converter, copies as many per SysTick.
+const DMA_BURST_FRAMES: usize = 32;
+
+/// Frames per acquisition tick in `mode`: whole blocks when unpaced (`measure`), one per
+/// tick through the SPI ADC (such a converter raises its data-ready line per conversion),
+/// a DMA burst otherwise. The `commands` check also keeps one per tick: its commands are
+/// polled from UART0's one-byte receiver once per wake-up of the main loop, and its 60 ms
+/// capture must carry every one of them.
+fn frames_per_tick(mode: Mode) -> usize {
+    match mode {
+        Mode::Measure => BLOCK_FRAMES,
+        Mode::Adc | Mode::Commands => 1,
+        _ => DMA_BURST_FRAMES,
+    }
 }
 
 /// The end of a run: the summary lines, and in mode `measure` the calibration and the
@@ -906,11 +922,12 @@ fn summary<W: embedded_io::Write, C: Clock>(
         sim_adc::missed()
     );
     report!(
-        "fw.timing tick_hz={} channels={} push_ticks={} records_ticks={} isr_ticks={} idle_ticks={} stalled_ticks={} total_ticks={}",
+        "fw.timing tick_hz={} channels={} push_ticks={} records_ticks={} digest_ticks={} isr_ticks={} idle_ticks={} stalled_ticks={} total_ticks={}",
         PCLK_HZ,
         capture::CHANNELS,
         t.push,
         t.records,
+        t.digest,
         HEALTH.isr_ticks.load(Ordering::Relaxed),
         t.idle,
         t.stalled,

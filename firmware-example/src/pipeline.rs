@@ -49,6 +49,8 @@ pub struct Timing {
     pub push: u64,
     /// Draining records: wire results, the digest, health, and pumping the link.
     pub records: u64,
+    /// Of `records`, the self-check digest (a test build's, not a product's work).
+    pub digest: u64,
     /// Asleep, waiting for a block.
     pub idle: u64,
     /// Deliberately wasted per block (overrun test).
@@ -393,11 +395,17 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
     fn drain_records(&mut self) {
         let t0 = self.clock.now();
         // Each record is handed on where it lies in the chain's queue (no copy of it here).
-        let mut sink = RecordSink {
+        let mut sink: RecordSink<'_, '_, W, C> = RecordSink {
             link: &mut *self.link,
             tap: &mut self.tap,
             #[cfg(feature = "self-check")]
             digest: &mut self.digest,
+            #[cfg(feature = "self-check")]
+            digest_ticks: &mut self.timing.digest,
+            #[cfg(feature = "self-check")]
+            clock: &self.clock,
+            #[cfg(not(feature = "self-check"))]
+            clock: core::marker::PhantomData,
             saturated: &mut self.saturated,
             stuck: &mut self.stuck,
             tip_channels: &self.tip_channels,
@@ -510,11 +518,17 @@ impl<W: Write + Read + ReadReady + 'static, C: Clock> Pipeline<'_, W, C> {
 
 /// Where the main loop sends each record: the parts of the [`Pipeline`] a record updates
 /// (borrowed apart from the chain, which lends the record).
-struct RecordSink<'a, 't, W> {
+struct RecordSink<'a, 't, W, C> {
     link: &'a mut Link<W>,
     tap: &'a mut Option<&'t mut dyn ResultTap>,
     #[cfg(feature = "self-check")]
     digest: &'a mut Digest,
+    #[cfg(feature = "self-check")]
+    digest_ticks: &'a mut u64,
+    #[cfg(feature = "self-check")]
+    clock: &'a C,
+    #[cfg(not(feature = "self-check"))]
+    clock: core::marker::PhantomData<&'a C>,
     saturated: &'a mut u64,
     stuck: &'a mut u64,
     tip_channels: &'a [Option<(u8, Option<u8>)>; PROBES],
@@ -522,13 +536,17 @@ struct RecordSink<'a, 't, W> {
     offset: u64,
 }
 
-impl<W: Write> RecordSink<'_, '_, W> {
+impl<W: Write, C: Clock> RecordSink<'_, '_, W, C> {
     #[inline(never)]
     fn record(&mut self, rec: &FwRecord) {
         // The host replay keeps its records without the raw correlation sums (they do not
         // go on the wire either): the digest covers the same.
         #[cfg(feature = "self-check")]
-        self.digest.add(rec);
+        {
+            let t0 = self.clock.now();
+            self.digest.add(rec);
+            *self.digest_ticks += self.clock.now().wrapping_sub(t0) as u64;
+        }
         let w = self.link.record(rec, self.offset);
         if let Some(t) = self.tap.as_mut() {
             t.window(w);
