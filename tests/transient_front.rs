@@ -427,6 +427,41 @@ fn ensemble_command_writes_its_files() {
     assert!(h.contains(&"y90_spread_mm".to_string()));
     assert!(p.records().count() >= 4);
     assert!(out.path().join("fronts.csv").is_file() && out.path().join("flow.json").is_file());
+    // The pooled chord times hold every bubble of the windows after the front, of both runs,
+    // except, per probe and run, the one the front closes (the dry bed's air: a bubble with
+    // no chord, since its start lies before the first window).
+    let mut w = csv::Reader::from_path(out.path().join("windows.csv")).unwrap();
+    let h = w.headers().unwrap().clone();
+    let col = |name: &str| h.iter().position(|c| c == name).unwrap();
+    let (probe, bubbles, flags, since) = (
+        col("probe"),
+        col("bubbles"),
+        col("flags"),
+        col("since_front_s"),
+    );
+    let mut after = std::collections::BTreeMap::<String, f64>::new();
+    for r in w.records().map(|r| r.unwrap()) {
+        let used = r[since].parse::<f64>().is_ok_and(|t| t >= 0.0)
+            && !r[flags].contains("pre_front")
+            && !r[flags].contains("levels_not_learnt");
+        if used {
+            *after.entry(r[probe].to_string()).or_default() += r[bubbles].parse::<f64>().unwrap();
+        }
+    }
+    let mut pooled = std::collections::BTreeMap::<String, f64>::new();
+    let mut c = csv::Reader::from_path(out.path().join("chords.csv")).unwrap();
+    for r in c.records().map(|r| r.unwrap()) {
+        *pooled.entry(r[0].to_string()).or_default() += r[3].parse::<f64>().unwrap();
+    }
+    assert!(after.values().sum::<f64>() > 100.0, "{after:?}");
+    for (name, n) in &after {
+        let got = pooled.get(name).copied().unwrap_or(0.0);
+        assert!(
+            got <= *n && *n - got <= 2.0,
+            "{name}: chords.csv {got}, windows {n}"
+        );
+    }
+    assert!(out.path().join("chord_lengths.csv").is_file());
 
     // The report draws the run-to-run spread of C as error bars on the profiles, and reads
     // the spread column (no "columns not used" note for it).

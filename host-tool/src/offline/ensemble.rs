@@ -27,6 +27,7 @@
 //! [`crate::offline::transient::PROFILE_COLUMNS`], then `runs` and the spreads), `fronts.csv`
 //! (mean arrival per probe over runs, spread, runs), `flow.json`.
 
+use crate::offline::chord_files::ChordPool;
 pub use crate::offline::ensemble_inputs::{capture_list, refuse_repeated_captures};
 use crate::offline::replay::probe_meta;
 use crate::offline::transient::{self, TransientRun, PROFILE_COLUMNS};
@@ -514,7 +515,8 @@ impl Ensemble {
             .collect()
     }
 
-    /// Write windows.csv, profile.csv, fronts.csv and flow.json into `dir` as one set
+    /// Write windows.csv, profile.csv, fronts.csv, flow.json and the pooled chords
+    /// (chords.csv, chord_lengths.csv: every run's chords) into `dir` as one set
     /// ([`OutputSet`]: all of them and a `run.json` manifest, or the folder as it was);
     /// `inputs` (role, path) are recorded in the manifest.
     pub fn write(
@@ -532,8 +534,17 @@ impl Ensemble {
             "bubble_count_rate_spread_hz",
             "interfacial_velocity_spread_m_s",
         ]);
-        let rows: Vec<Vec<String>> = self
-            .windows()
+        let windows = self.windows();
+        let mut chords = ChordPool::new(self.layout.probes.len());
+        for w in &windows {
+            let spacing = self
+                .layout
+                .probes
+                .get(w.probe)
+                .and_then(|p| p.tip_spacing_mm);
+            chords.add(&w.record, self.sample_rate, spacing);
+        }
+        let rows: Vec<Vec<String>> = windows
             .iter()
             .map(|w| {
                 let p = w.probe;
@@ -641,7 +652,8 @@ impl Ensemble {
         let flow = transient::flow_indicators(&fake);
         let path = set.staged("flow.json");
         std::fs::write(&path, flow.to_json(description)).map_err(write_err(&path))?;
-        let names = ["windows.csv", "profile.csv", "fronts.csv", "flow.json"];
+        let mut names = vec!["windows.csv", "profile.csv", "fronts.csv", "flow.json"];
+        names.extend(chords.write(&set, &self.layout, self.sample_rate)?);
         set.commit(&names, inputs)
     }
 }
