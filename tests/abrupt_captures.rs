@@ -199,7 +199,8 @@ fn replay_totals_only_matches_the_records_it_no_longer_keeps() {
         lean.totals.probes[0].air_frames
     );
     // The second run into the same folder says it replaced the first one's file.
-    let note = "an earlier run's output in this folder was replaced (windows.csv)\n";
+    let note = "an earlier run's output in this folder was replaced (windows.csv, chords.csv, \
+                chord_lengths.csv)\n";
     let lean_text = frothline_host::offline::replay::summary_table(&lean);
     assert!(lean_text.contains(note), "{lean_text}");
     assert_eq!(

@@ -153,7 +153,14 @@ fn the_files_are_written_as_one_set_with_a_manifest() {
     let names: Vec<&str> = m.files.iter().map(|(n, _)| n.as_str()).collect();
     assert_eq!(
         names,
-        ["windows.csv", "profile.csv", "fronts.csv", "flow.json"]
+        [
+            "windows.csv",
+            "profile.csv",
+            "fronts.csv",
+            "flow.json",
+            "chords.csv",
+            "chord_lengths.csv"
+        ]
     );
     for n in names {
         m.check(&out, n).unwrap();

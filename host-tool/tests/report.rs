@@ -193,6 +193,7 @@ fn steady_fixture_skips_what_it_lacks_and_says_why() {
     assert_eq!(
         stems,
         [
+            "chord_lengths",
             "chord_times",
             "count_rate_void_fraction",
             "derived_figures",
@@ -205,8 +206,10 @@ fn steady_fixture_skips_what_it_lacks_and_says_why() {
         let ids = svg_series(svg);
         assert_eq!(ids.len(), *n, "{stem}");
         let expected = match *stem {
-            // one per probe (means with percentile bars)
+            // one per probe (means, or the pooled histograms of chords.csv)
             "void_fraction_profile" | "chord_times" => 6,
+            // one pooled histogram per dual-tip probe (five of the six)
+            "chord_lengths" => 5,
             // V and Tu panels, one series each per dual-tip probe (five of the six)
             "velocity_turbulence" => 10,
             // a and d per dual-tip probe (five), q_w and q_a, clusters per probe (six)
@@ -226,7 +229,8 @@ fn steady_fixture_skips_what_it_lacks_and_says_why() {
     assert!(html.contains(&format!("id=\"{stem}\"")));
     // no flow indicators in this folder: no section, and the notes say which files were absent
     assert!(!html.contains("id=\"flow\""));
-    assert!(html.contains("not present: profile.csv, fronts.csv, chords.csv"));
+    assert!(html.contains("Read: windows.csv, chords.csv, chord_lengths.csv"));
+    assert!(html.contains("not present: profile.csv, fronts.csv, flow.json"));
     // the levels_not_learnt windows are left out by default, and a replay that learnt the
     // levels from the record has none: every window is used
     assert_eq!(s.windows_used, s.windows);
@@ -408,7 +412,7 @@ fn a_header_only_windows_csv_gives_a_page_that_says_why_nothing_is_drawn() {
 fn check_page_without_figures(s: &ReportSummary) {
     let html = std::fs::read_to_string(&s.html).unwrap();
     assert!(!html.contains("<img"));
-    assert_eq!(html.matches("class=\"skipped\"").count(), 6);
+    assert_eq!(html.matches("class=\"skipped\"").count(), 7);
 }
 
 #[test]

@@ -17,7 +17,7 @@
 //! or with an excluded flag; for lengths, also none whose velocity is untrusted or missing.
 
 use crate::offline::replay_common::window_figures;
-use crate::shared::error::{write_err, HostError};
+use crate::shared::error::HostError;
 use crate::shared::layout::Layout;
 use crate::shared::output_set::OutputSet;
 use crate::shared::probe_summary::SummaryRule;
@@ -162,29 +162,10 @@ impl ChordPool {
                 ]);
             }
         }
-        write_table(set, "chords.csv", CHORD_TIME_COLUMNS, &times)?;
-        write_table(set, "chord_lengths.csv", CHORD_LENGTH_COLUMNS, &lengths)?;
+        set.write_csv("chords.csv", CHORD_TIME_COLUMNS, &times)?;
+        set.write_csv("chord_lengths.csv", CHORD_LENGTH_COLUMNS, &lengths)?;
         Ok(vec!["chords.csv", "chord_lengths.csv"])
     }
-}
-
-fn write_table(
-    set: &OutputSet,
-    name: &str,
-    header: &[&str],
-    rows: &[Vec<String>],
-) -> Result<(), HostError> {
-    let staged = set.staged(name);
-    let err = |e: csv::Error| HostError::Write {
-        path: staged.clone(),
-        source: e.into(),
-    };
-    let mut w = csv::Writer::from_writer(set.create(name)?);
-    w.write_record(header).map_err(err)?;
-    for r in rows {
-        w.write_record(r).map_err(err)?;
-    }
-    w.flush().map_err(write_err(&staged))
 }
 
 /// The continuous chord times of bin `b` of `s`, samples: the core's continuity-corrected

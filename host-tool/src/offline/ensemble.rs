@@ -568,7 +568,7 @@ impl Ensemble {
                 row
             })
             .collect();
-        write_rows(&set, "windows.csv", &header, &rows)?;
+        set.write_csv("windows.csv", &header, &rows)?;
 
         let mut header: Vec<&str> = PROFILE_COLUMNS.to_vec();
         header.extend([
@@ -612,7 +612,7 @@ impl Ensemble {
                 row
             })
             .collect();
-        write_rows(&set, "profile.csv", &header, &rows)?;
+        set.write_csv("profile.csv", &header, &rows)?;
 
         let rows: Vec<Vec<String>> = self
             .stations
@@ -636,8 +636,7 @@ impl Ensemble {
                     .collect::<Vec<_>>()
             })
             .collect();
-        write_rows(
-            &set,
+        set.write_csv(
             "fronts.csv",
             &[
                 "probe",
@@ -656,26 +655,6 @@ impl Ensemble {
         names.extend(chords.write(&set, &self.layout, self.sample_rate)?);
         set.commit(&names, inputs)
     }
-}
-
-/// Writes the staged CSV file `name` of `set`.
-fn write_rows(
-    set: &OutputSet,
-    name: &str,
-    header: &[&str],
-    rows: &[Vec<String>],
-) -> Result<(), HostError> {
-    let path = set.staged(name);
-    let err = |e: csv::Error| HostError::Write {
-        path: path.clone(),
-        source: e.into(),
-    };
-    let mut w = csv::Writer::from_writer(set.create(name)?);
-    w.write_record(header).map_err(err)?;
-    for r in rows {
-        w.write_record(r).map_err(err)?;
-    }
-    w.flush().map_err(write_err(&path))
 }
 
 /// What `frothline ensemble` did.

@@ -148,6 +148,35 @@ impl OutputSet {
         create_fresh(&p).map_err(write_err(&p))
     }
 
+    /// Writes the staged CSV file `name`: `header`, then `rows`.
+    pub fn write_csv(
+        &self,
+        name: &str,
+        header: &[&str],
+        rows: &[Vec<String>],
+    ) -> Result<(), HostError> {
+        self.write_csv_with(name, header, |w| rows.iter().cloned().try_for_each(w))
+    }
+
+    /// Writes the staged CSV file `name`: `header`, then each row `rows` hands to the
+    /// writer it is given (so that rows can be made one at a time).
+    pub fn write_csv_with(
+        &self,
+        name: &str,
+        header: &[&str],
+        rows: impl FnOnce(&mut dyn FnMut(Vec<String>) -> Result<(), HostError>) -> Result<(), HostError>,
+    ) -> Result<(), HostError> {
+        let path = self.staged(name);
+        let err = |e: csv::Error| HostError::Write {
+            path: path.clone(),
+            source: e.into(),
+        };
+        let mut w = csv::Writer::from_writer(self.create(name)?);
+        w.write_record(header).map_err(err)?;
+        rows(&mut |r| w.write_record(&r).map_err(err))?;
+        w.flush().map_err(write_err(&path))
+    }
+
     /// Writes the manifest, removes an earlier run's other files, renames the staged files
     /// `names` into place. `inputs` are (role, path) pairs recorded in the manifest.
     pub fn commit(

@@ -29,24 +29,6 @@ pub struct TransientFiles {
     pub flow: PathBuf,
 }
 
-/// Write `name` with `header`; `rows` hands each row to the writer it is given.
-fn write_csv(
-    set: &OutputSet,
-    name: &str,
-    header: &[&str],
-    rows: impl FnOnce(&mut dyn FnMut(Vec<String>) -> Result<(), HostError>) -> Result<(), HostError>,
-) -> Result<(), HostError> {
-    let staged = set.staged(name);
-    let err = |e: csv::Error| HostError::Write {
-        path: staged.clone(),
-        source: e.into(),
-    };
-    let mut w = csv::Writer::from_writer(set.create(name)?);
-    w.write_record(header).map_err(err)?;
-    rows(&mut |r| w.write_record(&r).map_err(err))?;
-    w.flush().map_err(write_err(&staged))
-}
-
 /// Write windows.csv, profile.csv, fronts.csv, stations.csv and flow.json into `dir`, as one
 /// set ([`OutputSet`]): all of them, or the folder as it was.
 pub fn write_outputs(
@@ -122,7 +104,7 @@ pub fn write_output_set_from(
         .chain(SLICE_DISCHARGE_COLUMNS)
         .copied()
         .collect();
-    write_csv(&set, "profile.csv", &header, |w| {
+    set.write_csv_with("profile.csv", &header, |w| {
         for sp in profiles {
             let (s, p, d) = sp?;
             counts.add_slice(s, &p);
@@ -132,10 +114,10 @@ pub fn write_output_set_from(
         }
         Ok(())
     })?;
-    write_csv(&set, "fronts.csv", FRONT_COLUMNS, |w| {
+    set.write_csv_with("fronts.csv", FRONT_COLUMNS, |w| {
         run.front_rows().into_iter().try_for_each(w)
     })?;
-    write_csv(&set, "stations.csv", STATION_COLUMNS, |w| {
+    set.write_csv_with("stations.csv", STATION_COLUMNS, |w| {
         run.station_rows().into_iter().try_for_each(w)
     })?;
     let flow = set.staged("flow.json");
