@@ -362,6 +362,11 @@ impl LiveState {
                 d.health = DeviceHealth::from(health);
                 d.health_at = Some(now);
             }
+            Event::Status { device, status, .. } => {
+                let d = self.device(*device as u32);
+                d.status = Some(*status);
+                d.status_at = Some(now);
+            }
             Event::TipHealth { device, tips, .. } => {
                 let d = self.device(*device as u32);
                 for r in tips {
