@@ -307,7 +307,11 @@ fn draw_history(f: &mut Frame, area: Rect, state: &LiveState) {
         .take(n)
         .rev()
         .map(|l| {
-            let style = if l.contains("DOWN") || l.contains("NACK") || l.contains("lost") {
+            let style = if l.contains("DOWN")
+                || l.contains("NACK")
+                || l.contains("lost")
+                || l.contains("supply LOW")
+            {
                 Style::default().fg(WARN)
             } else {
                 Style::default()

@@ -567,6 +567,31 @@ fn the_device_status_is_on_screen_at_every_size_and_a_low_supply_warns() {
         .find(|(_, l)| l.contains("device 7"))
         .unwrap();
     assert!(line.contains("2.91 V LOW"), "{line}");
+    // The events say so once, and name the logger's change (armed -> none: the status no
+    // longer carries a logger).
+    let text = render_text(&s, now, 160, 48).join("\n");
+    assert!(
+        text.contains("device 7: supply LOW 2.91 V (below 3.0 V)"),
+        "{text}"
+    );
+    assert!(text.contains("device 7: logger armed -> none"), "{text}");
+    // A second low status in a row adds no line.
+    status.uptime_ms += 1_000;
+    s.apply(
+        &Event::Status {
+            port: 0,
+            device: 7,
+            status,
+        },
+        now,
+        &name,
+    );
+    let lows = s
+        .history
+        .iter()
+        .filter(|l| l.contains("supply LOW"))
+        .count();
+    assert_eq!(lows, 1);
     let x = line.find("2.91").unwrap();
     let x = line[..x].chars().count() as u16;
     assert_eq!(
