@@ -60,15 +60,18 @@ pub const fn state_name(s: LoggerState) -> &'static str {
     }
 }
 
-/// Supply voltage from a reading of an internal reference of known voltage: with the
-/// reference reading `raw` counts of a converter of `full_scale` counts whose top is the
-/// supply, `supply = reference_mv * full_scale / raw`, rounded to the nearest millivolt;
-/// None for a reading of 0 (no conversion) or a supply beyond `u16` millivolts.
-pub fn supply_from_reference(reference_mv: u32, full_scale: u32, raw: u32) -> Option<u16> {
+/// Supply voltage from a reading `raw` of an internal reference by a converter whose full
+/// scale is the supply: `supply = millivolts * scale / raw`, rounded to the nearest
+/// millivolt. With the reference's nominal voltage, `millivolts` is that voltage and
+/// `scale` the converter's full scale (4095 for 12 bits); with a calibration code taken at
+/// a known supply, `millivolts` is that supply and `scale` the code (VREFINT_CAL, taken at
+/// 3.3 V on an STM32F4: RM0383). None for a reading of 0 (no conversion) or a supply
+/// beyond `u16` millivolts.
+pub fn supply_from_reference(millivolts: u32, scale: u32, raw: u32) -> Option<u16> {
     if raw == 0 {
         return None;
     }
-    let num = (reference_mv as u64).saturating_mul(full_scale as u64);
+    let num = (millivolts as u64).saturating_mul(scale as u64);
     let mv = num.saturating_add(raw as u64 / 2) / raw as u64;
     u16::try_from(mv).ok()
 }
