@@ -115,8 +115,11 @@ if [ $rc -eq 124 ]; then
 fi
 if [ $rc -eq 0 ] && [ $verify -eq 1 ] && [ "$uart" != stdio ]; then
     d=$capture
+    # The logger build's device status frames must show the logger idle, armed, capturing.
+    logger_flag=()
+    [ "$mode" = logger ] && logger_flag=(--logger)
     cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml -- \
-        verify-uart "$d/capture.wav" "$d/layout.toml" 10ms "$uart" || rc=1
+        verify-uart "$d/capture.wav" "$d/layout.toml" 10ms "$uart" "${logger_flag[@]}" || rc=1
     if [ "$mode" = logger ]; then
         # PRE_TRIGGER: keep equal to firmware-example/src/field_log.rs PRE_TRIGGER_FRAMES.
         cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml -- \

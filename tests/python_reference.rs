@@ -110,6 +110,24 @@ fn extras_json(x: &frothline_core::wire::WindowExtras) -> Value {
     })
 }
 
+fn status_json(d: &frothline_core::wire::DeviceStatus) -> Value {
+    json!({
+        "supply_mv": d.supply_mv,
+        "uptime_ms": d.uptime_ms,
+        "logger": d.logger.map(|l| {
+            let mut v = json!({
+                "state": frothline_core::wire::device_status::state_name(l.state),
+                "used_bytes": l.used_bytes,
+                "capacity_bytes": l.capacity_bytes,
+            });
+            if let frothline_core::logbook::LoggerState::Capturing { remaining } = l.state {
+                v["remaining"] = json!(remaining);
+            }
+            v
+        }),
+    })
+}
+
 /// The Rust verdict on one frame (`frame` = its bytes with the delimiter).
 fn case(frame: &[u8]) -> Value {
     let mut dec: Decoder = Decoder::new();
@@ -136,6 +154,9 @@ fn case(frame: &[u8]) -> Value {
             }
             if let Body::Levels(ls) = &frame.body {
                 v["levels"] = Value::Array(ls.iter().map(probe_levels_json).collect());
+            }
+            if let Body::DeviceStatus(d) = &frame.body {
+                v["status"] = status_json(d);
             }
             v
         }

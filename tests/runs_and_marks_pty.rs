@@ -195,13 +195,15 @@ fn two_runs() {
         run_starts,
         vec![(1, LABELS[0].to_string()), (2, LABELS[1].to_string())]
     );
-    // unpack writes the same files (tips.csv too when a tip-health frame came).
+    // unpack writes the same files (tips.csv too when a tip-health frame came; the
+    // device's first health frame, at power-on, brings a device status).
     for f in [
         "windows.csv",
         "marks.csv",
         "fronts.csv",
         "profile.csv",
         "tips.csv",
+        "status.csv",
     ] {
         if f == "tips.csv" && !live.join(f).exists() {
             continue;

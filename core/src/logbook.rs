@@ -451,6 +451,30 @@ impl<F: NorFlash> Logbook<F> {
         self.flash.capacity()
     }
 
+    /// Bytes of the pages that hold records at once: `pages - 1` pages (the page after
+    /// the head is the next to be recycled, see the module docs).
+    pub fn record_capacity(&self) -> usize {
+        (self.pages.saturating_sub(1) as usize).saturating_mul(self.page_bytes)
+    }
+
+    /// Bytes of the log in use now: the pages before the head that are still part of the
+    /// log, whole, and the head page up to its next write offset. O(1): it counts the
+    /// pages by their sequence numbers, so a page lost to a bad header still counts. At
+    /// most [`record_capacity`](Self::record_capacity); it stays there once the ring
+    /// recycles its oldest pages.
+    pub fn used_bytes(&self) -> usize {
+        match self.head {
+            None => 0,
+            Some((_, seq)) => {
+                let older = seq.saturating_sub(1).min(self.pages.saturating_sub(2)) as usize;
+                older
+                    .saturating_mul(self.page_bytes)
+                    .saturating_add(self.write_at)
+                    .min(self.record_capacity())
+            }
+        }
+    }
+
     /// Give the flash back.
     pub fn into_inner(self) -> F {
         self.flash
@@ -492,8 +516,18 @@ impl<F: NorFlash> Iterator for Records<'_, F> {
 /// A stored frame of the pre-trigger ring.
 pub type StoredFrame = heapless::Vec<u8, MAX_RECORD_BYTES>;
 
-/// The field logger's state.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+/// The field logger's state. It goes on the wire in the device status (kind 0x0C) by
+/// postcard's variant index, in declaration order: append new states only.
+#[derive(
+    Clone,
+    Copy,
+    Debug,
+    PartialEq,
+    Eq,
+    serde::Serialize,
+    serde::Deserialize,
+    postcard::experimental::max_size::MaxSize,
+)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum LoggerState {
     /// Not armed: results are dropped.

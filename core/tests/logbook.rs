@@ -402,3 +402,49 @@ fn field_logger_pre_trigger_and_capture() {
     // Re-armed: the ring fills again from the results after the capture.
     assert_eq!(fl.pending(), 4);
 }
+
+/// The log's use as the device status reports it: nothing on an erased region, the head
+/// page up to its write offset, whole pages before it, never more than the `pages - 1`
+/// pages that hold records at once (the ring recycles from there), and the same figure
+/// after a remount (as after a power cycle).
+#[test]
+fn used_bytes_follow_the_pages_written_and_stop_at_the_ring() {
+    let pages = 4;
+    let mut log = Logbook::mount(SimFlash::<4>::new(vec![0xFF; pages * PAGE], None, 1)).unwrap();
+    assert_eq!(log.used_bytes(), 0);
+    assert_eq!(log.record_capacity(), (pages - 1) * PAGE);
+    let record = [0x5Au8; 100];
+    // One record: page header 12 bytes, record header 8 + 100 payload, commit 4.
+    log.append(&record).unwrap();
+    assert_eq!(log.used_bytes(), 12 + 8 + 100 + 4);
+    let per_page = log.records_per_page(record.len());
+    for _ in 1..per_page {
+        log.append(&record).unwrap();
+    }
+    let one_page = log.used_bytes();
+    assert_eq!(one_page, 12 + per_page * 112);
+    log.append(&record).unwrap();
+    assert_eq!(
+        log.used_bytes(),
+        PAGE + 12 + 112,
+        "a full page, then the new head"
+    );
+    let mut last = log.used_bytes();
+    for _ in 0..per_page * pages * 2 {
+        log.append(&record).unwrap();
+        let u = log.used_bytes();
+        assert!(u <= log.record_capacity());
+        // It falls only when a new head page opens: the page after the head counts as
+        // given up from then on.
+        assert!(
+            u >= last || u == (pages - 2) * PAGE + 12 + 112,
+            "{last} -> {u}"
+        );
+        last = u;
+    }
+    assert!(log.stats().pages_recycled > 0);
+    let used = log.used_bytes();
+    assert!(used > (pages - 2) * PAGE, "{used}");
+    let log = Logbook::mount(log.into_inner()).unwrap();
+    assert_eq!(log.used_bytes(), used);
+}

@@ -5,6 +5,7 @@
 //! `cargo test --release -p frothline-core --test wire -- --ignored soak --nocapture`
 //! (`WIRE_SOAK_INPUTS` sets the number of inputs, default 1 000 000).
 
+use frothline_core::logbook::LoggerState;
 use frothline_core::wire::{
     self, crc32, decode, encode, quant, Ack, Body, ChordTimes, Correlation, CorrelationTimes,
     Decoder, DeviceDescription, FeedResult, Frame, FrontArrival, FullWindow, FullWindows, Health,
@@ -15,6 +16,7 @@ use frothline_core::wire::{
     MAX_FRAME_BYTES, MAX_FULL_WINDOWS_PER_FRAME, MAX_PROBES, MAX_TIPS_PER_FRAME,
     MAX_WINDOWS_PER_FRAME,
 };
+use frothline_core::wire::{DeviceStatus, LoggerStatus};
 use proptest::prelude::*;
 use rand::rngs::StdRng;
 use rand::{Rng, SeedableRng};
@@ -305,7 +307,22 @@ fn sample_frames() -> Vec<Frame> {
         dev(309, Body::Levels(sample_levels())),
         dev(310, Body::FullWindows(sample_full_windows(&one))),
         host(9, Body::SetExtras(SetExtras { on: true })),
+        dev(311, Body::DeviceStatus(sample_status())),
     ]
+}
+
+/// A device status: supply 3284 mV, 93.45 s since power-up, the field logger capturing
+/// with 17 results to go, 12 KiB of a 60 KiB log written.
+fn sample_status() -> DeviceStatus {
+    DeviceStatus {
+        supply_mv: Some(3_284),
+        uptime_ms: 93_450,
+        logger: Some(LoggerStatus {
+            state: LoggerState::Capturing { remaining: 17 },
+            used_bytes: 12_288,
+            capacity_bytes: 61_440,
+        }),
+    }
 }
 
 /// The two results of the sample Windows frame with their extras: the dual-tip probe's
@@ -558,6 +575,17 @@ fn largest_frames() -> Vec<Frame> {
             reason: NackReason::Other(u8::MAX),
         })),
         f(Body::SetClock(SetClock { utc_ms: u64::MAX })),
+        f(Body::DeviceStatus(DeviceStatus {
+            supply_mv: Some(u16::MAX),
+            uptime_ms: u64::MAX,
+            logger: Some(LoggerStatus {
+                state: LoggerState::Capturing {
+                    remaining: u32::MAX,
+                },
+                used_bytes: u32::MAX,
+                capacity_bytes: u32::MAX,
+            }),
+        })),
         f(Body::SetExtras(SetExtras { on: true })),
         f(Body::FullWindows({
             let levels = Some(TipLevels {
@@ -823,6 +851,36 @@ fn golden_levels_by_hand() {
             0x27, 0x00, 0x00, 0x00, 0x00
         ]
     );
+}
+
+/// The device status of `sample_status()` from device 7, seq 311, worked by hand from
+/// docs/wire-protocol.md: supply Some 01, 3284 = 25 * 128 + 84 -> d4 19 | uptime 93450 =
+/// (5 * 128 + 90) * 128 + 10 -> 8a da 05 | logger Some 01, state variant 2 (capturing) 02,
+/// remaining 17 -> 11, used 12288 = 96 * 128 -> 80 60, capacity 61440 = (3 * 128 + 96) *
+/// 128 -> 80 e0 03.
+#[test]
+fn golden_device_status_by_hand() {
+    let f = sample_frames()
+        .into_iter()
+        .find(|f| f.body.kind() == Kind::DeviceStatus)
+        .unwrap();
+    let (version, device, kind, seq, body) = ref_parse(&enc(&f));
+    assert_eq!((version, device, kind, seq), (2, 7, 0x0C, 311));
+    assert_eq!(
+        body,
+        [0x01, 0xD4, 0x19, 0x8A, 0xDA, 0x05, 0x01, 0x02, 0x11, 0x80, 0x60, 0x80, 0xE0, 0x03]
+    );
+    // A device without a supply measurement or a logger: 00 | uptime | 00.
+    let bare = Frame {
+        device: 7,
+        seq: 311,
+        body: Body::DeviceStatus(DeviceStatus {
+            supply_mv: None,
+            uptime_ms: 1_000,
+            logger: None,
+        }),
+    };
+    assert_eq!(ref_parse(&enc(&bare)).4, [0x00, 0xE8, 0x07, 0x00]);
 }
 
 /// SetExtras { on } from the host, seq 9, worked by hand from docs/wire-protocol.md: the
@@ -1491,6 +1549,26 @@ fn arb_body() -> impl Strategy<Value = Body> {
                 data: heapless::Vec::from_slice(&d).unwrap(),
             })),
         any::<u16>().prop_map(|seq| Body::Ack(Ack { seq })),
+        (
+            proptest::option::of(any::<u16>()),
+            any::<u64>(),
+            proptest::option::of((0u32..3, any::<u32>(), any::<u32>(), any::<u32>()))
+        )
+            .prop_map(
+                |(supply_mv, uptime_ms, logger)| Body::DeviceStatus(DeviceStatus {
+                    supply_mv,
+                    uptime_ms,
+                    logger: logger.map(|(s, remaining, used_bytes, capacity_bytes)| LoggerStatus {
+                        state: match s {
+                            0 => LoggerState::Idle,
+                            1 => LoggerState::Armed,
+                            _ => LoggerState::Capturing { remaining },
+                        },
+                        used_bytes,
+                        capacity_bytes,
+                    }),
+                })
+            ),
         (any::<u16>(), any::<u8>()).prop_map(|(seq, r)| Body::Nack(Nack {
             seq,
             reason: NackReason::from_code(r)
@@ -1684,7 +1762,8 @@ fn typical_tips(probe: u8, start: u64) -> TipReport {
 
 /// [`run_link`]; with `device_stream` every window result also brings its derived figures
 /// (kind 0x08) and its probe's tip-health report (kind 0x09, sent after each health frame),
-/// as the firmware and the simulated device send them.
+/// and each health frame a device status (kind 0x0C), as the firmware and the simulated
+/// device send them.
 fn run_link_with(
     seconds: u64,
     rate: u64,
@@ -1722,6 +1801,13 @@ fn run_link_with(
                 uptime_frames: t / 50,
                 ..Health::default()
             }));
+            if device_stream {
+                s.offer_status(DeviceStatus {
+                    supply_mv: Some(3_300),
+                    uptime_ms: t / 1_000,
+                    logger: None,
+                });
+            }
         }
         if t.is_multiple_of(3_300_000) && t <= end {
             s.offer(Body::Front(FrontArrival {
@@ -1788,12 +1874,13 @@ fn a_device_stream_with_derived_figures_fits_115200() {
     let load = bytes as f64 / 30.0 / LINK_8N1_115200;
     let count = |k: Kind| host.iter().filter(|f| f.body.kind() == k).count();
     println!(
-        "device stream at 115200: {} frames ({} Windows, {} Derived, {} TipHealth), {bytes} \
-         bytes in 30 s = {:.0} B/s = {:.1} % of the link; {:?}",
+        "device stream at 115200: {} frames ({} Windows, {} Derived, {} TipHealth, {} \
+         DeviceStatus), {bytes} bytes in 30 s = {:.0} B/s = {:.1} % of the link; {:?}",
         host.len(),
         count(Kind::Windows),
         count(Kind::Derived),
         count(Kind::TipHealth),
+        count(Kind::DeviceStatus),
         bytes as f64 / 30.0,
         100.0 * load,
         s.stats()
@@ -1801,6 +1888,7 @@ fn a_device_stream_with_derived_figures_fits_115200() {
     assert_eq!(s.stats().windows_dropped, 0);
     assert_eq!(dec.stats().lost, 0);
     assert!(count(Kind::Derived) > 0 && count(Kind::TipHealth) > 0);
+    assert_eq!(count(Kind::DeviceStatus), 30, "one status per health frame");
     assert!(load <= 1.0, "load {load}");
 }
 

@@ -18,16 +18,25 @@
 //! 921 600 baud to a 3.3 V USB-serial adapter.
 //!
 //! Timing comes from the DWT cycle counter (the emulated board's TIMER0 stands in for it).
+//!
+//! Supply voltage (the device status, wire kind 0x0C): ADC1's internal reference VREFINT
+//! (channel 17) on the injected group ([`sys::vrefint`]), one conversion per health period,
+//! started by the DMA interrupt right after a scan has ended, so it falls in the ADC's idle
+//! time between two frames instead of stretching a scan. VDDA = 3.3 V x VREFINT_CAL /
+//! VREFINT_DATA (RM0383, with the factory VREFINT_CAL taken at 3.3 V); without a
+//! calibration value, VDDA = 1.21 V (DS10314's typical VREFINT) x 4095 / VREFINT_DATA.
+//! The 3.3 V rail feeds VDDA on the NUCLEO board (through a jumper-free ferrite), so this
+//! is the board's supply.
 
 use crate::acquire::{Acquisition, Block, Clock, Filled, HEALTH};
 use crate::config::{BLOCKS, BLOCK_SAMPLES, MAX_CHANNELS};
 use crate::link::Link;
-use crate::pipeline::Pipeline;
+use crate::pipeline::{Pipeline, SupplySense};
 use crate::source::SampleSource;
 use crate::{capture, sys};
 use core::cell::RefCell;
 use core::convert::Infallible;
-use core::sync::atomic::Ordering;
+use core::sync::atomic::{AtomicBool, Ordering};
 use cortex_m::peripheral::DWT;
 use cortex_m_rt::entry;
 use critical_section::Mutex;
@@ -111,6 +120,36 @@ struct AdcIsr {
 
 static ADC_ISR: Mutex<RefCell<Option<AdcIsr>>> = Mutex::new(RefCell::new(None));
 
+/// Set by the main loop when it wants a new VREFINT conversion; the DMA interrupt starts
+/// it (see the module docs).
+static VREF_WANTED: AtomicBool = AtomicBool::new(false);
+
+/// Typical VREFINT, mV (DS10314), for a part whose calibration value cannot be read.
+const VREFINT_TYP_MV: u32 = 1_210;
+
+/// The supply from VREFINT readings.
+struct Vrefint {
+    /// VREFINT_CAL, when the part has one.
+    cal: Option<u16>,
+    /// The latest supply, mV.
+    last: Option<u16>,
+}
+
+impl SupplySense for Vrefint {
+    fn supply_mv(&mut self) -> Option<u16> {
+        use frothline_core::wire::device_status::supply_from_reference;
+        if let Some(raw) = sys::vrefint::take() {
+            let raw = u32::from(raw & 0x0fff);
+            self.last = match self.cal {
+                Some(cal) => supply_from_reference(sys::vrefint::CAL_VDDA_MV, cal.into(), raw),
+                None => supply_from_reference(VREFINT_TYP_MV, 4_095, raw),
+            };
+        }
+        VREF_WANTED.store(true, Ordering::Release);
+        self.last
+    }
+}
+
 #[interrupt]
 fn DMA2_STREAM0() {
     static mut STATE: Option<AdcIsr> = None;
@@ -130,6 +169,10 @@ fn DMA2_STREAM0() {
             src.pos = 0;
             st.acq.tick();
             st.spare = st.acq.source_mut().buf.take();
+            // The buffer's last scan has just ended: the ADC is idle until the next frame.
+            if VREF_WANTED.swap(false, Ordering::AcqRel) {
+                sys::vrefint::start();
+            }
         }
         Err(e) => {
             use stm32f4xx_hal::dma::DMAError;
@@ -298,6 +341,11 @@ fn main() -> ! {
     adc.configure_channel(&gpioc.pc4.into_analog(), Sequence::Fifteen, st);
     adc.configure_channel(&gpioc.pc5.into_analog(), Sequence::Sixteen, st);
     adc.enable();
+    sys::vrefint::setup();
+    let mut vref = Vrefint {
+        cal: sys::vrefint::calibration(),
+        last: None,
+    };
 
     let [dma_a, dma_b, dma_c] = DMA_BUFFERS.take();
     let mut adc_transfer = Transfer::init_peripheral_to_memory(
@@ -345,6 +393,7 @@ fn main() -> ! {
     static LINK: StaticCell<Link<DmaUart>> = StaticCell::new();
     let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
     let mut pipe = Pipeline::new(chain, full_rx, free_tx, link, CycleClock);
+    pipe.set_supply(&mut vref);
     pipe.start();
     loop {
         if pipe.step() {

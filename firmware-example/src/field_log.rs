@@ -17,14 +17,21 @@
 //! Window results of one window close (all probes, same start) share one frame, as on the
 //! UART; the batch goes out when the next window starts, when it holds
 //! [`MAX_WINDOWS_PER_FRAME`] results, or at [`FieldLog::flush`].
+//!
+//! The logger is mounted idle and armed when the run begins (the settings' `logger_armed`).
+//! The device status the main loop sends after each health frame (wire kind 0x0C) goes
+//! straight into the log whenever the logger's state differs from the one last logged
+//! (armed, capturing, armed again): the log's own record of its states, with the supply
+//! and the time since power-up. It is a wire frame like every record, so the log's format
+//! is unchanged; `frothline logbook` lists these changes.
 
 use crate::config::DEVICE_ID;
 use crate::pipeline::ResultTap;
 use embedded_storage::nor_flash::NorFlash;
 use frothline_core::logbook::{FieldLogger, LogError, LogStats, Logbook, LoggerState, LoggerStats};
 use frothline_core::wire::{
-    encode, Body, Frame, FrontArrival, Health, ProfileFit, WindowResult, Windows, MAX_FRAME_BYTES,
-    MAX_WINDOWS_PER_FRAME,
+    encode, Body, DeviceStatus, Frame, FrontArrival, Health, LoggerStatus, ProfileFit,
+    WindowResult, Windows, MAX_FRAME_BYTES, MAX_WINDOWS_PER_FRAME,
 };
 
 /// Frames kept from before the front (window results and health), written out with it.
@@ -47,6 +54,8 @@ pub struct FieldLogStats {
     pub first_error: Option<LogError>,
     /// Device descriptions written (one at the start of each capture).
     pub descriptions: u32,
+    /// Device statuses written (one per change of the logger's state).
+    pub statuses: u32,
 }
 
 /// The field logger over a log on `F`.
@@ -58,16 +67,20 @@ pub struct FieldLog<F: NorFlash> {
     encode_errors: u32,
     first_error: Option<LogError>,
     descriptions: u32,
+    statuses: u32,
+    /// The logger state of the last status written into the log (its variant: the count of
+    /// a capture does not make a change).
+    logged_state: Option<core::mem::Discriminant<LoggerState>>,
 }
 
 impl<F: NorFlash> FieldLog<F> {
-    /// Mount the log on `flash` (never fails on content: see `Logbook::mount`) and arm.
-    /// Each capture starts with the device description, so that a log whose oldest pages
-    /// were recycled still tells the host the sample rate and the probes.
+    /// Mount the log on `flash` (never fails on content: see `Logbook::mount`), idle
+    /// until [`ResultTap::arm`]. Each capture starts with the device description, so that
+    /// a log whose oldest pages were recycled still tells the host the sample rate and the
+    /// probes.
     pub fn mount(flash: F) -> Result<Self, LogError> {
         let book = Logbook::mount(flash)?;
-        let mut logger = FieldLogger::new(CAPTURE_FRAMES);
-        logger.arm();
+        let logger = FieldLogger::new(CAPTURE_FRAMES);
         Ok(FieldLog {
             book,
             logger,
@@ -76,6 +89,8 @@ impl<F: NorFlash> FieldLog<F> {
             encode_errors: 0,
             first_error: None,
             descriptions: 0,
+            statuses: 0,
+            logged_state: None,
         })
     }
 
@@ -92,6 +107,7 @@ impl<F: NorFlash> FieldLog<F> {
             encode_errors: self.encode_errors,
             first_error: self.first_error,
             descriptions: self.descriptions,
+            statuses: self.statuses,
         }
     }
 
@@ -126,6 +142,9 @@ impl<F: NorFlash> FieldLog<F> {
             Route::Log => self.book.append(bytes).map(|()| {
                 self.descriptions = self.descriptions.saturating_add(1);
             }),
+            Route::Status => self.book.append(bytes).map(|()| {
+                self.statuses = self.statuses.saturating_add(1);
+            }),
         };
         if let Err(e) = r {
             self.first_error.get_or_insert(e);
@@ -142,6 +161,8 @@ enum Route {
     Front,
     /// Straight into the log (the device description of a capture).
     Log,
+    /// Straight into the log: a device status marking a change of the logger's state.
+    Status,
 }
 
 /// Count the records a log on `flash` holds (a fresh mount, as after a power cycle).
@@ -181,6 +202,33 @@ impl<F: NorFlash> ResultTap for FieldLog<F> {
     fn health(&mut self, h: Health) {
         self.flush();
         self.emit(Body::Health(h), Route::Logger);
+    }
+
+    fn arm(&mut self) {
+        self.logger.arm();
+    }
+
+    fn logger(&self) -> Option<LoggerStatus> {
+        Some(LoggerStatus {
+            state: self.logger.state(),
+            used_bytes: self.book.used_bytes() as u32,
+            capacity_bytes: self.book.record_capacity() as u32,
+        })
+    }
+
+    /// Log the status when the logger's state changed since the last one logged (an idle
+    /// logger logs nothing: nothing of its run is kept).
+    fn status(&mut self, s: DeviceStatus) {
+        let Some(state) = s.logger.map(|l| l.state) else {
+            return;
+        };
+        let d = core::mem::discriminant(&state);
+        if state == LoggerState::Idle || self.logged_state == Some(d) {
+            return;
+        }
+        self.flush();
+        self.logged_state = Some(d);
+        self.emit(Body::DeviceStatus(s), Route::Status);
     }
 
     fn read_region(&mut self, offset: u32, buf: &mut [u8]) -> Option<u32> {

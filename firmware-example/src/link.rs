@@ -141,6 +141,11 @@ impl<W: Write> Link<W> {
         self.streamer.offer_health(h);
     }
 
+    /// Queue a device status (sent after the health frame; replaces one not yet sent).
+    pub fn status(&mut self, s: frothline_core::wire::DeviceStatus) {
+        self.streamer.offer_status(s);
+    }
+
     /// Send what the link's budget allows at sample-clock time `now` (frames).
     pub fn pump(&mut self, now: u64) {
         while let Some(bytes) = self.streamer.poll(now, 64) {

@@ -32,7 +32,7 @@
 //!
 //! - `logger` (field-logger build only, `--features field-logger`: the surge capture and a
 //!   station chain): `run`, and every result also goes to the field logger
-//!   ([`crate::field_log`]): armed from the start, a pre-trigger ring before the front, the
+//!   ([`crate::field_log`]): armed when the run begins, a pre-trigger ring before the front, the
 //!   front and what follows into a power-loss-safe log on a NOR flash stand-in
 //!   ([`crate::ram_nor`]). At the end the log is mounted afresh (as after a power cycle)
 //!   and its records counted, and the region's image goes out of UART1 (QEMU's second
@@ -726,7 +726,8 @@ mod logger {
     type Flash = RamNor<LOG_BYTES>;
     static FLASH: ConstStaticCell<Flash> = ConstStaticCell::new(RamNor::new());
 
-    /// Erase the region (a factory-fresh part) and mount the log on it, armed.
+    /// Erase the region (a factory-fresh part) and mount the log on it (idle until the
+    /// run arms it).
     pub fn mount() -> Option<FieldLog<&'static mut Flash>> {
         let flash = FLASH.try_take()?;
         flash.erase_all();
@@ -748,7 +749,7 @@ mod logger {
             }
         };
         report!(
-            "fw.logger state={} triggers={} descriptions={} logged={} dropped={} overwritten={} encode_errors={} log_error={} pages_recycled={} records_after_remount={} image_bytes={}",
+            "fw.logger state={} triggers={} descriptions={} statuses={} logged={} dropped={} overwritten={} encode_errors={} log_error={} pages_recycled={} records_after_remount={} image_bytes={}",
             match state {
                 frothline_core::logbook::LoggerState::Idle => "idle",
                 frothline_core::logbook::LoggerState::Armed => "armed",
@@ -756,6 +757,7 @@ mod logger {
             },
             st.logger.triggers,
             st.descriptions,
+            st.statuses,
             st.logger.logged,
             st.logger.dropped,
             st.logger.overwritten,
@@ -776,7 +778,8 @@ mod logger {
             && st.encode_errors == 0
             && st.first_error.is_none()
             && st.descriptions >= 1
-            && found == st.logger.logged + st.descriptions
+            && st.statuses >= 2
+            && found == st.logger.logged + st.descriptions + st.statuses
     }
 }
 

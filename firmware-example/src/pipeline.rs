@@ -13,12 +13,22 @@ use crate::link::Link;
 use crate::settings::{Settings, SettingsSink};
 use core::sync::atomic::Ordering;
 use embedded_io::{Read, ReadReady, Write};
-use frothline_core::wire::{FrontArrival, Health, ProfileFit, Responder, RunStart, WindowResult};
+use frothline_core::wire::{
+    DeviceStatus, FrontArrival, Health, LoggerStatus, ProfileFit, Responder, RunStart, WindowResult,
+};
 use frothline_core::{Flags, FrontRecord};
 use heapless::spsc::{Consumer, Producer};
 
-/// A health frame goes out every this many blocks (and at the end).
+/// A health frame goes out every this many blocks (and at the end), each followed by a
+/// device status (kind 0x0C).
 const HEALTH_EVERY_BLOCKS: u32 = 8;
+
+/// A board's measurement of its supply voltage (the device status's `supply_mv`).
+pub trait SupplySense {
+    /// The latest supply reading, mV (None when there is none yet), and start the next
+    /// one. Called once per health period from the main loop.
+    fn supply_mv(&mut self) -> Option<u16>;
+}
 
 /// A second consumer of the results besides the link (the field logger, see
 /// [`crate::field_log`]): it sees every window result, front, profile and health frame.
@@ -33,6 +43,16 @@ pub trait ResultTap {
     fn health(&mut self, h: Health);
     /// The run ended: write out what is pending.
     fn flush(&mut self);
+    /// Arm the logger (the run began and the settings ask for it).
+    fn arm(&mut self) {}
+    /// The logger's state and its log's use, for the device status; None without one.
+    fn logger(&self) -> Option<LoggerStatus> {
+        None
+    }
+    /// The device status just sent (after each health frame).
+    fn status(&mut self, s: DeviceStatus) {
+        let _ = s;
+    }
     /// Raw bytes of the log region at `offset` (a host reading the log over the link);
     /// the region's size, or `None` when there is no log to read.
     fn read_region(&mut self, offset: u32, buf: &mut [u8]) -> Option<u32> {
@@ -72,6 +92,12 @@ pub struct Pipeline<'t, W: 'static, C> {
     /// Time accounting.
     pub timing: Timing,
     tap: Option<&'t mut dyn ResultTap>,
+    /// The board's supply measurement, if it has one.
+    supply: Option<&'t mut dyn SupplySense>,
+    /// Clock ticks since power-up (the clock counts from 0 at power-up; the 32-bit
+    /// reading is extended here, read at least once per block), and the last reading.
+    uptime_ticks: u64,
+    last_tick: u32,
     #[cfg(feature = "self-check")]
     digest: Digest,
     frames_pushed: u64,
@@ -112,12 +138,16 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         for (slot, p) in tip_channels.iter_mut().zip(chain.config().probes.iter()) {
             *slot = Some((p.leading.channel, p.trailing.map(|t| t.channel)));
         }
+        let last_tick = clock.now();
         Pipeline {
             chain,
             full,
             free,
             link,
             clock,
+            supply: None,
+            uptime_ticks: last_tick as u64,
+            last_tick,
             channels,
             stall_ticks: 0,
             timing: Timing::default(),
@@ -246,6 +276,40 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         self.tap = Some(tap);
     }
 
+    /// Report the supply `sense` measures in the device status.
+    pub fn set_supply(&mut self, sense: &'t mut dyn SupplySense) {
+        self.supply = Some(sense);
+    }
+
+    /// Extend the clock's reading into the time since power-up.
+    fn tick_uptime(&mut self) {
+        let now = self.clock.now();
+        self.uptime_ticks = self
+            .uptime_ticks
+            .saturating_add(now.wrapping_sub(self.last_tick) as u64);
+        self.last_tick = now;
+    }
+
+    /// The device status now: the supply, the time since power-up, the field logger.
+    pub fn status(&mut self) -> DeviceStatus {
+        self.tick_uptime();
+        DeviceStatus {
+            supply_mv: self.supply.as_mut().and_then(|s| s.supply_mv()),
+            uptime_ms: self.uptime_ticks.saturating_mul(1_000) / C::HZ as u64,
+            logger: self.tap.as_ref().and_then(|t| t.logger()),
+        }
+    }
+
+    /// Queue a device status, and hand it to the tap (the field logger notes changes of
+    /// its state in its log).
+    fn send_status(&mut self) {
+        let s = self.status();
+        self.link.status(s);
+        if let Some(t) = self.tap.as_mut() {
+            t.status(s);
+        }
+    }
+
     /// The clock.
     pub fn clock(&self) -> &C {
         &self.clock
@@ -265,9 +329,16 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
     pub fn start(&mut self) {
         self.link.describe();
         self.send_levels();
+        // The status at power-on: the field logger, mounted, is idle until the run arms it.
+        self.send_status();
         if !self.run.running {
             self.link.pump(0);
             return;
+        }
+        if self.settings.logger_armed {
+            if let Some(t) = self.tap.as_mut() {
+                t.arm();
+            }
         }
         self.link.run_start(RunStart {
             run: 1,
@@ -350,12 +421,14 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         // Give the block back; cannot fail: the queue holds every block.
         let _ = self.free.enqueue(filled.block);
         let t0 = self.clock.now();
+        self.tick_uptime();
         if self.blocks % HEALTH_EVERY_BLOCKS == 0 {
             let h = self.health();
             self.link.health(h);
             if let Some(t) = self.tap.as_mut() {
                 t.health(h);
             }
+            self.send_status();
         }
         self.link.pump(self.sample_clock());
         self.timing.records += self.clock.now().wrapping_sub(t0) as u64;
@@ -389,6 +462,7 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             t.health(h);
             t.flush();
         }
+        self.send_status();
         self.link.drain(now);
     }
 

@@ -361,3 +361,77 @@ pub fn instruction_loop(iterations: u32) {
         );
     }
 }
+
+/// The STM32F411's internal reference voltage (VREFINT) on ADC1 channel 17, converted by
+/// the ADC's injected group beside the regular scan that the DMA drains (the HAL drives
+/// the regular group only; the injected group's registers are used here alone).
+///
+/// From the reference manual RM0383 (STM32F411xC/E): TSVREFE in ADC_CCR connects VREFINT
+/// to channel 17; with JL = 0 in ADC_JSQR the injected sequence converts the one channel
+/// in JSQ4 (not JSQ1); JSWSTART in ADC_CR2 starts it, JEOC in ADC_SR marks its end and
+/// ADC_JDR1 holds the code. A software-started injected conversion interrupts a regular
+/// scan, which resumes afterwards. From the datasheet DS10314 (STM32F411xC/E): VREFINT is
+/// 1.21 V typical, it needs at least 10 µs of sampling (the longest sampling time, 480
+/// ADC clock cycles, gives that at an ADC clock up to 48 MHz), and the factory
+/// calibration VREFINT_CAL, the raw 12-bit code of VREFINT taken at VDDA = 3.3 V and
+/// 30 °C, is the half-word at 0x1FFF_7A2A in system memory.
+#[cfg(feature = "board-stm32f4")]
+pub mod vrefint {
+    use stm32f4xx_hal::pac;
+
+    /// Address of VREFINT_CAL (DS10314, "Internal reference voltage calibration values").
+    const VREFINT_CAL: usize = 0x1FFF_7A2A;
+
+    /// VDDA at which VREFINT_CAL was taken, mV.
+    pub const CAL_VDDA_MV: u32 = 3_300;
+
+    fn adc() -> &'static pac::adc1::RegisterBlock {
+        // SAFETY: ADC1's register block exists at this fixed address on the part. The
+        // regular group's registers belong to the HAL's driver (through its DMA
+        // transfer); the functions here touch the injected group's registers, VREFINT's
+        // sampling time and its enable bit, which that driver never writes.
+        unsafe { &*pac::ADC1::ptr() }
+    }
+
+    /// Enable VREFINT and set up the injected group to convert it (one conversion,
+    /// channel 17, 480 cycles), then start the first conversion.
+    pub fn setup() {
+        // SAFETY: as in `adc`; ADC_CCR is shared by the ADCs, and only TSVREFE and VBATE
+        // (VBAT must be off for VREFINT to be read, RM0383) are changed.
+        let common = unsafe { &*pac::ADC_COMMON::ptr() };
+        common
+            .ccr()
+            .modify(|_, w| w.vbate().clear_bit().tsvrefe().set_bit());
+        let adc = adc();
+        adc.smpr1().modify(|_, w| w.smp17().cycles480());
+        // SAFETY: 17 is a valid channel number for the 5-bit JSQ4 field.
+        adc.jsqr()
+            .write(|w| unsafe { w.jl().bits(0).jsq4().bits(17) });
+        start();
+    }
+
+    /// Start a conversion of VREFINT (software trigger of the injected group).
+    pub fn start() {
+        adc().cr2().modify(|_, w| w.jswstart().set_bit());
+    }
+
+    /// The code of a finished conversion (and clear its flag); None while none finished.
+    pub fn take() -> Option<u16> {
+        let adc = adc();
+        if adc.sr().read().jeoc().bit_is_clear() {
+            return None;
+        }
+        let code = adc.jdr1().read().jdata().bits();
+        adc.sr().modify(|_, w| w.jeoc().clear());
+        Some(code)
+    }
+
+    /// The factory calibration VREFINT_CAL, a 12-bit code; None if it reads as erased
+    /// (0xFFFF) or 0.
+    pub fn calibration() -> Option<u16> {
+        // SAFETY: an aligned half-word read of system memory (read-only OTP area), present
+        // on every STM32F411.
+        let v = unsafe { core::ptr::read_volatile(VREFINT_CAL as *const u16) };
+        (v != 0 && v != 0xFFFF).then_some(v)
+    }
+}

@@ -9,11 +9,11 @@ Input, one JSON object per line on standard input:
 
     {"hex": "<the bytes between two delimiters>", "rust": "frame" | "unsupported" |
      "rejected", "code": <kind code>, "seq": <n>, "windows": [<window results>]?, "tips": [<tip reports>]?,
-     "levels": [<probe levels>]?, "full": [<full windows>]?}
+     "levels": [<probe levels>]?, "full": [<full windows>]?, "status": {<device status>}?}
 
 For every line both decoders must reach the Rust verdict (accept as a frame of that kind
 and seq, skip as unsupported, or reject), and for a Windows frame decode the same window
-results (integers of the wire), for a TipHealth frame the same tip reports, for a Levels frame the same levels, for a FullWindows frame the same full windows. Output: one JSON summary line; exit 1 on any mismatch.
+results (integers of the wire), for a TipHealth frame the same tip reports, for a Levels frame the same levels, for a FullWindows frame the same full windows, for a DeviceStatus frame the same status. Output: one JSON summary line; exit 1 on any mismatch.
 
     python3 check_decoders.py < cases.jsonl
 """
@@ -89,6 +89,8 @@ def main():
                 ok = got[3] == case["levels"]
             if ok and want == "frame" and "full" in case:
                 ok = got[3] == case["full"]
+            if ok and want == "frame" and "status" in case:
+                ok = got[3] == case["status"]
             if not ok:
                 counts["mismatches"] += 1
                 if shown < 10:

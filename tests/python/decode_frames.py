@@ -236,6 +236,27 @@ def probe_levels(c):
     return {"leading": tip_setting(c), "trailing": c.opt(lambda: tip_setting(c))}
 
 
+def logger_status(c):
+    # Section 6, 0x0C: the state's variant index, its fields, then the log's use.
+    variant = c.uvar(32)
+    if variant == 0:
+        out = {"state": "idle"}
+    elif variant == 1:
+        out = {"state": "armed"}
+    elif variant == 2:
+        out = {"state": "capturing", "remaining": u32(c)}
+    else:
+        raise ValueError("logger state")
+    out["used_bytes"] = u32(c)
+    out["capacity_bytes"] = u32(c)
+    return out
+
+
+def device_status(c):
+    return {"supply_mv": c.opt(lambda: u16(c)), "uptime_ms": u64(c),
+            "logger": c.opt(lambda: logger_status(c))}
+
+
 def empty(c):
     return None
 
@@ -268,6 +289,7 @@ KINDS = {
     0x08: ("derived", lambda c: c.seq(lambda: derived_result(c), 8)),
     0x09: ("tip_health", lambda c: c.seq(lambda: tip_report(c), 6)),
     0x0A: ("levels", lambda c: c.seq(lambda: probe_levels(c), 16)),
+    0x0C: ("device_status", device_status),
     0x0B: ("full_windows", lambda c: c.seq(
         lambda: {"result": window_result(c), "extras": window_extras(c)}, 4)),
     0x20: ("start_run", lambda c: {"label": c.text(16), "utc_ms": c.opt(lambda: u64(c))}),

@@ -85,6 +85,9 @@ pub enum Kind {
     /// [`FullWindows`](crate::wire::FullWindows): window results with the figures kind
     /// 0x02 leaves out (after a SetExtras).
     FullWindows = 0x0B,
+    /// [`DeviceStatus`](crate::wire::DeviceStatus): supply voltage, time since power-up,
+    /// the field logger's state (with every health frame).
+    DeviceStatus = 0x0C,
     /// Command [`StartRun`].
     StartRun = 0x20,
     /// Command: stop the run (no body).
@@ -111,7 +114,7 @@ pub enum Kind {
 
 impl Kind {
     /// Every kind, in code order.
-    pub const ALL: [Kind; 22] = [
+    pub const ALL: [Kind; 23] = [
         Kind::Describe,
         Kind::Windows,
         Kind::Front,
@@ -123,6 +126,7 @@ impl Kind {
         Kind::TipHealth,
         Kind::Levels,
         Kind::FullWindows,
+        Kind::DeviceStatus,
         Kind::StartRun,
         Kind::StopRun,
         Kind::SetWindow,
@@ -155,6 +159,7 @@ impl Kind {
             0x09 => Kind::TipHealth,
             0x0A => Kind::Levels,
             0x0B => Kind::FullWindows,
+            0x0C => Kind::DeviceStatus,
             0x20 => Kind::StartRun,
             0x21 => Kind::StopRun,
             0x22 => Kind::SetWindow,
@@ -170,9 +175,8 @@ impl Kind {
         })
     }
 
-    /// Codes set aside for kinds that are specified but not implemented by this build:
-    /// None in this build (0x07, 0x25, 0x26 and 0x27, set aside by the first version-2
-    /// specification, are all implemented).
+    /// Codes set aside for kinds specified but not implemented by this build: none (0x07,
+    /// 0x25, 0x26 and 0x27, set aside by the first version-2 text, are implemented).
     pub const RESERVED: [u8; 0] = [];
 
     /// True for the kinds a device sends (results and replies).
@@ -246,6 +250,8 @@ pub enum Body {
     /// Window results with their extras (1 to
     /// [`MAX_FULL_WINDOWS_PER_FRAME`](crate::wire::MAX_FULL_WINDOWS_PER_FRAME)).
     FullWindows(crate::wire::FullWindows),
+    /// Supply voltage, time since power-up, logger state.
+    DeviceStatus(crate::wire::DeviceStatus),
     /// Command: start a run.
     StartRun(StartRun),
     /// Command: stop the run.
@@ -285,6 +291,7 @@ impl Body {
             Body::TipHealth(_) => Kind::TipHealth,
             Body::Levels(_) => Kind::Levels,
             Body::FullWindows(_) => Kind::FullWindows,
+            Body::DeviceStatus(_) => Kind::DeviceStatus,
             Body::StartRun(_) => Kind::StartRun,
             Body::StopRun => Kind::StopRun,
             Body::SetWindow(_) => Kind::SetWindow,
@@ -308,9 +315,7 @@ impl Body {
     }
 }
 
-// ---------------------------------------------------------------------------------------
-// Device -> host
-// ---------------------------------------------------------------------------------------
+// ----------------------------------- Device -> host ------------------------------------
 
 /// Kind 0x01: what the device is and how its probes sit.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize, Deserialize, MaxSize)]
@@ -501,9 +506,7 @@ pub struct RunStart {
     pub utc_ms: Option<u64>,
 }
 
-// ---------------------------------------------------------------------------------------
-// Host -> device
-// ---------------------------------------------------------------------------------------
+// ----------------------------------- Host -> device ------------------------------------
 
 /// Kind 0x20: start a run.
 #[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize, MaxSize)]

@@ -10,9 +10,9 @@
 //! formats:
 //! - [`frame`]: the header, the frame kinds and every body type, defined once here and shared
 //!   by firmware and host;
-//! - [`tip_health`], [`levels_in_use`], [`full_windows`], `derived_frame`: the bodies of the
-//!   kinds added within version 2 (tip health, levels in use, full windows, derived
-//!   figures), each with what builds it from the chain's records;
+//! - [`tip_health`], [`levels_in_use`], [`full_windows`], `derived_frame`,
+//!   [`device_status`]: the bodies of the kinds added within version 2 (tip health, levels
+//!   in use, full windows, derived figures, device status), each with what builds it;
 //! - [`quant`]: the fixed-point units of the quantised fields, and records -> bodies;
 //! - [`codec`]: [`encode`] and [`decode`] of one frame into and out of caller buffers;
 //! - [`decoder`]: the streaming [`Decoder`] a serial read loop feeds, with resynchronisation
@@ -31,6 +31,7 @@
 pub mod codec;
 pub mod decoder;
 pub mod derived_frame;
+pub mod device_status;
 pub mod frame;
 pub mod full_windows;
 pub mod levels_in_use;
@@ -42,6 +43,7 @@ pub mod tip_health;
 pub use codec::{crc32, decode, decode_unstuffed, encode, WireError};
 pub use decoder::{Decoder, DecoderStats, DeviceSeqStats, FeedResult, SeqCheck};
 pub use derived_frame::{ChordLengths, DerivedBatch, DerivedResult};
+pub use device_status::{DeviceStatus, LoggerStatus};
 pub use frame::{
     Ack, Body, ChordTimes, Correlation, DeviceDescription, Frame, FrontArrival, Header, Health,
     Kind, LogChunk, Nack, NackReason, ProbeLayout, ProfileFit, ReadLog, Relearn, RunStart,
@@ -101,6 +103,7 @@ pub const MAX_BODY_BYTES: usize = {
     m = max(m, TipHealth::POSTCARD_MAX_SIZE);
     m = max(m, LevelsInUse::POSTCARD_MAX_SIZE);
     m = max(m, FullWindows::POSTCARD_MAX_SIZE);
+    m = max(m, DeviceStatus::POSTCARD_MAX_SIZE);
     m = max(m, SetExtras::POSTCARD_MAX_SIZE);
     m = max(m, StartRun::POSTCARD_MAX_SIZE);
     m = max(m, WindowSetting::POSTCARD_MAX_SIZE);

@@ -5,6 +5,7 @@
 //!                description slot (latest wins)                     +-> encode (seq++) -> tx
 //!                levels slot (latest wins; after the description)   |
 //!                health slot (latest wins; counters are cumulative)  |        |
+//!                status slot (latest wins; after health)            |        |
 //!                tip book (latest report per probe; after health)    |        |
 //!                window queue (Q results; full -> drop the oldest)  -+        v
 //!                (with X >= Q: their extras, for full windows, kind 0x0B)
@@ -18,7 +19,7 @@
 //!
 //! Policy when the link cannot keep up: the very first frame is the description if one is
 //! queued (a device's power-on marker); after it urgent frames go first, then the
-//! description, then the levels in use, then health, then window results, then their derived figures (kind 0x08,
+//! description, then the levels in use, then health, then the device status, then window results, then their derived figures (kind 0x08,
 //! a queue of its own of `Q`, dropped and counted like window results). Window results wait in a queue of `Q`; when it is full the
 //! **oldest** result is dropped. A new description or health frame replaces a queued one
 //! (nothing is lost: health counters are cumulative). An urgent frame offered to a full
@@ -181,6 +182,7 @@ pub struct Streamer<
     describe: Option<DeviceDescription>,
     levels: Option<crate::wire::LevelsInUse>,
     health: Option<Health>,
+    status: Option<crate::wire::DeviceStatus>,
     tips: TipBook<T>,
     /// A health frame went out: send the tip book next.
     tips_due: bool,
@@ -208,6 +210,7 @@ impl<const Q: usize, const P: usize, const T: usize, const X: usize> Streamer<Q,
             describe: None,
             levels: None,
             health: None,
+            status: None,
             tips: TipBook::default(),
             tips_due: false,
             tx: [0; MAX_FRAME_BYTES],
@@ -258,6 +261,7 @@ impl<const Q: usize, const P: usize, const T: usize, const X: usize> Streamer<Q,
             Body::Describe(d) => return Self::replace(&mut self.describe, d, &mut self.stats),
             Body::Levels(l) => return Self::replace(&mut self.levels, l, &mut self.stats),
             Body::Health(h) => return Self::replace(&mut self.health, h, &mut self.stats),
+            Body::DeviceStatus(d) => return Self::replace(&mut self.status, d, &mut self.stats),
             Body::TipHealth(v) => {
                 for r in v {
                     self.offer_tips(r);
@@ -293,6 +297,12 @@ impl<const Q: usize, const P: usize, const T: usize, const X: usize> Streamer<Q,
     /// as its largest variant) on the caller's stack.
     pub fn offer_health(&mut self, h: Health) -> Offer {
         Self::replace(&mut self.health, h, &mut self.stats)
+    }
+
+    /// Queue a device status (kind 0x0C; sent after the health frame, a newer one replaces
+    /// a queued one: it is a state).
+    pub fn offer_status(&mut self, s: crate::wire::DeviceStatus) -> Offer {
+        Self::replace(&mut self.status, s, &mut self.stats)
     }
 
     /// Keep `r` as its probe's latest tip-health report (sent after the next health frame;
@@ -437,6 +447,7 @@ impl<const Q: usize, const P: usize, const T: usize, const X: usize> Streamer<Q,
             && self.describe.is_none()
             && self.levels.is_none()
             && self.health.is_none()
+            && self.status.is_none()
             && (!self.tips_due || self.tips.is_empty())
     }
 
@@ -491,6 +502,8 @@ impl<const Q: usize, const P: usize, const T: usize, const X: usize> Streamer<Q,
             h.frames_dropped = self.stats.frames_dropped();
             self.tips_due = true;
             Body::Health(h)
+        } else if let Some(d) = self.status.take() {
+            Body::DeviceStatus(d)
         } else if let Some(v) = self.next_tips() {
             Body::TipHealth(v)
         } else if !self.extras.is_empty() && self.extras.len() >= self.windows.len() {

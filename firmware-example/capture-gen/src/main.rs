@@ -27,6 +27,7 @@
 
 #[path = "../../src/digest.rs"]
 mod digest;
+mod status_check;
 
 use frothline_core::front::FrontConfig;
 use frothline_core::profile::ProfileConfig;
@@ -434,9 +435,13 @@ fn emit_layout(
 /// Decode the firmware's UART output and compare its window results with a host replay.
 fn verify_uart(args: &[String]) -> Result<(), String> {
     use frothline_core::wire::{Body, Decoder, FeedResult};
+    let (logger, args) = match args {
+        [rest @ .., last] if last == "--logger" => (true, rest),
+        _ => (false, args),
+    };
     let [capture, layout, window, uart] = args else {
         return Err(
-            "usage: frothline-capture-gen verify-uart CAPTURE.wav LAYOUT.toml WINDOW UART.bin"
+            "usage: frothline-capture-gen verify-uart CAPTURE.wav LAYOUT.toml WINDOW UART.bin [--logger]"
                 .into(),
         );
     };
@@ -447,6 +452,7 @@ fn verify_uart(args: &[String]) -> Result<(), String> {
     let mut got = Vec::new();
     let (mut describes, mut healths, mut last_health) = (0, 0, None);
     let mut fronts_profiles = 0;
+    let mut statuses = Vec::new();
     let mut rest: &[u8] = &bytes;
     while !rest.is_empty() {
         let r = dec.feed(rest);
@@ -469,6 +475,7 @@ fn verify_uart(args: &[String]) -> Result<(), String> {
                     last_health = Some(h);
                 }
                 Body::Front(_) | Body::Profile(_) => fronts_profiles += 1,
+                Body::DeviceStatus(s) => statuses.push(s),
                 Body::RunStart(r) if r.run == 1 => {}
                 other => eprintln!("verify-uart: unexpected frame {other:?}"),
             }
@@ -512,7 +519,7 @@ fn verify_uart(args: &[String]) -> Result<(), String> {
         got.iter().filter(|w| w.correlation.is_some()).count(),
         got.iter().filter(|w| w.chords.is_some()).count()
     );
-    Ok(())
+    status_check::check_uart(&statuses, logger)
 }
 
 /// The window results a host replay of `capture` gives, as the wire carries them.
@@ -610,11 +617,11 @@ fn verify_log(args: &[String]) -> Result<(), String> {
     let Some(first_front) = frames.iter().position(|f| matches!(f.body, Body::Front(_))) else {
         return Err("no front frame in the log".into());
     };
-    // Before the front: the device description the logger writes at a trigger, then the
-    // pre-trigger ring.
+    // Before the front: the device description the logger writes at a trigger, the device
+    // status it writes when its state changes, then the pre-trigger ring.
     let before = frames[..first_front]
         .iter()
-        .filter(|f| !matches!(f.body, Body::Describe(_)))
+        .filter(|f| !matches!(f.body, Body::Describe(_) | Body::DeviceStatus(_)))
         .count();
     if before > pre {
         return Err(format!(
@@ -685,7 +692,14 @@ fn verify_log(args: &[String]) -> Result<(), String> {
         arrival.probe,
         logged.len()
     );
-    Ok(())
+    let statuses: Vec<_> = frames
+        .iter()
+        .filter_map(|f| match f.body {
+            Body::DeviceStatus(s) => Some(s),
+            _ => None,
+        })
+        .collect();
+    status_check::check_log(&statuses)
 }
 
 /// Run the capture through a chain of the firmware's shape (`Chain<8, 64>`) with the same

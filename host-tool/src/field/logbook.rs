@@ -4,8 +4,11 @@
 //! ```text
 //! image file -> geometry (given, or detected: crate::field::flash_image) -> Logbook records
 //!            -> each record (a wire frame; 0x00 delimiter added when missing)
-//!            -> Session (one link) -> windows.csv, fronts.csv, profile.csv
+//!            -> Session (one link) -> windows.csv, fronts.csv, profile.csv, status.csv
 //! ```
+//!
+//! A field logger writes a device status (wire kind 0x0C) into its log when its state
+//! changes (armed, capturing, armed again): the summary lists those changes.
 //!
 //! The records go through the same [`Session`] as `frothline watch` and `frothline unpack`,
 //! so the CSV files have the same columns and values as those of a live session.
@@ -86,6 +89,20 @@ pub struct LogbookReport {
     pub kinds: BTreeMap<&'static str, u64>,
     /// The decoded session (decoder counters, sequence gaps, CSV files).
     pub session: SessionReport,
+    /// The device statuses of the log, in log order: the logger's state changes.
+    pub logger_states: Vec<frothline_core::wire::DeviceStatus>,
+}
+
+/// What [`decode_log`] found.
+pub struct DecodedLog {
+    /// The session's report (decoder counters, sequence gaps, CSV files).
+    pub session: SessionReport,
+    /// Frames by kind name.
+    pub kinds: BTreeMap<&'static str, u64>,
+    /// Records that lacked the 0x00 delimiter.
+    pub without_delimiter: u64,
+    /// The device statuses, in log order.
+    pub logger_states: Vec<frothline_core::wire::DeviceStatus>,
 }
 
 fn usage(msg: String) -> HostError {
@@ -247,7 +264,7 @@ pub fn decode_log(
     out: Option<&Path>,
     layout: Option<Layout>,
     port_name: &str,
-) -> Result<(SessionReport, BTreeMap<&'static str, u64>, u64), HostError> {
+) -> Result<DecodedLog, HostError> {
     let mut session = Session::new(SessionOptions {
         ports: vec![port_name.to_string()],
         layout,
@@ -259,6 +276,7 @@ pub fn decode_log(
     let mut tally: Box<Decoder> = Box::default();
     let mut kinds: BTreeMap<&'static str, u64> = BTreeMap::new();
     let mut without_delimiter = 0u64;
+    let mut logger_states = Vec::new();
     let mut frame = Vec::with_capacity(MAX_RECORD_BYTES + 1);
     for rec in &log.records {
         frame.clear();
@@ -275,6 +293,9 @@ pub fn decode_log(
                 FeedResult::Consumed => break,
                 FeedResult::Frame { frame, .. } => {
                     *kinds.entry(kind_name(frame.body.kind())).or_default() += 1;
+                    if let frothline_core::wire::Body::DeviceStatus(s) = frame.body {
+                        logger_states.push(s);
+                    }
                 }
                 _ => {}
             }
@@ -282,7 +303,12 @@ pub fn decode_log(
         // The log has no host time: every record is "received" at 0.
         session.received(0, 0, &frame)?;
     }
-    Ok((session.finish()?, kinds, without_delimiter))
+    Ok(DecodedLog {
+        session: session.finish()?,
+        kinds,
+        without_delimiter,
+        logger_states,
+    })
 }
 
 /// Read the flash image of `args` and write its CSV files.
@@ -297,7 +323,7 @@ pub fn read_image(args: &LogbookArgs) -> Result<LogbookReport, HostError> {
     let name = path
         .file_name()
         .map_or_else(|| "flash".to_string(), |n| n.to_string_lossy().into_owned());
-    let (session, kinds, without) = decode_log(&log, Some(&args.out), layout, &name)?;
+    let decoded = decode_log(&log, Some(&args.out), layout, &name)?;
     Ok(LogbookReport {
         image: path.to_path_buf(),
         size: image.len() as u64,
@@ -313,9 +339,10 @@ pub fn read_image(args: &LogbookArgs) -> Result<LogbookReport, HostError> {
         pages_found: log.stats.pages_found,
         recovered_cut: log.stats.recovered_cut,
         records: log.records.len() as u64,
-        records_without_delimiter: without,
-        kinds,
-        session,
+        records_without_delimiter: decoded.without_delimiter,
+        kinds: decoded.kinds,
+        session: decoded.session,
+        logger_states: decoded.logger_states,
     })
 }
 
@@ -406,9 +433,38 @@ impl std::fmt::Display for LogbookReport {
                 let _ = writeln!(o, "  ... {} more", s.seq_gaps.len() - 20);
             }
         }
+        if let Some(line) = logger_states_line(&self.logger_states) {
+            let _ = writeln!(o, "{line}");
+        }
         o.push_str(&s.results_line("the log holds no device description"));
         writeln!(f, "{o}")
     }
+}
+
+/// The summary line of the logger's state changes a log holds, if any:
+/// `logger states (time since power-up): armed at 0.103 s (3.30 V), capturing at 0.199 s`.
+pub fn logger_states_line(states: &[frothline_core::wire::DeviceStatus]) -> Option<String> {
+    if states.is_empty() {
+        return None;
+    }
+    let changes: Vec<String> = states
+        .iter()
+        .map(|st| {
+            let mut t = format!(
+                "{} at {:.3} s",
+                st.logger_state_name(),
+                st.uptime_ms as f64 / 1e3
+            );
+            if let Some(mv) = st.supply_mv {
+                let _ = write!(t, " ({:.2} V)", f64::from(mv) / 1e3);
+            }
+            t
+        })
+        .collect();
+    Some(format!(
+        "logger states (time since power-up): {}",
+        changes.join(", ")
+    ))
 }
 
 /// `frothline logbook`.
@@ -443,4 +499,76 @@ pub fn run(args: &LogbookArgs) -> Result<LogbookReport, HostError> {
         crate::shared::stdout::print(&report.to_string());
     }
     Ok(report)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use frothline_core::logbook::LoggerState;
+    use frothline_core::wire::{encode, Body, DeviceStatus, Frame, Health, LoggerStatus};
+
+    fn record(seq: u16, body: Body) -> Vec<u8> {
+        let mut buf = [0u8; frothline_core::wire::MAX_FRAME_BYTES];
+        let f = Frame {
+            device: 3,
+            seq,
+            body,
+        };
+        encode(&f, &mut buf).unwrap().to_vec()
+    }
+
+    fn status(uptime_ms: u64, state: LoggerState) -> DeviceStatus {
+        DeviceStatus {
+            supply_mv: Some(3_304),
+            uptime_ms,
+            logger: Some(LoggerStatus {
+                state,
+                used_bytes: 512,
+                capacity_bytes: 61_440,
+            }),
+        }
+    }
+
+    /// A log of two logger-state records around a health frame: the report lists the
+    /// states in log order, and status.csv holds one row each.
+    #[test]
+    fn logger_state_changes_are_listed_and_written() {
+        let armed = status(103, LoggerState::Armed);
+        let capturing = status(199, LoggerState::Capturing { remaining: 37 });
+        let log = LogRead {
+            geometry: Geometry {
+                page_bytes: 4096,
+                write_unit: 4,
+            },
+            pages: 16,
+            stats: Default::default(),
+            records: vec![
+                record(0, Body::DeviceStatus(armed)),
+                record(1, Body::Health(Health::default())),
+                record(2, Body::DeviceStatus(capturing)),
+            ],
+        };
+        let dir = tempfile::tempdir().unwrap();
+        let d = decode_log(&log, Some(dir.path()), None, "image").unwrap();
+        assert_eq!(d.logger_states, [armed, capturing]);
+        assert_eq!(d.kinds.get("device-status"), Some(&2));
+        assert_eq!(
+            logger_states_line(&d.logger_states).unwrap(),
+            "logger states (time since power-up): armed at 0.103 s (3.30 V), capturing at \
+             0.199 s (3.30 V)"
+        );
+        let csv = std::fs::read_to_string(dir.path().join("status.csv")).unwrap();
+        let rows: Vec<&str> = csv.lines().skip(1).collect();
+        assert_eq!(rows.len(), 2, "{csv}");
+        assert!(
+            rows[0].starts_with("3,0.103,3.304,false,armed,,512,61440,"),
+            "{csv}"
+        );
+        assert!(
+            rows[1].starts_with("3,0.199,3.304,false,capturing,37,512,61440,"),
+            "{csv}"
+        );
+        assert!(d.session.files.contains(&dir.path().join("status.csv")));
+        assert_eq!(logger_states_line(&[]), None);
+    }
 }

@@ -3,8 +3,10 @@
 //! ```text
 //! links and devices   status (UP / DOWN / OPENING / QUIET), frames/s, bytes/s and share of
 //!                     the link, age of the last frame, lost frames, CRC failures; per device
-//!                     firmware, sample rate, window, run, device-reported health (one line
-//!                     per link and device on short terminals)
+//!                     its status first (supply voltage, LOW below 3.0 V, time since
+//!                     power-up, field logger state), then firmware, sample rate, window,
+//!                     run, device-reported health (one line per link and device on short
+//!                     terminals)
 //! probes (top first)  running figures of the run: C, F, V, Tu, chord median with 95 %
 //!                     batch-means intervals, windows used, convergence against the target;
 //!                     then the latest window's C and flags (CSV flag names)
@@ -24,6 +26,7 @@
 mod charts;
 mod probes;
 mod profile;
+mod status;
 mod style;
 #[cfg(test)]
 mod tests;
@@ -228,22 +231,25 @@ fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant, compac
             (Some(false), _) => "run stopped".into(),
             (None, _) => "run state not known".into(),
         };
-        lines.push(Line::from(vec![
-            Span::styled(
-                format!("device {id}"),
-                Style::default().fg(ACCENT).add_modifier(Modifier::BOLD),
-            ),
-            Span::raw(format!(
-                " on {port}: firmware {}, {} Hz, window {}, {run}",
-                if d.firmware.is_empty() {
-                    "?"
-                } else {
-                    &d.firmware
-                },
-                d.sample_rate_hz,
-                if d.window.is_empty() { "?" } else { &d.window },
-            )),
-        ]));
+        let mut spans = vec![Span::styled(
+            format!("device {id}"),
+            Style::default().fg(ACCENT).add_modifier(Modifier::BOLD),
+        )];
+        if let Some(s) = &d.status {
+            spans.extend(status::status_spans(s));
+            spans.push(Span::raw(" |"));
+        }
+        spans.push(Span::raw(format!(
+            " on {port}: firmware {}, {} Hz, window {}, {run}",
+            if d.firmware.is_empty() {
+                "?"
+            } else {
+                &d.firmware
+            },
+            d.sample_rate_hz,
+            if d.window.is_empty() { "?" } else { &d.window },
+        )));
+        lines.push(Line::from(spans));
         let h = &d.health;
         if compact {
             if h.tips_stuck > 0 || h.samples_dropped + h.frames_dropped > 0 {
@@ -301,7 +307,11 @@ fn draw_history(f: &mut Frame, area: Rect, state: &LiveState) {
         .take(n)
         .rev()
         .map(|l| {
-            let style = if l.contains("DOWN") || l.contains("NACK") || l.contains("lost") {
+            let style = if l.contains("DOWN")
+                || l.contains("NACK")
+                || l.contains("lost")
+                || l.contains("supply LOW")
+            {
                 Style::default().fg(WARN)
             } else {
                 Style::default()

@@ -8,8 +8,9 @@
 //! port -> the core's command Responder (repeats, already running, unknown kind, version,
 //!      malformed) -> StartRun / StopRun / SetWindow / Relearn / DescribeRequest -> Ack/Nack
 //! Describe at power-on, after SetWindow and on request; RunStart at every run start;
-//! Health every second (cumulative counters), then the tip health of every probe's latest
-//! window (kind 0x09)
+//! Health every second (cumulative counters), then the device status (kind 0x0C: a
+//! simulated supply, the time since power-up, no field logger), then the tip health of
+//! every probe's latest window (kind 0x09)
 //! ```
 //!
 //! The chain is built from the same configuration `frothline replay` derives from the layout
@@ -43,6 +44,7 @@
 
 mod capture;
 mod options;
+mod status;
 #[cfg(test)]
 mod tests;
 
@@ -581,6 +583,12 @@ impl SimDevice {
             h.tips_stuck = self.stuck_bits;
             h.uptime_frames = self.uptime_frames(now);
             self.streamer.offer(Body::Health(h));
+            // The device's own clock runs at the speed of its sample clock.
+            let since = now
+                .duration_since(self.power_on)
+                .mul_f64(self.opts.speed.max(0.0));
+            self.streamer
+                .offer_status(status::status(self.opts.supply_mv, since));
         }
     }
 

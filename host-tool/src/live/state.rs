@@ -110,6 +110,31 @@ pub struct LiveState {
     pub discharge_m2_s: Option<f64>,
 }
 
+/// Events lines for a new device status: the field logger's state changed, or the supply
+/// fell below the low threshold (once per fall).
+fn status_changes(
+    device: u16,
+    before: Option<&frothline_core::wire::DeviceStatus>,
+    now: &frothline_core::wire::DeviceStatus,
+) -> Vec<String> {
+    use crate::shared::status_csv::{supply_low, SUPPLY_LOW_MV};
+    let mut lines = Vec::new();
+    if let Some(b) = before {
+        let (was, is) = (b.logger_state_name(), now.logger_state_name());
+        if was != is {
+            lines.push(format!("device {device}: logger {was} -> {is}"));
+        }
+    }
+    if supply_low(now) && !before.is_some_and(supply_low) {
+        lines.push(format!(
+            "device {device}: supply LOW {:.2} V (below {:.1} V)",
+            f64::from(now.supply_mv.unwrap_or(0)) / 1e3,
+            f64::from(SUPPLY_LOW_MV) / 1e3
+        ));
+    }
+    lines
+}
+
 /// What a text prompt asks for.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum PromptKind {
@@ -361,6 +386,14 @@ impl LiveState {
                 let d = self.device(*device as u32);
                 d.health = DeviceHealth::from(health);
                 d.health_at = Some(now);
+            }
+            Event::Status { device, status, .. } => {
+                let d = self.device(*device as u32);
+                let before = d.status.replace(*status);
+                d.status_at = Some(now);
+                for line in status_changes(*device, before.as_ref(), status) {
+                    self.note(line);
+                }
             }
             Event::TipHealth { device, tips, .. } => {
                 let d = self.device(*device as u32);

@@ -100,6 +100,7 @@ pub fn kind_name(kind: Kind) -> &'static str {
         Kind::SetExtras => "set-extras",
         Kind::FullWindows => "full-windows",
         Kind::Levels => "levels",
+        Kind::DeviceStatus => "device-status",
         Kind::Ack => "ack",
         Kind::Nack => "nack",
         _ => "unknown",

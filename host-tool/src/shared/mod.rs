@@ -32,6 +32,7 @@ pub mod runs;
 pub mod serial_port;
 pub mod session;
 pub mod stations;
+pub mod status_csv;
 pub mod stdout;
 pub mod synthetic;
 pub mod tips_csv;

@@ -10,6 +10,7 @@
 //!     FullWindows -> the same, with the columns a window result leaves out filled in
 //!     Front     -> fronts.csv          Profile -> profile.csv
 //!     RunStart  -> a new run: its number, label and UTC (earlier fronts no longer apply)
+//!     DeviceStatus -> status.csv (supply, time since power-up, field logger state)
 //!     Health, Ack/Nack, sequence gaps, CRC failures -> events for the live view
 //! ```
 //!
@@ -109,6 +110,8 @@ pub struct Session {
     marks: Option<crate::shared::marks::MarksCsv>,
     /// tips.csv beside them (created at the first tip-health report).
     tips: Option<crate::shared::tips_csv::TipsCsv>,
+    /// status.csv beside them (created at the first device status).
+    status: Option<crate::shared::status_csv::StatusCsv>,
 }
 
 impl Session {
@@ -174,12 +177,16 @@ impl Session {
         let tips = out
             .as_ref()
             .map(|o| crate::shared::tips_csv::TipsCsv::new(&o.dir));
+        let status = out
+            .as_ref()
+            .map(|o| crate::shared::status_csv::StatusCsv::new(&o.dir));
         let mut s = Session {
             opts,
             ports,
             devices: BTreeMap::new(),
             marks,
             tips,
+            status,
             out,
             archive,
             report,

@@ -503,3 +503,100 @@ fn the_strip_chart_cycles_quantities_and_names_every_probe() {
         crate::live::state::StripView::Table
     );
 }
+
+/// The device status sits right after the device id at every size, and a low supply shows
+/// the word LOW (not colour alone) in the warning style.
+#[test]
+fn the_device_status_is_on_screen_at_every_size_and_a_low_supply_warns() {
+    use frothline_core::logbook::LoggerState;
+    use frothline_core::wire::{DeviceStatus, LoggerStatus};
+    let now = Instant::now();
+    let mut s = state(now);
+    let name = |_: u16, i: usize| format!("p{i}");
+    let mut status = DeviceStatus {
+        supply_mv: Some(3_297),
+        uptime_ms: 725_400,
+        logger: Some(LoggerStatus {
+            state: LoggerState::Armed,
+            used_bytes: 6_144,
+            capacity_bytes: 61_440,
+        }),
+    };
+    s.apply(
+        &Event::Status {
+            port: 0,
+            device: 7,
+            status,
+        },
+        now,
+        &name,
+    );
+    assert_eq!(s.devices[&7].status, Some(status));
+    for (w, h) in [(80u16, 24u16), (100, 30), (160, 48)] {
+        let lines = render_text(&s, now, w, h);
+        let text = lines.join("\n");
+        println!("{w}x{h}\n{text}");
+        let line = lines
+            .iter()
+            .find(|l| l.contains("device 7"))
+            .unwrap_or_else(|| panic!("{w}x{h}: no device line"));
+        assert!(line.contains("3.30 V"), "{w}x{h}: {line}");
+        assert!(line.contains("up 12 min 05 s"), "{w}x{h}: {line}");
+        assert!(line.contains("logger armed"), "{w}x{h}: {line}");
+        assert!(!line.contains("LOW"));
+    }
+    status.supply_mv = Some(2_910);
+    status.logger = None;
+    s.apply(
+        &Event::Status {
+            port: 0,
+            device: 7,
+            status,
+        },
+        now,
+        &name,
+    );
+    let backend = ratatui::backend::TestBackend::new(80, 24);
+    let mut term = ratatui::Terminal::new(backend).unwrap();
+    term.draw(|f| draw(f, &s, now)).unwrap();
+    let buf = term.backend().buffer().clone();
+    let lines = render_text(&s, now, 80, 24);
+    let (y, line) = lines
+        .iter()
+        .enumerate()
+        .find(|(_, l)| l.contains("device 7"))
+        .unwrap();
+    assert!(line.contains("2.91 V LOW"), "{line}");
+    // The events say so once, and name the logger's change (armed -> none: the status no
+    // longer carries a logger).
+    let text = render_text(&s, now, 160, 48).join("\n");
+    assert!(
+        text.contains("device 7: supply LOW 2.91 V (below 3.0 V)"),
+        "{text}"
+    );
+    assert!(text.contains("device 7: logger armed -> none"), "{text}");
+    // A second low status in a row adds no line.
+    status.uptime_ms += 1_000;
+    s.apply(
+        &Event::Status {
+            port: 0,
+            device: 7,
+            status,
+        },
+        now,
+        &name,
+    );
+    let lows = s
+        .history
+        .iter()
+        .filter(|l| l.contains("supply LOW"))
+        .count();
+    assert_eq!(lows, 1);
+    let x = line.find("2.91").unwrap();
+    let x = line[..x].chars().count() as u16;
+    assert_eq!(
+        buf[(x, y as u16)].fg,
+        WARN,
+        "the low supply in the warning style"
+    );
+}

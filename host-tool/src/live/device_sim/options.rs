@@ -17,8 +17,11 @@ pub struct SimOptions {
     pub repeat: bool,
     /// Firmware version string (at most 16 bytes are sent).
     pub firmware: String,
-    /// Period of health frames.
+    /// Period of health frames (each followed by a device status).
     pub health_every: Duration,
+    /// Nominal supply voltage the device status reports, mV (with a slow small wander,
+    /// see `status.rs`); None: the device reports no supply measurement.
+    pub supply_mv: Option<u16>,
 }
 
 impl Default for SimOptions {
@@ -31,6 +34,7 @@ impl Default for SimOptions {
             repeat: false,
             firmware: format!("sim-{}", env!("CARGO_PKG_VERSION")),
             health_every: Duration::from_secs(1),
+            supply_mv: Some(3_300),
         }
     }
 }

@@ -165,6 +165,10 @@ pub struct DeviceState {
     pub health: DeviceHealth,
     /// When the latest health report came.
     pub health_at: Option<Instant>,
+    /// Latest device status (supply, time since power-up, field logger; kind 0x0C).
+    pub status: Option<frothline_core::wire::DeviceStatus>,
+    /// When it came.
+    pub status_at: Option<Instant>,
     /// Descriptions received.
     pub descriptions: u64,
 }

@@ -26,7 +26,10 @@ pub fn describe_event(e: &Event, ports: &[String]) -> Option<String> {
             desc.channels,
             desc.firmware.as_str()
         ),
-        Event::Window { .. } | Event::Health { .. } | Event::TipHealth { .. } => return None,
+        Event::Window { .. }
+        | Event::Health { .. }
+        | Event::Status { .. }
+        | Event::TipHealth { .. } => return None,
         Event::Levels {
             port: p,
             device,

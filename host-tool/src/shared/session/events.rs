@@ -89,6 +89,15 @@ pub enum Event {
         /// The counters.
         health: Health,
     },
+    /// The device's status: supply voltage, time since power-up, field logger (kind 0x0C).
+    Status {
+        /// Port number.
+        port: usize,
+        /// Device id.
+        device: u16,
+        /// The status.
+        status: frothline_core::wire::DeviceStatus,
+    },
     /// Tip health of some probes (their latest windows).
     TipHealth {
         /// Port number.

@@ -162,6 +162,14 @@ impl Session {
                 device,
                 health,
             }),
+            Body::DeviceStatus(status) => {
+                self.status(port, device, &status)?;
+                events.push(Event::Status {
+                    port,
+                    device,
+                    status,
+                });
+            }
             Body::Derived(ds) => {
                 for d in &ds {
                     self.derived(port, device, d)?;

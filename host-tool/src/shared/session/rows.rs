@@ -191,6 +191,24 @@ impl Session {
         Ok(())
     }
 
+    /// A row of status.csv (kind 0x0C).
+    pub(super) fn status(
+        &mut self,
+        port: usize,
+        device: u16,
+        s: &frothline_core::wire::DeviceStatus,
+    ) -> Result<(), HostError> {
+        let Some(csv) = self.status.as_mut() else {
+            return Ok(());
+        };
+        let mut row = crate::shared::status_csv::status_cells(device, s);
+        row.extend(self.runs.columns(port, device, self.now_us));
+        if csv.write(&row)? {
+            self.report.files.push(csv.path().to_path_buf());
+        }
+        Ok(())
+    }
+
     pub(super) fn tip_health(
         &mut self,
         port: usize,
