@@ -17,9 +17,18 @@
 //! Window results of one window close (all probes, same start) share one frame, as on the
 //! UART; the batch goes out when the next window starts, when it holds
 //! [`MAX_WINDOWS_PER_FRAME`] results, or at [`FieldLog::flush`].
+//!
+//! Erases never fall inside a capture ([`Schedule::Prepared`]): the room of one capture
+//! ([`RESERVE_RECORDS`] frames of up to [`RESERVE_RECORD_BYTES`] bytes) is erased ahead at
+//! mount, before the board starts its acquisition, and again right after each capture when
+//! what is left would not hold another. An erase stalls the main loop (a blocking flash
+//! driver; on an STM32F4's own flash the whole CPU), so the samples it costs are dropped
+//! between captures, never inside one.
 
+use crate::acquire::HEALTH;
 use crate::config::DEVICE_ID;
 use crate::pipeline::ResultTap;
+use core::sync::atomic::Ordering;
 use embedded_storage::nor_flash::NorFlash;
 use frothline_core::logbook::{FieldLogger, LogError, LogStats, Logbook, LoggerState, LoggerStats};
 use frothline_core::wire::{
@@ -32,6 +41,24 @@ pub const PRE_TRIGGER_FRAMES: usize = 6;
 /// Frames logged after the front: at 10 ms windows, one window frame and one profile frame
 /// per window plus the probes' front frames and health: about 100 ms of flow.
 pub const CAPTURE_FRAMES: u32 = 40;
+/// Frames one capture logs, as erased ahead: the ring, the front frame, the results after
+/// it and the device description. (Each later probe's front restarts the count: a capture
+/// that outgrows the room ends where it runs out, counted in `LoggerStats::no_space`.)
+pub const RESERVE_RECORDS: u32 = PRE_TRIGGER_FRAMES as u32 + 1 + CAPTURE_FRAMES + 1;
+/// Bytes per frame erased ahead for: the surge capture's frames are 15 to 240 bytes (a
+/// frame of 8 window results is the longest).
+pub const RESERVE_RECORD_BYTES: usize = 256;
+
+/// When the log may erase.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Schedule {
+    /// Erase ahead at mount and after each capture; a capture never erases.
+    Prepared,
+    /// Erase when a record needs a page, inside a capture too (no erase ahead): what an
+    /// erase inside a capture costs is measured with it.
+    EraseInCapture,
+}
 
 /// Counters of the logger and its log, for the summary.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -47,36 +74,98 @@ pub struct FieldLogStats {
     pub first_error: Option<LogError>,
     /// Device descriptions written (one at the start of each capture).
     pub descriptions: u32,
+    /// The log had room for a capture without erasing, after the last preparation.
+    pub ready: bool,
+    /// Preparations that erased ahead or checked pages (at mount, after captures).
+    pub prepares: u32,
+    /// Frames the acquisition dropped while a capture was in progress.
+    pub dropped_frames_in_capture: u32,
 }
 
 /// The field logger over a log on `F`.
 pub struct FieldLog<F: NorFlash> {
     book: Logbook<F>,
     logger: FieldLogger<PRE_TRIGGER_FRAMES>,
+    schedule: Schedule,
     seq: u16,
     batch: Windows,
     encode_errors: u32,
     first_error: Option<LogError>,
     descriptions: u32,
+    ready: bool,
+    prepares: u32,
+    /// The acquisition's dropped-frame count when the capture in progress began.
+    capture_drops_from: Option<u32>,
+    dropped_in_capture: u32,
 }
 
 impl<F: NorFlash> FieldLog<F> {
-    /// Mount the log on `flash` (never fails on content: see `Logbook::mount`) and arm.
+    /// Mount the log on `flash` (never fails on content: see `Logbook::mount`), erase
+    /// ahead the room of a capture (with [`Schedule::Prepared`]: this is where arming takes
+    /// its time, so call it before the acquisition starts) and arm.
     /// Each capture starts with the device description, so that a log whose oldest pages
     /// were recycled still tells the host the sample rate and the probes.
-    pub fn mount(flash: F) -> Result<Self, LogError> {
+    pub fn mount(flash: F, schedule: Schedule) -> Result<Self, LogError> {
         let book = Logbook::mount(flash)?;
         let mut logger = FieldLogger::new(CAPTURE_FRAMES);
-        logger.arm();
-        Ok(FieldLog {
+        logger.set_reserve(RESERVE_RECORDS, RESERVE_RECORD_BYTES);
+        logger.set_erase_in_capture(schedule == Schedule::EraseInCapture);
+        let mut log = FieldLog {
             book,
             logger,
+            schedule,
             seq: 0,
             batch: Windows::new(),
             encode_errors: 0,
             first_error: None,
             descriptions: 0,
-        })
+            ready: false,
+            prepares: 0,
+            capture_drops_from: None,
+            dropped_in_capture: 0,
+        };
+        if schedule == Schedule::Prepared {
+            log.prepare()?;
+        }
+        log.logger.arm();
+        Ok(log)
+    }
+
+    /// Erase ahead the room of the next capture (not while capturing).
+    fn prepare(&mut self) -> Result<(), LogError> {
+        self.prepares = self.prepares.saturating_add(1);
+        let r = self.logger.prepare(&mut self.book);
+        self.ready = matches!(r, Ok(true));
+        r.map(|_| ())
+    }
+
+    fn capturing(&self) -> bool {
+        matches!(self.logger.state(), LoggerState::Capturing { .. })
+    }
+
+    /// After a frame: a capture that ended adds its dropped frames, and the room of the
+    /// next one is erased ahead now, between captures, if what is left would not hold it.
+    /// `drops_before`: the acquisition's dropped frames before the frame was logged (a
+    /// capture starts before its first frame is written).
+    fn after_frame(&mut self, was_capturing: bool, drops_before: u32) {
+        let now = self.capturing();
+        if was_capturing && !now {
+            if let Some(from) = self.capture_drops_from.take() {
+                let d = HEALTH
+                    .dropped_frames
+                    .load(Ordering::Relaxed)
+                    .wrapping_sub(from);
+                self.dropped_in_capture = self.dropped_in_capture.saturating_add(d);
+            }
+            if self.schedule == Schedule::Prepared && !self.logger.ready(&self.book) {
+                if let Err(e) = self.prepare() {
+                    self.first_error.get_or_insert(e);
+                }
+            }
+        }
+        if !was_capturing && now {
+            self.capture_drops_from = Some(drops_before);
+        }
     }
 
     /// The logger's state.
@@ -92,6 +181,16 @@ impl<F: NorFlash> FieldLog<F> {
             encode_errors: self.encode_errors,
             first_error: self.first_error,
             descriptions: self.descriptions,
+            ready: self.ready,
+            prepares: self.prepares,
+            dropped_frames_in_capture: self.dropped_in_capture.saturating_add(
+                self.capture_drops_from.map_or(0, |from| {
+                    HEALTH
+                        .dropped_frames
+                        .load(Ordering::Relaxed)
+                        .wrapping_sub(from)
+                }),
+            ),
         }
     }
 
@@ -102,6 +201,7 @@ impl<F: NorFlash> FieldLog<F> {
 
     /// Encode `body` as the next frame and send it where `route` says.
     fn emit(&mut self, body: Body, route: Route) {
+        let drops_before = HEALTH.dropped_frames.load(Ordering::Relaxed);
         // Each capture opens with the device description, straight into the log.
         if route == Route::Front && self.logger.state() == LoggerState::Armed {
             self.emit(
@@ -120,15 +220,23 @@ impl<F: NorFlash> FieldLog<F> {
             self.encode_errors = self.encode_errors.saturating_add(1);
             return;
         };
+        let was_capturing = self.capturing();
         let r = match route {
             Route::Logger => self.logger.result(bytes, &mut self.book),
             Route::Front => self.logger.front_detected(bytes, &mut self.book),
-            Route::Log => self.book.append(bytes).map(|()| {
+            Route::Log => self.logger.append(bytes, &mut self.book).map(|()| {
                 self.descriptions = self.descriptions.saturating_add(1);
             }),
         };
-        if let Err(e) = r {
-            self.first_error.get_or_insert(e);
+        match r {
+            // Out of prepared room: counted by the logger (`no_space`), not a flash error.
+            Ok(()) | Err(LogError::NotPrepared) => {}
+            Err(e) => {
+                self.first_error.get_or_insert(e);
+            }
+        }
+        if route != Route::Log {
+            self.after_frame(was_capturing, drops_before);
         }
     }
 }

@@ -55,10 +55,12 @@ pub mod cmsdk_uart;
 pub mod host_nor;
 #[cfg(feature = "emulated-mps2")]
 mod mps2;
-#[cfg(feature = "field-logger")]
+#[cfg(all(feature = "field-logger", feature = "emulated-mps2"))]
 pub mod ram_nor;
 #[cfg(feature = "emulated-mps2")]
 pub mod sim_adc;
+#[cfg(all(feature = "field-logger", feature = "emulated-mps2"))]
+pub mod stall_nor;
 
 #[cfg(feature = "board-stm32f4")]
 mod board_stm32f4;
