@@ -18,6 +18,11 @@
 //! 921 600 baud to a 3.3 V USB-serial adapter.
 //!
 //! Timing comes from the DWT cycle counter (the emulated board's TIMER0 stands in for it).
+//!
+//! With the `field-logger` feature the results also go to the field logger
+//! ([`crate::field_log`]) over sectors 5 to 7 of the MCU's flash ([`crate::f4_flash`]).
+//! It is mounted, and the room of a capture erased ahead, before the ADC and its timer
+//! start: a sector erase stalls the CPU for a second or two, which then costs no sample.
 
 use crate::acquire::{Acquisition, Block, Clock, Filled, HEALTH};
 use crate::config::{BLOCKS, BLOCK_SAMPLES, MAX_CHANNELS};
@@ -111,9 +116,26 @@ struct AdcIsr {
 
 static ADC_ISR: Mutex<RefCell<Option<AdcIsr>>> = Mutex::new(RefCell::new(None));
 
+/// Core cycles one DMA buffer takes to fill at the sample rate.
+const BUFFER_CYCLES: u32 = SYSCLK_HZ / capture::SAMPLE_RATE_HZ * DMA_FRAMES as u32;
+
 #[interrupt]
 fn DMA2_STREAM0() {
     static mut STATE: Option<AdcIsr> = None;
+    static mut LAST: Option<u32> = None;
+    // A flash erase or program stalls the CPU (and this interrupt, whose code is in flash)
+    // while the DMA goes on filling its two buffers in turn: buffers missed in a gap of
+    // more than one and a half buffer periods are counted as dropped frames (and on the
+    // sample clock), as the acquisition counts the frames it has no block for.
+    let now = DWT::cycle_count();
+    if let Some(last) = LAST.replace(now) {
+        let gap = now.wrapping_sub(last);
+        if gap > BUFFER_CYCLES + BUFFER_CYCLES / 2 {
+            let lost = (gap / BUFFER_CYCLES).saturating_sub(1) * DMA_FRAMES as u32;
+            HEALTH.dropped_frames.fetch_add(lost, Ordering::Relaxed);
+            HEALTH.frames_in.fetch_add(lost, Ordering::Relaxed);
+        }
+    }
     if STATE.is_none() {
         *STATE = critical_section::with(|cs| ADC_ISR.borrow_ref_mut(cs).take());
     }
@@ -243,6 +265,21 @@ fn main() -> ! {
         Err(_) => halt(),
     };
 
+    // The field log first: arming may erase a sector (the CPU stalls), so before any
+    // sampling starts.
+    #[cfg(feature = "field-logger")]
+    let mut field_log = {
+        use crate::f4_flash::LogRegion;
+        use crate::field_log::{FieldLog, Schedule};
+        let Some(region) = LogRegion::new(dp.FLASH) else {
+            halt()
+        };
+        match FieldLog::mount(region, Schedule::Prepared) {
+            Ok(l) => l,
+            Err(_) => halt(),
+        }
+    };
+
     let gpioa = dp.GPIOA.split(&mut rcc);
     let gpiob = dp.GPIOB.split(&mut rcc);
     let gpioc = dp.GPIOC.split(&mut rcc);
@@ -345,6 +382,8 @@ fn main() -> ! {
     static LINK: StaticCell<Link<DmaUart>> = StaticCell::new();
     let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
     let mut pipe = Pipeline::new(chain, full_rx, free_tx, link, CycleClock);
+    #[cfg(feature = "field-logger")]
+    pipe.set_tap(&mut field_log);
     pipe.start();
     loop {
         if pipe.step() {
