@@ -26,7 +26,7 @@
 #                   factory-fresh store
 #   --verify        after the run, decode the UART file and check every window result
 #                   against a host replay of the same capture (needs the host tool to build);
-#                   logger mode: the flash image too (frothline-capture-gen verify-log)
+#                   logger and erase modes: the flash image too (frothline-capture-gen verify-log)
 set -uo pipefail
 cd "$(dirname "$0")/.."
 mode=run uart="" uart_in="" settings="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
@@ -41,7 +41,7 @@ while [ $# -gt 0 ]; do
         --log) log=$2; shift ;;
         --settings) settings=$2; shift ;;
         --verify) verify=1 ;;
-        -h|--help) sed -n '2,30p' "$0"; exit 0 ;;
+        -h|--help) sed -n '2,29p' "$0"; exit 0 ;;
         *) echo "firmware-run: unknown argument $1" >&2; exit 2 ;;
     esac
     shift

@@ -30,9 +30,10 @@
 //! Bounded work: mount reads N page headers and one page; an append writes one record (and
 //! erases one page at most); a read step looks at N headers at most.
 //!
-//! Erasing a sector takes long and, on a microcontroller's own flash, stalls the CPU (45 ms
-//! typical for a 4 KiB sector of a common SPI NOR, 1 to 2 s for a 128 KiB sector of an
-//! STM32F4's flash). [`Logbook::prepare`] erases ahead, at a time the caller chooses, the
+//! Erasing a sector takes long and, on a microcontroller's own flash, stalls the CPU (from
+//! memory: 45 ms typical for a 4 KiB sector of a W25Q-class serial NOR, its data sheets'
+//! tSE; 1 to 2 s for a 128 KiB sector of an STM32F411, its data sheet's flash
+//! characteristics). [`Logbook::prepare`] erases ahead, at a time the caller chooses, the
 //! pages that a number of records will need, and [`Logbook::append_prepared`] never erases:
 //! it fails with [`LogError::NotPrepared`] when the next record would need an erase. The
 //! field logger uses them so that no erase falls inside a capture. Pages erased ahead are

@@ -266,18 +266,13 @@ fn main() -> ! {
     };
 
     // The field log first: arming may erase a sector (the CPU stalls), so before any
-    // sampling starts.
+    // sampling starts. Without it (a part whose flash ends before sector 7, a flash
+    // error) the board still measures and streams.
     #[cfg(feature = "field-logger")]
     let mut field_log = {
         use crate::f4_flash::LogRegion;
         use crate::field_log::{FieldLog, Schedule};
-        let Some(region) = LogRegion::new(dp.FLASH) else {
-            halt()
-        };
-        match FieldLog::mount(region, Schedule::Prepared) {
-            Ok(l) => l,
-            Err(_) => halt(),
-        }
+        LogRegion::new(dp.FLASH).and_then(|r| FieldLog::mount(r, Schedule::Prepared).ok())
     };
 
     let gpioa = dp.GPIOA.split(&mut rcc);
@@ -383,7 +378,9 @@ fn main() -> ! {
     let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
     let mut pipe = Pipeline::new(chain, full_rx, free_tx, link, CycleClock);
     #[cfg(feature = "field-logger")]
-    pipe.set_tap(&mut field_log);
+    if let Some(l) = field_log.as_mut() {
+        pipe.set_tap(l);
+    }
     pipe.start();
     loop {
         if pipe.step() {

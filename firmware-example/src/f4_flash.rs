@@ -11,7 +11,9 @@
 //! implementation erases whole sectors and programs bytes), unlocked for each operation
 //! and locked again right after; reads through `LockedFlash` (memory-mapped). Every access
 //! is checked against the region and the grid first and refused with an error: nothing
-//! here panics on an offset.
+//! here panics on an offset. (The HAL asserts that the unlock sequence took, and leaves
+//! the status register's error flags set after a failed operation, so later operations
+//! report that error again until a reset.)
 //!
 //! While a sector is erased (1 to 2 s for 128 KiB; the STM32F411xC/E data sheet's flash
 //! characteristics, from memory) or bytes are programmed, any read of the flash stalls the
