@@ -5,9 +5,11 @@
 # when the run hits the time limit.
 #
 # Usage: bash scripts/firmware-run.sh [MODE] [options]
-#   MODE            run (default) | adc | overrun | measure | logger | commands | boot | instrument | field (see firmware-example/src/mps2.rs);
+#   MODE            run (default) | adc | overrun | measure | logger | commands | boot | instrument | field
+#                   | erase | erase-inside (see firmware-example/src/mps2.rs);
 #                   logger builds the field-logger firmware (surge capture, station chain) and
-#                   writes the field log's flash image, sent out of UART1, to --log
+#                   writes the field log's flash image, sent out of UART1, to --log; erase and
+#                   erase-inside do the same on a flash whose erases stall as a real part's
 #   --uart PATH     UART0 to PATH (default target/firmware/uart-MODE.bin); `stdio` for stdout;
 #                   `pty` for a pseudo-terminal a host tool opens (QEMU prints its path)
 #   --uart-in PATH  UART0's receiver reads PATH (host commands; mode `commands`)
@@ -24,13 +26,13 @@
 #                   factory-fresh store
 #   --verify        after the run, decode the UART file and check every window result
 #                   against a host replay of the same capture (needs the host tool to build);
-#                   logger mode: the flash image too (frothline-capture-gen verify-log)
+#                   logger and erase modes: the flash image too (frothline-capture-gen verify-log)
 set -uo pipefail
 cd "$(dirname "$0")/.."
 mode=run uart="" uart_in="" settings="" shift_=0 secs=60 features="" verify=0 log=target/firmware/fieldlog-image.bin
 while [ $# -gt 0 ]; do
     case "$1" in
-        run|adc|overrun|measure|logger|commands|boot|instrument|field) mode=$1 ;;
+        run|adc|overrun|measure|logger|commands|boot|instrument|field|erase|erase-inside) mode=$1 ;;
         --uart) uart=$2; shift ;;
         --uart-in) uart_in=$2; shift ;;
         --icount) shift_=$2; shift ;;
@@ -39,7 +41,7 @@ while [ $# -gt 0 ]; do
         --log) log=$2; shift ;;
         --settings) settings=$2; shift ;;
         --verify) verify=1 ;;
-        -h|--help) sed -n '2,28p' "$0"; exit 0 ;;
+        -h|--help) sed -n '2,29p' "$0"; exit 0 ;;
         *) echo "firmware-run: unknown argument $1" >&2; exit 2 ;;
     esac
     shift
@@ -74,7 +76,7 @@ if [ "$mode" = field ]; then
     features="field-logger${features:+,$features}"
     capture=firmware-example/capture-surge
 fi
-if [ "$mode" = logger ]; then
+if [ "$mode" = logger ] || [ "$mode" = erase ] || [ "$mode" = erase-inside ]; then
     features="field-logger${features:+,$features}"
     capture=firmware-example/capture-surge
     rm -f "$log"
@@ -117,10 +119,10 @@ if [ $rc -eq 0 ] && [ $verify -eq 1 ] && [ "$uart" != stdio ]; then
     d=$capture
     # The logger build's device status frames must show the logger idle, armed, capturing.
     logger_flag=()
-    [ "$mode" = logger ] && logger_flag=(--logger)
+    { [ "$mode" = logger ] || [ "$mode" = erase ]; } && logger_flag=(--logger)
     cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml -- \
         verify-uart "$d/capture.wav" "$d/layout.toml" 10ms "$uart" "${logger_flag[@]}" || rc=1
-    if [ "$mode" = logger ]; then
+    if [ "$mode" = logger ] || [ "$mode" = erase ]; then
         # PRE_TRIGGER: keep equal to firmware-example/src/field_log.rs PRE_TRIGGER_FRAMES.
         cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml -- \
             verify-log "$d/capture.wav" "$d/layout.toml" 10ms "$log" 6 || rc=1

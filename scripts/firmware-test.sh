@@ -14,6 +14,12 @@
 #            record; with the host: the UART frames and the flash image (sent out of UART1)
 #            checked against a host replay (verify-uart, verify-log)
 #   logbook  `frothline logbook` reads the image back into CSV (skipped with --no-host)
+#   erase    the field-logger build on a never-erased flash whose erases stall the main loop
+#            45 ms per 4 KiB sector (a serial NOR's typical sector erase): with the room of a
+#            capture erased ahead at arm time, no sample is dropped, the capture erases
+#            nothing, and the image reads back (verify-uart, verify-log, `frothline logbook`);
+#            the control (`erase-inside`: the log erases when it needs a page, inside the
+#            capture) must drop samples and report them in health. Prints both drop counts.
 #   commands host commands fed to UART0's receiver from a file (one of every answer of
 #            docs/wire-protocol.md section 8: repeats, already running, unknown kind,
 #            version, malformed, bad argument, busy, not running, an echo and line noise
@@ -67,6 +73,26 @@ if [ $host -eq 1 ]; then
             && [ "$(wc -l < target/firmware/fieldlog-csv/windows.csv)" -gt 1 ]
     }
     check logbook logbook
+    erase() {
+        local img=target/firmware/fieldlog-erase.bin out=target/firmware/erase-console.txt
+        local ctl=target/firmware/erase-inside-console.txt
+        bash scripts/firmware-run.sh erase --icount 0 --verify --log "$img" \
+            --uart target/firmware/uart-erase.bin > "$out" 2>&1 || { cat "$out"; return 1; }
+        grep -E "fw\.(arm|acquisition|erase) " "$out"
+        grep -q "dropped_samples=0 " "$out" && grep -q "health_samples_dropped=0" "$out" || return 1
+        rm -rf target/firmware/fieldlog-erase-csv
+        cargo run -q -p frothline-host -- logbook "$img" --page-bytes 4096 --write-unit 4 \
+            --out target/firmware/fieldlog-erase-csv --layout firmware-example/capture-surge/layout.toml \
+            && [ "$(wc -l < target/firmware/fieldlog-erase-csv/windows.csv)" -gt 1 ] || return 1
+        bash scripts/firmware-run.sh erase-inside --icount 0 --log target/firmware/fieldlog-erase-inside.bin \
+            --uart target/firmware/uart-erase-inside.bin > "$ctl" 2>&1 || { cat "$ctl"; return 1; }
+        grep -E "fw\.(arm|acquisition|erase) " "$ctl"
+    }
+    check erase erase
+    # The measured drop counts of both runs.
+    for f in target/firmware/erase-console.txt target/firmware/erase-inside-console.txt; do
+        [ -f "$f" ] && echo "      $(grep -o 'schedule=[a-z-]*' "$f") $(grep -o 'dropped_samples=[0-9]*' "$f") $(grep -o 'dropped_samples_in_capture=[0-9]*' "$f") $(grep -o 'arm_ms=[0-9]*' "$f")"
+    done
     commands() {
         local gen=(cargo run --release -q --manifest-path firmware-example/capture-gen/Cargo.toml --)
         rm -f target/firmware/settings-kept.nor

@@ -29,6 +29,17 @@
 //!
 //! Bounded work: mount reads N page headers and one page; an append writes one record (and
 //! erases one page at most); a read step looks at N headers at most.
+//!
+//! Erasing a sector takes long and, on a microcontroller's own flash, stalls the CPU (from
+//! memory: 45 ms typical for a 4 KiB sector of a W25Q-class serial NOR, its data sheets'
+//! tSE; 1 to 2 s for a 128 KiB sector of an STM32F411, its data sheet's flash
+//! characteristics). [`Logbook::prepare`] erases ahead, at a time the caller chooses, the
+//! pages that a number of records will need, and [`Logbook::append_prepared`] never erases:
+//! it fails with [`LogError::NotPrepared`] when the next record would need an erase. The
+//! field logger uses them so that no erase falls inside a capture. Pages erased ahead are
+//! given up then (their records are lost as they would be when the ring reached them); a
+//! power loss during such an erase may leave the first records of the page being given up
+//! readable, each still checked in full, so the log then holds those before a gap.
 
 use crate::wire::{crc32, MAX_FRAME_BYTES};
 use embedded_storage::nor_flash::NorFlash;
@@ -63,6 +74,9 @@ pub enum LogError {
     Geometry,
     /// The record is empty or longer than [`MAX_RECORD_BYTES`].
     RecordSize,
+    /// [`Logbook::append_prepared`]: the record needs a fresh page and the next page is not
+    /// erased (nothing, or too little, was prepared with [`Logbook::prepare`]).
+    NotPrepared,
 }
 
 impl core::fmt::Display for LogError {
@@ -71,6 +85,7 @@ impl core::fmt::Display for LogError {
             LogError::Flash => write!(f, "flash error"),
             LogError::Geometry => write!(f, "flash geometry not supported by the log"),
             LogError::RecordSize => write!(f, "record empty or too long"),
+            LogError::NotPrepared => write!(f, "no erased page prepared for the record"),
         }
     }
 }
@@ -88,6 +103,8 @@ pub struct LogStats {
     pub appended: u32,
     /// Pages erased to make room since mount (their records were given up).
     pub pages_recycled: u32,
+    /// Pages erased ahead by [`Logbook::prepare`] since mount.
+    pub pages_pre_erased: u32,
 }
 
 /// Where a reader stands: the sequence number of its page and the offset in it.
@@ -111,6 +128,9 @@ pub struct Logbook<F> {
     write_at: usize,
     /// The head page cannot take more records (full or cut): the next append opens a page.
     head_closed: bool,
+    /// Pages after the head, in ring order, known to be erased (checked or erased by
+    /// [`Logbook::prepare`]); the next pages opened take them without an erase.
+    erased_ahead: u32,
     stats: LogStats,
 }
 
@@ -150,6 +170,7 @@ impl<F: NorFlash> Logbook<F> {
             head: None,
             write_at: 0,
             head_closed: true,
+            erased_ahead: 0,
             stats: LogStats::default(),
         };
         for p in 0..log.pages {
@@ -259,28 +280,53 @@ impl<F: NorFlash> Logbook<F> {
         self.flash.write(a, bytes).map_err(|_| LogError::Flash)
     }
 
-    /// Erase the next page of the ring and make it the head.
-    fn open_page(&mut self) -> Result<(), LogError> {
-        let (page, seq) = match self.head {
-            Some((p, s)) => ((p + 1) % self.pages, s.saturating_add(1)),
-            None => (0, 1),
-        };
-        // Is that page holding records (the oldest)? Count it as recycled.
+    /// The `k`-th page the log will open after the head (page 0 first in an empty log).
+    fn page_ahead(&self, k: u32) -> u32 {
+        match self.head {
+            Some((p, _)) => (p + 1 + k % self.pages) % self.pages,
+            None => k % self.pages,
+        }
+    }
+
+    /// Erase one page (counted as recycled when it held a valid header).
+    fn erase_page(&mut self, page: u32) -> Result<(), LogError> {
         if self.page_seq(page)?.is_some() {
             self.stats.pages_recycled = self.stats.pages_recycled.saturating_add(1);
         }
         let from = self.addr(page, 0);
         let to = self.addr(page, self.page_bytes);
-        // From here the page is not a valid head until its header is written.
+        self.flash.erase(from, to).map_err(|_| LogError::Flash)
+    }
+
+    /// Make the next page of the ring the head. A page erased ahead is taken as it is;
+    /// otherwise it is erased when `erase`, or taken only if it reads erased
+    /// ([`LogError::NotPrepared`] if not).
+    fn open_page(&mut self, erase: bool) -> Result<(), LogError> {
+        let (page, seq) = match self.head {
+            Some((p, s)) => ((p + 1) % self.pages, s.saturating_add(1)),
+            None => (0, 1),
+        };
+        if self.erased_ahead > 0 {
+            self.erased_ahead -= 1;
+        } else if erase {
+            // From here the page is not a valid head until its header is written.
+            self.head_closed = true;
+            self.erase_page(page)?;
+        } else if !self.is_erased(page, 0)? {
+            return Err(LogError::NotPrepared);
+        }
         self.head_closed = true;
-        self.flash.erase(from, to).map_err(|_| LogError::Flash)?;
         let mut h = [0xFFu8; MAX_WRITE_UNIT * 2];
         h[0..4].copy_from_slice(&PAGE_MAGIC.to_le_bytes());
         h[4..8].copy_from_slice(&seq.to_le_bytes());
         let c = crc32(&h[..8]);
         h[8..12].copy_from_slice(&c.to_le_bytes());
         let hl = Self::header_len(self.unit);
-        self.program(page, 0, &h[..hl])?;
+        if let Err(e) = self.program(page, 0, &h[..hl]) {
+            // The pages ahead are no longer known as they were.
+            self.erased_ahead = 0;
+            return Err(e);
+        }
         self.head = Some((page, seq));
         self.write_at = hl;
         self.head_closed = false;
@@ -289,14 +335,59 @@ impl<F: NorFlash> Logbook<F> {
 
     /// Append one record (a wire frame's bytes). When this returns `Ok` the record is
     /// committed: it survives any later power loss (until the ring recycles its page).
+    /// Erases the next page when the record needs one that is not erased.
     pub fn append(&mut self, record: &[u8]) -> Result<(), LogError> {
+        self.append_with(record, true)
+    }
+
+    /// [`append`](Self::append) without ever erasing: a record that needs a fresh page
+    /// takes the next page only if it was prepared ([`prepare`](Self::prepare)) or reads
+    /// erased; otherwise [`LogError::NotPrepared`] and nothing is written.
+    pub fn append_prepared(&mut self, record: &[u8]) -> Result<(), LogError> {
+        self.append_with(record, false)
+    }
+
+    /// True when `records` records of up to `record_bytes` bytes each fit in the head
+    /// page's free tail and the pages erased ahead, so appending them erases nothing.
+    pub fn room_for(&self, records: u32, record_bytes: usize) -> bool {
+        let rl = Self::record_len(self.unit, record_bytes.clamp(1, MAX_RECORD_BYTES));
+        let in_head = match self.head {
+            Some(_) if !self.head_closed => self.page_bytes.saturating_sub(self.write_at) / rl,
+            _ => 0,
+        };
+        let per_page = (self.page_bytes - Self::header_len(self.unit)) / rl;
+        let ahead = (self.erased_ahead as usize).saturating_mul(per_page);
+        in_head.saturating_add(ahead) >= records as usize
+    }
+
+    /// Erase ahead, now, the pages that `records` records of up to `record_bytes` bytes
+    /// each will need, so that appending them erases nothing (see the module docs): pages
+    /// that read erased are only checked. Returns whether they fit (false when the region
+    /// is too small for them; as many pages as can be are prepared then). At most
+    /// `pages - 1` erases; the head page is never erased.
+    pub fn prepare(&mut self, records: u32, record_bytes: usize) -> Result<bool, LogError> {
+        while !self.room_for(records, record_bytes) {
+            if self.erased_ahead >= self.pages - 1 {
+                return Ok(false);
+            }
+            let page = self.page_ahead(self.erased_ahead);
+            if !self.is_erased(page, 0)? {
+                self.erase_page(page)?;
+                self.stats.pages_pre_erased = self.stats.pages_pre_erased.saturating_add(1);
+            }
+            self.erased_ahead += 1;
+        }
+        Ok(true)
+    }
+
+    fn append_with(&mut self, record: &[u8], erase: bool) -> Result<(), LogError> {
         let n = record.len();
         if n == 0 || n > MAX_RECORD_BYTES {
             return Err(LogError::RecordSize);
         }
         let need = Self::record_len(self.unit, n);
         if self.head_closed || self.head.is_none() || self.write_at + need > self.page_bytes {
-            self.open_page()?;
+            self.open_page(erase)?;
         }
         let Some((page, _)) = self.head else {
             return Err(LogError::Flash);
@@ -410,11 +501,13 @@ impl<F: NorFlash> Logbook<F> {
         self.head = None;
         self.head_closed = true;
         self.write_at = 0;
+        self.erased_ahead = 0;
         for p in 0..self.pages {
             let from = self.addr(p, 0);
             let to = self.addr(p, self.page_bytes);
             self.flash.erase(from, to).map_err(|_| LogError::Flash)?;
         }
+        self.erased_ahead = self.pages;
         Ok(())
     }
 
@@ -553,27 +646,98 @@ pub struct LoggerStats {
     pub dropped: u32,
     /// Results seen while armed that left the pre-trigger ring unlogged.
     pub overwritten: u32,
+    /// Frames of a capture not logged because the log had no erased space left for them
+    /// (the logger never erases inside a capture, see [`FieldLogger::prepare`]).
+    pub no_space: u32,
+    /// Captures ended early for that reason.
+    pub captures_cut: u32,
 }
 
 /// The unattended field logger: armed, it keeps the last `N` encoded result frames in a
 /// pre-trigger ring; at a front ([`front_detected`](Self::front_detected)) it writes the
 /// ring, then the front frame, to the log and logs the next `capture_frames` results
 /// before it re-arms. Fixed memory: `N` frames of [`MAX_RECORD_BYTES`].
+///
+/// A capture never erases flash: its frames go in with [`Logbook::append_prepared`], into
+/// space made ready by [`prepare`](Self::prepare) while the logger was not capturing (at
+/// arm time, and after each capture). When that space runs out inside a capture, the
+/// capture ends there and the frames are counted ([`LoggerStats::no_space`]).
 pub struct FieldLogger<const N: usize> {
     state: LoggerState,
     ring: HistoryBuf<StoredFrame, N>,
     capture_frames: u32,
+    /// Records of up to `reserve_bytes` bytes that [`prepare`](Self::prepare) makes room for.
+    reserve_records: u32,
+    reserve_bytes: usize,
+    /// Erase inside a capture when the log needs it (off unless set).
+    erase_in_capture: bool,
     stats: LoggerStats,
 }
 
 impl<const N: usize> FieldLogger<N> {
-    /// An idle logger that captures `capture_frames` results after each front.
+    /// An idle logger that captures `capture_frames` results after each front. It
+    /// prepares room for one capture of frames up to [`MAX_RECORD_BYTES`] (the ring, the
+    /// front frame, `capture_frames` results and one more); see
+    /// [`set_reserve`](Self::set_reserve).
     pub fn new(capture_frames: u32) -> Self {
         FieldLogger {
             state: LoggerState::Idle,
             ring: HistoryBuf::new(),
             capture_frames,
+            reserve_records: (N as u32).saturating_add(capture_frames).saturating_add(2),
+            reserve_bytes: MAX_RECORD_BYTES,
+            erase_in_capture: false,
             stats: LoggerStats::default(),
+        }
+    }
+
+    /// Prepare room for `records` records of up to `record_bytes` bytes each (the frames
+    /// of one capture, with what the caller logs beside them).
+    pub fn set_reserve(&mut self, records: u32, record_bytes: usize) {
+        self.reserve_records = records;
+        self.reserve_bytes = record_bytes.clamp(1, MAX_RECORD_BYTES);
+    }
+
+    /// The room [`prepare`](Self::prepare) makes: records, and bytes per record.
+    pub fn reserve(&self) -> (u32, usize) {
+        (self.reserve_records, self.reserve_bytes)
+    }
+
+    /// Let a capture erase when the log needs a page (the log's plain `append`): the
+    /// behaviour without scheduling, for measuring what an erase inside a capture costs.
+    pub fn set_erase_in_capture(&mut self, on: bool) {
+        self.erase_in_capture = on;
+    }
+
+    /// True when a capture may erase (see [`set_erase_in_capture`](Self::set_erase_in_capture)).
+    pub fn erases_in_capture(&self) -> bool {
+        self.erase_in_capture
+    }
+
+    /// Erase ahead the room of one capture ([`Logbook::prepare`]), unless a capture is in
+    /// progress (then nothing is erased and `false` returned). Call while the logger is
+    /// idle, or armed before a front is awaited: an erase stalls the caller. Returns
+    /// whether the log has room for a capture.
+    pub fn prepare<F: NorFlash>(&mut self, log: &mut Logbook<F>) -> Result<bool, LogError> {
+        if matches!(self.state, LoggerState::Capturing { .. }) {
+            return Ok(false);
+        }
+        log.prepare(self.reserve_records, self.reserve_bytes)
+    }
+
+    /// True when the log has room for a capture without any erase.
+    pub fn ready<F: NorFlash>(&self, log: &Logbook<F>) -> bool {
+        log.room_for(self.reserve_records, self.reserve_bytes)
+    }
+
+    /// Append a frame of the capture outside the ring (for example a description the
+    /// caller puts first), by the capture's rule: no erase unless
+    /// [`set_erase_in_capture`](Self::set_erase_in_capture). Not counted as logged.
+    pub fn append<F: NorFlash>(&self, frame: &[u8], log: &mut Logbook<F>) -> Result<(), LogError> {
+        if self.erase_in_capture {
+            log.append(frame)
+        } else {
+            log.append_prepared(frame)
         }
     }
 
@@ -633,7 +797,13 @@ impl<const N: usize> FieldLogger<N> {
                 } else {
                     LoggerState::Capturing { remaining: left }
                 };
-                log_frame(&mut self.stats, log, frame)
+                log_frame(
+                    &mut self.stats,
+                    &mut self.state,
+                    self.erase_in_capture,
+                    log,
+                    frame,
+                )
             }
         }
     }
@@ -651,14 +821,6 @@ impl<const N: usize> FieldLogger<N> {
             return Ok(());
         }
         self.stats.triggers = self.stats.triggers.saturating_add(1);
-        let mut first = Ok(());
-        for f in self.ring.oldest_ordered() {
-            let r = log_frame(&mut self.stats, log, f);
-            first = first.and(r);
-        }
-        self.ring.clear();
-        let r = log_frame(&mut self.stats, log, frame);
-        first = first.and(r);
         self.state = if self.capture_frames == 0 {
             LoggerState::Armed
         } else {
@@ -666,23 +828,42 @@ impl<const N: usize> FieldLogger<N> {
                 remaining: self.capture_frames,
             }
         };
-        first
+        let erase = self.erase_in_capture;
+        let mut first = Ok(());
+        for f in self.ring.oldest_ordered() {
+            let r = log_frame(&mut self.stats, &mut self.state, erase, log, f);
+            first = first.and(r);
+        }
+        self.ring.clear();
+        let r = log_frame(&mut self.stats, &mut self.state, erase, log, frame);
+        first.and(r)
     }
 }
 
+/// Log one frame of a capture (erasing only when `erase`); out of prepared space the
+/// capture ends, counted.
 fn log_frame<F: NorFlash>(
     stats: &mut LoggerStats,
+    state: &mut LoggerState,
+    erase: bool,
     log: &mut Logbook<F>,
     frame: &[u8],
 ) -> Result<(), LogError> {
-    match log.append(frame) {
-        Ok(()) => {
-            stats.logged = stats.logged.saturating_add(1);
-            Ok(())
+    let r = if erase {
+        log.append(frame)
+    } else {
+        log.append_prepared(frame)
+    };
+    match r {
+        Ok(()) => stats.logged = stats.logged.saturating_add(1),
+        Err(LogError::NotPrepared) => {
+            stats.no_space = stats.no_space.saturating_add(1);
+            if matches!(state, LoggerState::Capturing { .. }) {
+                stats.captures_cut = stats.captures_cut.saturating_add(1);
+                *state = LoggerState::Armed;
+            }
         }
-        Err(e) => {
-            stats.dropped = stats.dropped.saturating_add(1);
-            Err(e)
-        }
+        Err(_) => stats.dropped = stats.dropped.saturating_add(1),
     }
+    r
 }

@@ -29,6 +29,8 @@ struct SimFlash<const W: usize> {
     budget: Option<u64>,
     dead: bool,
     rng: StdRng,
+    /// Sector erases carried out.
+    erases: u32,
 }
 
 impl<const W: usize> SimFlash<W> {
@@ -38,6 +40,7 @@ impl<const W: usize> SimFlash<W> {
             budget,
             dead: false,
             rng: StdRng::seed_from_u64(seed),
+            erases: 0,
         }
     }
 
@@ -99,6 +102,7 @@ impl<const W: usize> NorFlash for SimFlash<W> {
             return Err(PowerLost);
         }
         self.mem[a..b].fill(0xFF);
+        self.erases += ((b - a) / PAGE) as u32;
         Ok(())
     }
 
@@ -447,4 +451,145 @@ fn used_bytes_follow_the_pages_written_and_stop_at_the_ring() {
     assert!(used > (pages - 2) * PAGE, "{used}");
     let log = Logbook::mount(log.into_inner()).unwrap();
     assert_eq!(log.used_bytes(), used);
+/// Scheduled erases: on a region that was never erased, `prepare` erases the pages a
+/// capture needs before the front; the capture itself erases nothing and every frame of it
+/// reads back.
+#[test]
+fn prepared_capture_erases_nothing() {
+    let mut log = Logbook::mount(SimFlash::<4>::new(vec![0; 8 * PAGE], None, 1)).unwrap();
+    let mut fl: FieldLogger<4> = FieldLogger::new(20);
+    let frames: Vec<Vec<u8>> = (0..40).map(|i| window_frame(i, i as u64 * 400)).collect();
+    let rl = frames.iter().map(Vec::len).max().unwrap();
+    fl.set_reserve(4 + 1 + 20, rl);
+    assert!(!fl.ready(&log));
+    fl.arm();
+    assert!(fl.prepare(&mut log).unwrap());
+    assert!(fl.ready(&log));
+    let erased = log.into_inner();
+    let at_arm = erased.erases;
+    assert!(at_arm >= 1);
+    let mut log = Logbook::mount(erased).unwrap();
+    // A fresh mount forgets what was prepared; preparing again only reads the pages.
+    assert!(fl.prepare(&mut log).unwrap());
+    assert_eq!(log.stats().pages_pre_erased, 0);
+    for f in &frames[..6] {
+        fl.result(f, &mut log).unwrap();
+    }
+    let front = health_frame(100);
+    fl.front_detected(&front, &mut log).unwrap();
+    for f in &frames[6..26] {
+        fl.result(f, &mut log).unwrap();
+    }
+    assert_eq!(fl.state(), LoggerState::Armed);
+    assert_eq!(fl.stats().logged, 25);
+    assert_eq!(fl.stats().no_space, 0);
+    let got = read_all(&mut log);
+    assert_eq!(got.len(), 25);
+    assert_eq!(
+        log.into_inner().erases,
+        at_arm,
+        "an erase inside the capture"
+    );
+}
+
+/// Out of prepared space inside a capture: no erase, the capture ends, the frames that
+/// did not fit are counted, and those logged read back; the control (erase inside the
+/// capture allowed) erases and logs them all.
+#[test]
+fn capture_out_of_prepared_space_stops_counted() {
+    for erase_in_capture in [false, true] {
+        let mut log = Logbook::mount(SimFlash::<4>::new(vec![0; 4 * PAGE], None, 1)).unwrap();
+        // The longest frame (seq 999, a start past 2^16): a page holds at least per_page.
+        let len = window_frame(999, 1 << 20).len();
+        let per_page = log.records_per_page(len) as u32;
+        // A capture of two pages' worth; room prepared for one page.
+        let cap = 2 * per_page;
+        let mut fl: FieldLogger<2> = FieldLogger::new(cap);
+        let frames: Vec<Vec<u8>> = (0..cap)
+            .map(|i| window_frame(i as u16, i as u64 * 400))
+            .collect();
+        fl.set_reserve(per_page, len);
+        fl.set_erase_in_capture(erase_in_capture);
+        fl.arm();
+        assert!(fl.prepare(&mut log).unwrap());
+        let f = log.into_inner();
+        let at_arm = f.erases;
+        assert_eq!(at_arm, 1);
+        let mut log = Logbook::mount(f).unwrap();
+        assert!(fl.prepare(&mut log).unwrap());
+        fl.front_detected(&window_frame(999, 0), &mut log).unwrap();
+        let mut refused = 0;
+        for fr in &frames {
+            if fl.result(fr, &mut log) == Err(LogError::NotPrepared) {
+                refused += 1;
+            }
+        }
+        let st = *fl.stats();
+        let ready = fl.ready(&log);
+        let got = read_all(&mut log);
+        let erases = log.into_inner().erases - at_arm;
+        if erase_in_capture {
+            assert_eq!(st.logged, cap + 1);
+            assert_eq!(got.len() as u32, cap + 1);
+            assert!(erases >= 1);
+            assert_eq!(st.no_space, 0);
+        } else {
+            assert_eq!(erases, 0, "an erase inside the capture");
+            assert_eq!(st.captures_cut, 1);
+            assert_eq!(st.no_space, 1);
+            assert_eq!(refused, 1);
+            assert!(st.logged >= per_page && st.logged < cap);
+            assert_eq!(got.len() as u32, st.logged);
+            assert_eq!(fl.state(), LoggerState::Armed);
+            assert!(!ready);
+        }
+    }
+}
+
+/// Power cuts inside `prepare` on a recycling ring: the log always mounts, holds only
+/// acknowledged records in order, and keeps every record of its head page.
+#[test]
+fn power_cuts_while_preparing() {
+    let mut rng = StdRng::seed_from_u64(0x9E_E5E);
+    let mut mem = Some(vec![0xFF; 6 * PAGE]);
+    let mut acked: Vec<Vec<u8>> = Vec::new();
+    let mut pre_erased = 0;
+    for cycle in 0..400 {
+        let f = SimFlash::<4>::new(mem.take().unwrap(), None, rng.random());
+        let mut log = Logbook::mount(f).expect("mount");
+        for _ in 0..rng.random_range(1..20) {
+            let rec = random_record(&mut rng, 300);
+            log.append(&rec).unwrap();
+            acked.push(rec);
+        }
+        let mut f = log.into_inner();
+        f.budget = Some(rng.random_range(0..4));
+        let mut log = Logbook::mount(f).expect("mount");
+        let r = log.prepare(rng.random_range(1..60), 300);
+        pre_erased += log.stats().pages_pre_erased;
+        let mut f = log.into_inner();
+        f.dead = false;
+        f.budget = None;
+        let mut log = Logbook::mount(f).expect("mount after a cut");
+        let got = read_all(&mut log);
+        // In order, each acknowledged: a subsequence of `acked`.
+        let mut it = acked.iter();
+        for g in &got {
+            assert!(
+                it.any(|a| a == g),
+                "cycle {cycle}: a record out of order or never appended"
+            );
+        }
+        assert_eq!(
+            got.last(),
+            acked.last(),
+            "cycle {cycle}: the newest record lost"
+        );
+        if r.is_ok() {
+            // Prepared without a cut: every record not given up is still there.
+            assert!(!got.is_empty());
+        }
+        mem = Some(log.into_inner().mem);
+    }
+    assert!(pre_erased > 50, "only {pre_erased} pages erased ahead");
 }

@@ -27,6 +27,11 @@
 //! calibration value, VDDA = 1.21 V (DS10314's typical VREFINT) x 4095 / VREFINT_DATA.
 //! The 3.3 V rail feeds VDDA on the NUCLEO board (through a jumper-free ferrite), so this
 //! is the board's supply.
+//!
+//! With the `field-logger` feature the results also go to the field logger
+//! ([`crate::field_log`]) over sectors 5 to 7 of the MCU's flash ([`crate::f4_flash`]).
+//! It is mounted, and the room of a capture erased ahead, before the ADC and its timer
+//! start: a sector erase stalls the CPU for a second or two, which then costs no sample.
 
 use crate::acquire::{Acquisition, Block, Clock, Filled, HEALTH};
 use crate::config::{BLOCKS, BLOCK_SAMPLES, MAX_CHANNELS};
@@ -150,9 +155,26 @@ impl SupplySense for Vrefint {
     }
 }
 
+/// Core cycles one DMA buffer takes to fill at the sample rate.
+const BUFFER_CYCLES: u32 = SYSCLK_HZ / capture::SAMPLE_RATE_HZ * DMA_FRAMES as u32;
+
 #[interrupt]
 fn DMA2_STREAM0() {
     static mut STATE: Option<AdcIsr> = None;
+    static mut LAST: Option<u32> = None;
+    // A flash erase or program stalls the CPU (and this interrupt, whose code is in flash)
+    // while the DMA goes on filling its two buffers in turn: buffers missed in a gap of
+    // more than one and a half buffer periods are counted as dropped frames (and on the
+    // sample clock), as the acquisition counts the frames it has no block for.
+    let now = DWT::cycle_count();
+    if let Some(last) = LAST.replace(now) {
+        let gap = now.wrapping_sub(last);
+        if gap > BUFFER_CYCLES + BUFFER_CYCLES / 2 {
+            let lost = (gap / BUFFER_CYCLES).saturating_sub(1) * DMA_FRAMES as u32;
+            HEALTH.dropped_frames.fetch_add(lost, Ordering::Relaxed);
+            HEALTH.frames_in.fetch_add(lost, Ordering::Relaxed);
+        }
+    }
     if STATE.is_none() {
         *STATE = critical_section::with(|cs| ADC_ISR.borrow_ref_mut(cs).take());
     }
@@ -286,6 +308,16 @@ fn main() -> ! {
         Err(_) => halt(),
     };
 
+    // The field log first: arming may erase a sector (the CPU stalls), so before any
+    // sampling starts. Without it (a part whose flash ends before sector 7, a flash
+    // error) the board still measures and streams.
+    #[cfg(feature = "field-logger")]
+    let mut field_log = {
+        use crate::f4_flash::LogRegion;
+        use crate::field_log::{FieldLog, Schedule};
+        LogRegion::new(dp.FLASH).and_then(|r| FieldLog::mount(r, Schedule::Prepared).ok())
+    };
+
     let gpioa = dp.GPIOA.split(&mut rcc);
     let gpiob = dp.GPIOB.split(&mut rcc);
     let gpioc = dp.GPIOC.split(&mut rcc);
@@ -394,6 +426,10 @@ fn main() -> ! {
     let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
     let mut pipe = Pipeline::new(chain, full_rx, free_tx, link, CycleClock);
     pipe.set_supply(&mut vref);
+    #[cfg(feature = "field-logger")]
+    if let Some(l) = field_log.as_mut() {
+        pipe.set_tap(l);
+    }
     pipe.start();
     loop {
         if pipe.step() {

@@ -24,9 +24,18 @@
 //! (armed, capturing, armed again): the log's own record of its states, with the supply
 //! and the time since power-up. It is a wire frame like every record, so the log's format
 //! is unchanged; `frothline logbook` lists these changes.
+//!
+//! Erases never fall inside a capture ([`Schedule::Prepared`]): the room of one capture
+//! ([`RESERVE_RECORDS`] frames of up to [`RESERVE_RECORD_BYTES`] bytes) is erased ahead at
+//! mount, before the board starts its acquisition, and again right after each capture when
+//! what is left would not hold another. An erase stalls the main loop (a blocking flash
+//! driver; on an STM32F4's own flash the whole CPU), so the samples it costs are dropped
+//! between captures, never inside one.
 
+use crate::acquire::HEALTH;
 use crate::config::DEVICE_ID;
 use crate::pipeline::ResultTap;
+use core::sync::atomic::Ordering;
 use embedded_storage::nor_flash::NorFlash;
 use frothline_core::logbook::{FieldLogger, LogError, LogStats, Logbook, LoggerState, LoggerStats};
 use frothline_core::wire::{
@@ -39,6 +48,24 @@ pub const PRE_TRIGGER_FRAMES: usize = 6;
 /// Frames logged after the front: at 10 ms windows, one window frame and one profile frame
 /// per window plus the probes' front frames and health: about 100 ms of flow.
 pub const CAPTURE_FRAMES: u32 = 40;
+/// Frames one capture logs, as erased ahead: the ring, the front frame, the results after
+/// it, the device description and the two device statuses that mark its start and end. (Each later probe's front restarts the count: a capture
+/// that outgrows the room ends where it runs out, counted in `LoggerStats::no_space`.)
+pub const RESERVE_RECORDS: u32 = PRE_TRIGGER_FRAMES as u32 + 1 + CAPTURE_FRAMES + 1 + 2;
+/// Bytes per frame erased ahead for: the surge capture's frames are 15 to 240 bytes (a
+/// frame of 8 window results is the longest).
+pub const RESERVE_RECORD_BYTES: usize = 256;
+
+/// When the log may erase.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Schedule {
+    /// Erase ahead at mount and after each capture; a capture never erases.
+    Prepared,
+    /// Erase when a record needs a page, inside a capture too (no erase ahead): what an
+    /// erase inside a capture costs is measured with it.
+    EraseInCapture,
+}
 
 /// Counters of the logger and its log, for the summary.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
@@ -56,12 +83,19 @@ pub struct FieldLogStats {
     pub descriptions: u32,
     /// Device statuses written (one per change of the logger's state).
     pub statuses: u32,
+    /// The log had room for a capture without erasing, after the last preparation.
+    pub ready: bool,
+    /// Preparations that erased ahead or checked pages (at mount, after captures).
+    pub prepares: u32,
+    /// Frames the acquisition dropped while a capture was in progress.
+    pub dropped_frames_in_capture: u32,
 }
 
 /// The field logger over a log on `F`.
 pub struct FieldLog<F: NorFlash> {
     book: Logbook<F>,
     logger: FieldLogger<PRE_TRIGGER_FRAMES>,
+    schedule: Schedule,
     seq: u16,
     batch: Windows,
     encode_errors: u32,
@@ -71,19 +105,29 @@ pub struct FieldLog<F: NorFlash> {
     /// The logger state of the last status written into the log (its variant: the count of
     /// a capture does not make a change).
     logged_state: Option<core::mem::Discriminant<LoggerState>>,
+    ready: bool,
+    prepares: u32,
+    /// The acquisition's dropped-frame count when the capture in progress began.
+    capture_drops_from: Option<u32>,
+    dropped_in_capture: u32,
 }
 
 impl<F: NorFlash> FieldLog<F> {
-    /// Mount the log on `flash` (never fails on content: see `Logbook::mount`), idle
-    /// until [`ResultTap::arm`]. Each capture starts with the device description, so that
-    /// a log whose oldest pages were recycled still tells the host the sample rate and the
-    /// probes.
-    pub fn mount(flash: F) -> Result<Self, LogError> {
+    /// Mount the log on `flash` (never fails on content: see `Logbook::mount`) and erase
+    /// ahead the room of a capture (with [`Schedule::Prepared`]: this is where the logger
+    /// takes its time, so call it before the acquisition starts); idle until
+    /// [`ResultTap::arm`].
+    /// Each capture starts with the device description, so that a log whose oldest pages
+    /// were recycled still tells the host the sample rate and the probes.
+    pub fn mount(flash: F, schedule: Schedule) -> Result<Self, LogError> {
         let book = Logbook::mount(flash)?;
-        let logger = FieldLogger::new(CAPTURE_FRAMES);
-        Ok(FieldLog {
+        let mut logger = FieldLogger::new(CAPTURE_FRAMES);
+        logger.set_reserve(RESERVE_RECORDS, RESERVE_RECORD_BYTES);
+        logger.set_erase_in_capture(schedule == Schedule::EraseInCapture);
+        let mut log = FieldLog {
             book,
             logger,
+            schedule,
             seq: 0,
             batch: Windows::new(),
             encode_errors: 0,
@@ -91,7 +135,52 @@ impl<F: NorFlash> FieldLog<F> {
             descriptions: 0,
             statuses: 0,
             logged_state: None,
-        })
+            ready: false,
+            prepares: 0,
+            capture_drops_from: None,
+            dropped_in_capture: 0,
+        };
+        if schedule == Schedule::Prepared {
+            log.prepare()?;
+        }
+        Ok(log)
+    }
+
+    /// Erase ahead the room of the next capture (not while capturing).
+    fn prepare(&mut self) -> Result<(), LogError> {
+        self.prepares = self.prepares.saturating_add(1);
+        let r = self.logger.prepare(&mut self.book);
+        self.ready = matches!(r, Ok(true));
+        r.map(|_| ())
+    }
+
+    fn capturing(&self) -> bool {
+        matches!(self.logger.state(), LoggerState::Capturing { .. })
+    }
+
+    /// After a frame: a capture that ended adds its dropped frames, and the room of the
+    /// next one is erased ahead now, between captures, if what is left would not hold it.
+    /// `drops_before`: the acquisition's dropped frames before the frame was logged (a
+    /// capture starts before its first frame is written).
+    fn after_frame(&mut self, was_capturing: bool, drops_before: u32) {
+        let now = self.capturing();
+        if was_capturing && !now {
+            if let Some(from) = self.capture_drops_from.take() {
+                let d = HEALTH
+                    .dropped_frames
+                    .load(Ordering::Relaxed)
+                    .wrapping_sub(from);
+                self.dropped_in_capture = self.dropped_in_capture.saturating_add(d);
+            }
+            if self.schedule == Schedule::Prepared && !self.logger.ready(&self.book) {
+                if let Err(e) = self.prepare() {
+                    self.first_error.get_or_insert(e);
+                }
+            }
+        }
+        if !was_capturing && now {
+            self.capture_drops_from = Some(drops_before);
+        }
     }
 
     /// The logger's state.
@@ -108,6 +197,16 @@ impl<F: NorFlash> FieldLog<F> {
             first_error: self.first_error,
             descriptions: self.descriptions,
             statuses: self.statuses,
+            ready: self.ready,
+            prepares: self.prepares,
+            dropped_frames_in_capture: self.dropped_in_capture.saturating_add(
+                self.capture_drops_from.map_or(0, |from| {
+                    HEALTH
+                        .dropped_frames
+                        .load(Ordering::Relaxed)
+                        .wrapping_sub(from)
+                }),
+            ),
         }
     }
 
@@ -118,6 +217,7 @@ impl<F: NorFlash> FieldLog<F> {
 
     /// Encode `body` as the next frame and send it where `route` says.
     fn emit(&mut self, body: Body, route: Route) {
+        let drops_before = HEALTH.dropped_frames.load(Ordering::Relaxed);
         // Each capture opens with the device description, straight into the log.
         if route == Route::Front && self.logger.state() == LoggerState::Armed {
             self.emit(
@@ -136,18 +236,26 @@ impl<F: NorFlash> FieldLog<F> {
             self.encode_errors = self.encode_errors.saturating_add(1);
             return;
         };
+        let was_capturing = self.capturing();
         let r = match route {
             Route::Logger => self.logger.result(bytes, &mut self.book),
             Route::Front => self.logger.front_detected(bytes, &mut self.book),
-            Route::Log => self.book.append(bytes).map(|()| {
+            Route::Log => self.logger.append(bytes, &mut self.book).map(|()| {
                 self.descriptions = self.descriptions.saturating_add(1);
             }),
-            Route::Status => self.book.append(bytes).map(|()| {
+            Route::Status => self.logger.append(bytes, &mut self.book).map(|()| {
                 self.statuses = self.statuses.saturating_add(1);
             }),
         };
-        if let Err(e) = r {
-            self.first_error.get_or_insert(e);
+        match r {
+            // Out of prepared room: counted by the logger (`no_space`), not a flash error.
+            Ok(()) | Err(LogError::NotPrepared) => {}
+            Err(e) => {
+                self.first_error.get_or_insert(e);
+            }
+        }
+        if matches!(route, Route::Logger | Route::Front) {
+            self.after_frame(was_capturing, drops_before);
         }
     }
 }

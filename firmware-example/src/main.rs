@@ -15,7 +15,11 @@
 //!   device; checks its records against the digest of a host replay and exits QEMU
 //!   through semihosting with the verdict (see `mps2.rs` and docs/firmware.md).
 //! - `board-stm32f4`: a NUCLEO-F411RE: timer-triggered ADC with DMA into the double
-//!   buffers, results out of USART2 by DMA (see `board_stm32f4.rs`).
+//!   buffers, results out of USART1 by DMA (see `board_stm32f4.rs`).
+//!
+//! `field-logger` (with either board): the surge capture's station chain and the field
+//! logger ([`field_log`]), on a NOR flash stand-in in the emulator, on sectors 5 to 7 of
+//! the MCU's flash on the board (`f4_flash.rs`).
 //!
 //! `unsafe` lives in `sys.rs` alone (register access, stack painting, one semihosting call).
 #![no_std]
@@ -55,13 +59,17 @@ pub mod cmsdk_uart;
 pub mod host_nor;
 #[cfg(feature = "emulated-mps2")]
 mod mps2;
-#[cfg(feature = "field-logger")]
+#[cfg(all(feature = "field-logger", feature = "emulated-mps2"))]
 pub mod ram_nor;
 #[cfg(feature = "emulated-mps2")]
 pub mod sim_adc;
+#[cfg(all(feature = "field-logger", feature = "emulated-mps2"))]
+pub mod stall_nor;
 
 #[cfg(feature = "board-stm32f4")]
 mod board_stm32f4;
+#[cfg(all(feature = "field-logger", feature = "board-stm32f4"))]
+pub mod f4_flash;
 
 use config::FwChain;
 use static_cell::ConstStaticCell;

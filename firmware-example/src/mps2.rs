@@ -39,6 +39,15 @@
 //!   `-serial`) for `frothline logbook`. Passes as `run` does, and when a front triggered
 //!   the capture, nothing was dropped and the fresh mount finds every logged record.
 //!
+//! - `erase` (field-logger build): `logger` on a flash whose erases stall the main loop as
+//!   a real part's do ([`crate::stall_nor`]) and that was never erased, so the log must
+//!   erase before it writes: the room of a capture is erased ahead at arm time, before the
+//!   acquisition starts. Passes as `logger` does, and when no sample was dropped (none
+//!   inside the capture) and the capture erased nothing.
+//! - `erase-inside` (field-logger build): the control of `erase`: no erase ahead, the log
+//!   erases when it needs a page, inside the capture. Passes when that erase cost samples,
+//!   counted by the acquisition and reported in the last health frame, inside the capture.
+//!
 //! - `field` (field-logger build): `logger`, then the board stays up answering commands
 //!   until QEMU is stopped, so a host reads the log over the link with ReadLog
 //!   (`frothline logbook --port`), as from a board left powered after a deployment.
@@ -93,6 +102,8 @@ enum Mode {
     Boot,
     Instrument,
     Field,
+    Erase,
+    EraseInside,
 }
 
 impl Mode {
@@ -111,6 +122,8 @@ impl Mode {
             Some("boot") => Some(Mode::Boot),
             Some("instrument") => Some(Mode::Instrument),
             Some("field") => Some(Mode::Field),
+            Some("erase") => Some(Mode::Erase),
+            Some("erase-inside") => Some(Mode::EraseInside),
             Some(_) if words == 1 => Some(Mode::Run),
             Some(_) => None,
         }
@@ -127,6 +140,8 @@ impl Mode {
             Mode::Boot => "boot",
             Mode::Instrument => "instrument",
             Mode::Field => "field",
+            Mode::Erase => "erase",
+            Mode::EraseInside => "erase-inside",
         }
     }
 }
@@ -203,7 +218,7 @@ fn main() -> ! {
         Some(mode) => run(mode),
         None => {
             report!(
-                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands | boot | instrument | field",
+                "fw.error unknown mode `{}`: run | adc | overrun | measure | logger | commands | boot | instrument | field | erase | erase-inside",
                 arg
             );
             false
@@ -252,7 +267,11 @@ fn run(mode: Mode) -> bool {
     let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
     #[cfg(feature = "field-logger")]
     let mut log = match mode {
-        Mode::Logger | Mode::Field => match logger::mount() {
+        Mode::Logger | Mode::Field | Mode::Erase | Mode::EraseInside => match logger::mount(
+            mode == Mode::Erase || mode == Mode::EraseInside,
+            mode == Mode::EraseInside,
+            clock.reader(),
+        ) {
             Some(l) => Some(l),
             None => {
                 report!("fw.error the field log did not mount");
@@ -262,7 +281,10 @@ fn run(mode: Mode) -> bool {
         _ => None,
     };
     #[cfg(not(feature = "field-logger"))]
-    if matches!(mode, Mode::Logger | Mode::Field) {
+    if matches!(
+        mode,
+        Mode::Logger | Mode::Field | Mode::Erase | Mode::EraseInside
+    ) {
         report!("fw.error mode `logger` needs the field-logger build (--features field-logger)");
         return false;
     }
@@ -342,7 +364,7 @@ fn run(mode: Mode) -> bool {
     let pass = pass && (mode != Mode::Boot || matches!(loaded, crate::settings::Loaded::Stored(_)));
     #[cfg(feature = "field-logger")]
     let pass = match log {
-        Some(l) => logger::finish(l) && pass,
+        Some(l) => logger::finish(l, mode == Mode::Erase, mode == Mode::EraseInside) && pass,
         None => pass,
     };
     report!("fw.verdict {}", if pass { "pass" } else { "FAIL" });
@@ -709,38 +731,68 @@ mod stored {
     }
 }
 
-/// The field log of mode `logger`: a NOR flash stand-in in RAM, and the end-of-run checks.
+/// The field log of the field-logger modes: a NOR flash stand-in in RAM (its erases
+/// stalled as a real part's in modes `erase` and `erase-inside`), and the end-of-run checks.
 #[cfg(feature = "field-logger")]
 mod logger {
-    use crate::cmsdk_timer::PCLK_HZ;
+    use crate::acquire::Clock;
+    use crate::cmsdk_timer::{TimerReader, PCLK_HZ};
     use crate::cmsdk_uart::CmsdkUart;
-    use crate::field_log::{count_records, FieldLog};
+    use crate::field_log::{count_records, FieldLog, Schedule};
     use crate::pipeline::ResultTap;
     use crate::ram_nor::RamNor;
+    use crate::stall_nor::{StallNor, SECTOR_ERASE_MS};
     use crate::sys;
     use embedded_io::Write;
     use static_cell::ConstStaticCell;
 
     /// The log region: 16 sectors of 4 KiB (15 hold records, see the core's logbook).
     pub const LOG_BYTES: usize = 64 * 1024;
-    type Flash = RamNor<LOG_BYTES>;
-    static FLASH: ConstStaticCell<Flash> = ConstStaticCell::new(RamNor::new());
+    type Flash = StallNor<&'static mut RamNor<LOG_BYTES>, TimerReader>;
+    static FLASH: ConstStaticCell<RamNor<LOG_BYTES>> = ConstStaticCell::new(RamNor::new());
 
-    /// Erase the region (a factory-fresh part) and mount the log on it (idle until the
-    /// run arms it).
-    pub fn mount() -> Option<FieldLog<&'static mut Flash>> {
-        let flash = FLASH.try_take()?;
-        flash.erase_all();
-        FieldLog::mount(flash).ok()
+    /// Mount the log (idle until the run arms it). `stall`: erases take a real part's time and the region starts
+    /// unerased (zeros: a part whose content is unknown), else it starts erased (a
+    /// factory-fresh part) and erases are instant. `inside`: no erase ahead (the log erases
+    /// when it needs a page). Reports how long arming took and what it erased.
+    pub fn mount(stall: bool, inside: bool, clock: TimerReader) -> Option<FieldLog<Flash>> {
+        let ram = FLASH.try_take()?;
+        if !stall {
+            ram.erase_all();
+        }
+        let ms = if stall { SECTOR_ERASE_MS } else { 0 };
+        let schedule = if inside {
+            Schedule::EraseInCapture
+        } else {
+            Schedule::Prepared
+        };
+        let t0 = clock.now();
+        let log = FieldLog::mount(StallNor::new(ram, clock, ms), schedule).ok()?;
+        let ticks = clock.now().wrapping_sub(t0);
+        let st = log.stats();
+        report!(
+            "fw.arm schedule={} sector_erase_ms={} pages_pre_erased={} ready={} arm_ticks={} arm_ms={}",
+            if inside { "erase-inside" } else { "prepared" },
+            ms,
+            st.log.pages_pre_erased,
+            st.ready,
+            ticks,
+            ticks / (PCLK_HZ / 1000)
+        );
+        Some(log)
     }
 
     /// Flush, report, mount the log afresh and count its records, send the image out of
-    /// UART1; true when the capture was triggered and every logged frame is on flash.
-    pub fn finish(mut log: FieldLog<&'static mut Flash>) -> bool {
+    /// UART1; true when the capture was triggered and every logged frame is on flash, and
+    /// with `erase` when nothing was dropped inside the capture and it erased nothing, with
+    /// `inside` when frames were dropped inside the capture.
+    pub fn finish(mut log: FieldLog<Flash>, erase: bool, inside: bool) -> bool {
         log.flush();
         let st = log.stats();
         let state = log.state();
-        let flash = log.into_flash();
+        let stall = log.into_flash();
+        let (erases, stalled) = (stall.erases(), stall.stalled_ticks());
+        let flash = stall.into_inner();
         let (found, flash) = match count_records(flash) {
             Ok(x) => x,
             Err(e) => {
@@ -749,7 +801,7 @@ mod logger {
             }
         };
         report!(
-            "fw.logger state={} triggers={} descriptions={} statuses={} logged={} dropped={} overwritten={} encode_errors={} log_error={} pages_recycled={} records_after_remount={} image_bytes={}",
+            "fw.logger state={} triggers={} descriptions={} statuses={} logged={} dropped={} overwritten={} no_space={} captures_cut={} encode_errors={} log_error={} pages_recycled={} records_after_remount={} image_bytes={}",
             match state {
                 frothline_core::logbook::LoggerState::Idle => "idle",
                 frothline_core::logbook::LoggerState::Armed => "armed",
@@ -761,25 +813,49 @@ mod logger {
             st.logger.logged,
             st.logger.dropped,
             st.logger.overwritten,
+            st.logger.no_space,
+            st.logger.captures_cut,
             st.encode_errors,
             st.first_error.is_some(),
             st.log.pages_recycled,
             found,
             LOG_BYTES
         );
+        let pre = st.log.pages_pre_erased;
+        let in_capture = erases.saturating_sub(pre);
+        report!(
+            "fw.erase sectors_erased={} pre_erased={} erased_after_arm={} stalled_ticks={} prepares={} ready={} dropped_frames_in_capture={} dropped_samples_in_capture={}",
+            erases,
+            pre,
+            in_capture,
+            stalled,
+            st.prepares,
+            st.ready,
+            st.dropped_frames_in_capture,
+            st.dropped_frames_in_capture as u64 * crate::capture::CHANNELS as u64
+        );
         let Some(regs) = sys::take(sys::Device::Uart1) else {
             return false;
         };
         let mut uart = CmsdkUart::new(regs, PCLK_HZ, crate::config::BAUD);
         let sent = uart.write_all(flash.image()).is_ok() && uart.flush().is_ok();
-        sent && st.logger.triggers >= 1
+        let logged = sent
+            && st.logger.triggers >= 1
             && st.logger.logged > 0
             && st.logger.dropped == 0
+            && st.logger.no_space == 0
             && st.encode_errors == 0
             && st.first_error.is_none()
             && st.descriptions >= 1
             && st.statuses >= 2
-            && found == st.logger.logged + st.descriptions + st.statuses
+            && found == st.logger.logged + st.descriptions + st.statuses;
+        if erase {
+            logged && st.ready && pre > 0 && in_capture == 0 && st.dropped_frames_in_capture == 0
+        } else if inside {
+            logged && in_capture > 0 && st.dropped_frames_in_capture > 0
+        } else {
+            logged
+        }
     }
 }
 
@@ -979,7 +1055,7 @@ fn summary<W: embedded_io::Write, C: Clock>(
         && save_errors == 0
         && config_errors == 0;
     match mode {
-        Mode::Overrun => dropped > 0 && h.samples_dropped > 0 && clean,
+        Mode::Overrun | Mode::EraseInside => dropped > 0 && h.samples_dropped > 0 && clean,
         Mode::Commands => pipe.stopped() && clean,
         Mode::Boot => clean,
         _ => matches && dropped == 0 && clean,

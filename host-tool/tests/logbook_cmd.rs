@@ -207,8 +207,9 @@ const CAPTURE: u32 = 6;
 /// A device's field log: a description, then `cycles` of (10 results while armed, a
 /// front, the capture, a health frame). The logged frames are modelled from the logger's
 /// documented behaviour (the last `PRE_TRIGGER` armed results, the front, `CAPTURE`
-/// results) so the test does not trust the logger for what it expects. `strip`: the
-/// records are logged without their 0x00 delimiter.
+/// results) so the test does not trust the logger for what it expects. As a device does,
+/// the room of a capture is erased ahead while armed, before each front (a capture never
+/// erases). `strip`: the records are logged without their 0x00 delimiter.
 fn build<const PAGE: usize, const W: usize>(pages: usize, cycles: usize, strip: bool) -> Built {
     let mut log = Logbook::mount(RamFlash::<PAGE, W>::erased(pages)).unwrap();
     let mut fl: FieldLogger<PRE_TRIGGER> = FieldLogger::new(CAPTURE);
@@ -229,8 +230,12 @@ fn build<const PAGE: usize, const W: usize>(pages: usize, cycles: usize, strip: 
     let mut before_last = Vec::new();
     log.append(&bytes(&describe(next()))).unwrap();
     records += 1;
+    // Room for the ring, the front and the capture, in frames of the longest kind.
+    let longest = bytes(&result_frame(u16::MAX)).len();
+    fl.set_reserve(PRE_TRIGGER as u32 + 1 + CAPTURE, longest);
     fl.arm();
     for _ in 0..cycles {
+        assert!(fl.prepare(&mut log).unwrap(), "no room for a capture");
         let mut ring: VecDeque<u16> = VecDeque::new();
         for _ in 0..10 {
             let s = next();

@@ -342,4 +342,65 @@ mod tests {
         };
         assert_eq!(read_log(&image, one).err(), Some(LogError::Geometry));
     }
+
+    /// A writable NOR flash over bytes (erase to 0xFF, writes clear bits), for building a
+    /// log as a device does.
+    struct VecNor<const PAGE: usize>(Vec<u8>);
+
+    impl<const PAGE: usize> ErrorType for VecNor<PAGE> {
+        type Error = ImageFlashError;
+    }
+
+    impl<const PAGE: usize> ReadNorFlash for VecNor<PAGE> {
+        const READ_SIZE: usize = 1;
+        fn read(&mut self, offset: u32, bytes: &mut [u8]) -> Result<(), ImageFlashError> {
+            let o = offset as usize;
+            let src = self
+                .0
+                .get(o..o + bytes.len())
+                .ok_or(ImageFlashError::OutOfBounds)?;
+            bytes.copy_from_slice(src);
+            Ok(())
+        }
+        fn capacity(&self) -> usize {
+            self.0.len()
+        }
+    }
+
+    impl<const PAGE: usize> NorFlash for VecNor<PAGE> {
+        const WRITE_SIZE: usize = 4;
+        const ERASE_SIZE: usize = PAGE;
+        fn erase(&mut self, from: u32, to: u32) -> Result<(), ImageFlashError> {
+            self.0[from as usize..to as usize].fill(0xFF);
+            Ok(())
+        }
+        fn write(&mut self, offset: u32, bytes: &[u8]) -> Result<(), ImageFlashError> {
+            for (m, b) in self.0[offset as usize..].iter_mut().zip(bytes) {
+                *m &= b;
+            }
+            Ok(())
+        }
+    }
+
+    /// The NUCLEO-F411RE's log region (sectors 5 to 7: three 128 KiB pages, write unit 4),
+    /// never erased before, its room erased ahead by `prepare` and filled without erases:
+    /// read back whole, and its geometry detected.
+    #[test]
+    fn a_prepared_board_region_reads_back() {
+        let mut log = Logbook::mount(VecNor::<131072>(vec![0; 3 * 131072])).unwrap();
+        assert!(log.prepare(48, 256).unwrap());
+        let records: Vec<Vec<u8>> = (0..40u8).map(|i| vec![i; 10 + 5 * i as usize]).collect();
+        for r in &records {
+            log.append_prepared(r).unwrap();
+        }
+        assert_eq!(log.stats().pages_pre_erased, 1);
+        let image = log.into_inner().0;
+        let g = Geometry {
+            page_bytes: 131072,
+            write_unit: 4,
+        };
+        assert_eq!(read_log(&image, g).unwrap().records, records);
+        let d = detect(&image, &PAGE_SIZES, &WRITE_UNITS);
+        assert_eq!(d.best.unwrap().records, records);
+    }
 }
