@@ -451,6 +451,8 @@ fn used_bytes_follow_the_pages_written_and_stop_at_the_ring() {
     assert!(used > (pages - 2) * PAGE, "{used}");
     let log = Logbook::mount(log.into_inner()).unwrap();
     assert_eq!(log.used_bytes(), used);
+}
+
 /// Scheduled erases: on a region that was never erased, `prepare` erases the pages a
 /// capture needs before the front; the capture itself erases nothing and every frame of it
 /// reads back.
