@@ -49,7 +49,8 @@ pub const PRE_TRIGGER_FRAMES: usize = 6;
 /// per window plus the probes' front frames and health: about 100 ms of flow.
 pub const CAPTURE_FRAMES: u32 = 40;
 /// Frames one capture logs, as erased ahead: the ring, the front frame, the results after
-/// it, the device description and the two device statuses that mark its start and end. (Each later probe's front restarts the count: a capture
+/// it, the device description and the two device statuses that mark its start and end.
+/// (Each later probe's front restarts the count: a capture
 /// that outgrows the room ends where it runs out, counted in `LoggerStats::no_space`.)
 pub const RESERVE_RECORDS: u32 = PRE_TRIGGER_FRAMES as u32 + 1 + CAPTURE_FRAMES + 1 + 2;
 /// Bytes per frame erased ahead for: the surge capture's frames are 15 to 240 bytes (a
@@ -83,6 +84,8 @@ pub struct FieldLogStats {
     pub descriptions: u32,
     /// Device statuses written (one per change of the logger's state).
     pub statuses: u32,
+    /// Device statuses left out for want of room erased ahead.
+    pub statuses_left_out: u32,
     /// The log had room for a capture without erasing, after the last preparation.
     pub ready: bool,
     /// Preparations that erased ahead or checked pages (at mount, after captures).
@@ -102,6 +105,7 @@ pub struct FieldLog<F: NorFlash> {
     first_error: Option<LogError>,
     descriptions: u32,
     statuses: u32,
+    statuses_left_out: u32,
     /// The logger state of the last status written into the log (its variant: the count of
     /// a capture does not make a change).
     logged_state: Option<core::mem::Discriminant<LoggerState>>,
@@ -134,6 +138,7 @@ impl<F: NorFlash> FieldLog<F> {
             first_error: None,
             descriptions: 0,
             statuses: 0,
+            statuses_left_out: 0,
             logged_state: None,
             ready: false,
             prepares: 0,
@@ -197,6 +202,7 @@ impl<F: NorFlash> FieldLog<F> {
             first_error: self.first_error,
             descriptions: self.descriptions,
             statuses: self.statuses,
+            statuses_left_out: self.statuses_left_out,
             ready: self.ready,
             prepares: self.prepares,
             dropped_frames_in_capture: self.dropped_in_capture.saturating_add(
@@ -243,9 +249,17 @@ impl<F: NorFlash> FieldLog<F> {
             Route::Log => self.logger.append(bytes, &mut self.book).map(|()| {
                 self.descriptions = self.descriptions.saturating_add(1);
             }),
-            Route::Status => self.logger.append(bytes, &mut self.book).map(|()| {
-                self.statuses = self.statuses.saturating_add(1);
-            }),
+            // A status is never worth an erase: it goes into room erased ahead, or is
+            // counted and left out.
+            Route::Status => match self.book.append_prepared(bytes) {
+                Err(LogError::NotPrepared) => {
+                    self.statuses_left_out = self.statuses_left_out.saturating_add(1);
+                    Ok(())
+                }
+                r => r.map(|()| {
+                    self.statuses = self.statuses.saturating_add(1);
+                }),
+            },
         };
         match r {
             // Out of prepared room: counted by the logger (`no_space`), not a flash error.

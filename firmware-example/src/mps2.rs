@@ -801,7 +801,7 @@ mod logger {
             }
         };
         report!(
-            "fw.logger state={} triggers={} descriptions={} statuses={} logged={} dropped={} overwritten={} no_space={} captures_cut={} encode_errors={} log_error={} pages_recycled={} records_after_remount={} image_bytes={}",
+            "fw.logger state={} triggers={} descriptions={} statuses={} statuses_left_out={} logged={} dropped={} overwritten={} no_space={} captures_cut={} encode_errors={} log_error={} pages_recycled={} records_after_remount={} image_bytes={}",
             match state {
                 frothline_core::logbook::LoggerState::Idle => "idle",
                 frothline_core::logbook::LoggerState::Armed => "armed",
@@ -810,6 +810,7 @@ mod logger {
             st.logger.triggers,
             st.descriptions,
             st.statuses,
+            st.statuses_left_out,
             st.logger.logged,
             st.logger.dropped,
             st.logger.overwritten,
@@ -847,7 +848,9 @@ mod logger {
             && st.encode_errors == 0
             && st.first_error.is_none()
             && st.descriptions >= 1
-            && st.statuses >= 2
+            // With no room erased ahead (erase-inside) the armed status finds none.
+            && st.statuses + st.statuses_left_out >= 2
+            && st.statuses >= 1
             && found == st.logger.logged + st.descriptions + st.statuses;
         if erase {
             logged && st.ready && pre > 0 && in_capture == 0 && st.dropped_frames_in_capture == 0
