@@ -121,7 +121,10 @@
 //!   interpolated crossing); `None` when `R` does not cross zero within the lags.
 
 use crate::flags::Flags;
-use analysis::{analyse_functions, pearson_finish, pearson_parts, pearson_parts_masked, SMALL_N};
+use analysis::{
+    analyse_functions, pearson_finish, pearson_finish_small, pearson_parts, pearson_parts_masked,
+    SMALL_N,
+};
 use heapless::Vec;
 
 mod analysis;
@@ -361,20 +364,23 @@ impl SumsView<'_> {
     /// [`CorrelationSums::analyse`], with room for `L` lags (at least `lags()`).
     fn analyse<const L: usize>(&self, min_peak: f32) -> (CorrelationResult, Flags) {
         let lags = self.lags().min(L);
-        let mut rab = [f32::NAN; L];
-        let mut raa = [f32::NAN; L];
-        self.fill(&mut rab, false, false);
-        // The results need R_aa only up to its first zero crossing.
-        self.fill(&mut raa, true, true);
-        let rab = rab.get(..lags).unwrap_or(&[]);
-        let raa = raa.get(..lags).unwrap_or(&[]);
+        // Zeros, not NaN: a zero fill is a memset, and every entry read is written first.
+        let mut rab = [0f32; L];
+        let mut raa = [0f32; L];
+        let rab_len = self.fill(&mut rab, false, false);
+        // The results need R_aa only up to its first zero crossing: the lags after the one
+        // at which it stops are not passed on (T05 and the auto integral scale both stop
+        // at or before that lag, so they read the same values as over all the lags).
+        let raa_len = self.fill(&mut raa, true, true);
+        let rab = rab.get(..rab_len.min(lags)).unwrap_or(&[]);
+        let raa = raa.get(..raa_len.min(lags)).unwrap_or(&[]);
         analyse_functions(rab, raa, min_peak)
     }
 
     /// One coefficient function (`auto`: R_aa, else R_ab) into `out`, chunk by chunk;
     /// with `stop_at_zero`, stop after the chunk in which it first falls to 0 or below (the
-    /// rest of `out` is left as it is).
-    fn fill(&self, out: &mut [f32], auto: bool, stop_at_zero: bool) {
+    /// rest of `out` is left as it is). Returns the number of lags written.
+    fn fill(&self, out: &mut [f32], auto: bool, stop_at_zero: bool) -> usize {
         const CHUNK: usize = 16;
         const STOP_CHUNK: usize = 8;
         let lags = self.lags().min(out.len());
@@ -407,8 +413,7 @@ impl SumsView<'_> {
         // state: one lag at a time instead (the same coefficients, bit for bit).
         if cfg!(target_pointer_width = "32") {
             if let Some(small) = small {
-                self.fill_lag_by_lag(out, small, second_total, stop_at_zero);
-                return;
+                return self.fill_lag_by_lag(out, small, second_total, stop_at_zero);
             }
         }
         // Stopping at the first zero, short chunks: R_aa usually falls to 0 within a few
@@ -465,11 +470,12 @@ impl SumsView<'_> {
             for (o, (&va, &vb)) in chunk.iter_mut().zip(pa.iter().zip(pb)) {
                 *o = pearson_finish(*o, va, vb);
             }
-            if stop_at_zero && chunk.iter().any(|&r| r <= 0.0) {
-                return;
-            }
             first += len;
+            if stop_at_zero && chunk.iter().any(|&r| r <= 0.0) {
+                return first;
+            }
         }
+        lags
     }
 }
 
@@ -478,17 +484,18 @@ impl SumsView<'_> {
     /// operations in the same order as the chunked stages, so the same coefficients bit
     /// for bit; with `stop_at_zero`, stop at the first lag at or below 0 (the lags after
     /// it are left as they are, which the chunked form fills to the end of its chunk:
-    /// nothing reads them).
+    /// nothing reads them). Returns the number of lags written.
     fn fill_lag_by_lag(
         &self,
         out: &mut [f32],
         (tail, head, prod): (&[u32], &[u32], &[u64]),
         second_total: u64,
         stop_at_zero: bool,
-    ) {
+    ) -> usize {
         let mut n32 = self.frames as u32;
         let (lead_air, second_total) = (self.lead_air as u32, second_total as u32);
         let ins = tail.iter().zip(head).zip(prod);
+        let mut written = 0;
         for (((&t, &h), &sab), o) in ins.zip(out.iter_mut()) {
             let (num, va, vb) = pearson_parts_masked(
                 n32,
@@ -497,11 +504,13 @@ impl SumsView<'_> {
                 sab.min(u32::MAX as u64) as u32,
             );
             n32 = n32.saturating_sub(self.windows);
-            *o = pearson_finish(num, va, vb);
+            *o = pearson_finish_small(num, va, vb);
+            written += 1;
             if stop_at_zero && *o <= 0.0 {
-                return;
+                break;
             }
         }
+        written
     }
 }
 

@@ -157,6 +157,23 @@ pub(super) fn pearson_finish(num: f32, va: f32, vb: f32) -> f32 {
     }
 }
 
+/// [`pearson_finish`] for the terms of [`pearson_parts_masked`]: each is an `i32` rounded to
+/// f32, so below 2^31 in magnitude, and their product (below 2^62) is always finite; the
+/// branch for an infinite product is left out, the value is the same bit for bit.
+#[inline(always)]
+pub(super) fn pearson_finish_small(num: f32, va: f32, vb: f32) -> f32 {
+    let r = if va == vb {
+        num / va
+    } else {
+        num * rsqrt(va * vb)
+    };
+    if va > 0.0 && vb > 0.0 {
+        r.clamp(-1.0, 1.0)
+    } else {
+        f32::NAN
+    }
+}
+
 /// Reciprocal square root to full f32 precision: micromath's estimate (within 3.5 %)
 /// refined by three Newton steps (multiplications only). Plain IEEE operations, so a
 /// device and a host agree bit for bit.
@@ -250,12 +267,15 @@ pub(super) fn analyse_functions(
     out.t05_frames = crossing(raa, 0, 0.5, true);
     out.auto_integral_frames = integral_to_zero(raa, 0);
 
-    let mut peak: Option<(usize, f32)> = None;
+    // The first highest defined value: NaN never compares greater, and every defined
+    // value is greater than -inf (the coefficients lie in -1..=1).
+    let (mut k, mut r0) = (usize::MAX, f32::NEG_INFINITY);
     for (i, &v) in rab.iter().enumerate() {
-        if !v.is_nan() && peak.is_none_or(|(_, p)| v > p) {
-            peak = Some((i, v));
+        if v > r0 {
+            (k, r0) = (i, v);
         }
     }
+    let peak = (k != usize::MAX).then_some((k, r0));
     let Some((k, r0)) = peak else {
         flags |= Flags::NO_CORRELATION_PEAK | Flags::TU_UNDEFINED;
         return (out, flags);
@@ -299,17 +319,26 @@ pub(super) fn analyse_functions(
         let lo = x_left.unwrap_or(-1.0);
         let hi = x_right.unwrap_or(lags as f32);
         let mut second = 0.0f32;
-        for (i, &v) in rab.iter().enumerate() {
-            let x = i as f32;
-            if v.is_nan() || (x > lo && x < hi) {
-                continue;
-            }
-            let left = i.checked_sub(1).map_or(f32::NAN, |j| at(rab, j));
-            let right = at(rab, i + 1);
-            let is_max = (left.is_nan() || v >= left) && (right.is_nan() || v >= right);
-            if is_max && v > second {
+        // One pass with the neighbours carried along (NaN beyond the ends). The tests are
+        // side-effect free, so their order is free: `v > second` first, which is false for
+        // a NaN `v` and for most lags. For a defined `v`, "`left` is NaN or `v >= left`" is
+        // `!(v < left)`.
+        let (mut left, mut x) = (f32::NAN, 0.0f32);
+        let rights = rab
+            .iter()
+            .skip(1)
+            .copied()
+            .chain(core::iter::once(f32::NAN));
+        for (&v, right) in rab.iter().zip(rights) {
+            // The negated comparisons are meant (true for an undefined neighbour), and no
+            // shorter form keeps them so.
+            #[allow(clippy::neg_cmp_op_on_partial_ord, clippy::nonminimal_bool)]
+            if v > second && !(x > lo && x < hi) && !(v < left) && !(v < right) {
                 second = v;
             }
+            left = v;
+            // Lag numbers are exact in f32 (at most 2^16 lags).
+            x += 1.0;
         }
         out.secondary_peak_ratio = Some((second / r0).min(1.0));
     }
@@ -329,4 +358,154 @@ pub(super) fn analyse_functions(
     };
     flags.set_if(Flags::TU_INDEX, index_only);
     (out, flags)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The straightforward form of [`analyse_functions`] (its peak search and secondary
+    /// peak written as in the definition).
+    fn reference(rab: &[f32], raa: &[f32], min_peak: f32) -> (CorrelationResult, Flags) {
+        let lags = rab.len();
+        let max_lag = lags.saturating_sub(1).min(u16::MAX as usize) as u16;
+        let mut out = CorrelationResult::none(max_lag);
+        let mut flags = Flags::NONE;
+
+        // T05 and the auto integral scale need only the auto-correlation.
+        out.t05_frames = crossing(raa, 0, 0.5, true);
+        out.auto_integral_frames = integral_to_zero(raa, 0);
+
+        let mut peak: Option<(usize, f32)> = None;
+        for (i, &v) in rab.iter().enumerate() {
+            if !v.is_nan() && peak.is_none_or(|(_, p)| v > p) {
+                peak = Some((i, v));
+            }
+        }
+        let Some((k, r0)) = peak else {
+            flags |= Flags::NO_CORRELATION_PEAK | Flags::TU_UNDEFINED;
+            return (out, flags);
+        };
+        out.peak_coefficient = Some(r0);
+        flags.set_if(Flags::NO_CORRELATION_PEAK, r0 < min_peak);
+
+        let (rm, rp) = (
+            k.checked_sub(1).map_or(f32::NAN, |j| at(rab, j)),
+            at(rab, k + 1),
+        );
+        let lag = if rm.is_nan() || rp.is_nan() {
+            flags |= Flags::PEAK_AT_LAG_BOUNDARY;
+            k as f32
+        } else {
+            let low = rm.min(rp);
+            let delta = if r0 > low {
+                ((rp - rm) / (2.0 * (r0 - low))).clamp(-0.5, 0.5)
+            } else {
+                0.0
+            };
+            k as f32 + delta
+        };
+        out.peak_lag_frames = Some(lag);
+
+        let (x_left, x_right) = if r0 > 0.0 {
+            (
+                crossing(rab, k, 0.5 * r0, false),
+                crossing(rab, k, 0.5 * r0, true),
+            )
+        } else {
+            (None, None)
+        };
+        out.tau05_frames = match (x_left, x_right) {
+            (Some(l), Some(r)) => Some(0.5 * (r - l)),
+            (None, Some(r)) => Some(r - lag),
+            _ => None,
+        };
+
+        if r0 > 0.0 {
+            let lo = x_left.unwrap_or(-1.0);
+            let hi = x_right.unwrap_or(lags as f32);
+            let mut second = 0.0f32;
+            for (i, &v) in rab.iter().enumerate() {
+                let x = i as f32;
+                if v.is_nan() || (x > lo && x < hi) {
+                    continue;
+                }
+                let left = i.checked_sub(1).map_or(f32::NAN, |j| at(rab, j));
+                let right = at(rab, i + 1);
+                let is_max = (left.is_nan() || v >= left) && (right.is_nan() || v >= right);
+                if is_max && v > second {
+                    second = v;
+                }
+            }
+            out.secondary_peak_ratio = Some((second / r0).min(1.0));
+        }
+
+        out.cross_integral_frames = integral_to_zero(rab, k);
+
+        out.turbulence_intensity = match (out.tau05_frames, out.t05_frames) {
+            (Some(w), Some(t05)) if lag > 0.0 && w >= t05 => {
+                Some(0.851 * sqrt(w * w - t05 * t05) / lag)
+            }
+            _ => None,
+        };
+        flags.set_if(Flags::TU_UNDEFINED, out.turbulence_intensity.is_none());
+        let index_only = match (out.turbulence_intensity, out.tau05_frames, out.t05_frames) {
+            (Some(_), Some(w), Some(t05)) => w < TU_WIDTH_RATIO * t05,
+            _ => false,
+        };
+        flags.set_if(Flags::TU_INDEX, index_only);
+        (out, flags)
+    }
+
+    fn same(a: Option<f32>, b: Option<f32>) -> bool {
+        a.map(f32::to_bits) == b.map(f32::to_bits)
+    }
+
+    /// The analysis gives the results of its straightforward form, bit for bit, on random
+    /// coefficient functions with undefined lags, ties and plateaus.
+    #[test]
+    fn analysis_equals_its_straightforward_form() {
+        let mut x: u64 = 0x2545_F491_4F6C_DD1D;
+        let mut next = move || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        };
+        for case in 0..20_000u32 {
+            let lags = 1 + (next() % 70) as usize;
+            let mut rab = [0f32; 70];
+            let mut raa = [0f32; 70];
+            let (mut u, mut w) = (1.0f32, 1.0f32);
+            for i in 0..lags {
+                // Random walks on a coarse grid (ties), some lags undefined.
+                u = (u + ((next() % 9) as f32 - 4.0) * 0.125).clamp(-1.0, 1.0);
+                w = (w - ((next() % 5) as f32) * 0.0625).clamp(-1.0, 1.0);
+                rab[i] = if next() % 23 == 0 { f32::NAN } else { u };
+                raa[i] = if next() % 41 == 0 { f32::NAN } else { w };
+            }
+            let raa_len = if case % 3 == 0 {
+                lags
+            } else {
+                (next() as usize % lags) + 1
+            };
+            let min_peak = 0.3;
+            let (a, fa) = analyse_functions(&rab[..lags], &raa[..raa_len], min_peak);
+            let (b, fb) = reference(&rab[..lags], &raa[..raa_len], min_peak);
+            assert_eq!(fa, fb, "case {case}");
+            assert_eq!(a.max_lag, b.max_lag, "case {case}");
+            for (p, q) in [
+                (a.peak_lag_frames, b.peak_lag_frames),
+                (a.peak_coefficient, b.peak_coefficient),
+                (a.secondary_peak_ratio, b.secondary_peak_ratio),
+                (a.t05_frames, b.t05_frames),
+                (a.tau05_frames, b.tau05_frames),
+                (a.turbulence_intensity, b.turbulence_intensity),
+                (a.auto_integral_frames, b.auto_integral_frames),
+                (a.cross_integral_frames, b.cross_integral_frames),
+            ] {
+                assert!(same(p, q), "case {case}: {p:?} {q:?}");
+            }
+        }
+    }
 }

@@ -1,7 +1,9 @@
 //! The streaming [`Correlator`]: the window's sums kept as second differences over the lags,
 //! its run buffer ([`RunBuffer`]) and the edge sinks that feed it.
 
-use super::analysis::CorrelationResult;
+use super::analysis::{
+    analyse_functions, pearson_finish_small, pearson_parts_masked, CorrelationResult, SMALL_N,
+};
 use super::{CorrelationSums, SumsView, MAX_RUN_FRAMES};
 use crate::flags::Flags;
 use crate::phase::{Edge, EdgeSink};
@@ -313,18 +315,116 @@ impl<const L: usize> Correlator<L> {
         flags: &mut Flags,
     ) -> CorrelationResult {
         let (lead_air, trail_air) = (self.lead_air, self.trail_air);
+        let totals = self.clip(end);
+        // A 32-bit core takes the sums of a short window lag by lag, straight from the
+        // second differences (so also in the host's own checks of this path).
+        if cfg!(target_pointer_width = "32") || cfg!(test) {
+            if let Some((result, f)) = self.analyse_small(end, totals, min_peak) {
+                *flags |= f;
+                self.flag_overflow(flags);
+                self.reset_scalars(end);
+                self.open(end, lead_air, trail_air);
+                return result;
+            }
+        }
         let mut tail = [0u32; L];
-        let totals = self.settle(end, &mut tail);
+        self.prefix_sums(end, totals, &mut tail);
         let (result, f) = self.view(totals, &tail).analyse::<L>(min_peak);
         *flags |= f;
         self.reopen(end, lead_air, trail_air, flags);
         result
     }
 
+    /// [`close_analysed`](Self::close_analysed) of a clipped window of at most `SMALL_N`
+    /// frames (else `None`, nothing changed), in one pass over the lags per coefficient
+    /// function: each lag's sums are the running double prefix sums of the second
+    /// differences (the values `prefix_sums` would store, bit for bit), turned at once
+    /// into the coefficient as `SumsView::fill_lag_by_lag` does, and the second differences are cleared as they
+    /// are read, so the next window starts from zeros without another pass. The results
+    /// are those of [`CorrelationSums::analyse`] of the same sums, bit for bit.
+    fn analyse_small(
+        &mut self,
+        end: u64,
+        (frames, lead_air, trail_air, lags): (u64, u64, u64, usize),
+        min_peak: f32,
+    ) -> Option<(CorrelationResult, Flags)> {
+        if frames > SMALL_N as u64 || lead_air > u32::MAX as u64 || trail_air > u32::MAX as u64 {
+            return None;
+        }
+        let (lead_air, trail_air) = (lead_air as u32, trail_air as u32);
+        let mut tail = [0u32; L];
+        self.tail_differences(self.rel(end), &mut tail);
+        // Zeros, not NaN: a zero fill is a memset, and every entry read is written first.
+        let mut rab = [0f32; L];
+        let mut raa = [0f32; L];
+        // Running (slope, value) of each double prefix sum, in 32-bit wrapping arithmetic
+        // as `double_prefix_short` and `double_prefix_narrow` (the window is short).
+        let step = |d: u32, (slope, value): &mut (i32, i32)| -> u32 {
+            *slope = slope.wrapping_add(d as i32);
+            *value = value.wrapping_add(*slope);
+            (*value).max(0) as u32
+        };
+        // R_ab, every lag; the tail counts are kept for R_aa.
+        let (mut c, mut h, mut t) = ((0, 0), (0, 0), (0, 0));
+        let mut n32 = frames as u32;
+        let ins = self.cross.iter_mut().zip(self.trail_head.iter_mut());
+        for ((x, y), (z, o)) in ins.zip(tail.iter_mut().zip(rab.iter_mut())).take(lags) {
+            let sab = step(*x as u32, &mut c);
+            let head = step(*y, &mut h);
+            *z = step(*z, &mut t);
+            (*x, *y) = (0, 0);
+            let (num, va, vb) = pearson_parts_masked(
+                n32,
+                lead_air.saturating_sub(*z),
+                trail_air.saturating_sub(head),
+                sab,
+            );
+            n32 = n32.saturating_sub(1);
+            *o = pearson_finish_small(num, va, vb);
+        }
+        // R_aa up to its first lag at or below 0 (all the results need of it).
+        let (mut a, mut h) = ((0, 0), (0, 0));
+        let mut n32 = frames as u32;
+        let mut written = 0;
+        let ins = self.auto.iter_mut().zip(self.lead_head.iter_mut());
+        for ((x, y), (&z, o)) in ins.zip(tail.iter().zip(raa.iter_mut())).take(lags) {
+            let saa = step(*x as u32, &mut a);
+            let head = step(*y, &mut h);
+            (*x, *y) = (0, 0);
+            let (num, va, vb) = pearson_parts_masked(
+                n32,
+                lead_air.saturating_sub(z),
+                lead_air.saturating_sub(head),
+                saa,
+            );
+            n32 = n32.saturating_sub(1);
+            *o = pearson_finish_small(num, va, vb);
+            written += 1;
+            if *o <= 0.0 {
+                break;
+            }
+        }
+        // The rest of the second differences (beyond the lags, or after the stop).
+        self.cross.get_mut(lags..).unwrap_or(&mut []).fill(0);
+        self.auto.get_mut(written..).unwrap_or(&mut []).fill(0);
+        self.trail_head.get_mut(lags..).unwrap_or(&mut []).fill(0);
+        self.lead_head.get_mut(written..).unwrap_or(&mut []).fill(0);
+        let rab = rab.get(..lags).unwrap_or(&[]);
+        let raa = raa.get(..written).unwrap_or(&[]);
+        Some(analyse_functions(rab, raa, min_peak))
+    }
+
     /// The first half of a close: clip the intervals open at `end`, turn the second
     /// differences into the sums in place, and the leading tip's tail counts into `tail`.
     /// Returns `(frames, lead_air, trail_air, lags)`.
     fn settle(&mut self, end: u64, tail: &mut [u32; L]) -> (u64, u64, u64, usize) {
+        let totals = self.clip(end);
+        self.prefix_sums(end, totals, tail);
+        totals
+    }
+
+    /// Clip the intervals open at `end`. Returns `(frames, lead_air, trail_air, lags)`.
+    fn clip(&mut self, end: u64) -> (u64, u64, u64, usize) {
         let t_end = self.rel(end);
         // Clip intervals open at the window end.
         if self.lead_air {
@@ -338,6 +438,13 @@ impl<const L: usize> Correlator<L> {
         // sum e t over a tip's edges is minus its air time.
         let lead_air = self.lead_q.wrapping_neg().max(0) as u64;
         let trail_air = self.trail_q.wrapping_neg().max(0) as u64;
+        (frames, lead_air, trail_air, lags)
+    }
+
+    /// Turn the second differences of a clipped window into the sums in place, and the
+    /// leading tip's tail counts into `tail`.
+    fn prefix_sums(&mut self, end: u64, totals: (u64, u64, u64, usize), tail: &mut [u32; L]) {
+        let (frames, _, _, lags) = totals;
         for d in [&mut self.cross, &mut self.auto] {
             let d = d.get_mut(..lags).unwrap_or(&mut []);
             if frames < 1 << 31 {
@@ -349,6 +456,13 @@ impl<const L: usize> Correlator<L> {
         for d in [&mut self.lead_head, &mut self.trail_head] {
             double_prefix_narrow(d.get_mut(..lags).unwrap_or(&mut []));
         }
+        self.tail_differences(self.rel(end), tail);
+        double_prefix_narrow(tail.get_mut(..lags).unwrap_or(&mut []));
+    }
+
+    /// The second differences of the leading tip's tail counts into `tail` (zeros), for a
+    /// window ending at window time `t_end`.
+    fn tail_differences(&self, t_end: i64, tail: &mut [u32; L]) {
         // Tail counts: an edge at t adds -e ramp(tau - (N - t)); the ring holds every edge
         // of the last max_lag frames (only ramps that start inside the lags: 0 <= p < m).
         let m = self.max_lag;
@@ -362,8 +476,6 @@ impl<const L: usize> Correlator<L> {
             }
             true
         });
-        double_prefix_narrow(tail.get_mut(..lags).unwrap_or(&mut []));
-        (frames, lead_air, trail_air, lags)
     }
 
     /// The sums of a settled window.
@@ -384,19 +496,28 @@ impl<const L: usize> Correlator<L> {
 
     /// The second half of a close: flag lost edges and open the next window at `end`.
     fn reopen(&mut self, end: u64, lead_air: bool, trail_air: bool, flags: &mut Flags) {
-        if self.overflow {
-            *flags |= Flags::CORRELATION_OVERFLOW;
-        }
+        self.flag_overflow(flags);
         self.reset(end);
         self.open(end, lead_air, trail_air);
     }
 
+    fn flag_overflow(&self, flags: &mut Flags) {
+        if self.overflow {
+            *flags |= Flags::CORRELATION_OVERFLOW;
+        }
+    }
+
     fn reset(&mut self, start: u64) {
-        self.start = start;
         self.cross = [0; L];
         self.auto = [0; L];
         self.lead_head = [0; L];
         self.trail_head = [0; L];
+        self.reset_scalars(start);
+    }
+
+    /// [`reset`](Self::reset) of everything but the second differences (already zero).
+    fn reset_scalars(&mut self, start: u64) {
+        self.start = start;
         self.ring.clear();
         self.lead_air = false;
         self.trail_air = false;
