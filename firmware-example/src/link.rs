@@ -33,6 +33,18 @@ pub struct Link<W> {
     window: WindowSetting,
 }
 
+/// Build the link in its static `cell`, apart from the caller: the temporaries of its
+/// construction take stack only while it is built, not below the caller for the whole run.
+/// `None` if the cell was taken already.
+#[inline(never)]
+pub fn link_in<W: Write + 'static>(
+    cell: &'static static_cell::StaticCell<Link<W>>,
+    tx: W,
+    sample_rate_hz: u32,
+) -> Option<&'static mut Link<W>> {
+    cell.try_init_with(|| Link::new(tx, sample_rate_hz))
+}
+
 impl<W: Write> Link<W> {
     /// A link over `tx`, its byte budget that of a UART at [`BAUD`], time in frames of
     /// the sample clock.
@@ -68,8 +80,7 @@ impl<W: Write> Link<W> {
 
     /// Queue the device description (sent first).
     pub fn describe(&mut self) {
-        self.streamer
-            .offer(Body::Describe(description(self.window)));
+        self.streamer.offer_description(description(self.window));
     }
 
     /// Queue the window result of one record and its derived figures (kind 0x08), its
@@ -97,7 +108,7 @@ impl<W: Write> Link<W> {
 
     /// Queue the levels every tip uses (after the description; a newer one replaces it).
     pub fn levels(&mut self, l: frothline_core::wire::LevelsInUse) {
-        self.streamer.offer(Body::Levels(l));
+        self.streamer.offer_levels(l);
     }
 
     /// Queue a front arrival (station chains).

@@ -539,9 +539,10 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         self.frames_pushed
     }
 
-    /// Take the chain and the clock back (after [`finish`](Self::finish)).
-    pub fn into_parts(self) -> (&'static mut FwChain, C) {
-        (self.chain, self.clock)
+    /// The chain and the clock (after [`finish`](Self::finish)), borrowed: the pipeline
+    /// stays where it is (no copy of it for the caller).
+    pub fn chain_and_clock(&mut self) -> (&mut FwChain, &C) {
+        (&mut *self.chain, &self.clock)
     }
 
     /// The link.
