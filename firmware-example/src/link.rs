@@ -8,7 +8,7 @@
 //! streamer's bytes into any `embedded_io::Write`.
 
 use crate::capture;
-use crate::config::{FwRecord, BAUD, DEVICE_ID, STREAM_WINDOWS};
+use crate::config::{FwRecord, BAUD, DEVICE_ID, PROBES, STREAM_WINDOWS};
 use embedded_io::Write;
 use frothline_core::wire::{
     quant, Body, DerivedResult, DeviceDescription, FrontArrival, Health, ProfileFit, Reply,
@@ -23,10 +23,14 @@ pub const FIRMWARE: &str = concat!("fw-example ", env!("CARGO_PKG_VERSION"));
 /// rate), so the bucket must hold at least that much credit.
 pub const TX_BURST_BYTES: u32 = 1024;
 
+/// The link's streamer: [`STREAM_WINDOWS`] window results, the default urgent queue, and
+/// the tip-health book of the firmware's [`PROBES`] probes (no room for probes it cannot have).
+type FwStreamer = Streamer<STREAM_WINDOWS, 8, PROBES>;
+
 /// A streamer in front of a byte sink.
 pub struct Link<W> {
     tx: W,
-    streamer: Streamer<STREAM_WINDOWS>,
+    streamer: FwStreamer,
     sample_rate_hz: f32,
     write_errors: u32,
     /// The window policy in use, as the description reports it.
