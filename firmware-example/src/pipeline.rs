@@ -225,9 +225,7 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         self.settings.apply(&mut cfg);
         if self.chain.configure(cfg).is_err() {
             self.config_errors = self.config_errors.saturating_add(1);
-            if let Ok(cfg) = capture::chain_config() {
-                let _ = self.chain.configure(cfg);
-            }
+            configure_as_captured(self.chain);
         }
     }
 
@@ -588,6 +586,15 @@ impl<W: Write + Read + ReadReady + 'static, C: Clock> Pipeline<'_, W, C> {
             }
         }
         n
+    }
+}
+
+/// Configure `chain` with the capture's own configuration. (Not inlined: its configuration
+/// takes stack only when the settings were refused.)
+#[inline(never)]
+fn configure_as_captured(chain: &mut FwChain) {
+    if let Ok(cfg) = capture::chain_config() {
+        let _ = chain.configure(cfg);
     }
 }
 
