@@ -142,6 +142,17 @@ impl LevelLearner {
         }
     }
 
+    /// Forget everything seen, in place: the learner [`new`](Self::new) builds.
+    pub fn reset(&mut self) {
+        self.origin = 0;
+        self.shift = 0;
+        self.counts = [0; LEARN_BINS];
+        self.offsets = [0; LEARN_BINS];
+        self.min = i16::MAX;
+        self.max = i16::MIN;
+        self.ranged = false;
+    }
+
     /// Feed every `LEARN_STRIDE`-th frame of `frames` (interleaved, `channels` wide) whose
     /// absolute index is a multiple of the stride; `first` is the index of the first frame.
     pub fn observe(&mut self, frames: &[i16], channels: usize, channel: usize, first: u64) {

@@ -338,6 +338,40 @@ impl PhaseDetector {
         }
     }
 
+    /// Start afresh for `tip`, in place: the detector [`new`](Self::new) builds, without a
+    /// detector-sized temporary on the stack (its learner's histogram is cleared where it is).
+    pub fn configure(&mut self, tip: &TipConfig, det: &DetectorConfig, initial_air: bool) {
+        let sign = tip.polarity.sign();
+        let levels = match tip.levels {
+            LevelSource::Fixed { air, water } => {
+                self.learner = None;
+                Some(Levels {
+                    air: air as f32,
+                    water: water as f32,
+                })
+            }
+            LevelSource::Learnt => {
+                match self.learner.as_mut() {
+                    Some(l) => l.reset(),
+                    None => self.learner = Some(LevelLearner::new()),
+                }
+                None
+            }
+        };
+        self.channel = tip.channel as usize;
+        self.sign = sign;
+        self.threshold = det.threshold;
+        self.hysteresis = det.hysteresis;
+        self.rail_low = det.rail_low;
+        self.rail_high = det.rail_high;
+        self.min_swing = det.min_swing;
+        self.learn_period = det.learn_period.max(64) as u64;
+        self.thresholds =
+            levels.map(|l| Thresholds::from_levels(l, sign, det.threshold, det.hysteresis));
+        self.levels = levels;
+        self.air = initial_air;
+    }
+
     /// The current phase (true = air).
     pub fn is_air(&self) -> bool {
         self.air
@@ -555,5 +589,51 @@ impl PhaseDetector {
             rail,
             unlearnt: 0,
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::probe_config::Polarity;
+    extern crate std;
+    use std::format;
+
+    /// A detector configured in place, whatever it held, is the detector `new` builds.
+    #[test]
+    fn configure_in_place_equals_new() {
+        let det = DetectorConfig::default();
+        let learnt = TipConfig {
+            channel: 1,
+            polarity: Polarity::AirHigh,
+            levels: LevelSource::Learnt,
+        };
+        let fixed = TipConfig {
+            channel: 0,
+            polarity: Polarity::AirLow,
+            levels: LevelSource::Fixed {
+                air: 3000,
+                water: 26000,
+            },
+        };
+        // A learner that has seen a signal, ranged and binned it.
+        let samples: std::vec::Vec<i16> = (0..4096)
+            .map(|i| if (i / 64) % 2 == 0 { 3000 } else { 26000 })
+            .collect();
+        for (from, to) in [(learnt, learnt), (fixed, learnt), (learnt, fixed)] {
+            for initial_air in [false, true] {
+                let mut d = PhaseDetector::new(&from, &det, !initial_air);
+                d.process(&samples, 2, 0, &mut ());
+                d.configure(&to, &det, initial_air);
+                let fresh = PhaseDetector::new(&to, &det, initial_air);
+                assert_eq!(format!("{d:?}"), format!("{fresh:?}"));
+            }
+        }
+        let mut z = PhaseDetector::ZERO;
+        z.configure(&learnt, &det, false);
+        assert_eq!(
+            format!("{z:?}"),
+            format!("{:?}", PhaseDetector::new(&learnt, &det, false))
+        );
     }
 }

@@ -421,9 +421,11 @@ fn main() -> ! {
         halt()
     }
 
-    // The link lives in a static, built in place (not on the main loop's stack).
+    // The link lives in a static, built apart (not on the main loop's stack).
     static LINK: StaticCell<Link<DmaUart>> = StaticCell::new();
-    let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
+    let Some(link) = crate::link::link_in(&LINK, uart, capture::SAMPLE_RATE_HZ) else {
+        halt()
+    };
     let mut pipe = Pipeline::new(chain, full_rx, free_tx, link, CycleClock);
     pipe.set_supply(&mut vref);
     #[cfg(feature = "field-logger")]

@@ -8,7 +8,7 @@
 //! streamer's bytes into any `embedded_io::Write`.
 
 use crate::capture;
-use crate::config::{FwRecord, BAUD, DEVICE_ID, STREAM_WINDOWS};
+use crate::config::{FwRecord, BAUD, DEVICE_ID, PROBES, STREAM_WINDOWS};
 use embedded_io::Write;
 use frothline_core::wire::{
     quant, Body, DerivedResult, DeviceDescription, FrontArrival, Health, ProfileFit, Reply,
@@ -19,18 +19,34 @@ use frothline_core::wire::{
 pub const FIRMWARE: &str = concat!("fw-example ", env!("CARGO_PKG_VERSION"));
 
 /// Bytes the link may take at once: the transmit buffer a UART's DMA drains on a real
-/// board. The main loop pumps the streamer once per block (6.4 ms = 590 bytes at the baud
+/// board. The main loop pumps the streamer once per block (3.2 ms = 295 bytes at the baud
 /// rate), so the bucket must hold at least that much credit.
 pub const TX_BURST_BYTES: u32 = 1024;
+
+/// The link's streamer: [`STREAM_WINDOWS`] window results, the default urgent queue, and
+/// the tip-health book of the firmware's [`PROBES`] probes (no room for probes it cannot have).
+type FwStreamer = Streamer<STREAM_WINDOWS, 8, PROBES>;
 
 /// A streamer in front of a byte sink.
 pub struct Link<W> {
     tx: W,
-    streamer: Streamer<STREAM_WINDOWS>,
+    streamer: FwStreamer,
     sample_rate_hz: f32,
     write_errors: u32,
     /// The window policy in use, as the description reports it.
     window: WindowSetting,
+}
+
+/// Build the link in its static `cell`, apart from the caller: the temporaries of its
+/// construction take stack only while it is built, not below the caller for the whole run.
+/// `None` if the cell was taken already.
+#[inline(never)]
+pub fn link_in<W: Write + 'static>(
+    cell: &'static static_cell::StaticCell<Link<W>>,
+    tx: W,
+    sample_rate_hz: u32,
+) -> Option<&'static mut Link<W>> {
+    cell.try_init_with(|| Link::new(tx, sample_rate_hz))
 }
 
 impl<W: Write> Link<W> {
@@ -68,8 +84,7 @@ impl<W: Write> Link<W> {
 
     /// Queue the device description (sent first).
     pub fn describe(&mut self) {
-        self.streamer
-            .offer(Body::Describe(description(self.window)));
+        self.streamer.offer_description(description(self.window));
     }
 
     /// Queue the window result of one record and its derived figures (kind 0x08), its
@@ -97,7 +112,7 @@ impl<W: Write> Link<W> {
 
     /// Queue the levels every tip uses (after the description; a newer one replaces it).
     pub fn levels(&mut self, l: frothline_core::wire::LevelsInUse) {
-        self.streamer.offer(Body::Levels(l));
+        self.streamer.offer_levels(l);
     }
 
     /// Queue a front arrival (station chains).

@@ -262,9 +262,11 @@ fn run(mode: Mode) -> bool {
     let Some(acq) = acquisition(mode, clock.reader(), full_tx, free_rx) else {
         return false;
     };
-    // The link lives in a static, built in place (not on this function's stack).
+    // The link lives in a static, built apart (not on this function's stack).
     static LINK: StaticCell<Link<CmsdkUart>> = StaticCell::new();
-    let link = LINK.init_with(|| Link::new(uart, capture::SAMPLE_RATE_HZ));
+    let Some(link) = crate::link::link_in(&LINK, uart, capture::SAMPLE_RATE_HZ) else {
+        return false;
+    };
     #[cfg(feature = "field-logger")]
     let mut log = match mode {
         Mode::Logger | Mode::Field | Mode::Erase | Mode::EraseInside => match logger::mount(
@@ -360,7 +362,7 @@ fn run(mode: Mode) -> bool {
     }
     let total = pipe.clock().now().wrapping_sub(t_start) as u64;
     let stack_run = sys::stack_high_water();
-    let pass = end_of_run(mode, pipe, total, stack_init, stack_run);
+    let pass = end_of_run(mode, &mut pipe, total, stack_init, stack_run);
     let pass = pass && (mode != Mode::Boot || matches!(loaded, crate::settings::Loaded::Stored(_)));
     #[cfg(feature = "field-logger")]
     let pass = match log {
@@ -485,12 +487,12 @@ fn frames_per_tick(mode: Mode) -> usize {
 #[inline(never)]
 fn end_of_run(
     mode: Mode,
-    pipe: Pipeline<'_, CmsdkUart, CmsdkTimer>,
+    pipe: &mut Pipeline<'_, CmsdkUart, CmsdkTimer>,
     total: u64,
     stack_init: usize,
     stack_run: usize,
 ) -> bool {
-    let pass = summary(mode, &pipe, total);
+    let pass = summary(mode, pipe, total);
     report!(
         "fw.memory static_ram_bytes={} stack_init_bytes={} stack_run_bytes={} chain_bytes={} record_bytes={} block_bytes={}",
         sys::static_ram_bytes(),
@@ -501,7 +503,7 @@ fn end_of_run(
         core::mem::size_of::<Block>()
     );
     if mode == Mode::Measure {
-        let (chain, clock) = pipe.into_parts();
+        let (chain, clock) = pipe.chain_and_clock();
         const LOOPS: u32 = 1_000_000;
         let t0 = clock.now();
         sys::instruction_loop(LOOPS);
@@ -513,10 +515,10 @@ fn end_of_run(
             Variant::WholeFixedLeading,
             Variant::Practical,
         ] {
-            measure_streaming(chain, &clock, v);
+            measure_streaming(chain, clock, v);
         }
-        measure_profile_fit(&clock);
-        measure_learning(&clock);
+        measure_profile_fit(clock);
+        measure_learning(clock);
     }
     pass
 }
@@ -682,23 +684,32 @@ mod stored {
     /// Mount the store, load the newest settings into the pipeline, and report them.
     #[inline(never)]
     pub fn load<W: embedded_io::Write, C: Clock>(pipe: &mut Pipeline<'_, W, C>) -> Loaded {
+        // Read first, then configure the chain: the store's buffers and the chain's
+        // configuration never take stack at once.
+        let (settings, loaded, store) = read();
+        let (has_store, store) = match store {
+            Some(s) => (true, Some(s as &mut dyn crate::settings::SettingsSink)),
+            None => (false, None),
+        };
+        pipe.set_settings(settings, store);
+        report_settings("loaded", &settings, loaded, has_store);
+        loaded
+    }
+
+    /// Mount the store and read the newest settings (the defaults without a store).
+    #[inline(never)]
+    fn read() -> (Settings, Loaded, Option<&'static mut Store>) {
         let defaults = Settings::defaults(config::DEVICE_ID, capture::WINDOW);
         let store = HostNor::open(b"target/firmware/settings.nor\0")
             .and_then(|f| SettingsStore::mount(f).ok())
             .map(|s| STORE.init(s));
-        let (settings, loaded) = match store {
+        match store {
             Some(s) => {
                 let (settings, loaded) = s.load(defaults);
-                pipe.set_settings(settings, Some(s));
-                (settings, loaded)
+                (settings, loaded, Some(s))
             }
-            None => {
-                pipe.set_settings(defaults, None);
-                (defaults, Loaded::Defaults)
-            }
-        };
-        report_settings("loaded", &settings, loaded, pipe.has_store());
-        loaded
+            None => (defaults, Loaded::Defaults, None),
+        }
     }
 
     /// One `fw.settings` line.

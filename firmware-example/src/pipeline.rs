@@ -19,9 +19,9 @@ use frothline_core::wire::{
 use frothline_core::{Flags, FrontRecord};
 use heapless::spsc::{Consumer, Producer};
 
-/// A health frame goes out every this many blocks (and at the end), each followed by a
-/// device status (kind 0x0C).
-const HEALTH_EVERY_BLOCKS: u32 = 8;
+/// A health frame goes out every this many blocks, 1024 frames (and at the end), each
+/// followed by a device status (kind 0x0C).
+const HEALTH_EVERY_BLOCKS: u32 = (1024 / BLOCK_FRAMES) as u32;
 
 /// A board's measurement of its supply voltage (the device status's `supply_mv`).
 pub trait SupplySense {
@@ -225,9 +225,7 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         self.settings.apply(&mut cfg);
         if self.chain.configure(cfg).is_err() {
             self.config_errors = self.config_errors.saturating_add(1);
-            if let Ok(cfg) = capture::chain_config() {
-                let _ = self.chain.configure(cfg);
-            }
+            configure_as_captured(self.chain);
         }
     }
 
@@ -539,9 +537,10 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
         self.frames_pushed
     }
 
-    /// Take the chain and the clock back (after [`finish`](Self::finish)).
-    pub fn into_parts(self) -> (&'static mut FwChain, C) {
-        (self.chain, self.clock)
+    /// The chain and the clock (after [`finish`](Self::finish)), borrowed: the pipeline
+    /// stays where it is (no copy of it for the caller).
+    pub fn chain_and_clock(&mut self) -> (&mut FwChain, &C) {
+        (&mut *self.chain, &self.clock)
     }
 
     /// The link.
@@ -587,6 +586,15 @@ impl<W: Write + Read + ReadReady + 'static, C: Clock> Pipeline<'_, W, C> {
             }
         }
         n
+    }
+}
+
+/// Configure `chain` with the capture's own configuration. (Not inlined: its configuration
+/// takes stack only when the settings were refused.)
+#[inline(never)]
+fn configure_as_captured(chain: &mut FwChain) {
+    if let Ok(cfg) = capture::chain_config() {
+        let _ = chain.configure(cfg);
     }
 }
 

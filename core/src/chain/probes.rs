@@ -76,7 +76,7 @@ impl Tip {
 
     /// Start afresh, in place, for `cfg`.
     pub(super) fn configure(&mut self, cfg: &TipConfig, det: &DetectorConfig, initial_air: bool) {
-        self.detector = PhaseDetector::new(cfg, det, initial_air);
+        self.detector.configure(cfg, det, initial_air);
         self.stats = TipAccumulator::new();
         self.stats.set_near_wake(det.near_wake);
     }

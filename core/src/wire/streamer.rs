@@ -293,6 +293,17 @@ impl<const Q: usize, const P: usize, const T: usize, const X: usize> Streamer<Q,
         }
     }
 
+    /// Queue the device description: `offer(Body::Describe(d))` without building a
+    /// [`Body`] (as large as its largest variant) on the caller's stack.
+    pub fn offer_description(&mut self, d: DeviceDescription) -> Offer {
+        Self::replace(&mut self.describe, d, &mut self.stats)
+    }
+
+    /// Queue the levels in use: `offer(Body::Levels(l))` without building a [`Body`].
+    pub fn offer_levels(&mut self, l: crate::wire::LevelsInUse) -> Offer {
+        Self::replace(&mut self.levels, l, &mut self.stats)
+    }
+
     /// Queue a health frame: `offer(Body::Health(h))` without building a [`Body`] (as large
     /// as its largest variant) on the caller's stack.
     pub fn offer_health(&mut self, h: Health) -> Offer {
