@@ -10,18 +10,14 @@ pub const PROBES: usize = 8;
 pub const LAGS: usize = 64;
 /// Most channels per frame (two 8-channel ADC packages).
 pub const MAX_CHANNELS: usize = 16;
-/// Frames per acquisition block: 64 frames = 3.2 ms at 20 kHz, 2 KiB at 16 channels (two
-/// of the board's 32-frame DMA transfers). A block that closes a window (every probe's lag
-/// analysis and records: about 250 000 instructions at the example's settings by the
-/// figures of docs/firmware.md, 2.5 ms of a 100 MHz core) still ends before the other block
-/// is full.
-pub const BLOCK_FRAMES: usize = 64;
+/// Frames per acquisition block: 128 frames = 6.4 ms at 20 kHz, 4 KiB at 16 channels.
+pub const BLOCK_FRAMES: usize = 128;
 /// Samples per block.
 pub const BLOCK_SAMPLES: usize = BLOCK_FRAMES * MAX_CHANNELS;
 /// Acquisition blocks: two (double buffering: one filling, one being processed).
 pub const BLOCKS: usize = 2;
 /// Window results the wire streamer can hold while the link is busy: a window's worth and
-/// half another. The main loop pumps the link after every block (3.2 ms, 295 bytes of
+/// half another. The main loop pumps the link after every block (6.4 ms, 590 bytes of
 /// link budget at the baud rate, 1024 bytes of burst), and a block closes at most one
 /// window per probe, so the queue empties faster than it fills (every firmware check
 /// verifies that no result was dropped). 12 rather than 16 makes room in the 64 KiB

@@ -19,7 +19,7 @@ use frothline_core::wire::{
 pub const FIRMWARE: &str = concat!("fw-example ", env!("CARGO_PKG_VERSION"));
 
 /// Bytes the link may take at once: the transmit buffer a UART's DMA drains on a real
-/// board. The main loop pumps the streamer once per block (3.2 ms = 295 bytes at the baud
+/// board. The main loop pumps the streamer once per block (6.4 ms = 590 bytes at the baud
 /// rate), so the bucket must hold at least that much credit.
 pub const TX_BURST_BYTES: u32 = 1024;
 

@@ -19,9 +19,9 @@ use frothline_core::wire::{
 use frothline_core::{Flags, FrontRecord};
 use heapless::spsc::{Consumer, Producer};
 
-/// A health frame goes out every this many blocks, 1024 frames (and at the end), each
-/// followed by a device status (kind 0x0C).
-const HEALTH_EVERY_BLOCKS: u32 = (1024 / BLOCK_FRAMES) as u32;
+/// A health frame goes out every this many blocks (and at the end), each followed by a
+/// device status (kind 0x0C).
+const HEALTH_EVERY_BLOCKS: u32 = 8;
 
 /// A board's measurement of its supply voltage (the device status's `supply_mv`).
 pub trait SupplySense {
