@@ -283,37 +283,7 @@ pub(super) fn analyse_functions(
     out.peak_coefficient = Some(r0);
     flags.set_if(Flags::NO_CORRELATION_PEAK, r0 < min_peak);
 
-    let (rm, rp) = (
-        k.checked_sub(1).map_or(f32::NAN, |j| at(rab, j)),
-        at(rab, k + 1),
-    );
-    let lag = if rm.is_nan() || rp.is_nan() {
-        flags |= Flags::PEAK_AT_LAG_BOUNDARY;
-        k as f32
-    } else {
-        let low = rm.min(rp);
-        let delta = if r0 > low {
-            ((rp - rm) / (2.0 * (r0 - low))).clamp(-0.5, 0.5)
-        } else {
-            0.0
-        };
-        k as f32 + delta
-    };
-    out.peak_lag_frames = Some(lag);
-
-    let (x_left, x_right) = if r0 > 0.0 {
-        (
-            crossing(rab, k, 0.5 * r0, false),
-            crossing(rab, k, 0.5 * r0, true),
-        )
-    } else {
-        (None, None)
-    };
-    out.tau05_frames = match (x_left, x_right) {
-        (Some(l), Some(r)) => Some(0.5 * (r - l)),
-        (None, Some(r)) => Some(r - lag),
-        _ => None,
-    };
+    let (lag, x_left, x_right) = peak_lag_and_width(rab, k, r0, &mut out, &mut flags);
 
     if r0 > 0.0 {
         let lo = x_left.unwrap_or(-1.0);
@@ -345,6 +315,55 @@ pub(super) fn analyse_functions(
 
     out.cross_integral_frames = integral_to_zero(rab, k);
 
+    turbulence(&mut out, &mut flags, lag);
+    (out, flags)
+}
+
+/// The interpolated peak lag (parabola through the peak and its neighbours) and the
+/// half-height crossings either side of it, written into `out` with the peak's flags.
+fn peak_lag_and_width(
+    rab: &[f32],
+    k: usize,
+    r0: f32,
+    out: &mut CorrelationResult,
+    flags: &mut Flags,
+) -> (f32, Option<f32>, Option<f32>) {
+    let (rm, rp) = (
+        k.checked_sub(1).map_or(f32::NAN, |j| at(rab, j)),
+        at(rab, k + 1),
+    );
+    let lag = if rm.is_nan() || rp.is_nan() {
+        *flags |= Flags::PEAK_AT_LAG_BOUNDARY;
+        k as f32
+    } else {
+        let low = rm.min(rp);
+        let delta = if r0 > low {
+            ((rp - rm) / (2.0 * (r0 - low))).clamp(-0.5, 0.5)
+        } else {
+            0.0
+        };
+        k as f32 + delta
+    };
+    out.peak_lag_frames = Some(lag);
+
+    let (x_left, x_right) = if r0 > 0.0 {
+        (
+            crossing(rab, k, 0.5 * r0, false),
+            crossing(rab, k, 0.5 * r0, true),
+        )
+    } else {
+        (None, None)
+    };
+    out.tau05_frames = match (x_left, x_right) {
+        (Some(l), Some(r)) => Some(0.5 * (r - l)),
+        (None, Some(r)) => Some(r - lag),
+        _ => None,
+    };
+    (lag, x_left, x_right)
+}
+
+/// The turbulence intensity from the cross half-width and T05, with its flags.
+fn turbulence(out: &mut CorrelationResult, flags: &mut Flags, lag: f32) {
     out.turbulence_intensity = match (out.tau05_frames, out.t05_frames) {
         (Some(w), Some(t05)) if lag > 0.0 && w >= t05 => {
             Some(0.851 * sqrt(w * w - t05 * t05) / lag)
@@ -357,7 +376,6 @@ pub(super) fn analyse_functions(
         _ => false,
     };
     flags.set_if(Flags::TU_INDEX, index_only);
-    (out, flags)
 }
 
 #[cfg(test)]
@@ -389,37 +407,7 @@ mod tests {
         out.peak_coefficient = Some(r0);
         flags.set_if(Flags::NO_CORRELATION_PEAK, r0 < min_peak);
 
-        let (rm, rp) = (
-            k.checked_sub(1).map_or(f32::NAN, |j| at(rab, j)),
-            at(rab, k + 1),
-        );
-        let lag = if rm.is_nan() || rp.is_nan() {
-            flags |= Flags::PEAK_AT_LAG_BOUNDARY;
-            k as f32
-        } else {
-            let low = rm.min(rp);
-            let delta = if r0 > low {
-                ((rp - rm) / (2.0 * (r0 - low))).clamp(-0.5, 0.5)
-            } else {
-                0.0
-            };
-            k as f32 + delta
-        };
-        out.peak_lag_frames = Some(lag);
-
-        let (x_left, x_right) = if r0 > 0.0 {
-            (
-                crossing(rab, k, 0.5 * r0, false),
-                crossing(rab, k, 0.5 * r0, true),
-            )
-        } else {
-            (None, None)
-        };
-        out.tau05_frames = match (x_left, x_right) {
-            (Some(l), Some(r)) => Some(0.5 * (r - l)),
-            (None, Some(r)) => Some(r - lag),
-            _ => None,
-        };
+        let (lag, x_left, x_right) = peak_lag_and_width(rab, k, r0, &mut out, &mut flags);
 
         if r0 > 0.0 {
             let lo = x_left.unwrap_or(-1.0);
@@ -442,18 +430,7 @@ mod tests {
 
         out.cross_integral_frames = integral_to_zero(rab, k);
 
-        out.turbulence_intensity = match (out.tau05_frames, out.t05_frames) {
-            (Some(w), Some(t05)) if lag > 0.0 && w >= t05 => {
-                Some(0.851 * sqrt(w * w - t05 * t05) / lag)
-            }
-            _ => None,
-        };
-        flags.set_if(Flags::TU_UNDEFINED, out.turbulence_intensity.is_none());
-        let index_only = match (out.turbulence_intensity, out.tau05_frames, out.t05_frames) {
-            (Some(_), Some(w), Some(t05)) => w < TU_WIDTH_RATIO * t05,
-            _ => false,
-        };
-        flags.set_if(Flags::TU_INDEX, index_only);
+        turbulence(&mut out, &mut flags, lag);
         (out, flags)
     }
 

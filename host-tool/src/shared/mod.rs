@@ -6,7 +6,8 @@
 //!          checks that they fit); stations: one chain per station of a transient layout
 //! frames   session: bytes from links or an archive -> frames -> CSV files + archive;
 //!          archive (.frothwire), commands (host -> device), runs (run numbers, labels),
-//!          marks (operator notes), tips_csv (the tip-health rows of a live session)
+//!          marks (operator notes), tips_csv and status_csv (the tip-health and device status
+//!          rows of a live session, each a lazy_csv: created at its first row)
 //! results  windows_csv, transient_columns (profile.csv, fronts.csv, stations.csv), output_set (a run's files written as one set), probe_summary,
 //!          running_stats (means with intervals), hydraulics (water properties, flow
 //!          relations), discharge (unit discharges across an array, the continuity check)
@@ -23,6 +24,7 @@ pub mod discharge;
 pub mod error;
 pub mod hydraulics;
 pub mod layout;
+pub mod lazy_csv;
 pub mod marks;
 pub mod output_set;
 pub mod probe_summary;

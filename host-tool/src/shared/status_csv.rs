@@ -7,12 +7,11 @@
 //! `capture_remaining` (results still to log while capturing), `log_used_bytes`,
 //! `log_capacity_bytes`, then the run columns of every live file.
 
-use crate::shared::error::{write_err, HostError};
+use crate::shared::error::HostError;
+use crate::shared::lazy_csv::LazyCsv;
 use frothline_core::logbook::LoggerState;
 use frothline_core::wire::DeviceStatus;
-use std::fs::File;
-use std::io::BufWriter;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 /// Below this supply, mV, the status is marked low (the dashboard shows it in the warning
 /// style): 3.0 V, 9 % under a nominal 3.3 V rail. A probe's front end and the ADC's
@@ -62,41 +61,22 @@ pub fn status_cells(device: u16, s: &DeviceStatus) -> Vec<String> {
 }
 
 /// A status.csv writer: created at the first status.
-pub struct StatusCsv {
-    path: PathBuf,
-    out: Option<csv::Writer<BufWriter<File>>>,
-}
+pub struct StatusCsv(LazyCsv);
 
 impl StatusCsv {
     /// Rows for `dir/status.csv` (nothing is created before the first status).
     pub fn new(dir: &Path) -> Self {
-        StatusCsv {
-            path: dir.join("status.csv"),
-            out: None,
-        }
+        StatusCsv(LazyCsv::new(dir.join("status.csv"), columns()))
     }
 
     /// The file's path.
     pub fn path(&self) -> &Path {
-        &self.path
+        self.0.path()
     }
 
     /// Write one row; returns true when this created the file.
     pub fn write(&mut self, row: &[String]) -> Result<bool, HostError> {
-        let created = self.out.is_none();
-        if created {
-            let f = File::create(&self.path).map_err(write_err(&self.path))?;
-            let mut w = csv::Writer::from_writer(BufWriter::new(f));
-            w.write_record(columns())
-                .map_err(|e| write_err(&self.path)(e.into()))?;
-            self.out = Some(w);
-        }
-        if let Some(w) = self.out.as_mut() {
-            w.write_record(row)
-                .map_err(|e| write_err(&self.path)(e.into()))?;
-            w.flush().map_err(write_err(&self.path))?;
-        }
-        Ok(created)
+        self.0.write(&[row.to_vec()])
     }
 }
 

@@ -9,12 +9,11 @@
 //! `interfaces_per_s`, `void_fraction`, `bubble_count_rate_hz` (this tip's), `flags`
 //! (this tip's, CSV names joined by `|`), then the run columns of every live file.
 
-use crate::shared::error::{write_err, HostError};
+use crate::shared::error::HostError;
+use crate::shared::lazy_csv::LazyCsv;
 use frothline_core::wire::{quant, TipReport, TipState};
 use frothline_core::Flags;
-use std::fs::File;
-use std::io::BufWriter;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 /// The columns of tips.csv.
 pub fn columns() -> Vec<&'static str> {
@@ -66,42 +65,21 @@ pub fn tip_cells(
 }
 
 /// A tips.csv writer: created at the first report.
-pub struct TipsCsv {
-    path: PathBuf,
-    out: Option<csv::Writer<BufWriter<File>>>,
-}
+pub struct TipsCsv(LazyCsv);
 
 impl TipsCsv {
     /// Rows for `dir/tips.csv` (nothing is created before the first report).
     pub fn new(dir: &Path) -> Self {
-        TipsCsv {
-            path: dir.join("tips.csv"),
-            out: None,
-        }
+        TipsCsv(LazyCsv::new(dir.join("tips.csv"), columns()))
     }
 
     /// The file's path.
     pub fn path(&self) -> &Path {
-        &self.path
+        self.0.path()
     }
 
     /// Write `rows`; returns true when this created the file.
     pub fn write(&mut self, rows: &[Vec<String>]) -> Result<bool, HostError> {
-        let created = self.out.is_none();
-        if created {
-            let f = File::create(&self.path).map_err(write_err(&self.path))?;
-            let mut w = csv::Writer::from_writer(BufWriter::new(f));
-            w.write_record(columns())
-                .map_err(|e| write_err(&self.path)(e.into()))?;
-            self.out = Some(w);
-        }
-        if let Some(w) = self.out.as_mut() {
-            for r in rows {
-                w.write_record(r)
-                    .map_err(|e| write_err(&self.path)(e.into()))?;
-            }
-            w.flush().map_err(write_err(&self.path))?;
-        }
-        Ok(created)
+        self.0.write(rows)
     }
 }
