@@ -54,8 +54,6 @@ pub fn length_edge_mm(k: usize) -> f64 {
 struct ProbePool {
     times: ChordStats,
     lengths: [f64; LENGTH_BINS],
-    /// Bubbles of used windows left out of the lengths (no trusted velocity).
-    no_velocity: u64,
 }
 
 /// Pooled chord-time and chord-length histograms of every probe of a run.
@@ -73,7 +71,6 @@ impl ChordPool {
                 ProbePool {
                     times: ChordStats::new(),
                     lengths: [0.0; LENGTH_BINS],
-                    no_velocity: 0,
                 };
                 probes
             ],
@@ -99,7 +96,6 @@ impl ChordPool {
             v.is_finite() && *v > 0.0 && w.flags.0 & self.rule.untrusted_velocity.0 == 0
         });
         let Some(v) = v else {
-            pool.no_velocity = pool.no_velocity.saturating_add(u64::from(chords.count));
             return;
         };
         // mm per sample of chord time
@@ -108,27 +104,6 @@ impl ChordPool {
             let (lo, hi) = span(chords, b);
             spread(&mut pool.lengths, lo * scale, hi * scale, f64::from(n));
         }
-    }
-
-    /// Bubbles of used windows that have no chord length (no trusted velocity), per probe.
-    pub fn without_velocity(&self) -> Vec<u64> {
-        self.probes.iter().map(|p| p.no_velocity).collect()
-    }
-
-    /// The pooled length histogram of probe `p`: (lower mm, upper mm, count) per bin.
-    pub fn length_bins(&self, p: usize) -> Vec<(f64, f64, f64)> {
-        self.probes.get(p).map_or_else(Vec::new, |pool| {
-            pool.lengths
-                .iter()
-                .enumerate()
-                .map(|(k, &n)| (length_edge_mm(k), length_edge_mm(k + 1), n))
-                .collect()
-        })
-    }
-
-    /// True when no probe pooled a chord.
-    pub fn is_empty(&self) -> bool {
-        self.probes.iter().all(|p| p.times.count == 0)
     }
 
     /// Write chords.csv and chord_lengths.csv into `set` (rows only for non-empty bins);
