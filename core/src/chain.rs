@@ -73,7 +73,7 @@ mod stats;
 
 use probes::Probes;
 use queue::{RecordQueue, SumsStore};
-use stats::{StationSlot, Stats};
+use stats::{Closing, StationSlot, Stats};
 
 /// The queue is full: drain it with [`GenericChain::poll`] and call again.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -103,13 +103,20 @@ pub type Chain<const P: usize, const L: usize = DEFAULT_LAGS, const D: usize = 0
 /// A chain for small devices (see the [module documentation](self)): `P` probes, `L` lag
 /// slots, no delay ring, no station, and records without their raw correlation sums
 /// (`correlation_sums: None`; every other field as a [`Chain`]'s, bit for bit).
-pub type LeanChain<const P: usize, const L: usize = DEFAULT_LAGS> = GenericChain<P, L, 0, 0, 0>;
+pub type LeanChain<const P: usize, const L: usize = DEFAULT_LAGS> = GenericChain<P, L, 0, 0, 0, 1>;
 
 /// The signal chain, with all its sizes: up to `P` probes, `L` correlation lag slots, a
 /// delay ring of `D` samples, the raw correlation sums of `S` queued records (`P`: every
-/// record keeps them; 0: none does) and `T` station slots (1: a station can be configured,
-/// given a delay ring; 0: not). Use it through [`Chain`] (`S = P`, `T = 1`) or
-/// [`LeanChain`] (`S = 0`, `T = 0`, `D = 0`).
+/// record keeps them; 0: none does), `T` station slots (1: a station can be configured,
+/// given a delay ring; 0: not) and a queue of `Q` records (default `P`: a window's records
+/// all wait together). Use it through [`Chain`] (`S = P`, `T = 1`) or [`LeanChain`]
+/// (`S = 0`, `T = 0`, `D = 0`, `Q = 1`).
+///
+/// With `Q` below the probe count a window's records are built as they are polled: the
+/// chain builds what fits at the window end, `push` stops there (back-pressure), and each
+/// [`poll`](Self::poll) builds the next record in the slot it frees. The records are the
+/// same, bit for bit; a queue of one record saves a device the other records' room (1.5 KiB
+/// each).
 #[derive(Clone, Debug)]
 pub struct GenericChain<
     const P: usize,
@@ -117,15 +124,18 @@ pub struct GenericChain<
     const D: usize,
     const S: usize,
     const T: usize,
+    const Q: usize = P,
 > {
-    stats: Stats<P, L, S, T>,
+    stats: Stats<P, L, S, T, Q>,
     ring: Ring<D>,
     partial: [i16; MAX_CHANNELS],
     partial_len: usize,
     finished: bool,
 }
 
-impl<const P: usize, const L: usize, const S: usize, const T: usize> GenericChain<P, L, 0, S, T> {
+impl<const P: usize, const L: usize, const S: usize, const T: usize, const Q: usize>
+    GenericChain<P, L, 0, S, T, Q>
+{
     /// Build a chain without a delay ring (steady flows); the configuration is checked
     /// first. A station chain needs [`with_delay_ring`](GenericChain::with_delay_ring).
     /// The chain is built by value (tens of KiB): on a small device use
@@ -135,8 +145,14 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> GenericChai
     }
 }
 
-impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: usize>
-    GenericChain<P, L, D, S, T>
+impl<
+        const P: usize,
+        const L: usize,
+        const D: usize,
+        const S: usize,
+        const T: usize,
+        const Q: usize,
+    > GenericChain<P, L, D, S, T, Q>
 {
     /// The largest correlation lag a probe of this chain can use, frames.
     pub const MAX_LAG: u16 = if L - 1 > u16::MAX as usize {
@@ -153,10 +169,11 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
     pub const fn empty() -> Self {
         const { assert!(P > 0, "a chain needs room for at least one probe") };
         const { assert!(L >= 3 && L <= 1 << 16, "L must lie in 3..=65536") };
+        const { assert!(Q > 0, "a chain queues at least one record") };
         const {
             assert!(
-                S == 0 || S >= P,
-                "S keeps the sums of every queued record (S >= P) or of none (0)"
+                S == 0 || S >= Q,
+                "S keeps the sums of every queued record (S >= Q) or of none (0)"
             )
         };
         const { assert!(T <= 1, "a chain has at most one station") };
@@ -165,6 +182,7 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
                 config: ChainConfig::placeholder(),
                 probes: Probes::new(),
                 queue: RecordQueue::new(),
+                closing: Closing::IDLE,
                 sums: SumsStore::new(),
                 run: RunBuffer::new(),
                 frame: 0,
@@ -212,6 +230,7 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
             .probes
             .configure(&config.probes, &config.detector, config.initial_air);
         stats.queue.clear();
+        stats.closing.active = false;
         stats.sums.clear();
         stats.frame = 0;
         stats.window_start = 0;
@@ -292,15 +311,15 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
     /// applies each segment's at its first frame (push whole frames up to it first). In a
     /// station chain only the statistics path takes them: its front path, which runs ahead
     /// by the delay, keeps the levels it started with (the front is found against the
-    /// levels before it). Refused (false) for a tip that does not exist and while a partial
-    /// frame is pending.
+    /// levels before it). Refused (false) for a tip that does not exist, while a partial
+    /// frame is pending and while a window's records wait to be built (poll them first).
     pub fn set_tip_levels(
         &mut self,
         probe: usize,
         trailing: bool,
         levels: crate::levels::Levels,
     ) -> bool {
-        if self.partial_len > 0 {
+        if self.partial_len > 0 || self.stats.closing.active {
             return false;
         }
         let Some(p) = self.stats.probes.get_mut(probe) else {
@@ -395,6 +414,7 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
         let sums = rec.correlation.and_then(|_| self.stats.sums.pop());
         let out = rec.with_sums(sums);
         self.stats.queue.pop_front();
+        self.stats.continue_close();
         Some(out)
     }
 
@@ -418,6 +438,7 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
         }
         let out = f(rec);
         self.stats.queue.pop_front();
+        self.stats.continue_close();
         Some(out)
     }
 
@@ -442,6 +463,9 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
         if self.finished {
             return Ok(());
         }
+        if !self.stats.continue_close() {
+            return Err(QueueFull);
+        }
         if self.stats.station.is_some() && !self.drain_ring(0) {
             return Err(QueueFull);
         }
@@ -457,6 +481,10 @@ impl<const P: usize, const L: usize, const D: usize, const S: usize, const T: us
             }
             let partial = st.config.window.closes_by_itself() && !st.pre_front_open;
             st.close_window(partial);
+            if st.closing.active {
+                // The rest of its records after polls (the next call goes on from here).
+                return Err(QueueFull);
+            }
         }
         if let Some(s) = st.station.as_mut() {
             s.finish();

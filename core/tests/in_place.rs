@@ -26,6 +26,9 @@ const TRANSIT: usize = 7;
 type Steady = Chain<4, LAGS>;
 type Station = Chain<4, LAGS, RING>;
 type LeanStation = GenericChain<4, LAGS, RING, 0, 1>;
+/// Chains that queue one record (the rest of a window's records built as they are polled).
+type ShallowStation = GenericChain<4, LAGS, RING, 4, 1, 1>;
+type ShallowLean = GenericChain<4, LAGS, 0, 0, 0, 1>;
 
 /// Everything a chain gives.
 #[derive(Debug, Default, PartialEq)]
@@ -130,13 +133,13 @@ fn station_config(channels: u8, window: WindowPolicy) -> ChainConfig<4> {
 
 /// Push `samples` in blocks of `sizes` (cycled), draining every queue after each push,
 /// then finish.
-fn run<const P: usize, const D: usize, const S: usize, const T: usize>(
-    chain: &mut GenericChain<P, LAGS, D, S, T>,
+fn run<const P: usize, const D: usize, const S: usize, const T: usize, const Q: usize>(
+    chain: &mut GenericChain<P, LAGS, D, S, T, Q>,
     samples: &[i16],
     sizes: &[usize],
 ) -> Out {
     let mut out = Out::default();
-    let drain = |chain: &mut GenericChain<P, LAGS, D, S, T>, out: &mut Out| {
+    let drain = |chain: &mut GenericChain<P, LAGS, D, S, T, Q>, out: &mut Out| {
         while let Some(r) = chain.poll() {
             out.windows.push(r);
         }
@@ -405,4 +408,72 @@ fn memory_of_the_chains() {
     assert!(lean + 8 * sums <= full);
     // The correlator holds no run buffer of its own.
     assert!(correlator < 40 * 64);
+}
+
+/// A chain whose queue holds one record builds a window's records as they are polled: the
+/// records, fronts and profiles are those of a chain that queues a whole window, bit for bit,
+/// whatever the block sizes (also blocks of one sample, and a finish with records to build).
+#[test]
+fn a_chain_that_queues_one_record_gives_the_records_of_a_full_queue() {
+    for channels in CHANNELS {
+        let samples = signal(5, 20_000, channels as usize, None);
+        for window in windows() {
+            let cfg = steady_config(channels, window);
+            let want = run(&mut Steady::new(cfg.clone()).unwrap(), &samples, &SIZES);
+            assert!(!want.windows.is_empty(), "{window:?}");
+            let mut shallow = Box::new(ShallowLean::empty());
+            shallow.configure(cfg.clone()).unwrap();
+            let got = run(&mut *shallow, &samples, &SIZES);
+            assert_eq!(got, want.without_sums(), "{window:?}");
+        }
+        let samples = signal(6, 24_000, channels as usize, Some([6000, 9000, 7500]));
+        for window in [
+            WindowPolicy::AfterFront { frames: 1200 },
+            WindowPolicy::Frames(2000),
+        ] {
+            let cfg = station_config(channels, window);
+            let want = run(
+                &mut *Box::new(Station::with_delay_ring(cfg.clone()).unwrap()),
+                &samples,
+                &SIZES,
+            );
+            assert!(!want.profiles.is_empty());
+            let mut shallow = Box::new(ShallowStation::empty());
+            shallow.configure(cfg).unwrap();
+            assert_eq!(
+                run(&mut *shallow, &samples, &[1, 700, 3]),
+                want,
+                "{window:?}"
+            );
+        }
+    }
+}
+
+/// A one-record queue applies back-pressure at each window end: `push` stops there with
+/// one record waiting, and goes on once it is polled.
+#[test]
+fn a_one_record_queue_stops_push_until_polled() {
+    let channels = 6;
+    let samples = signal(7, 6_000, channels, None);
+    let mut chain = Box::new(ShallowLean::empty());
+    chain
+        .configure(steady_config(channels as u8, WindowPolicy::Frames(1500)))
+        .unwrap();
+    let used = chain.push(&samples);
+    assert_eq!(used, 1500 * channels, "push stops at the first window end");
+    assert_eq!(chain.push(&samples[used..]), 0, "nothing more until polled");
+    let first = chain.poll().unwrap();
+    assert_eq!((first.probe, first.end), (0, 1500));
+    assert_eq!(
+        chain.push(&samples[used..]),
+        0,
+        "the window's next record waits"
+    );
+    let mut probes = vec![first.probe];
+    while let Some(r) = chain.poll() {
+        probes.push(r.probe);
+    }
+    assert_eq!(probes, (0..probes.len() as u8).collect::<Vec<_>>());
+    assert!(probes.len() > 1);
+    assert!(chain.push(&samples[used..]) > 0);
 }

@@ -28,16 +28,30 @@ use frothline_core::{ChainConfig, ConfigError};
 const _: () = assert!(generated::PROBES <= PROBE_CAPACITY);
 const _: () = assert!(CHANNELS as usize <= MAX_CHANNELS);
 
-/// The capture's samples: interleaved little-endian i16 frames (from `capture/capture.wav`
-/// by the build script). Not in the real board's image.
+/// The capture's bytes: interleaved little-endian i16 frames (from `capture/capture.wav`
+/// by the build script).
 #[cfg(feature = "emulated-mps2")]
-pub static SAMPLES: &[u8] = include_bytes!(concat!(env!("OUT_DIR"), "/capture.i16"));
+const SAMPLE_BYTES: &[u8] = include_bytes!(concat!(env!("OUT_DIR"), "/capture.i16"));
 
 #[cfg(feature = "emulated-mps2")]
-const _: () = assert!(
-    include_bytes!(concat!(env!("OUT_DIR"), "/capture.i16")).len()
-        == FRAMES * CHANNELS as usize * 2
-);
+const _: () = assert!(SAMPLE_BYTES.len() == FRAMES * CHANNELS as usize * 2);
+
+/// The capture's samples, interleaved, decoded at compile time (so the image holds them
+/// aligned, and a replay copies them as they are). Not in the real board's image.
+#[cfg(feature = "emulated-mps2")]
+pub static SAMPLES: &[i16] = &decode_le();
+
+/// `SAMPLE_BYTES` as little-endian i16 samples.
+#[cfg(feature = "emulated-mps2")]
+const fn decode_le() -> [i16; FRAMES * CHANNELS as usize] {
+    let mut out = [0i16; FRAMES * CHANNELS as usize];
+    let mut i = 0;
+    while i < out.len() {
+        out[i] = i16::from_le_bytes([SAMPLE_BYTES[2 * i], SAMPLE_BYTES[2 * i + 1]]);
+        i += 1;
+    }
+    out
+}
 
 /// The chain configuration of the capture's layout.
 pub fn chain_config() -> Result<ChainConfig<PROBE_CAPACITY>, ConfigError> {

@@ -36,13 +36,16 @@ pub const STATION_SLOTS: usize = (crate::capture::DELAY_RING_SAMPLES != 0) as us
 /// The chain the firmware runs: a steady chain (no delay ring), or in the field-logger
 /// build a station chain with the delay ring its capture's station needs. Its records keep
 /// no raw correlation sums (`S = 0`: they do not go on the wire, and would cost 28 × LAGS
-/// bytes per queued record); their other fields are a host replay's, bit for bit.
+/// bytes per queued record); their other fields are a host replay's, bit for bit. It
+/// queues one record (`Q = 1`): the main loop sends each record on as it is polled, and
+/// the chain builds the next in the slot that frees (a record is 1.5 KiB).
 pub type FwChain = frothline_core::GenericChain<
     PROBES,
     LAGS,
     { crate::capture::DELAY_RING_SAMPLES },
     0,
     { STATION_SLOTS },
+    1,
 >;
 /// The chain's records, as the main loop sees them (`poll_lean_with`: lent where they lie
 /// in the chain's queue, without raw correlation sums, a record type of no lag slots).

@@ -952,20 +952,22 @@ fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, variant: Variant)
             while !rest.is_empty() {
                 let t0 = clock.now();
                 let used = chain.push(rest);
+                // A poll builds the window's next record (the chain queues one): timed
+                // with the push; the records are dropped where they lie (what is done
+                // with them is the pipeline's records share).
+                while chain.poll_lean_with(|_| ()).is_some() {}
                 push += clock.now().wrapping_sub(t0) as u64;
                 frames += used / ch;
                 rest = &rest[used..];
-                // Records are taken untimed (their cost is the pipeline's records share).
-                while chain.poll_lean().is_some() {}
             }
         }
     }
     let t0 = clock.now();
     while chain.finish().is_err() {
-        while chain.poll_lean().is_some() {}
+        while chain.poll_lean_with(|_| ()).is_some() {}
     }
+    while chain.poll_lean_with(|_| ()).is_some() {}
     let close = clock.now().wrapping_sub(t0) as u64;
-    while chain.poll_lean().is_some() {}
     report!(
         "fw.streaming variant={} frames={} channels={} tips={} push_ticks={} finish_ticks={}",
         match variant {

@@ -483,7 +483,23 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             tip_channels: &self.tip_channels,
             offset: self.chain_base,
         };
-        while self.chain.poll_lean_with(|rec| sink.record(rec)).is_some() {}
+        // A poll also builds the window's next record in the slot it frees (the chain
+        // queues one): that part is the chain's work, timed as `push`, the sink's as
+        // `records`.
+        let clock = &self.clock;
+        let mut sink_ticks = 0u32;
+        while self
+            .chain
+            .poll_lean_with(|rec| {
+                let s0 = clock.now();
+                sink.record(rec);
+                sink_ticks = sink_ticks.wrapping_add(clock.now().wrapping_sub(s0));
+            })
+            .is_some()
+        {}
+        let polled = clock.now().wrapping_sub(t0);
+        self.timing.push += polled.wrapping_sub(sink_ticks) as u64;
+        let t0 = clock.now().wrapping_sub(sink_ticks);
         // Station chains (the field-logger build): the one station is station 0.
         while let Some(p) = self.chain.poll_profile() {
             let mut fit = p.to_wire(0);

@@ -1,29 +1,28 @@
 //! A capture compiled into the image, replayed frame by frame.
 //!
-//! The bytes are the capture's samples as little-endian i16, interleaved (the firmware's
-//! build script extracts them from `capture/capture.wav`). They are decoded with
-//! `i16::from_le_bytes`, so the image needs no alignment and no `unsafe` cast. Pacing is
-//! the caller's: one [`fill`](SampleSource::fill) per timer tick hands out as many frames
-//! as fit the slice it is given.
+//! The samples are the capture's, interleaved (the firmware's build script extracts them
+//! from `capture/capture.wav`; [`crate::capture`] decodes them at compile time), so a
+//! replay hands them out with a plain copy, as a DMA transfer would. Pacing is the
+//! caller's: one [`fill`](SampleSource::fill) per timer tick hands out as many frames as
+//! fit the slice it is given.
 
 use crate::source::SampleSource;
 use core::convert::Infallible;
 
-/// Replays `bytes` (interleaved little-endian i16 frames of `channels` channels) once, or
-/// in a loop.
+/// Replays `samples` (interleaved frames of `channels` channels) once, or in a loop.
 #[derive(Debug)]
 pub struct ReplaySource {
-    bytes: &'static [u8],
+    samples: &'static [i16],
     channels: usize,
     pos: usize,
     looping: bool,
 }
 
 impl ReplaySource {
-    /// A replay of `bytes`; a trailing incomplete frame is never played.
-    pub const fn new(bytes: &'static [u8], channels: usize) -> Self {
+    /// A replay of `samples`; a trailing incomplete frame is never played.
+    pub const fn new(samples: &'static [i16], channels: usize) -> Self {
         ReplaySource {
-            bytes,
+            samples,
             channels: if channels == 0 { 1 } else { channels },
             pos: 0,
             looping: false,
@@ -32,15 +31,15 @@ impl ReplaySource {
 
     /// A replay that starts again from its first frame when it reaches the end (never
     /// exhausted): an instrument left running on the bench.
-    pub const fn looping(bytes: &'static [u8], channels: usize) -> Self {
-        let mut r = Self::new(bytes, channels);
-        r.looping = !bytes.is_empty();
+    pub const fn looping(samples: &'static [i16], channels: usize) -> Self {
+        let mut r = Self::new(samples, channels);
+        r.looping = !samples.is_empty();
         r
     }
 
     /// Frames not yet played.
     pub fn frames_left(&self) -> usize {
-        (self.bytes.len() - self.pos) / (2 * self.channels)
+        (self.samples.len() - self.pos) / self.channels
     }
 }
 
@@ -57,11 +56,8 @@ impl SampleSource for ReplaySource {
         }
         let frames = (block.len() / self.channels).min(self.frames_left());
         let n = frames * self.channels;
-        let src = &self.bytes[self.pos..self.pos + 2 * n];
-        for (d, s) in block[..n].iter_mut().zip(src.chunks_exact(2)) {
-            *d = i16::from_le_bytes([s[0], s[1]]);
-        }
-        self.pos += 2 * n;
+        block[..n].copy_from_slice(&self.samples[self.pos..self.pos + n]);
+        self.pos += n;
         Ok(frames)
     }
 

@@ -71,20 +71,20 @@ impl spi::Error for SimSpiError {
 /// The simulated device on its SPI bus.
 #[derive(Debug)]
 pub struct SimAdc {
-    bytes: &'static [u8],
+    samples: &'static [i16],
     channels: usize,
     pos: usize,
     registers: [u16; 8],
 }
 
 impl SimAdc {
-    /// A device that converts the frames of `bytes` (interleaved little-endian i16,
-    /// `channels` per frame), one per [`start_conversion`].
-    pub fn new(bytes: &'static [u8], channels: usize) -> Self {
+    /// A device that converts the frames of `samples` (interleaved, `channels` per frame),
+    /// one per [`start_conversion`].
+    pub fn new(samples: &'static [i16], channels: usize) -> Self {
         CONVERTED.store(false, Ordering::Relaxed);
-        FINISHED.store(bytes.len() < 2 * channels.max(1), Ordering::Relaxed);
+        FINISHED.store(samples.len() < channels.max(1), Ordering::Relaxed);
         SimAdc {
-            bytes,
+            samples,
             channels: channels.max(1),
             pos: 0,
             registers: [0; 8],
@@ -97,21 +97,20 @@ impl SimAdc {
     }
 
     fn shift_out(&mut self, buf: &mut [u8]) -> Result<(), SimSpiError> {
-        let frame = 2 * self.channels;
-        if buf.len() != frame {
+        let frame = self.channels;
+        if buf.len() != 2 * frame {
             return Err(SimSpiError);
         }
         let src = self
-            .bytes
+            .samples
             .get(self.pos..self.pos + frame)
             .ok_or(SimSpiError)?;
-        for (d, s) in buf.chunks_exact_mut(2).zip(src.chunks_exact(2)) {
-            let v = i16::from_le_bytes([s[0], s[1]]);
+        for (d, v) in buf.chunks_exact_mut(2).zip(src) {
             d.copy_from_slice(&v.to_be_bytes());
         }
         self.pos += frame;
         CONVERTED.store(false, Ordering::Release);
-        if self.pos + frame > self.bytes.len() {
+        if self.pos + frame > self.samples.len() {
             FINISHED.store(true, Ordering::Relaxed);
         }
         Ok(())

@@ -53,15 +53,6 @@ impl<const P: usize> RecordQueue<P> {
         self.slots.get(self.head)
     }
 
-    /// The record `pos` places after the oldest.
-    pub(super) fn get(&self, pos: usize) -> Option<&ProbeWindow<0>> {
-        if pos >= self.len {
-            return None;
-        }
-        self.slots
-            .get((self.head + pos).checked_rem(P).unwrap_or(0))
-    }
-
     /// Drop the oldest record.
     pub(super) fn pop_front(&mut self) {
         if self.len > 0 {

@@ -44,13 +44,49 @@ impl<const P: usize, const T: usize> StationSlot<P, T> {
     }
 }
 
-/// The statistics path: tips, correlators, windows (and the station, which it cuts and
-/// closes windows for).
+/// A window being closed: its records are built probe by probe as the queue has room (a
+/// queue shallower than the probes fills before the last one), and nothing is processed
+/// until the last is built. What every record of the window shares is kept here.
 #[derive(Clone, Debug)]
-pub(super) struct Stats<const P: usize, const L: usize, const S: usize, const T: usize> {
+pub(super) struct Closing<const P: usize> {
+    pub(super) active: bool,
+    /// The next probe whose record is to be built.
+    pub(super) next: usize,
+    pub(super) partial: bool,
+    pub(super) pre: bool,
+    pub(super) late_start: bool,
+    pub(super) since_front: Option<i64>,
+    /// Each probe's leading-tip void fraction, its standard error and the record's flags,
+    /// for the station's slice of the window.
+    pub(super) lead_c: [(Option<f32>, f32, Flags); P],
+}
+
+impl<const P: usize> Closing<P> {
+    pub(super) const IDLE: Self = Closing {
+        active: false,
+        next: 0,
+        partial: false,
+        pre: false,
+        late_start: false,
+        since_front: None,
+        lead_c: [(None, 0.0, Flags::NONE); P],
+    };
+}
+
+/// The statistics path: tips, correlators, windows (and the station, which it cuts and
+/// closes windows for). `Q` records can wait to be polled.
+#[derive(Clone, Debug)]
+pub(super) struct Stats<
+    const P: usize,
+    const L: usize,
+    const S: usize,
+    const T: usize,
+    const Q: usize,
+> {
     pub(super) config: ChainConfig<P>,
     pub(super) probes: Probes<P, L>,
-    pub(super) queue: RecordQueue<P>,
+    pub(super) queue: RecordQueue<Q>,
+    pub(super) closing: Closing<P>,
     pub(super) sums: SumsStore<L, S>,
     /// The leading tips' edges of one run of one probe (tip-by-tip runs).
     pub(super) run: RunBuffer,
@@ -63,9 +99,15 @@ pub(super) struct Stats<const P: usize, const L: usize, const S: usize, const T:
     pub(super) station: StationSlot<P, T>,
 }
 
-impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L, S, T> {
+impl<const P: usize, const L: usize, const S: usize, const T: usize, const Q: usize>
+    Stats<P, L, S, T, Q>
+{
+    /// A window can be closed: no close is under way, the queue has room for every record
+    /// of the window (or is empty, when it is shallower than the probes) and the station
+    /// for its slice.
     pub(super) fn has_room(&self) -> bool {
-        self.queue.capacity() - self.queue.len() >= self.probes.len()
+        !self.closing.active
+            && self.queue.capacity() - self.queue.len() >= self.probes.len().min(Q)
             && self.station.as_ref().is_none_or(Station::has_profile_room)
     }
 
@@ -97,6 +139,9 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
         let total = data.len() / n;
         let mut done = 0;
         while done < total {
+            if self.closing.active && !self.continue_close() {
+                break;
+            }
             self.settle_pre_front();
             let to_end = self
                 .window_end()
@@ -253,26 +298,20 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
     }
 
     /// Hand the window just closed to the station: each probe's void fraction and flags,
-    /// from its record (the newest records of the queue, one per probe in order). Apart
-    /// from `close_window`, so only a station chain's stack holds the list.
-    #[inline(never)]
-    pub(super) fn slice_station(&mut self, partial: bool) {
-        // At most P probes (and a station takes at most MAX_STATION_PROBES of them).
-        let mut lead_c = [(None, 0.0f32, Flags::NONE); P];
+    /// as its record gave them.
+    fn slice_station(&mut self) {
         let probes = self.probes.len();
         let k = probes.min(P).min(crate::front::MAX_STATION_PROBES);
-        let first = self.queue.len().saturating_sub(probes);
-        for (i, slot) in lead_c.iter_mut().enumerate().take(k) {
-            if let Some(rec) = self.queue.get(first + i) {
-                let sigma = rec.lead.void_fraction_sigma().unwrap_or(0.0);
-                *slot = (rec.lead.void_fraction(), sigma, rec.flags);
-            }
-        }
+        let (start, end, partial) = (self.window_start, self.frame, self.closing.partial);
         if let Some(s) = self.station.as_mut() {
-            s.slice(self.window_start, self.frame, &lead_c[..k], partial);
+            let lead_c = self.closing.lead_c.get(..k).unwrap_or(&[]);
+            s.slice(start, end, lead_c, partial);
         }
     }
 
+    /// Close the open window at the current frame: its records are built now, as far as
+    /// the queue has room, and the rest as [`continue_close`](Self::continue_close) finds
+    /// room (after polls).
     pub(super) fn close_window(&mut self, partial: bool) {
         let frame = self.frame;
         if let Some(s) = self.station.as_mut() {
@@ -287,26 +326,35 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
         let after_front = self.config.window.counts_from_front(self.station.is_some());
         let late_start =
             after_front && !pre && locked.is_some_and(|(a, w)| self.window_start == w && w > a);
+        let c = &mut self.closing;
+        (c.active, c.next, c.partial, c.pre) = (true, 0, partial, pre);
+        (c.late_start, c.since_front) = (late_start, since_front);
+        self.continue_close();
+    }
+
+    /// Build the records of the window being closed while the queue has room; once the
+    /// last is built, slice the station and open the next window. True when no close is
+    /// left under way.
+    pub(super) fn continue_close(&mut self) -> bool {
+        if !self.closing.active {
+            return true;
+        }
         let det = &self.config.detector;
-        for (i, p) in self.probes.iter_mut().enumerate() {
-            // Room was checked before the window was processed (the sums store has a slot
-            // for every record the queue can hold, or keeps none). Were the queue full, the
-            // oldest record would give way.
-            if self.queue.len() >= self.queue.capacity() {
-                if self.queue.front().is_some_and(|r| r.correlation.is_some()) {
-                    let _ = self.sums.pop();
-                }
-                self.queue.pop_front();
-            }
+        let station = self.station.is_some();
+        let c = &mut self.closing;
+        while let Some(p) = self.probes.get_mut(c.next) {
+            // The sums store has a slot for every record the queue can hold, or keeps none.
             let Some(rec) = self.queue.push_slot() else {
-                break;
+                return false;
             };
+            let i = c.next;
+            c.next += 1;
             // The record is built in its queue slot.
             let (lead_tip, trail_tip, corr) = p.parts_mut();
             rec.probe = i as u8;
             rec.start = self.window_start;
             rec.end = self.frame;
-            rec.since_front = since_front;
+            rec.since_front = c.since_front;
             rec.correlation_sums = None;
             lead_tip.close_into(&mut rec.lead);
             match trail_tip {
@@ -317,20 +365,20 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
                 None => rec.trail = None,
             }
             let mut flags = rec.lead.flags;
-            flags.set_if(Flags::PARTIAL_WINDOW, partial);
-            flags.set_if(Flags::PRE_FRONT, pre);
-            flags.set_if(Flags::LATE_FRONT_START, late_start);
+            flags.set_if(Flags::PARTIAL_WINDOW, c.partial);
+            flags.set_if(Flags::PRE_FRONT, c.pre);
+            flags.set_if(Flags::LATE_FRONT_START, c.late_start);
             if let Some(t) = &rec.trail {
                 flags.set_if(Flags::TRAILING_STUCK, t.flags.contains(Flags::STUCK));
             }
             let (correlation, sums) = match (corr, &rec.trail) {
-                (Some(c), Some(t)) => {
+                (Some(cr), Some(t)) => {
                     let (result, sums) = if S == 0 {
                         // No sums kept: analyse them in the correlator, no copy made.
                         let min_peak = det.min_peak_coefficient;
-                        (c.close_analysed(self.frame, min_peak, &mut flags), None)
+                        (cr.close_analysed(self.frame, min_peak, &mut flags), None)
                     } else {
-                        let sums = c.close(self.frame, &mut flags);
+                        let sums = cr.close(self.frame, &mut flags);
                         let (result, f) = sums.analyse(det.min_peak_coefficient);
                         flags |= f;
                         (result, Some(sums))
@@ -345,17 +393,24 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize> Stats<P, L,
             };
             rec.flags = flags;
             rec.correlation = correlation;
+            if let (true, Some(slot)) = (station, c.lead_c.get_mut(i)) {
+                let sigma = rec.lead.void_fraction_sigma().unwrap_or(0.0);
+                *slot = (rec.lead.void_fraction(), sigma, flags);
+            }
             if let Some(sums) = sums {
                 self.sums.push(sums);
             }
         }
+        let (pre, since_front) = (self.closing.pre, self.closing.since_front);
         if let (true, false, Some(since)) = (self.station.is_some(), pre, since_front) {
             if since >= 0 {
-                self.slice_station(partial);
+                self.slice_station();
             }
         }
+        self.closing.active = false;
         self.pre_front_open = false;
         self.window_start = self.frame;
         self.window_bubbles = 0;
+        true
     }
 }

@@ -55,8 +55,9 @@ pub fn levels_in_use<
     const D: usize,
     const S: usize,
     const T: usize,
+    const Q: usize,
 >(
-    chain: &crate::chain::GenericChain<P, L, D, S, T>,
+    chain: &crate::chain::GenericChain<P, L, D, S, T, Q>,
 ) -> LevelsInUse {
     let mut v = LevelsInUse::new();
     for probe in 0..chain.probe_count().min(MAX_PROBES) {
