@@ -11,7 +11,7 @@
 //! of correlation lag slots of its dual-tip probes, so the largest lag a probe can use is
 //! `L - 1` frames: a probe's `max_lag` above that is capped (the record's
 //! [`CorrelationResult::max_lag`](crate::CorrelationResult::max_lag) says what was used).
-//! Memory grows with `L`: `32 L` bytes of correlator state per probe, and `28 L` bytes of
+//! Memory grows with `L`: `20 L` bytes of correlator state per probe, and `28 L` bytes of
 //! raw correlation sums per queued record (7 KiB for `L` = 256).
 //!
 //! # Memory, and chains for small devices
@@ -23,8 +23,8 @@
 //! with `correlation_sums: None` (everything else bit for bit the same) and it holds no
 //! sums and no station state (a station needs a delay ring anyway). Per probe there is
 //! the state of its tips (detector, level learner, window statistics: about 1.3 KiB each)
-//! and of its correlator (`32 L` bytes); per queued record about 1.4 KiB plus, in a
-//! `Chain`, `28 L` bytes of sums; once per chain one [`RunBuffer`] (2 KiB) that the
+//! and of its correlator (`20 L` bytes); per queued record about 1.4 KiB plus, in a
+//! `Chain`, `28 L` bytes of sums; once per chain one [`RunBuffer`] (2 KiB, 256 bytes on a 32-bit core) that the
 //! correlators borrow in turn, one run each.
 //!
 //! A chain is tens of KiB, so a device does not build it on the stack:

@@ -139,8 +139,14 @@ pub use tu_table::tu_for_gaussian_velocity;
 pub const DEFAULT_LAGS: usize = 256;
 
 /// Longest run of frames between [`Correlator::begin_run`] and [`Correlator::end_run`]
-/// (the chain's runs are never longer).
-pub const MAX_RUN_FRAMES: usize = 1024;
+/// (the chain's runs are never longer): 1024 frames, or 128 on a 32-bit core, where the
+/// buffer of a run's edges ([`RunBuffer`], two bytes a frame) is RAM a small device needs
+/// elsewhere and blocks are short anyway. The records do not depend on it.
+pub const MAX_RUN_FRAMES: usize = if cfg!(target_pointer_width = "32") {
+    128
+} else {
+    1024
+};
 
 /// The exact correlation sums of one window (see the [module documentation](self)), with
 /// `lags()` entries per array: lags `0..lags()`.
@@ -339,26 +345,6 @@ impl SumsView<'_> {
     fn overlap(&self, tau: usize) -> u64 {
         self.frames
             .saturating_sub((self.windows as u64).saturating_mul(tau as u64))
-    }
-
-    /// These sums as a record keeps them.
-    fn to_sums<const L: usize>(self) -> CorrelationSums<L> {
-        fn vec<T: Copy, const L: usize>(s: &[T]) -> Vec<T, L> {
-            let mut v = Vec::new();
-            let _ = v.extend_from_slice(s.get(..s.len().min(L)).unwrap_or(&[]));
-            v
-        }
-        CorrelationSums {
-            frames: self.frames,
-            windows: self.windows,
-            lead_air: self.lead_air,
-            trail_air: self.trail_air,
-            cross: vec(self.cross),
-            auto: vec(self.auto),
-            lead_head: vec(self.lead_head),
-            lead_tail: vec(self.lead_tail),
-            trail_head: vec(self.trail_head),
-        }
     }
 
     /// [`CorrelationSums::analyse`], with room for `L` lags (at least `lags()`).

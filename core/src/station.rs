@@ -322,6 +322,9 @@ pub(crate) struct Station<const P: usize> {
     decay: DecayTracker<MAX_DECAY_POINTS>,
     fronts: Deque<FrontRecord, FRONT_QUEUE>,
     profiles: Deque<ProfileRecord, PROFILE_QUEUE>,
+    /// The window being closed: each probe's leading-tip void fraction, its standard error
+    /// and its record's flags, as the records are built (see [`slice`](Self::slice)).
+    window_lead: [(Option<f32>, f32, Flags); P],
 }
 
 impl<const P: usize> Station<P> {
@@ -337,6 +340,7 @@ impl<const P: usize> Station<P> {
         decay: DecayTracker::new(),
         fronts: Deque::new(),
         profiles: Deque::new(),
+        window_lead: [(None, 0.0, Flags::NONE); P],
     };
 
     /// (Re)build the state in place for a fresh record of `cfg` with `probes`, one probe's
@@ -623,16 +627,22 @@ impl<const P: usize> Station<P> {
     /// A window closed after the arrival: fit its profile and queue the record. `lead`
     /// holds each probe's leading-tip void fraction, its standard error (0: unknown) and
     /// flags. Room was checked by the caller.
-    pub(crate) fn slice(
-        &mut self,
-        start: u64,
-        end: u64,
-        lead: &[(Option<f32>, f32, Flags)],
-        partial: bool,
-    ) {
+    /// Keep probe `i`'s leading-tip void fraction, its standard error and its record's
+    /// flags for the slice of the window being closed.
+    pub(crate) fn keep_window_lead(&mut self, i: usize, lead: (Option<f32>, f32, Flags)) {
+        if let Some(slot) = self.window_lead.get_mut(i) {
+            *slot = lead;
+        }
+    }
+
+    /// The slice of the window `start..end` from the first `probes` probes' values kept by
+    /// [`keep_window_lead`](Self::keep_window_lead).
+    pub(crate) fn slice(&mut self, start: u64, end: u64, probes: usize, partial: bool) {
         let Some(since_front) = self.since_front(start) else {
             return;
         };
+        let window_lead = self.window_lead;
+        let lead = window_lead.get(..probes).unwrap_or(&[]);
         let mut points = [ProfilePoint::new(0.0, 0.0); MAX_STATION_PROBES];
         let (mut k, mut used, mut dead, mut unlearnt) = (0usize, 0u32, 0u32, 0u32);
         for (i, &(c, sigma, flags)) in lead.iter().enumerate().take(MAX_STATION_PROBES) {

@@ -56,9 +56,6 @@ pub(super) struct Closing<const P: usize> {
     pub(super) pre: bool,
     pub(super) late_start: bool,
     pub(super) since_front: Option<i64>,
-    /// Each probe's leading-tip void fraction, its standard error and the record's flags,
-    /// for the station's slice of the window.
-    pub(super) lead_c: [(Option<f32>, f32, Flags); P],
 }
 
 impl<const P: usize> Closing<P> {
@@ -69,7 +66,6 @@ impl<const P: usize> Closing<P> {
         pre: false,
         late_start: false,
         since_front: None,
-        lead_c: [(None, 0.0, Flags::NONE); P],
     };
 }
 
@@ -304,8 +300,7 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize, const Q: us
         let k = probes.min(P).min(crate::front::MAX_STATION_PROBES);
         let (start, end, partial) = (self.window_start, self.frame, self.closing.partial);
         if let Some(s) = self.station.as_mut() {
-            let lead_c = self.closing.lead_c.get(..k).unwrap_or(&[]);
-            s.slice(start, end, lead_c, partial);
+            s.slice(start, end, k, partial);
         }
     }
 
@@ -340,7 +335,6 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize, const Q: us
             return true;
         }
         let det = &self.config.detector;
-        let station = self.station.is_some();
         let c = &mut self.closing;
         while let Some(p) = self.probes.get_mut(c.next) {
             // The sums store has a slot for every record the queue can hold, or keeps none.
@@ -393,9 +387,9 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize, const Q: us
             };
             rec.flags = flags;
             rec.correlation = correlation;
-            if let (true, Some(slot)) = (station, c.lead_c.get_mut(i)) {
+            if let Some(s) = self.station.as_mut() {
                 let sigma = rec.lead.void_fraction_sigma().unwrap_or(0.0);
-                *slot = (rec.lead.void_fraction(), sigma, flags);
+                s.keep_window_lead(i, (rec.lead.void_fraction(), sigma, flags));
             }
             if let Some(sums) = sums {
                 self.sums.push(sums);

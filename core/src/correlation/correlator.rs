@@ -4,7 +4,7 @@
 use super::analysis::{
     analyse_functions, pearson_finish_small, pearson_parts_masked, CorrelationResult, SMALL_N,
 };
-use super::{CorrelationSums, SumsView, MAX_RUN_FRAMES};
+use super::{CorrelationSums, MAX_RUN_FRAMES};
 use crate::flags::Flags;
 use crate::phase::{Edge, EdgeSink};
 
@@ -13,55 +13,30 @@ const RISING_BIT: u16 = 1 << 15;
 
 /// Add the ramp `c * ramp(tau - p)` to the second-difference array `d` over lags
 /// `0..=max_lag` (see the module documentation).
-/// (`d` holds two's-complement `i64` values in `u64` slots: the wrapping operations are
+/// (`d` holds two's-complement `i32` values in `u32` slots: the wrapping operations are
 /// the same bit for bit.)
 #[inline]
-fn add_ramp(d: &mut [u64], max_lag: usize, p: i64, c: i64) {
+fn add_ramp(d: &mut [u32], max_lag: usize, p: i32, c: i32) {
     if p >= 0 {
-        if p < max_lag as i64 {
+        if (p as usize) < max_lag {
             if let Some(x) = d.get_mut(p as usize + 1) {
-                *x = x.wrapping_add(c as u64);
+                *x = x.wrapping_add(c as u32);
             }
         }
     } else {
         if let Some(x) = d.first_mut() {
-            *x = x.wrapping_sub(c.wrapping_mul(p) as u64);
+            *x = x.wrapping_sub(c.wrapping_mul(p) as u32);
         }
         if let Some(x) = d.get_mut(1) {
-            *x = x.wrapping_add(c.wrapping_mul(p.wrapping_add(1)) as u64);
+            *x = x.wrapping_add(c.wrapping_mul(p.wrapping_add(1)) as u32);
         }
-    }
-}
-
-/// The double prefix sum of the second differences `d` (two's-complement `i64` values),
-/// in place, clamped at 0 (exact sums are never negative).
-fn double_prefix_wide(d: &mut [u64]) {
-    let (mut slope, mut value) = (0i64, 0i64);
-    for x in d.iter_mut() {
-        slope = slope.wrapping_add(*x as i64);
-        value = value.wrapping_add(slope);
-        *x = value.max(0) as u64;
-    }
-}
-
-/// [`double_prefix_wide`] for a window of fewer than 2^31 frames, in 32-bit arithmetic:
-/// the low 32 bits of a wrapping sum are the wrapping sum of the low 32 bits, and every
-/// exact sum of such a window (a count of frame pairs) lies in `0..2^31`, so the 32-bit
-/// sums are the sums. Where the 64-bit value would be negative or past 2^31 (only for
-/// inconsistent input), this gives another clamped value; no window of the chain does.
-/// Half the instructions on a 32-bit core.
-fn double_prefix_short(d: &mut [u64]) {
-    let (mut slope, mut value) = (0i32, 0i32);
-    for x in d.iter_mut() {
-        slope = slope.wrapping_add(*x as u32 as i32);
-        value = value.wrapping_add(slope);
-        *x = value.max(0) as u64;
     }
 }
 
 /// The double prefix sum of the second differences `d` (two's-complement `i32` values), in
-/// place, clamped at 0 (exact sums are never negative: they count air frames among at
-/// most `L <= 2^16` frames, so they fit an `i32` throughout).
+/// place, clamped at 0 (exact sums are never negative). The sums of a window count frame
+/// pairs, so they lie in `0..2^31` for a window shorter than 2^31 frames (the correlator
+/// flags a longer one): the low 32 bits of the wrapping sums are then the sums.
 fn double_prefix_narrow(d: &mut [u32]) {
     let (mut slope, mut value) = (0i32, 0i32);
     for x in d.iter_mut() {
@@ -72,10 +47,10 @@ fn double_prefix_narrow(d: &mut [u32]) {
 }
 
 /// The last `L` edges of the leading tip, oldest first: `(t << 1) | rising`, `t` from the
-/// window start.
+/// window start (below 2^31).
 #[derive(Clone, Debug)]
 struct Ring<const L: usize> {
-    edges: [u64; L],
+    edges: [u32; L],
     next: usize,
     len: usize,
 }
@@ -86,9 +61,9 @@ impl<const L: usize> Ring<L> {
         self.len = 0;
     }
 
-    fn push(&mut self, t: i64, rising: bool) {
+    fn push(&mut self, t: i32, rising: bool) {
         if let Some(slot) = self.edges.get_mut(self.next) {
-            *slot = ((t.max(0) as u64) << 1) | rising as u64;
+            *slot = ((t.max(0) as u32) << 1) | rising as u32;
         }
         self.next = if self.next + 1 >= L { 0 } else { self.next + 1 };
         self.len = (self.len + 1).min(L);
@@ -96,13 +71,13 @@ impl<const L: usize> Ring<L> {
 
     /// Visit the edges `(t, e)`, newest first, until `f` returns false.
     #[inline]
-    fn for_each_recent(&self, mut f: impl FnMut(i64, i64) -> bool) {
+    fn for_each_recent(&self, mut f: impl FnMut(i32, i32) -> bool) {
         let mut idx = self.next;
         for _ in 0..self.len {
             idx = if idx == 0 { L - 1 } else { idx - 1 };
             let Some(&v) = self.edges.get(idx) else { break };
             let e = if v & 1 == 1 { 1 } else { -1 };
-            if !f((v >> 1) as i64, e) {
+            if !f((v >> 1) as i32, e) {
                 break;
             }
         }
@@ -197,9 +172,9 @@ pub struct Correlator<const L: usize> {
     max_lag: usize,
     start: u64,
     /// Second differences of the cross and auto sums over the lags (two's-complement
-    /// `i64` values; at a window close, in place, the sums themselves).
-    cross: [u64; L],
-    auto: [u64; L],
+    /// `i32` values; at a window close, in place, the sums themselves).
+    cross: [u32; L],
+    auto: [u32; L],
     /// Second differences of the air counts among the first frames of the window
     /// (two's-complement `i32` values; at a window close, the counts).
     lead_head: [u32; L],
@@ -298,7 +273,7 @@ impl<const L: usize> Correlator<L> {
         let (lead_air, trail_air) = (self.lead_air, self.trail_air);
         let mut tail = [0u32; L];
         let totals = self.settle(end, &mut tail);
-        let sums = self.view(totals, &tail).to_sums();
+        let sums = self.sums(totals, &tail);
         self.reopen(end, lead_air, trail_air, flags);
         sums
     }
@@ -327,12 +302,25 @@ impl<const L: usize> Correlator<L> {
                 return result;
             }
         }
-        let mut tail = [0u32; L];
-        self.prefix_sums(end, totals, &mut tail);
-        let (result, f) = self.view(totals, &tail).analyse::<L>(min_peak);
+        let (result, f) = self.analyse_copy(end, totals, min_peak);
         *flags |= f;
         self.reopen(end, lead_air, trail_air, flags);
         result
+    }
+
+    /// The sums of a clipped window, copied out and analysed. Apart from
+    /// [`close_analysed`](Self::close_analysed), so only a long window's close takes the
+    /// copy's stack (`28 L` bytes).
+    #[inline(never)]
+    fn analyse_copy(
+        &mut self,
+        end: u64,
+        totals: (u64, u64, u64, usize),
+        min_peak: f32,
+    ) -> (CorrelationResult, Flags) {
+        let mut tail = [0u32; L];
+        self.prefix_sums(end, totals, &mut tail);
+        self.sums(totals, &tail).analyse(min_peak)
     }
 
     /// [`close_analysed`](Self::close_analysed) of a clipped window of at most `SMALL_N`
@@ -369,7 +357,7 @@ impl<const L: usize> Correlator<L> {
         let mut n32 = frames as u32;
         let ins = self.cross.iter_mut().zip(self.trail_head.iter_mut());
         for ((x, y), (z, o)) in ins.zip(tail.iter_mut().zip(rab.iter_mut())).take(lags) {
-            let sab = step(*x as u32, &mut c);
+            let sab = step(*x, &mut c);
             let head = step(*y, &mut h);
             *z = step(*z, &mut t);
             (*x, *y) = (0, 0);
@@ -388,7 +376,7 @@ impl<const L: usize> Correlator<L> {
         let mut written = 0;
         let ins = self.auto.iter_mut().zip(self.lead_head.iter_mut());
         for ((x, y), (&z, o)) in ins.zip(tail.iter().zip(raa.iter_mut())).take(lags) {
-            let saa = step(*x as u32, &mut a);
+            let saa = step(*x, &mut a);
             let head = step(*y, &mut h);
             (*x, *y) = (0, 0);
             let (num, va, vb) = pearson_parts_masked(
@@ -435,6 +423,10 @@ impl<const L: usize> Correlator<L> {
         }
         let lags = (self.max_lag + 1).min(L);
         let frames = end.saturating_sub(self.start);
+        // The sums are kept in 32 bits (see `double_prefix_narrow`).
+        if frames > MAX_WINDOW_T as u64 {
+            self.overflow = true;
+        }
         // sum e t over a tip's edges is minus its air time.
         let lead_air = self.lead_q.wrapping_neg().max(0) as u64;
         let trail_air = self.trail_q.wrapping_neg().max(0) as u64;
@@ -444,16 +436,14 @@ impl<const L: usize> Correlator<L> {
     /// Turn the second differences of a clipped window into the sums in place, and the
     /// leading tip's tail counts into `tail`.
     fn prefix_sums(&mut self, end: u64, totals: (u64, u64, u64, usize), tail: &mut [u32; L]) {
-        let (frames, _, _, lags) = totals;
-        for d in [&mut self.cross, &mut self.auto] {
-            let d = d.get_mut(..lags).unwrap_or(&mut []);
-            if frames < 1 << 31 {
-                double_prefix_short(d);
-            } else {
-                double_prefix_wide(d);
-            }
-        }
-        for d in [&mut self.lead_head, &mut self.trail_head] {
+        let lags = totals.3;
+        let d = [
+            &mut self.cross,
+            &mut self.auto,
+            &mut self.lead_head,
+            &mut self.trail_head,
+        ];
+        for d in d {
             double_prefix_narrow(d.get_mut(..lags).unwrap_or(&mut []));
         }
         self.tail_differences(self.rel(end), tail);
@@ -467,30 +457,32 @@ impl<const L: usize> Correlator<L> {
         // of the last max_lag frames (only ramps that start inside the lags: 0 <= p < m).
         let m = self.max_lag;
         self.ring.for_each_recent(|t, e| {
-            let p = t_end.wrapping_sub(t);
+            let p = t_end.wrapping_sub(t as i64);
             if p < 0 || p >= m as i64 {
                 return p < 0;
             }
             if let Some(x) = tail.get_mut(p as usize + 1) {
-                *x = x.wrapping_add((-e) as i32 as u32);
+                *x = x.wrapping_add(e.wrapping_neg() as u32);
             }
             true
         });
     }
 
-    /// The sums of a settled window.
-    fn view<'a>(&'a self, totals: (u64, u64, u64, usize), tail: &'a [u32]) -> SumsView<'a> {
+    /// The sums of a settled window, as a record keeps them.
+    fn sums(&self, totals: (u64, u64, u64, usize), tail: &[u32; L]) -> CorrelationSums<L> {
         let (frames, lead_air, trail_air, lags) = totals;
-        SumsView {
+        let wide = |s: &[u32]| s.iter().take(lags).map(|&x| x as u64).collect();
+        let narrow = |s: &[u32]| s.iter().take(lags).copied().collect();
+        CorrelationSums {
             frames,
             windows: 1,
             lead_air,
             trail_air,
-            cross: self.cross.get(..lags).unwrap_or(&[]),
-            auto: self.auto.get(..lags).unwrap_or(&[]),
-            lead_head: self.lead_head.get(..lags).unwrap_or(&[]),
-            lead_tail: tail.get(..lags).unwrap_or(&[]),
-            trail_head: self.trail_head.get(..lags).unwrap_or(&[]),
+            cross: wide(&self.cross),
+            auto: wide(&self.auto),
+            lead_head: narrow(&self.lead_head),
+            lead_tail: narrow(tail),
+            trail_head: narrow(&self.trail_head),
         }
     }
 
@@ -570,75 +562,97 @@ impl<const L: usize> Correlator<L> {
     /// A merged edge of the leading tip at window time `t`.
     fn lead_edge(&mut self, t: i64, rising: bool) {
         let e: i64 = if rising { 1 } else { -1 };
-        let m = self.max_lag;
-        // Auto, this edge second: earlier edges of the last max_lag frames, and itself.
-        let auto = &mut self.auto;
-        add_ramp(auto, m, 0, -1);
-        self.ring.for_each_recent(|ti, ei| {
-            let p = t.wrapping_sub(ti);
-            if p >= m as i64 {
-                return false;
-            }
-            add_ramp(auto, m, p, -ei * e);
-            true
-        });
-        // Auto, this edge first, every earlier edge second (p < 0): a straight line.
-        add_line(auto, t, e, self.lead_e, self.lead_q);
-        // Cross, this edge first, every earlier trailing edge second.
-        add_line(&mut self.cross, t, e, self.trail_e, self.trail_q);
-        add_head(&mut self.lead_head, m, t, e);
+        self.lead_air = rising;
+        if let Some(t) = self.window_time(t) {
+            let e = e as i32;
+            let m = self.max_lag;
+            // Auto, this edge second: earlier edges of the last max_lag frames, and itself.
+            let auto = &mut self.auto;
+            add_ramp(auto, m, 0, -1);
+            self.ring.for_each_recent(|ti, ei| {
+                let p = t.wrapping_sub(ti);
+                if p as usize >= m {
+                    return false;
+                }
+                add_ramp(auto, m, p, -ei * e);
+                true
+            });
+            // Auto, this edge first, every earlier edge second (p < 0): a straight line.
+            add_line(auto, t, e, self.lead_e, self.lead_q);
+            // Cross, this edge first, every earlier trailing edge second.
+            add_line(&mut self.cross, t, e, self.trail_e, self.trail_q);
+            self.ring.push(t, rising);
+        }
+        add_head(&mut self.lead_head, self.max_lag, t, e);
         self.lead_e = self.lead_e.wrapping_add(e);
         self.lead_q = self.lead_q.wrapping_add(e.wrapping_mul(t));
-        self.lead_air = rising;
-        self.ring.push(t, rising);
     }
 
     /// An edge of the trailing tip at window time `t` (every leading edge up to `t` merged).
     fn trail_edge(&mut self, t: i64, rising: bool) {
         let e: i64 = if rising { 1 } else { -1 };
-        let m = self.max_lag;
-        let cross = &mut self.cross;
-        self.ring.for_each_recent(|ti, ei| {
-            let p = t.wrapping_sub(ti);
-            if p >= m as i64 {
-                return false;
-            }
-            add_ramp(cross, m, p, -ei * e);
-            true
-        });
-        add_head(&mut self.trail_head, m, t, e);
+        self.trail_air = rising;
+        if let Some(t) = self.window_time(t) {
+            let e = e as i32;
+            let m = self.max_lag;
+            let cross = &mut self.cross;
+            self.ring.for_each_recent(|ti, ei| {
+                let p = t.wrapping_sub(ti);
+                if p as usize >= m {
+                    return false;
+                }
+                add_ramp(cross, m, p, -ei * e);
+                true
+            });
+        }
+        add_head(&mut self.trail_head, self.max_lag, t, e);
         self.trail_e = self.trail_e.wrapping_add(e);
         self.trail_q = self.trail_q.wrapping_add(e.wrapping_mul(t));
-        self.trail_air = rising;
+    }
+
+    /// Window time `t` in 32 bits, or `None` (the window flagged) past [`MAX_WINDOW_T`]:
+    /// the lag sums are kept in 32 bits.
+    #[inline]
+    fn window_time(&mut self, t: i64) -> Option<i32> {
+        let t = i32::try_from(t).ok();
+        self.overflow |= t.is_none();
+        t
     }
 }
+
+/// The longest window, frames, whose lag sums the correlator keeps (they count frame pairs
+/// in 32 bits; 2^31 - 1 frames are 14.9 hours at 40 kHz): a longer window is flagged
+/// [`Flags::CORRELATION_OVERFLOW`].
+pub const MAX_WINDOW_T: i32 = i32::MAX;
 
 /// The pairs of an edge `(t, e)` (first factor) with all earlier edges of the other factor
 /// (running sums `se = sum e_j`, `sq = sum e_j t_j`): `p = t_j - t < 0`, so each adds the
 /// line `c (tau - p)`, `c = -e e_j`.
 #[inline]
-fn add_line(d: &mut [u64], t: i64, e: i64, se: i64, sq: i64) {
+fn add_line(d: &mut [u32], t: i32, e: i32, se: i64, sq: i64) {
+    // The running sums in 32 bits: the sums they go into are kept modulo 2^32.
+    let (se, sq) = (se as i32, sq as i32);
     // D[0] += sum -c p = e (sq - t se);  D[1] += sum c (1 + p) = -e (se (1 - t) + sq).
     // A tip's edges alternate, so `se` is 0 or 1 and `e` is +1 or -1: those products are
-    // a choice or a negation (64-bit multiplications are several instructions on a 32-bit
-    // core); any other value takes the multiplication. The same wrapping sums either way.
+    // a choice or a negation; any other value takes the multiplication. The same wrapping
+    // sums either way.
     let ts = match se {
         0 => 0,
         1 => t,
         _ => t.wrapping_mul(se),
     };
-    let times_e = |v: i64| match e {
+    let times_e = |v: i32| match e {
         1 => v,
         -1 => v.wrapping_neg(),
         _ => e.wrapping_mul(v),
     };
     if let Some(x) = d.first_mut() {
-        *x = x.wrapping_add(times_e(sq.wrapping_sub(ts)) as u64);
+        *x = x.wrapping_add(times_e(sq.wrapping_sub(ts)) as u32);
     }
     if let Some(x) = d.get_mut(1) {
         // se (1 - t) = se - t se.
         let s = se.wrapping_sub(ts).wrapping_add(sq);
-        *x = x.wrapping_sub(times_e(s) as u64);
+        *x = x.wrapping_sub(times_e(s) as u32);
     }
 }
 
