@@ -14,7 +14,9 @@ pub use crate::offline::replay_common::{
     levels_sources, mark_cut, period_rule, probe_meta, probe_meta_with, probe_table, probe_tallies,
     report_unlearnt, tally_table, window_figures, Keep, LevelSchedule, ReplayArgs, ReplayReport,
 };
-pub use crate::offline::replay_drive::{drive, drive_parallel, drive_parallel_with, drive_with};
+pub use crate::offline::replay_drive::{
+    drive, drive_parallel, drive_parallel_prepared, drive_parallel_with, drive_with,
+};
 pub use crate::shared::rig::{check_learn_period, check_levels_fit, require_frames};
 
 use crate::offline::chord_files::ChordPool;
@@ -25,9 +27,10 @@ use crate::shared::error::{write_err, HostError};
 use crate::shared::layout::Layout;
 use crate::shared::output_set::OutputSet;
 use crate::shared::probe_summary::{ProbeTally, SummaryRule};
+use crate::shared::rig::HostRecord as ProbeWindow;
 use crate::shared::rig::{chain_config, HostChain, MAX_PROBES};
 use crate::shared::window_spec::WindowSpec;
-use crate::shared::windows_csv::WindowsCsv;
+use crate::shared::windows_csv::{self, WindowsCsv};
 use indicatif::{ProgressBar, ProgressStyle};
 use std::io::BufWriter;
 use std::path::Path;
@@ -150,22 +153,22 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
         .map_or(1, |n| n.get())
         .min(4);
     let schedule = learnt.as_ref().and_then(LevelSchedule::from_record);
-    let result = drive_parallel_with(
+    // The flag and the row of a record depend on nothing else: the worker that made the
+    // record prepares them, and this thread writes them in order and adds to the totals.
+    let prepare = |r: &mut ProbeWindow| {
+        mark_cut(r, abrupt, last_frame);
+        let p = r.probe as usize;
+        windows_csv::row(r, &meta[p], fs, None, spacing[p])
+    };
+    let result = drive_parallel_prepared(
         &mut cap,
         chain,
         schedule.as_ref(),
         workers,
         &bar,
-        |mut r| {
-            mark_cut(&mut r, abrupt, last_frame);
-            csv.write(
-                &r,
-                &meta[r.probe as usize],
-                fs,
-                None,
-                spacing[r.probe as usize],
-            )
-            .map_err(csv_err)?;
+        &prepare,
+        |r, row| {
+            csv.write_fields(&row).map_err(csv_err)?;
             totals.add(&r);
             chords.add(&r, fs, spacing[r.probe as usize]);
             if let Some(t) = tallies.get_mut(r.probe as usize) {
