@@ -110,8 +110,21 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     run_with(args, Keep::Records)
 }
 
-/// Run a replay and write its files.
+/// Run a replay and write its files, on as many threads as
+/// [`offline_threads`](crate::offline::threads::offline_threads) gives.
 pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError> {
+    run_threads(args, keep, crate::offline::threads::offline_threads())
+}
+
+/// Run a replay and write its files on at most `threads` threads (the files do not depend
+/// on the number). A steady replay counts its learning pass on up to `threads` threads and
+/// splits its probes over up to 4 worker chains; with 1 both run on this thread. A
+/// transient replay runs its stations' chains on this thread.
+pub fn run_threads(
+    args: &ReplayArgs,
+    keep: Keep,
+    threads: usize,
+) -> Result<ReplayReport, HostError> {
     // Transient layouts (surge fronts): one station chain per station, front-relative
     // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::offline::transient`).
     if crate::offline::transient::is_transient(&Layout::load(&args.layout)?) {
@@ -122,7 +135,13 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     if args.levels == LevelRule::Record {
         let cfg = chain.config();
         let tips = record_levels::learning_tips(cfg, |i| i);
-        let l = record_levels::learn_with(&args.capture, &tips, cfg.detector.min_swing, true)?;
+        let l = record_levels::learn_threads(
+            &args.capture,
+            &tips,
+            cfg.detector.min_swing,
+            true,
+            threads,
+        )?;
         chain = with_record_levels(chain, &l, &layout, &args.layout)?;
         learnt = Some(l);
     }
@@ -149,9 +168,7 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     let rule = SummaryRule::default();
     let mut tallies = vec![ProbeTally::new(); layout.probes.len()];
     let (abrupt, last_frame) = (cap.ends_abruptly(), cap.frames_in_file());
-    let workers = std::thread::available_parallelism()
-        .map_or(1, |n| n.get())
-        .min(4);
+    let workers = threads.min(4);
     let schedule = learnt.as_ref().and_then(LevelSchedule::from_record);
     // The flag and the row of a record depend on nothing else: the worker that made the
     // record prepares them, and this thread writes them in order and adds to the totals.
