@@ -113,3 +113,74 @@ fn parallel_replay_body() {
         }
     }
 }
+
+#[test]
+fn replay_on_threads_writes_the_files_of_one_thread() {
+    // Host chains are built on the stack before they are boxed: give them room.
+    std::thread::Builder::new()
+        .stack_size(256 << 20)
+        .spawn(threads_body)
+        .unwrap()
+        .join()
+        .unwrap();
+}
+
+/// Every file of a replay folder, `run.json` without its run id (which names the run).
+fn folder_files(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut files: Vec<(String, Vec<u8>)> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| {
+            let path = e.unwrap().path();
+            let name = path.file_name().unwrap().to_string_lossy().into_owned();
+            let mut bytes = std::fs::read(&path).unwrap();
+            if name == "run.json" {
+                let text = String::from_utf8(bytes).unwrap();
+                let kept: Vec<&str> = text.lines().filter(|l| !l.contains("\"run_id\"")).collect();
+                bytes = kept.join("\n").into_bytes();
+            }
+            (name, bytes)
+        })
+        .collect();
+    files.sort();
+    files
+}
+
+fn threads_body() {
+    use frothline_host::offline::record_levels::LevelRule;
+    use frothline_host::offline::replay::{run_threads, Keep, ReplayArgs};
+    use frothline_host::shared::window_spec::WindowSpec;
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/steady-b2");
+    for window in [WindowSpec::Duration(0.07), WindowSpec::Whole] {
+        let replay = |threads: usize| {
+            let out = tempfile::tempdir().unwrap();
+            let args = ReplayArgs {
+                capture: root.join("capture.wav"),
+                layout: root.join("layout.toml"),
+                out: out.path().to_path_buf(),
+                window: window.clone(),
+                quiet: true,
+                levels: LevelRule::Record,
+                strict: false,
+            };
+            run_threads(&args, Keep::TotalsOnly, threads).unwrap();
+            folder_files(out.path())
+        };
+        let one = replay(1);
+        assert!(one.iter().any(|(name, _)| name == "windows.csv"));
+        for threads in [2, 3] {
+            let many = replay(threads);
+            let names = |f: &[(String, Vec<u8>)]| f.iter().map(|x| x.0.clone()).collect::<Vec<_>>();
+            assert_eq!(
+                names(&one),
+                names(&many),
+                "{threads} threads, window {window:?}"
+            );
+            for ((name, a), (_, b)) in one.iter().zip(&many) {
+                assert!(
+                    a == b,
+                    "{name} differs on {threads} threads, window {window:?}"
+                );
+            }
+        }
+    }
+}

@@ -23,6 +23,10 @@ pub struct Cli {
 #[derive(Subcommand, Debug)]
 pub enum Command {
     /// Run a capture (WAV + layout) through the core and write windows.csv.
+    ///
+    /// A steady capture is processed on as many threads as the machine has processors, or
+    /// on the number in the environment variable FROTHLINE_THREADS (1: everything on one
+    /// thread); the files written do not depend on the number.
     Replay(crate::offline::replay::ReplayArgs),
     /// Write a synthetic capture (WAV + layout + truth) from a scenario.
     Synth(crate::synth::SynthArgs),

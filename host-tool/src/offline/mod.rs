@@ -5,7 +5,9 @@
 //! layout.toml + capture.wav (shared::layout, shared::capture)
 //!   -> record_levels: every tip's air and water levels learnt from the whole record
 //!   -> shared::rig: the core's chain configuration (frames, i16 counts)
-//!   -> replay: one core chain over the capture          (steady layouts)
+//!   -> replay: one core chain over the capture          (steady layouts; replay_drive:
+//!      the drivers, the probes split over worker threads, one chain each; threads: how
+//!      many threads the offline passes use)
 //!      transient: one core chain per station, windows from each station's front
 //!      (replay hands transient layouts to transient; both use replay_common;
 //!      level_drift: a transient record's levels checked segment by segment)
@@ -23,6 +25,8 @@ pub mod level_drift;
 pub mod record_levels;
 pub mod replay;
 pub mod replay_common;
+pub mod replay_drive;
 pub mod run_summary;
+pub mod threads;
 pub mod tipcheck;
 pub mod transient;

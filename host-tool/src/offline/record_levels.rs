@@ -34,7 +34,7 @@ mod learn;
 mod outcome;
 mod record;
 pub use histogram::from_histogram;
-pub use learn::{learn, learn_with, learning_tips, LearningTip};
+pub use learn::{learn, learn_threads, learn_with, learning_tips, LearningTip};
 pub use outcome::{TipLevels, TipOutcome};
 pub use record::RecordLevels;
 

@@ -14,6 +14,9 @@ pub use crate::offline::replay_common::{
     levels_sources, mark_cut, period_rule, probe_meta, probe_meta_with, probe_table, probe_tallies,
     report_unlearnt, tally_table, window_figures, Keep, LevelSchedule, ReplayArgs, ReplayReport,
 };
+pub use crate::offline::replay_drive::{
+    drive, drive_parallel, drive_parallel_prepared, drive_parallel_with, drive_with,
+};
 pub use crate::shared::rig::{check_learn_period, check_levels_fit, require_frames};
 
 use crate::offline::chord_files::ChordPool;
@@ -27,28 +30,10 @@ use crate::shared::probe_summary::{ProbeTally, SummaryRule};
 use crate::shared::rig::HostRecord as ProbeWindow;
 use crate::shared::rig::{chain_config, HostChain, MAX_PROBES};
 use crate::shared::window_spec::WindowSpec;
-use crate::shared::windows_csv::WindowsCsv;
+use crate::shared::windows_csv::{self, WindowsCsv};
 use indicatif::{ProgressBar, ProgressStyle};
 use std::io::BufWriter;
 use std::path::Path;
-
-/// Frames read from the capture per block.
-const BLOCK_FRAMES: usize = 1 << 15;
-/// Windows per block at most in the parallel driver: the records of a block travel from the
-/// workers to the writer together, so short windows get shorter blocks and the records in
-/// flight stay a few megabytes whatever the window length.
-const WINDOWS_PER_BLOCK: usize = 256;
-
-/// Frames per block for `policy` (results do not depend on it: the core's records do not
-/// depend on how samples are split into pushes).
-fn block_frames(policy: &frothline_core::WindowPolicy) -> usize {
-    match policy {
-        frothline_core::WindowPolicy::Frames(n) => (*n as usize)
-            .saturating_mul(WINDOWS_PER_BLOCK)
-            .clamp(1024, BLOCK_FRAMES),
-        _ => BLOCK_FRAMES,
-    }
-}
 
 /// Open a capture and its layout and build the chain for them.
 pub fn open_rig(
@@ -106,229 +91,6 @@ pub fn with_record_levels(
     Ok(Box::new(chain))
 }
 
-/// Push every frame of `cap` through `chain`, handing each record to `sink`.
-pub fn drive(
-    cap: &mut Capture,
-    chain: &mut HostChain,
-    progress: &ProgressBar,
-    sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
-) -> Result<u64, HostError> {
-    drive_with(cap, chain, None, progress, sink)
-}
-
-/// [`drive`] with the levels of `schedule` applied as the record goes.
-pub fn drive_with(
-    cap: &mut Capture,
-    chain: &mut HostChain,
-    schedule: Option<&LevelSchedule>,
-    progress: &ProgressBar,
-    mut sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
-) -> Result<u64, HostError> {
-    let mut buf = Vec::with_capacity(BLOCK_FRAMES * cap.channels());
-    let mut frames = 0u64;
-    loop {
-        let n = cap.read_frames(&mut buf, BLOCK_FRAMES)?;
-        if n == 0 {
-            break;
-        }
-        frames += n as u64;
-        push_all(chain, &buf, schedule, &Some, &mut |r| sink(r))?;
-        progress.inc(n as u64);
-    }
-    finish_all(chain, &mut |r| sink(r))?;
-    Ok(frames)
-}
-
-/// Push a whole block, draining records as the chain's queue fills, and cut at the
-/// schedule's segment starts to apply their levels.
-fn push_all<E>(
-    chain: &mut HostChain,
-    block: &[i16],
-    schedule: Option<&LevelSchedule>,
-    local: &dyn Fn(usize) -> Option<usize>,
-    sink: &mut dyn FnMut(ProbeWindow) -> Result<(), E>,
-) -> Result<(), E> {
-    let channels = (chain.config().channels as usize).max(1);
-    let mut rest = block;
-    while !rest.is_empty() {
-        let mut piece = rest;
-        if let Some(s) = schedule.filter(|s| s.segment_frames > 0) {
-            let at = chain.frames();
-            s.apply(chain, at, local);
-            let to_next = s.segment_frames - at % s.segment_frames;
-            let take = (to_next as usize).saturating_mul(channels).min(rest.len());
-            piece = &rest[..take];
-        }
-        let mut left = piece;
-        while !left.is_empty() {
-            let used = chain.push(left);
-            left = &left[used..];
-            while let Some(r) = chain.poll() {
-                sink(r.without_sums())?;
-            }
-        }
-        rest = &rest[piece.len()..];
-    }
-    Ok(())
-}
-
-/// Close the record and drain every remaining record.
-fn finish_all<E>(
-    chain: &mut HostChain,
-    sink: &mut dyn FnMut(ProbeWindow) -> Result<(), E>,
-) -> Result<(), E> {
-    while chain.finish().is_err() {
-        while let Some(r) = chain.poll() {
-            sink(r.without_sums())?;
-        }
-    }
-    while let Some(r) = chain.poll() {
-        sink(r.without_sums())?;
-    }
-    Ok(())
-}
-
-/// Like [`drive`], with the probes split over worker threads, one chain each, fed the same
-/// blocks. Probes are independent under the `Whole` and fixed-duration window policies, so
-/// the records are the ones one chain would give; they are handed to `sink` in the same
-/// order (by window start, then probe). Other policies run on one chain.
-pub fn drive_parallel(
-    cap: &mut Capture,
-    chain: Box<HostChain>,
-    workers: usize,
-    progress: &ProgressBar,
-    sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
-) -> Result<u64, HostError> {
-    drive_parallel_with(cap, chain, None, workers, progress, sink)
-}
-
-/// [`drive_parallel`] with the levels of `schedule` applied as the record goes.
-pub fn drive_parallel_with(
-    cap: &mut Capture,
-    chain: Box<HostChain>,
-    schedule: Option<&LevelSchedule>,
-    workers: usize,
-    progress: &ProgressBar,
-    mut sink: impl FnMut(ProbeWindow) -> Result<(), HostError>,
-) -> Result<u64, HostError> {
-    use frothline_core::WindowPolicy;
-    use std::collections::BTreeMap;
-    use std::sync::{mpsc, Arc};
-    let cfg = chain.config().clone();
-    let independent = matches!(cfg.window, WindowPolicy::Whole | WindowPolicy::Frames(_));
-    let workers = workers.min(cfg.probes.len());
-    if workers <= 1 || !independent {
-        let mut chain = chain;
-        return drive_with(cap, &mut chain, schedule, progress, sink);
-    }
-    // Contiguous groups of probes, balanced by tip count.
-    let tips: Vec<usize> = cfg
-        .probes
-        .iter()
-        .map(|p| 1 + p.trailing.is_some() as usize)
-        .collect();
-    let total: usize = tips.iter().sum();
-    let mut groups: Vec<Vec<usize>> = vec![Vec::new(); workers];
-    let mut acc = 0;
-    for (i, t) in tips.iter().enumerate() {
-        let g = (acc * workers / total).min(workers - 1);
-        groups[g].push(i);
-        acc += t;
-    }
-    groups.retain(|g| !g.is_empty());
-    let mut chains = Vec::new();
-    for g in &groups {
-        let mut c = cfg.clone();
-        c.probes.clear();
-        for &i in g {
-            let _ = c.probes.push(cfg.probes[i]);
-        }
-        let c = HostChain::new(c)
-            .map_err(|e| HostError::Usage(format!("internal: split chain refused: {e}")))?;
-        chains.push((Box::new(c), g.clone()));
-    }
-    std::thread::scope(|scope| {
-        let (rec_tx, rec_rx) = mpsc::channel::<(usize, Vec<ProbeWindow>)>();
-        let mut block_txs = Vec::new();
-        for (w, (mut chain, global)) in chains.into_iter().enumerate() {
-            let (tx, rx) = mpsc::sync_channel::<Arc<Vec<i16>>>(2);
-            block_txs.push(tx);
-            let rec_tx = rec_tx.clone();
-            scope.spawn(move || {
-                let out = std::cell::RefCell::new(Vec::new());
-                let mut keep = |mut r: ProbeWindow| -> Result<(), ()> {
-                    r.probe = global[r.probe as usize] as u8;
-                    out.borrow_mut().push(r);
-                    Ok(())
-                };
-                let local = |g: usize| global.iter().position(|&x| x == g);
-                for block in rx {
-                    let _ = push_all(&mut chain, &block, schedule, &local, &mut keep);
-                    let _ = rec_tx.send((w, out.take()));
-                }
-                let _ = finish_all(&mut chain, &mut keep);
-                let _ = rec_tx.send((w, out.take()));
-            });
-        }
-        drop(rec_tx);
-        let n_workers = block_txs.len();
-        let mut pending: BTreeMap<(u64, u8), ProbeWindow> = BTreeMap::new();
-        let mut last_start = vec![0u64; n_workers];
-        let mut flush =
-            |pending: &mut BTreeMap<(u64, u8), ProbeWindow>, upto: u64| -> Result<(), HostError> {
-                while let Some(entry) = pending.first_entry() {
-                    if entry.key().0 >= upto {
-                        break;
-                    }
-                    sink(entry.remove())?;
-                }
-                Ok(())
-            };
-        let mut take =
-            |w: usize, recs: Vec<ProbeWindow>, pending: &mut BTreeMap<(u64, u8), ProbeWindow>| {
-                for r in recs {
-                    last_start[w] = last_start[w].max(r.start);
-                    pending.insert((r.start, r.probe), r);
-                }
-                *last_start.iter().min().unwrap_or(&0)
-            };
-        let mut frames = 0u64;
-        let block_frames = block_frames(&cfg.window);
-        let mut buf = Vec::with_capacity(block_frames * cap.channels());
-        let result: Result<(), HostError> = (|| {
-            loop {
-                let n = cap.read_frames(&mut buf, block_frames)?;
-                if n == 0 {
-                    break;
-                }
-                frames += n as u64;
-                let block = Arc::new(std::mem::take(&mut buf));
-                for tx in &block_txs {
-                    let _ = tx.send(Arc::clone(&block));
-                }
-                buf = Arc::try_unwrap(block)
-                    .unwrap_or_else(|_| Vec::with_capacity(block_frames * cap.channels()));
-                while let Ok((w, recs)) = rec_rx.try_recv() {
-                    let upto = take(w, recs, &mut pending);
-                    flush(&mut pending, upto)?;
-                }
-                progress.inc(n as u64);
-            }
-            Ok(())
-        })();
-        drop(block_txs);
-        for (w, recs) in rec_rx.iter() {
-            let upto = take(w, recs, &mut pending);
-            if result.is_ok() {
-                flush(&mut pending, upto)?;
-            }
-        }
-        result?;
-        flush(&mut pending, u64::MAX)?;
-        Ok(frames)
-    })
-}
-
 fn progress_bar(frames: u64, quiet: bool) -> ProgressBar {
     if quiet {
         return ProgressBar::hidden();
@@ -348,8 +110,21 @@ pub fn run(args: &ReplayArgs) -> Result<ReplayReport, HostError> {
     run_with(args, Keep::Records)
 }
 
-/// Run a replay and write its files.
+/// Run a replay and write its files, on as many threads as
+/// [`offline_threads`](crate::offline::threads::offline_threads) gives.
 pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError> {
+    run_threads(args, keep, crate::offline::threads::offline_threads())
+}
+
+/// Run a replay and write its files on at most `threads` threads (the files do not depend
+/// on the number). A steady replay counts its learning pass on up to `threads` threads and
+/// splits its probes over up to 4 worker chains; with 1 both run on this thread. A
+/// transient replay runs its stations' chains on this thread.
+pub fn run_threads(
+    args: &ReplayArgs,
+    keep: Keep,
+    threads: usize,
+) -> Result<ReplayReport, HostError> {
     // Transient layouts (surge fronts): one station chain per station, front-relative
     // windows, profile.csv, fronts.csv, stations.csv, flow.json (see `crate::offline::transient`).
     if crate::offline::transient::is_transient(&Layout::load(&args.layout)?) {
@@ -360,7 +135,13 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     if args.levels == LevelRule::Record {
         let cfg = chain.config();
         let tips = record_levels::learning_tips(cfg, |i| i);
-        let l = record_levels::learn_with(&args.capture, &tips, cfg.detector.min_swing, true)?;
+        let l = record_levels::learn_threads(
+            &args.capture,
+            &tips,
+            cfg.detector.min_swing,
+            true,
+            threads,
+        )?;
         chain = with_record_levels(chain, &l, &layout, &args.layout)?;
         learnt = Some(l);
     }
@@ -387,26 +168,24 @@ pub fn run_with(args: &ReplayArgs, keep: Keep) -> Result<ReplayReport, HostError
     let rule = SummaryRule::default();
     let mut tallies = vec![ProbeTally::new(); layout.probes.len()];
     let (abrupt, last_frame) = (cap.ends_abruptly(), cap.frames_in_file());
-    let workers = std::thread::available_parallelism()
-        .map_or(1, |n| n.get())
-        .min(4);
+    let workers = threads.min(4);
     let schedule = learnt.as_ref().and_then(LevelSchedule::from_record);
-    let result = drive_parallel_with(
+    // The flag and the row of a record depend on nothing else: the worker that made the
+    // record prepares them, and this thread writes them in order and adds to the totals.
+    let prepare = |r: &mut ProbeWindow| {
+        mark_cut(r, abrupt, last_frame);
+        let p = r.probe as usize;
+        windows_csv::row(r, &meta[p], fs, None, spacing[p])
+    };
+    let result = drive_parallel_prepared(
         &mut cap,
         chain,
         schedule.as_ref(),
         workers,
         &bar,
-        |mut r| {
-            mark_cut(&mut r, abrupt, last_frame);
-            csv.write(
-                &r,
-                &meta[r.probe as usize],
-                fs,
-                None,
-                spacing[r.probe as usize],
-            )
-            .map_err(csv_err)?;
+        &prepare,
+        |r, row| {
+            csv.write_fields(&row).map_err(csv_err)?;
             totals.add(&r);
             chords.add(&r, fs, spacing[r.probe as usize]);
             if let Some(t) = tallies.get_mut(r.probe as usize) {

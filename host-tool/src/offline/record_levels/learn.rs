@@ -6,6 +6,7 @@ use super::outcome::TipLevels;
 use super::record::RecordLevels;
 use super::DRIFT_SEGMENT_S;
 use crate::offline::level_drift;
+use crate::offline::threads::offline_threads;
 use crate::shared::capture::Capture;
 use crate::shared::error::HostError;
 use crate::shared::rig::MAX_PROBES;
@@ -49,6 +50,81 @@ pub fn learn_with(
     min_swing: u16,
     track_drift: bool,
 ) -> Result<RecordLevels, HostError> {
+    learn_threads(path, tips, min_swing, track_drift, offline_threads())
+}
+
+/// One tip's counts: its channel, its histogram over the whole record, and one histogram of
+/// `SEGMENT_BIN`-count bins per drift segment.
+struct TipCounts {
+    channel: usize,
+    whole: Vec<u32>,
+    segments: Vec<Vec<u32>>,
+}
+
+/// A stretch of a block's frames inside one segment (`None`: no segments), as frame
+/// indices into the block (first, end); its first frame is on the learning stride's grid.
+type Piece = (usize, usize, Option<usize>);
+
+/// Count every `LEARN_STRIDE`-th frame of `pieces` of `block` into the histograms of `tips`
+/// (`bins`: bins of a segment histogram, made when a tip first meets its segment).
+fn count(tips: &mut [TipCounts], block: &[i16], channels: usize, pieces: &[Piece], bins: usize) {
+    for t in tips {
+        for &(first, end, seg) in pieces {
+            if let Some(k) = seg {
+                while t.segments.len() <= k {
+                    t.segments.push(vec![0u32; bins]);
+                }
+            }
+            let piece = &block[first * channels..end * channels];
+            let mut coarse = seg.and_then(|k| t.segments.get_mut(k));
+            for frame in piece.chunks_exact(channels).step_by(LEARN_STRIDE as usize) {
+                if let Some(&x) = frame.get(t.channel) {
+                    let b = (x as u16 ^ 0x8000) as usize;
+                    t.whole[b] = t.whole[b].saturating_add(1);
+                    if let Some(cell) = coarse.as_mut().map(|v| &mut v[b / SEGMENT_BIN]) {
+                        *cell = cell.saturating_add(1);
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// The pieces of a block of `n` frames starting at frame `at`: cut at segment starts
+/// (segments of `segment_frames`, 0 for none), so each piece belongs to one segment, each
+/// starting on the learning stride's grid.
+fn pieces_of(at: u64, n: usize, segment_frames: u64, pieces: &mut Vec<Piece>) {
+    pieces.clear();
+    let mut first = ((LEARN_STRIDE - at % LEARN_STRIDE) % LEARN_STRIDE) as usize;
+    while first < n {
+        let f0 = at + first as u64;
+        let (end, seg) = match f0.checked_div(segment_frames) {
+            Some(k) => (
+                (((k + 1) * segment_frames - at) as usize).min(n),
+                Some(k as usize),
+            ),
+            None => (n, None),
+        };
+        pieces.push((first, end, seg));
+        // The next piece starts on the stride grid.
+        let next = end.max(first + 1);
+        first = next + ((LEARN_STRIDE - (at + next as u64) % LEARN_STRIDE) % LEARN_STRIDE) as usize;
+    }
+}
+
+/// A block of frames read and its pieces, shared by the counting threads.
+type Block = std::sync::Arc<(Vec<i16>, Vec<Piece>)>;
+
+/// [`learn_with`] on `threads` threads: with more than one, this thread reads the capture
+/// and hands each block to counting threads, one per group of tips, that run behind it
+/// (counts, and so levels, do not depend on the number).
+pub fn learn_threads(
+    path: &Path,
+    tips: &[LearningTip],
+    min_swing: u16,
+    track_drift: bool,
+    threads: usize,
+) -> Result<RecordLevels, HostError> {
     if tips.is_empty() {
         return Ok(RecordLevels::default());
     }
@@ -57,64 +133,74 @@ pub fn learn_with(
     // that follows reports the cut.
     cap.end_at_cut();
     let channels = cap.channels().max(1);
-    let chans: Vec<usize> = tips.iter().map(|t| t.2.channel as usize).collect();
-    let mut hist = vec![vec![0u32; 1 << 16]; chans.len()];
+    let mut counts: Vec<TipCounts> = tips
+        .iter()
+        .map(|t| TipCounts {
+            channel: t.2.channel as usize,
+            whole: vec![0u32; 1 << 16],
+            segments: Vec::new(),
+        })
+        .collect();
     let segment_frames = if track_drift {
         ((DRIFT_SEGMENT_S * cap.sample_rate() as f64).round() as u64).max(LEARN_STRIDE)
     } else {
         0
     };
     let bins = (1 << 16) / SEGMENT_BIN;
-    // Per tip, per segment: a histogram of `SEGMENT_BIN`-count bins.
-    let mut seg_hist: Vec<Vec<Vec<u32>>> = vec![Vec::new(); chans.len()];
-    let mut buf = Vec::with_capacity(BLOCK_FRAMES * channels);
+    let threads = threads.clamp(1, tips.len());
     let mut at = 0u64;
-    loop {
-        let n = cap.read_frames(&mut buf, BLOCK_FRAMES)?;
-        if n == 0 {
-            break;
-        }
-        let skip = ((LEARN_STRIDE - at % LEARN_STRIDE) % LEARN_STRIDE) as usize;
-        // Cut the block at segment starts, so each piece belongs to one segment.
-        let mut first = skip;
-        while first < n {
-            let f0 = at + first as u64;
-            let (end, seg) = match f0.checked_div(segment_frames) {
-                Some(k) => (
-                    (((k + 1) * segment_frames - at) as usize).min(n),
-                    Some(k as usize),
-                ),
-                None => (n, None),
-            };
-            if let Some(k) = seg {
-                for sh in seg_hist.iter_mut() {
-                    while sh.len() <= k {
-                        sh.push(vec![0u32; bins]);
-                    }
-                }
+    if threads == 1 {
+        let mut buf = Vec::with_capacity(BLOCK_FRAMES * channels);
+        let mut pieces = Vec::new();
+        loop {
+            let n = cap.read_frames(&mut buf, BLOCK_FRAMES)?;
+            if n == 0 {
+                break;
             }
-            let piece = &buf[first * channels..end * channels];
-            for frame in piece.chunks_exact(channels).step_by(LEARN_STRIDE as usize) {
-                for ((h, sh), &c) in hist.iter_mut().zip(seg_hist.iter_mut()).zip(&chans) {
-                    if let Some(&x) = frame.get(c) {
-                        let b = (x as u16 ^ 0x8000) as usize;
-                        h[b] = h[b].saturating_add(1);
-                        if let Some(cell) = seg
-                            .and_then(|k| sh.get_mut(k))
-                            .map(|v| &mut v[b / SEGMENT_BIN])
-                        {
-                            *cell = cell.saturating_add(1);
-                        }
-                    }
-                }
-            }
-            // The next piece starts on the stride grid.
-            let next = end.max(first + 1);
-            first =
-                next + ((LEARN_STRIDE - (at + next as u64) % LEARN_STRIDE) % LEARN_STRIDE) as usize;
+            pieces_of(at, n, segment_frames, &mut pieces);
+            count(&mut counts, &buf, channels, &pieces, bins);
+            at += n as u64;
         }
-        at += n as u64;
+    } else {
+        std::thread::scope(|scope| -> Result<(), HostError> {
+            let mut txs = Vec::new();
+            for g in counts.chunks_mut(tips.len().div_ceil(threads)) {
+                let (tx, rx) = std::sync::mpsc::sync_channel::<Block>(2);
+                txs.push(tx);
+                scope.spawn(move || {
+                    for b in rx {
+                        count(g, &b.0, channels, &b.1, bins);
+                    }
+                });
+            }
+            // A block is read into again once the counting threads have let it go.
+            let mut pool: Vec<Block> = Vec::new();
+            loop {
+                let mut block = pool
+                    .iter()
+                    .position(|b| std::sync::Arc::strong_count(b) == 1)
+                    .map(|i| pool.swap_remove(i))
+                    .unwrap_or_default();
+                // (No other holder is left: this copies nothing.)
+                let (buf, pieces) = std::sync::Arc::make_mut(&mut block);
+                let n = cap.read_frames(buf, BLOCK_FRAMES)?;
+                if n == 0 {
+                    return Ok(());
+                }
+                pieces_of(at, n, segment_frames, pieces);
+                at += n as u64;
+                for tx in &txs {
+                    let _ = tx.send(std::sync::Arc::clone(&block));
+                }
+                pool.push(block);
+            }
+        })?;
     }
+    let hist: Vec<Vec<u32>> = counts
+        .iter_mut()
+        .map(|t| std::mem::take(&mut t.whole))
+        .collect();
+    let seg_hist: Vec<Vec<Vec<u32>>> = counts.into_iter().map(|t| t.segments).collect();
     let out = tips
         .iter()
         .zip(&hist)

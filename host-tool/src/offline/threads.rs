@@ -1,0 +1,35 @@
+//! How many threads an offline pass uses: the processors available, or the number in the
+//! `FROTHLINE_THREADS` environment variable when it is set (1 runs every pass on one
+//! thread, as a machine with one processor would; results never depend on the number).
+
+/// The environment variable that sets the thread count of offline passes.
+pub const THREADS_ENV: &str = "FROTHLINE_THREADS";
+
+/// Threads for an offline pass: `FROTHLINE_THREADS` when it holds a whole number of at
+/// least 1, else the processors available (1 when that is not known).
+pub fn offline_threads() -> usize {
+    from_setting(std::env::var(THREADS_ENV).ok().as_deref())
+        .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()))
+}
+
+/// The thread count a setting asks for (`None`: unset, empty, not a number, or 0).
+fn from_setting(value: Option<&str>) -> Option<usize> {
+    value
+        .and_then(|v| v.trim().parse::<usize>().ok())
+        .filter(|&n| n >= 1)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::from_setting;
+
+    #[test]
+    fn a_setting_is_a_whole_number_of_at_least_one() {
+        assert_eq!(from_setting(Some("2")), Some(2));
+        assert_eq!(from_setting(Some(" 1 ")), Some(1));
+        assert_eq!(from_setting(Some("0")), None);
+        assert_eq!(from_setting(Some("two")), None);
+        assert_eq!(from_setting(Some("")), None);
+        assert_eq!(from_setting(None), None);
+    }
+}
