@@ -35,16 +35,21 @@ pub const fn bin_of(n: u32) -> usize {
 
 /// Lower edge of bin `b`, samples.
 pub fn bin_lower(b: usize) -> f32 {
-    let octave = (b / BINS_PER_OCTAVE) as i32;
     let quarter = (b % BINS_PER_OCTAVE) as f32;
-    F32Ext::powi(2.0f32, octave) * (1.0 + quarter / BINS_PER_OCTAVE as f32)
+    octave_base(b) * (1.0 + quarter / BINS_PER_OCTAVE as f32)
+}
+
+/// `2^octave` of bin `b`, exact: built from its exponent bits (the value repeated doubling
+/// gives, without the loop).
+fn octave_base(b: usize) -> f32 {
+    let octave = (b / BINS_PER_OCTAVE).min(127) as u32;
+    f32::from_bits((octave + 127) << 23)
 }
 
 /// Upper edge of bin `b`, samples.
 pub fn bin_upper(b: usize) -> f32 {
-    let octave = (b / BINS_PER_OCTAVE) as i32;
     let quarter = (b % BINS_PER_OCTAVE) as f32 + 1.0;
-    F32Ext::powi(2.0f32, octave) * (1.0 + quarter / BINS_PER_OCTAVE as f32)
+    octave_base(b) * (1.0 + quarter / BINS_PER_OCTAVE as f32)
 }
 
 /// The continuous chords bin `b` stands for, samples: a chord of `n` frames is a continuous
@@ -267,5 +272,19 @@ mod tests {
         let s = ChordStats::new();
         assert_eq!(s.mean(), None);
         assert_eq!(s.median(), None);
+    }
+}
+
+#[cfg(test)]
+mod octave_tests {
+    use super::*;
+
+    /// The bin edges are those of `2^octave` by repeated doubling, bit for bit.
+    #[test]
+    fn octave_bases_are_exact_powers_of_two() {
+        for b in 0..CHORD_BINS {
+            let want = (0..b / BINS_PER_OCTAVE).fold(1.0f32, |x, _| x * 2.0);
+            assert_eq!(octave_base(b).to_bits(), want.to_bits(), "bin {b}");
+        }
     }
 }
