@@ -69,6 +69,20 @@ impl<const L: usize> Ring<L> {
         self.len = (self.len + 1).min(L);
     }
 
+    /// The pairs of the edges of the last `m` frames (first factor) with an edge `(t, e)`
+    /// (second): each adds the ramp `-e_i e ramp(tau - (t - t_i))` to `d`.
+    #[inline]
+    fn add_pairs(&self, d: &mut [u32], m: usize, t: i32, e: i32) {
+        self.for_each_recent(|ti, ei| {
+            let p = t.wrapping_sub(ti);
+            if p as usize >= m {
+                return false;
+            }
+            add_ramp(d, m, p, -ei * e);
+            true
+        });
+    }
+
     /// Visit the edges `(t, e)`, newest first, until `f` returns false.
     #[inline]
     fn for_each_recent(&self, mut f: impl FnMut(i32, i32) -> bool) {
@@ -569,14 +583,7 @@ impl<const L: usize> Correlator<L> {
             // Auto, this edge second: earlier edges of the last max_lag frames, and itself.
             let auto = &mut self.auto;
             add_ramp(auto, m, 0, -1);
-            self.ring.for_each_recent(|ti, ei| {
-                let p = t.wrapping_sub(ti);
-                if p as usize >= m {
-                    return false;
-                }
-                add_ramp(auto, m, p, -ei * e);
-                true
-            });
+            self.ring.add_pairs(auto, m, t, e);
             // Auto, this edge first, every earlier edge second (p < 0): a straight line.
             add_line(auto, t, e, self.lead_e, self.lead_q);
             // Cross, this edge first, every earlier trailing edge second.
@@ -595,15 +602,7 @@ impl<const L: usize> Correlator<L> {
         if let Some(t) = self.window_time(t) {
             let e = e as i32;
             let m = self.max_lag;
-            let cross = &mut self.cross;
-            self.ring.for_each_recent(|ti, ei| {
-                let p = t.wrapping_sub(ti);
-                if p as usize >= m {
-                    return false;
-                }
-                add_ramp(cross, m, p, -ei * e);
-                true
-            });
+            self.ring.add_pairs(&mut self.cross, m, t, e);
         }
         add_head(&mut self.trail_head, self.max_lag, t, e);
         self.trail_e = self.trail_e.wrapping_add(e);
