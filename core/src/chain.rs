@@ -24,8 +24,8 @@
 //! sums and no station state (a station needs a delay ring anyway). Per probe there is
 //! the state of its tips (detector, level learner, window statistics: about 1.3 KiB each)
 //! and of its correlator (`20 L` bytes); per queued record about 1.4 KiB plus, in a
-//! `Chain`, `28 L` bytes of sums; once per chain one [`RunBuffer`] (2 KiB, 256 bytes on a 32-bit core) that the
-//! correlators borrow in turn, one run each.
+//! `Chain`, `28 L` bytes of sums; once per chain one [`RunBuffer`] (2 KiB, 256 bytes on a
+//! 32-bit core) that the correlators borrow in turn, one run each.
 //!
 //! A chain is tens of KiB, so a device does not build it on the stack:
 //! [`GenericChain::empty`] is a `const fn` whose value is all zero bytes (a `static` of it

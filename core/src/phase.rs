@@ -165,14 +165,15 @@ fn above<const POS: bool>(x: i32, t: i32) -> bool {
 }
 
 /// The samples that neither leave the current phase nor lie at a rail, as `[a, a + w]`
-/// (`(x - a) as u32 <= w`), or `None` when there are none: the intersection of the phase's
-/// stay interval (in water `!above(x, t)`, in air `above(x, t)`) with the samples off the
-/// rails (`x - base` in `0..width`) and the `i16` range.
+/// (`(x - a) as u32 <= w`): the intersection of the phase's stay interval (in water
+/// `!above(x, t)`, in air `above(x, t)`) with the samples off the rails (`x - base` in
+/// `0..width`) and the `i16` range. When there are none, a band of one value no `i16`
+/// takes, so that every sample is looked at closely.
 #[inline(always)]
 fn quiet_band<const POS: bool, const IN_AIR: bool>(
     t: i32,
     (base, width): (i32, u32),
-) -> Option<(i32, u32)> {
+) -> (i32, u32) {
     let (lo, hi) = match (POS, IN_AIR) {
         // above(x, t) = x > t
         (true, true) => (t as i64 + 1, i64::MAX),
@@ -183,7 +184,11 @@ fn quiet_band<const POS: bool, const IN_AIR: bool>(
     };
     let lo = lo.max(base as i64).max(i16::MIN as i64);
     let hi = hi.min(base as i64 + width as i64 - 1).min(i16::MAX as i64);
-    (hi >= lo).then(|| (lo as i32, (hi - lo) as u32))
+    if hi >= lo {
+        (lo as i32, (hi - lo) as u32)
+    } else {
+        (i16::MAX as i32 + 1, 0)
+    }
 }
 
 /// Scan the tip's samples from `*idx` (every `stride`-th of `samples`) for the first that
@@ -212,50 +217,38 @@ fn scan<const POS: bool, const IN_AIR: bool>(
     let mut i = *idx;
     let mut r = 0u32;
     let mut found = false;
-    if let Some((a, w)) = quiet_band::<POS, IN_AIR>(t, rails) {
-        let loud = |x: i16| (x as i32).wrapping_sub(a) as u32 > w;
-        let s = stride;
-        // `s <= samples.len()`, so three strides cannot overflow.
-        let span = 3 * s;
-        'scan: loop {
-            // Skip groups of four quiet samples.
-            let mut groups = samples.get(i..).unwrap_or(&[]).chunks_exact(4 * s);
-            for g in groups.by_ref() {
-                let (Some(&x0), Some(&x1), Some(&x2), Some(&x3)) =
-                    (g.first(), g.get(s), g.get(2 * s), g.get(span))
-                else {
-                    break;
-                };
-                if loud(x0) | loud(x1) | loud(x2) | loud(x3) {
-                    break;
-                }
-                i += 4 * s;
-            }
-            // One by one: the group that holds a loud sample, or the last samples.
-            for _ in 0..4 {
-                let Some(&x) = samples.get(i) else {
-                    break 'scan;
-                };
-                if loud(x) {
-                    let x = x as i32;
-                    r += is_rail(x);
-                    if leaves(x) {
-                        found = true;
-                        break 'scan;
-                    }
-                }
-                i += s;
-            }
-        }
-    } else {
-        while let Some(&x) = samples.get(i) {
-            let x = x as i32;
-            r += is_rail(x);
-            if leaves(x) {
-                found = true;
+    let (a, w) = quiet_band::<POS, IN_AIR>(t, rails);
+    let loud = |x: i16| (x as i32).wrapping_sub(a) as u32 > w;
+    let s = stride;
+    // `s <= samples.len()`, so three strides cannot overflow.
+    let span = 3 * s;
+    'scan: loop {
+        // Skip groups of four quiet samples.
+        for g in samples.get(i..).unwrap_or(&[]).chunks_exact(4 * s) {
+            let (Some(&x0), Some(&x1), Some(&x2), Some(&x3)) =
+                (g.first(), g.get(s), g.get(2 * s), g.get(span))
+            else {
+                break;
+            };
+            if loud(x0) | loud(x1) | loud(x2) | loud(x3) {
                 break;
             }
-            i += stride;
+            i += 4 * s;
+        }
+        // One by one: the group that holds a loud sample, or the last samples.
+        for _ in 0..4 {
+            let Some(&x) = samples.get(i) else {
+                break 'scan;
+            };
+            if loud(x) {
+                let x = x as i32;
+                r += is_rail(x);
+                if leaves(x) {
+                    found = true;
+                    break 'scan;
+                }
+            }
+            i += s;
         }
     }
     *idx = i;

@@ -624,19 +624,17 @@ impl<const P: usize> Station<P> {
         })
     }
 
-    /// A window closed after the arrival: fit its profile and queue the record. `lead`
-    /// holds each probe's leading-tip void fraction, its standard error (0: unknown) and
-    /// flags. Room was checked by the caller.
-    /// Keep probe `i`'s leading-tip void fraction, its standard error and its record's
-    /// flags for the slice of the window being closed.
+    /// Keep probe `i`'s leading-tip void fraction, its standard error (0: unknown) and its
+    /// record's flags for the slice of the window being closed.
     pub(crate) fn keep_window_lead(&mut self, i: usize, lead: (Option<f32>, f32, Flags)) {
         if let Some(slot) = self.window_lead.get_mut(i) {
             *slot = lead;
         }
     }
 
-    /// The slice of the window `start..end` from the first `probes` probes' values kept by
-    /// [`keep_window_lead`](Self::keep_window_lead).
+    /// A window `start..end` closed after the arrival: fit its profile from the first
+    /// `probes` probes' values kept by [`keep_window_lead`](Self::keep_window_lead) and
+    /// queue the record. Room was checked by the caller.
     pub(crate) fn slice(&mut self, start: u64, end: u64, probes: usize, partial: bool) {
         let Some(since_front) = self.since_front(start) else {
             return;

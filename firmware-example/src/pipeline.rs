@@ -497,9 +497,8 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
             })
             .is_some()
         {}
-        let polled = clock.now().wrapping_sub(t0);
-        self.timing.push += polled.wrapping_sub(sink_ticks) as u64;
-        let t0 = clock.now().wrapping_sub(sink_ticks);
+        let polled_at = clock.now();
+        self.timing.push += polled_at.wrapping_sub(t0).wrapping_sub(sink_ticks) as u64;
         // Station chains (the field-logger build): the one station is station 0.
         while let Some(p) = self.chain.poll_profile() {
             let mut fit = p.to_wire(0);
@@ -519,7 +518,8 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
                 }
             }
         }
-        self.timing.records += self.clock.now().wrapping_sub(t0) as u64;
+        self.timing.records +=
+            sink_ticks as u64 + self.clock.now().wrapping_sub(polled_at) as u64;
     }
 
     /// The sample clock: frames read from the source (pushed or dropped).

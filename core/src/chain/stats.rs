@@ -48,7 +48,7 @@ impl<const P: usize, const T: usize> StationSlot<P, T> {
 /// queue shallower than the probes fills before the last one), and nothing is processed
 /// until the last is built. What every record of the window shares is kept here.
 #[derive(Clone, Debug)]
-pub(super) struct Closing<const P: usize> {
+pub(super) struct Closing {
     pub(super) active: bool,
     /// The next probe whose record is to be built.
     pub(super) next: usize,
@@ -58,7 +58,7 @@ pub(super) struct Closing<const P: usize> {
     pub(super) since_front: Option<i64>,
 }
 
-impl<const P: usize> Closing<P> {
+impl Closing {
     pub(super) const IDLE: Self = Closing {
         active: false,
         next: 0,
@@ -82,7 +82,7 @@ pub(super) struct Stats<
     pub(super) config: ChainConfig<P>,
     pub(super) probes: Probes<P, L>,
     pub(super) queue: RecordQueue<Q>,
-    pub(super) closing: Closing<P>,
+    pub(super) closing: Closing,
     pub(super) sums: SumsStore<L, S>,
     /// The leading tips' edges of one run of one probe (tip-by-tip runs).
     pub(super) run: RunBuffer,

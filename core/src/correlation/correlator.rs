@@ -438,7 +438,7 @@ impl<const L: usize> Correlator<L> {
         let lags = (self.max_lag + 1).min(L);
         let frames = end.saturating_sub(self.start);
         // The sums are kept in 32 bits (see `double_prefix_narrow`).
-        if frames > MAX_WINDOW_T as u64 {
+        if frames > MAX_WINDOW_FRAMES {
             self.overflow = true;
         }
         // sum e t over a tip's edges is minus its air time.
@@ -485,8 +485,15 @@ impl<const L: usize> Correlator<L> {
     /// The sums of a settled window, as a record keeps them.
     fn sums(&self, totals: (u64, u64, u64, usize), tail: &[u32; L]) -> CorrelationSums<L> {
         let (frames, lead_air, trail_air, lags) = totals;
-        let wide = |s: &[u32]| s.iter().take(lags).map(|&x| x as u64).collect();
-        let narrow = |s: &[u32]| s.iter().take(lags).copied().collect();
+        let wide = |s: &[u32]| {
+            let mut v = heapless::Vec::new();
+            for &x in s.iter().take(lags) {
+                let _ = v.push(x as u64);
+            }
+            v
+        };
+        let narrow =
+            |s: &[u32]| heapless::Vec::from_slice(s.get(..lags).unwrap_or(&[])).unwrap_or_default();
         CorrelationSums {
             frames,
             windows: 1,
@@ -609,7 +616,7 @@ impl<const L: usize> Correlator<L> {
         self.trail_q = self.trail_q.wrapping_add(e.wrapping_mul(t));
     }
 
-    /// Window time `t` in 32 bits, or `None` (the window flagged) past [`MAX_WINDOW_T`]:
+    /// Window time `t` in 32 bits, or `None` (the window flagged) past [`MAX_WINDOW_FRAMES`]:
     /// the lag sums are kept in 32 bits.
     #[inline]
     fn window_time(&mut self, t: i64) -> Option<i32> {
@@ -622,7 +629,7 @@ impl<const L: usize> Correlator<L> {
 /// The longest window, frames, whose lag sums the correlator keeps (they count frame pairs
 /// in 32 bits; 2^31 - 1 frames are 14.9 hours at 40 kHz): a longer window is flagged
 /// [`Flags::CORRELATION_OVERFLOW`].
-pub const MAX_WINDOW_T: i32 = i32::MAX;
+const MAX_WINDOW_FRAMES: u64 = i32::MAX as u64;
 
 /// The pairs of an edge `(t, e)` (first factor) with all earlier edges of the other factor
 /// (running sums `se = sum e_j`, `sq = sum e_j t_j`): `p = t_j - t < 0`, so each adds the

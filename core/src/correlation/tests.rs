@@ -250,6 +250,43 @@ fn sums_equal_direct_sums_on_a_small_case() {
     assert!(flags.is_empty());
 }
 
+/// The lag sums are kept in 32 bits: a window of 2^31 frames or more (14.9 hours at
+/// 40 kHz) is flagged rather than given wrapped sums; the next window is clean again.
+#[test]
+fn a_window_too_long_for_32_bit_sums_is_flagged() {
+    let mut c = Correlator::<8>::new(7, 0, false, false);
+    let mut flags = Flags::NONE;
+    // An edge within the first 2^31 frames, then a close past them.
+    c.lead_in_order().edge(Edge {
+        frame: 1_000,
+        to_air: true,
+    });
+    c.trail_in_order().edge(Edge {
+        frame: 1_003,
+        to_air: true,
+    });
+    let _ = c.close(1 << 31, &mut flags);
+    assert!(flags.contains(Flags::CORRELATION_OVERFLOW));
+    // An edge past 2^31 frames into its window.
+    let start = 1u64 << 31;
+    let mut flags = Flags::NONE;
+    c.lead_in_order().edge(Edge {
+        frame: start + (1 << 31) + 5,
+        to_air: false,
+    });
+    let _ = c.close(start + (1 << 31) + 10, &mut flags);
+    assert!(flags.contains(Flags::CORRELATION_OVERFLOW));
+    // A short window after it.
+    let start = start + (1 << 31) + 10;
+    let mut flags = Flags::NONE;
+    c.lead_in_order().edge(Edge {
+        frame: start + 2,
+        to_air: true,
+    });
+    let _ = c.close(start + 50, &mut flags);
+    assert!(!flags.contains(Flags::CORRELATION_OVERFLOW));
+}
+
 #[test]
 fn sqrt_is_accurate() {
     for x in [1e-6f32, 0.5, 2.0, 3.0, 1e6, 1.234e20, 7.7e30] {
