@@ -3,6 +3,7 @@
 //! ([`drive_parallel`]), handing the records on in the order one chain gives them.
 
 use crate::offline::replay_common::LevelSchedule;
+use crate::offline::threads::BlockPool;
 use crate::shared::capture::Capture;
 use crate::shared::error::HostError;
 use crate::shared::rig::HostChain;
@@ -264,25 +265,11 @@ pub fn drive_parallel_prepared<T: Send>(
         };
         let mut frames = 0u64;
         let block_frames = block_frames(&cfg.window);
-        // Blocks the workers are done with are read into again (a block is free once the
-        // reader holds its only reference), so the blocks in flight are allocated once.
-        let mut blocks: Vec<Arc<Vec<i16>>> = Vec::new();
+        let mut pool = BlockPool::<Vec<i16>>::default();
         let result: Result<(), HostError> = (|| {
             loop {
-                let mut block = blocks
-                    .iter()
-                    .position(|b| Arc::strong_count(b) == 1)
-                    .map(|i| blocks.swap_remove(i))
-                    .unwrap_or_else(|| Arc::new(Vec::with_capacity(block_frames * cap.channels())));
-                let n = match Arc::get_mut(&mut block) {
-                    Some(buf) => cap.read_frames(buf, block_frames)?,
-                    None => {
-                        let mut buf = Vec::with_capacity(block_frames * cap.channels());
-                        let n = cap.read_frames(&mut buf, block_frames)?;
-                        block = Arc::new(buf);
-                        n
-                    }
-                };
+                let mut block = pool.free_block();
+                let n = cap.read_frames(Arc::make_mut(&mut block), block_frames)?;
                 if n == 0 {
                     break;
                 }
@@ -290,7 +277,7 @@ pub fn drive_parallel_prepared<T: Send>(
                 for tx in &block_txs {
                     let _ = tx.send(Arc::clone(&block));
                 }
-                blocks.push(block);
+                pool.keep(block);
                 while let Ok((w, recs)) = rec_rx.try_recv() {
                     let upto = take(w, recs, &mut pending);
                     flush(&mut pending, upto)?;
@@ -340,7 +327,7 @@ fn gather(block: &[i16], channels: usize, used: &[usize], width: usize, out: &mu
         _ => {
             for (src, dst) in frames_in.zip(frames_out) {
                 for (d, &c) in dst.iter_mut().zip(used) {
-                    *d = src[c];
+                    *d = src.get(c).copied().unwrap_or(0);
                 }
             }
         }

@@ -2,6 +2,8 @@
 //! `FROTHLINE_THREADS` environment variable when it is set (1 runs every pass on one
 //! thread, as a machine with one processor would; results never depend on the number).
 
+use std::sync::Arc;
+
 /// The environment variable that sets the thread count of offline passes.
 pub const THREADS_ENV: &str = "FROTHLINE_THREADS";
 
@@ -17,6 +19,31 @@ fn from_setting(value: Option<&str>) -> Option<usize> {
     value
         .and_then(|v| v.trim().parse::<usize>().ok())
         .filter(|&n| n >= 1)
+}
+
+/// The blocks a reader hands to worker threads, each read into again once every worker has
+/// let it go (the reader then holds its only reference), so the blocks in flight are
+/// allocated once.
+#[derive(Default)]
+pub struct BlockPool<T> {
+    held: Vec<Arc<T>>,
+}
+
+impl<T: Default + Clone> BlockPool<T> {
+    /// A block no worker holds (a new one when all are out): fill it through
+    /// [`Arc::make_mut`], which copies nothing since the reader holds its only reference.
+    pub fn free_block(&mut self) -> Arc<T> {
+        self.held
+            .iter()
+            .position(|b| Arc::strong_count(b) == 1)
+            .map(|i| self.held.swap_remove(i))
+            .unwrap_or_default()
+    }
+
+    /// Keep `block`, shared with the workers, for reuse once they let it go.
+    pub fn keep(&mut self, block: Arc<T>) {
+        self.held.push(block);
+    }
 }
 
 #[cfg(test)]

@@ -6,7 +6,7 @@ use super::outcome::TipLevels;
 use super::record::RecordLevels;
 use super::DRIFT_SEGMENT_S;
 use crate::offline::level_drift;
-use crate::offline::threads::offline_threads;
+use crate::offline::threads::{offline_threads, BlockPool};
 use crate::shared::capture::Capture;
 use crate::shared::error::HostError;
 use crate::shared::rig::MAX_PROBES;
@@ -173,15 +173,9 @@ pub fn learn_threads(
                     }
                 });
             }
-            // A block is read into again once the counting threads have let it go.
-            let mut pool: Vec<Block> = Vec::new();
+            let mut pool = BlockPool::default();
             loop {
-                let mut block = pool
-                    .iter()
-                    .position(|b| std::sync::Arc::strong_count(b) == 1)
-                    .map(|i| pool.swap_remove(i))
-                    .unwrap_or_default();
-                // (No other holder is left: this copies nothing.)
+                let mut block: Block = pool.free_block();
                 let (buf, pieces) = std::sync::Arc::make_mut(&mut block);
                 let n = cap.read_frames(buf, BLOCK_FRAMES)?;
                 if n == 0 {
@@ -192,7 +186,7 @@ pub fn learn_threads(
                 for tx in &txs {
                     let _ = tx.send(std::sync::Arc::clone(&block));
                 }
-                pool.push(block);
+                pool.keep(block);
             }
         })?;
     }
