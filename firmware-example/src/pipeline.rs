@@ -518,8 +518,7 @@ impl<'t, W: Write + 'static, C: Clock> Pipeline<'t, W, C> {
                 }
             }
         }
-        self.timing.records +=
-            sink_ticks as u64 + self.clock.now().wrapping_sub(polled_at) as u64;
+        self.timing.records += sink_ticks as u64 + self.clock.now().wrapping_sub(polled_at) as u64;
     }
 
     /// The sample clock: frames read from the source (pushed or dropped).
