@@ -10,12 +10,26 @@
 //!      into the acquisition (12-bit codes << 3 -> i16 counts 0..32760), which hands full
 //!      blocks to the main loop through the same spsc queues as the emulated board
 //!   -> main loop: chain -> wire frames -> USART1 transmit by DMA2 stream 7
+//! USART1 receive by DMA2 stream 2 into a circular buffer
+//!   -> main loop: host commands (read between blocks) -> the core's responder
 //! ```
 //!
 //! Inputs (ADC1 rank = channel = tip): PA0..PA7 -> 0..7, PB0, PB1 -> 8, 9, PC0..PC5 ->
 //! 10..15. PA2/PA3 also carry the ST-LINK virtual COM port (solder bridges SB13/SB14):
 //! open them to use those two inputs; results go out of USART1 (PA9 TX, PA10 RX) at
 //! 921 600 baud to a 3.3 V USB-serial adapter.
+//!
+//! Host commands: the receiver's DMA runs in circular mode (RM0383, "Circular mode": the
+//! transfer count reloads at the end of the buffer), so received bytes need neither an
+//! interrupt per byte nor a CPU that keeps up with 921 600 Bd (one byte per 10.9 us): the
+//! main loop reads what the DMA wrote since its last look, at every wake-up (at least once
+//! per DMA buffer of samples, 1.6 ms). A host that sends more than [`RX_BYTES`] bytes
+//! (11 ms of a full line) before the loop looks would overwrite unread ones; host commands
+//! are a few tens of bytes each, and the responder refuses a damaged frame by its CRC.
+//!
+//! Settings: the store of [`crate::settings`] over sectors 1 to 3 ([`crate::f4_flash`]),
+//! loaded before sampling starts, so a board keeps its window, levels, logger arming and
+//! device id across power cycles.
 //!
 //! Timing comes from the DWT cycle counter (the emulated board's TIMER0 stands in for it).
 //!
@@ -29,14 +43,17 @@
 //! is the board's supply.
 //!
 //! With the `field-logger` feature the results also go to the field logger
-//! ([`crate::field_log`]) over sectors 5 to 7 of the MCU's flash ([`crate::f4_flash`]).
+//! ([`crate::field_log`]) over sectors 6 and 7 of the MCU's flash ([`crate::f4_flash`]),
+//! which the host reads back over the link (ReadLog, `frothline logbook --port`).
 //! It is mounted, and the room of a capture erased ahead, before the ADC and its timer
 //! start: a sector erase stalls the CPU for a second or two, which then costs no sample.
 
 use crate::acquire::{Acquisition, Block, Clock, Filled, HEALTH};
 use crate::config::{BLOCKS, BLOCK_SAMPLES, MAX_CHANNELS};
+use crate::f4_flash::SettingsRegion;
 use crate::link::Link;
 use crate::pipeline::{Pipeline, SupplySense};
+use crate::settings::{Settings, SettingsStore};
 use crate::source::SampleSource;
 use crate::{capture, sys};
 use core::cell::RefCell;
@@ -53,12 +70,12 @@ use stm32f4xx_hal::adc::config::{
 use stm32f4xx_hal::adc::Adc;
 use stm32f4xx_hal::dma::config::DmaConfig;
 use stm32f4xx_hal::dma::{
-    MemoryToPeripheral, PeripheralToMemory, Stream0, Stream7, StreamsTuple, Transfer,
+    MemoryToPeripheral, PeripheralToMemory, Stream0, Stream2, Stream7, StreamsTuple, Transfer,
 };
 use stm32f4xx_hal::pac::{self, interrupt, ADC1, DMA2, USART1};
 use stm32f4xx_hal::prelude::*;
 use stm32f4xx_hal::rcc::Config as RccConfig;
-use stm32f4xx_hal::serial::{self, Serial, Tx};
+use stm32f4xx_hal::serial::{self, Rx, Serial, Tx};
 use stm32f4xx_hal::timer::Timer;
 
 /// Core clock, Hz.
@@ -69,10 +86,17 @@ const DMA_FRAMES: usize = 32;
 const DMA_SAMPLES: usize = DMA_FRAMES * MAX_CHANNELS;
 /// Bytes per UART transmit chunk (two chunks: one sending, one filling).
 const TX_CHUNK: usize = 512;
+/// Bytes of the receiver's circular buffer (host commands).
+const RX_BYTES: usize = 1024;
+/// Command bytes the main loop answers per pass (bounded work between blocks).
+const COMMAND_BYTES_PER_LOOP: usize = 64;
 
 type DmaBuf = [u16; DMA_SAMPLES];
 type AdcTransfer = Transfer<Stream0<DMA2>, 0, Adc<ADC1>, PeripheralToMemory, &'static mut DmaBuf>;
 type UartTransfer = Transfer<Stream7<DMA2>, 4, Tx<USART1>, MemoryToPeripheral, sys::TxChunk>;
+type RxBuf = [u8; RX_BYTES];
+pub(crate) type RxTransfer =
+    Transfer<Stream2<DMA2>, 4, Rx<USART1>, PeripheralToMemory, &'static mut RxBuf>;
 
 /// The cycle counter as the pipeline's clock.
 #[derive(Clone, Copy, Debug)]
@@ -205,12 +229,47 @@ fn DMA2_STREAM0() {
     }
 }
 
-/// USART1 transmit through DMA as an `embedded_io::Write`: bytes collect in one chunk
-/// while the other is on the wire.
+/// USART1 through DMA: transmit as an `embedded_io::Write` (bytes collect in one chunk
+/// while the other is on the wire), receive as an `embedded_io::Read` over the circular
+/// buffer the receiver's DMA fills.
 struct DmaUart {
     transfer: UartTransfer,
     filling: Option<sys::TxChunk>,
     busy: bool,
+    rx: RxRing,
+}
+
+/// The receiver's circular buffer and how far the main loop has read it.
+struct RxRing {
+    transfer: RxTransfer,
+    /// The buffer the DMA writes (read only behind its write position).
+    buf: sys::DmaWritten,
+    /// Next byte to read, 0..RX_BYTES.
+    pos: usize,
+}
+
+impl RxRing {
+    /// The DMA's write position, 0..RX_BYTES.
+    fn head(&self) -> usize {
+        // NDTR counts down from RX_BYTES to 1 and reloads (circular mode).
+        let left = (self.transfer.number_of_transfers() as usize).min(RX_BYTES);
+        (RX_BYTES - left) % RX_BYTES
+    }
+
+    fn has_byte(&self) -> bool {
+        self.head() != self.pos
+    }
+
+    fn take(&mut self) -> Option<u8> {
+        if !self.has_byte() {
+            return None;
+        }
+        // Reads after the count that says the byte was written.
+        core::sync::atomic::compiler_fence(Ordering::Acquire);
+        let b = self.buf.get(self.pos)?;
+        self.pos = (self.pos + 1) % RX_BYTES;
+        Some(b)
+    }
 }
 
 impl DmaUart {
@@ -254,6 +313,34 @@ impl embedded_io::ErrorType for DmaUart {
     type Error = Infallible;
 }
 
+impl embedded_io::ReadReady for DmaUart {
+    fn read_ready(&mut self) -> Result<bool, Infallible> {
+        Ok(self.rx.has_byte())
+    }
+}
+
+impl embedded_io::Read for DmaUart {
+    /// The bytes received so far, at most `buf.len()`; 0 only for an empty `buf` (the
+    /// pipeline asks [`embedded_io::ReadReady`] first, so it never waits here).
+    fn read(&mut self, buf: &mut [u8]) -> Result<usize, Infallible> {
+        let mut n = 0;
+        for slot in buf.iter_mut() {
+            // The first byte is waited for, as `Read` asks; the rest only if there.
+            let b = loop {
+                match self.rx.take() {
+                    Some(b) => break Some(b),
+                    None if n > 0 => break None,
+                    None => {}
+                }
+            };
+            let Some(b) = b else { break };
+            *slot = b;
+            n += 1;
+        }
+        Ok(n)
+    }
+}
+
 impl embedded_io::Write for DmaUart {
     fn write(&mut self, buf: &[u8]) -> Result<usize, Infallible> {
         if buf.is_empty() {
@@ -283,6 +370,7 @@ impl embedded_io::Write for DmaUart {
 
 static DMA_BUFFERS: ConstStaticCell<[DmaBuf; 3]> = ConstStaticCell::new([[0; DMA_SAMPLES]; 3]);
 static TX_BUFFERS: ConstStaticCell<[[u8; TX_CHUNK]; 2]> = ConstStaticCell::new([[0; TX_CHUNK]; 2]);
+static RX_BUFFER: ConstStaticCell<RxBuf> = ConstStaticCell::new([0; RX_BYTES]);
 static BLOCK_BUFFERS: ConstStaticCell<[Block; BLOCKS]> =
     ConstStaticCell::new([[0; BLOCK_SAMPLES]; BLOCKS]);
 static FULL: ConstStaticCell<Queue<Filled, { BLOCKS + 1 }>> = ConstStaticCell::new(Queue::new());
@@ -311,29 +399,46 @@ fn main() -> ! {
     // The field log first: arming may erase a sector (the CPU stalls), so before any
     // sampling starts. Without it (a part whose flash ends before sector 7, a flash
     // error) the board still measures and streams.
+    static FLASH: StaticCell<crate::f4_flash::SharedFlash> = StaticCell::new();
+    let flash: &'static crate::f4_flash::SharedFlash =
+        FLASH.init(crate::f4_flash::shared(dp.FLASH));
     #[cfg(feature = "field-logger")]
     let mut field_log = {
         use crate::f4_flash::LogRegion;
         use crate::field_log::{FieldLog, Schedule};
-        LogRegion::new(dp.FLASH).and_then(|r| FieldLog::mount(r, Schedule::Prepared).ok())
+        LogRegion::new(flash).and_then(|r| FieldLog::mount(r, Schedule::Prepared).ok())
     };
+    // The settings: read before sampling starts (a read never erases).
+    let (settings, store) = stored_settings(flash);
 
     let gpioa = dp.GPIOA.split(&mut rcc);
     let gpiob = dp.GPIOB.split(&mut rcc);
     let gpioc = dp.GPIOC.split(&mut rcc);
     let dma2 = StreamsTuple::new(dp.DMA2, &mut rcc);
 
-    // Results link: USART1 TX on PA9, by DMA.
-    let Ok(tx) = Serial::tx(
+    // Results link: USART1 TX on PA9 and RX on PA10, both by DMA.
+    let Ok(serial) = Serial::new(
         dp.USART1,
-        gpioa.pa9.into_alternate(),
+        (gpioa.pa9.into_alternate(), gpioa.pa10.into_alternate()),
         serial::Config::default()
             .baudrate(crate::config::BAUD.bps())
-            .dma(serial::config::DmaConfig::Tx),
+            .dma(serial::config::DmaConfig::TxRx),
         &mut rcc,
     ) else {
         halt()
     };
+    let (tx, rx) = serial.split();
+    let rx_buf = RX_BUFFER.take();
+    let rx_written = sys::DmaWritten::of(rx_buf);
+    let mut rx_transfer = Transfer::init_peripheral_to_memory(
+        dma2.2,
+        rx,
+        rx_buf,
+        None,
+        DmaConfig::default().memory_increment(true),
+    );
+    sys::set_circular(&mut rx_transfer);
+    rx_transfer.start(|_| {});
     let [tx_a, tx_b] = TX_BUFFERS.take();
     let uart_transfer = Transfer::init_memory_to_peripheral(
         dma2.7,
@@ -346,6 +451,11 @@ fn main() -> ! {
         transfer: uart_transfer,
         filling: Some(sys::TxChunk::new(tx_b)),
         busy: false,
+        rx: RxRing {
+            transfer: rx_transfer,
+            buf: rx_written,
+            pos: 0,
+        },
     };
 
     // ADC1: 16 inputs in one scan per TIM2 update, DMA in double-buffer mode.
@@ -432,12 +542,19 @@ fn main() -> ! {
     if let Some(l) = field_log.as_mut() {
         pipe.set_tap(l);
     }
+    pipe.set_settings(
+        settings,
+        store.map(|s| s as &mut dyn crate::settings::SettingsSink),
+    );
     pipe.start();
     loop {
+        pipe.serve_commands(COMMAND_BYTES_PER_LOOP);
         if pipe.step() {
             continue;
         }
         let t0 = CycleClock.now();
+        // Sleep unless a block arrived since the check (WFI wakes on the pending interrupt
+        // even with interrupts masked); received bytes are read at the next wake-up.
         cortex_m::interrupt::free(|_| {
             if !pipe.ready() {
                 cortex_m::asm::wfi();
@@ -445,6 +562,23 @@ fn main() -> ! {
         });
         pipe.idled(CycleClock.now().wrapping_sub(t0));
     }
+}
+
+/// The stored settings (the capture's defaults when nothing readable is stored) and the
+/// store for changes (none when its sectors cannot be mounted: the board then runs on the
+/// defaults and keeps no change across a power cycle).
+#[inline(never)]
+fn stored_settings(
+    flash: &'static crate::f4_flash::SharedFlash,
+) -> (Settings, Option<&'static mut SettingsStore<SettingsRegion>>) {
+    static STORE: StaticCell<SettingsStore<SettingsRegion>> = StaticCell::new();
+    let defaults = Settings::defaults(crate::config::DEVICE_ID, capture::WINDOW);
+    let Some(store) = SettingsRegion::new(flash).and_then(|r| SettingsStore::mount(r).ok()) else {
+        return (defaults, None);
+    };
+    let store = STORE.init(store);
+    let (settings, _) = store.load(defaults);
+    (settings, Some(store))
 }
 
 /// Stop here (a debugger shows where); the watchdog, if enabled, resets the board.

@@ -18,8 +18,9 @@
 //!   buffers, results out of USART1 by DMA (see `board_stm32f4.rs`).
 //!
 //! `field-logger` (with either board): the surge capture's station chain and the field
-//! logger ([`field_log`]), on a NOR flash stand-in in the emulator, on sectors 5 to 7 of
-//! the MCU's flash on the board (`f4_flash.rs`).
+//! logger ([`field_log`]), on a NOR flash stand-in in the emulator, on sectors 6 and 7 of
+//! the MCU's flash on the board (`f4_flash.rs`, which also holds the board's settings
+//! store in sectors 1 to 3).
 //!
 //! `unsafe` lives in `sys.rs` alone (register access, stack painting, one semihosting call).
 #![no_std]
@@ -68,7 +69,7 @@ pub mod stall_nor;
 
 #[cfg(feature = "board-stm32f4")]
 mod board_stm32f4;
-#[cfg(all(feature = "field-logger", feature = "board-stm32f4"))]
+#[cfg(feature = "board-stm32f4")]
 pub mod f4_flash;
 
 use config::FwChain;

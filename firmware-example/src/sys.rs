@@ -291,6 +291,44 @@ pub fn unmask(irq: stm32f4xx_hal::pac::Interrupt) {
     unsafe { cortex_m::peripheral::NVIC::unmask(irq) }
 }
 
+/// A buffer a DMA writes while the CPU reads it (the UART receiver's circular buffer):
+/// its address and length, taken before the buffer was handed to the DMA. Bytes are read
+/// volatile, and only those behind the DMA's write position (the caller's rule).
+#[cfg(feature = "board-stm32f4")]
+pub struct DmaWritten {
+    ptr: *const u8,
+    len: usize,
+}
+
+#[cfg(feature = "board-stm32f4")]
+impl DmaWritten {
+    /// The written view of `buf` (a static the DMA owns from now on).
+    pub fn of(buf: &[u8]) -> Self {
+        DmaWritten {
+            ptr: buf.as_ptr(),
+            len: buf.len(),
+        }
+    }
+
+    /// Byte `i`, `None` past the end.
+    pub fn get(&self, i: usize) -> Option<u8> {
+        // SAFETY: `ptr` is a static buffer of `len` bytes that lives for ever (the DMA
+        // transfer owning it is never released) and `i < len`; a volatile read of a byte
+        // the DMA may write next is at worst stale, and the caller reads only written ones.
+        (i < self.len).then(|| unsafe { core::ptr::read_volatile(self.ptr.add(i)) })
+    }
+}
+
+/// Put the receiver's DMA stream in circular mode (RM0383: the transfer count reloads at
+/// the end of the buffer and the stream goes on), before the transfer starts.
+#[cfg(feature = "board-stm32f4")]
+pub fn set_circular(t: &mut crate::board_stm32f4::RxTransfer) {
+    use stm32f4xx_hal::dma::traits::Stream;
+    // SAFETY: only the CIRC bit of a stream that is not enabled yet is changed; the HAL's
+    // transfer keeps owning the stream, the peripheral and the buffer.
+    unsafe { t.stream().set_circular_mode(true) }
+}
+
 /// Bytes for a UART transmit DMA: a static buffer and how much of it to send. The DMA
 /// reads `deref()` (the filled part), whose address never moves.
 #[cfg(feature = "board-stm32f4")]

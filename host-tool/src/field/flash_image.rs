@@ -382,12 +382,12 @@ mod tests {
         }
     }
 
-    /// The NUCLEO-F411RE's log region (sectors 5 to 7: three 128 KiB pages, write unit 4),
+    /// The NUCLEO-F411RE's log region (sectors 6 and 7: two 128 KiB pages, write unit 4),
     /// never erased before, its room erased ahead by `prepare` and filled without erases:
     /// read back whole, and its geometry detected.
     #[test]
     fn a_prepared_board_region_reads_back() {
-        let mut log = Logbook::mount(VecNor::<131072>(vec![0; 3 * 131072])).unwrap();
+        let mut log = Logbook::mount(VecNor::<131072>(vec![0; 2 * 131072])).unwrap();
         assert!(log.prepare(48, 256).unwrap());
         let records: Vec<Vec<u8>> = (0..40u8).map(|i| vec![i; 10 + 5 * i as usize]).collect();
         for r in &records {
