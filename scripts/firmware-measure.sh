@@ -109,7 +109,13 @@ whole = per(st["whole"]["push_ticks"])
 fixed = per(st["whole-fixed"]["push_ticks"])
 lead_only = per(st["whole-fixed-leading"]["push_ticks"])
 pr = st["practical"]
+# Learning done: the blocks after the first learning period (timed apart by the firmware).
 practical = (int(pr["push_ticks"]) + int(pr["finish_ticks"])) * ipt / (int(pr["frames"]) * int(pr["channels"]))
+pr_first_frames = int(pr.get("first_period_frames", "0"))
+practical_first = (int(pr.get("first_period_ticks", "0")) * ipt / (pr_first_frames * int(pr["channels"]))
+                   if pr_first_frames else 0.0)
+practical_all = ((int(pr["push_ticks"]) + int(pr["finish_ticks"]) + int(pr.get("first_period_ticks", "0"))) * ipt
+                 / ((int(pr["frames"]) + pr_first_frames) * int(pr["channels"])))
 # Records and wire work scale with the windows: the example's share, per window, at 50 ms.
 practical_records = records * window / 1000.0
 nrec = int(m["result.records"])
@@ -145,9 +151,12 @@ rows = [
 for name, v in rows:
     print("  %-82s %8.1f" % (name, v))
 print("  at practical settings: 50 ms windows, 0.2 s learning period, learnt levels")
-print("    (the capture played %d times, %d frames)" % (int(pr["frames"]) // cap_frames, int(pr["frames"])))
+print("    (the capture played %d times: %d frames after the first learning period, %d in it)"
+      % ((int(pr["frames"]) + pr_first_frames) // cap_frames, int(pr["frames"]), pr_first_frames))
 for name, v in [
-    ("    chain push", practical),
+    ("    chain push during the first learning period (no levels yet, every 4th frame learnt)", practical_first),
+    ("    chain push over the whole run, the first learning period included", practical_all),
+    ("    chain push, learning done (after the first period)", practical),
     ("    + records scaled to 50 ms windows + interrupt", practical + practical_records + isr),
 ]:
     print("  %-82s %8.1f" % (name, v))
