@@ -116,6 +116,10 @@ practical_first = (int(pr.get("first_period_ticks", "0")) * ipt / (pr_first_fram
                    if pr_first_frames else 0.0)
 practical_all = ((int(pr["push_ticks"]) + int(pr["finish_ticks"]) + int(pr.get("first_period_ticks", "0"))) * ipt
                  / ((int(pr["frames"]) + pr_first_frames) * int(pr["channels"])))
+# The same practical run with fixed levels (no learners): learning done, after the first period.
+pf = st.get("practical-fixed")
+practical_fixed = ((int(pf["push_ticks"]) + int(pf["finish_ticks"])) * ipt / (int(pf["frames"]) * int(pf["channels"]))
+                   if pf else None)
 # Records and wire work scale with the windows: the example's share, per window, at 50 ms.
 practical_records = records * window / 1000.0
 nrec = int(m["result.records"])
@@ -174,6 +178,10 @@ for name, v in [
     ("    streaming, fixed levels (phase detection, tip statistics, pair correlation)", fixed),
     ("    per-window work (%.0f instructions per probe-window, one per %d frames)" % (per_window, pw_frames), practical_windows),
     ("    level learner (tracking the levels it learnt; the rest of the push)", practical_learning),
+] + ([
+    ("      of which the learners themselves (learnt against fixed levels, same settings)", practical - practical_fixed),
+    ("      of which the rest (the fixed-level practical run against streaming + per-window work)", practical_learning - (practical - practical_fixed)),
+] if practical_fixed is not None else []) + [
     ("    records scaled to 50 ms windows", practical_records),
     ("    acquisition interrupt", isr),
     ("    full pipeline at practical settings", practical_full),

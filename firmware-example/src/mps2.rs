@@ -522,6 +522,7 @@ fn end_of_run(
             Variant::WholeFixed,
             Variant::WholeFixedLeading,
             Variant::Practical,
+            Variant::PracticalFixed,
         ] {
             measure_streaming(chain, clock, v);
         }

@@ -164,6 +164,8 @@ pub(super) enum Variant {
     /// 4th frame) are timed apart: a run's cost with learning done and levels tracked is
     /// that of the blocks after it.
     Practical,
+    /// ... with fixed levels: what the practical run costs without its learners.
+    PracticalFixed,
 }
 
 /// Plays of the capture in [`Variant::Practical`].
@@ -180,7 +182,7 @@ pub(super) fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, varian
     let mut repeats = 1;
     // Frames timed apart at the start (the first learning period, practical variant).
     let mut first_period = 0usize;
-    if variant == Variant::Practical {
+    if matches!(variant, Variant::Practical | Variant::PracticalFixed) {
         first_period = (capture::SAMPLE_RATE_HZ / 5) as usize;
         cfg.window = frothline_core::WindowPolicy::Frames(capture::SAMPLE_RATE_HZ / 20);
         cfg.detector.learn_period = capture::SAMPLE_RATE_HZ / 5;
@@ -264,6 +266,7 @@ pub(super) fn measure_streaming<C: Clock>(chain: &mut FwChain, clock: &C, varian
             Variant::WholeFixed => "whole-fixed",
             Variant::WholeFixedLeading => "whole-fixed-leading",
             Variant::Practical => "practical",
+            Variant::PracticalFixed => "practical-fixed",
         },
         frames,
         ch,
