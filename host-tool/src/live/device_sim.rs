@@ -441,9 +441,9 @@ impl SimDevice {
     /// Queue what `chain` has: its window records, and for station `station` (index, and
     /// the layout index of each of its probes) its profiles and probe arrivals (urgent
     /// frames; probe indices mapped to the layout's as `frothline replay` maps them).
-    fn drain<const D: usize>(
+    fn drain<const D: usize, const S: usize>(
         &mut self,
-        chain: &mut frothline_core::Chain<MAX_PROBES, HOST_LAGS, D>,
+        chain: &mut frothline_core::GenericChain<MAX_PROBES, HOST_LAGS, D, S, 1>,
         station: Option<(usize, &[usize])>,
     ) {
         let fs = self.cap.sample_rate;

@@ -20,10 +20,16 @@ pub const MAX_PROBES: usize = 16;
 /// `max_lag_ms` in the layout to make both compute the same lags.
 pub const HOST_LAGS: usize = 1024;
 
-/// The chain type the host runs.
-pub type HostChain = frothline_core::Chain<MAX_PROBES, HOST_LAGS>;
+/// The chain type the host runs for steady flows (replay, the simulated device). It keeps no
+/// raw correlation sums (`S = 0`): each window's sums are analysed inside the correlator as
+/// they are cleared, as on the firmware, where a chain that keeps them copies 28 KiB per
+/// probe-window out first. The records are the same bit for bit (the firmware checks
+/// compare its records with a host replay's; the core tests both forms), with
+/// `correlation_sums: None`.
+pub type HostChain = frothline_core::GenericChain<MAX_PROBES, HOST_LAGS, 0, 0, 1>;
 
-/// The records of a [`HostChain`] (with their raw correlation sums, 28 KiB each).
+/// The records of the host's chains at full size (a station chain's keep their raw
+/// correlation sums, 28 KiB each, for ensembles; a [`HostChain`]'s have none).
 pub type FullRecord = frothline_core::ProbeWindow<HOST_LAGS>;
 
 /// A record as the host keeps and passes it around: results only, without the raw
