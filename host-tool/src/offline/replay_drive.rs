@@ -86,8 +86,8 @@ fn push_all<E>(
         while !left.is_empty() {
             let used = chain.push(left);
             left = &left[used..];
-            while let Some(r) = chain.poll() {
-                sink(r.without_sums())?;
+            while let Some(r) = chain.poll_lean_with(|r| r.without_sums()) {
+                sink(r)?;
             }
         }
         rest = &rest[piece.len()..];
@@ -101,12 +101,12 @@ fn finish_all<E>(
     sink: &mut dyn FnMut(ProbeWindow) -> Result<(), E>,
 ) -> Result<(), E> {
     while chain.finish().is_err() {
-        while let Some(r) = chain.poll() {
-            sink(r.without_sums())?;
+        while let Some(r) = chain.poll_lean_with(|r| r.without_sums()) {
+            sink(r)?;
         }
     }
-    while let Some(r) = chain.poll() {
-        sink(r.without_sums())?;
+    while let Some(r) = chain.poll_lean_with(|r| r.without_sums()) {
+        sink(r)?;
     }
     Ok(())
 }

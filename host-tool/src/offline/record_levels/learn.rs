@@ -66,24 +66,35 @@ struct TipCounts {
 type Piece = (usize, usize, Option<usize>);
 
 /// Count every `LEARN_STRIDE`-th frame of `pieces` of `block` into the histograms of `tips`
-/// (`bins`: bins of a segment histogram, made when a tip first meets its segment).
+/// (`bins`: bins of a segment histogram, made when a tip first meets its segment). Frames
+/// outside, tips inside: each frame's cache line is read once for all the tips (a block is
+/// a megabyte at 16 channels; read once per tip, it came from beyond the caches each time).
 fn count(tips: &mut [TipCounts], block: &[i16], channels: usize, pieces: &[Piece], bins: usize) {
-    for t in tips {
-        for &(first, end, seg) in pieces {
-            if let Some(k) = seg {
+    for &(first, end, seg) in pieces {
+        if let Some(k) = seg {
+            for t in tips.iter_mut() {
                 while t.segments.len() <= k {
                     t.segments.push(vec![0u32; bins]);
                 }
             }
-            let piece = &block[first * channels..end * channels];
-            let mut coarse = seg.and_then(|k| t.segments.get_mut(k));
-            for frame in piece.chunks_exact(channels).step_by(LEARN_STRIDE as usize) {
-                if let Some(&x) = frame.get(t.channel) {
-                    let b = (x as u16 ^ 0x8000) as usize;
-                    t.whole[b] = t.whole[b].saturating_add(1);
-                    if let Some(cell) = coarse.as_mut().map(|v| &mut v[b / SEGMENT_BIN]) {
-                        *cell = cell.saturating_add(1);
-                    }
+        }
+        let Some(piece) = block.get(first * channels..end * channels) else {
+            continue;
+        };
+        for frame in piece.chunks_exact(channels).step_by(LEARN_STRIDE as usize) {
+            for t in tips.iter_mut() {
+                let Some(&x) = frame.get(t.channel) else {
+                    continue;
+                };
+                let b = (x as u16 ^ 0x8000) as usize;
+                if let Some(c) = t.whole.get_mut(b) {
+                    *c = c.saturating_add(1);
+                }
+                if let Some(cell) = seg
+                    .and_then(|k| t.segments.get_mut(k))
+                    .and_then(|v| v.get_mut(b / SEGMENT_BIN))
+                {
+                    *cell = cell.saturating_add(1);
                 }
             }
         }
