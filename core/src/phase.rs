@@ -317,9 +317,12 @@ impl PhaseDetector {
                 None => n,
             };
             let (now, later) = rest.split_at(take * channels);
-            let stride = self.learn_stride();
-            if let Some(l) = self.learner.as_mut() {
-                l.observe_strided(now, channels, self.channel, at, stride);
+            // The stride only for a learner (fixed levels skip its 64-bit work).
+            if self.learner.is_some() {
+                let stride = self.learn_stride();
+                if let Some(l) = self.learner.as_mut() {
+                    l.observe_strided(now, channels, self.channel, at, stride);
+                }
             }
             let c = self.run(now, channels, at, sink);
             counts.air += c.air;
