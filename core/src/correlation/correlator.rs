@@ -59,12 +59,10 @@ impl<const L: usize> Ring<L> {
             return;
         };
         let m = m.min(d1.len()) as u32;
-        let next = self.next.min(L);
-        let (before, after) = self.edges.split_at(next);
-        let in_before = self.len.min(next);
-        let newer = before.get(next - in_before..).unwrap_or(&[]);
-        let in_after = (self.len - in_before).min(after.len());
-        let older = after.get(after.len() - in_after..).unwrap_or(&[]);
+        // `next == len` until the ring is full (`push` and `clear` keep it so): the edges
+        // are those before `next`, and once it is full those from `next` on.
+        let (newer, older) = self.edges.split_at(self.next.min(L));
+        let older = if self.len >= L { older } else { &[] };
         let mut pairs = |edges: &[u32]| -> bool {
             for &v in edges.iter().rev() {
                 // A negative lag (an edge after `t`) wraps to 2^31 or more: past `m`.

@@ -384,6 +384,15 @@ fn runs_of_held_edges_equal_edges_in_time_order() {
         assert_eq!(f1, f2, "case {case}");
         if into == 0 {
             assert!(f1.is_empty(), "case {case}");
+            // And the direct sums over the window (the last phases held to its end).
+            let hold = |x: &[bool]| {
+                let mut v = x.to_vec();
+                v.resize((end - start) as usize, *x.last().unwrap_or(&false));
+                v
+            };
+            let (cross, auto) = direct(&hold(&a), &hold(&b), max_lag as usize + 1);
+            assert_eq!(s1.cross.as_slice(), cross.as_slice(), "case {case}");
+            assert_eq!(s1.auto.as_slice(), auto.as_slice(), "case {case}");
         }
     }
 }
