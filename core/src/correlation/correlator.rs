@@ -1,15 +1,13 @@
 //! The streaming [`Correlator`]: the window's sums kept as second differences over the lags,
-//! its run buffer ([`RunBuffer`]) and the edge sinks that feed it.
+//! and the edge sinks that feed it (through a [`RunBuffer`] run by run, or in time order).
 
 use super::analysis::{
     analyse_functions, pearson_finish_small, pearson_parts_masked, CorrelationResult, SMALL_N,
 };
-use super::{CorrelationSums, MAX_RUN_FRAMES};
+use super::run_buffer::{RunBuffer, RISING_BIT};
+use super::CorrelationSums;
 use crate::flags::Flags;
 use crate::phase::{Edge, EdgeSink};
-
-/// Bit of a pending entry that marks a rising (water -> air) edge.
-const RISING_BIT: u16 = 1 << 15;
 
 /// The double prefix sum of the second differences `d` (two's-complement `i32` values), in
 /// place, clamped at 0 (exact sums are never negative). The sums of a window count frame
@@ -99,79 +97,10 @@ impl<const L: usize> Ring<L> {
     }
 }
 
-/// The leading tip's edges of one run, waiting for the trailing tip's edges of the same
-/// frames (see the [module documentation](self)): at most one per frame of a run of at
-/// most [`MAX_RUN_FRAMES`] frames.
-///
-/// Only one correlator uses it at a time, from [`Correlator::begin_run`] to
-/// [`Correlator::end_run`] (which merges what is left), so one buffer serves every
-/// correlator of a chain: the chain lends it to each probe's correlator in turn, instead of
-/// keeping 2 KiB per probe.
-#[derive(Clone, Debug)]
-pub struct RunBuffer {
-    /// Offset from the run start, with [`RISING_BIT`].
-    edges: [u16; MAX_RUN_FRAMES],
-    len: usize,
-    pos: usize,
-    run_start: u64,
-}
-
-impl Default for RunBuffer {
-    fn default() -> Self {
-        Self::new()
-    }
-}
-
-impl RunBuffer {
-    /// An empty buffer (all zero bytes: a `static` of it lands in `.bss`).
-    pub const fn new() -> Self {
-        RunBuffer {
-            edges: [0; MAX_RUN_FRAMES],
-            len: 0,
-            pos: 0,
-            run_start: 0,
-        }
-    }
-
-    /// Start a run at absolute frame `first` (anything held is forgotten).
-    fn begin(&mut self, first: u64) {
-        self.len = 0;
-        self.pos = 0;
-        self.run_start = first;
-    }
-
-    /// Hold an edge of the current run; false if it does not fit (beyond the buffer, before
-    /// the run, or too far into it).
-    #[inline]
-    fn hold(&mut self, edge: Edge) -> bool {
-        let off = edge.frame.wrapping_sub(self.run_start);
-        match self.edges.get_mut(self.len) {
-            Some(s) if edge.frame >= self.run_start && off < RISING_BIT as u64 => {
-                *s = off as u16 | if edge.to_air { RISING_BIT } else { 0 };
-                self.len += 1;
-                true
-            }
-            _ => false,
-        }
-    }
-
-    /// The oldest held edge at or before absolute frame `upto`, taken out of the buffer.
-    #[inline]
-    fn take_upto(&mut self, upto: u64) -> Option<(u64, bool)> {
-        let &v = self.edges.get(self.pos).filter(|_| self.pos < self.len)?;
-        let frame = self.run_start.saturating_add((v & !RISING_BIT) as u64);
-        if frame > upto {
-            return None;
-        }
-        self.pos += 1;
-        Some((frame, v & RISING_BIT != 0))
-    }
-}
-
 /// Streaming correlation of one dual-tip probe, fed with the tips' interfaces.
 ///
 /// Drive it as the chain does, either
-/// - tip by tip: for each run of at most [`MAX_RUN_FRAMES`] frames,
+/// - tip by tip: for each run of at most [`MAX_RUN_FRAMES`](super::MAX_RUN_FRAMES) frames,
 ///   [`begin_run`](Self::begin_run), the leading tip's edges through
 ///   [`lead`](Self::lead), the trailing tip's edges of the same frames through
 ///   [`trail`](Self::trail), then [`end_run`](Self::end_run), all with the same
@@ -571,22 +500,26 @@ impl<const L: usize> Correlator<L> {
     /// Merge the held leading-tip edges at or before absolute frame `upto`.
     #[inline]
     fn drain(&mut self, buf: &mut RunBuffer, upto: u64) {
-        if buf.pos < buf.len {
-            match self.run_base(buf) {
-                Some(base) => self.drain_short(buf, base, upto),
-                None => {
-                    while let Some((frame, rising)) = buf.take_upto(upto) {
-                        let t = self.rel(frame);
-                        self.lead_edge(t, rising);
-                    }
+        match (buf.pos < buf.len, self.run_base(buf)) {
+            (true, Some(base)) => {
+                // The last offset due: `upto - run_start` (every held offset when `upto`
+                // is `u64::MAX`, which no held frame passes; none before the run).
+                let last = match upto.checked_sub(buf.run_start) {
+                    _ if upto == u64::MAX => u32::MAX,
+                    Some(d) => d.min(u32::MAX as u64) as u32,
+                    None => return,
+                };
+                self.drain_short(buf, base, last);
+            }
+            (true, None) => {
+                while let Some((frame, rising)) = buf.take_upto(upto) {
+                    let t = self.rel(frame);
+                    self.lead_edge(t, rising);
                 }
             }
+            (false, _) => {}
         }
-        if buf.pos >= buf.len {
-            // Everything merged: the whole buffer is free again.
-            buf.len = 0;
-            buf.pos = 0;
-        }
+        buf.free_if_merged();
     }
 
     /// The window time of the run start if the run starts in the window less than
@@ -600,18 +533,10 @@ impl<const L: usize> Correlator<L> {
         fits.then_some(base as i32)
     }
 
-    /// [`drain`](Self::drain) of a run with 32-bit window times ([`run_base`](Self::run_base)):
-    /// the held offsets compared in 32 bits, the edges [`RunBuffer::take_upto`] would give.
+    /// Merge the held edges at most `last` frames into a run with 32-bit window times
+    /// ([`run_base`](Self::run_base)): the edges [`RunBuffer::take_upto`] would give.
     #[inline]
-    fn drain_short(&mut self, buf: &mut RunBuffer, base: i32, upto: u64) {
-        // The last offset due: `upto - run_start` (every held offset when `upto` is
-        // `u64::MAX`, which no held frame passes; none before the run), capped at the
-        // largest offset held.
-        let last = match upto.checked_sub(buf.run_start) {
-            _ if upto == u64::MAX => u32::MAX,
-            Some(d) => d.min(u32::MAX as u64) as u32,
-            None => return,
-        };
+    fn drain_short(&mut self, buf: &mut RunBuffer, base: i32, last: u32) {
         while let Some(&v) = buf.edges.get(buf.pos).filter(|_| buf.pos < buf.len) {
             let off = (v & !RISING_BIT) as u32;
             if off > last {
@@ -619,6 +544,26 @@ impl<const L: usize> Correlator<L> {
             }
             buf.pos += 1;
             self.lead_edge_short(base + off as i32, v & RISING_BIT != 0);
+        }
+    }
+
+    /// An edge of the trailing tip of the current run: the held leading edges up to its
+    /// frame merged first.
+    #[inline]
+    fn trail_run_edge(&mut self, buf: &mut RunBuffer, edge: Edge) {
+        let off = edge.frame.checked_sub(buf.run_start);
+        match (self.run_base(buf), off.filter(|&o| o < RISING_BIT as u64)) {
+            // Inside a run with 32-bit window times (as `drain` and `rel` give it).
+            (Some(base), Some(off)) => {
+                self.drain_short(buf, base, off as u32);
+                buf.free_if_merged();
+                self.trail_edge_short(base + off as i32, edge.to_air);
+            }
+            _ => {
+                self.drain(buf, edge.frame);
+                let t = self.rel(edge.frame);
+                self.trail_edge(t, edge.to_air);
+            }
         }
     }
 
@@ -768,10 +713,7 @@ pub struct TrailEdges<'a, const L: usize>(&'a mut Correlator<L>, &'a mut RunBuff
 impl<const L: usize> EdgeSink for TrailEdges<'_, L> {
     #[inline]
     fn edge(&mut self, edge: Edge) {
-        let c = &mut *self.0;
-        c.drain(self.1, edge.frame);
-        let t = c.rel(edge.frame);
-        c.trail_edge(t, edge.to_air);
+        self.0.trail_run_edge(self.1, edge);
     }
 }
 
