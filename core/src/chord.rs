@@ -19,13 +19,11 @@ pub const fn bin_of(n: u32) -> usize {
     if n == 0 {
         return 0;
     }
-    let octave = 31 - n.leading_zeros();
-    let quarter = if octave >= 2 {
-        (n >> (octave - 2)) & 3
-    } else {
-        (n << (2 - octave)) & 3
-    };
-    let b = (octave * BINS_PER_OCTAVE as u32 + quarter) as usize;
+    let lz = n.leading_zeros();
+    // The two bits after the leading one, read from `n` shifted up to bit 31 (for octaves
+    // 0 and 1 the bits below `n` are zeros, as a shift up gives them).
+    let quarter = ((n << lz) >> 29) & 3;
+    let b = ((31 - lz) * BINS_PER_OCTAVE as u32 + quarter) as usize;
     if b >= CHORD_BINS {
         CHORD_BINS - 1
     } else {
@@ -285,6 +283,46 @@ mod octave_tests {
         for b in 0..CHORD_BINS {
             let want = (0..b / BINS_PER_OCTAVE).fold(1.0f32, |x, _| x * 2.0);
             assert_eq!(octave_base(b).to_bits(), want.to_bits(), "bin {b}");
+        }
+    }
+}
+
+#[cfg(test)]
+mod bin_tests {
+    use super::*;
+
+    /// The bin as it was worked out before (the two bits after the leading one by a shift
+    /// down, or up for octaves 0 and 1).
+    fn bin_by_octave(n: u32) -> usize {
+        if n == 0 {
+            return 0;
+        }
+        let octave = 31 - n.leading_zeros();
+        let quarter = if octave >= 2 {
+            (n >> (octave - 2)) & 3
+        } else {
+            (n << (2 - octave)) & 3
+        };
+        ((octave * BINS_PER_OCTAVE as u32 + quarter) as usize).min(CHORD_BINS - 1)
+    }
+
+    /// `bin_of` gives that bin for every chord up to 2^22 samples, every power of two and
+    /// its neighbours, and random chords up to `u32::MAX`.
+    #[test]
+    fn bins_equal_the_octave_form() {
+        let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
+        let random = (0..100_000).map(|_| {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x as u32
+        });
+        let edges = (0..32).flat_map(|k| {
+            let p = 1u32 << k;
+            [p - 1, p, p.saturating_add(1)]
+        });
+        for n in (0..1u32 << 22).chain(edges).chain(random).chain([u32::MAX]) {
+            assert_eq!(bin_of(n), bin_by_octave(n), "chord {n}");
         }
     }
 }

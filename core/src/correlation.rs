@@ -129,10 +129,12 @@ use heapless::Vec;
 
 mod analysis;
 mod correlator;
+mod run_buffer;
 mod tu_table;
 
 pub use analysis::{pearson, CorrelationResult, TU_WIDTH_RATIO};
-pub use correlator::{Correlator, LeadEdges, LeadInOrder, RunBuffer, TrailEdges, TrailInOrder};
+pub use correlator::{Correlator, LeadEdges, LeadInOrder, TrailEdges, TrailInOrder};
+pub use run_buffer::RunBuffer;
 pub use tu_table::tu_for_gaussian_velocity;
 
 /// The chain's default number of lag slots `L`: lags `0..=255`.

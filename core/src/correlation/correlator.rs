@@ -1,37 +1,13 @@
 //! The streaming [`Correlator`]: the window's sums kept as second differences over the lags,
-//! its run buffer ([`RunBuffer`]) and the edge sinks that feed it.
+//! and the edge sinks that feed it (through a [`RunBuffer`] run by run, or in time order).
 
 use super::analysis::{
     analyse_functions, pearson_finish_small, pearson_parts_masked, CorrelationResult, SMALL_N,
 };
-use super::{CorrelationSums, MAX_RUN_FRAMES};
+use super::run_buffer::{RunBuffer, RISING_BIT};
+use super::CorrelationSums;
 use crate::flags::Flags;
 use crate::phase::{Edge, EdgeSink};
-
-/// Bit of a pending entry that marks a rising (water -> air) edge.
-const RISING_BIT: u16 = 1 << 15;
-
-/// Add the ramp `c * ramp(tau - p)` to the second-difference array `d` over lags
-/// `0..=max_lag` (see the module documentation).
-/// (`d` holds two's-complement `i32` values in `u32` slots: the wrapping operations are
-/// the same bit for bit.)
-#[inline]
-fn add_ramp(d: &mut [u32], max_lag: usize, p: i32, c: i32) {
-    if p >= 0 {
-        if (p as usize) < max_lag {
-            if let Some(x) = d.get_mut(p as usize + 1) {
-                *x = x.wrapping_add(c as u32);
-            }
-        }
-    } else {
-        if let Some(x) = d.first_mut() {
-            *x = x.wrapping_sub(c.wrapping_mul(p) as u32);
-        }
-        if let Some(x) = d.get_mut(1) {
-            *x = x.wrapping_add(c.wrapping_mul(p.wrapping_add(1)) as u32);
-        }
-    }
-}
 
 /// The double prefix sum of the second differences `d` (two's-complement `i32` values), in
 /// place, clamped at 0 (exact sums are never negative). The sums of a window count frame
@@ -70,17 +46,40 @@ impl<const L: usize> Ring<L> {
     }
 
     /// The pairs of the edges of the last `m` frames (first factor) with an edge `(t, e)`
-    /// (second): each adds the ramp `-e_i e ramp(tau - (t - t_i))` to `d`.
+    /// (second): each adds the ramp `-e_i e ramp(tau - p)`, `p = t - t_i` in `0..m`, whose
+    /// second difference is `-e_i e` at `d[p + 1]`. Newest first, until an edge lies `m`
+    /// or more frames back (or after `t`), over the ring as two plain slices (before
+    /// `next`, then from `next` on): no index wrap, no multiplication (`-e_i e` is `±e`).
     #[inline]
-    fn add_pairs(&self, d: &mut [u32], m: usize, t: i32, e: i32) {
-        self.for_each_recent(|ti, ei| {
-            let p = t.wrapping_sub(ti);
-            if p as usize >= m {
-                return false;
+    fn add_pairs(&self, d: &mut [u32; L], m: usize, t: i32, e: i32) {
+        // `d[p + 1]` for `p < m <= L - 1`: the slots after the first.
+        let Some((_, d1)) = d.split_first_mut() else {
+            return;
+        };
+        let m = m.min(d1.len()) as u32;
+        // `next == len` until the ring is full (`push` and `clear` keep it so): the edges
+        // are those before `next`, and once it is full those from `next` on.
+        let (newer, older) = self.edges.split_at(self.next.min(L));
+        let older = if self.len >= L { older } else { &[] };
+        let mut pairs = |edges: &[u32]| -> bool {
+            for &v in edges.iter().rev() {
+                // A negative lag (an edge after `t`) wraps to 2^31 or more: past `m`.
+                let p = t.wrapping_sub((v >> 1) as i32) as u32;
+                if p >= m {
+                    return false;
+                }
+                // -e_i e: -e for a rising edge i (e_i = 1), e for a falling one.
+                let rising = (v & 1).wrapping_neg() as i32;
+                let c = (e ^ rising).wrapping_sub(rising);
+                if let Some(x) = d1.get_mut(p as usize) {
+                    *x = x.wrapping_add(c as u32);
+                }
             }
-            add_ramp(d, m, p, -ei * e);
             true
-        });
+        };
+        if pairs(newer) {
+            pairs(older);
+        }
     }
 
     /// Visit the edges `(t, e)`, newest first, until `f` returns false.
@@ -98,79 +97,10 @@ impl<const L: usize> Ring<L> {
     }
 }
 
-/// The leading tip's edges of one run, waiting for the trailing tip's edges of the same
-/// frames (see the [module documentation](self)): at most one per frame of a run of at
-/// most [`MAX_RUN_FRAMES`] frames.
-///
-/// Only one correlator uses it at a time, from [`Correlator::begin_run`] to
-/// [`Correlator::end_run`] (which merges what is left), so one buffer serves every
-/// correlator of a chain: the chain lends it to each probe's correlator in turn, instead of
-/// keeping 2 KiB per probe.
-#[derive(Clone, Debug)]
-pub struct RunBuffer {
-    /// Offset from the run start, with [`RISING_BIT`].
-    edges: [u16; MAX_RUN_FRAMES],
-    len: usize,
-    pos: usize,
-    run_start: u64,
-}
-
-impl Default for RunBuffer {
-    fn default() -> Self {
-        Self::new()
-    }
-}
-
-impl RunBuffer {
-    /// An empty buffer (all zero bytes: a `static` of it lands in `.bss`).
-    pub const fn new() -> Self {
-        RunBuffer {
-            edges: [0; MAX_RUN_FRAMES],
-            len: 0,
-            pos: 0,
-            run_start: 0,
-        }
-    }
-
-    /// Start a run at absolute frame `first` (anything held is forgotten).
-    fn begin(&mut self, first: u64) {
-        self.len = 0;
-        self.pos = 0;
-        self.run_start = first;
-    }
-
-    /// Hold an edge of the current run; false if it does not fit (beyond the buffer, before
-    /// the run, or too far into it).
-    #[inline]
-    fn hold(&mut self, edge: Edge) -> bool {
-        let off = edge.frame.wrapping_sub(self.run_start);
-        match self.edges.get_mut(self.len) {
-            Some(s) if edge.frame >= self.run_start && off < RISING_BIT as u64 => {
-                *s = off as u16 | if edge.to_air { RISING_BIT } else { 0 };
-                self.len += 1;
-                true
-            }
-            _ => false,
-        }
-    }
-
-    /// The oldest held edge at or before absolute frame `upto`, taken out of the buffer.
-    #[inline]
-    fn take_upto(&mut self, upto: u64) -> Option<(u64, bool)> {
-        let &v = self.edges.get(self.pos).filter(|_| self.pos < self.len)?;
-        let frame = self.run_start.saturating_add((v & !RISING_BIT) as u64);
-        if frame > upto {
-            return None;
-        }
-        self.pos += 1;
-        Some((frame, v & RISING_BIT != 0))
-    }
-}
-
 /// Streaming correlation of one dual-tip probe, fed with the tips' interfaces.
 ///
 /// Drive it as the chain does, either
-/// - tip by tip: for each run of at most [`MAX_RUN_FRAMES`] frames,
+/// - tip by tip: for each run of at most [`MAX_RUN_FRAMES`](super::MAX_RUN_FRAMES) frames,
 ///   [`begin_run`](Self::begin_run), the leading tip's edges through
 ///   [`lead`](Self::lead), the trailing tip's edges of the same frames through
 ///   [`trail`](Self::trail), then [`end_run`](Self::end_run), all with the same
@@ -196,10 +126,11 @@ pub struct Correlator<const L: usize> {
     ring: Ring<L>,
     lead_air: bool,
     trail_air: bool,
-    /// Running `sum e` and `sum e t` over the merged edges of each tip.
-    lead_e: i64,
+    /// Running `sum e` (modulo 2^32: it goes only into the lag sums) and `sum e t` over
+    /// the merged edges of each tip.
+    lead_e: i32,
     lead_q: i64,
-    trail_e: i64,
+    trail_e: i32,
     trail_q: i64,
     overflow: bool,
 }
@@ -569,60 +500,154 @@ impl<const L: usize> Correlator<L> {
     /// Merge the held leading-tip edges at or before absolute frame `upto`.
     #[inline]
     fn drain(&mut self, buf: &mut RunBuffer, upto: u64) {
-        while let Some((frame, rising)) = buf.take_upto(upto) {
-            let t = self.rel(frame);
-            self.lead_edge(t, rising);
+        match (buf.pos < buf.len, self.run_base(buf)) {
+            (true, Some(base)) => {
+                // The last offset due: `upto - run_start` (every held offset when `upto`
+                // is `u64::MAX`, which no held frame passes; none before the run).
+                let last = match upto.checked_sub(buf.run_start) {
+                    _ if upto == u64::MAX => u32::MAX,
+                    Some(d) => d.min(u32::MAX as u64) as u32,
+                    None => return,
+                };
+                self.drain_short(buf, base, last);
+            }
+            (true, None) => {
+                while let Some((frame, rising)) = buf.take_upto(upto) {
+                    let t = self.rel(frame);
+                    self.lead_edge(t, rising);
+                }
+            }
+            (false, _) => {}
         }
-        if buf.pos >= buf.len {
-            // Everything merged: the whole buffer is free again.
-            buf.len = 0;
-            buf.pos = 0;
+        buf.free_if_merged();
+    }
+
+    /// The window time of the run start if the run starts in the window less than
+    /// `2^31 - 2^15` frames in (and no held frame passes `u64::MAX`): then an edge held
+    /// `off` frames into the run has window time `base + off`, as [`rel`](Self::rel) gives.
+    #[inline]
+    fn run_base(&self, buf: &RunBuffer) -> Option<i32> {
+        const SPAN: u64 = RISING_BIT as u64;
+        let base = buf.run_start.checked_sub(self.start)?;
+        let fits = base < MAX_WINDOW_FRAMES + 1 - SPAN && buf.run_start <= u64::MAX - SPAN;
+        fits.then_some(base as i32)
+    }
+
+    /// Merge the held edges at most `last` frames into a run with 32-bit window times
+    /// ([`run_base`](Self::run_base)): the edges [`RunBuffer::take_upto`] would give.
+    #[inline]
+    fn drain_short(&mut self, buf: &mut RunBuffer, base: i32, last: u32) {
+        while let Some(&v) = buf.edges.get(buf.pos).filter(|_| buf.pos < buf.len) {
+            let off = (v & !RISING_BIT) as u32;
+            if off > last {
+                break;
+            }
+            buf.pos += 1;
+            self.lead_edge_short(base + off as i32, v & RISING_BIT != 0);
+        }
+    }
+
+    /// An edge of the trailing tip of the current run: the held leading edges up to its
+    /// frame merged first.
+    #[inline]
+    fn trail_run_edge(&mut self, buf: &mut RunBuffer, edge: Edge) {
+        let off = edge.frame.checked_sub(buf.run_start);
+        match (self.run_base(buf), off.filter(|&o| o < RISING_BIT as u64)) {
+            // Inside a run with 32-bit window times (as `drain` and `rel` give it).
+            (Some(base), Some(off)) => {
+                self.drain_short(buf, base, off as u32);
+                buf.free_if_merged();
+                self.trail_edge_short(base + off as i32, edge.to_air);
+            }
+            _ => {
+                self.drain(buf, edge.frame);
+                let t = self.rel(edge.frame);
+                self.trail_edge(t, edge.to_air);
+            }
         }
     }
 
     /// A merged edge of the leading tip at window time `t`.
     fn lead_edge(&mut self, t: i64, rising: bool) {
-        let e: i64 = if rising { 1 } else { -1 };
-        self.lead_air = rising;
-        if let Some(t) = self.window_time(t) {
-            let e = e as i32;
-            let m = self.max_lag;
-            // Auto, this edge second: earlier edges of the last max_lag frames, and itself.
-            let auto = &mut self.auto;
-            add_ramp(auto, m, 0, -1);
-            self.ring.add_pairs(auto, m, t, e);
-            // Auto, this edge first, every earlier edge second (p < 0): a straight line.
-            add_line(auto, t, e, self.lead_e, self.lead_q);
-            // Cross, this edge first, every earlier trailing edge second.
-            add_line(&mut self.cross, t, e, self.trail_e, self.trail_q);
-            self.ring.push(t, rising);
+        match i32::try_from(t) {
+            Ok(t) => self.lead_edge_short(t, rising),
+            Err(_) => {
+                // Past the window times the lag sums keep (no lag slot is that far):
+                // flagged, counted in the sums over the tip's edges only.
+                self.overflow = true;
+                self.lead_air = rising;
+                far_edge(&mut self.lead_e, &mut self.lead_q, t, rising);
+            }
         }
-        add_head(&mut self.lead_head, self.max_lag, t, e);
+    }
+
+    /// [`lead_edge`](Self::lead_edge) at a 32-bit window time.
+    #[inline(never)]
+    fn lead_edge_short(&mut self, t: i32, rising: bool) {
+        let e: i32 = if rising { 1 } else { -1 };
+        self.lead_air = rising;
+        let m = self.max_lag;
+        // Auto, this edge second: earlier edges of the last max_lag frames, and itself.
+        let auto = &mut self.auto;
+        // Itself, lag 0: the ramp -ramp(tau), whose second difference is -1 at lag 1.
+        if m > 0 {
+            if let Some(x) = auto.get_mut(1) {
+                *x = x.wrapping_sub(1);
+            }
+        }
+        self.ring.add_pairs(auto, m, t, e);
+        // Auto, this edge first, every earlier edge second (p < 0): a straight line.
+        add_line(auto, t, e, self.lead_e, self.lead_q);
+        // Cross, this edge first, every earlier trailing edge second.
+        add_line(&mut self.cross, t, e, self.trail_e, self.trail_q);
+        self.ring.push(t, rising);
+        add_head(&mut self.lead_head, m, t, e);
         self.lead_e = self.lead_e.wrapping_add(e);
-        self.lead_q = self.lead_q.wrapping_add(e.wrapping_mul(t));
+        self.lead_q = self.lead_q.wrapping_add(signed(t, rising));
     }
 
     /// An edge of the trailing tip at window time `t` (every leading edge up to `t` merged).
     fn trail_edge(&mut self, t: i64, rising: bool) {
-        let e: i64 = if rising { 1 } else { -1 };
-        self.trail_air = rising;
-        if let Some(t) = self.window_time(t) {
-            let e = e as i32;
-            let m = self.max_lag;
-            self.ring.add_pairs(&mut self.cross, m, t, e);
+        match i32::try_from(t) {
+            Ok(t) => self.trail_edge_short(t, rising),
+            Err(_) => {
+                // As in `lead_edge`.
+                self.overflow = true;
+                self.trail_air = rising;
+                far_edge(&mut self.trail_e, &mut self.trail_q, t, rising);
+            }
         }
-        add_head(&mut self.trail_head, self.max_lag, t, e);
-        self.trail_e = self.trail_e.wrapping_add(e);
-        self.trail_q = self.trail_q.wrapping_add(e.wrapping_mul(t));
     }
 
-    /// Window time `t` in 32 bits, or `None` (the window flagged) past [`MAX_WINDOW_FRAMES`]:
-    /// the lag sums are kept in 32 bits.
-    #[inline]
-    fn window_time(&mut self, t: i64) -> Option<i32> {
-        let t = i32::try_from(t).ok();
-        self.overflow |= t.is_none();
+    /// [`trail_edge`](Self::trail_edge) at a 32-bit window time.
+    #[inline(never)]
+    fn trail_edge_short(&mut self, t: i32, rising: bool) {
+        let e: i32 = if rising { 1 } else { -1 };
+        self.trail_air = rising;
+        let m = self.max_lag;
+        self.ring.add_pairs(&mut self.cross, m, t, e);
+        add_head(&mut self.trail_head, m, t, e);
+        self.trail_e = self.trail_e.wrapping_add(e);
+        self.trail_q = self.trail_q.wrapping_add(signed(t, rising));
+    }
+}
+
+/// The running sums `sum e` and `sum e t` of a tip after an edge at window time `t` past
+/// 32 bits.
+fn far_edge(se: &mut i32, sq: &mut i64, t: i64, rising: bool) {
+    let e: i64 = if rising { 1 } else { -1 };
+    *se = se.wrapping_add(e as i32);
+    *sq = sq.wrapping_add(e.wrapping_mul(t));
+}
+
+/// `e t` for an edge at window time `t` (`e` is 1 for a rising edge, -1 for a falling one).
+#[inline]
+fn signed(t: i32, rising: bool) -> i64 {
+    let t = t as i64;
+    if rising {
         t
+    } else {
+        -t
     }
 }
 
@@ -635,9 +660,9 @@ const MAX_WINDOW_FRAMES: u64 = i32::MAX as u64;
 /// (running sums `se = sum e_j`, `sq = sum e_j t_j`): `p = t_j - t < 0`, so each adds the
 /// line `c (tau - p)`, `c = -e e_j`.
 #[inline]
-fn add_line(d: &mut [u32], t: i32, e: i32, se: i64, sq: i64) {
+fn add_line(d: &mut [u32], t: i32, e: i32, se: i32, sq: i64) {
     // The running sums in 32 bits: the sums they go into are kept modulo 2^32.
-    let (se, sq) = (se as i32, sq as i32);
+    let sq = sq as i32;
     // D[0] += sum -c p = e (sq - t se);  D[1] += sum c (1 + p) = -e (se (1 - t) + sq).
     // A tip's edges alternate, so `se` is 0 or 1 and `e` is +1 or -1: those products are
     // a choice or a negation; any other value takes the multiplication. The same wrapping
@@ -664,10 +689,10 @@ fn add_line(d: &mut [u32], t: i32, e: i32, se: i64, sq: i64) {
 
 /// An edge `(t, e)` adds `e ramp(tau - t)` to the air count of the first `tau` frames.
 #[inline]
-fn add_head(d: &mut [u32], max_lag: usize, t: i64, e: i64) {
-    if (0..max_lag as i64).contains(&t) {
+fn add_head(d: &mut [u32], max_lag: usize, t: i32, e: i32) {
+    if (t as u32 as usize) < max_lag {
         if let Some(x) = d.get_mut(t as usize + 1) {
-            *x = x.wrapping_add(e as i32 as u32);
+            *x = x.wrapping_add(e as u32);
         }
     }
 }
@@ -688,10 +713,7 @@ pub struct TrailEdges<'a, const L: usize>(&'a mut Correlator<L>, &'a mut RunBuff
 impl<const L: usize> EdgeSink for TrailEdges<'_, L> {
     #[inline]
     fn edge(&mut self, edge: Edge) {
-        let c = &mut *self.0;
-        c.drain(self.1, edge.frame);
-        let t = c.rel(edge.frame);
-        c.trail_edge(t, edge.to_air);
+        self.0.trail_run_edge(self.1, edge);
     }
 }
 

@@ -296,3 +296,103 @@ fn sqrt_is_accurate() {
     assert_eq!(sqrt(0.0), 0.0);
     assert_eq!(sqrt(-1.0), 0.0);
 }
+
+/// Fed tip by tip in runs (the leading tip's edges held in the run buffer, merged as the
+/// trailing tip's come), the correlator gives the sums and flags it gives fed in time
+/// order, bit for bit: random signals, runs of random lengths, windows that start at
+/// frame 0 and far into a window (runs near and past 2^31 frames from its start, where
+/// the window times no longer fit 32 bits and the window is flagged).
+#[test]
+fn runs_of_held_edges_equal_edges_in_time_order() {
+    let mut x: u64 = 0x2545_F491_4F6C_DD1D;
+    let mut next = move |m: u64| {
+        x ^= x << 13;
+        x ^= x >> 7;
+        x ^= x << 17;
+        x % m
+    };
+    for case in 0..300 {
+        let n = 1 + next(700) as usize;
+        let p_change = 1 + next(30);
+        let mut signal = |start: bool| -> std::vec::Vec<bool> {
+            let mut v = start;
+            (0..n)
+                .map(|_| {
+                    if next(p_change) == 0 {
+                        v = !v;
+                    }
+                    v
+                })
+                .collect()
+        };
+        let (a0, b0) = (case % 2 == 0, case % 3 == 0);
+        let (a, b) = (signal(a0), signal(b0));
+        // Where the signals begin, frames into the window.
+        let into = match case % 4 {
+            0 => 0,
+            1 => 3,
+            2 => (1u64 << 31) - (1 << 15) - next(1000),
+            _ => (1u64 << 31) - next(300),
+        };
+        let start = next(1 << 20);
+        let first = start + into;
+        let max_lag = next(40) as u16;
+        let end = first + n as u64 + next(5);
+        let (ea, eb) = (edges(&a, first, a0), edges(&b, first, b0));
+
+        let mut ordered = Correlator::<40>::new(max_lag, start, a0, b0);
+        // Both tips' edges in time order, the leading tip's first at the same frame.
+        let (mut i, mut j) = (0, 0);
+        while i < ea.len() || j < eb.len() {
+            if j >= eb.len() || (i < ea.len() && ea[i].frame <= eb[j].frame) {
+                ordered.lead_in_order().edge(ea[i]);
+                i += 1;
+            } else {
+                ordered.trail_in_order().edge(eb[j]);
+                j += 1;
+            }
+        }
+
+        let mut runs = Correlator::<40>::new(max_lag, start, a0, b0);
+        let mut buf = RunBuffer::new();
+        let mut at = first;
+        let (mut i, mut j) = (0, 0);
+        while at < first + n as u64 {
+            let len = 1 + next(MAX_RUN_FRAMES as u64);
+            let stop = (at + len).min(first + n as u64);
+            runs.begin_run(at, &mut buf);
+            while i < ea.len() && ea[i].frame < stop {
+                runs.lead(&mut buf).edge(ea[i]);
+                i += 1;
+            }
+            while j < eb.len() && eb[j].frame < stop {
+                runs.trail(&mut buf).edge(eb[j]);
+                j += 1;
+            }
+            runs.end_run(&mut buf);
+            at = stop;
+        }
+
+        let (mut f1, mut f2) = (Flags::NONE, Flags::NONE);
+        let s1 = ordered.close(end, &mut f1);
+        let s2 = runs.close(end, &mut f2);
+        assert_eq!(
+            std::format!("{s1:?}"),
+            std::format!("{s2:?}"),
+            "case {case}"
+        );
+        assert_eq!(f1, f2, "case {case}");
+        if into == 0 {
+            assert!(f1.is_empty(), "case {case}");
+            // And the direct sums over the window (the last phases held to its end).
+            let hold = |x: &[bool]| {
+                let mut v = x.to_vec();
+                v.resize((end - start) as usize, *x.last().unwrap_or(&false));
+                v
+            };
+            let (cross, auto) = direct(&hold(&a), &hold(&b), max_lag as usize + 1);
+            assert_eq!(s1.cross.as_slice(), cross.as_slice(), "case {case}");
+            assert_eq!(s1.auto.as_slice(), auto.as_slice(), "case {case}");
+        }
+    }
+}
