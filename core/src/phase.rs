@@ -178,6 +178,9 @@ pub struct PhaseDetector {
     rail_high: i16,
     min_swing: u16,
     learn_period: u64,
+    /// [`tracking_stride`] of `learn_period`, worked out once (it takes 64-bit divisions,
+    /// library calls on a 32-bit core, which every run would otherwise pay).
+    track_stride: u8,
     thresholds: Option<Thresholds>,
     levels: Option<Levels>,
     learner: Option<LevelLearner>,
@@ -196,6 +199,7 @@ impl PhaseDetector {
         rail_high: 0,
         min_swing: 0,
         learn_period: 0,
+        track_stride: 0,
         thresholds: None,
         levels: None,
         learner: Some(LevelLearner::ZERO),
@@ -226,6 +230,7 @@ impl PhaseDetector {
             rail_high: det.rail_high,
             min_swing: det.min_swing,
             learn_period: det.learn_period.max(64) as u64,
+            track_stride: tracking_stride(det.learn_period.max(64) as u64) as u8,
             thresholds,
             levels,
             learner,
@@ -261,6 +266,7 @@ impl PhaseDetector {
         self.rail_high = det.rail_high;
         self.min_swing = det.min_swing;
         self.learn_period = det.learn_period.max(64) as u64;
+        self.track_stride = tracking_stride(self.learn_period) as u8;
         self.thresholds =
             levels.map(|l| Thresholds::from_levels(l, sign, det.threshold, det.hysteresis));
         self.levels = levels;
@@ -358,7 +364,7 @@ impl PhaseDetector {
     /// absolute frame index.
     fn learn_stride(&self) -> u64 {
         if self.levels.is_some() {
-            tracking_stride(self.learn_period)
+            self.track_stride as u64
         } else {
             LEARN_STRIDE
         }
