@@ -110,8 +110,10 @@ fn emit<'b, T: Serialize + ?Sized>(
 /// bytes at `buf[from..]` to the start of `buf`, then the 0x00 delimiter; returns the
 /// encoded length, delimiter included (`None` if `buf` is too short). The output never
 /// overtakes the input when `from >= 1 + n / 254`: after `i` bytes read, at most
-/// `1 + i + i / 254` are written. Blocks as the `cobs` crate's encoder makes them (a block
-/// of 254 data bytes is closed with code 0xFF, a final empty block then has code 1).
+/// `1 + i + i / 254` are written. Blocks as postcard's COBS flavour makes them: a block of
+/// 254 data bytes is closed with code 0xFF, and when the data end there a final empty
+/// block of code 1 follows (the `cobs` crate's `encode` leaves that one out; both decode to
+/// the same bytes).
 fn cobs_forward(buf: &mut [u8], from: usize, n: usize) -> Option<usize> {
     let mut code_at = 0;
     let mut w = 1;
