@@ -8,7 +8,8 @@
 //! 1979, "A threshold selection method from gray-level histograms"), each class's level is
 //! the mode refined by the mean of the samples in the mode bin and its neighbours, and the
 //! split is accepted only if it is clearly bimodal (Otsu's separability eta >= 0.75, each
-//! class holding >= 0.5 % of the samples, the swing at least `min_swing` counts). A period
+//! class holding >= 0.5 % of the samples, the swing at least `min_swing` counts and
+//! [`MIN_SWING_BINS`] bins). A period
 //! that fails keeps the previous levels, so a tip sitting in one phase keeps its last good
 //! levels. The bin range of each period comes from the previous period's min/max, so the
 //! learnt levels do not depend on the ADC's scale; the very first period spends its first
@@ -44,6 +45,14 @@ pub const fn tracking_stride(learn_period: u64) -> u64 {
 /// Smallest accepted Otsu separability (between-class over total variance). A single
 /// Gaussian mode gives 2/pi = 0.64; two well-separated modes give close to 1.
 pub const MIN_SEPARABILITY: f32 = 0.75;
+
+/// Smallest accepted swing in bin widths. Noise of one phase alone that falls in a few
+/// wide bins (the bins are set by the previous period's full swing) can pass Otsu's
+/// separability, since two occupied bins separate completely; its two "levels" then lie
+/// within a couple of bins of each other. A real air-water swing spans at least a fifth of
+/// the bins (the range is the previous period's span padded by half, its bin width rounded
+/// up to a power of two), so this refuses only noise.
+pub const MIN_SWING_BINS: f32 = 4.0;
 
 /// The two levels of a tip, in ADC counts.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -374,7 +383,9 @@ impl LevelLearner {
         let low = self.mean_of(ml.saturating_sub(1), (ml + 1).min(best_k));
         let high = self.mean_of((mh - 1).max(best_k + 1), (mh + 1).min(LEARN_BINS - 1));
         match (low, high) {
-            (Some(low), Some(high)) if high - low >= min_swing as f32 => {
+            (Some(low), Some(high))
+                if high - low >= (min_swing as f32).max(MIN_SWING_BINS * width) =>
+            {
                 Learnt::Modes { low, high }
             }
             _ => Learnt::Unclear,
@@ -504,6 +515,52 @@ mod tests {
         assert_eq!(a.offsets, b.offsets);
         assert_eq!((a.min, a.max), (b.min, b.max));
         assert_eq!(a.finish_period(64), b.finish_period(64));
+    }
+
+    /// A period in which the tip stays in water, after a period that saw both phases (so
+    /// the bins are wide, set by the full swing), holds only the water noise in a few
+    /// bins. Such a histogram can look perfectly bimodal to Otsu's criterion (two occupied
+    /// bins separate completely), so its split must be refused on its width: for Gaussian
+    /// noise of any width from a tenth of a bin to ten bins the period is `Unclear` and the
+    /// levels are kept. A two-level period in the same bins is still learnt. (Analytic
+    /// case: noise alone has no second level.)
+    #[test]
+    fn water_noise_alone_is_not_split_in_two() {
+        let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
+        let mut uniform = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            (x >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let two_levels: std::vec::Vec<i16> = (0..4000)
+            .map(|i| if (i / 40) % 2 == 0 { 3000 } else { 26000 })
+            .collect();
+        for tenth in 1..=100 {
+            let mut l = LevelLearner::new();
+            l.observe(&two_levels, 1, 0, 0);
+            l.range_from_seen();
+            l.observe(&two_levels, 1, 0, 0);
+            let mut both = l.clone();
+            assert!(matches!(both.finish_period(64), Learnt::Modes { .. }));
+            let sigma = tenth as f64 / 10.0 * (1u32 << l.shift) as f64;
+            l.finish_period(64);
+            let noise: std::vec::Vec<i16> = (0..4000)
+                .map(|_| {
+                    // Box-Muller.
+                    let (u, v) = (uniform().max(1e-12), uniform());
+                    let g = (-2.0 * u.ln()).sqrt() * (2.0 * core::f64::consts::PI * v).cos();
+                    (3000.0 + sigma * g).round() as i16
+                })
+                .collect();
+            l.observe(&noise, 1, 0, 0);
+            let got = l.finish_period(64);
+            assert_eq!(
+                got,
+                Learnt::Unclear,
+                "noise sigma {sigma:.0} counts: {got:?}"
+            );
+        }
     }
 
     /// The learnt levels of a two-level signal (analytic case: the mode bins' means).
