@@ -319,35 +319,41 @@ impl LevelLearner {
         })
     }
 
-    fn decide(&self, min_swing: u16, min_class: Option<u64>) -> Learnt {
-        if !self.ranged {
-            return Learnt::Unclear;
-        }
+    /// Otsu's split of the histogram of `nt` samples: `(eta, k)`, the separability and the
+    /// last bin of the low class, or `None` for a histogram without spread.
+    fn otsu_split(&self, nt: f32) -> Option<(f32, usize)> {
         let width = (1u32 << self.shift) as f32;
         let centre = |b: usize| self.bin_low(b) + 0.5 * width;
-        let total: u64 = self.counts.iter().map(|&c| c as u64).sum();
-        if total < 16 {
-            return Learnt::Unclear;
-        }
-        let nt = total as f32;
+        // Empty bins are skipped in the three sums below: each would add an exact zero
+        // (a zero count times a finite value) and, in the split search, repeat the
+        // previous split's between-class variance, which never beats the best so far. The
+        // sums and the split are those of every bin, bit for bit; a two-level histogram
+        // fills only a few of its bins, so most of a decision's float work is spared.
         let mut mean_t = 0f32;
         for b in 0..LEARN_BINS {
-            mean_t += self.counts[b] as f32 * centre(b);
+            if self.counts[b] != 0 {
+                mean_t += self.counts[b] as f32 * centre(b);
+            }
         }
         mean_t /= nt;
         let mut var_t = 0f32;
         for b in 0..LEARN_BINS {
-            let d = centre(b) - mean_t;
-            var_t += self.counts[b] as f32 * d * d;
+            if self.counts[b] != 0 {
+                let d = centre(b) - mean_t;
+                var_t += self.counts[b] as f32 * d * d;
+            }
         }
         var_t /= nt;
         if var_t <= 0.0 {
-            return Learnt::Unclear;
+            return None;
         }
         // Otsu: maximise the between-class variance over split points.
         let (mut w0, mut m0) = (0f32, 0f32);
         let (mut best, mut best_k) = (0f32, 0usize);
         for k in 0..LEARN_BINS - 1 {
+            if self.counts[k] == 0 {
+                continue;
+            }
             let c = self.counts[k] as f32 / nt;
             w0 += c;
             m0 += c * centre(k);
@@ -362,7 +368,21 @@ impl LevelLearner {
                 best_k = k;
             }
         }
-        let eta = best / var_t;
+        Some((best / var_t, best_k))
+    }
+
+    fn decide(&self, min_swing: u16, min_class: Option<u64>) -> Learnt {
+        if !self.ranged {
+            return Learnt::Unclear;
+        }
+        let width = (1u32 << self.shift) as f32;
+        let total: u64 = self.counts.iter().map(|&c| c as u64).sum();
+        if total < 16 {
+            return Learnt::Unclear;
+        }
+        let Some((eta, best_k)) = self.otsu_split(total as f32) else {
+            return Learnt::Unclear;
+        };
         let low_n: u64 = self.counts[..=best_k].iter().map(|&c| c as u64).sum();
         let high_n = total - low_n;
         let min_class = min_class.unwrap_or((total / 200).max(2));
@@ -560,6 +580,73 @@ mod tests {
                 Learnt::Unclear,
                 "noise sigma {sigma:.0} counts: {got:?}"
             );
+        }
+    }
+
+    /// Otsu's split over every bin, as written in the definition (no bin skipped).
+    fn otsu_every_bin(l: &LevelLearner, nt: f32) -> Option<(f32, usize)> {
+        let width = (1u32 << l.shift) as f32;
+        let centre = |b: usize| l.bin_low(b) + 0.5 * width;
+        let mut mean_t = 0f32;
+        for b in 0..LEARN_BINS {
+            mean_t += l.counts[b] as f32 * centre(b);
+        }
+        mean_t /= nt;
+        let mut var_t = 0f32;
+        for b in 0..LEARN_BINS {
+            let d = centre(b) - mean_t;
+            var_t += l.counts[b] as f32 * d * d;
+        }
+        var_t /= nt;
+        if var_t <= 0.0 {
+            return None;
+        }
+        let (mut w0, mut m0) = (0f32, 0f32);
+        let (mut best, mut best_k) = (0f32, 0usize);
+        for k in 0..LEARN_BINS - 1 {
+            let c = l.counts[k] as f32 / nt;
+            w0 += c;
+            m0 += c * centre(k);
+            let w1 = 1.0 - w0;
+            if w0 <= 0.0 || w1 <= 0.0 {
+                continue;
+            }
+            let d = mean_t * w0 - m0;
+            let between = d * d / (w0 * w1);
+            if between > best {
+                best = between;
+                best_k = k;
+            }
+        }
+        Some((best / var_t, best_k))
+    }
+
+    /// The split that skips empty bins is the split over every bin, bit for bit, on
+    /// random histograms from one bin to all 64 filled, at any origin and bin width.
+    #[test]
+    fn otsu_split_equals_the_split_over_every_bin() {
+        let mut x: u64 = 0x1234_5678_9ABC_DEF1;
+        let mut next = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        };
+        for case in 0..20_000 {
+            let mut l = LevelLearner::new();
+            l.ranged = true;
+            l.shift = (next() % 11) as u32;
+            l.origin = (next() % 60_000) as i32 - 32_768;
+            let filled = 1 + next() % 64;
+            for _ in 0..filled {
+                let b = (next() % 64) as usize;
+                l.counts[b] = (next() % 3000) as u32;
+            }
+            let total: u64 = l.counts.iter().map(|&c| c as u64).sum();
+            let nt = total.max(1) as f32;
+            let got = l.otsu_split(nt).map(|(e, k)| (e.to_bits(), k));
+            let want = otsu_every_bin(&l, nt).map(|(e, k)| (e.to_bits(), k));
+            assert_eq!(got, want, "case {case}");
         }
     }
 
