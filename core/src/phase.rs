@@ -318,8 +318,11 @@ impl PhaseDetector {
             if n == 0 {
                 break;
             }
-            let take = match self.learner {
-                Some(_) => (self.next_learn_event(at) - at).min(n as u64) as usize,
+            // The learning event this run ends at, if it reaches it (every frame before
+            // the event has it as its next one, so it is worked out once per run).
+            let event = self.learner.as_ref().map(|_| self.next_learn_event(at));
+            let take = match event {
+                Some(e) => (e - at).min(n as u64) as usize,
                 None => n,
             };
             let (now, later) = rest.split_at(take * channels);
@@ -336,7 +339,7 @@ impl PhaseDetector {
             counts.unlearnt += c.unlearnt;
             at += take as u64;
             rest = later;
-            if self.learner.is_some() && at == self.next_learn_event(at - 1) {
+            if event == Some(at) {
                 self.learn_event(at);
             }
         }

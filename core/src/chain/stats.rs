@@ -184,13 +184,13 @@ impl<const P: usize, const L: usize, const S: usize, const T: usize, const Q: us
         done
     }
 
-    /// The next learning event of any tip (all learning tips share the period).
+    /// The next learning event of any tip: the first learning tip's, as all learning tips
+    /// share the period (one division per run, not one per tip).
     pub(super) fn next_learn_stop(&self) -> Option<u64> {
         self.probes
             .iter()
             .flat_map(|p| core::iter::once(&p.lead).chain(p.trail()))
-            .filter_map(|t| t.detector.next_stop(self.frame))
-            .min()
+            .find_map(|t| t.detector.next_stop(self.frame))
     }
 
     /// Run every tip over one run of whole frames (no learning event inside): frame-major
