@@ -186,41 +186,37 @@ impl LevelLearner {
             return;
         }
         let step = stride as usize * channels;
-        let (mut lo, mut hi) = (self.min, self.max);
+        // The running extremes as i32 (no sign extension of an i16 at every sample).
+        let (mut lo, mut hi) = (self.min as i32, self.max as i32);
         let mut i = start;
         if self.ranged {
             let (origin, shift) = (self.origin, self.shift);
-            let mask = (1i32 << shift) - 1;
-            while let Some(&x) = frames.get(i) {
+            // The last offset of the range: samples beyond either end are clamped to it
+            // or to 0, so the end bins take them with the offset clamped to the bin (0
+            // below the range, the bin width less one above it).
+            let top = ((LEARN_BINS as i32) << shift) - 1;
+            for &x in frames.get(i..).unwrap_or(&[]).iter().step_by(step) {
+                let x = x as i32;
                 lo = lo.min(x);
                 hi = hi.max(x);
-                let rel = x as i32 - origin;
+                // (max then min, not clamp: no bounds assertion in the loop.)
+                let rel = (x - origin).max(0).min(top);
                 let bin = rel >> shift;
-                // Inside the range (the usual case) the sample's offset in its bin is its
-                // low bits; outside it, the end bins take it with the offset clamped to the
-                // bin (0 below the range, the bin width less one above it).
-                let (b, off) = if (bin as u32) < LEARN_BINS as u32 {
-                    (bin as usize, (rel & mask) as u32)
-                } else if rel < 0 {
-                    (0, 0)
-                } else {
-                    (LEARN_BINS - 1, mask as u32)
-                };
-                if let (Some(c), Some(o)) = (self.counts.get_mut(b), self.offsets.get_mut(b)) {
-                    *c = c.saturating_add(1);
-                    *o = o.saturating_add(off);
-                }
-                i += step;
+                let off = (rel - (bin << shift)) as u32;
+                let b = bin as usize & (LEARN_BINS - 1);
+                self.counts[b] = self.counts[b].saturating_add(1);
+                self.offsets[b] = self.offsets[b].saturating_add(off);
             }
         } else {
             while let Some(&x) = frames.get(i) {
-                lo = lo.min(x);
-                hi = hi.max(x);
+                lo = lo.min(x as i32);
+                hi = hi.max(x as i32);
                 i += step;
             }
         }
-        self.min = lo;
-        self.max = hi;
+        // Extremes of i16 samples (or the i16 start values): they fit.
+        self.min = lo as i16;
+        self.max = hi as i16;
     }
 
     /// Feed `count` samples of value `x` at once: the same state as `count` calls of
