@@ -106,14 +106,29 @@ pub enum Learnt {
     Unclear,
 }
 
+/// One histogram bin.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+struct Bin {
+    /// Samples in the bin.
+    count: u32,
+    /// Sum of (sample - bin lower edge), for sub-bin level estimates.
+    offset: u32,
+}
+
+impl Bin {
+    const ZERO: Bin = Bin {
+        count: 0,
+        offset: 0,
+    };
+}
+
 /// A fixed-size histogram that learns the two levels of a tip.
 #[derive(Clone, Debug)]
 pub struct LevelLearner {
     origin: i32,
     shift: u32,
-    counts: [u32; LEARN_BINS],
-    /// Sum of (sample - bin lower edge) per bin, for sub-bin level estimates.
-    offsets: [u32; LEARN_BINS],
+    /// Each bin's count and offset sum side by side, so a fed sample's bin is one address.
+    bins: [Bin; LEARN_BINS],
     min: i16,
     max: i16,
     ranged: bool,
@@ -131,8 +146,7 @@ impl LevelLearner {
     pub(crate) const ZERO: Self = LevelLearner {
         origin: 0,
         shift: 0,
-        counts: [0; LEARN_BINS],
-        offsets: [0; LEARN_BINS],
+        bins: [Bin::ZERO; LEARN_BINS],
         min: 0,
         max: 0,
         ranged: false,
@@ -143,8 +157,7 @@ impl LevelLearner {
         LevelLearner {
             origin: 0,
             shift: 0,
-            counts: [0; LEARN_BINS],
-            offsets: [0; LEARN_BINS],
+            bins: [Bin::ZERO; LEARN_BINS],
             min: i16::MAX,
             max: i16::MIN,
             ranged: false,
@@ -155,8 +168,7 @@ impl LevelLearner {
     pub fn reset(&mut self) {
         self.origin = 0;
         self.shift = 0;
-        self.counts = [0; LEARN_BINS];
-        self.offsets = [0; LEARN_BINS];
+        self.bins = [Bin::ZERO; LEARN_BINS];
         self.min = i16::MAX;
         self.max = i16::MIN;
         self.ranged = false;
@@ -204,8 +216,9 @@ impl LevelLearner {
                 let bin = rel >> shift;
                 let off = (rel - (bin << shift)) as u32;
                 let b = bin as usize & (LEARN_BINS - 1);
-                self.counts[b] = self.counts[b].saturating_add(1);
-                self.offsets[b] = self.offsets[b].saturating_add(off);
+                let bin = &mut self.bins[b];
+                bin.count = bin.count.saturating_add(1);
+                bin.offset = bin.offset.saturating_add(off);
             }
         } else {
             while let Some(&x) = frames.get(i) {
@@ -235,8 +248,10 @@ impl LevelLearner {
             let bin = (rel >> self.shift).clamp(0, LEARN_BINS as i32 - 1);
             let off = (rel - (bin << self.shift)).clamp(0, width - 1) as u32;
             let b = bin as usize;
-            self.counts[b] = self.counts[b].saturating_add(count);
-            self.offsets[b] = self.offsets[b].saturating_add(off.saturating_mul(count));
+            self.bins[b].count = self.bins[b].count.saturating_add(count);
+            self.bins[b].offset = self.bins[b]
+                .offset
+                .saturating_add(off.saturating_mul(count));
         }
     }
 
@@ -256,8 +271,7 @@ impl LevelLearner {
         let shift = 32 - (per_bin - 1).leading_zeros();
         self.origin = lo;
         self.shift = if per_bin == 1 { 0 } else { shift };
-        self.counts = [0; LEARN_BINS];
-        self.offsets = [0; LEARN_BINS];
+        self.bins = [Bin::ZERO; LEARN_BINS];
         self.min = i16::MAX;
         self.max = i16::MIN;
         self.ranged = true;
@@ -295,7 +309,7 @@ impl LevelLearner {
         let mut n = 0u64;
         let mut s = 0i64;
         for b in lo..=hi {
-            let (c, off) = (self.counts[b], self.offsets[b]);
+            let (c, off) = (self.bins[b].count, self.bins[b].offset);
             n += c as u64;
             let edge = self
                 .origin
@@ -327,16 +341,16 @@ impl LevelLearner {
         // fills only a few of its bins, so most of a decision's float work is spared.
         let mut mean_t = 0f32;
         for b in 0..LEARN_BINS {
-            if self.counts[b] != 0 {
-                mean_t += self.counts[b] as f32 * centre(b);
+            if self.bins[b].count != 0 {
+                mean_t += self.bins[b].count as f32 * centre(b);
             }
         }
         mean_t /= nt;
         let mut var_t = 0f32;
         for b in 0..LEARN_BINS {
-            if self.counts[b] != 0 {
+            if self.bins[b].count != 0 {
                 let d = centre(b) - mean_t;
-                var_t += self.counts[b] as f32 * d * d;
+                var_t += self.bins[b].count as f32 * d * d;
             }
         }
         var_t /= nt;
@@ -347,10 +361,10 @@ impl LevelLearner {
         let (mut w0, mut m0) = (0f32, 0f32);
         let (mut best, mut best_k) = (0f32, 0usize);
         for k in 0..LEARN_BINS - 1 {
-            if self.counts[k] == 0 {
+            if self.bins[k].count == 0 {
                 continue;
             }
-            let c = self.counts[k] as f32 / nt;
+            let c = self.bins[k].count as f32 / nt;
             w0 += c;
             m0 += c * centre(k);
             let w1 = 1.0 - w0;
@@ -372,14 +386,14 @@ impl LevelLearner {
             return Learnt::Unclear;
         }
         let width = (1u32 << self.shift) as f32;
-        let total: u64 = self.counts.iter().map(|&c| c as u64).sum();
+        let total: u64 = self.bins.iter().map(|b| b.count as u64).sum();
         if total < 16 {
             return Learnt::Unclear;
         }
         let Some((eta, best_k)) = self.otsu_split(total as f32) else {
             return Learnt::Unclear;
         };
-        let low_n: u64 = self.counts[..=best_k].iter().map(|&c| c as u64).sum();
+        let low_n: u64 = self.bins[..=best_k].iter().map(|b| b.count as u64).sum();
         let high_n = total - low_n;
         let min_class = min_class.unwrap_or((total / 200).max(2));
         if eta < MIN_SEPARABILITY || low_n < min_class || high_n < min_class {
@@ -388,7 +402,7 @@ impl LevelLearner {
         let mode = |lo: usize, hi: usize| -> usize {
             let mut m = lo;
             for b in lo..=hi {
-                if self.counts[b] > self.counts[m] {
+                if self.bins[b].count > self.bins[m].count {
                     m = b;
                 }
             }
@@ -489,11 +503,10 @@ mod tests {
                 let rel = v as i32 - want.origin;
                 let bin = (rel >> want.shift).clamp(0, LEARN_BINS as i32 - 1);
                 let off = (rel - (bin << want.shift)).clamp(0, width - 1);
-                want.counts[bin as usize] += 1;
-                want.offsets[bin as usize] += off as u32;
+                want.bins[bin as usize].count += 1;
+                want.bins[bin as usize].offset += off as u32;
             }
-            assert_eq!(l.counts, want.counts, "case {case}");
-            assert_eq!(l.offsets, want.offsets, "case {case}");
+            assert_eq!(l.bins, want.bins, "case {case}");
             assert_eq!((l.min, l.max), (want.min, want.max), "case {case}");
         }
     }
@@ -527,8 +540,7 @@ mod tests {
         for (&x, &n) in &counts {
             b.observe_repeated(x, n);
         }
-        assert_eq!(a.counts, b.counts);
-        assert_eq!(a.offsets, b.offsets);
+        assert_eq!(a.bins, b.bins);
         assert_eq!((a.min, a.max), (b.min, b.max));
         assert_eq!(a.finish_period(64), b.finish_period(64));
     }
@@ -585,13 +597,13 @@ mod tests {
         let centre = |b: usize| l.bin_low(b) + 0.5 * width;
         let mut mean_t = 0f32;
         for b in 0..LEARN_BINS {
-            mean_t += l.counts[b] as f32 * centre(b);
+            mean_t += l.bins[b].count as f32 * centre(b);
         }
         mean_t /= nt;
         let mut var_t = 0f32;
         for b in 0..LEARN_BINS {
             let d = centre(b) - mean_t;
-            var_t += l.counts[b] as f32 * d * d;
+            var_t += l.bins[b].count as f32 * d * d;
         }
         var_t /= nt;
         if var_t <= 0.0 {
@@ -600,7 +612,7 @@ mod tests {
         let (mut w0, mut m0) = (0f32, 0f32);
         let (mut best, mut best_k) = (0f32, 0usize);
         for k in 0..LEARN_BINS - 1 {
-            let c = l.counts[k] as f32 / nt;
+            let c = l.bins[k].count as f32 / nt;
             w0 += c;
             m0 += c * centre(k);
             let w1 = 1.0 - w0;
@@ -636,9 +648,9 @@ mod tests {
             let filled = 1 + next() % 64;
             for _ in 0..filled {
                 let b = (next() % 64) as usize;
-                l.counts[b] = (next() % 3000) as u32;
+                l.bins[b].count = (next() % 3000) as u32;
             }
-            let total: u64 = l.counts.iter().map(|&c| c as u64).sum();
+            let total: u64 = l.bins.iter().map(|b| b.count as u64).sum();
             let nt = total.max(1) as f32;
             let got = l.otsu_split(nt).map(|(e, k)| (e.to_bits(), k));
             let want = otsu_every_bin(&l, nt).map(|(e, k)| (e.to_bits(), k));
@@ -666,8 +678,8 @@ mod tests {
             let mut n = 0u64;
             let mut s = 0f64;
             for b in lo..=lo + 2 {
-                n += l.counts[b] as u64;
-                s += l.counts[b] as f64 * l.bin_low(b) as f64 + l.offsets[b] as f64;
+                n += l.bins[b].count as u64;
+                s += l.bins[b].count as f64 * l.bin_low(b) as f64 + l.bins[b].offset as f64;
             }
             let want = (n > 0).then(|| (s / n as f64) as f32);
             assert_eq!(l.mean_of(lo, lo + 2), want, "bins {lo}..");
