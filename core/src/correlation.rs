@@ -122,8 +122,7 @@
 
 use crate::flags::Flags;
 use analysis::{
-    analyse_functions, pearson_finish, pearson_finish_small, pearson_parts, pearson_parts_masked,
-    SMALL_N,
+    analyse_functions, pearson_finish, pearson_parts, pearson_parts_masked, pearson_small, SMALL_N,
 };
 use heapless::Vec;
 
@@ -485,14 +484,13 @@ impl SumsView<'_> {
         let ins = tail.iter().zip(head).zip(prod);
         let mut written = 0;
         for (((&t, &h), &sab), o) in ins.zip(out.iter_mut()) {
-            let (num, va, vb) = pearson_parts_masked(
+            *o = pearson_small(
                 n32,
                 lead_air.saturating_sub(t),
                 second_total.saturating_sub(h),
                 sab.min(u32::MAX as u64) as u32,
             );
             n32 = n32.saturating_sub(self.windows);
-            *o = pearson_finish_small(num, va, vb);
             written += 1;
             if stop_at_zero && *o <= 0.0 {
                 break;

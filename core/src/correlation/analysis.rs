@@ -160,6 +160,8 @@ pub(super) fn pearson_finish(num: f32, va: f32, vb: f32) -> f32 {
 /// [`pearson_finish`] for the terms of [`pearson_parts_masked`]: each is an `i32` rounded to
 /// f32, so below 2^31 in magnitude, and their product (below 2^62) is always finite; the
 /// branch for an infinite product is left out, the value is the same bit for bit.
+/// Kept as the reference form of [`pearson_small`] in the tests.
+#[cfg(test)]
 #[inline(always)]
 pub(super) fn pearson_finish_small(num: f32, va: f32, vb: f32) -> f32 {
     let r = if va == vb {
@@ -172,6 +174,31 @@ pub(super) fn pearson_finish_small(num: f32, va: f32, vb: f32) -> f32 {
     } else {
         f32::NAN
     }
+}
+
+/// The coefficient of a lag from its exact sums: `pearson_finish_small` of
+/// [`pearson_parts_masked`] (the tests' reference), bit for bit, with the sums'
+/// consistency and the variances' signs tested once, in integers: NaN for inconsistent
+/// sums or a zero variance, else the clamped coefficient. The float stage then runs only
+/// for a defined coefficient, and a 32-bit core makes no float selects for the tests.
+#[inline(always)]
+pub(super) fn pearson_small(n: u32, sa: u32, sb: u32, sab: u32) -> f32 {
+    let ok = (2..=SMALL_N).contains(&n) & (sa <= n) & (sb <= n) & (sab <= sa.min(sb));
+    let (n, sa, sb, sab) = (n as i32, sa as i32, sb as i32, sab as i32);
+    let va = sa.wrapping_mul(n.wrapping_sub(sa));
+    let vb = sb.wrapping_mul(n.wrapping_sub(sb));
+    // A positive i32 rounds to a positive f32, zero to zero.
+    if !(ok & (va > 0) & (vb > 0)) {
+        return f32::NAN;
+    }
+    let num = n.wrapping_mul(sab).wrapping_sub(sa.wrapping_mul(sb)) as f32;
+    let (va, vb) = (va as f32, vb as f32);
+    let r = if va == vb {
+        num / va
+    } else {
+        num * rsqrt(va * vb)
+    };
+    r.clamp(-1.0, 1.0)
 }
 
 /// Reciprocal square root to full f32 precision: micromath's estimate (within 3.5 %)
@@ -436,6 +463,47 @@ mod tests {
 
     fn same(a: Option<f32>, b: Option<f32>) -> bool {
         a.map(f32::to_bits) == b.map(f32::to_bits)
+    }
+
+    /// The lag coefficient with its tests in integers is the masked parts' coefficient,
+    /// bit for bit: random sums, consistent or not, at every overlap size class.
+    #[test]
+    fn pearson_small_equals_the_masked_form() {
+        let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
+        let mut next = move || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        };
+        for case in 0..2_000_000u32 {
+            let n = match case % 4 {
+                0 => (next() % 8) as u32,
+                1 => (next() % 300) as u32,
+                2 => (next() % (SMALL_N as u64 + 10)) as u32,
+                _ => next() as u32,
+            };
+            let pick = |r: u64| match r % 5 {
+                0 => 0,
+                1 => n,
+                2 => n.wrapping_add(1),
+                _ => (r >> 8) as u32 % n.saturating_add(2),
+            };
+            let (sa, sb) = (pick(next()), pick(next()));
+            let sab = match next() % 4 {
+                0 => sa.min(sb),
+                1 => sa.min(sb).wrapping_add(1),
+                _ => (next() as u32) % sa.min(sb).saturating_add(2),
+            };
+            let (num, va, vb) = pearson_parts_masked(n, sa, sb, sab);
+            let want = pearson_finish_small(num, va, vb);
+            let got = pearson_small(n, sa, sb, sab);
+            assert_eq!(
+                got.to_bits(),
+                want.to_bits(),
+                "case {case}: n {n} sa {sa} sb {sb} sab {sab}"
+            );
+        }
     }
 
     /// The analysis gives the results of its straightforward form, bit for bit, on random

@@ -1,9 +1,7 @@
 //! The streaming [`Correlator`]: the window's sums kept as second differences over the lags,
 //! and the edge sinks that feed it (through a [`RunBuffer`] run by run, or in time order).
 
-use super::analysis::{
-    analyse_functions, pearson_finish_small, pearson_parts_masked, CorrelationResult, SMALL_N,
-};
+use super::analysis::{analyse_functions, pearson_small, CorrelationResult, SMALL_N};
 use super::run_buffer::{RunBuffer, RISING_BIT};
 use super::CorrelationSums;
 use crate::flags::Flags;
@@ -296,23 +294,29 @@ impl<const L: usize> Correlator<L> {
             *value = value.wrapping_add(*slope);
             (*value).max(0) as u32
         };
-        // R_ab, every lag; the tail counts are kept for R_aa.
+        // R_ab, every lag; the tail counts are kept for R_aa. Two passes: the three
+        // running sums in place first (integers only), then the coefficients from them,
+        // clearing the second differences; apart, each loop keeps its values in a 32-bit
+        // core's registers (together they spill), for the same values bit for bit.
         let (mut c, mut h, mut t) = ((0, 0), (0, 0), (0, 0));
+        let ins = self.cross.iter_mut().zip(self.trail_head.iter_mut());
+        for ((x, y), z) in ins.zip(tail.iter_mut()).take(lags) {
+            *x = step(*x, &mut c);
+            *y = step(*y, &mut h);
+            *z = step(*z, &mut t);
+        }
         let mut n32 = frames as u32;
         let ins = self.cross.iter_mut().zip(self.trail_head.iter_mut());
-        for ((x, y), (z, o)) in ins.zip(tail.iter_mut().zip(rab.iter_mut())).take(lags) {
-            let sab = step(*x, &mut c);
-            let head = step(*y, &mut h);
-            *z = step(*z, &mut t);
+        for ((x, y), (z, o)) in ins.zip(tail.iter().zip(rab.iter_mut())).take(lags) {
+            let (sab, head) = (*x, *y);
             (*x, *y) = (0, 0);
-            let (num, va, vb) = pearson_parts_masked(
+            *o = pearson_small(
                 n32,
                 lead_air.saturating_sub(*z),
                 trail_air.saturating_sub(head),
                 sab,
             );
             n32 = n32.saturating_sub(1);
-            *o = pearson_finish_small(num, va, vb);
         }
         // R_aa up to its first lag at or below 0 (all the results need of it).
         let (mut a, mut h) = ((0, 0), (0, 0));
@@ -323,14 +327,13 @@ impl<const L: usize> Correlator<L> {
             let saa = step(*x, &mut a);
             let head = step(*y, &mut h);
             (*x, *y) = (0, 0);
-            let (num, va, vb) = pearson_parts_masked(
+            *o = pearson_small(
                 n32,
                 lead_air.saturating_sub(z),
                 lead_air.saturating_sub(head),
                 saa,
             );
             n32 = n32.saturating_sub(1);
-            *o = pearson_finish_small(num, va, vb);
             written += 1;
             if *o <= 0.0 {
                 break;
