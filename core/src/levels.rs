@@ -106,6 +106,18 @@ pub enum Learnt {
     Unclear,
 }
 
+/// Otsu's split of a learning period's histogram.
+struct Split {
+    /// Samples in the histogram.
+    total: u64,
+    /// Separability: between-class over total variance.
+    eta: f32,
+    /// Last bin of the low class.
+    k: usize,
+    /// Samples in the low class (bins `0..=k`).
+    low_n: u64,
+}
+
 /// One histogram bin.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 struct Bin {
@@ -329,23 +341,29 @@ impl LevelLearner {
         })
     }
 
-    /// Otsu's split of the histogram of `nt` samples: `(eta, k)`, the separability and the
-    /// last bin of the low class, or `None` for a histogram without spread.
-    fn otsu_split(&self, nt: f32) -> Option<(f32, usize)> {
+    /// Otsu's split of the histogram, or `None` for fewer than 16 samples or no spread.
+    fn otsu_split(&self) -> Option<Split> {
         let width = (1u32 << self.shift) as f32;
         let centre = |b: usize| self.bin_low(b) + 0.5 * width;
         // Empty bins are skipped in the three sums below: each would add an exact zero
         // (a zero count times a finite value) and, in the split search, repeat the
         // previous split's between-class variance, which never beats the best so far. The
         // sums and the split are those of every bin, bit for bit; a two-level histogram
-        // fills only a few of its bins, so most of a decision's float work is spared.
-        let mut mean_t = 0f32;
+        // fills only a few of its bins, so most of a decision's float work is spared. The
+        // count and the low class's size are summed in the same passes.
+        let (mut total, mut sum) = (0u64, 0f32);
         for b in 0..LEARN_BINS {
-            if self.bins[b].count != 0 {
-                mean_t += self.bins[b].count as f32 * centre(b);
+            let c = self.bins[b].count;
+            if c != 0 {
+                total += c as u64;
+                sum += c as f32 * centre(b);
             }
         }
-        mean_t /= nt;
+        if total < 16 {
+            return None;
+        }
+        let nt = total as f32;
+        let mean_t = sum / nt;
         let mut var_t = 0f32;
         for b in 0..LEARN_BINS {
             if self.bins[b].count != 0 {
@@ -358,13 +376,14 @@ impl LevelLearner {
             return None;
         }
         // Otsu: maximise the between-class variance over split points.
-        let (mut w0, mut m0) = (0f32, 0f32);
-        let (mut best, mut best_k) = (0f32, 0usize);
+        let (mut w0, mut m0, mut n0) = (0f32, 0f32, 0u64);
+        let (mut best, mut best_k, mut low_n) = (0f32, 0usize, 0u64);
         for k in 0..LEARN_BINS - 1 {
             if self.bins[k].count == 0 {
                 continue;
             }
             let c = self.bins[k].count as f32 / nt;
+            n0 += self.bins[k].count as u64;
             w0 += c;
             m0 += c * centre(k);
             let w1 = 1.0 - w0;
@@ -376,9 +395,19 @@ impl LevelLearner {
             if between > best {
                 best = between;
                 best_k = k;
+                low_n = n0;
             }
         }
-        Some((best / var_t, best_k))
+        // No split beat zero: the low class is bin 0 alone.
+        if best_k == 0 {
+            low_n = self.bins[0].count as u64;
+        }
+        Some(Split {
+            total,
+            eta: best / var_t,
+            k: best_k,
+            low_n,
+        })
     }
 
     fn decide(&self, min_swing: u16, min_class: Option<u64>) -> Learnt {
@@ -386,14 +415,15 @@ impl LevelLearner {
             return Learnt::Unclear;
         }
         let width = (1u32 << self.shift) as f32;
-        let total: u64 = self.bins.iter().map(|b| b.count as u64).sum();
-        if total < 16 {
-            return Learnt::Unclear;
-        }
-        let Some((eta, best_k)) = self.otsu_split(total as f32) else {
+        let Some(Split {
+            total,
+            eta,
+            k: best_k,
+            low_n,
+        }) = self.otsu_split()
+        else {
             return Learnt::Unclear;
         };
-        let low_n: u64 = self.bins[..=best_k].iter().map(|b| b.count as u64).sum();
         let high_n = total - low_n;
         let min_class = min_class.unwrap_or((total / 200).max(2));
         if eta < MIN_SEPARABILITY || low_n < min_class || high_n < min_class {
@@ -651,9 +681,16 @@ mod tests {
                 l.bins[b].count = (next() % 3000) as u32;
             }
             let total: u64 = l.bins.iter().map(|b| b.count as u64).sum();
-            let nt = total.max(1) as f32;
-            let got = l.otsu_split(nt).map(|(e, k)| (e.to_bits(), k));
-            let want = otsu_every_bin(&l, nt).map(|(e, k)| (e.to_bits(), k));
+            let got = l
+                .otsu_split()
+                .map(|s| (s.total, s.eta.to_bits(), s.k, s.low_n));
+            let want = (total >= 16)
+                .then(|| otsu_every_bin(&l, total as f32))
+                .flatten()
+                .map(|(e, k)| {
+                    let low: u64 = l.bins[..=k].iter().map(|b| b.count as u64).sum();
+                    (total, e.to_bits(), k, low)
+                });
             assert_eq!(got, want, "case {case}");
         }
     }
