@@ -9,7 +9,8 @@
 //! the mode refined by the mean of the samples in the mode bin and its neighbours, and the
 //! split is accepted only if it is clearly bimodal (Otsu's separability eta >= 0.75, each
 //! class holding >= 0.5 % of the samples, the swing at least `min_swing` counts and
-//! [`MIN_SWING_BINS`] bins). A period
+//! [`MIN_SWING_BINS`] bins, neither mode in an end bin that took samples beyond the range).
+//! A period
 //! that fails keeps the previous levels, so a tip sitting in one phase keeps its last good
 //! levels. The bin range of each period comes from the previous period's min/max, so the
 //! learnt levels do not depend on the ADC's scale; the very first period spends its first
@@ -440,6 +441,17 @@ impl LevelLearner {
         };
         let ml = mode(0, best_k);
         let mh = mode(best_k + 1, LEARN_BINS - 1);
+        // A class whose mode is an end bin that took samples beyond the range (clamped into
+        // it, their values lost: after a period in one phase the range spans that phase's
+        // noise alone) has no level the histogram can tell. The range pads the previous
+        // period's span by a quarter each side, so samples inside that span never reach
+        // an end bin; the next period's range covers these samples.
+        let top = self.origin + ((LEARN_BINS as i32) << self.shift) - 1;
+        let cut_low = ml == 0 && (self.min as i32) < self.origin;
+        let cut_high = mh == LEARN_BINS - 1 && (self.max as i32) > top;
+        if cut_low || cut_high {
+            return Learnt::Unclear;
+        }
         let low = self.mean_of(ml.saturating_sub(1), (ml + 1).min(best_k));
         let high = self.mean_of((mh - 1).max(best_k + 1), (mh + 1).min(LEARN_BINS - 1));
         match (low, high) {
@@ -618,6 +630,48 @@ mod tests {
                 Learnt::Unclear,
                 "noise sigma {sigma:.0} counts: {got:?}"
             );
+        }
+    }
+
+    /// After a period in water alone the bin range spans the water noise; the next period
+    /// meets air far above it, clamped into the top bin, whose mean is then the range's
+    /// top rather than the air level. That period is `Unclear` (the levels kept), and the
+    /// one after it, ranged over both phases, learns both levels to within a bin.
+    /// (Analytic case: levels 3000 and 26000 counts with Gaussian noise.)
+    #[test]
+    fn air_beyond_a_water_only_range_is_not_taken_as_a_level() {
+        // Gaussian noise of sigma 40 counts (Box-Muller on a xorshift generator).
+        let mut x: u64 = 0x2545_F491_4F6C_DD1D;
+        let mut noise = move || {
+            let mut uniform = || {
+                x ^= x << 13;
+                x ^= x >> 7;
+                x ^= x << 17;
+                ((x >> 11) as f64 / (1u64 << 53) as f64).max(1e-12)
+            };
+            let (u, v) = (uniform(), uniform());
+            let g = (-2.0 * u.ln()).sqrt() * (2.0 * core::f64::consts::PI * v).cos();
+            (40.0 * g).round() as i16
+        };
+        let water: std::vec::Vec<i16> = (0..4000).map(|_| 3000 + noise()).collect();
+        let both: std::vec::Vec<i16> = (0..4000)
+            .map(|i| if (i / 40) % 4 == 0 { 26000 } else { 3000 } + noise())
+            .collect();
+        let mut l = LevelLearner::new();
+        l.observe(&water, 1, 0, 0);
+        l.range_from_seen();
+        l.observe(&water, 1, 0, 0);
+        assert_eq!(l.finish_period(64), Learnt::Unclear);
+        l.observe(&both, 1, 0, 0);
+        assert_eq!(l.finish_period(64), Learnt::Unclear);
+        l.observe(&both, 1, 0, 0);
+        let width = (1u32 << l.shift) as f32;
+        match l.finish_period(64) {
+            Learnt::Modes { low, high } => {
+                assert!((low - 3000.0).abs() <= width, "water {low}");
+                assert!((high - 26000.0).abs() <= width, "air {high}");
+            }
+            other => panic!("both phases, full range: {other:?}"),
         }
     }
 
