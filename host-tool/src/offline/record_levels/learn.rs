@@ -65,6 +65,9 @@ struct TipCounts {
 /// indices into the block (first, end); its first frame is on the learning stride's grid.
 type Piece = (usize, usize, Option<usize>);
 
+/// A tip's channel, its whole-record histogram and its histogram of the current segment.
+type Lane<'a> = (usize, &'a mut [u32], Option<&'a mut [u32]>);
+
 /// Count every `LEARN_STRIDE`-th frame of `pieces` of `block` into the histograms of `tips`
 /// (`bins`: bins of a segment histogram, made when a tip first meets its segment). Frames
 /// outside, tips inside: each frame's cache line is read once for all the tips (a block is
@@ -81,19 +84,27 @@ fn count(tips: &mut [TipCounts], block: &[i16], channels: usize, pieces: &[Piece
         let Some(piece) = block.get(first * channels..end * channels) else {
             continue;
         };
+        // Each tip's histograms looked up once per piece, not at every sample.
+        let mut lanes: Vec<Lane<'_>> = tips
+            .iter_mut()
+            .filter(|t| t.channel < channels)
+            .map(|t| {
+                let segment = seg
+                    .and_then(|k| t.segments.get_mut(k))
+                    .map(|v| v.as_mut_slice());
+                (t.channel, t.whole.as_mut_slice(), segment)
+            })
+            .collect();
         for frame in piece.chunks_exact(channels).step_by(LEARN_STRIDE as usize) {
-            for t in tips.iter_mut() {
-                let Some(&x) = frame.get(t.channel) else {
+            for (channel, whole, segment) in lanes.iter_mut() {
+                let Some(&x) = frame.get(*channel) else {
                     continue;
                 };
                 let b = (x as u16 ^ 0x8000) as usize;
-                if let Some(c) = t.whole.get_mut(b) {
+                if let Some(c) = whole.get_mut(b) {
                     *c = c.saturating_add(1);
                 }
-                if let Some(cell) = seg
-                    .and_then(|k| t.segments.get_mut(k))
-                    .and_then(|v| v.get_mut(b / SEGMENT_BIN))
-                {
+                if let Some(cell) = segment.as_mut().and_then(|v| v.get_mut(b / SEGMENT_BIN)) {
                     *cell = cell.saturating_add(1);
                 }
             }
