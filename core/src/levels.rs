@@ -12,7 +12,8 @@
 //! [`MIN_SWING_BINS`] bins, neither mode in an end bin that took samples beyond the range).
 //! A period
 //! that fails keeps the previous levels, so a tip sitting in one phase keeps its last good
-//! levels. The bin range of each period comes from the previous period's min/max, so the
+//! levels; a tip's detector also keeps them when a split lies on one side of their
+//! midpoint with less than half their swing (noise or hum inside one phase). The bin range of each period comes from the previous period's min/max, so the
 //! learnt levels do not depend on the ADC's scale; the very first period spends its first
 //! half finding that range. All arithmetic is deterministic (integers, plain f32), so a
 //! device and a host replay learn the same levels from the same samples.

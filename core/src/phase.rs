@@ -431,6 +431,18 @@ impl PhaseDetector {
             return;
         }
         if let Learnt::Modes { low, high } = learner.finish_period(self.min_swing) {
+            // With levels in use, a split on one side of their midpoint and with less than
+            // half their swing lies inside one phase's signal (a tip in one phase all
+            // period, its noise or hum split in two): the levels are kept. A real change
+            // of the signal (a re-zeroed conditioner) still gives a split with most of
+            // the swing, which is taken.
+            if let Some(cur) = self.levels {
+                let mid = 0.5 * (cur.air + cur.water);
+                let swing = (cur.air - cur.water).abs();
+                if (low > mid) == (high > mid) && high - low < 0.5 * swing {
+                    return;
+                }
+            }
             let levels = if self.sign > 0 {
                 Levels {
                     air: high,
@@ -505,6 +517,49 @@ mod tests {
     use crate::probe_config::Polarity;
     extern crate std;
     use std::format;
+
+    /// Levels learnt from both phases are kept through a period in water with mains hum
+    /// on the signal: the hum's arcsine distribution is bimodal enough for Otsu's split
+    /// (separability about 0.8) and wider than the smallest swing, but it lies on the
+    /// water side of the levels in use with a fraction of their swing. (Analytic case:
+    /// levels 3000 and 26000 counts, a 150-count hum of one cycle per period, two
+    /// periods of it.)
+    #[test]
+    fn hum_in_one_phase_does_not_replace_the_levels() {
+        let det = DetectorConfig {
+            learn_period: 400,
+            ..DetectorConfig::default()
+        };
+        let tip = TipConfig {
+            channel: 0,
+            polarity: Polarity::AirHigh,
+            levels: LevelSource::Learnt,
+        };
+        let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
+        let mut noise = move || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            ((x >> 40) % 81) as f32 - 40.0
+        };
+        let mut frames = std::vec::Vec::new();
+        for i in 0..400 {
+            let level = if (i / 20) % 3 == 0 { 26000.0 } else { 3000.0 };
+            frames.push((level + noise()) as i16);
+        }
+        // Two periods of hum: the first in the bins of the two-phase period (too narrow a
+        // split for them), the second in bins ranged over the hum itself.
+        for i in 400..1200 {
+            let phase = 2.0 * core::f32::consts::PI * (i % 400) as f32 / 400.0;
+            frames.push((3000.0 + 150.0 * micromath::F32Ext::sin(phase) + 0.1 * noise()) as i16);
+        }
+        let mut d = PhaseDetector::new(&tip, &det, false);
+        d.process(&frames[..400], 1, 0, &mut ());
+        let learnt = d.levels().expect("levels from both phases");
+        assert!((learnt.air - 26000.0).abs() < 200.0 && (learnt.water - 3000.0).abs() < 200.0);
+        d.process(&frames[400..], 1, 400, &mut ());
+        assert_eq!(d.levels(), Some(learnt));
+    }
 
     /// A detector configured in place, whatever it held, is the detector `new` builds.
     #[test]
