@@ -67,6 +67,16 @@ pub struct Levels {
     pub water: f32,
 }
 
+/// True if a split into levels `a` and `b` (counts, either order) lies on one side of the
+/// midpoint of the levels in use, `current`, with less than half their swing: noise or hum
+/// inside one phase's signal rather than a change of levels (a re-zeroed conditioner still
+/// gives a split with most of the swing). Such a split does not replace the levels.
+pub fn inside_one_phase(current: Levels, a: f32, b: f32) -> bool {
+    let mid = 0.5 * (current.air + current.water);
+    let swing = (current.air - current.water).abs();
+    (a > mid) == (b > mid) && (a - b).abs() < 0.5 * swing
+}
+
 /// Thresholds in the "air is high" scale (sample times the polarity sign).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]

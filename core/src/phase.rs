@@ -9,7 +9,9 @@
 //! polarity (the thresholds are mapped back to counts, so no multiplication per sample) and
 //! walks the tip's channel by index (one bounds check per sample, no iterator state).
 
-use crate::levels::{tracking_stride, Learnt, LevelLearner, Levels, Thresholds, LEARN_STRIDE};
+use crate::levels::{
+    inside_one_phase, tracking_stride, Learnt, LevelLearner, Levels, Thresholds, LEARN_STRIDE,
+};
 use crate::probe_config::{DetectorConfig, LevelSource, TipConfig};
 use core::num::NonZeroUsize;
 use scan::run_loop;
@@ -431,17 +433,13 @@ impl PhaseDetector {
             return;
         }
         if let Learnt::Modes { low, high } = learner.finish_period(self.min_swing) {
-            // With levels in use, a split on one side of their midpoint and with less than
-            // half their swing lies inside one phase's signal (a tip in one phase all
-            // period, its noise or hum split in two): the levels are kept. A real change
-            // of the signal (a re-zeroed conditioner) still gives a split with most of
-            // the swing, which is taken.
-            if let Some(cur) = self.levels {
-                let mid = 0.5 * (cur.air + cur.water);
-                let swing = (cur.air - cur.water).abs();
-                if (low > mid) == (high > mid) && high - low < 0.5 * swing {
-                    return;
-                }
+            // A split inside one phase's signal (a tip in one phase all period, its noise
+            // or hum split in two) keeps the levels in use.
+            if self
+                .levels
+                .is_some_and(|cur| inside_one_phase(cur, low, high))
+            {
+                return;
             }
             let levels = if self.sign > 0 {
                 Levels {

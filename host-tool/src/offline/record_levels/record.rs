@@ -4,7 +4,7 @@
 use super::histogram::{mode_level, spread_around, NOISY_FACTOR};
 use super::outcome::{TipLevels, TipOutcome};
 use crate::shared::rig::MAX_PROBES;
-use frothline_core::levels::Levels;
+use frothline_core::levels::{inside_one_phase, Levels};
 use frothline_core::{ChainConfig, LevelSource, Polarity};
 
 /// The levels of every learning tip of a record.
@@ -26,12 +26,19 @@ pub struct RecordLevels {
 
 impl RecordLevels {
     /// The levels tip `i` (index into `tips`) uses in segment `k`: the segment's own, else
-    /// the record's.
+    /// the record's. A segment's split inside one phase of the record's levels (noise or
+    /// hum of a tip in one phase, [`inside_one_phase`]) is not the segment's levels.
     pub fn levels_in_segment(&self, i: usize, k: usize) -> Option<Levels> {
-        self.segments
+        let record = self.tips.get(i).and_then(|t| t.outcome.levels());
+        let own = self
+            .segments
             .get(i)
-            .and_then(|s| s.get(k).copied().flatten())
-            .or_else(|| self.tips.get(i).and_then(|t| t.outcome.levels()))
+            .and_then(|s| s.get(k).copied().flatten());
+        match (own, record) {
+            (Some(s), Some(r)) if inside_one_phase(r, s.air, s.water) => Some(r),
+            (Some(s), _) => Some(s),
+            (None, r) => r,
+        }
     }
 
     /// Number of segments tracked.

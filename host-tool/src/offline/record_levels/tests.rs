@@ -151,3 +151,47 @@ fn one_phase_and_unclear() {
         TipOutcome::Empty
     );
 }
+
+/// A drift segment's own levels are used, unless its split lies inside one phase of the
+/// record's levels (a tip in water for the whole segment, its mains hum split in two):
+/// there the record's levels hold. A segment whose levels moved by most of the swing (a
+/// re-zeroed conditioner) keeps its own. (Analytic case.)
+#[test]
+fn a_segment_split_inside_one_phase_is_not_its_levels() {
+    use frothline_core::levels::Levels;
+    let record = Levels {
+        air: 26000.0,
+        water: 3000.0,
+    };
+    let hum = Levels {
+        air: 3143.0,
+        water: 2856.0,
+    };
+    let drifted = Levels {
+        air: 25500.0,
+        water: 3300.0,
+    };
+    let shifted = Levels {
+        air: 30000.0,
+        water: 16000.0,
+    };
+    let levels = RecordLevels {
+        tips: vec![TipLevels {
+            probe: 0,
+            trailing: false,
+            channel: 0,
+            outcome: TipOutcome::Learnt {
+                levels: record,
+                air_noise: 150.0,
+                water_noise: 150.0,
+            },
+        }],
+        segments: vec![vec![Some(hum), Some(drifted), None, Some(shifted)]],
+        segment_frames: 40_000,
+        segment_one_phase: Vec::new(),
+    };
+    assert_eq!(levels.levels_in_segment(0, 0), Some(record));
+    assert_eq!(levels.levels_in_segment(0, 1), Some(drifted));
+    assert_eq!(levels.levels_in_segment(0, 2), Some(record));
+    assert_eq!(levels.levels_in_segment(0, 3), Some(shifted));
+}
