@@ -159,23 +159,10 @@ fn one_phase_and_unclear() {
 #[test]
 fn a_segment_split_inside_one_phase_is_not_its_levels() {
     use frothline_core::levels::Levels;
-    let record = Levels {
-        air: 26000.0,
-        water: 3000.0,
-    };
-    let hum = Levels {
-        air: 3143.0,
-        water: 2856.0,
-    };
-    let drifted = Levels {
-        air: 25500.0,
-        water: 3300.0,
-    };
-    let shifted = Levels {
-        air: 30000.0,
-        water: 16000.0,
-    };
-    let levels = RecordLevels {
+    let levels = |air, water| Levels { air, water };
+    let (record, hum) = (levels(26000.0, 3000.0), levels(3143.0, 2856.0));
+    let (drifted, shifted) = (levels(25500.0, 3300.0), levels(30000.0, 16000.0));
+    let learnt = RecordLevels {
         tips: vec![TipLevels {
             probe: 0,
             trailing: false,
@@ -190,8 +177,8 @@ fn a_segment_split_inside_one_phase_is_not_its_levels() {
         segment_frames: 40_000,
         segment_one_phase: Vec::new(),
     };
-    assert_eq!(levels.levels_in_segment(0, 0), Some(record));
-    assert_eq!(levels.levels_in_segment(0, 1), Some(drifted));
-    assert_eq!(levels.levels_in_segment(0, 2), Some(record));
-    assert_eq!(levels.levels_in_segment(0, 3), Some(shifted));
+    assert_eq!(learnt.levels_in_segment(0, 0), Some(record));
+    assert_eq!(learnt.levels_in_segment(0, 1), Some(drifted));
+    assert_eq!(learnt.levels_in_segment(0, 2), Some(record));
+    assert_eq!(learnt.levels_in_segment(0, 3), Some(shifted));
 }
