@@ -10,12 +10,12 @@
 //! split is accepted only if it is clearly bimodal (Otsu's separability eta >= 0.75, each
 //! class holding >= 0.5 % of the samples, the swing at least `min_swing` counts and
 //! [`MIN_SWING_BINS`] bins, neither mode in an end bin that took samples beyond the range).
-//! A period
-//! that fails keeps the previous levels, so a tip sitting in one phase keeps its last good
-//! levels; a tip's detector also keeps them when a split lies on one side of their
-//! midpoint with less than half their swing (noise or hum inside one phase). The bin range of each period comes from the previous period's min/max, so the
-//! learnt levels do not depend on the ADC's scale; the very first period spends its first
-//! half finding that range. All arithmetic is deterministic (integers, plain f32), so a
+//! A period that fails keeps the previous levels, so a tip sitting in one phase keeps its
+//! last good levels; a tip's detector also keeps them when a split lies on one side of
+//! their midpoint with less than half their swing ([`inside_one_phase`]: noise or hum
+//! inside one phase). The bin range of each period comes from the previous period's
+//! min/max, so the learnt levels do not depend on the ADC's scale; the very first period
+//! spends its first half finding that range. All arithmetic is deterministic (integers, plain f32), so a
 //! device and a host replay learn the same levels from the same samples.
 
 use micromath::F32Ext;
@@ -51,9 +51,9 @@ pub const MIN_SEPARABILITY: f32 = 0.75;
 /// Smallest accepted swing in bin widths. Noise of one phase alone that falls in a few
 /// wide bins (the bins are set by the previous period's full swing) can pass Otsu's
 /// separability, since two occupied bins separate completely; its two "levels" then lie
-/// within a couple of bins of each other. A real air-water swing spans at least a fifth of
-/// the bins (the range is the previous period's span padded by half, its bin width rounded
-/// up to a power of two), so this refuses only noise.
+/// within a couple of bins of each other. A real air-water swing spans about a fifth of
+/// the bins or more (the range is the previous period's span padded by a quarter each
+/// side, its bin width rounded up to a power of two), so this refuses only noise.
 pub const MIN_SWING_BINS: f32 = 4.0;
 
 /// The two levels of a tip, in ADC counts.
@@ -222,16 +222,16 @@ impl LevelLearner {
             return;
         }
         let step = stride as usize * channels;
+        let fed = frames.get(start..).unwrap_or(&[]).iter().step_by(step);
         // The running extremes as i32 (no sign extension of an i16 at every sample).
         let (mut lo, mut hi) = (self.min as i32, self.max as i32);
-        let mut i = start;
         if self.ranged {
             let (origin, shift) = (self.origin, self.shift);
             // The last offset of the range: samples beyond either end are clamped to it
             // or to 0, so the end bins take them with the offset clamped to the bin (0
             // below the range, the bin width less one above it).
             let top = ((LEARN_BINS as i32) << shift) - 1;
-            for &x in frames.get(i..).unwrap_or(&[]).iter().step_by(step) {
+            for &x in fed {
                 let x = x as i32;
                 lo = lo.min(x);
                 hi = hi.max(x);
@@ -245,10 +245,9 @@ impl LevelLearner {
                 bin.offset = bin.offset.saturating_add(off);
             }
         } else {
-            while let Some(&x) = frames.get(i) {
+            for &x in fed {
                 lo = lo.min(x as i32);
                 hi = hi.max(x as i32);
-                i += step;
             }
         }
         // Extremes of i16 samples (or the i16 start values): they fit.
@@ -378,9 +377,10 @@ impl LevelLearner {
         let mean_t = sum / nt;
         let mut var_t = 0f32;
         for b in 0..LEARN_BINS {
-            if self.bins[b].count != 0 {
+            let c = self.bins[b].count;
+            if c != 0 {
                 let d = centre(b) - mean_t;
-                var_t += self.bins[b].count as f32 * d * d;
+                var_t += c as f32 * d * d;
             }
         }
         var_t /= nt;
@@ -389,13 +389,15 @@ impl LevelLearner {
         }
         // Otsu: maximise the between-class variance over split points.
         let (mut w0, mut m0, mut n0) = (0f32, 0f32, 0u64);
-        let (mut best, mut best_k, mut low_n) = (0f32, 0usize, 0u64);
+        // The low class while no split beats zero: bin 0 (as for a best split at bin 0).
+        let (mut best, mut best_k, mut low_n) = (0f32, 0usize, self.bins[0].count as u64);
         for k in 0..LEARN_BINS - 1 {
-            if self.bins[k].count == 0 {
+            let count = self.bins[k].count;
+            if count == 0 {
                 continue;
             }
-            let c = self.bins[k].count as f32 / nt;
-            n0 += self.bins[k].count as u64;
+            let c = count as f32 / nt;
+            n0 += count as u64;
             w0 += c;
             m0 += c * centre(k);
             let w1 = 1.0 - w0;
@@ -409,10 +411,6 @@ impl LevelLearner {
                 best_k = k;
                 low_n = n0;
             }
-        }
-        // No split beat zero: the low class is bin 0 alone.
-        if best_k == 0 {
-            low_n = self.bins[0].count as u64;
         }
         Some(Split {
             total,
@@ -481,15 +479,34 @@ mod tests {
     use super::*;
     extern crate std;
 
+    /// Marsaglia's xorshift64 (Marsaglia 2003, "Xorshift RNGs"): reproducible inputs.
+    fn xorshift(mut x: u64) -> impl FnMut() -> u64 {
+        move || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        }
+    }
+
+    /// Standard normal deviates by the Box-Muller transform (Box and Muller 1958) over
+    /// [`xorshift`].
+    fn gaussian(seed: u64) -> impl FnMut() -> f64 {
+        let mut next = xorshift(seed);
+        move || {
+            let mut uniform = || ((next() >> 11) as f64 / (1u64 << 53) as f64).max(1e-12);
+            let (u, v) = (uniform(), uniform());
+            (-2.0 * u.ln()).sqrt() * (2.0 * core::f64::consts::PI * v).cos()
+        }
+    }
+
     /// `mean_of`'s f32 division equals the f64 division rounded to f32 (the computation
     /// it replaced) for sums and counts exact in f32: a sweep over many quotients.
     #[test]
     fn f32_mean_equals_f64_mean_rounded() {
-        let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
+        let mut next = xorshift(0x9E37_79B9_7F4A_7C15);
         for _ in 0..2_000_000 {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
+            let x = next();
             let n = (x % (1 << 24)) as i64 + 1;
             let s = ((x >> 24) % (1 << 25)) as i64 - (1 << 24);
             let a = s as f32 / n as f32;
@@ -523,13 +540,7 @@ mod tests {
     /// the stride, several channels.
     #[test]
     fn observe_follows_the_binning_rule() {
-        let mut x: u64 = 0x2545_F491_4F6C_DD1D;
-        let mut next = || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            x
-        };
+        let mut next = xorshift(0x2545_F491_4F6C_DD1D);
         for case in 0..200 {
             let channels = 1 + (case % 5) as usize;
             let channel = case as usize % channels;
@@ -607,13 +618,7 @@ mod tests {
     /// case: noise alone has no second level.)
     #[test]
     fn water_noise_alone_is_not_split_in_two() {
-        let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
-        let mut uniform = || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            (x >> 11) as f64 / (1u64 << 53) as f64
-        };
+        let mut normal = gaussian(0x9E37_79B9_7F4A_7C15);
         let two_levels: std::vec::Vec<i16> = (0..4000)
             .map(|i| if (i / 40) % 2 == 0 { 3000 } else { 26000 })
             .collect();
@@ -627,12 +632,7 @@ mod tests {
             let sigma = tenth as f64 / 10.0 * (1u32 << l.shift) as f64;
             l.finish_period(64);
             let noise: std::vec::Vec<i16> = (0..4000)
-                .map(|_| {
-                    // Box-Muller.
-                    let (u, v) = (uniform().max(1e-12), uniform());
-                    let g = (-2.0 * u.ln()).sqrt() * (2.0 * core::f64::consts::PI * v).cos();
-                    (3000.0 + sigma * g).round() as i16
-                })
+                .map(|_| (3000.0 + sigma * normal()).round() as i16)
                 .collect();
             l.observe(&noise, 1, 0, 0);
             let got = l.finish_period(64);
@@ -651,19 +651,9 @@ mod tests {
     /// (Analytic case: levels 3000 and 26000 counts with Gaussian noise.)
     #[test]
     fn air_beyond_a_water_only_range_is_not_taken_as_a_level() {
-        // Gaussian noise of sigma 40 counts (Box-Muller on a xorshift generator).
-        let mut x: u64 = 0x2545_F491_4F6C_DD1D;
-        let mut noise = move || {
-            let mut uniform = || {
-                x ^= x << 13;
-                x ^= x >> 7;
-                x ^= x << 17;
-                ((x >> 11) as f64 / (1u64 << 53) as f64).max(1e-12)
-            };
-            let (u, v) = (uniform(), uniform());
-            let g = (-2.0 * u.ln()).sqrt() * (2.0 * core::f64::consts::PI * v).cos();
-            (40.0 * g).round() as i16
-        };
+        // Gaussian noise of sigma 40 counts.
+        let mut normal = gaussian(0x2545_F491_4F6C_DD1D);
+        let mut noise = move || (40.0 * normal()).round() as i16;
         let water: std::vec::Vec<i16> = (0..4000).map(|_| 3000 + noise()).collect();
         let both: std::vec::Vec<i16> = (0..4000)
             .map(|i| if (i / 40) % 4 == 0 { 26000 } else { 3000 } + noise())
@@ -728,13 +718,7 @@ mod tests {
     /// random histograms from one bin to all 64 filled, at any origin and bin width.
     #[test]
     fn otsu_split_equals_the_split_over_every_bin() {
-        let mut x: u64 = 0x1234_5678_9ABC_DEF1;
-        let mut next = || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            x
-        };
+        let mut next = xorshift(0x1234_5678_9ABC_DEF1);
         for case in 0..20_000 {
             let mut l = LevelLearner::new();
             l.ranged = true;

@@ -328,13 +328,7 @@ impl PhaseDetector {
                 None => n,
             };
             let (now, later) = rest.split_at(take * channels);
-            // The stride only for a learner (fixed levels skip its 64-bit work).
-            if self.learner.is_some() {
-                let stride = self.learn_stride();
-                if let Some(l) = self.learner.as_mut() {
-                    l.observe_strided(now, channels, self.channel, at, stride);
-                }
-            }
+            self.observe(now, channels, at);
             let c = self.run(now, channels, at, sink);
             counts.air += c.air;
             counts.rail += c.rail;

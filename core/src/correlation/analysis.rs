@@ -111,7 +111,7 @@ pub(super) const SMALL_N: u32 = 46_340;
 /// (a single instruction on a Cortex-M4F, a library call from 64 bits) is the same.
 #[inline(always)]
 fn pearson_parts_small(n: u32, sa: u32, sb: u32, sab: u32) -> Option<(f32, f32, f32)> {
-    if !(2..=SMALL_N).contains(&n) || sa > n || sb > n || sab > sa.min(sb) {
+    if !small_sums_consistent(n, sa, sb, sab) {
         return None;
     }
     let (n, sa, sb, sab) = (n as i32, sa as i32, sb as i32, sab as i32);
@@ -122,11 +122,18 @@ fn pearson_parts_small(n: u32, sa: u32, sb: u32, sab: u32) -> Option<(f32, f32, 
     ))
 }
 
+/// True if `n <= SMALL_N` pairs (at least two) of two binary sequences can have the sums
+/// `sa`, `sb` and product sum `sab` (tested without branches).
+#[inline(always)]
+fn small_sums_consistent(n: u32, sa: u32, sb: u32, sab: u32) -> bool {
+    (2..=SMALL_N).contains(&n) & (sa <= n) & (sb <= n) & (sab <= sa.min(sb))
+}
+
 /// [`pearson_parts_small`] without branches, for a whole function: inconsistent sums give a
 /// variance term of 0, so [`pearson_finish`] gives NaN for them, as for `None`.
 #[inline(always)]
 pub(super) fn pearson_parts_masked(n: u32, sa: u32, sb: u32, sab: u32) -> (f32, f32, f32) {
-    let ok = (2..=SMALL_N).contains(&n) & (sa <= n) & (sb <= n) & (sab <= sa.min(sb));
+    let ok = small_sums_consistent(n, sa, sb, sab);
     let mask = (ok as i32).wrapping_neg();
     let (n, sa, sb, sab) = (n as i32, sa as i32, sb as i32, sab as i32);
     (
@@ -164,16 +171,23 @@ pub(super) fn pearson_finish(num: f32, va: f32, vb: f32) -> f32 {
 #[cfg(test)]
 #[inline(always)]
 pub(super) fn pearson_finish_small(num: f32, va: f32, vb: f32) -> f32 {
+    if va > 0.0 && vb > 0.0 {
+        coefficient(num, va, vb)
+    } else {
+        f32::NAN
+    }
+}
+
+/// `num / sqrt(va vb)` clamped to -1..=1, for positive variance terms whose product is
+/// finite; equal terms take a plain division.
+#[inline(always)]
+fn coefficient(num: f32, va: f32, vb: f32) -> f32 {
     let r = if va == vb {
         num / va
     } else {
         num * rsqrt(va * vb)
     };
-    if va > 0.0 && vb > 0.0 {
-        r.clamp(-1.0, 1.0)
-    } else {
-        f32::NAN
-    }
+    r.clamp(-1.0, 1.0)
 }
 
 /// The coefficient of a lag from its exact sums: `pearson_finish_small` of
@@ -183,7 +197,7 @@ pub(super) fn pearson_finish_small(num: f32, va: f32, vb: f32) -> f32 {
 /// for a defined coefficient, and a 32-bit core makes no float selects for the tests.
 #[inline(always)]
 pub(super) fn pearson_small(n: u32, sa: u32, sb: u32, sab: u32) -> f32 {
-    let ok = (2..=SMALL_N).contains(&n) & (sa <= n) & (sb <= n) & (sab <= sa.min(sb));
+    let ok = small_sums_consistent(n, sa, sb, sab);
     let (n, sa, sb, sab) = (n as i32, sa as i32, sb as i32, sab as i32);
     let va = sa.wrapping_mul(n.wrapping_sub(sa));
     let vb = sb.wrapping_mul(n.wrapping_sub(sb));
@@ -192,13 +206,7 @@ pub(super) fn pearson_small(n: u32, sa: u32, sb: u32, sab: u32) -> f32 {
         return f32::NAN;
     }
     let num = n.wrapping_mul(sab).wrapping_sub(sa.wrapping_mul(sb)) as f32;
-    let (va, vb) = (va as f32, vb as f32);
-    let r = if va == vb {
-        num / va
-    } else {
-        num * rsqrt(va * vb)
-    };
-    r.clamp(-1.0, 1.0)
+    coefficient(num, va as f32, vb as f32)
 }
 
 /// Reciprocal square root to full f32 precision: micromath's estimate (within 3.5 %)
