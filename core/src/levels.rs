@@ -153,6 +153,9 @@ pub struct LevelLearner {
     shift: u32,
     /// Each bin's count and offset sum side by side, so a fed sample's bin is one address.
     bins: [Bin; LEARN_BINS],
+    /// Samples binned since the histogram was last cleared (saturating): while this times
+    /// the bin width fits 32 bits, no bin's count or offset sum can saturate.
+    binned: u32,
     min: i16,
     max: i16,
     ranged: bool,
@@ -171,6 +174,7 @@ impl LevelLearner {
         origin: 0,
         shift: 0,
         bins: [Bin::ZERO; LEARN_BINS],
+        binned: 0,
         min: 0,
         max: 0,
         ranged: false,
@@ -182,6 +186,7 @@ impl LevelLearner {
             origin: 0,
             shift: 0,
             bins: [Bin::ZERO; LEARN_BINS],
+            binned: 0,
             min: i16::MAX,
             max: i16::MIN,
             ranged: false,
@@ -193,6 +198,7 @@ impl LevelLearner {
         self.origin = 0;
         self.shift = 0;
         self.bins = [Bin::ZERO; LEARN_BINS];
+        self.binned = 0;
         self.min = i16::MAX;
         self.max = i16::MIN;
         self.ranged = false;
@@ -221,38 +227,75 @@ impl LevelLearner {
         if start >= frames.len() {
             return;
         }
-        let step = stride as usize * channels;
-        let fed = frames.get(start..).unwrap_or(&[]).iter().step_by(step);
+        let samples = frames.get(start..).unwrap_or(&[]);
+        // At most the samples' length (the same samples fed; an index plus it cannot wrap).
+        let step = (stride as usize)
+            .saturating_mul(channels)
+            .clamp(1, samples.len().max(1));
         // The running extremes as i32 (no sign extension of an i16 at every sample).
         let (mut lo, mut hi) = (self.min as i32, self.max as i32);
         if self.ranged {
-            let (origin, shift) = (self.origin, self.shift);
-            // The last offset of the range: samples beyond either end are clamped to it
-            // or to 0, so the end bins take them with the offset clamped to the bin (0
-            // below the range, the bin width less one above it).
-            let top = ((LEARN_BINS as i32) << shift) - 1;
-            for &x in fed {
-                let x = x as i32;
-                lo = lo.min(x);
-                hi = hi.max(x);
-                // (max then min, not clamp: no bounds assertion in the loop.)
-                let rel = (x - origin).max(0).min(top);
-                let bin = rel >> shift;
-                let off = (rel - (bin << shift)) as u32;
-                let b = bin as usize & (LEARN_BINS - 1);
-                let bin = &mut self.bins[b];
-                bin.count = bin.count.saturating_add(1);
-                bin.offset = bin.offset.saturating_add(off);
-            }
+            // Samples this call feeds: those at 0, step, 2 step, ... of `samples` (not empty).
+            let n = (samples.len().saturating_sub(1) / step + 1).min(u32::MAX as usize) as u32;
+            self.binned = self.binned.saturating_add(n);
+            // While no bin can reach 2^32 (every count at most `binned`, every offset sum
+            // at most `binned` times the bin width less one), the sums wrap nowhere, and
+            // wrapping additions give the saturating ones.
+            let exact = ((self.binned as u64) << self.shift) < u32::MAX as u64;
+            (lo, hi) = if exact {
+                self.bin_samples::<false>(samples, step, (lo, hi))
+            } else {
+                self.bin_samples::<true>(samples, step, (lo, hi))
+            };
         } else {
-            for &x in fed {
+            let mut i = 0;
+            while let Some(&x) = samples.get(i) {
                 lo = lo.min(x as i32);
                 hi = hi.max(x as i32);
+                i += step;
             }
         }
         // Extremes of i16 samples (or the i16 start values): they fit.
         self.min = lo as i16;
         self.max = hi as i16;
+    }
+
+    /// Bin `samples[0]`, `samples[step]`, ... and widen the running extremes `(lo, hi)`;
+    /// with `SATURATE` the bins' sums saturate, else they wrap (the caller knows they
+    /// cannot).
+    #[inline(always)]
+    fn bin_samples<const SATURATE: bool>(
+        &mut self,
+        samples: &[i16],
+        step: usize,
+        (mut lo, mut hi): (i32, i32),
+    ) -> (i32, i32) {
+        let (origin, shift) = (self.origin, self.shift);
+        let mut i = 0;
+        while let Some(&x) = samples.get(i) {
+            let x = x as i32;
+            lo = lo.min(x);
+            hi = hi.max(x);
+            let rel = x - origin;
+            // Inside the range: one unsigned comparison of the bin number; samples beyond
+            // either end go to the end bins, their offsets clamped to the bin (0 below the
+            // range, the bin width less one above it).
+            let (b, off) = match (rel as u32) >> shift {
+                b if b < LEARN_BINS as u32 => (b as usize, (rel as u32) - (b << shift)),
+                _ if rel < 0 => (0, 0),
+                _ => (LEARN_BINS - 1, (1u32 << shift) - 1),
+            };
+            let bin = &mut self.bins[b & (LEARN_BINS - 1)];
+            if SATURATE {
+                bin.count = bin.count.saturating_add(1);
+                bin.offset = bin.offset.saturating_add(off);
+            } else {
+                bin.count = bin.count.wrapping_add(1);
+                bin.offset = bin.offset.wrapping_add(off);
+            }
+            i += step;
+        }
+        (lo, hi)
     }
 
     /// Feed `count` samples of value `x` at once: the same state as `count` calls of
@@ -271,6 +314,7 @@ impl LevelLearner {
             let bin = (rel >> self.shift).clamp(0, LEARN_BINS as i32 - 1);
             let off = (rel - (bin << self.shift)).clamp(0, width - 1) as u32;
             let b = bin as usize;
+            self.binned = self.binned.saturating_add(count);
             self.bins[b].count = self.bins[b].count.saturating_add(count);
             self.bins[b].offset = self.bins[b]
                 .offset
@@ -295,6 +339,7 @@ impl LevelLearner {
         self.origin = lo;
         self.shift = if per_bin == 1 { 0 } else { shift };
         self.bins = [Bin::ZERO; LEARN_BINS];
+        self.binned = 0;
         self.min = i16::MAX;
         self.max = i16::MIN;
         self.ranged = true;
@@ -573,6 +618,29 @@ mod tests {
             assert_eq!(l.bins, want.bins, "case {case}");
             assert_eq!((l.min, l.max), (want.min, want.max), "case {case}");
         }
+    }
+
+    /// Bins near 2^32 saturate instead of wrapping: the feeding loop that adds without a
+    /// saturation test runs only while no bin can reach 2^32, here the one that tests does.
+    #[test]
+    fn bins_near_the_limit_saturate() {
+        let mut l = LevelLearner::new();
+        l.observe_strided(&[0, 1000], 1, 0, 0, 1);
+        l.range_from_seen();
+        let at = |l: &LevelLearner, x: i16| ((x as i32 - l.origin) >> l.shift) as usize;
+        let (b, width) = (at(&l, 900), 1u32 << l.shift);
+        assert!(width > 1, "the test needs bins wider than one count");
+        l.bins[b].count = u32::MAX - 1;
+        l.bins[b].offset = u32::MAX - 1;
+        l.binned = u32::MAX - 1;
+        l.observe_strided(&[900, 901, 902], 1, 0, 0, 1);
+        assert_eq!(l.bins[b].count, u32::MAX);
+        assert_eq!(l.bins[b].offset, u32::MAX);
+        // A fresh histogram counts exactly again.
+        l.range_from_seen();
+        let b = at(&l, 900);
+        l.observe_strided(&[900, 900], 1, 0, 0, 1);
+        assert_eq!(l.bins[b].count, 2);
     }
 
     /// Counted values fed at once give the state that sample-by-sample feeding gives
