@@ -160,9 +160,21 @@ fn analysis_in_place_equals_analysis_of_the_sums() {
                 10 + next() % 2_000
             };
             let p_flip = 1 + next() % 30;
+            // The trailing tip: independent of the leading tip, or its state `delay`
+            // frames back (a cross-correlation peak there), or the opposite of it (every
+            // coefficient at small lags negative), each with a few flips of its own.
+            let (follow, delay) = (case % 3, (next() % (max_lag as u64 + 1)) as usize);
+            let mut history = std::collections::VecDeque::from(std::vec![sa; delay]);
             for t in start..start + n {
                 let flip_a = next() % 100 < p_flip;
-                let flip_b = next() % 100 < p_flip;
+                let own = next() % 100;
+                history.push_back(sa ^ flip_a);
+                let back = history.pop_front().unwrap_or(sa);
+                let flip_b = match follow {
+                    0 => own < p_flip,
+                    1 => (sb != back) ^ (own < 2),
+                    _ => (sb == back) ^ (own < 2),
+                };
                 for c in [&mut inplace, &mut copied] {
                     if flip_a {
                         c.lead_in_order().edge(Edge {
