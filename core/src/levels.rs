@@ -150,7 +150,8 @@ impl Bin {
 #[derive(Clone, Debug)]
 pub struct LevelLearner {
     origin: i32,
-    shift: u32,
+    /// Bin width: 2^shift counts (at most 2^10 for 64 bins over the i16 range).
+    shift: u8,
     /// Each bin's count and offset sum side by side, so a fed sample's bin is one address.
     bins: [Bin; LEARN_BINS],
     /// Samples binned since the histogram was last cleared (saturating): while this times
@@ -270,7 +271,7 @@ impl LevelLearner {
         step: usize,
         (mut lo, mut hi): (i32, i32),
     ) -> (i32, i32) {
-        let (origin, shift) = (self.origin, self.shift);
+        let (origin, shift) = (self.origin, self.shift as u32);
         let mut i = 0;
         while let Some(&x) = samples.get(i) {
             let x = x as i32;
@@ -337,7 +338,7 @@ impl LevelLearner {
         let per_bin = span.div_ceil(LEARN_BINS as u32).max(1);
         let shift = 32 - (per_bin - 1).leading_zeros();
         self.origin = lo;
-        self.shift = if per_bin == 1 { 0 } else { shift };
+        self.shift = if per_bin == 1 { 0 } else { shift as u8 };
         self.bins = [Bin::ZERO; LEARN_BINS];
         self.binned = 0;
         self.min = i16::MAX;
@@ -381,7 +382,7 @@ impl LevelLearner {
             n += c as u64;
             let edge = self
                 .origin
-                .wrapping_add((b as i32).wrapping_shl(self.shift));
+                .wrapping_add((b as i32).wrapping_shl(self.shift as u32));
             s = s
                 .wrapping_add((c as i64).wrapping_mul(edge as i64))
                 .wrapping_add(off as i64);
@@ -790,7 +791,7 @@ mod tests {
         for case in 0..20_000 {
             let mut l = LevelLearner::new();
             l.ranged = true;
-            l.shift = (next() % 11) as u32;
+            l.shift = (next() % 11) as u8;
             l.origin = (next() % 60_000) as i32 - 32_768;
             let filled = 1 + next() % 64;
             for _ in 0..filled {
