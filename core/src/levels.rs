@@ -398,8 +398,19 @@ impl LevelLearner {
         })
     }
 
-    /// Otsu's split of the histogram, or `None` for fewer than 16 samples or no spread.
-    fn otsu_split(&self) -> Option<Split> {
+    /// The occupied bins in increasing order, into `out`; returns how many.
+    fn occupied_bins(&self, out: &mut [u8; LEARN_BINS]) -> usize {
+        let mut m = 0;
+        for (b, bin) in self.bins.iter().enumerate() {
+            out[m & (LEARN_BINS - 1)] = b as u8;
+            m += (bin.count != 0) as usize;
+        }
+        m
+    }
+
+    /// Otsu's split of the histogram whose occupied bins are `occupied` (in increasing
+    /// order), or `None` for fewer than 16 samples or no spread.
+    fn otsu_split(&self, occupied: &[u8]) -> Option<Split> {
         let width = (1u32 << self.shift) as f32;
         let centre = |b: usize| self.bin_low(b) + 0.5 * width;
         // Empty bins are skipped in the three sums below: each would add an exact zero
@@ -408,13 +419,12 @@ impl LevelLearner {
         // sums and the split are those of every bin, bit for bit; a two-level histogram
         // fills only a few of its bins, so most of a decision's float work is spared. The
         // count and the low class's size are summed in the same passes.
+        let count = |b: u8| self.bins[b as usize & (LEARN_BINS - 1)].count;
         let (mut total, mut sum) = (0u64, 0f32);
-        for b in 0..LEARN_BINS {
-            let c = self.bins[b].count;
-            if c != 0 {
-                total += c as u64;
-                sum += c as f32 * centre(b);
-            }
+        for &b in occupied {
+            let c = count(b);
+            total += c as u64;
+            sum += c as f32 * centre(b as usize);
         }
         if total < 16 {
             return None;
@@ -422,12 +432,9 @@ impl LevelLearner {
         let nt = total as f32;
         let mean_t = sum / nt;
         let mut var_t = 0f32;
-        for b in 0..LEARN_BINS {
-            let c = self.bins[b].count;
-            if c != 0 {
-                let d = centre(b) - mean_t;
-                var_t += c as f32 * d * d;
-            }
+        for &b in occupied {
+            let d = centre(b as usize) - mean_t;
+            var_t += count(b) as f32 * d * d;
         }
         var_t /= nt;
         if var_t <= 0.0 {
@@ -437,11 +444,11 @@ impl LevelLearner {
         let (mut w0, mut m0, mut n0) = (0f32, 0f32, 0u64);
         // The low class while no split beats zero: bin 0 (as for a best split at bin 0).
         let (mut best, mut best_k, mut low_n) = (0f32, 0usize, self.bins[0].count as u64);
-        for k in 0..LEARN_BINS - 1 {
-            let count = self.bins[k].count;
-            if count == 0 {
-                continue;
-            }
+        for &k in occupied
+            .iter()
+            .take_while(|&&k| (k as usize) < LEARN_BINS - 1)
+        {
+            let (count, k) = (count(k), k as usize);
             let c = count as f32 / nt;
             n0 += count as u64;
             w0 += c;
@@ -471,12 +478,15 @@ impl LevelLearner {
             return Learnt::Unclear;
         }
         let width = (1u32 << self.shift) as f32;
+        let mut list = [0u8; LEARN_BINS];
+        let n = self.occupied_bins(&mut list);
+        let occupied = list.get(..n).unwrap_or(&[]);
         let Some(Split {
             total,
             eta,
             k: best_k,
             low_n,
-        }) = self.otsu_split()
+        }) = self.otsu_split(occupied)
         else {
             return Learnt::Unclear;
         };
@@ -485,10 +495,14 @@ impl LevelLearner {
         if eta < MIN_SEPARABILITY || low_n < min_class || high_n < min_class {
             return Learnt::Unclear;
         }
+        // The first fullest bin of `lo..=hi` (`lo` if all are empty): empty bins never
+        // beat it, so only the occupied ones are looked at.
+        let count = |b: usize| self.bins[b & (LEARN_BINS - 1)].count;
         let mode = |lo: usize, hi: usize| -> usize {
             let mut m = lo;
-            for b in lo..=hi {
-                if self.bins[b].count > self.bins[m].count {
+            for &b in occupied {
+                let b = b as usize;
+                if (lo..=hi).contains(&b) && count(b) > count(m) {
                     m = b;
                 }
             }
@@ -799,8 +813,13 @@ mod tests {
                 l.bins[b].count = (next() % 3000) as u32;
             }
             let total: u64 = l.bins.iter().map(|b| b.count as u64).sum();
+            let mut list = [0u8; LEARN_BINS];
+            let n = l.occupied_bins(&mut list);
+            assert!(list[..n].windows(2).all(|w| w[0] < w[1]), "case {case}");
+            assert!(list[..n].iter().all(|&b| l.bins[b as usize].count != 0));
+            assert_eq!(n, l.bins.iter().filter(|b| b.count != 0).count());
             let got = l
-                .otsu_split()
+                .otsu_split(&list[..n])
                 .map(|s| (s.total, s.eta.to_bits(), s.k, s.low_n));
             let want = (total >= 16)
                 .then(|| otsu_every_bin(&l, total as f32))
