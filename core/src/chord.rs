@@ -7,6 +7,7 @@
 //! interpolate geometrically inside the bin that holds them: at most a 19 % bin width of
 //! error, usually far less; the mean, min and max are exact.
 
+use crate::quotient::count_quotient;
 use micromath::F32Ext;
 
 /// Bins per octave.
@@ -150,7 +151,7 @@ impl ChordStats {
 
     /// Mean chord, samples.
     pub fn mean(&self) -> Option<f32> {
-        (self.count > 0).then(|| (self.sum as f64 / self.count as f64) as f32)
+        (self.count > 0).then(|| count_quotient(self.sum, self.count as u64))
     }
 
     /// The squared coefficient of variation of the chords, `s²/mean²` (`s²` the sample

@@ -18,6 +18,7 @@
 //! spends its first half finding that range. All arithmetic is deterministic (integers, plain f32), so a
 //! device and a host replay learn the same levels from the same samples.
 
+use crate::quotient::sum_quotient;
 use micromath::F32Ext;
 
 /// Number of histogram bins.
@@ -370,10 +371,8 @@ impl LevelLearner {
     /// The sum is an exact integer (counts times bin edges, which are integers, plus the
     /// offsets); the mean is that sum over the count, rounded to f32. When both are exact
     /// in f32 (below 2^24: any learning period of up to 2^24 / 32768 = 512 strided
-    /// samples per bin range), one f32 division rounds it; else the sum and count, exact
-    /// in f64, are divided in f64 and the quotient rounded to f32. The two agree bit for
-    /// bit: rounding an f64 quotient of f32 values to f32 is innocuous (53 >= 2 * 24 + 2
-    /// bits; Figueroa 1995), and the f32 division spares a 32-bit core its soft-float.
+    /// samples per bin range), one f32 division rounds it, else an f64 one: the same value
+    /// ([`sum_quotient`]).
     fn mean_of(&self, lo: usize, hi: usize) -> Option<f32> {
         let mut n = 0u64;
         let mut s = 0i64;
@@ -387,15 +386,7 @@ impl LevelLearner {
                 .wrapping_add((c as i64).wrapping_mul(edge as i64))
                 .wrapping_add(off as i64);
         }
-        if n == 0 {
-            return None;
-        }
-        const EXACT: u64 = 1 << 24;
-        Some(if s.unsigned_abs() <= EXACT && n <= EXACT {
-            s as f32 / n as f32
-        } else {
-            (s as f64 / n as f64) as f32
-        })
+        (n > 0).then(|| sum_quotient(s, n))
     }
 
     /// The occupied bins in increasing order, into `out`; returns how many.

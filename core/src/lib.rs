@@ -41,6 +41,7 @@ pub mod logbook;
 pub mod phase;
 pub mod probe_config;
 pub mod profile;
+pub mod quotient;
 pub mod record;
 pub mod station;
 pub mod tip_stats;

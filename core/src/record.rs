@@ -5,6 +5,7 @@ use crate::cluster::ClusterStats;
 use crate::correlation::{CorrelationResult, CorrelationSums, DEFAULT_LAGS};
 use crate::flags::Flags;
 use crate::levels::Levels;
+use crate::quotient::count_quotient;
 
 /// Statistics of one tip over one window.
 ///
@@ -63,7 +64,7 @@ impl TipStats {
 
     /// Void fraction: the fraction of the window's frames in air.
     pub fn void_fraction(&self) -> Option<f32> {
-        (self.frames > 0).then(|| (self.air_frames as f64 / self.frames as f64) as f32)
+        (self.frames > 0).then(|| count_quotient(self.air_frames, self.frames))
     }
 
     /// Standard error of [`void_fraction`](Self::void_fraction) from the window's chords
