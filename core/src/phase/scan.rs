@@ -105,10 +105,11 @@ fn scan<const POS: bool, const IN_AIR: bool>(
 
 /// The first sample index from `i` (a step of `s` samples) of a group of four of the tip's
 /// samples (`i`, `i + s`, `i + 2 s`, `i + 3 s`) that holds one outside the quiet band
-/// `(a, w)`, or of the last samples (fewer than four strides left): every group before it
-/// is quiet. Apart from [`scan`], so that its loop keeps the band and the strides in
-/// registers; for the usual channel counts with the stride a constant, so the four samples
-/// of a group are loads at fixed offsets. `s <= samples.len()`, so four strides cannot
+/// `(a, w)`, or of the last samples (fewer than eight strides left): every group before it
+/// is quiet. Groups are tested two at a time (one bounds check and one loop step for eight
+/// samples). Apart from [`scan`], so that its loop keeps the band and the strides in
+/// registers; for the usual channel counts with the stride a constant, so the samples of a
+/// group are loads at fixed offsets. `s <= samples.len()`, so eight strides cannot
 /// overflow.
 #[inline(never)]
 fn skip_quiet(samples: &[i16], i: usize, s: usize, a: i32, w: u32) -> usize {
@@ -128,7 +129,7 @@ fn skip_quiet(samples: &[i16], i: usize, s: usize, a: i32, w: u32) -> usize {
 fn skip_quiet_by(samples: &[i16], mut i: usize, s: usize, a: i32, w: u32) -> usize {
     let loud = |x: i16| (x as i32).wrapping_sub(a) as u32 > w;
     let span = 3 * s;
-    for g in samples.get(i..).unwrap_or(&[]).chunks_exact(4 * s) {
+    for g in samples.get(i..).unwrap_or(&[]).chunks_exact(8 * s) {
         let (Some(&x0), Some(&x1), Some(&x2), Some(&x3)) =
             (g.first(), g.get(s), g.get(2 * s), g.get(span))
         else {
@@ -137,7 +138,15 @@ fn skip_quiet_by(samples: &[i16], mut i: usize, s: usize, a: i32, w: u32) -> usi
         if loud(x0) | loud(x1) | loud(x2) | loud(x3) {
             break;
         }
-        i += 4 * s;
+        let (Some(&x4), Some(&x5), Some(&x6), Some(&x7)) =
+            (g.get(4 * s), g.get(5 * s), g.get(6 * s), g.get(7 * s))
+        else {
+            break;
+        };
+        if loud(x4) | loud(x5) | loud(x6) | loud(x7) {
+            return i + 4 * s;
+        }
+        i += 8 * s;
     }
     i
 }
