@@ -23,9 +23,9 @@ enum Modes {
 
 /// The two levels of counted values (`(value, count)` in increasing value, counts > 0) by
 /// the device's rule ([`LevelLearner`]), with the record rule's class size.
-fn modes(points: impl Iterator<Item = (i16, u32)> + Clone, min_swing: u16) -> Modes {
-    let total: u64 = points.clone().map(|(_, c)| c as u64).sum();
-    let (Some((min, _)), Some((max, _))) = (points.clone().next(), points.clone().last()) else {
+fn modes(points: &[(i16, u32)], min_swing: u16) -> Modes {
+    let total: u64 = points.iter().map(|&(_, c)| c as u64).sum();
+    let (Some(&(min, _)), Some(&(max, _))) = (points.first(), points.last()) else {
         return Modes::Empty;
     };
     if (max as i32 - min as i32) < min_swing as i32 {
@@ -41,7 +41,7 @@ fn modes(points: impl Iterator<Item = (i16, u32)> + Clone, min_swing: u16) -> Mo
     };
     let mut learner = LevelLearner::new();
     let feed = |l: &mut LevelLearner| {
-        for (x, c) in points.clone() {
+        for &(x, c) in points {
             l.observe_repeated(x, scale(c));
         }
     };
@@ -59,12 +59,8 @@ fn modes(points: impl Iterator<Item = (i16, u32)> + Clone, min_swing: u16) -> Mo
 /// The levels of one drift segment from its coarse histogram (`SEGMENT_BIN`-count bins,
 /// each count taken at its bin's centre), or `None` when it shows no two clear levels.
 pub(super) fn segment_levels(coarse: &[u32], polarity: Polarity, min_swing: u16) -> Option<Levels> {
-    let points = coarse
-        .iter()
-        .enumerate()
-        .filter(|&(_, &c)| c > 0)
-        .map(|(b, &c)| (value(b * SEGMENT_BIN + SEGMENT_BIN / 2), c));
-    match modes(points, min_swing) {
+    let points = occupied(coarse, |b| value(b * SEGMENT_BIN + SEGMENT_BIN / 2));
+    match modes(&points, min_swing) {
         Modes::Two { low, high } => Some(match polarity {
             Polarity::AirHigh => Levels {
                 air: high,
@@ -79,6 +75,16 @@ pub(super) fn segment_levels(coarse: &[u32], polarity: Polarity, min_swing: u16)
     }
 }
 
+/// The occupied bins of `counts` as `(value_of(bin), count)`, in bin order.
+fn occupied(counts: &[u32], value_of: impl Fn(usize) -> i16) -> Vec<(i16, u32)> {
+    counts
+        .iter()
+        .enumerate()
+        .filter(|&(_, &c)| c > 0)
+        .map(|(b, &c)| (value_of(b), c))
+        .collect()
+}
+
 /// The value of histogram bin `b` (bins are i16 values offset by 0x8000).
 fn value(b: usize) -> i16 {
     (b as u16 ^ 0x8000) as i16
@@ -86,12 +92,10 @@ fn value(b: usize) -> i16 {
 
 /// Learn one tip's levels from the counts of its values (`hist[x ^ 0x8000]`).
 pub fn from_histogram(hist: &[u32], polarity: Polarity, min_swing: u16) -> TipOutcome {
-    let points = hist
-        .iter()
-        .enumerate()
-        .filter(|&(_, &c)| c > 0)
-        .map(|(b, &c)| (value(b), c));
-    let (low, high) = match modes(points, min_swing) {
+    // The occupied values, listed once: the rule reads them several times, and a tip's
+    // 65 536 bins hold a few thousand.
+    let points = occupied(hist, value);
+    let (low, high) = match modes(&points, min_swing) {
         Modes::Two { low, high } => (low, high),
         Modes::OnePhase { min, max } => return TipOutcome::OnePhase { min, max },
         Modes::Unclear { min, max } => return TipOutcome::Unclear { min, max },
