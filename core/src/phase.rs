@@ -483,15 +483,17 @@ impl PhaseDetector {
                 unlearnt: n,
             };
         };
-        let (lo, hi) = (t.enter_water as i64, t.enter_air as i64);
+        let (lo, hi) = (t.enter_water, t.enter_air);
         // The tip's samples: every `channels`-th from its channel on.
         let samples = frames.get(ch..).unwrap_or(&[]);
         let stride = NonZeroUsize::new(channels).unwrap_or(NonZeroUsize::MIN);
         let (air, air_n, rail_n) = if self.sign > 0 {
             run_loop::<true, _>(samples, stride, (lo, hi), (rl, rh), self.air, first, sink)
         } else {
-            // In the air-is-high scale y = -x: y > t  <=>  x < -t.
-            run_loop::<false, _>(samples, stride, (-lo, -hi), (rl, rh), self.air, first, sink)
+            // In the air-is-high scale y = -x: y > t  <=>  x < -t (-i32::MIN saturates to
+            // i32::MAX, below which every i16 lies either way).
+            let neg = (lo.saturating_neg(), hi.saturating_neg());
+            run_loop::<false, _>(samples, stride, neg, (rl, rh), self.air, first, sink)
         };
         rail += rail_n;
         self.air = air;

@@ -168,16 +168,12 @@ fn skip_quiet_by(samples: &[i16], mut i: usize, s: usize, a: i32, w: u32) -> usi
 pub(super) fn run_loop<const POS: bool, S: EdgeSink>(
     samples: &[i16],
     stride: NonZeroUsize,
-    (lo, hi): (i64, i64),
+    (lo, hi): (i32, i32),
     (rl, rh): (i16, i16),
     mut air: bool,
     first: u64,
     sink: &mut S,
 ) -> (bool, u32, u32) {
-    let (lo, hi) = (
-        lo.clamp(i32::MIN as i64, i32::MAX as i64) as i32,
-        hi.clamp(i32::MIN as i64, i32::MAX as i64) as i32,
-    );
     // In water both thresholds must be crossed: the stricter one decides.
     let water_t = if POS { hi.max(lo) } else { hi.min(lo) };
     let rails = (rl as i32 + 1, (rh as i32 - rl as i32 - 1).max(0) as u32);
