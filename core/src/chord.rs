@@ -311,13 +311,8 @@ mod bin_tests {
     /// its neighbours, and random chords up to `u32::MAX`.
     #[test]
     fn bins_equal_the_octave_form() {
-        let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
-        let random = (0..100_000).map(|_| {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            x as u32
-        });
+        let mut next = crate::test_rng::xorshift(0x9E37_79B9_7F4A_7C15);
+        let random = (0..100_000).map(|_| next() as u32);
         let edges = (0..32).flat_map(|k| {
             let p = 1u32 << k;
             [p - 1, p, p.saturating_add(1)]

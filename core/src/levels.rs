@@ -529,16 +529,7 @@ impl LevelLearner {
 mod tests {
     use super::*;
     extern crate std;
-
-    /// Marsaglia's xorshift64 (Marsaglia 2003, "Xorshift RNGs"): reproducible inputs.
-    fn xorshift(mut x: u64) -> impl FnMut() -> u64 {
-        move || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            x
-        }
-    }
+    use crate::test_rng::xorshift;
 
     /// Standard normal deviates by the Box-Muller transform (Box and Muller 1958) over
     /// [`xorshift`].

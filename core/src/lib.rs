@@ -44,6 +44,8 @@ pub mod profile;
 pub mod quotient;
 pub mod record;
 pub mod station;
+#[cfg(test)]
+mod test_rng;
 pub mod tip_stats;
 pub mod window;
 pub mod wire;

@@ -529,13 +529,8 @@ mod tests {
             polarity: Polarity::AirHigh,
             levels: LevelSource::Learnt,
         };
-        let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
-        let mut noise = move || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            ((x >> 40) % 81) as f32 - 40.0
-        };
+        let mut random = crate::test_rng::xorshift(0x9E37_79B9_7F4A_7C15);
+        let mut noise = move || ((random() >> 40) % 81) as f32 - 40.0;
         let mut frames = std::vec::Vec::new();
         for i in 0..400 {
             let level = if (i / 20) % 3 == 0 { 26000.0 } else { 3000.0 };

@@ -38,13 +38,7 @@ mod tests {
     /// on quotients near ties.
     #[test]
     fn f32_division_equals_the_rounded_f64_quotient() {
-        let mut x: u64 = 0x2545_F491_4F6C_DD1D;
-        let mut next = move || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            x
-        };
+        let mut next = crate::test_rng::xorshift(0x2545_F491_4F6C_DD1D);
         for case in 0..1_000_000u64 {
             let bits = 1 + case % 24;
             let den = 1 + next() % ((1 << bits) - 1).max(1);

@@ -477,13 +477,7 @@ mod tests {
     /// bit for bit: random sums, consistent or not, at every overlap size class.
     #[test]
     fn pearson_small_equals_the_masked_form() {
-        let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
-        let mut next = move || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            x
-        };
+        let mut next = crate::test_rng::xorshift(0x9E37_79B9_7F4A_7C15);
         for case in 0..2_000_000u32 {
             let n = match case % 4 {
                 0 => (next() % 8) as u32,
@@ -518,13 +512,7 @@ mod tests {
     /// coefficient functions with undefined lags, ties and plateaus.
     #[test]
     fn analysis_equals_its_straightforward_form() {
-        let mut x: u64 = 0x2545_F491_4F6C_DD1D;
-        let mut next = move || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            x
-        };
+        let mut next = crate::test_rng::xorshift(0x2545_F491_4F6C_DD1D);
         for case in 0..20_000u32 {
             let lags = 1 + (next() % 70) as usize;
             let mut rab = [0f32; 70];
@@ -534,8 +522,16 @@ mod tests {
                 // Random walks on a coarse grid (ties), some lags undefined.
                 u = (u + ((next() % 9) as f32 - 4.0) * 0.125).clamp(-1.0, 1.0);
                 w = (w - ((next() % 5) as f32) * 0.0625).clamp(-1.0, 1.0);
-                rab[i] = if next() % 23 == 0 { f32::NAN } else { u };
-                raa[i] = if next() % 41 == 0 { f32::NAN } else { w };
+                rab[i] = if next().is_multiple_of(23) {
+                    f32::NAN
+                } else {
+                    u
+                };
+                raa[i] = if next().is_multiple_of(41) {
+                    f32::NAN
+                } else {
+                    w
+                };
             }
             let raa_len = if case % 3 == 0 {
                 lags

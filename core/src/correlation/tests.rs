@@ -41,13 +41,7 @@ extern crate std;
 /// signals of several void fractions and lengths, both functions.
 #[test]
 fn lag_by_lag_fill_equals_chunked_fill() {
-    let mut x: u64 = 0x853C_49E6_748F_EA9B;
-    let mut next = move || {
-        x ^= x << 13;
-        x ^= x >> 7;
-        x ^= x << 17;
-        x
-    };
+    let mut next = crate::test_rng::xorshift(0x853C_49E6_748F_EA9B);
     for case in 0..60u64 {
         let n = 50 + (next() % 3000) as usize;
         let p_flip = 1 + next() % 40;
@@ -139,13 +133,7 @@ fn lag_by_lag_fill_equals_chunked_fill() {
 /// 32-bit stage and longer.
 #[test]
 fn analysis_in_place_equals_analysis_of_the_sums() {
-    let mut x: u64 = 0x9E37_79B9_7F4A_7C15;
-    let mut next = move || {
-        x ^= x << 13;
-        x ^= x >> 7;
-        x ^= x << 17;
-        x
-    };
+    let mut next = crate::test_rng::xorshift(0x9E37_79B9_7F4A_7C15);
     for case in 0..40u64 {
         let max_lag = [0u16, 1, 2, 7, 30, 60, 63][case as usize % 7];
         let air = case % 2 == 1;
@@ -154,7 +142,7 @@ fn analysis_in_place_equals_analysis_of_the_sums() {
         let (mut sa, mut sb) = (air, air);
         let mut start = 0u64;
         for _ in 0..6 {
-            let n = if next() % 8 == 0 {
+            let n = if next().is_multiple_of(8) {
                 46_000 + next() % 2_000
             } else {
                 10 + next() % 2_000
@@ -316,13 +304,8 @@ fn sqrt_is_accurate() {
 /// the window times no longer fit 32 bits and the window is flagged).
 #[test]
 fn runs_of_held_edges_equal_edges_in_time_order() {
-    let mut x: u64 = 0x2545_F491_4F6C_DD1D;
-    let mut next = move |m: u64| {
-        x ^= x << 13;
-        x ^= x >> 7;
-        x ^= x << 17;
-        x % m
-    };
+    let mut random = crate::test_rng::xorshift(0x2545_F491_4F6C_DD1D);
+    let mut next = move |m: u64| random() % m;
     for case in 0..300 {
         let n = 1 + next(700) as usize;
         let p_change = 1 + next(30);
