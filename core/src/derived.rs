@@ -288,9 +288,11 @@ impl Derived {
             (var > 0.0).then(|| (cl.pairs as f32 - n * p) / F32Ext::sqrt(var))
         });
         Derived {
-            chord_length_mean_mm: mm(chords.mean()),
-            chord_length_median_mm: mm(chord_quantile(chords, 0.5)),
-            chord_length_p90_mm: mm(chord_quantile(chords, 0.9)),
+            // The chord quantiles are worked out only when there is a velocity to turn
+            // them into lengths.
+            chord_length_mean_mm: v.and_then(|_| mm(chords.mean())),
+            chord_length_median_mm: v.and_then(|_| mm(chord_quantile(chords, 0.5))),
+            chord_length_p90_mm: v.and_then(|_| mm(chord_quantile(chords, 0.9))),
             interfacial_area_per_m: f.zip(v).and_then(|(f, v)| interfacial_area(f, v)),
             sauter_diameter_mm: c
                 .zip(f)
