@@ -63,8 +63,7 @@ pub fn pair_probability_by(
     mean_water: f32,
     wake: crate::cluster::NearWake,
 ) -> Option<f32> {
-    let nb: u32 = bubbles.bins.iter().fold(0u32, |a, &c| a.saturating_add(c));
-    if nb == 0 || !(mean_water > 0.0 && mean_water.is_finite()) {
+    if bubbles.bins.iter().all(|&c| c == 0) || !(mean_water > 0.0 && mean_water.is_finite()) {
         return None;
     }
     if wake.frames > 0 {
@@ -77,15 +76,16 @@ pub fn pair_probability_by(
 
 /// `E[1 − exp(−B / mean_water)]` over the bubble chord histogram.
 fn pair_probability_scaled(bubbles: &ChordStats, mean_water: f32) -> Option<f32> {
-    let nb: u32 = bubbles.bins.iter().fold(0u32, |a, &c| a.saturating_add(c));
-    if nb == 0 || !(mean_water > 0.0 && mean_water.is_finite()) {
+    if !(mean_water > 0.0 && mean_water.is_finite()) {
         return None;
     }
-    let mut sum = 0.0f32;
+    // The chords (saturating), summed over the occupied bins as they are visited.
+    let (mut sum, mut nb) = (0.0f32, 0u32);
     for (b, &c) in bubbles.bins.iter().enumerate().take(CHORD_BINS) {
         if c == 0 {
             continue;
         }
+        nb = nb.saturating_add(c);
         let (lo, hi) = (bin_lower(b), bin_upper(b));
         let x = if hi - lo <= 1.0 {
             F32Ext::ceil(lo)
@@ -93,6 +93,9 @@ fn pair_probability_scaled(bubbles: &ChordStats, mean_water: f32) -> Option<f32>
             F32Ext::sqrt(lo * hi)
         };
         sum += c as f32 * (1.0 - F32Ext::exp(-x / mean_water));
+    }
+    if nb == 0 {
+        return None;
     }
     let p = sum / nb as f32;
     p.is_finite().then_some(p.clamp(0.0, 1.0))
@@ -159,7 +162,13 @@ fn ln_1p(u: f32) -> f32 {
 ///
 /// `None` when empty or `q` outside 0..=1. O(bins).
 pub fn chord_quantile(s: &ChordStats, q: f32) -> Option<f32> {
-    let total = s.bins.iter().fold(0u32, |a, &c| a.saturating_add(c));
+    // The bins' saturating sum: their exact sum (no u64 overflow for 72 bins) capped.
+    let total = s
+        .bins
+        .iter()
+        .map(|&c| c as u64)
+        .sum::<u64>()
+        .min(u32::MAX as u64) as u32;
     if total == 0 || !(0.0..=1.0).contains(&q) {
         return None;
     }
