@@ -162,13 +162,27 @@ fn ln_1p(u: f32) -> f32 {
 ///
 /// `None` when empty or `q` outside 0..=1. O(bins).
 pub fn chord_quantile(s: &ChordStats, q: f32) -> Option<f32> {
-    // The bins' saturating sum: their exact sum (no u64 overflow for 72 bins) capped.
-    let total = s
-        .bins
+    quantile_of(s, q, binned_chords(s))
+}
+
+/// [`chord_quantile`] at several `qs`, the histogram's count taken once.
+pub fn chord_quantiles<const N: usize>(s: &ChordStats, qs: [f32; N]) -> [Option<f32>; N] {
+    let total = binned_chords(s);
+    qs.map(|q| quantile_of(s, q, total))
+}
+
+/// The chords in the bins: their saturating sum, as their exact sum (no u64 overflow for
+/// 72 bins) capped.
+fn binned_chords(s: &ChordStats) -> u32 {
+    s.bins
         .iter()
         .map(|&c| c as u64)
         .sum::<u64>()
-        .min(u32::MAX as u64) as u32;
+        .min(u32::MAX as u64) as u32
+}
+
+/// [`chord_quantile`] with the histogram's count `total`.
+fn quantile_of(s: &ChordStats, q: f32, total: u32) -> Option<f32> {
     if total == 0 || !(0.0..=1.0).contains(&q) {
         return None;
     }
@@ -279,6 +293,13 @@ impl Derived {
             (fs > 0.0).then(|| f / fs * v * 1000.0)
         };
         let chords = &tip.bubble_chords;
+        // The chord quantiles are worked out only when there is a velocity to turn them
+        // into lengths.
+        let [median, p90] = if v.is_some() {
+            chord_quantiles(chords, [0.5, 0.9])
+        } else {
+            [None, None]
+        };
         let f = tip.bubble_count_rate(fs);
         let c = tip.void_fraction();
         let cl = &tip.clusters;
@@ -297,11 +318,9 @@ impl Derived {
             (var > 0.0).then(|| (cl.pairs as f32 - n * p) / F32Ext::sqrt(var))
         });
         Derived {
-            // The chord quantiles are worked out only when there is a velocity to turn
-            // them into lengths.
             chord_length_mean_mm: v.and_then(|_| mm(chords.mean())),
-            chord_length_median_mm: v.and_then(|_| mm(chord_quantile(chords, 0.5))),
-            chord_length_p90_mm: v.and_then(|_| mm(chord_quantile(chords, 0.9))),
+            chord_length_median_mm: mm(median),
+            chord_length_p90_mm: mm(p90),
             interfacial_area_per_m: f.zip(v).and_then(|(f, v)| interfacial_area(f, v)),
             sauter_diameter_mm: c
                 .zip(f)
