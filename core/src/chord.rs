@@ -115,14 +115,21 @@ impl ChordStats {
         }
     }
 
-    /// Back to no chord yet ([`new`](Self::new)), in place.
-    pub(crate) fn clear(&mut self) {
+    /// Back to no chord yet ([`new`](Self::new)), in place, for stats built by
+    /// [`add`](Self::add) alone: their bins
+    /// beyond those of the shortest and the longest chord are zero ([`bin_of`] never
+    /// decreases with the chord), so only the bins from the one to the other are cleared.
+    pub(crate) fn clear_added(&mut self) {
+        // Empty (shortest u32::MAX, longest 0): a start past the end, nothing to clear.
+        let reached = bin_of(self.min)..bin_of(self.max).saturating_add(1);
+        if let Some(bins) = self.bins.get_mut(reached) {
+            bins.fill(0);
+        }
         self.count = 0;
         self.sum = 0;
         self.min = u32::MAX;
         self.max = 0;
         self.short = 0;
-        self.bins = [0; CHORD_BINS];
     }
 
     /// Add one chord of `n` samples.
@@ -291,6 +298,29 @@ mod octave_tests {
 #[cfg(test)]
 mod bin_tests {
     use super::*;
+
+    /// Clearing only the reached bins leaves the state of a fresh histogram: chords from
+    /// 1 frame to 2^32 - 1, a few or many, none, and each end of the bin range.
+    #[test]
+    fn clearing_the_reached_bins_leaves_a_fresh_histogram() {
+        let mut next = crate::test_rng::xorshift(0x853C_49E6_748F_EA9B);
+        for case in 0..2_000u32 {
+            let mut s = ChordStats::new();
+            let bits = 1 + case % 32;
+            for _ in 0..case % 40 {
+                let n = (next() % (1u64 << bits)) as u32;
+                s.add(n.max(1));
+            }
+            if case % 7 == 0 {
+                s.add(u32::MAX);
+            }
+            if case % 11 == 0 {
+                s.add(1);
+            }
+            s.clear_added();
+            assert_eq!(s, ChordStats::new(), "case {case}");
+        }
+    }
 
     /// The bin as it was worked out before (the two bits after the leading one by a shift
     /// down, or up for octaves 0 and 1).

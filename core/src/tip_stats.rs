@@ -114,8 +114,9 @@ impl TipAccumulator {
         self.unlearnt_frames = 0;
         self.bubbles = 0;
         self.droplets = 0;
-        self.bubble_chords.clear();
-        self.droplet_chords.clear();
+        // Built by `add` alone (see `edge`): only the bins a chord reached are cleared.
+        self.bubble_chords.clear_added();
+        self.droplet_chords.clear_added();
         self.clusters.clear();
     }
 }
