@@ -116,9 +116,9 @@ impl ChordStats {
     }
 
     /// Back to no chord yet ([`new`](Self::new)), in place, for stats built by
-    /// [`add`](Self::add) alone: their bins
-    /// beyond those of the shortest and the longest chord are zero ([`bin_of`] never
-    /// decreases with the chord), so only the bins from the one to the other are cleared.
+    /// [`add`](Self::add) alone: their bins beyond those of the shortest and the longest
+    /// chord are zero ([`bin_of`] never decreases with the chord), so only the bins from
+    /// the one to the other are cleared.
     pub(crate) fn clear_added(&mut self) {
         // Empty (shortest u32::MAX, longest 0): a start past the end, nothing to clear.
         let reached = bin_of(self.min)..bin_of(self.max).saturating_add(1);

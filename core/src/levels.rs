@@ -389,6 +389,11 @@ impl LevelLearner {
         (n > 0).then(|| sum_quotient(s, n))
     }
 
+    /// The count of bin `b` (any index: masked to the bins, no bounds check).
+    fn bin_count(&self, b: usize) -> u32 {
+        self.bins[b & (LEARN_BINS - 1)].count
+    }
+
     /// The occupied bins in increasing order, into `out`; returns how many.
     fn occupied_bins(&self, out: &mut [u8; LEARN_BINS]) -> usize {
         let mut m = 0;
@@ -410,7 +415,7 @@ impl LevelLearner {
         // sums and the split are those of every bin, bit for bit; a two-level histogram
         // fills only a few of its bins, so most of a decision's float work is spared. The
         // count and the low class's size are summed in the same passes.
-        let count = |b: u8| self.bins[b as usize & (LEARN_BINS - 1)].count;
+        let count = |b: u8| self.bin_count(b as usize);
         let (mut total, mut sum) = (0u64, 0f32);
         for &b in occupied {
             let c = count(b);
@@ -488,12 +493,11 @@ impl LevelLearner {
         }
         // The first fullest bin of `lo..=hi` (`lo` if all are empty): empty bins never
         // beat it, so only the occupied ones are looked at.
-        let count = |b: usize| self.bins[b & (LEARN_BINS - 1)].count;
         let mode = |lo: usize, hi: usize| -> usize {
             let mut m = lo;
             for &b in occupied {
                 let b = b as usize;
-                if (lo..=hi).contains(&b) && count(b) > count(m) {
+                if (lo..=hi).contains(&b) && self.bin_count(b) > self.bin_count(m) {
                     m = b;
                 }
             }
