@@ -204,7 +204,8 @@ pub fn probe_table(layout: &Layout, sample_rate: u32, records: &[ProbeWindow]) -
     tally_table(layout, &tallies)
 }
 
-/// The per-probe table of `tallies` (one per layout probe).
+/// The per-probe table of `tallies` (one per layout probe), fitted to the terminal when
+/// standard output is one.
 pub fn tally_table(layout: &Layout, tallies: &[ProbeTally]) -> String {
     let rows: Vec<SummaryRow> = layout
         .probes
@@ -216,7 +217,10 @@ pub fn tally_table(layout: &Layout, tallies: &[ProbeTally]) -> String {
             tally,
         })
         .collect();
-    crate::shared::probe_summary::summary_table(&rows)
+    crate::shared::probe_summary::summary_table_fitted(
+        &rows,
+        crate::shared::stdout::terminal_width(),
+    )
 }
 
 /// Levels that change during the record, segment by segment (drift tracking): every tip

@@ -279,11 +279,22 @@ pub struct SummaryRow<'a> {
 /// of all, C, F, V, Tu and chord median with 95 % intervals, bubbles, why windows were left
 /// out, and windows per flag.
 pub fn summary_table(rows: &[SummaryRow<'_>]) -> String {
-    use std::fmt::Write;
     let mut s = String::new();
-    let _ = writeln!(
-        s,
-        "{:<10} {:>7} {:>9} {:>15} {:>13} {:>11} {:>11} {:>13} {:>8}  left out | flags (windows)",
+    s.push_str(&figures_header());
+    s.push_str("  left out | flags (windows)\n");
+    for r in rows {
+        let t = r.tally;
+        s.push_str(&figures_row(r));
+        s.push_str(&format!("  {} | {}\n", t.left_out_text(), t.flags_text()));
+    }
+    s.push_str(&format!("(± 95 % batch-means interval; {RULE_TEXT})\n"));
+    s
+}
+
+/// The header of the figures' columns of [`summary_table`] (no line end).
+fn figures_header() -> String {
+    format!(
+        "{:<10} {:>7} {:>9} {:>15} {:>13} {:>11} {:>11} {:>13} {:>8}",
         "probe",
         "y [mm]",
         "used/all",
@@ -293,27 +304,117 @@ pub fn summary_table(rows: &[SummaryRow<'_>]) -> String {
         "Tu [-]",
         "chord [ms]",
         "bubbles"
-    );
+    )
+}
+
+/// One probe's figures under [`figures_header`] (no line end).
+fn figures_row(r: &SummaryRow<'_>) -> String {
+    let t = r.tally;
+    format!(
+        "{:<10} {:>7.1} {:>9} {:>15} {:>13} {:>11} {:>11} {:>13} {:>8.0}",
+        r.name,
+        r.elevation_mm,
+        format!("{}/{}", t.used, t.windows),
+        estimate_text(t.void_fraction(), 1.0, 4),
+        estimate_text(t.count_rate_hz(), 1.0, 1),
+        estimate_text(t.velocity_m_s(), 1.0, 2),
+        estimate_text(t.turbulence_intensity(), 1.0, 2),
+        estimate_text(t.chord_median_s(), 1e3, 3),
+        t.bubbles
+    )
+}
+
+/// [`summary_table`] for a reader `width` columns wide (`None`: no limit, the table as it
+/// is). When its lines do not fit, why windows were left out and the flag counts go on
+/// lines of their own under each probe's row; when even the rows do not fit (an 80-column
+/// terminal), each probe gets a block instead: its name, elevation, windows used and
+/// bubbles, then its figures. Every line is packed with whole items up to the width (a
+/// figure is never split from its value).
+pub fn summary_table_fitted(rows: &[SummaryRow<'_>], width: Option<usize>) -> String {
+    let table = summary_table(rows);
+    let Some(width) = width else {
+        return table;
+    };
+    let w = textwrap::core::display_width;
+    if table.lines().all(|l| w(l) <= width) {
+        return table;
+    }
+    let as_rows = w(&figures_header()) <= width && rows.iter().all(|r| w(&figures_row(r)) <= width);
+    let mut s = String::new();
+    if as_rows {
+        s.push_str(figures_header().trim_end());
+        s.push('\n');
+    }
     for r in rows {
         let t = r.tally;
-        let _ = writeln!(
-            s,
-            "{:<10} {:>7.1} {:>9} {:>15} {:>13} {:>11} {:>11} {:>13} {:>8.0}  {} | {}",
-            r.name,
-            r.elevation_mm,
-            format!("{}/{}", t.used, t.windows),
-            estimate_text(t.void_fraction(), 1.0, 4),
-            estimate_text(t.count_rate_hz(), 1.0, 1),
-            estimate_text(t.velocity_m_s(), 1.0, 2),
-            estimate_text(t.turbulence_intensity(), 1.0, 2),
-            estimate_text(t.chord_median_s(), 1e3, 3),
-            t.bubbles,
-            t.left_out_text(),
-            t.flags_text()
-        );
+        if as_rows {
+            s.push_str(figures_row(r).trim_end());
+            s.push('\n');
+        } else {
+            let head = [
+                r.name.to_string(),
+                format!("y {:.1} mm", r.elevation_mm),
+                format!("windows used {}/{}", t.used, t.windows),
+                format!("{:.0} bubbles", t.bubbles),
+            ];
+            // `V 2.91±0.03 m/s`, or `V -` without a value.
+            let item = |name: &str, value: String, unit: &str| match value.as_str() {
+                "-" => format!("{name} -"),
+                _ => format!("{name} {value}{unit}"),
+            };
+            let figures = [
+                item("C", estimate_text(t.void_fraction(), 1.0, 4), ""),
+                item("F", estimate_text(t.count_rate_hz(), 1.0, 1), " Hz"),
+                item("V", estimate_text(t.velocity_m_s(), 1.0, 2), " m/s"),
+                item("Tu", estimate_text(t.turbulence_intensity(), 1.0, 2), ""),
+                item("chord", estimate_text(t.chord_median_s(), 1e3, 3), " ms"),
+            ];
+            pack_items(&mut s, "", "    ", &head, width);
+            pack_items(&mut s, "    ", "    ", &figures, width);
+        }
+        s.push_str(&crate::shared::stdout::fold_lines(
+            &format!("    left out: {}\n", t.left_out_text()),
+            width,
+        ));
+        let flags: Vec<String> = t
+            .flag_counts()
+            .into_iter()
+            .map(|(name, n)| format!("{name} {n}/{}", t.windows))
+            .collect();
+        let flags = if flags.is_empty() {
+            vec!["-".to_string()]
+        } else {
+            flags
+        };
+        pack_items(&mut s, "    flags (windows): ", "        ", &flags, width);
     }
-    let _ = writeln!(s, "(± 95 % batch-means interval; {RULE_TEXT})");
+    let note = format!("(± 95 % batch-means interval; {RULE_TEXT})\n");
+    s.push_str(&crate::shared::stdout::fold_lines(&note, width));
     s
+}
+
+/// Lines of `items` separated by three spaces, as many on a line as fit in `width` (an
+/// item wider than the line alone gets a line of its own), the first line after `first`,
+/// the others after `rest`.
+fn pack_items(s: &mut String, first: &str, rest: &str, items: &[String], width: usize) {
+    let w = textwrap::core::display_width;
+    let mut line = first.to_string();
+    let mut on_line = 0;
+    for item in items {
+        if on_line > 0 && w(&line) + 3 + w(item) > width {
+            s.push_str(line.trim_end());
+            s.push('\n');
+            line = rest.to_string();
+            on_line = 0;
+        }
+        if on_line > 0 {
+            line.push_str("   ");
+        }
+        line.push_str(item);
+        on_line += 1;
+    }
+    s.push_str(line.trim_end());
+    s.push('\n');
 }
 
 #[cfg(test)]
@@ -377,5 +478,59 @@ mod tests {
         );
         assert_eq!(flag_name(8), "few_bubbles");
         assert_eq!(flag_name(31), "bit31");
+    }
+
+    #[test]
+    fn a_narrow_table_keeps_every_figure_within_the_width() {
+        let rule = SummaryRule::default();
+        let mut t = ProbeTally::new();
+        for k in 0..12 {
+            let flags = [
+                Flags::NONE,
+                Flags::FEW_BUBBLES | Flags::TU_INDEX,
+                Flags::STUCK | Flags::TRAILING_STUCK,
+                Flags::PEAK_AT_LAG_BOUNDARY | Flags::SHORT_CHORDS,
+            ][k % 4];
+            t.add(&w(0.3 + 0.01 * k as f64, 120.0, 2.5, 15.0, flags), &rule);
+        }
+        let rows = [
+            SummaryRow {
+                name: "upper",
+                elevation_mm: 85.0,
+                tally: &t,
+            },
+            SummaryRow {
+                name: "lower",
+                elevation_mm: 12.5,
+                tally: &t,
+            },
+        ];
+        let wide = summary_table(&rows);
+        assert_eq!(summary_table_fitted(&rows, None), wide);
+        assert_eq!(summary_table_fitted(&rows, Some(400)), wide);
+        let middle = summary_table_fitted(&rows, Some(120));
+        assert!(middle.lines().all(|l| l.chars().count() <= 120));
+        assert!(middle.contains(&figures_row(&rows[1])), "{middle}");
+        let narrow = summary_table_fitted(&rows, Some(80));
+        assert_ne!(narrow, wide);
+        for line in narrow.lines() {
+            assert!(line.chars().count() <= 80, "{line:?}");
+        }
+        // Every figure and flag count of the wide table is in the narrow one.
+        for cell in [
+            estimate_text(t.void_fraction(), 1.0, 4),
+            estimate_text(t.count_rate_hz(), 1.0, 1),
+            estimate_text(t.velocity_m_s(), 1.0, 2),
+            estimate_text(t.turbulence_intensity(), 1.0, 2),
+            estimate_text(t.chord_median_s(), 1e3, 3),
+            format!("{}/{}", t.used, t.windows),
+            t.left_out_text(),
+        ] {
+            assert_eq!(narrow.matches(&cell).count(), 2, "{cell} in\n{narrow}");
+        }
+        for (name, n) in t.flag_counts() {
+            let cell = format!(" {name} {n}/{}", t.windows);
+            assert_eq!(narrow.matches(&cell).count(), 2, "{cell} in\n{narrow}");
+        }
     }
 }

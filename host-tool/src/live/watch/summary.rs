@@ -65,7 +65,10 @@ impl std::fmt::Display for WatchSummary {
                     },
                 )
                 .collect();
-            f.write_str(&crate::shared::probe_summary::summary_table(&rows))?;
+            f.write_str(&crate::shared::probe_summary::summary_table_fitted(
+                &rows,
+                crate::shared::stdout::terminal_width(),
+            ))?;
         }
         for (x, d) in &self.discharges {
             f.write_str(&crate::shared::discharge::summary(*x, d))?;
