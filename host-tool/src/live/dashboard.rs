@@ -184,8 +184,10 @@ fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant, compac
             let load = l.load(now).map_or(String::new(), |x| {
                 format!(" ({:>4.1} % of {} Bd)", x * 100.0, l.baud)
             });
+            // The age of the last frame first: on a narrow terminal the line is cut at
+            // the right, and a silent link is what the technician must see.
             first.push(Span::raw(format!(
-                " {:>6.1} frames/s  {:>9}/s{load}  {age}",
+                " {age}  {:>6.1} frames/s  {:>9}/s{load}",
                 l.frames_per_s(now),
                 bytes_text(l.bytes_per_s(now)),
             )));
@@ -211,14 +213,14 @@ fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant, compac
         };
         lines.push(Line::from(Span::styled(
             format!(
-                "{:<name_w$}  frames {}  lost {}  CRC failures {}  malformed {}  discarded {}  link drops {}",
+                "{:<name_w$}  frames {}  lost {}  CRC failures {}  link drops {}  malformed {}  discarded {}",
                 "",
                 l.frames,
                 l.lost,
                 l.crc_failures,
+                l.reconnects,
                 l.malformed,
-                bytes_text(l.bytes_discarded as f64),
-                l.reconnects
+                bytes_text(l.bytes_discarded as f64)
             ),
             style,
         )));
@@ -239,15 +241,17 @@ fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant, compac
             spans.extend(status::status_spans(s));
             spans.push(Span::raw(" |"));
         }
+        // The run and its window before the description that does not change (cut first
+        // on a narrow terminal).
         spans.push(Span::raw(format!(
-            " on {port}: firmware {}, {} Hz, window {}, {run}",
+            " {run}, window {}, {} Hz, firmware {} on {port}",
+            if d.window.is_empty() { "?" } else { &d.window },
+            d.sample_rate_hz,
             if d.firmware.is_empty() {
                 "?"
             } else {
                 &d.firmware
             },
-            d.sample_rate_hz,
-            if d.window.is_empty() { "?" } else { &d.window },
         )));
         lines.push(Line::from(spans));
         let h = &d.health;
@@ -274,10 +278,10 @@ fn draw_links(f: &mut Frame, area: Rect, state: &LiveState, now: Instant, compac
         let text = match d.health_at {
             None => "  health: no report yet".to_string(),
             Some(_) => format!(
-                "  health: dropped {} samples, {} frames  saturated {}  {} tips {}  buffer peak {} samples  uptime {uptime}",
-                h.samples_dropped, h.frames_dropped, h.saturated,
+                "  health: {} tips {}  dropped {} samples, {} frames  saturated {}  buffer peak {} samples  uptime {uptime}",
                 if h.tips_stuck > 0 { "STUCK" } else { "stuck" },
-                h.tips_stuck, h.buffer_high_water
+                h.tips_stuck, h.samples_dropped, h.frames_dropped, h.saturated,
+                h.buffer_high_water
             ),
         };
         lines.push(Line::from(Span::styled(

@@ -146,6 +146,18 @@ fn dashboard_shows_probe_rows_and_link_health() {
     assert!(narrow
         .iter()
         .any(|l| l.contains("B2-1") && l.contains("few_bubbles")));
+    // At 80 columns the cut falls on what changes least: the age of the last frame, the
+    // link drops, the run's state and the stuck tips stay on screen.
+    let tiny = render_text(&s, now, 80, 24).join("\n");
+    println!("{tiny}");
+    for want in [
+        "last frame",
+        "link drops",
+        "run \"flume-3\" running",
+        "stuck tips",
+    ] {
+        assert!(tiny.contains(want), "80 columns lack {want:?}:\n{tiny}");
+    }
     let lines = render_text(&s, now, 132, 34);
     println!("{}", lines.join("\n"));
     let text = lines.join("\n");
