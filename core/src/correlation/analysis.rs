@@ -209,6 +209,36 @@ pub(super) fn pearson_small(n: u32, sa: u32, sb: u32, sab: u32) -> f32 {
     coefficient(num, va as f32, vb as f32)
 }
 
+/// [`pearson_small`] without a branch: both forms of the coefficient computed and the
+/// one that applies selected, NaN selected for an undefined lag; the same value bit for
+/// bit (the same IEEE operations on the same operands). A loop over the lags of it has no
+/// call and no branch, so a host compiler runs it in SIMD lanes; a 32-bit core without
+/// them takes [`pearson_small`], which skips the work of the form not needed.
+#[inline(always)]
+pub(super) fn pearson_lane(n: u32, sa: u32, sb: u32, sab: u32) -> f32 {
+    let ok = small_sums_consistent(n, sa, sb, sab);
+    let (n, sa, sb, sab) = (n as i32, sa as i32, sb as i32, sab as i32);
+    let va = sa.wrapping_mul(n.wrapping_sub(sa));
+    let vb = sb.wrapping_mul(n.wrapping_sub(sb));
+    let num = n.wrapping_mul(sab).wrapping_sub(sa.wrapping_mul(sb)) as f32;
+    let defined = ok & (va > 0) & (vb > 0);
+    let (fa, fb) = (va as f32, vb as f32);
+    let quotient = num / fa;
+    // An undefined lag's terms may be negative: 1 in their place keeps the estimate's
+    // integer step in range (its subtraction overflows for a negative operand).
+    let product = num * rsqrt(if defined { fa * fb } else { 1.0 });
+    let r = if fa == fb { quotient } else { product }.clamp(-1.0, 1.0);
+    if defined {
+        r
+    } else {
+        f32::NAN
+    }
+}
+
+/// Whether the lag loops take [`pearson_lane`] (a 64-bit host, with SIMD lanes) or
+/// [`pearson_small`] (a 32-bit core).
+pub(super) const PEARSON_IN_LANES: bool = cfg!(target_pointer_width = "64");
+
 /// The value of an undefined lag, marked as the rare path (the loops over the lags then
 /// spend fewer instructions on the tests that can make a lag undefined).
 #[cold]
@@ -511,6 +541,12 @@ mod tests {
                 got.to_bits(),
                 want.to_bits(),
                 "case {case}: n {n} sa {sa} sb {sb} sab {sab}"
+            );
+            let lane = pearson_lane(n, sa, sb, sab);
+            assert_eq!(
+                lane.to_bits(),
+                want.to_bits(),
+                "lane form, case {case}: n {n} sa {sa} sb {sb} sab {sab}"
             );
         }
     }

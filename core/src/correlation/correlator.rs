@@ -1,7 +1,9 @@
 //! The streaming [`Correlator`]: the window's sums kept as second differences over the lags,
 //! and the edge sinks that feed it (through a [`RunBuffer`] run by run, or in time order).
 
-use super::analysis::{analyse_functions, pearson_small, CorrelationResult, SMALL_N};
+use super::analysis::{
+    analyse_functions, pearson_lane, pearson_small, CorrelationResult, PEARSON_IN_LANES, SMALL_N,
+};
 use super::run_buffer::{RunBuffer, RISING_BIT};
 use super::CorrelationSums;
 use crate::flags::Flags;
@@ -92,6 +94,32 @@ impl<const L: usize> Ring<L> {
                 break;
             }
         }
+    }
+}
+
+/// The cross coefficients of the first `lags` lags from their prefix sums, in SIMD lanes
+/// on a host: lag `t` overlaps `frames - t` frames, the leading tip's air among them is
+/// `lead_air` less its air in the last `t` frames (`tail`), the trailing tip's is
+/// `trail_air` less its air in the first `t` (`head`). No loop-carried value, so the
+/// compiler runs several lags at once; the values are [`pearson_small`]'s bit for bit.
+#[inline(never)]
+fn cross_in_lanes(
+    rab: &mut [f32],
+    cross: &[u32],
+    head: &[u32],
+    tail: &[u32],
+    lags: usize,
+    (frames, lead_air, trail_air): (u32, u32, u32),
+) {
+    let sums = cross.iter().zip(head).zip(tail);
+    for ((o, ((&sab, &h), &z)), t) in rab.iter_mut().zip(sums).take(lags).zip(0u32..) {
+        let n = frames.saturating_sub(t);
+        *o = pearson_lane(
+            n,
+            lead_air.saturating_sub(z),
+            trail_air.saturating_sub(h),
+            sab,
+        );
     }
 }
 
@@ -305,18 +333,21 @@ impl<const L: usize> Correlator<L> {
             *y = step(*y, &mut h);
             *z = step(*z, &mut t);
         }
-        let mut n32 = frames as u32;
-        let ins = self.cross.iter_mut().zip(self.trail_head.iter_mut());
-        for ((x, y), (z, o)) in ins.zip(tail.iter().zip(rab.iter_mut())).take(lags) {
-            let (sab, head) = (*x, *y);
-            (*x, *y) = (0, 0);
-            *o = pearson_small(
-                n32,
-                lead_air.saturating_sub(*z),
-                trail_air.saturating_sub(head),
-                sab,
-            );
-            n32 = n32.saturating_sub(1);
+        if PEARSON_IN_LANES {
+            let sums = (frames as u32, lead_air, trail_air);
+            cross_in_lanes(&mut rab, &self.cross, &self.trail_head, &tail, lags, sums);
+            self.cross.get_mut(..lags).unwrap_or(&mut []).fill(0);
+            self.trail_head.get_mut(..lags).unwrap_or(&mut []).fill(0);
+        } else {
+            let mut n32 = frames as u32;
+            let ins = self.cross.iter_mut().zip(self.trail_head.iter_mut());
+            for ((x, y), (z, o)) in ins.zip(tail.iter().zip(rab.iter_mut())).take(lags) {
+                let (sab, head) = (*x, *y);
+                (*x, *y) = (0, 0);
+                let (sa, sb) = (lead_air.saturating_sub(*z), trail_air.saturating_sub(head));
+                *o = pearson_small(n32, sa, sb, sab);
+                n32 = n32.saturating_sub(1);
+            }
         }
         // R_aa up to its first lag at or below 0 (all the results need of it).
         let (mut a, mut h) = ((0, 0), (0, 0));
