@@ -46,9 +46,44 @@ impl<T: Default + Clone> BlockPool<T> {
     }
 }
 
+/// `f` of every item, in the items' order, worked out on up to `threads` threads (in
+/// contiguous chunks; on this thread alone for one).
+pub fn map_on_threads<T: Sync, R: Send>(
+    items: &[T],
+    threads: usize,
+    f: impl Fn(&T) -> R + Sync,
+) -> Vec<R> {
+    let threads = threads.clamp(1, items.len().max(1));
+    if threads == 1 {
+        return items.iter().map(f).collect();
+    }
+    let f = &f;
+    std::thread::scope(|scope| {
+        let handles: Vec<_> = items
+            .chunks(items.len().div_ceil(threads))
+            .map(|chunk| scope.spawn(move || chunk.iter().map(f).collect::<Vec<R>>()))
+            .collect();
+        handles
+            .into_iter()
+            .flat_map(|h| h.join().unwrap_or_else(|e| std::panic::resume_unwind(e)))
+            .collect()
+    })
+}
+
 #[cfg(test)]
 mod tests {
-    use super::from_setting;
+    use super::{from_setting, map_on_threads};
+
+    #[test]
+    fn a_map_on_threads_keeps_the_order() {
+        let items: Vec<u32> = (0..37).collect();
+        let want: Vec<u64> = items.iter().map(|&x| u64::from(x) * 3 + 1).collect();
+        for threads in [1, 2, 3, 8, 100] {
+            let got = map_on_threads(&items, threads, |&x| u64::from(x) * 3 + 1);
+            assert_eq!(got, want, "{threads} threads");
+        }
+        assert!(map_on_threads(&[] as &[u32], 4, |&x| x).is_empty());
+    }
 
     #[test]
     fn a_setting_is_a_whole_number_of_at_least_one() {

@@ -184,6 +184,8 @@ pub struct Capture {
     frames: u64,
     frames_in_file: u64,
     position: u64,
+    /// Byte offset of the first frame in the source.
+    data_offset: u64,
     scratch: Vec<u8>,
     /// An I/O error met after some frames were converted, reported on the next call.
     pending_io: Option<io::Error>,
@@ -261,12 +263,35 @@ impl Capture {
             frames,
             frames_in_file: frames.min(present),
             position: 0,
+            data_offset: h.data_offset,
             scratch: Vec::new(),
             pending_io: None,
             truncated: false,
             end_at_cut: false,
             unfinished,
         })
+    }
+
+    /// Go to frame `frame` (at most the declared length): the next [`read_frames`] starts
+    /// there. For readers that each take a stretch of the capture (the learning pass's
+    /// threads); a frame beyond the data of a cut file reads as the cut.
+    ///
+    /// [`read_frames`]: Capture::read_frames
+    pub fn seek_frame(&mut self, frame: u64) -> Result<(), CaptureError> {
+        let frame = frame.min(self.frames);
+        let at = self
+            .data_offset
+            .saturating_add(frame.saturating_mul(self.frame_bytes as u64));
+        self.reader
+            .seek(io::SeekFrom::Start(at))
+            .map_err(|source| CaptureError::Io {
+                path: self.path.clone(),
+                source,
+            })?;
+        self.position = frame;
+        self.pending_io = None;
+        self.truncated = false;
+        Ok(())
     }
 
     /// From now on, a data chunk cut short ends the data ([`Capture::read_frames`] returns 0)

@@ -6,7 +6,7 @@ use super::outcome::TipLevels;
 use super::record::RecordLevels;
 use super::DRIFT_SEGMENT_S;
 use crate::offline::level_drift;
-use crate::offline::threads::{offline_threads, BlockPool};
+use crate::offline::threads::{map_on_threads, offline_threads};
 use crate::shared::capture::Capture;
 use crate::shared::error::HostError;
 use crate::shared::rig::MAX_PROBES;
@@ -55,10 +55,69 @@ pub fn learn_with(
 
 /// One tip's counts: its channel, its histogram over the whole record, and one histogram of
 /// `SEGMENT_BIN`-count bins per drift segment.
+#[derive(Debug, PartialEq)]
 struct TipCounts {
     channel: usize,
     whole: Vec<u32>,
     segments: Vec<Vec<u32>>,
+}
+
+impl TipCounts {
+    /// Empty counts for the same tip.
+    fn fresh(&self) -> TipCounts {
+        TipCounts {
+            channel: self.channel,
+            whole: vec![0u32; self.whole.len()],
+            segments: Vec::new(),
+        }
+    }
+
+    /// Add the counts of `other` (the same tip, another stretch of the record), saturating
+    /// as the counting does.
+    fn add(&mut self, other: &TipCounts) {
+        let sum = |into: &mut Vec<u32>, from: &[u32]| {
+            if into.len() < from.len() {
+                into.resize(from.len(), 0);
+            }
+            for (a, &b) in into.iter_mut().zip(from) {
+                *a = a.saturating_add(b);
+            }
+        };
+        sum(&mut self.whole, &other.whole);
+        if self.segments.len() < other.segments.len() {
+            self.segments.resize_with(other.segments.len(), Vec::new);
+        }
+        for (into, from) in self.segments.iter_mut().zip(&other.segments) {
+            sum(into, from);
+        }
+    }
+}
+
+/// Read the frames `start..end` of `cap` (positioned at `start`; `end` past the data reads
+/// to its end) and count them into `counts`.
+fn count_stretch(
+    cap: &mut Capture,
+    start: u64,
+    end: u64,
+    counts: &mut [TipCounts],
+    segment_frames: u64,
+    bins: usize,
+) -> Result<(), HostError> {
+    let channels = cap.channels().max(1);
+    let mut buf = Vec::with_capacity(BLOCK_FRAMES * channels);
+    let mut pieces = Vec::new();
+    let mut at = start;
+    while at < end {
+        let want = (end - at).min(BLOCK_FRAMES as u64) as usize;
+        let n = cap.read_frames(&mut buf, want)?;
+        if n == 0 {
+            break;
+        }
+        pieces_of(at, n, segment_frames, &mut pieces);
+        count(counts, &buf, channels, &pieces, bins);
+        at += n as u64;
+    }
+    Ok(())
 }
 
 /// A stretch of a block's frames inside one segment (`None`: no segments), as frame
@@ -134,12 +193,63 @@ fn pieces_of(at: u64, n: usize, segment_frames: u64, pieces: &mut Vec<Piece>) {
     }
 }
 
-/// A block of frames read and its pieces, shared by the counting threads.
-type Block = std::sync::Arc<(Vec<i16>, Vec<Piece>)>;
+/// Count the whole capture `cap` (just opened, from `path`) into `counts`, on up to
+/// `threads` threads.
+fn count_capture(
+    path: &Path,
+    cap: &mut Capture,
+    counts: &mut Vec<TipCounts>,
+    segment_frames: u64,
+    bins: usize,
+    threads: usize,
+) -> Result<(), HostError> {
+    // Stretches of at least two blocks each: a short capture is read on one thread.
+    let stretches = (cap.frames() / (2 * BLOCK_FRAMES as u64)).max(1);
+    let threads = (threads.max(1) as u64).min(stretches) as usize;
+    if threads == 1 {
+        count_stretch(cap, 0, u64::MAX, counts, segment_frames, bins)?;
+    } else {
+        // Each thread reads its own stretch of the capture and counts every tip into its
+        // own histograms; the counts are added afterwards. A sum of saturating counts,
+        // added saturating, is the count saturated: the levels do not depend on the number
+        // of threads, and the reading (the copy out of the page cache) runs in parallel.
+        let total = cap.frames();
+        let per = total.div_ceil(threads as u64);
+        let parts: Vec<Result<Vec<TipCounts>, HostError>> = std::thread::scope(|scope| {
+            let handles: Vec<_> = (0..threads as u64)
+                .map(|k| {
+                    let mut own: Vec<TipCounts> = counts.iter().map(TipCounts::fresh).collect();
+                    let (start, end) = ((k * per).min(total), ((k + 1) * per).min(total));
+                    scope.spawn(move || -> Result<Vec<TipCounts>, HostError> {
+                        let mut cap = Capture::open(path)?;
+                        cap.end_at_cut();
+                        cap.seek_frame(start)?;
+                        count_stretch(&mut cap, start, end, &mut own, segment_frames, bins)?;
+                        Ok(own)
+                    })
+                })
+                .collect();
+            handles
+                .into_iter()
+                .map(|h| h.join().unwrap_or_else(|e| std::panic::resume_unwind(e)))
+                .collect()
+        });
+        // The first stretch's counts take the others in (no copy into fresh ones).
+        let mut parts = parts.into_iter();
+        if let Some(first) = parts.next() {
+            *counts = first?;
+        }
+        for part in parts {
+            for (into, from) in counts.iter_mut().zip(part?) {
+                into.add(&from);
+            }
+        }
+    }
+    Ok(())
+}
 
-/// [`learn_with`] on `threads` threads: with more than one, this thread reads the capture
-/// and hands each block to counting threads, one per group of tips, that run behind it
-/// (counts, and so levels, do not depend on the number).
+/// [`learn_with`] on `threads` threads: with more than one, each reads and counts its own
+/// stretch of the capture (counts, and so levels, do not depend on the number).
 pub fn learn_threads(
     path: &Path,
     tips: &[LearningTip],
@@ -154,7 +264,6 @@ pub fn learn_threads(
     // A capture that stopped abruptly is learnt from what it holds; the processing pass
     // that follows reports the cut.
     cap.end_at_cut();
-    let channels = cap.channels().max(1);
     let mut counts: Vec<TipCounts> = tips
         .iter()
         .map(|t| TipCounts {
@@ -169,73 +278,32 @@ pub fn learn_threads(
         0
     };
     let bins = (1 << 16) / SEGMENT_BIN;
-    let threads = threads.clamp(1, tips.len());
-    let mut at = 0u64;
-    if threads == 1 {
-        let mut buf = Vec::with_capacity(BLOCK_FRAMES * channels);
-        let mut pieces = Vec::new();
-        loop {
-            let n = cap.read_frames(&mut buf, BLOCK_FRAMES)?;
-            if n == 0 {
-                break;
-            }
-            pieces_of(at, n, segment_frames, &mut pieces);
-            count(&mut counts, &buf, channels, &pieces, bins);
-            at += n as u64;
-        }
-    } else {
-        std::thread::scope(|scope| -> Result<(), HostError> {
-            let mut txs = Vec::new();
-            for g in counts.chunks_mut(tips.len().div_ceil(threads)) {
-                let (tx, rx) = std::sync::mpsc::sync_channel::<Block>(2);
-                txs.push(tx);
-                scope.spawn(move || {
-                    for b in rx {
-                        count(g, &b.0, channels, &b.1, bins);
-                    }
-                });
-            }
-            let mut pool = BlockPool::default();
-            loop {
-                let mut block: Block = pool.free_block();
-                let (buf, pieces) = std::sync::Arc::make_mut(&mut block);
-                let n = cap.read_frames(buf, BLOCK_FRAMES)?;
-                if n == 0 {
-                    return Ok(());
-                }
-                pieces_of(at, n, segment_frames, pieces);
-                at += n as u64;
-                for tx in &txs {
-                    let _ = tx.send(std::sync::Arc::clone(&block));
-                }
-                pool.keep(block);
-            }
-        })?;
-    }
+    count_capture(path, &mut cap, &mut counts, segment_frames, bins, threads)?;
     let hist: Vec<Vec<u32>> = counts
         .iter_mut()
         .map(|t| std::mem::take(&mut t.whole))
         .collect();
     let seg_hist: Vec<Vec<Vec<u32>>> = counts.into_iter().map(|t| t.segments).collect();
-    let out = tips
-        .iter()
-        .zip(&hist)
-        .map(|(&(probe, trailing, tip), h)| TipLevels {
+    // Each tip decided on its own (a 65 536-bin histogram and one per segment), the tips
+    // spread over the threads.
+    let per_tip: Vec<(usize, &LearningTip)> = tips.iter().enumerate().collect();
+    let decided = map_on_threads(&per_tip, threads, |&(i, &(probe, trailing, tip))| {
+        let whole = hist.get(i).map_or(&[][..], |h| h.as_slice());
+        let levels = TipLevels {
             probe,
             trailing,
             channel: tip.channel,
-            outcome: from_histogram(h, tip.polarity, min_swing),
-        })
-        .collect();
-    let segments = seg_hist
-        .iter()
-        .zip(tips)
-        .map(|(sh, t)| {
-            sh.iter()
-                .map(|coarse| segment_levels(coarse, t.2.polarity, min_swing))
-                .collect()
-        })
-        .collect();
+            outcome: from_histogram(whole, tip.polarity, min_swing),
+        };
+        let segments: Vec<_> = seg_hist
+            .get(i)
+            .map_or(&[][..], |s| s.as_slice())
+            .iter()
+            .map(|coarse| segment_levels(coarse, tip.polarity, min_swing))
+            .collect();
+        (levels, segments)
+    });
+    let (out, segments): (Vec<_>, Vec<_>) = decided.into_iter().unzip();
     let mut levels = RecordLevels {
         tips: out,
         segments,
@@ -258,4 +326,89 @@ pub fn learn_threads(
         })
         .collect();
     Ok(levels)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A two-channel 16-bit capture of `frames` frames: each tip switches between a water
+    /// and an air level (runs of pseudo-random length) with noise, the levels drifting.
+    fn write_capture(path: &Path, frames: u32) {
+        let spec = hound::WavSpec {
+            channels: 2,
+            sample_rate: 40_000,
+            bits_per_sample: 16,
+            sample_format: hound::SampleFormat::Int,
+        };
+        let mut w = hound::WavWriter::create(path, spec).unwrap();
+        let mut state = 0x2545_F491_4F6C_DD1Du64;
+        let mut next = move || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            state
+        };
+        let (mut air, mut left) = ([false; 2], [0u32; 2]);
+        for f in 0..frames {
+            for ch in 0..2 {
+                if left[ch] == 0 {
+                    air[ch] = !air[ch];
+                    left[ch] = 5 + (next() % 400) as u32;
+                }
+                left[ch] -= 1;
+                let drift = (f / 4_000) as i32 * (ch as i32 + 1);
+                let level = if air[ch] { 24_000 } else { 2_000 } + drift;
+                let noise = (next() % 601) as i32 - 300;
+                w.write_sample((level + noise).clamp(-32_768, 32_767) as i16)
+                    .unwrap();
+            }
+        }
+        w.finalize().unwrap();
+    }
+
+    fn counts_on(path: &Path, threads: usize) -> Vec<TipCounts> {
+        let mut cap = Capture::open(path).unwrap();
+        cap.end_at_cut();
+        let mut counts: Vec<TipCounts> = (0..2)
+            .map(|channel| TipCounts {
+                channel,
+                whole: vec![0u32; 1 << 16],
+                segments: Vec::new(),
+            })
+            .collect();
+        let bins = (1 << 16) / SEGMENT_BIN;
+        count_capture(path, &mut cap, &mut counts, 40_000, bins, threads).unwrap();
+        counts
+    }
+
+    /// Stretches read on several threads give the counts of one reader, histogram bin by
+    /// histogram bin, drift segments included, also when the file was cut short inside
+    /// the second stretch (and a third stretch lies wholly past the cut).
+    #[test]
+    fn stretches_on_threads_count_what_one_reader_counts() {
+        let dir = tempfile::tempdir().unwrap();
+        let whole = dir.path().join("whole.wav");
+        // Six blocks and a bit: three stretches of two blocks and more.
+        let frames = 6 * BLOCK_FRAMES as u32 + 1_234;
+        write_capture(&whole, frames);
+        let one = counts_on(&whole, 1);
+        let samples: u64 = one[0].whole.iter().map(|&c| u64::from(c)).sum();
+        assert_eq!(samples, u64::from(frames).div_ceil(LEARN_STRIDE));
+        assert!(one[0].segments.len() >= 5, "{}", one[0].segments.len());
+        for threads in [2, 3] {
+            assert!(counts_on(&whole, threads) == one, "{threads} threads");
+        }
+        // The same file cut 40 % in: the header still declares every frame.
+        let cut = dir.path().join("cut.wav");
+        let bytes = std::fs::read(&whole).unwrap();
+        std::fs::write(&cut, &bytes[..bytes.len() * 2 / 5]).unwrap();
+        let one = counts_on(&cut, 1);
+        for threads in [2, 3] {
+            assert!(
+                counts_on(&cut, threads) == one,
+                "cut file, {threads} threads"
+            );
+        }
+    }
 }
