@@ -387,7 +387,10 @@ pub enum Problem {
         allowed: String,
     },
     /// A required key is absent.
-    Missing,
+    Missing {
+        /// What to write there (empty when the key's name says it).
+        hint: &'static str,
+    },
     /// The value has the wrong type (`detail` says what was expected).
     WrongType {
         /// What was found and expected.
@@ -446,7 +449,8 @@ impl fmt::Display for Problem {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             Problem::UnknownKey { allowed } => write!(f, "unknown key (allowed here: {allowed})"),
-            Problem::Missing => f.write_str("required key is missing"),
+            Problem::Missing { hint: "" } => f.write_str("required key is missing"),
+            Problem::Missing { hint } => write!(f, "required key is missing; {hint}"),
             Problem::WrongType { detail } => write!(f, "wrong type: {detail}"),
             Problem::OutOfRange { detail } => write!(f, "out of range: {detail}"),
             Problem::TrailingWithoutSpacing => {

@@ -210,7 +210,8 @@ pub(super) fn schema_error(cx: &Ctx<'_>, doc: &DeTable<'_>, e: &toml::de::Error)
         (path.clone(), Problem::UnknownKey { allowed })
     } else if let Some(rest) = message.strip_prefix("missing field `") {
         let field = rest.trim_end_matches('`');
-        (key_of(field), Problem::Missing)
+        let hint = missing_hint(&path, field);
+        (key_of(field), Problem::Missing { hint })
     } else {
         let mut detail = message
             .trim_start_matches("invalid type: ")
@@ -231,6 +232,25 @@ pub(super) fn schema_error(cx: &Ctx<'_>, doc: &DeTable<'_>, e: &toml::de::Error)
         },
         at,
         problem: Box::new(problem),
+    }
+}
+
+/// What to write for a required key that a layout typed by hand leaves out.
+fn missing_hint(path: &str, field: &str) -> &'static str {
+    match (path, field) {
+        ("", "flow") => {
+            "say what was recorded with a `[flow]` table holding `kind = \"steady\"` (a \
+             statistically steady flow) or `kind = \"transient\"` (a front passing the probes)"
+        }
+        ("flow", "kind") => "`kind = \"steady\"` or `kind = \"transient\"`",
+        (p, "name") if p.starts_with("probe") => "a name for the probe, such as `name = \"P1\"`",
+        (p, "elevation_mm") if p.starts_with("probe") => {
+            "the tip's height above the bed in mm, such as `elevation_mm = 12.0`"
+        }
+        (p, "leading") if p.starts_with("probe") => {
+            "the WAV channel of the leading tip (0 for the first), such as `leading = 0`"
+        }
+        _ => "",
     }
 }
 

@@ -699,3 +699,31 @@ fn near_wake_keys() {
     );
     assert!(m.contains("not both"), "{m}");
 }
+
+/// A layout typed by hand with a required key left out is told what to write there.
+#[test]
+fn a_missing_required_key_says_what_to_write() {
+    let cases = [
+        (
+            "[[probe]]\nname = \"P1\"\nelevation_mm = 0\nleading = 3\n",
+            "flow",
+            "kind = \"steady\"",
+        ),
+        (
+            "[flow]\n[[probe]]\nname = \"P1\"\nelevation_mm = 0\nleading = 3\n",
+            "flow.kind",
+            "kind = \"transient\"",
+        ),
+        (
+            "[flow]\nkind = \"steady\"\n[[probe]]\nname = \"P1\"\nleading = 3\n",
+            "probe[0].elevation_mm",
+            "height above the bed",
+        ),
+    ];
+    for (text, key, hint) in cases {
+        let e = parse(text).unwrap_err().to_string();
+        assert!(e.contains(&format!("`{key}`")), "{e}");
+        assert!(e.contains("required key is missing"), "{e}");
+        assert!(e.contains(hint), "{e}");
+    }
+}
