@@ -197,16 +197,25 @@ fn coefficient(num: f32, va: f32, vb: f32) -> f32 {
 /// for a defined coefficient, and a 32-bit core makes no float selects for the tests.
 #[inline(always)]
 pub(super) fn pearson_small(n: u32, sa: u32, sb: u32, sab: u32) -> f32 {
+    let (defined, num, va, vb) = small_terms(n, sa, sb, sab);
+    if !defined {
+        return undefined();
+    }
+    coefficient(num as f32, va as f32, vb as f32)
+}
+
+/// The integer terms of a lag's coefficient from its exact sums (below 2^31 for sums of
+/// at most [`SMALL_N`] frames): whether it is defined (consistent sums, both variance
+/// terms positive: a positive i32 rounds to a positive f32, zero to zero), the numerator
+/// `n S_ab - S_a S_b` and the variance terms `S_a (n - S_a)`, `S_b (n - S_b)`.
+#[inline(always)]
+fn small_terms(n: u32, sa: u32, sb: u32, sab: u32) -> (bool, i32, i32, i32) {
     let ok = small_sums_consistent(n, sa, sb, sab);
     let (n, sa, sb, sab) = (n as i32, sa as i32, sb as i32, sab as i32);
     let va = sa.wrapping_mul(n.wrapping_sub(sa));
     let vb = sb.wrapping_mul(n.wrapping_sub(sb));
-    // A positive i32 rounds to a positive f32, zero to zero.
-    if !(ok & (va > 0) & (vb > 0)) {
-        return undefined();
-    }
-    let num = n.wrapping_mul(sab).wrapping_sub(sa.wrapping_mul(sb)) as f32;
-    coefficient(num, va as f32, vb as f32)
+    let num = n.wrapping_mul(sab).wrapping_sub(sa.wrapping_mul(sb));
+    (ok & (va > 0) & (vb > 0), num, va, vb)
 }
 
 /// [`pearson_small`] without a branch: both forms of the coefficient computed and the
@@ -216,13 +225,8 @@ pub(super) fn pearson_small(n: u32, sa: u32, sb: u32, sab: u32) -> f32 {
 /// them takes [`pearson_small`], which skips the work of the form not needed.
 #[inline(always)]
 pub(super) fn pearson_lane(n: u32, sa: u32, sb: u32, sab: u32) -> f32 {
-    let ok = small_sums_consistent(n, sa, sb, sab);
-    let (n, sa, sb, sab) = (n as i32, sa as i32, sb as i32, sab as i32);
-    let va = sa.wrapping_mul(n.wrapping_sub(sa));
-    let vb = sb.wrapping_mul(n.wrapping_sub(sb));
-    let num = n.wrapping_mul(sab).wrapping_sub(sa.wrapping_mul(sb)) as f32;
-    let defined = ok & (va > 0) & (vb > 0);
-    let (fa, fb) = (va as f32, vb as f32);
+    let (defined, num, va, vb) = small_terms(n, sa, sb, sab);
+    let (num, fa, fb) = (num as f32, va as f32, vb as f32);
     let quotient = num / fa;
     // An undefined lag's terms may be negative: 1 in their place keeps the estimate's
     // integer step in range (its subtraction overflows for a negative operand).
