@@ -125,7 +125,11 @@ fn count_stretch(
 type Piece = (usize, usize, Option<usize>);
 
 /// A tip's channel, its whole-record histogram and its histogram of the current segment.
-type Lane<'a> = (usize, &'a mut [u32], Option<&'a mut [u32]>);
+type Lane<'a> = (
+    usize,
+    &'a mut [u32; 1 << 16],
+    Option<&'a mut [u32; (1 << 16) / SEGMENT_BIN]>,
+);
 
 /// Count every `LEARN_STRIDE`-th frame of `pieces` of `block` into the histograms of `tips`
 /// (`bins`: bins of a segment histogram, made when a tip first meets its segment). Frames
@@ -143,15 +147,17 @@ fn count(tips: &mut [TipCounts], block: &[i16], channels: usize, pieces: &[Piece
         let Some(piece) = block.get(first * channels..end * channels) else {
             continue;
         };
-        // Each tip's histograms looked up once per piece, not at every sample.
+        // Each tip's histograms looked up once per piece, not at every sample; as arrays
+        // of their fixed lengths, so a sample's bins need no bounds test.
         let mut lanes: Vec<Lane<'_>> = tips
             .iter_mut()
             .filter(|t| t.channel < channels)
-            .map(|t| {
+            .filter_map(|t| {
+                let whole: &mut [u32; 1 << 16] = t.whole.as_mut_slice().try_into().ok()?;
                 let segment = seg
                     .and_then(|k| t.segments.get_mut(k))
-                    .map(|v| v.as_mut_slice());
-                (t.channel, t.whole.as_mut_slice(), segment)
+                    .and_then(|v| v.as_mut_slice().try_into().ok());
+                Some((t.channel, whole, segment))
             })
             .collect();
         for frame in piece.chunks_exact(channels).step_by(LEARN_STRIDE as usize) {
@@ -160,10 +166,10 @@ fn count(tips: &mut [TipCounts], block: &[i16], channels: usize, pieces: &[Piece
                     continue;
                 };
                 let b = (x as u16 ^ 0x8000) as usize;
-                if let Some(c) = whole.get_mut(b) {
-                    *c = c.saturating_add(1);
-                }
-                if let Some(cell) = segment.as_mut().and_then(|v| v.get_mut(b / SEGMENT_BIN)) {
+                let c = &mut whole[b];
+                *c = c.saturating_add(1);
+                if let Some(coarse) = segment {
+                    let cell = &mut coarse[b / SEGMENT_BIN];
                     *cell = cell.saturating_add(1);
                 }
             }
