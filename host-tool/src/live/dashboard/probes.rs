@@ -56,11 +56,13 @@ fn fit(s: String, w: u16, right: bool) -> String {
 }
 
 /// Which probe columns fit in `width` cells: the less important ones go first (chord,
-/// windows, Tu, last C, ...), so a narrow terminal loses columns instead of cutting
-/// numbers. Column indices into `PROBE_COLUMNS`, in order.
+/// windows, Tu, last C, then a probe's convergence, which the table's title sums up as
+/// probes done, and its elevation), so a narrow terminal loses columns instead of cutting
+/// numbers, and keeps the run's C, F and V with the latest flags. Column indices into
+/// `PROBE_COLUMNS`, in order.
 pub fn probe_columns_that_fit(width: u16) -> Vec<usize> {
     // Lower keeps longer; the flags column (last) takes the rest of the width.
-    const KEEP: [u8; 11] = [0, 2, 0, 1, 2, 4, 6, 5, 1, 3, 1];
+    const KEEP: [u8; 11] = [0, 2, 0, 1, 1, 4, 6, 5, 2, 3, 1];
     let mut cols: Vec<usize> = (0..PROBE_COLUMNS.len()).collect();
     let need =
         |cols: &[usize]| -> u16 { cols.iter().map(|&i| PROBE_COLUMNS[i].1 + 1).sum::<u16>() };

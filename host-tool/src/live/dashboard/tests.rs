@@ -155,6 +155,9 @@ fn dashboard_shows_probe_rows_and_link_health() {
         "link drops",
         "run \"flume-3\" running",
         "stuck tips",
+        "V [m/s]",
+        "2.70±0.00",
+        "done",
     ] {
         assert!(tiny.contains(want), "80 columns lack {want:?}:\n{tiny}");
     }
