@@ -17,6 +17,12 @@ use std::path::Path;
 /// Frames read per block by the learning pass.
 const BLOCK_FRAMES: usize = 1 << 15;
 
+/// Bins of a tip's whole-record histogram: one per i16 value.
+const WHOLE_BINS: usize = 1 << 16;
+
+/// Bins of a drift segment's histogram (`SEGMENT_BIN` values each).
+const SEGMENT_BINS: usize = WHOLE_BINS / SEGMENT_BIN;
+
 /// A tip to learn: its probe's index in the layout, trailing or not, its configuration.
 pub type LearningTip = (usize, bool, TipConfig);
 
@@ -101,7 +107,6 @@ fn count_stretch(
     end: u64,
     counts: &mut [TipCounts],
     segment_frames: u64,
-    bins: usize,
 ) -> Result<(), HostError> {
     let channels = cap.channels().max(1);
     let mut buf = Vec::with_capacity(BLOCK_FRAMES * channels);
@@ -114,7 +119,7 @@ fn count_stretch(
             break;
         }
         pieces_of(at, n, segment_frames, &mut pieces);
-        count(counts, &buf, channels, &pieces, bins);
+        count(counts, &buf, channels, &pieces);
         at += n as u64;
     }
     Ok(())
@@ -127,20 +132,20 @@ type Piece = (usize, usize, Option<usize>);
 /// A tip's channel, its whole-record histogram and its histogram of the current segment.
 type Lane<'a> = (
     usize,
-    &'a mut [u32; 1 << 16],
-    Option<&'a mut [u32; (1 << 16) / SEGMENT_BIN]>,
+    &'a mut [u32; WHOLE_BINS],
+    Option<&'a mut [u32; SEGMENT_BINS]>,
 );
 
 /// Count every `LEARN_STRIDE`-th frame of `pieces` of `block` into the histograms of `tips`
-/// (`bins`: bins of a segment histogram, made when a tip first meets its segment). Frames
+/// (a segment's histogram made when a tip first meets its segment). Frames
 /// outside, tips inside: each frame's cache line is read once for all the tips (a block is
 /// a megabyte at 16 channels; read once per tip, it came from beyond the caches each time).
-fn count(tips: &mut [TipCounts], block: &[i16], channels: usize, pieces: &[Piece], bins: usize) {
+fn count(tips: &mut [TipCounts], block: &[i16], channels: usize, pieces: &[Piece]) {
     for &(first, end, seg) in pieces {
         if let Some(k) = seg {
             for t in tips.iter_mut() {
                 while t.segments.len() <= k {
-                    t.segments.push(vec![0u32; bins]);
+                    t.segments.push(vec![0u32; SEGMENT_BINS]);
                 }
             }
         }
@@ -153,7 +158,7 @@ fn count(tips: &mut [TipCounts], block: &[i16], channels: usize, pieces: &[Piece
             .iter_mut()
             .filter(|t| t.channel < channels)
             .filter_map(|t| {
-                let whole: &mut [u32; 1 << 16] = t.whole.as_mut_slice().try_into().ok()?;
+                let whole: &mut [u32; WHOLE_BINS] = t.whole.as_mut_slice().try_into().ok()?;
                 let segment = seg
                     .and_then(|k| t.segments.get_mut(k))
                     .and_then(|v| v.as_mut_slice().try_into().ok());
@@ -206,14 +211,13 @@ fn count_capture(
     cap: &mut Capture,
     counts: &mut Vec<TipCounts>,
     segment_frames: u64,
-    bins: usize,
     threads: usize,
 ) -> Result<(), HostError> {
     // Stretches of at least two blocks each: a short capture is read on one thread.
     let stretches = (cap.frames() / (2 * BLOCK_FRAMES as u64)).max(1);
     let threads = (threads.max(1) as u64).min(stretches) as usize;
     if threads == 1 {
-        count_stretch(cap, 0, u64::MAX, counts, segment_frames, bins)?;
+        count_stretch(cap, 0, u64::MAX, counts, segment_frames)?;
     } else {
         // Each thread reads its own stretch of the capture and counts every tip into its
         // own histograms; the counts are added afterwards. A sum of saturating counts,
@@ -230,7 +234,7 @@ fn count_capture(
                         let mut cap = Capture::open(path)?;
                         cap.end_at_cut();
                         cap.seek_frame(start)?;
-                        count_stretch(&mut cap, start, end, &mut own, segment_frames, bins)?;
+                        count_stretch(&mut cap, start, end, &mut own, segment_frames)?;
                         Ok(own)
                     })
                 })
@@ -274,7 +278,7 @@ pub fn learn_threads(
         .iter()
         .map(|t| TipCounts {
             channel: t.2.channel as usize,
-            whole: vec![0u32; 1 << 16],
+            whole: vec![0u32; WHOLE_BINS],
             segments: Vec::new(),
         })
         .collect();
@@ -283,8 +287,7 @@ pub fn learn_threads(
     } else {
         0
     };
-    let bins = (1 << 16) / SEGMENT_BIN;
-    count_capture(path, &mut cap, &mut counts, segment_frames, bins, threads)?;
+    count_capture(path, &mut cap, &mut counts, segment_frames, threads)?;
     let hist: Vec<Vec<u32>> = counts
         .iter_mut()
         .map(|t| std::mem::take(&mut t.whole))
@@ -337,6 +340,8 @@ pub fn learn_threads(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use rand::rngs::StdRng;
+    use rand::{Rng, SeedableRng};
 
     /// A two-channel 16-bit capture of `frames` frames: each tip switches between a water
     /// and an air level (runs of pseudo-random length) with noise, the levels drifting.
@@ -348,24 +353,18 @@ mod tests {
             sample_format: hound::SampleFormat::Int,
         };
         let mut w = hound::WavWriter::create(path, spec).unwrap();
-        let mut state = 0x2545_F491_4F6C_DD1Du64;
-        let mut next = move || {
-            state ^= state << 13;
-            state ^= state >> 7;
-            state ^= state << 17;
-            state
-        };
+        let mut rng = StdRng::seed_from_u64(7);
         let (mut air, mut left) = ([false; 2], [0u32; 2]);
         for f in 0..frames {
             for ch in 0..2 {
                 if left[ch] == 0 {
                     air[ch] = !air[ch];
-                    left[ch] = 5 + (next() % 400) as u32;
+                    left[ch] = rng.random_range(5..405);
                 }
                 left[ch] -= 1;
                 let drift = (f / 4_000) as i32 * (ch as i32 + 1);
                 let level = if air[ch] { 24_000 } else { 2_000 } + drift;
-                let noise = (next() % 601) as i32 - 300;
+                let noise: i32 = rng.random_range(-300..=300);
                 w.write_sample((level + noise).clamp(-32_768, 32_767) as i16)
                     .unwrap();
             }
@@ -379,12 +378,11 @@ mod tests {
         let mut counts: Vec<TipCounts> = (0..2)
             .map(|channel| TipCounts {
                 channel,
-                whole: vec![0u32; 1 << 16],
+                whole: vec![0u32; WHOLE_BINS],
                 segments: Vec::new(),
             })
             .collect();
-        let bins = (1 << 16) / SEGMENT_BIN;
-        count_capture(path, &mut cap, &mut counts, 40_000, bins, threads).unwrap();
+        count_capture(path, &mut cap, &mut counts, 40_000, threads).unwrap();
         counts
     }
 
