@@ -215,18 +215,23 @@ impl ProbeTally {
             .collect()
     }
 
-    /// Flag counts as `few_bubbles 3/15 stuck 1/15`, or `-`.
-    pub fn flags_text(&self) -> String {
+    /// Flag counts as `few_bubbles 3/15`, one per flag that occurred, or `-` alone.
+    pub fn flag_items(&self) -> Vec<String> {
         let v: Vec<String> = self
             .flag_counts()
             .into_iter()
             .map(|(name, n)| format!("{name} {n}/{}", self.windows))
             .collect();
         if v.is_empty() {
-            "-".into()
+            vec!["-".into()]
         } else {
-            v.join(" ")
+            v
         }
+    }
+
+    /// Flag counts as `few_bubbles 3/15 stuck 1/15`, or `-`.
+    pub fn flags_text(&self) -> String {
+        self.flag_items().join(" ")
     }
 
     /// Why windows were left out, as `2 before the front, 1 excluded flag; V: 3 untrusted`
@@ -307,19 +312,27 @@ fn figures_header() -> String {
     )
 }
 
+/// A probe's five figures as printed, in table order: name, unit, value with interval
+/// (`-` for none): C, F, V, Tu and the chord median.
+fn figure_texts(t: &ProbeTally) -> [(&'static str, &'static str, String); 5] {
+    [
+        ("C", "", estimate_text(t.void_fraction(), 1.0, 4)),
+        ("F", " Hz", estimate_text(t.count_rate_hz(), 1.0, 1)),
+        ("V", " m/s", estimate_text(t.velocity_m_s(), 1.0, 2)),
+        ("Tu", "", estimate_text(t.turbulence_intensity(), 1.0, 2)),
+        ("chord", " ms", estimate_text(t.chord_median_s(), 1e3, 3)),
+    ]
+}
+
 /// One probe's figures under [`figures_header`] (no line end).
 fn figures_row(r: &SummaryRow<'_>) -> String {
     let t = r.tally;
+    let [c, f, v, tu, chord] = figure_texts(t).map(|(_, _, text)| text);
     format!(
-        "{:<10} {:>7.1} {:>9} {:>15} {:>13} {:>11} {:>11} {:>13} {:>8.0}",
+        "{:<10} {:>7.1} {:>9} {c:>15} {f:>13} {v:>11} {tu:>11} {chord:>13} {:>8.0}",
         r.name,
         r.elevation_mm,
         format!("{}/{}", t.used, t.windows),
-        estimate_text(t.void_fraction(), 1.0, 4),
-        estimate_text(t.count_rate_hz(), 1.0, 1),
-        estimate_text(t.velocity_m_s(), 1.0, 2),
-        estimate_text(t.turbulence_intensity(), 1.0, 2),
-        estimate_text(t.chord_median_s(), 1e3, 3),
         t.bubbles
     )
 }
@@ -358,17 +371,10 @@ pub fn summary_table_fitted(rows: &[SummaryRow<'_>], width: Option<usize>) -> St
                 format!("{:.0} bubbles", t.bubbles),
             ];
             // `V 2.91±0.03 m/s`, or `V -` without a value.
-            let item = |name: &str, value: String, unit: &str| match value.as_str() {
+            let figures = figure_texts(t).map(|(name, unit, value)| match value.as_str() {
                 "-" => format!("{name} -"),
                 _ => format!("{name} {value}{unit}"),
-            };
-            let figures = [
-                item("C", estimate_text(t.void_fraction(), 1.0, 4), ""),
-                item("F", estimate_text(t.count_rate_hz(), 1.0, 1), " Hz"),
-                item("V", estimate_text(t.velocity_m_s(), 1.0, 2), " m/s"),
-                item("Tu", estimate_text(t.turbulence_intensity(), 1.0, 2), ""),
-                item("chord", estimate_text(t.chord_median_s(), 1e3, 3), " ms"),
-            ];
+            });
             pack_items(&mut s, "", "    ", &head, width);
             pack_items(&mut s, "    ", "    ", &figures, width);
         }
@@ -376,17 +382,13 @@ pub fn summary_table_fitted(rows: &[SummaryRow<'_>], width: Option<usize>) -> St
             &format!("    left out: {}\n", t.left_out_text()),
             width,
         ));
-        let flags: Vec<String> = t
-            .flag_counts()
-            .into_iter()
-            .map(|(name, n)| format!("{name} {n}/{}", t.windows))
-            .collect();
-        let flags = if flags.is_empty() {
-            vec!["-".to_string()]
-        } else {
-            flags
-        };
-        pack_items(&mut s, "    flags (windows): ", "        ", &flags, width);
+        pack_items(
+            &mut s,
+            "    flags (windows): ",
+            "        ",
+            &t.flag_items(),
+            width,
+        );
     }
     let note = format!("(± 95 % batch-means interval; {RULE_TEXT})\n");
     s.push_str(&crate::shared::stdout::fold_lines(&note, width));
